@@ -1,0 +1,56 @@
+"""The `padtune` command line: finds the subcommands, runs one, and turns user mistakes into exit codes.
+
+Each subcommand lives in its own module under `tui/commands/` and exposes
+`register(subparsers) -> None`, which adds its parser and sets `func=callable(args) -> int`.
+Modules are discovered, so adding a command never means editing this file.
+
+Exit codes: 0 success, 1 a failed check, 2 a usage or input error (one line on stderr, no traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import pkgutil
+import sys
+from collections.abc import Sequence
+
+from tui import commands
+from tui.errors import UserError
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="padtune",
+        description="Bring up and tune capacitive touch keys live over a serial port.",
+    )
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for info in sorted(pkgutil.iter_modules(commands.__path__), key=lambda m: m.name):
+        if info.name.startswith("_"):
+            continue
+        module = importlib.import_module(f"{commands.__name__}.{info.name}")
+        module.register(sub)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    func = getattr(args, "func", None)
+    if func is None:
+        # `padtune` alone opens the port picker when the TUI provides one, else shows the help.
+        func = getattr(commands, "default_command", None)
+        if func is None:
+            parser.print_help()
+            return 2
+    try:
+        return int(func(args) or 0)
+    except UserError as exc:
+        print(f"padtune: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())
