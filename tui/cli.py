@@ -15,6 +15,7 @@ import pkgutil
 import sys
 from collections.abc import Sequence
 
+import devices
 from tui import commands
 from tui.errors import UserError
 
@@ -34,6 +35,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    devices.register_url_handlers()
     parser = build_parser()
     args = parser.parse_args(argv)
     func = getattr(args, "func", None)
