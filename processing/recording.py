@@ -1,0 +1,571 @@
+"""The padtune recording format (CSV with commented metadata), its writer and its readers.
+
+A recording is a text file, one line per row, LF endings:
+
+    # padtune recording v1
+    # start_utc=2026-12-01T22:17:24.123456Z
+    # source=sim://greenhouse?speed=4
+    # first_index=0
+    # info t_s=0.000120 proto=1 board=greenhouse channels=6 rate=100 names=zone1,zone2,...
+    t_s,seq,zone1,zone2,...
+    0.010250,0,10231,10410,...
+    # mark t_s=2.500000 kind=touch-start channel=zone1 text=hold zone 1
+    ...
+
+- The first line names the format and its version. Metadata rows (`# key=value`) follow until the first
+  header row. Unknown metadata keys are kept, never an error.
+- The header row is `t_s,seq,` and one column per channel, named after the board's names (`ch0`... when it
+  gave none). Data rows: host time in seconds since the recording's origin (6 decimals), the frame's
+  sequence number (-1 when it had none), then the integer readings.
+- Stream rows (`# <kind> key=value ... [text=free text to the end of the line]`) keep what happened between
+  frames, in stream order, so a replay feeds detection exactly what the live run saw:
+  `info` (an info line, its fields verbatim), `note` (a board comment), `fault` (a link fault: kind, count),
+  `link` (connection state), `board-changed` (followed by a new header row), `index` (the next frame's
+  running index when frames were skipped), and `mark` (a user mark, see `Mark`).
+  Values are percent-encoded where they hold whitespace or `%`; `text=` always comes last and takes the
+  rest of the line as it is.
+- The writer only ever writes whole rows and hands them to the operating system at least every
+  `flush_interval_s` (0.25 s by default) while it is called, so `kill -9` loses at most that much and the
+  file stays readable; the reader drops a partial last line (a crash mid-write) and says so.
+
+A file that does not start with the format line is read as a raw capture of protocol v1 lines and fed
+through `protocol.decoder.Decoder`, with times made up from the frame count and the board's rate.
+This module owns the format; it has no Textual import and no knowledge of ports.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import string
+import time
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, field
+from pathlib import Path
+from urllib.parse import quote, unquote
+
+import numpy as np
+
+from protocol.errors import UserError
+from protocol.events import (
+    BoardChanged,
+    BoardInfo,
+    Event,
+    FaultKind,
+    FrameBlock,
+    LinkFault,
+    LinkState,
+    LinkStatus,
+    Note,
+)
+
+FORMAT_LINE = "# padtune recording v1"
+FORMAT_PREFIX = "# padtune recording v"
+HEADER_START = "t_s,seq"
+MARK_KINDS = ("note", "touch-start", "touch-end", "quiet-start", "quiet-end")
+_SAFE = "".join(c for c in string.punctuation if c != "%")
+
+
+@dataclass(frozen=True, slots=True)
+class Mark:
+    """A user's mark in a recording.
+
+    `kind` is `note` (a moment worth finding again), `touch-start`/`touch-end` (the named `channel` is
+    touched between the two), or `quiet-start`/`quiet-end` (hands off between the two).
+    """
+
+    t_s: float
+    kind: str = "note"
+    channel: str | None = None
+    text: str = ""
+
+
+@dataclass
+class Recording:
+    """A recording read back: metadata, events in stream order (ready for `Session.handle`), marks."""
+
+    path: str
+    version: int | None  # None for a raw capture
+    meta: dict[str, str] = field(default_factory=dict)
+    events: list[Event] = field(default_factory=list)
+    marks: list[Mark] = field(default_factory=list)
+    names: tuple[str, ...] = ()
+    truncated: bool = False  # the last line was partial and was dropped
+
+    @property
+    def info(self) -> BoardInfo | None:
+        return next((e for e in self.events if isinstance(e, BoardInfo)), None)
+
+    @property
+    def blocks(self) -> list[FrameBlock]:
+        return [e for e in self.events if isinstance(e, FrameBlock)]
+
+    @property
+    def frames(self) -> int:
+        return sum(len(b) for b in self.blocks)
+
+    @property
+    def channels(self) -> int | None:
+        blocks = self.blocks
+        if blocks:
+            return blocks[-1].channels
+        info = self.info
+        return info.channels if info else None
+
+    @property
+    def rate_hz(self) -> float | None:
+        """The board's nominal rate, else the rate measured from the host times."""
+        info = self.info
+        if info and info.rate_hz:
+            return info.rate_hz
+        t_s, _, _ = self.arrays()
+        if len(t_s) > 1 and t_s[-1] > t_s[0]:
+            return float((len(t_s) - 1) / (t_s[-1] - t_s[0]))
+        return None
+
+    def arrays(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """All frames of the last width: (t_s, seq, readings (n, channels))."""
+        blocks = self.blocks
+        if not blocks:
+            return np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 0), np.int64)
+        width = blocks[-1].channels
+        same = [b for b in blocks if b.channels == width]
+        return (
+            np.concatenate([b.t_s for b in same]),
+            np.concatenate([b.seq for b in same]),
+            np.concatenate([b.readings for b in same]),
+        )
+
+
+# ---------------------------------------------------------------- formatting (pure)
+
+
+def _enc(value: object) -> str:
+    return quote(str(value), safe=_SAFE)
+
+
+def format_stream_row(kind: str, pairs: Iterable[tuple[str, object]], text: str | None = None) -> str:
+    """One `# kind k=v ... text=...` row, LF included. Newlines in `text` become spaces."""
+    parts = [f"# {kind}"] + [f"{k}={_enc(v)}" for k, v in pairs]
+    if text:
+        parts.append("text=" + text.replace("\r", " ").replace("\n", " "))
+    return " ".join(parts) + "\n"
+
+
+def format_header(names: Iterable[str]) -> str:
+    return ",".join([HEADER_START, *(n.replace(",", "_") for n in names)]) + "\n"
+
+
+def format_frames(block: FrameBlock, origin_t_s: float) -> str:
+    """Data rows for a block of frames (times relative to `origin_t_s`)."""
+    t_col = block.t_s - origin_t_s
+    rows = [
+        f"{t:.6f},{s}," + ",".join(map(str, r))
+        for t, s, r in zip(t_col.tolist(), block.seq.tolist(), block.readings.tolist(), strict=True)
+    ]
+    return "\n".join(rows) + "\n" if rows else ""
+
+
+def format_event(event: Event, origin_t_s: float) -> str:
+    """Stream row(s) for any non-frame event."""
+    t = f"{event.t_s - origin_t_s:.6f}"
+    if isinstance(event, BoardInfo):
+        return format_stream_row("info", [("t_s", t), *event.fields.items()])
+    if isinstance(event, Note):
+        return format_stream_row("note", [("t_s", t)], event.text or " ")
+    if isinstance(event, LinkFault):
+        return format_stream_row(
+            "fault", [("t_s", t), ("kind", event.kind.value), ("count", event.count)], event.detail
+        )
+    if isinstance(event, LinkStatus):
+        return format_stream_row(
+            "link", [("t_s", t), ("state", event.state.value), ("port", event.port)], event.detail
+        )
+    if isinstance(event, BoardChanged):
+        old = "" if event.old_channels is None else event.old_channels
+        return format_stream_row("board-changed", [("t_s", t), ("old", old), ("channels", event.channels)])
+    raise TypeError(f"not an event: {event!r}")
+
+
+def format_mark(mark: Mark, origin_t_s: float = 0.0) -> str:
+    pairs: list[tuple[str, object]] = [("t_s", f"{mark.t_s - origin_t_s:.6f}"), ("kind", mark.kind)]
+    if mark.channel is not None:
+        pairs.append(("channel", mark.channel))
+    return format_stream_row("mark", pairs, mark.text)
+
+
+def utc_stamp(epoch_s: float) -> str:
+    stamp = _dt.datetime.fromtimestamp(epoch_s, tz=_dt.UTC)
+    return stamp.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+# ---------------------------------------------------------------- writer (thin shell)
+
+
+class RecordingWriter:
+    """Writes events to a recording file as they come; whole rows only, flushed every `flush_interval_s`.
+
+    `origin_t_s` is the event clock's value that becomes time 0 (default: `clock()` now). Call
+    `write_events` with every batch the link hands over (frames, info, faults ...), `mark` for user marks,
+    `maybe_flush` from a timer when no events come, and `close` at the end. Pass the board's latest
+    `info` when recording starts mid-session, so names and polarity are in the file. `overwrite=False`
+    refuses an existing file (UserError) so a recording is never lost by a slip of the keyboard.
+    """
+
+    def __init__(
+        self,
+        path: str | os.PathLike[str],
+        *,
+        source: str = "",
+        origin_t_s: float | None = None,
+        clock: Callable[[], float] = time.monotonic,
+        wall_clock: Callable[[], float] = time.time,
+        flush_interval_s: float = 0.25,
+        overwrite: bool = False,
+        meta: dict[str, object] | None = None,
+        info: BoardInfo | None = None,
+    ) -> None:
+        self.path = Path(path)
+        self._clock = clock
+        self.origin_t_s = clock() if origin_t_s is None else origin_t_s
+        self.flush_interval_s = flush_interval_s
+        self.frames_written = 0
+        self.marks_written = 0
+        self._names: tuple[str, ...] = ()
+        self._width: int | None = None
+        self._header_written = False
+        self._next_index: int | None = None
+        self._buffer: list[str] = []
+        self._last_flush_s = clock()
+        flags = os.O_WRONLY | os.O_CREAT | (os.O_TRUNC if overwrite else os.O_EXCL)
+        try:
+            self._fd: int | None = os.open(self.path, flags, 0o644)
+        except FileExistsError:
+            raise UserError(
+                f"{self.path} already exists: choose another file name or allow overwriting"
+            ) from None
+        except OSError as exc:
+            raise UserError(f"cannot create recording {self.path}: {exc.strerror}") from None
+        head = [FORMAT_LINE + "\n", f"# start_utc={utc_stamp(wall_clock())}\n"]
+        if source:
+            head.append(f"# source={_enc(source)}\n")
+        for key, value in (meta or {}).items():
+            head.append(f"# {key}={_enc(value)}\n")
+        self._buffer.extend(head)
+        if info is not None:  # recording started mid-session: the board's info still belongs in it
+            self.write_events([info])
+        self.flush()
+
+    @property
+    def closed(self) -> bool:
+        return self._fd is None
+
+    def write_events(self, events: Iterable[Event]) -> None:
+        for event in events:
+            if isinstance(event, FrameBlock):
+                self._write_block(event)
+            else:
+                if isinstance(event, BoardInfo) and event.names and not self._header_written:
+                    self._names = event.names
+                if isinstance(event, BoardChanged):
+                    self._header_written = False
+                    self._names = ()
+                self._buffer.append(format_event(event, self.origin_t_s))
+        self.maybe_flush()
+
+    def _write_block(self, block: FrameBlock) -> None:
+        if len(block) == 0:
+            return
+        if self._next_index is None:
+            self._buffer.append(f"# first_index={block.first_index}\n")
+        elif block.first_index != self._next_index:
+            self._buffer.append(format_stream_row("index", [("value", block.first_index)]))
+        if not self._header_written or block.channels != self._width:
+            names = self._names if len(self._names) == block.channels else ()
+            names = names or tuple(f"ch{i}" for i in range(block.channels))
+            self._buffer.append(format_header(names))
+            self._header_written, self._width = True, block.channels
+        self._buffer.append(format_frames(block, self.origin_t_s))
+        self._next_index = block.first_index + len(block)
+        self.frames_written += len(block)
+
+    def mark(self, t_s: float, kind: str = "note", channel: str | None = None, text: str = "") -> Mark:
+        """Write a mark at event-clock time `t_s`; returns the mark with its recording-relative time."""
+        if kind not in MARK_KINDS:
+            raise UserError(f"unknown mark kind {kind!r}: use one of {', '.join(MARK_KINDS)}")
+        mark = Mark(t_s - self.origin_t_s, kind, channel, text)
+        self._buffer.append(format_mark(mark))
+        self.marks_written += 1
+        self.maybe_flush()
+        return mark
+
+    def maybe_flush(self) -> None:
+        if self._buffer and self._clock() - self._last_flush_s >= self.flush_interval_s:
+            self.flush()
+
+    def flush(self) -> None:
+        """Hand every buffered whole row to the operating system (one write per call where it can)."""
+        if self._fd is None:
+            return
+        data = "".join(self._buffer).encode("utf-8")
+        self._buffer.clear()
+        view = memoryview(data)
+        while view:
+            written = os.write(self._fd, view)
+            view = view[written:]
+        self._last_flush_s = self._clock()
+
+    def close(self) -> None:
+        if self._fd is None:
+            return
+        try:
+            self.flush()
+            os.fsync(self._fd)
+        finally:
+            os.close(self._fd)
+            self._fd = None
+
+    def __enter__(self) -> RecordingWriter:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+
+# ---------------------------------------------------------------- reading (pure parsing)
+
+
+def _parse_pairs(body: str) -> tuple[dict[str, str], str]:
+    """`k=v k=v text=...` -> (pairs, text)."""
+    text = ""
+    if body.startswith("text="):
+        body, text = "", body[5:]
+    elif " text=" in body:
+        body, text = body.split(" text=", 1)
+    pairs: dict[str, str] = {}
+    for token in body.split():
+        key, sep, value = token.partition("=")
+        if not sep:
+            raise ValueError(f"expected key=value, got {token!r}")
+        pairs[key] = unquote(value)
+    return pairs, text
+
+
+def info_from_fields(fields: dict[str, str], t_s: float) -> BoardInfo:
+    """A BoardInfo from an info line's raw fields, read as protocol v1 defines them (PROTOCOL.md)."""
+
+    def as_int(key: str) -> int | None:
+        try:
+            return int(fields[key]) if key in fields else None
+        except ValueError:
+            return None
+
+    rate: float | None = None
+    if "rate" in fields:
+        try:
+            rate = float(fields["rate"])
+        except ValueError:
+            rate = None
+    names = tuple(n for n in fields.get("names", "").split(",") if n)
+    signs = [s.strip() for s in fields.get("polarity", "").split(",")]
+    polarity = tuple(1 if s == "+" else -1 for s in signs if s in ("+", "-"))
+    return BoardInfo(
+        t_s=t_s,
+        fields=dict(fields),
+        proto=as_int("proto"),
+        board=fields.get("board"),
+        channels=as_int("channels"),
+        rate_hz=rate,
+        names=names,
+        method=fields.get("method"),
+        polarity=polarity,
+        fw=fields.get("fw"),
+        new_session="proto" in fields,
+    )
+
+
+class _Builder:
+    """Collects data rows into FrameBlocks between stream rows."""
+
+    def __init__(self, rec: Recording, where: str) -> None:
+        self.rec = rec
+        self.where = where
+        self.rows: list[list[str]] = []
+        self.linenos: list[int] = []
+        self.width: int | None = None
+        self.next_index = 0
+
+    def add_row(self, lineno: int, line: str) -> None:
+        cells = line.split(",")
+        if self.width is None:
+            raise ValueError("a data row before the header row")
+        if len(cells) != self.width + 2:
+            raise ValueError(f"expected {self.width + 2} columns, got {len(cells)}")
+        self.rows.append(cells)
+        self.linenos.append(lineno)
+
+    def close_block(self) -> None:
+        if not self.rows:
+            return
+        arr = np.array(self.rows)
+        try:
+            block = FrameBlock(
+                t_s=arr[:, 0].astype(np.float64),
+                seq=arr[:, 1].astype(np.int64),
+                readings=arr[:, 2:].astype(np.int64).reshape(len(arr), -1),
+                first_index=self.next_index,
+            )
+        except ValueError:
+            self._raise_for_bad_row()
+        self.rows, self.linenos = [], []
+        self.next_index += len(block)
+        self.rec.events.append(block)
+
+    def _raise_for_bad_row(self) -> None:
+        for lineno, cells in zip(self.linenos, self.rows, strict=True):
+            try:
+                float(cells[0])
+                [int(c) for c in cells[1:]]
+            except ValueError:
+                raise UserError(
+                    f"{self.where}:{lineno}: a data row must hold a time, a seq and integer readings, "
+                    f"got {','.join(cells)[:60]!r}"
+                ) from None
+        raise UserError(f"{self.where}: a data row could not be read")
+
+
+def _stream_row(b: _Builder, kind: str, pairs: dict[str, str], text: str) -> None:
+    rec = b.rec
+    t_s = float(pairs.get("t_s", "nan"))
+    if kind == "info":
+        rec.events.append(info_from_fields({k: v for k, v in pairs.items() if k != "t_s"}, t_s))
+    elif kind == "note":
+        rec.events.append(Note(t_s, text.strip()))
+    elif kind == "fault":
+        rec.events.append(LinkFault(t_s, FaultKind(pairs["kind"]), int(pairs.get("count", 1)), text))
+    elif kind == "link":
+        rec.events.append(LinkStatus(t_s, LinkState(pairs["state"]), pairs.get("port", ""), text))
+    elif kind == "board-changed":
+        old = pairs.get("old", "")
+        rec.events.append(BoardChanged(t_s, int(old) if old else None, int(pairs["channels"])))
+    elif kind == "index":
+        b.next_index = int(pairs["value"])
+    elif kind == "mark":
+        mkind = pairs.get("kind", "note")
+        if mkind not in MARK_KINDS:
+            raise ValueError(f"unknown mark kind {mkind!r}")
+        rec.marks.append(Mark(t_s, mkind, pairs.get("channel"), text))
+    # Unknown stream kinds come from a newer writer: skipped, the frames still read.
+
+
+def parse_recording_text(text: str, where: str = "<recording>") -> Recording:
+    """Parse a padtune recording. Raises UserError `where:line: what is wrong` for a damaged file."""
+    lines = text.split("\n")
+    truncated = bool(lines) and lines[-1] != ""
+    lines = lines[:-1]  # the last piece is empty for a whole file, or a partial row to drop
+    if not lines or not lines[0].startswith(FORMAT_PREFIX):
+        raise UserError(f"{where}: not a padtune recording (first line must be {FORMAT_LINE!r})")
+    try:
+        version = int(lines[0][len(FORMAT_PREFIX):].strip())
+    except ValueError:
+        raise UserError(f"{where}:1: cannot read the format version in {lines[0]!r}") from None
+    if version != 1:
+        raise UserError(f"{where}:1: recording format v{version} is newer than this padtune reads (v1)")
+    rec = Recording(path=where, version=version, truncated=truncated)
+    b = _Builder(rec, where)
+    in_meta = True
+    for lineno, raw in enumerate(lines[1:], start=2):
+        line = raw.rstrip("\r")
+        try:
+            in_meta = _parse_line(b, lineno, line, in_meta)
+        except (ValueError, KeyError) as exc:
+            raise UserError(
+                f"{where}:{lineno}: {exc}; the file is damaged or not a padtune recording"
+            ) from None
+    try:
+        b.close_block()
+    except ValueError as exc:
+        raise UserError(f"{where}: {exc}") from None
+    return rec
+
+
+def _parse_line(b: _Builder, lineno: int, line: str, in_meta: bool) -> bool:
+    rec = b.rec
+    if not line.strip():
+        return in_meta
+    if line.startswith("#"):
+        body = line[1:].strip()
+        kind, _, rest = body.partition(" ")
+        if in_meta and "=" in kind and " " not in body:
+            key, _, value = body.partition("=")
+            rec.meta[key] = unquote(value)
+            if key == "first_index":
+                b.next_index = int(value)
+            return True
+        if kind == "first_index" or body.startswith("first_index="):
+            b.next_index = int(body.partition("=")[2])
+            return in_meta
+        b.close_block()
+        pairs, text = _parse_pairs(rest)
+        _stream_row(b, kind, pairs, text)
+        return in_meta
+    if line.startswith(HEADER_START):
+        b.close_block()
+        rec.names = tuple(line.split(",")[2:])
+        b.width = len(rec.names)
+        return False
+    b.add_row(lineno, line)
+    return False
+
+
+def parse_raw_capture(data: bytes, where: str = "<capture>", rate_hz: float | None = None) -> Recording:
+    """A raw capture of protocol v1 lines through the protocol's decoder.
+
+    Times are made up: frame n arrives at n / rate (the info line's rate, else `rate_hz`, else 100 Hz).
+    """
+    from protocol.decoder import Decoder  # the decoder owns the wire format
+
+    decoder = Decoder()
+    rec = Recording(path=where, version=None, truncated=not data.endswith(b"\n") and bool(data))
+    rate = rate_hz
+    frames = 0
+
+    def feed(chunk: bytes) -> None:
+        nonlocal frames, rate
+        t_s = frames / (rate or 100.0)
+        for event in decoder.feed(chunk, t_s):
+            if isinstance(event, FrameBlock):
+                frames += len(event)
+            elif isinstance(event, BoardInfo) and event.rate_hz and rate_hz is None:
+                rate = event.rate_hz
+            rec.events.append(event)
+
+    # Fed line by line so that each frame gets its own made-up time.
+    for line in data.splitlines(keepends=True):
+        if not line.endswith(b"\n"):
+            break  # a partial last line: dropped like the CSV reader does
+        feed(line)
+    rec.names = decoder.info.names if decoder.info and decoder.info.names else ()
+    if rec.frames == 0:
+        raise UserError(f"{where}: no frames found: not a padtune recording nor a capture of protocol lines")
+    return rec
+
+
+def read_recording(path: str | os.PathLike[str], rate_hz: float | None = None) -> Recording:
+    """Read a padtune recording or a raw capture of protocol lines (UserError for anything unreadable)."""
+    p = Path(path)
+    try:
+        data = p.read_bytes()
+    except FileNotFoundError:
+        raise UserError(f"{p}: no such file") from None
+    except IsADirectoryError:
+        raise UserError(f"{p}: is a folder, not a recording") from None
+    except OSError as exc:
+        raise UserError(f"{p}: cannot read: {exc.strerror}") from None
+    if data.startswith(FORMAT_PREFIX.encode()):
+        try:
+            text = data.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise UserError(f"{p}: not valid UTF-8 at byte {exc.start}: the file is damaged") from None
+        return parse_recording_text(text, str(p))
+    return parse_raw_capture(data, str(p), rate_hz)
