@@ -1,0 +1,67 @@
+"""Crash-safe file replacement: the target always holds either the old or the new content.
+
+Temporary file in the same folder, write, flush, fsync, copy the old file's mode, keep the previous file
+as `<name>.bak` (a hard link to the old content, so the target never goes missing), `os.replace`, then
+fsync the folder so the rename itself survives a power cut.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import shutil
+import tempfile
+from pathlib import Path
+
+
+def _umask_mode() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+def _fsync_dir(folder: Path) -> None:
+    fd = os.open(folder, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def _keep_backup(path: Path) -> None:
+    """Make `<path>.bak` hold the current content without ever removing `path`."""
+    bak = path.with_name(path.name + ".bak")
+    tmp = path.with_name(f".{path.name}.bak-{os.getpid()}.tmp")
+    with contextlib.suppress(FileNotFoundError):
+        tmp.unlink()
+    try:
+        os.link(path, tmp)
+    except OSError:  # no hard links on this file system: copy instead (still atomic for the .bak)
+        shutil.copy2(path, tmp)
+    os.replace(tmp, bak)
+
+
+def atomic_write_bytes(path: str | os.PathLike[str], data: bytes, keep_backup: bool = True) -> None:
+    """Replace `path` with `data` atomically (OSError propagates; the old file is then untouched)."""
+    target = Path(path)
+    folder = target.parent if str(target.parent) else Path(".")
+    try:
+        mode = target.stat().st_mode & 0o7777
+        existed = True
+    except FileNotFoundError:
+        mode, existed = _umask_mode(), False
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    try:
+        with os.fdopen(fd, "wb") as f:
+            f.write(data)
+            f.flush()
+            os.fsync(f.fileno())
+        os.chmod(tmp_name, mode)
+        if existed and keep_backup:
+            _keep_backup(target)
+        os.replace(tmp_name, target)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp_name)
+        raise
+    _fsync_dir(folder)

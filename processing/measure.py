@@ -1,0 +1,208 @@
+"""What is measured for the engineer (floats): noise, touch signal, SNR, verdict, spectrum, history.
+
+Definitions (also in ALGORITHM.md, "Measures"):
+- noise RMS: population standard deviation (numpy.std, mean removed) of the delta over the last
+  `window_s` seconds of frames in which the channel was released; noise pp: max - min over the same frames.
+- touch signal: median delta of the frames in state touched (the last `touched_frames` of them).
+- SNR pp = signal / noise pp; SNR RMS = signal / noise RMS. The verdict uses the pp form.
+Memory is bounded: every buffer is a fixed-size ring allocated once.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from processing.detections import KeyState
+
+MIN_NOISE_SAMPLES = 8
+MIN_SPECTRUM_SAMPLES = 16
+MAINS_HZ = (50.0, 60.0)
+
+
+class History:
+    """Ring buffer of the last `capacity` frames of every channel (reading, delta, state, host time)."""
+
+    def __init__(self, channels: int, capacity: int) -> None:
+        self.channels, self.capacity = channels, max(1, capacity)
+        self.t_s = np.zeros(self.capacity, np.float64)
+        self.readings = np.zeros((self.capacity, channels), np.int64)
+        self.deltas = np.zeros((self.capacity, channels), np.int64)
+        self.states = np.zeros((self.capacity, channels), np.int8)
+        self.written = 0  # frames ever appended (the write position is written % capacity)
+
+    def __len__(self) -> int:
+        return min(self.written, self.capacity)
+
+    def append(self, t_s: np.ndarray, readings: np.ndarray, deltas: np.ndarray, states: np.ndarray) -> None:
+        n = len(t_s)
+        if n > self.capacity:  # only the newest rows can survive
+            t_s, readings, deltas, states = t_s[-self.capacity:], readings[-self.capacity:], \
+                deltas[-self.capacity:], states[-self.capacity:]
+            self.written += n - self.capacity
+            n = self.capacity
+        pos = self.written % self.capacity
+        first = min(n, self.capacity - pos)
+        pairs = ((self.t_s, t_s), (self.readings, readings), (self.deltas, deltas), (self.states, states))
+        for dst, src in pairs:
+            dst[pos:pos + first] = src[:first]
+            dst[:n - first] = src[first:]
+        self.written += n
+
+    def last(self, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """The newest `n` frames (fewer if not yet written), oldest first: t_s, readings, deltas, states."""
+        n = min(n, len(self))
+        idx = (np.arange(self.written - n, self.written)) % self.capacity
+        return self.t_s[idx], self.readings[idx], self.deltas[idx], self.states[idx]
+
+
+@dataclass(frozen=True, slots=True)
+class NoiseStats:
+    rms_counts: float
+    pp_counts: float
+    samples: int
+
+
+@dataclass(frozen=True, slots=True)
+class VerdictBounds:
+    """SNR (pp form) bounds of the verdict.
+
+    Common practice, no source: below 5 is not reliable, 5-10 marginal, above 10 robust.
+    """
+
+    weak_below: float = 5.0
+    solid_above: float = 10.0
+
+    def verdict(self, snr_pp: float | None) -> str:
+        if snr_pp is None:
+            return "unmeasured"
+        if snr_pp < self.weak_below:
+            return "weak"
+        return "marginal" if snr_pp <= self.solid_above else "solid"
+
+
+@dataclass(frozen=True, slots=True)
+class ChannelQuality:
+    noise: NoiseStats | None
+    signal_counts: float | None
+    snr_pp: float | None
+    snr_rms: float | None
+    verdict: str
+
+
+@dataclass(frozen=True, slots=True)
+class SpectrumPeak:
+    freq_hz: float
+    amplitude_counts: float  # amplitude of the sine that would give this peak
+    samples: int
+    mains_hz: float | None  # the mains frequency this peak is an alias of, if any
+    harmonic: int | None  # 1 = the mains fundamental, 2 = second harmonic, ...
+    alias_hz: float | None
+
+    def describe(self) -> str:
+        if self.mains_hz is None:
+            return f"strongest noise at {self.freq_hz:.1f} Hz, not a mains alias"
+        which = "mains" if self.harmonic == 1 else f"mains harmonic {self.harmonic}"
+        tone_hz = self.mains_hz * (self.harmonic or 1)
+        return (f"strongest noise at {self.freq_hz:.1f} Hz: alias of {tone_hz:g} Hz "
+                f"({which}, {self.mains_hz:g} Hz)")
+
+
+def alias_hz(f_hz: float, fs_hz: float) -> float:
+    """Where a tone at f_hz shows after sampling at fs_hz: |f - round(f/fs)*fs| (round half up)."""
+    return abs(f_hz - math.floor(f_hz / fs_hz + 0.5) * fs_hz)
+
+
+def explain_peak(freq_hz: float, fs_hz: float, tolerance_hz: float, harmonics: int = 5,
+                 mains: tuple[float, ...] = MAINS_HZ) -> tuple[float, int, float] | None:
+    """(mains_hz, harmonic, alias_hz) of the first mains harmonic whose alias lies within tolerance."""
+    for k in range(1, harmonics + 1):
+        for m in mains:
+            a = alias_hz(k * m, fs_hz)
+            if abs(a - freq_hz) <= tolerance_hz:
+                return m, k, a
+    return None
+
+
+def spectrum_peak(samples: np.ndarray, fs_hz: float) -> SpectrumPeak | None:
+    """Strongest non-DC peak of a Hann-windowed FFT of `samples` (mean removed), with its mains check."""
+    x = np.asarray(samples, np.float64)
+    if len(x) < MIN_SPECTRUM_SAMPLES or fs_hz <= 0:
+        return None
+    window = np.hanning(len(x))
+    spec = np.abs(np.fft.rfft((x - x.mean()) * window))
+    spec[0] = 0.0
+    k = int(np.argmax(spec))
+    if spec[k] == 0.0:
+        return None
+    freq = k * fs_hz / len(x)
+    amplitude = 2.0 * spec[k] / window.sum()
+    match = explain_peak(freq, fs_hz, tolerance_hz=fs_hz / len(x))
+    m, h, a = match if match else (None, None, None)
+    return SpectrumPeak(freq, float(amplitude), len(x), m, h, a)
+
+
+class Measures:
+    """Per-channel noise, touch signal, SNR and verdict, computed on demand from bounded rings."""
+
+    def __init__(self, channels: int, rate_hz: float, window_s: float = 2.0, history_frames: int = 4096,
+                 touched_frames: int = 2048, bounds: VerdictBounds | None = None) -> None:
+        self.channels, self.rate_hz, self.window_s = channels, rate_hz, window_s
+        self.bounds = bounds or VerdictBounds()
+        self.history = History(channels, max(history_frames, 2 * self.window_frames))
+        self._touched = np.zeros((max(1, touched_frames), channels), np.int64)
+        self._touched_written = np.zeros(channels, np.int64)
+
+    @property
+    def window_frames(self) -> int:
+        return max(MIN_NOISE_SAMPLES, math.ceil(self.window_s * self.rate_hz))
+
+    def ingest(self, t_s: np.ndarray, readings: np.ndarray, deltas: np.ndarray, states: np.ndarray) -> None:
+        self.history.append(t_s, readings, deltas, states)
+        touched = states == KeyState.TOUCHED
+        cap = self._touched.shape[0]
+        for c in np.flatnonzero(touched.any(axis=0)).tolist():
+            values = deltas[touched[:, c], c][-cap:]
+            idx = (self._touched_written[c] + np.arange(len(values))) % cap
+            self._touched[idx, c] = values
+            self._touched_written[c] += len(values)
+
+    def clear_touch_signal(self, channel: int | None = None) -> None:
+        if channel is None:
+            self._touched_written[:] = 0
+        else:
+            self._touched_written[channel] = 0
+
+    def released_deltas(self, channel: int) -> np.ndarray:
+        """Deltas of the newest `window_frames` released frames still in the history, oldest first."""
+        _, _, deltas, states = self.history.last(self.history.capacity)
+        values = deltas[states[:, channel] == KeyState.RELEASED, channel]
+        return values[-self.window_frames:]
+
+    def noise(self, channel: int) -> NoiseStats | None:
+        values = self.released_deltas(channel)
+        if len(values) < MIN_NOISE_SAMPLES:
+            return None
+        return NoiseStats(float(np.std(values)), float(values.max() - values.min()), len(values))
+
+    def touch_signal(self, channel: int) -> float | None:
+        n = min(int(self._touched_written[channel]), self._touched.shape[0])
+        return float(np.median(self._touched[:n, channel])) if n else None
+
+    def quality(self, channel: int) -> ChannelQuality:
+        noise, signal = self.noise(channel), self.touch_signal(channel)
+        snr_pp = snr_rms = None
+        if noise is not None and signal is not None:
+            snr_pp = signal / noise.pp_counts if noise.pp_counts > 0 else math.inf
+            snr_rms = signal / noise.rms_counts if noise.rms_counts > 0 else math.inf
+        return ChannelQuality(noise, signal, snr_pp, snr_rms, self.bounds.verdict(snr_pp))
+
+    def spectrum(self, channel: int) -> SpectrumPeak | None:
+        """FFT of the newest unbroken run of released frames within the window (on demand)."""
+        _, _, deltas, states = self.history.last(self.window_frames)
+        released = states[:, channel] == KeyState.RELEASED
+        broken = np.flatnonzero(~released)
+        start = int(broken[-1]) + 1 if len(broken) else 0
+        return spectrum_peak(deltas[start:, channel], self.rate_hz)

@@ -1,0 +1,344 @@
+"""The tuned profile: model, TOML load with full validation, atomic save. Keys: README "Profile file".
+
+Loading checks everything before building anything, so a bad file is refused whole with every problem
+listed as `file:key: what is wrong` (with a did-you-mean for misspelt keys); nothing is half-applied.
+"""
+
+from __future__ import annotations
+
+import difflib
+import os
+import re
+import tomllib
+from collections.abc import Mapping
+from dataclasses import asdict, dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+import tomli_w
+
+from processing.atomic import atomic_write_bytes
+from processing.groups import GroupSpec
+from processing.settings import LIMIT_KEYS, SETTING_KEYS, ChannelSettings, Limits
+from processing.slider import SliderSpec
+from protocol.errors import UserError
+
+FORMAT_VERSION = 1
+MAX_CHANNELS = 1024
+NAME_RE = re.compile(r"^[A-Za-z0-9_.-]{1,32}$")
+TOP_KEYS = ("format_version", "board", "channels", "names", "polarity", "rate_hz", "defaults", "channel",
+            "group", "slider", "limits")
+Problems = list[tuple[str, str]]
+NAME_HINT = "1-32 letters, digits, '_', '-', '.'"
+GROUP_KEYS = ("name", "members", "switch_margin_counts")
+SLIDER_KEYS = ("name", "pads", "wheel", "resolution")
+
+
+class ProfileError(UserError):
+    """A profile that cannot be loaded or saved. `problems` holds the `file:key: message` lines."""
+
+    def __init__(self, problems: list[str]) -> None:
+        self.problems = problems
+        super().__init__("\n".join(problems))
+
+
+@dataclass(frozen=True)
+class Profile:
+    """Everything a tuned board needs. `overrides` holds full settings for channels that differ."""
+
+    names: tuple[str, ...]
+    defaults: ChannelSettings = field(default_factory=ChannelSettings)
+    overrides: Mapping[int, ChannelSettings] = field(default_factory=dict)
+    groups: tuple[GroupSpec, ...] = ()
+    sliders: tuple[SliderSpec, ...] = ()
+    limits: Limits = field(default_factory=Limits)
+    board: str = ""
+    polarity: tuple[int, ...] = ()  # empty: take it from the board (+1 if the board does not say)
+    rate_hz: float | None = None  # the board's frame rate when the profile was saved (informational)
+    format_version: int = FORMAT_VERSION
+
+    @property
+    def channels(self) -> int:
+        return len(self.names)
+
+    def settings_for(self, channel: int) -> ChannelSettings:
+        return self.overrides.get(channel, self.defaults)
+
+    def all_settings(self) -> list[ChannelSettings]:
+        return [self.settings_for(c) for c in range(self.channels)]
+
+    def with_settings(self, channel: int, s: ChannelSettings) -> Profile:
+        overrides = dict(self.overrides)
+        if s == self.defaults:
+            overrides.pop(channel, None)
+        else:
+            overrides[channel] = s
+        return replace(self, overrides=overrides)
+
+
+def default_names(channels: int) -> tuple[str, ...]:
+    return tuple(f"ch{c}" for c in range(channels))
+
+
+def profile_for(channels: int, names: tuple[str, ...] = (), board: str = "", polarity: tuple[int, ...] = (),
+                rate_hz: float | None = None) -> Profile:
+    """A default profile for a board (names that are not valid profile names fall back to chN)."""
+    ok = len(names) == channels and len(set(names)) == channels and all(NAME_RE.match(n) for n in names)
+    pol = polarity if len(polarity) == channels else ()
+    return Profile(names=tuple(names) if ok else default_names(channels), board=board, polarity=pol,
+                   rate_hz=rate_hz)
+
+
+def profile_from_board(info: Any) -> Profile:
+    """Defaults for the board an info line describes (`protocol.events.BoardInfo`)."""
+    channels = info.channels or len(info.names)
+    pol = tuple(info.polarity) * channels if len(info.polarity) == 1 else tuple(info.polarity)
+    return profile_for(channels, tuple(info.names), info.board or "", pol, info.rate_hz)
+
+
+# ---------------------------------------------------------------- validation
+
+def _unknown(where: str, table: Mapping[str, Any], allowed: tuple[str, ...], out: Problems) -> None:
+    for key in table:
+        if key not in allowed:
+            close = difflib.get_close_matches(key, allowed, n=1)
+            hint = f"; did you mean '{close[0]}'?" if close else f"; known keys: {', '.join(allowed)}"
+            out.append((f"{where}{key}", f"unknown key{hint}"))
+
+
+def _is_int(v: Any) -> bool:
+    return isinstance(v, int) and not isinstance(v, bool)
+
+
+def _settings(where: str, table: Any, base: ChannelSettings, out: Problems) -> ChannelSettings | None:
+    if not isinstance(table, dict):
+        out.append((where.rstrip("."), "must be a table of settings"))
+        return None
+    _unknown(where, table, SETTING_KEYS, out)
+    values = {k: v for k, v in table.items() if k in SETTING_KEYS}
+    bad = [k for k, v in values.items() if not _is_int(v)]
+    for k in bad:
+        out.append((f"{where}{k}", f"must be a whole number, not {values[k]!r}"))
+    if bad:
+        return None
+    s = replace(base, **values)
+    for key, message in s.problems():
+        out.append((f"{where}{key}", message))
+    return s
+
+
+def _names(raw: dict[str, Any], out: Problems) -> tuple[str, ...] | None:
+    channels, names = raw.get("channels"), raw.get("names")
+    if not _is_int(channels) or not 1 <= channels <= MAX_CHANNELS:
+        out.append(("channels", f"must be a channel count from 1 to {MAX_CHANNELS}, not {channels!r}"))
+        return None
+    if names is None:
+        return default_names(channels)
+    if not isinstance(names, list) or not all(isinstance(n, str) for n in names):
+        out.append(("names", "must be a list of channel names (strings)"))
+        return None
+    if len(names) != channels:
+        out.append(("names", f"lists {len(names)} names but channels = {channels}"))
+        return None
+    for n in names:
+        if not NAME_RE.match(n):
+            out.append(("names", f"'{n}' is not a valid name ({NAME_HINT})"))
+    dupes = sorted({n for n in names if names.count(n) > 1})
+    if dupes:
+        out.append(("names", f"duplicate names: {', '.join(dupes)}"))
+    return tuple(names)
+
+
+def _channel_refs(where: str, refs: Any, names: tuple[str, ...], out: Problems) -> tuple[int, ...]:
+    if not isinstance(refs, list) or not refs:
+        out.append((where, "must be a non-empty list of channel names"))
+        return ()
+    found: list[int] = []
+    for ref in refs:
+        if isinstance(ref, str) and ref in names:
+            found.append(names.index(ref))
+        else:
+            close = difflib.get_close_matches(str(ref), names, n=1)
+            hint = f"; did you mean '{close[0]}'?" if close else ""
+            out.append((where, f"unknown channel {ref!r}{hint}"))
+    if len(set(found)) != len(found):
+        out.append((where, "lists a channel twice"))
+    return tuple(found)
+
+
+def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec, ...]:
+    groups: list[GroupSpec] = []
+    for i, g in enumerate(raw if isinstance(raw, list) else []):
+        where = f"group[{i}]."
+        if not isinstance(g, dict):
+            out.append((where.rstrip("."), "must be a table"))
+            continue
+        _unknown(where, g, GROUP_KEYS, out)
+        name, margin = g.get("name"), g.get("switch_margin_counts", 0)
+        if not isinstance(name, str) or not NAME_RE.match(name):
+            out.append((f"{where}name", f"must be a name ({NAME_HINT}), not {name!r}"))
+        if not _is_int(margin) or margin < 0:
+            out.append((f"{where}switch_margin_counts", f"must be a whole number >= 0, not {margin!r}"))
+        members = _channel_refs(f"{where}members", g.get("members"), names, out)
+        if len(members) == 1:
+            out.append((f"{where}members", "an exclusive group needs at least two members"))
+        groups.append(GroupSpec(str(name), members, margin if _is_int(margin) else 0))
+    if raw is not None and not isinstance(raw, list):
+        out.append(("group", "must be an array of tables ([[group]])"))
+    return tuple(groups)
+
+
+def _sliders(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[SliderSpec, ...]:
+    sliders: list[SliderSpec] = []
+    for i, sl in enumerate(raw if isinstance(raw, list) else []):
+        where = f"slider[{i}]."
+        if not isinstance(sl, dict):
+            out.append((where.rstrip("."), "must be a table"))
+            continue
+        _unknown(where, sl, SLIDER_KEYS, out)
+        name, wheel, res = sl.get("name"), sl.get("wheel", False), sl.get("resolution", 100)
+        if not isinstance(name, str) or not NAME_RE.match(name):
+            out.append((f"{where}name", f"must be a name ({NAME_HINT}), not {name!r}"))
+        if not isinstance(wheel, bool):
+            out.append((f"{where}wheel", f"must be true or false, not {wheel!r}"))
+        if not _is_int(res) or not 2 <= res <= 65535:
+            out.append((f"{where}resolution", f"must be a whole number from 2 to 65535, not {res!r}"))
+        pads = _channel_refs(f"{where}pads", sl.get("pads"), names, out)
+        need = 3 if wheel is True else 2
+        if pads and len(pads) < need:
+            kind = "wheel" if wheel is True else "slider"
+            out.append((f"{where}pads", f"a {kind} needs at least {need} pads"))
+        sliders.append(SliderSpec(str(name), pads, wheel is True, res if _is_int(res) else 100))
+    if raw is not None and not isinstance(raw, list):
+        out.append(("slider", "must be an array of tables ([[slider]])"))
+    return tuple(sliders)
+
+
+def _limits(raw: Any, out: Problems) -> Limits:
+    if raw is None:
+        return Limits()
+    if not isinstance(raw, dict):
+        out.append(("limits", "must be a table"))
+        return Limits()
+    _unknown("limits.", raw, LIMIT_KEYS, out)
+    limits = Limits(**{k: v for k, v in raw.items() if k in LIMIT_KEYS})
+    out.extend((f"limits.{k}", m) for k, m in limits.problems())
+    return limits
+
+
+def _head(raw: dict[str, Any], out: Problems) -> None:
+    version = raw.get("format_version")
+    if not _is_int(version):
+        out.append(("format_version", f"must be the whole number {FORMAT_VERSION}, not {version!r}"))
+    elif version > FORMAT_VERSION:
+        out.append(("format_version", f"{version} is newer than this padtune reads ({FORMAT_VERSION}); "
+                    "update padtune"))
+    elif version < 1:
+        out.append(("format_version", f"must be {FORMAT_VERSION}, not {version}"))
+    if not isinstance(raw.get("board", ""), str):
+        out.append(("board", "must be a string"))
+    rate = raw.get("rate_hz")
+    if rate is not None and (not isinstance(rate, int | float) or isinstance(rate, bool) or rate <= 0):
+        out.append(("rate_hz", f"must be a positive number, not {rate!r}"))
+
+
+def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[str, str]]]:
+    """Validate a parsed TOML document; returns the profile only when there is no problem at all."""
+    out: Problems = []
+    _unknown("", raw, TOP_KEYS, out)
+    _head(raw, out)
+    names = _names(raw, out)
+    defaults = _settings("defaults.", raw.get("defaults", {}), ChannelSettings(), out)
+    limits = _limits(raw.get("limits"), out)
+    if names is None or defaults is None:
+        return None, out
+    polarity = raw.get("polarity", [])
+    if not isinstance(polarity, list) or any(p not in (1, -1) or isinstance(p, bool) for p in polarity) or \
+            len(polarity) not in (0, len(names)):
+        out.append(("polarity", f"must be a list of {len(names)} values, each 1 or -1 (or left out)"))
+    overrides: dict[int, ChannelSettings] = {}
+    table = raw.get("channel", {})
+    if not isinstance(table, dict):
+        out.append(("channel", "must be a table of per-channel tables ([channel.NAME])"))
+        table = {}
+    for key, sub in table.items():
+        if key not in names:
+            close = difflib.get_close_matches(key, names, n=1)
+            hint = f"; did you mean '{close[0]}'?" if close else ""
+            out.append((f"channel.{key}", f"no channel named '{key}'{hint}"))
+            continue
+        s = _settings(f"channel.{key}.", sub, defaults, out)
+        if s is not None and s != defaults:
+            overrides[names.index(key)] = s
+    groups = _groups(raw.get("group"), names, out)
+    sliders = _sliders(raw.get("slider"), names, out)
+    if out:
+        return None, out
+    rate = raw.get("rate_hz")
+    return Profile(names, defaults, overrides, groups, sliders, limits, raw.get("board", ""),
+                   tuple(polarity), float(rate) if rate is not None else None, raw["format_version"]), out
+
+
+def load_profile(path: str | os.PathLike[str]) -> Profile:
+    """Read and validate a profile; raise ProfileError listing every problem (`file:key: message`)."""
+    p = Path(path)
+    try:
+        data = p.read_bytes()
+    except FileNotFoundError:
+        raise ProfileError([f"{p}: no such profile file"]) from None
+    except OSError as exc:
+        raise ProfileError([f"{p}: cannot read: {exc.strerror}"]) from None
+    try:
+        raw = tomllib.loads(data.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise ProfileError([f"{p}: not UTF-8 text; a profile is a TOML file"]) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ProfileError([f"{p}: not valid TOML: {exc}"]) from None
+    profile, problems = profile_from_dict(raw)
+    if profile is None:
+        raise ProfileError([f"{p}:{key}: {message}" for key, message in problems])
+    return profile
+
+
+# ---------------------------------------------------------------- saving
+
+def _settings_table(s: ChannelSettings, base: ChannelSettings | None) -> dict[str, int]:
+    return {k: v for k, v in asdict(s).items() if base is None or getattr(base, k) != v}
+
+
+def profile_to_dict(profile: Profile) -> dict[str, Any]:
+    """The TOML document for a profile (plain Python types only: tomli-w rejects numpy ints and None)."""
+    doc: dict[str, Any] = {"format_version": FORMAT_VERSION, "board": profile.board,
+                           "channels": profile.channels, "names": list(profile.names)}
+    if profile.polarity:
+        doc["polarity"] = [int(p) for p in profile.polarity]
+    if profile.rate_hz is not None:
+        doc["rate_hz"] = float(profile.rate_hz)
+    doc["defaults"] = _settings_table(profile.defaults, None)
+    channel = {profile.names[c]: _settings_table(s, profile.defaults)
+               for c, s in sorted(profile.overrides.items())}
+    if any(channel.values()):
+        doc["channel"] = {k: v for k, v in channel.items() if v}
+    if profile.groups:
+        doc["group"] = [{"name": g.name, "members": [profile.names[m] for m in g.members],
+                         "switch_margin_counts": int(g.switch_margin_counts)} for g in profile.groups]
+    if profile.sliders:
+        doc["slider"] = [{"name": s.name, "pads": [profile.names[p] for p in s.pads], "wheel": bool(s.wheel),
+                          "resolution": int(s.resolution)} for s in profile.sliders]
+    limits = {k: v for k, v in asdict(profile.limits).items() if v is not None}
+    if limits:
+        doc["limits"] = limits
+    return doc
+
+
+def save_profile(profile: Profile, path: str | os.PathLike[str]) -> None:
+    """Validate, then replace `path` atomically, keeping the previous file as `<path>.bak`."""
+    doc = profile_to_dict(profile)
+    _, problems = profile_from_dict(doc)
+    if problems:
+        raise ProfileError([f"{path}:{key}: {message} (not saved)" for key, message in problems])
+    try:
+        atomic_write_bytes(path, tomli_w.dumps(doc).encode("utf-8"))
+    except OSError as exc:
+        reason = exc.strerror or str(exc)
+        raise ProfileError([f"{path}: cannot save: {reason}; the previous file is unchanged"]) from None
