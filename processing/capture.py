@@ -1,0 +1,403 @@
+"""Guided capture and touch finding: the pure logic behind the capture wizard and `padtune tune`.
+
+`CaptureWizard` sequences the steps (hands off, then per key "touch and hold" and "release"), notices when
+nothing happened (or the wrong key moved) and asks again, and collects untouched and touched deltas per
+key. It is fed FrameBlocks and the current time, so it runs the same under Textual, a script or a test.
+
+Deltas here are measured against the wizard's own per-key baseline: the mean reading of the last second
+in which that key was not being touched (frozen from the moment its own step starts), so an untuned
+threshold that lets the engine's baseline creep under a finger cannot shrink the touch signal.
+
+`find_touches` does the same job on a recording: with marks it uses them; without, it estimates a drift-
+following baseline (a rolling minimum of half-second medians, a standard morphological baseline
+estimate) and finds the touched stretches as the frames well above the untouched spread.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from processing.recording import Mark
+from protocol.events import FrameBlock
+
+QUIET, TOUCH, RELEASE, DONE = "quiet", "touch", "release", "done"
+
+
+@dataclass(frozen=True, slots=True)
+class Step:
+    kind: str  # quiet, touch, release
+    channel: int | None
+    name: str
+
+    def instruction(self) -> str:
+        if self.kind == QUIET:
+            return "Hands off the panel: measuring noise"
+        if self.kind == TOUCH:
+            return f"Touch and hold {self.name}"
+        return f"Release {self.name}"
+
+
+@dataclass
+class KeyCapture:
+    """What the wizard collected for one key (deltas in counts, touch positive)."""
+
+    channel: int
+    name: str
+    quiet: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # hands-off frames
+    touched: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    crosstalk: list[int] = field(default_factory=list)  # while other keys were held
+    attempts: int = 0
+    seen: bool = False  # a touch clearly rose above the noise
+
+    @property
+    def untouched(self) -> np.ndarray:
+        """Everything this key saw while not touched: hands off, and while the others were held."""
+        return np.concatenate([self.quiet, np.array(self.crosstalk, np.int64)])
+
+
+def expand_polarity(polarity: Sequence[int], channels: int) -> np.ndarray:
+    """One sign per channel: a per-channel list as given, a single sign for all, +1 when unknown."""
+    if len(polarity) == channels:
+        return np.array(list(polarity), np.int64)
+    return np.full(channels, polarity[0] if len(polarity) == 1 else 1, np.int64)
+
+
+def _level(quiet: np.ndarray, min_rise_counts: float) -> float:
+    """The delta above which a key counts as moved: clear of the hands-off spread."""
+    if len(quiet) == 0:
+        return min_rise_counts
+    spread = float(np.max(np.abs(quiet - np.median(quiet))))
+    return max(2.0 * spread, 6.0 * float(np.std(quiet)), min_rise_counts)
+
+
+class CaptureWizard:
+    """Step sequencing, collection and "nothing happened" detection for guided capture."""
+
+    def __init__(self, names: Sequence[str], polarity: Sequence[int], rate_hz: float, *, quiet_s: float = 3.0,
+                 hold_s: float = 2.0, settle_s: float = 0.2, release_s: float = 0.5, timeout_s: float = 8.0,
+                 max_attempts: int = 3, min_rise_counts: float = 3.0, channels: Sequence[int] | None = None):
+        self.names = list(names)
+        self.polarity = expand_polarity(polarity, len(names))
+        self.rate_hz = rate_hz
+        self.quiet_frames = max(8, round(quiet_s * rate_hz))
+        self.hold_frames = max(4, round(hold_s * rate_hz))
+        self.settle_frames = round(settle_s * rate_hz)
+        self.release_frames = max(1, round(release_s * rate_hz))
+        self.timeout_s, self.max_attempts, self.min_rise_counts = timeout_s, max_attempts, min_rise_counts
+        keys = list(range(len(names))) if channels is None else list(channels)
+        self.steps = [Step(QUIET, None, "all keys")]
+        for c in keys:
+            self.steps += [Step(TOUCH, c, self.names[c]), Step(RELEASE, c, self.names[c])]
+        self.keys = {c: KeyCapture(c, self.names[c]) for c in keys}
+        self.step_index = 0
+        self.notice = ""
+        self._baseline = np.zeros(len(names))
+        self._recent: deque[np.ndarray] = deque()  # readings of the last second, for the baselines
+        self._recent_sum = np.zeros(len(names))
+        self._levels = np.full(len(names), min_rise_counts, float)
+        self._reset_step(None)
+
+    # -- state shown to the user
+    @property
+    def step(self) -> Step | None:
+        return self.steps[self.step_index] if self.step_index < len(self.steps) else None
+
+    @property
+    def done(self) -> bool:
+        return self.step is None
+
+    @property
+    def progress(self) -> float:
+        step = self.step
+        if step is None:
+            return 1.0
+        if step.kind == QUIET:
+            return min(1.0, self._count / self.quiet_frames)
+        if step.kind == TOUCH:
+            return min(1.0, len(self._held) / self.hold_frames)
+        return min(1.0, self._count / self.release_frames)
+
+    @property
+    def message(self) -> str:
+        step = self.step
+        return "Capture complete" if step is None else step.instruction()
+
+    # -- feeding
+    def feed(self, block: FrameBlock, now_s: float) -> None:
+        """Take new frames (readings) and the current time; advances steps as they complete."""
+        if len(block) == 0 or self.done:
+            self._check_timeout(now_s)
+            return
+        readings = np.asarray(block.readings, np.int64)
+        if readings.shape[1] != len(self.names):
+            raise ValueError(f"frames have {readings.shape[1]} channels, the capture {len(self.names)}")
+        if self._started_s is None:
+            self._started_s = now_s
+        for row in readings:
+            if self.done:
+                break
+            self._frame(row, now_s)
+        self._check_timeout(now_s)
+
+    def _reset_step(self, now_s: float | None) -> None:
+        self._count = 0
+        self._held: list[int] = []
+        self._onset = False
+        self._low_run = 0
+        self._rows: list[np.ndarray] = []
+        self._started_s = now_s
+
+    def _advance(self, now_s: float) -> None:
+        self.step_index += 1
+        self.notice = ""
+        self._reset_step(now_s)
+
+    def _deltas(self, row: np.ndarray) -> np.ndarray:
+        return self.polarity * (row - self._baseline)
+
+    def _frame(self, row: np.ndarray, now_s: float) -> None:
+        step = self.step
+        assert step is not None
+        if step.kind == QUIET:
+            self._rows.append(row)
+            self._count += 1
+            if self._count >= self.quiet_frames:
+                self._finish_quiet(now_s)
+            return
+        c = step.channel
+        assert c is not None
+        deltas = self._deltas(row)
+        self._track_baseline(row, c)
+        others = [k for k in range(len(self.names)) if k != c]
+        if step.kind == TOUCH:
+            self._touch_frame(c, deltas, others, now_s)
+        else:
+            self._release_frame(c, deltas, now_s)
+
+    def _finish_quiet(self, now_s: float) -> None:
+        rows = np.array(self._rows, np.int64)
+        self._baseline = rows.mean(axis=0)
+        quiet = (self.polarity * (rows - self._baseline)).round().astype(np.int64)
+        for c, key in self.keys.items():
+            key.quiet = quiet[:, c].copy()
+        self._levels = np.array([_level(quiet[:, c], self.min_rise_counts) for c in range(len(self.names))])
+        self._recent = deque(rows[-max(1, round(self.rate_hz)):].astype(np.float64))
+        self._recent_sum = np.sum(self._recent, axis=0)
+        self._advance(now_s)
+
+    def _track_baseline(self, row: np.ndarray, target: int) -> None:
+        """Keep following slow drift on every key except the one being touched now."""
+        self._recent.append(row.astype(np.float64))
+        self._recent_sum += self._recent[-1]
+        if len(self._recent) > max(1, round(self.rate_hz)):
+            self._recent_sum -= self._recent.popleft()
+        frozen = self._baseline[target]
+        self._baseline = self._recent_sum / len(self._recent)
+        self._baseline[target] = frozen
+
+    def _touch_frame(self, c: int, deltas: np.ndarray, others: list[int], now_s: float) -> None:
+        key = self.keys[c]
+        level = self._levels[c]
+        for k in others:
+            if k in self.keys:
+                self.keys[k].crosstalk.append(round(deltas[k]))
+        if not self._onset:
+            if deltas[c] > level:
+                self._onset, self._count, self.notice = True, 0, ""
+                key.seen = True
+            elif others and (moved := [k for k in others if deltas[k] > self._levels[k]]):
+                self.notice = f"That moved {self.names[moved[0]]}; touch {self.names[c]}"
+            return
+        self._count += 1
+        if deltas[c] < level / 2:
+            self._low_run += 1
+            if self._low_run >= 3:  # the finger left before the hold was complete
+                self._held, self._onset, self._low_run, self._started_s = [], False, 0, now_s
+                self.notice = f"Lifted too soon: touch and hold {self.names[c]} until the bar is full"
+            return
+        self._low_run = 0
+        if self._count > self.settle_frames:
+            self._held.append(round(deltas[c]))
+            if len(self._held) >= self.hold_frames:
+                key.touched = np.array(self._held, np.int64)
+                self._advance(now_s)
+
+    def _release_frame(self, c: int, deltas: np.ndarray, now_s: float) -> None:
+        if deltas[c] < self._levels[c] / 2 or not self.keys[c].seen:
+            self._count += 1
+            if self._count >= self.release_frames:
+                # The finger's frames must not set the next baselines: restart the window after it.
+                self._recent = deque(list(self._recent)[-1:])
+                self._recent_sum = np.sum(self._recent, axis=0)
+                self._advance(now_s)
+        else:
+            self._count = 0
+
+    def _check_timeout(self, now_s: float) -> None:
+        step = self.step
+        if step is None or step.kind == QUIET or self._started_s is None:
+            return
+        if now_s - self._started_s < self.timeout_s:
+            return
+        key = self.keys[step.channel] if step.channel is not None else None
+        if step.kind == TOUCH and not self._onset and key is not None:
+            key.attempts += 1
+            if key.attempts >= self.max_attempts:
+                self._advance(now_s)
+                self.step_index += 1  # nothing to release either
+                self.notice = f"Nothing happened on {step.name}: skipped after {key.attempts} tries"
+                return
+            self.notice = f"Nothing happened: touch and hold {step.name} (try {key.attempts + 1})"
+        elif step.kind == RELEASE:
+            self.notice = f"Still touched? Lift your finger from {step.name}"
+        self._started_s = now_s
+
+    def skip(self, now_s: float) -> None:
+        """The user skips the current key (or the hands-off step)."""
+        step = self.step
+        if step is None:
+            return
+        if step.kind == QUIET:
+            if len(self._rows) >= 8:
+                self._finish_quiet(now_s)
+            return
+        self._advance(now_s)
+        if step.kind == TOUCH:
+            self.step_index += 1
+
+
+# ---------------------------------------------------------------- figures shared by wizard, tune and reports
+
+
+@dataclass(frozen=True, slots=True)
+class KeyFigures:
+    noise_pp_counts: float | None
+    noise_rms_counts: float | None
+    signal_counts: float | None  # median touched delta
+    snr_pp: float | None
+    snr_rms: float | None
+
+
+def key_figures(quiet: np.ndarray, touched: np.ndarray) -> KeyFigures:
+    """Noise pp/RMS of hands-off deltas, median touch delta, both SNR forms (as in processing.measure)."""
+    pp = rms = signal = snr_pp = snr_rms = None
+    if len(quiet) >= 2:
+        q = np.asarray(quiet, np.float64)
+        pp, rms = float(q.max() - q.min()), float(np.std(q))
+    if len(touched):
+        signal = float(np.median(touched))
+    if signal is not None and pp is not None and rms is not None:
+        snr_pp = signal / pp if pp > 0 else math.inf
+        snr_rms = signal / rms if rms > 0 else math.inf
+    return KeyFigures(pp, rms, signal, snr_pp, snr_rms)
+
+
+# ---------------------------------------------------------------- touches in a recording
+
+
+@dataclass
+class KeyTrace:
+    """One key of a recording: its delta trace and where it was touched."""
+
+    channel: int
+    name: str
+    delta: np.ndarray  # float counts, touch positive, one per frame
+    stretches: list[tuple[int, int]]  # [start, stop) frame ranges of touches
+    quiet: np.ndarray  # untouched deltas (far from any touch of any key)
+    touched: np.ndarray  # deltas inside this key's touches, edges trimmed
+    from_marks: bool
+
+
+def estimate_baseline(values: np.ndarray, rate_hz: float, window_s: float = 0.5, span_s: float = 6.0):
+    """Rolling minimum of window medians (touch positive), interpolated back to every frame."""
+    n = len(values)
+    w = max(1, round(window_s * rate_hz))
+    starts = np.arange(0, n, w)
+    medians = np.array([np.median(values[s:s + w]) for s in starts])
+    half = max(1, round(span_s / window_s / 2))
+    low = np.array([medians[max(0, i - half): i + half + 1].min() for i in range(len(medians))])
+    centres = np.minimum(starts + w / 2, n - 1)
+    return np.interp(np.arange(n), centres, low) if len(low) > 1 else np.full(n, low[0] if len(low) else 0.0)
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    edges = np.flatnonzero(np.diff(np.concatenate([[0], mask.astype(np.int8), [0]])))
+    return list(zip(edges[0::2].tolist(), edges[1::2].tolist(), strict=True))
+
+
+def _trimmed(delta: np.ndarray, runs: list[tuple[int, int]], trim: int) -> np.ndarray:
+    parts = [delta[a + trim: b - trim] for a, b in runs if b - a > 2 * trim]
+    return np.concatenate(parts) if parts else np.zeros(0)
+
+
+def find_touches(t_s: np.ndarray, readings: np.ndarray, names: Sequence[str], polarity: Sequence[int],
+                 rate_hz: float, marks: Sequence[Mark] = (), min_touch_s: float = 0.1) -> list[KeyTrace]:
+    """Per key: delta trace, touched stretches (from marks, else found), untouched and touched deltas."""
+    n, width = readings.shape
+    pol = expand_polarity(polarity, width)
+    deltas = np.empty((n, width))
+    for c in range(width):
+        v = pol[c] * readings[:, c].astype(np.float64)
+        deltas[:, c] = v - estimate_baseline(v, rate_hz)
+    trim = max(1, round(0.1 * rate_hz))
+    marked = _marked_stretches(t_s, marks, names)
+    found: dict[int, list[tuple[int, int]]] = {}
+    for c in range(width):
+        found[c] = marked[c] if marked is not None else _find_runs(deltas[:, c], rate_hz, min_touch_s)
+    busy = np.zeros(n, bool)  # any key touched, widened by a guard, is no use for noise
+    guard = max(1, round(0.3 * rate_hz))
+    for runs in found.values():
+        for a, b in runs:
+            busy[max(0, a - guard): b + guard] = True
+    quiet_mask = ~busy
+    if marked is not None and (q := _mark_ranges(t_s, marks, "quiet-start", "quiet-end", None)):
+        quiet_mask = np.zeros(n, bool)
+        for a, b in q:
+            quiet_mask[a:b] = True
+    return [KeyTrace(c, names[c], deltas[:, c], found[c], deltas[quiet_mask, c],
+                     _trimmed(deltas[:, c], found[c], trim), marked is not None) for c in range(width)]
+
+
+def _find_runs(delta: np.ndarray, rate_hz: float, min_touch_s: float) -> list[tuple[int, int]]:
+    """Frames well above the untouched spread, as runs at least `min_touch_s` long."""
+    centre = np.median(delta)
+    mad = float(np.median(np.abs(delta - centre))) * 1.4826  # MAD to sigma for normal noise (NIST handbook)
+    spread = max(mad, 0.5)
+    top = float(np.percentile(delta, 99.5))
+    level = max(centre + 8 * spread, centre + 0.4 * (top - centre))
+    if top - centre < 10 * spread:
+        return []  # nothing stands out of the noise
+    runs = [(a, b) for a, b in _runs(delta > level) if b - a >= max(2, round(min_touch_s * rate_hz))]
+    merged: list[tuple[int, int]] = []
+    gap = max(1, round(0.05 * rate_hz))
+    for a, b in runs:
+        if merged and a - merged[-1][1] <= gap:
+            merged[-1] = (merged[-1][0], b)
+        else:
+            merged.append((a, b))
+    return merged
+
+
+def _mark_ranges(t_s: np.ndarray, marks: Sequence[Mark], start_kind: str, end_kind: str,
+                 channel: str | None) -> list[tuple[int, int]]:
+    out, opened = [], None
+    for m in sorted(marks, key=lambda m: m.t_s):
+        if m.channel != channel and channel is not None:
+            continue
+        if m.kind == start_kind:
+            opened = m.t_s
+        elif m.kind == end_kind and opened is not None:
+            out.append((int(np.searchsorted(t_s, opened)), int(np.searchsorted(t_s, m.t_s))))
+            opened = None
+    return out
+
+
+def _marked_stretches(t_s: np.ndarray, marks: Sequence[Mark], names: Sequence[str]):
+    if not any(m.kind == "touch-start" for m in marks):
+        return None
+    return {c: _mark_ranges(t_s, marks, "touch-start", "touch-end", name) for c, name in enumerate(names)}

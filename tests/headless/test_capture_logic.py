@@ -1,0 +1,192 @@
+"""Pure logic of the capture wizard and of finding touches in a recording (no Textual, no ports)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from rich.console import Console
+
+from processing.capture import (
+    QUIET,
+    RELEASE,
+    TOUCH,
+    CaptureWizard,
+    estimate_baseline,
+    find_touches,
+    key_figures,
+)
+from processing.recording import Mark
+from protocol.events import FrameBlock
+from tui.headless.histogram import DeltaHistogram, bar_row, bin_counts
+
+RATE_HZ = 100.0
+NAMES = ("zone1", "zone2", "stop")
+
+
+class User:
+    """A simulated person who follows the wizard's instructions (or not), frame by frame."""
+
+    def __init__(self, wizard: CaptureWizard, rng: np.random.Generator, polarity: int = 1,
+                 touch_counts: int = 200, noise_counts: float = 2.0, ignore: set[str] = frozenset(),
+                 delay_frames: int = 30, wrong_key: dict[str, str] | None = None) -> None:
+        self.w, self.rng, self.pol = wizard, rng, polarity
+        self.touch_counts, self.noise_counts, self.ignore = touch_counts, noise_counts, ignore
+        self.delay_frames, self.wrong_key = delay_frames, wrong_key or {}
+        self.frame = 0
+        self.pressing: str | None = None
+        self.wait = 0
+        self.notices: list[str] = []
+
+    def react(self) -> None:
+        step = self.w.step
+        if step is None:
+            self.pressing = None
+        elif step.kind == TOUCH and step.name not in self.ignore:
+            if self.pressing != step.name and self.wait < self.delay_frames:
+                self.wait += 1
+                self.pressing = self.wrong_key.get(step.name) if self.wait > self.delay_frames // 2 else None
+            else:
+                self.pressing = step.name
+        else:
+            self.pressing, self.wait = None, 0
+
+    def run(self, max_s: float = 120.0) -> None:
+        t_s = 0.0
+        while not self.w.done and t_s < max_s:
+            self.react()
+            row = 1000 + self.rng.normal(0, self.noise_counts, len(NAMES)) + 0.5 * t_s  # slow drift
+            if self.pressing is not None:
+                row[NAMES.index(self.pressing)] += self.pol * self.touch_counts
+            block = FrameBlock(np.array([t_s]), np.array([self.frame]), row.round().astype(np.int64)[None, :],
+                               self.frame)
+            self.w.feed(block, t_s)
+            if self.w.notice and (not self.notices or self.notices[-1] != self.w.notice):
+                self.notices.append(self.w.notice)
+            self.frame += 1
+            t_s += 1 / RATE_HZ
+
+
+def test_steps_are_quiet_then_touch_and_release_per_key():
+    w = CaptureWizard(NAMES, (1,), RATE_HZ)
+    assert [(s.kind, s.name) for s in w.steps] == [
+        (QUIET, "all keys"), (TOUCH, "zone1"), (RELEASE, "zone1"), (TOUCH, "zone2"), (RELEASE, "zone2"),
+        (TOUCH, "stop"), (RELEASE, "stop")]
+    assert w.message.startswith("Hands off") and w.progress == 0.0
+
+
+@pytest.mark.parametrize("polarity", [1, -1])
+def test_a_cooperative_user_completes_the_capture(polarity):
+    w = CaptureWizard(NAMES, (polarity,), RATE_HZ, quiet_s=2.0, hold_s=1.0)
+    user = User(w, np.random.default_rng(3), polarity=polarity)
+    user.run()
+    assert w.done and w.progress == 1.0
+    for key in w.keys.values():
+        assert key.seen and key.attempts == 0
+        assert len(key.quiet) == 200 and len(key.touched) == 100
+        figures = key_figures(key.quiet, key.touched)
+        # The touch adds 200 counts; the wizard's baseline follows the 0.5 count/s drift.
+        assert figures.signal_counts == pytest.approx(200, abs=6)
+        assert figures.noise_rms_counts == pytest.approx(2.0, rel=0.25)
+        assert len(key.untouched) > len(key.quiet)  # crosstalk frames while other keys were held
+
+
+def test_nothing_happened_asks_again_then_skips():
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=0.5, timeout_s=2.0, max_attempts=3)
+    user = User(w, np.random.default_rng(4), ignore={"zone2"})
+    user.run()
+    assert w.done
+    assert w.keys[1].attempts == 3 and not w.keys[1].seen and len(w.keys[1].touched) == 0
+    assert "Nothing happened: touch and hold zone2 (try 2)" in user.notices
+    assert any("skipped after 3 tries" in n for n in user.notices)
+    assert w.keys[0].seen and w.keys[2].seen
+
+
+def test_touching_the_wrong_key_is_pointed_out():
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=0.5)
+    user = User(w, np.random.default_rng(5), wrong_key={"stop": "zone1"}, delay_frames=60)
+    user.run()
+    assert "That moved zone1; touch stop" in user.notices
+    assert w.done and w.keys[2].seen
+
+
+def test_lifting_too_soon_restarts_the_hold():
+    w = CaptureWizard(("a",), (1,), RATE_HZ, quiet_s=0.5, hold_s=1.0)
+    t = 0.0
+    frame = 0
+
+    def feed(value: int, frames: int) -> None:
+        nonlocal t, frame
+        for _ in range(frames):
+            w.feed(FrameBlock(np.array([t]), np.array([frame]), np.array([[value]]), frame), t)
+            t += 0.01
+            frame += 1
+
+    feed(1000, 50)
+    assert w.step.kind == TOUCH
+    feed(1300, 40)  # held 0.4 s of the 1 s needed
+    assert 0.0 < w.progress < 1.0
+    feed(1000, 5)
+    assert w.notice.startswith("Lifted too soon") and w.progress == 0.0
+    feed(1300, 130)
+    assert w.step.kind == RELEASE
+    feed(1000, 60)
+    assert w.done
+
+
+def test_histogram_counts_match_numpy_and_render_plain():
+    # Outside reference: numpy.histogram gives the bin counts.
+    values = np.array([0, 1, 1, 2, 9, 10])
+    counts = bin_counts(values, 0, 10, 5)
+    assert counts.tolist() == np.histogram(values, bins=5, range=(0, 10))[0].tolist()
+    assert bar_row(np.array([0, 1, 4])) == " ▂█"
+    console = Console(width=60, file=None, force_terminal=False, color_system=None, record=True)
+    console.print(DeltaHistogram([0, 1, -1, 2], [100, 110, 105], threshold=50, width=40))
+    text = console.export_text()
+    assert "untouched" in text and "touched" in text and "^ threshold 50" in text
+
+
+def synthetic_recording(rng, drift_per_s=2.0):
+    n = 3000
+    t_s = np.arange(n) / RATE_HZ
+    readings = 5000 - (rng.normal(0, 3, (n, 2)) + drift_per_s * t_s[:, None])
+    truth = {0: [(500, 700), (1500, 1650)], 1: [(2200, 2500)]}
+    for c, runs in truth.items():
+        for a, b in runs:
+            readings[a:b, c] -= 150  # polarity -1: touch lowers the count
+    return t_s, readings.round().astype(np.int64), truth
+
+
+def test_find_touches_without_marks_finds_the_touched_stretches():
+    t_s, readings, truth = synthetic_recording(np.random.default_rng(7))
+    traces = find_touches(t_s, readings, ("k0", "k1"), (-1,), RATE_HZ)
+    for trace in traces:
+        assert len(trace.stretches) == len(truth[trace.channel])
+        for (a, b), (ta, tb) in zip(trace.stretches, truth[trace.channel], strict=True):
+            assert abs(a - ta) <= 3 and abs(b - tb) <= 3
+        assert np.median(trace.touched) == pytest.approx(150, abs=8)
+        assert float(np.std(trace.quiet)) == pytest.approx(3, rel=0.3)  # numpy.std as the reference
+
+
+def test_find_touches_with_marks_uses_them():
+    t_s, readings, _ = synthetic_recording(np.random.default_rng(8))
+    marks = [Mark(5.0, "touch-start", "k0"), Mark(7.0, "touch-end", "k0"),
+             Mark(0.5, "quiet-start"), Mark(4.0, "quiet-end")]
+    traces = find_touches(t_s, readings, ("k0", "k1"), (-1,), RATE_HZ, marks)
+    assert traces[0].from_marks and traces[0].stretches == [(500, 700)]
+    assert traces[1].stretches == []
+    assert len(traces[0].quiet) == 350
+
+
+def test_nothing_to_find_in_pure_noise():
+    rng = np.random.default_rng(9)
+    readings = (1000 + rng.normal(0, 4, (2000, 1))).round().astype(np.int64)
+    traces = find_touches(np.arange(2000) / RATE_HZ, readings, ("k",), (1,), RATE_HZ)
+    assert traces[0].stretches == [] and len(traces[0].touched) == 0
+
+
+def test_baseline_estimate_follows_drift_and_ignores_touches():
+    t = np.arange(2000) / RATE_HZ
+    values = 100 + 3.0 * t
+    values[800:1000] += 500
+    base = estimate_baseline(values, RATE_HZ)
+    assert np.max(np.abs(base[100:-100] - (100 + 3.0 * t[100:-100]))) < 10

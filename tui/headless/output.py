@@ -1,0 +1,173 @@
+"""Where headless runs write what happened: JSON Lines for scripts, readable lines for people.
+
+Both writers take the same calls (`hello`, `touch`, `release`, `link`, `note`, `status`, `summary`) with
+plain values, so the run loop does not care which one it has. `t` is seconds since the run started.
+The human writer uses rich: colour on a terminal, plain text when piped, none at all under NO_COLOR.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import sys
+from collections.abc import Mapping, Sequence
+from typing import IO, Any, Protocol
+
+from rich import box
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+
+def _clean(value: Any) -> Any:
+    """JSON-safe: numpy scalars to Python, NaN/inf to null, tuples to lists."""
+    if isinstance(value, Mapping):
+        return {str(k): _clean(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_clean(v) for v in value]
+    if hasattr(value, "item") and not isinstance(value, str | bytes):
+        value = value.item()
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, float):
+        return round(value, 6)
+    return value
+
+
+class Output(Protocol):
+    def hello(self, t_s: float, info: Mapping[str, Any]) -> None: ...
+    def touch(self, t_s: float, channel: str, index: int, delta_counts: int) -> None: ...
+    def release(self, t_s: float, channel: str, index: int, held_s: float, stuck: bool = False) -> None: ...
+    def link(self, t_s: float, event: str, count: int = 1, detail: str = "") -> None: ...
+    def note(self, t_s: float, text: str) -> None: ...
+    def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None: ...
+    def summary(self, t_s: float, summary: Mapping[str, Any]) -> None: ...
+    def close(self) -> None: ...
+
+
+class JsonLinesOutput:
+    """One JSON object per line, each with `type` and `t`; flushed per line so a pipe sees it at once."""
+
+    def __init__(self, stream: IO[str]) -> None:
+        self.stream = stream
+
+    def _emit(self, kind: str, t_s: float, **fields: Any) -> None:
+        record = {"type": kind, "t": round(float(t_s), 6), **_clean(fields)}
+        self.stream.write(json.dumps(record, separators=(",", ":")) + "\n")
+        self.stream.flush()
+
+    def hello(self, t_s: float, info: Mapping[str, Any]) -> None:
+        self._emit("hello", t_s, **info)
+
+    def touch(self, t_s: float, channel: str, index: int, delta_counts: int) -> None:
+        self._emit("touch", t_s, channel=channel, index=index, delta=delta_counts)
+
+    def release(self, t_s: float, channel: str, index: int, held_s: float, stuck: bool = False) -> None:
+        self._emit("release", t_s, channel=channel, index=index, held_s=held_s, stuck=stuck)
+
+    def link(self, t_s: float, event: str, count: int = 1, detail: str = "") -> None:
+        self._emit("link", t_s, event=event, count=count, detail=detail)
+
+    def note(self, t_s: float, text: str) -> None:
+        self._emit("note", t_s, text=text)
+
+    def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
+        self._emit("status", t_s, channels=list(channels))
+
+    def summary(self, t_s: float, summary: Mapping[str, Any]) -> None:
+        self._emit("summary", t_s, **summary)
+
+    def close(self) -> None:
+        self.stream.flush()
+
+
+def make_console(stream: IO[str] | None = None, stderr: bool = False) -> Console:
+    """A rich console that is plain when piped and colourless under NO_COLOR (rich honours both)."""
+    target = stream if stream is not None else (sys.stderr if stderr else sys.stdout)
+    return Console(file=target, no_color="NO_COLOR" in os.environ or None, highlight=False,
+                   soft_wrap=True)
+
+
+def _fmt(value: Any, digits: int = 1) -> str:
+    if value is None:
+        return "-"
+    if isinstance(value, float):
+        return f"{value:.{digits}f}"
+    return str(value)
+
+
+def channel_table(rows: Sequence[Mapping[str, Any]], columns: Sequence[tuple[str, str]],
+                  title: str | None = None, plain: bool = False) -> Table:
+    """A rich table of per-channel dicts; `columns` are (key, heading). ASCII borders when plain."""
+    table = Table(title=title, box=box.ASCII if plain else box.SIMPLE_HEAD, show_edge=not plain,
+                  pad_edge=False)
+    for key, heading in columns:
+        left = key in ("name", "state", "verdict", "reason")
+        table.add_column(heading, justify="left" if left else "right")
+    for row in rows:
+        table.add_row(*(Text(_fmt(row.get(key))) for key, _ in columns))
+    return table
+
+
+STATUS_COLUMNS = (("name", "key"), ("reading", "reading"), ("baseline", "baseline"), ("delta", "delta"),
+                  ("state", "state"), ("noise", "noise rms"), ("snr", "SNR"))
+
+
+class HumanOutput:
+    """Readable lines: `  12.345 s  touch    zone1  delta 412`, tables for status and summary."""
+
+    def __init__(self, console: Console) -> None:
+        self.console = console
+        self.plain = not console.is_terminal
+
+    def _line(self, t_s: float, word: str, style: str, rest: str) -> None:
+        text = Text(f"{t_s:9.3f} s  ")
+        text.append(f"{word:<8}", style=style)
+        text.append(" " + rest)
+        self.console.print(text)
+
+    def hello(self, t_s: float, info: Mapping[str, Any]) -> None:
+        names = ", ".join(info.get("names") or [])
+        board = info.get("board") or "unnamed board"
+        rate = info.get("rate_hz")
+        rest = f"{board}: {info.get('channels', '?')} channels" + (f" at {rate:g} Hz" if rate else "")
+        self._line(t_s, "board", "bold", rest + (f" ({names})" if names else ""))
+
+    def touch(self, t_s: float, channel: str, index: int, delta_counts: int) -> None:
+        self._line(t_s, "touch", "bold green", f"{channel}  delta {delta_counts}  (frame {index})")
+
+    def release(self, t_s: float, channel: str, index: int, held_s: float, stuck: bool = False) -> None:
+        word, style = ("stuck", "bold red") if stuck else ("release", "cyan")
+        self._line(t_s, word, style, f"{channel}  held {held_s:.2f} s  (frame {index})")
+
+    def link(self, t_s: float, event: str, count: int = 1, detail: str = "") -> None:
+        rest = event + (f" x{count}" if count != 1 else "") + (f": {detail}" if detail else "")
+        self._line(t_s, "link", "yellow", rest)
+
+    def note(self, t_s: float, text: str) -> None:
+        self._line(t_s, "note", "dim", text)
+
+    def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
+        self.console.print(channel_table(channels, STATUS_COLUMNS, title=f"status at {t_s:.1f} s",
+                                         plain=self.plain))
+
+    def summary(self, t_s: float, summary: Mapping[str, Any]) -> None:
+        counts = ", ".join(f"{k} {summary[k]}" for k in ("frames", "lost", "garbled", "bad_checksum",
+                                                          "overlong", "resets") if k in summary)
+        self.console.print(Text(f"summary after {t_s:.1f} s: {counts}"))
+        columns = [("name", "key"), ("touches", "touches"), ("noise_rms", "noise rms"),
+                   ("noise_pp", "noise pp"), ("snr", "SNR")]
+        if any("false_touches" in c for c in summary.get("channels", [])):
+            columns.append(("false_touches", "false"))
+        self.console.print(channel_table(summary.get("channels", []), columns, plain=self.plain))
+
+    def close(self) -> None:
+        self.console.file.flush()
+
+
+def make_output(as_json: bool, stream: IO[str] | None = None) -> Output:
+    target = stream if stream is not None else sys.stdout
+    if as_json:
+        return JsonLinesOutput(target)
+    return HumanOutput(make_console(target))
