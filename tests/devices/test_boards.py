@@ -1,0 +1,99 @@
+"""Board description files: the bundled boards load, and every kind of mistake is one clear line."""
+
+import pytest
+
+from devices.boards import list_boards, load_board
+from protocol.errors import UserError
+
+GOOD = """
+[board]
+name = "mini"
+rate_hz = 50
+[method]
+kind = "charge_share"
+sample_pf = 20
+[overlay]
+material = "acrylic"
+thickness_mm = 2
+[pad_defaults]
+width_mm = 10
+height_mm = 10
+[[pad]]
+name = "a"
+[[pad]]
+name = "b"
+x_mm = 15
+"""
+
+
+def write(tmp_path, text):
+    path = tmp_path / "board.toml"
+    path.write_text(text)
+    return str(path)
+
+
+def test_bundled_boards_load():
+    assert {"greenhouse", "pumphouse", "grid64"} <= set(list_boards())
+    gh = load_board("greenhouse")
+    assert gh.names == ("zone1", "zone2", "zone3", "zone4", "stop", "dur0", "dur1", "dur2", "dur3")
+    assert gh.overlay.material.key == "polycarbonate" and gh.overlay.thickness_m == pytest.approx(3e-3)
+    assert gh.sliders[0].pads == ("dur0", "dur1", "dur2", "dur3")
+    assert gh.method.kind == "charge_time" and gh.loop_s == 30
+    ph = load_board("pumphouse")
+    assert ph.method.kind == "oscillator" and ph.overlay.material.key == "soda-lime-glass"
+    assert ph.overlay.thickness_m == pytest.approx(6e-3) and ph.noise.hum_touch_pf > gh.noise.hum_touch_pf
+    grid = load_board("grid64")
+    assert grid.channels == 64 and grid.rate_hz == 1000 and grid.method.kind == "charge_share"
+    assert len(set(grid.names)) == 64
+
+
+def test_minimal_file_and_parasitic_estimate(tmp_path):
+    spec = load_board(write(tmp_path, GOOD))
+    assert spec.names == ("a", "b")
+    assert spec.pads[0].area_m2 == pytest.approx(1e-4)
+    assert 3e-12 < spec.pads[0].parasitic_f < 30e-12  # estimated from area when not given
+
+
+@pytest.mark.parametrize("change, words", [
+    (("rate_hz = 50", "rate_hz = 0"), "board.rate_hz: must be >= 1"),
+    (("kind = \"charge_share\"", "kind = \"magic\""), "unknown method"),
+    (("material = \"acrylic\"", "material = \"acrylik\""), "did you mean acrylic"),
+    (("thickness_mm = 2", "thickness_mm = 0"), "overlay.thickness_mm: must be > 0"),
+    (("name = \"b\"", "name = \"a\""), "used twice"),
+    (("name = \"b\"", "name = \"b c\""), "not a plain name"),
+    (("x_mm = 15", "x_mn = 15"), "pad[1].x_mn: unknown key (did you mean x_mm?)"),
+    (("sample_pf = 20", "sample_pf = \"20\""), "positive number"),
+    (("[board]", "[bord]"), "unknown key (did you mean board?)"),
+])
+def test_mistakes_give_one_line_messages(tmp_path, change, words):
+    text = GOOD.replace(*change, 1)
+    with pytest.raises(UserError) as err:
+        load_board(write(tmp_path, text))
+    msg = str(err.value)
+    assert words in msg, msg
+    assert "\n" not in msg and msg.startswith("board.toml")
+
+
+def test_script_mistakes(tmp_path):
+    base = GOOD + "[script]\nloop_s = 5\n"
+    cases = [
+        ("[[script.touch]]\npad = \"z\"\nat_s = 1\nhold_s = 1\n", "no pad named 'z'"),
+        ("[[script.touch]]\npad = \"a\"\nat_s = 4\nhold_s = 2\n", "shorter than the script"),
+        ("[[script.touch]]\npad = \"a\"\nslider = \"s\"\nat_s = 1\nhold_s = 1\n", "exactly one of"),
+        ("[[script.touch]]\npad = \"a\"\nat_s = 1\n", "hold_s: missing"),
+    ]
+    for extra, words in cases:
+        with pytest.raises(UserError) as err:
+            load_board(write(tmp_path, base + extra))
+        assert words in str(err.value), str(err.value)
+
+
+def test_unknown_board_name_and_bad_toml(tmp_path):
+    with pytest.raises(UserError) as err:
+        load_board("greenhous")
+    assert "did you mean greenhouse" in str(err.value)
+    with pytest.raises(UserError) as err:
+        load_board(write(tmp_path, "[board\nname="))
+    assert "not valid TOML" in str(err.value) and "\n" not in str(err.value)
+    with pytest.raises(UserError):
+        load_board(str(tmp_path / "missing.toml"))
