@@ -1,0 +1,110 @@
+"""Tuning suggestions from captured samples: threshold, hysteresis and debounce, each with its reason.
+
+Pure functions. The rules are common practice, no source:
+- threshold about half the typical touch delta, but at least the highest untouched delta plus one noise
+  peak-to-peak above it ("well clear of the noise"); refused when that floor is above 3/4 of the signal;
+- hysteresis about 15 % of the threshold (10-20 % is usual), kept so the release level stays above the
+  highest untouched delta;
+- debounce long enough to span the longest observed noise burst (a run of frames beyond 2 RMS) plus one
+  frame, at least 2 frames and at most `max_debounce_s` (50 ms: a slower key feels sluggish).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from processing.settings import ChannelSettings
+
+
+@dataclass(frozen=True, slots=True)
+class Suggestion:
+    threshold_counts: int
+    hysteresis_counts: int
+    touch_debounce_frames: int
+    release_debounce_frames: int
+    reasons: dict[str, str]
+    signal_counts: float
+    noise_pp_counts: float
+    noise_rms_counts: float
+
+    def apply(self, settings: ChannelSettings) -> ChannelSettings:
+        return replace(settings, threshold_counts=self.threshold_counts,
+                       hysteresis_counts=self.hysteresis_counts,
+                       touch_debounce_frames=self.touch_debounce_frames,
+                       release_debounce_frames=self.release_debounce_frames)
+
+
+@dataclass(frozen=True, slots=True)
+class Refusal:
+    reason: str
+
+
+def longest_run(mask: np.ndarray) -> int:
+    """Length of the longest run of True values."""
+    best = run = 0
+    for v in np.asarray(mask, bool).tolist():
+        run = run + 1 if v else 0
+        best = max(best, run)
+    return best
+
+
+def _debounce(run: int, rate_hz: float, max_debounce_s: float) -> tuple[int, bool]:
+    cap = max(2, math.floor(max_debounce_s * rate_hz))
+    want = max(2, run + 1)
+    return min(want, cap), want > cap
+
+
+def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: float, *,
+            hysteresis_fraction: float = 0.15, max_debounce_s: float = 0.05,
+            min_samples: int = 16) -> Suggestion | Refusal:
+    """Suggest settings from untouched and touched delta samples of one key (counts)."""
+    quiet = np.asarray(untouched_delta, np.int64)
+    held = np.asarray(touched_delta, np.int64)
+    if len(quiet) < min_samples or len(held) < min_samples:
+        return Refusal(f"need at least {min_samples} untouched and {min_samples} touched frames; "
+                       f"have {len(quiet)} and {len(held)}: capture longer")
+    top, pp = int(quiet.max()), int(quiet.max() - quiet.min())
+    rms = float(np.std(quiet))
+    signal = float(np.median(held))
+    if signal <= top:
+        return Refusal(f"the touch signal (median {signal:g} counts) does not rise above the noise (highest "
+                       f"untouched delta {top} counts): check the overlay, electrode and grounding")
+    floor = top + max(pp, 1)
+    half = math.floor(signal / 2)
+    if floor > math.floor(signal * 3 / 4):
+        return Refusal(f"the touch signal (median {signal:g} counts) does not clear the noise: "
+                       f"a threshold must be at least {floor} (noise top {top} + pp {pp}), "
+                       "above 3/4 of the signal; "
+                       "reduce the noise or strengthen the touch before tuning")
+    reasons: dict[str, str] = {}
+    if half >= floor:
+        threshold = half
+        reasons["threshold_counts"] = (f"half the typical touch delta ({signal:g} counts); clears "
+                                       f"the highest untouched delta ({top}) by {threshold - top} counts")
+    else:
+        threshold = floor
+        reasons["threshold_counts"] = (f"raised above half the touch delta ({half}) to the noise top {top} "
+                                       f"plus one noise pp ({pp}), so noise cannot reach it")
+    hyst = max(1, round(threshold * hysteresis_fraction))
+    reasons["hysteresis_counts"] = f"{hysteresis_fraction:.0%} of the threshold"
+    if threshold - hyst <= top:
+        hyst = max(0, threshold - top - 1)
+        reasons["hysteresis_counts"] = (f"cut so the release level ({threshold - hyst}) stays above "
+                                        f"the highest untouched delta ({top})")
+    centre = float(np.median(quiet))
+    burst = longest_run(np.abs(quiet - centre) > 2 * rms) if rms > 0 else 0
+    touch_db, capped = _debounce(burst, rate_hz, max_debounce_s)
+    reasons["touch_debounce_frames"] = (f"noise bursts beyond 2 RMS lasted up to {burst} frames; {touch_db} "
+                                        f"frames ({1000 * touch_db / rate_hz:.0f} ms) span them")
+    if capped:
+        reasons["touch_debounce_frames"] += f" (capped at {max_debounce_s * 1000:.0f} ms, to stay quick)"
+    dropout = longest_run(held < threshold - hyst)
+    release_db, capped = _debounce(dropout, rate_hz, max_debounce_s)
+    reasons["release_debounce_frames"] = (f"the touched delta dipped below the release level for up to "
+                                          f"{dropout} frames; {release_db} frames span that")
+    if capped:
+        reasons["release_debounce_frames"] += f" (capped at {max_debounce_s * 1000:.0f} ms)"
+    return Suggestion(threshold, hyst, touch_db, release_db, reasons, signal, float(pp), rms)
