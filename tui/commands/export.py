@@ -1,0 +1,40 @@
+"""`padtune export PROFILE --c-header OUT.h | --json OUT.json`: hand a tuned profile to the firmware."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from processing.export import export_c_header, export_json
+from processing.profile import ProfileError, load_profile
+from protocol.errors import UserError
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    p = subparsers.add_parser("export", help="export a tuned profile as a C header or JSON for the firmware",
+                              description="Export a tuned profile (TOML) as a C header or JSON.")
+    p.add_argument("profile", help="the profile file (TOML) to export")
+    out = p.add_mutually_exclusive_group(required=True)
+    out.add_argument("--c-header", metavar="OUT.h", help="write a C header with one initialiser per channel")
+    out.add_argument("--json", metavar="OUT.json", help="write the profile as JSON")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    try:
+        profile = load_profile(args.profile)
+    except ProfileError as exc:  # the export contract is one line on stderr, so join every problem
+        raise UserError("; ".join(exc.problems)) from None
+    target = Path(args.c_header or args.json)
+    if target.resolve() == Path(args.profile).resolve():
+        raise UserError(f"{target}: refusing to overwrite the profile itself; choose another output file")
+    try:
+        if args.c_header:
+            export_c_header(profile, target, source=Path(args.profile).name)
+        else:
+            export_json(profile, target, source=Path(args.profile).name)
+    except OSError as exc:
+        raise UserError(f"{target}: cannot write: {exc.strerror or exc}") from None
+    print(f"wrote {target} ({profile.channels} channels, {len(profile.groups)} groups, "
+          f"{len(profile.sliders)} sliders)")
+    return 0
