@@ -1,0 +1,581 @@
+"""The live tuning screen: the Textual app that shows every channel and edits settings from the keyboard.
+
+A screen timer (about 20 Hz) is the only place data comes in: it polls the `LiveSource` (which drains
+the link thread's queue and feeds the session) and redraws inside `batch_update`. The reader thread
+never waits for the screen, and a slow frame only makes the timer skip a tick. Every key is a
+binding with an id and a description; the help screen and the command palette are built from them.
+"""
+
+from __future__ import annotations
+
+import time
+from collections import deque
+from collections.abc import Callable, Iterable
+from dataclasses import replace
+from pathlib import Path
+from typing import ClassVar
+
+from rich.text import Text
+from textual.app import App, ComposeResult, SystemCommand
+from textual.binding import Binding
+from textual.containers import Horizontal
+from textual.reactive import reactive
+from textual.screen import Screen
+from textual.widgets import Footer, Static
+
+from processing.detections import Rebaselined
+from protocol.errors import UserError
+from tui.describe import describe_detection, describe_event
+from tui.edits import Change, Edit, EditHistory
+from tui.fields import FIELDS, parse_value, stepped, with_value
+from tui.render.settings import edit_bar
+from tui.render.views import LinkView
+from tui.screens.confirm import ConfirmScreen
+from tui.screens.help import HelpScreen
+from tui.screens.prompt import PromptScreen
+from tui.source import LiveSource, Tick
+from tui.widgets.channel_table import ChannelTable
+from tui.widgets.detail_panel import DetailPanel
+from tui.widgets.event_log import EventLog
+from tui.widgets.groups_panel import GroupsPanel
+from tui.widgets.link_strip import LinkStrip
+
+# Binding id prefix -> the section it is listed under in the help screen.
+SECTIONS = {
+    "move": "Move", "edit": "Edit the selected channel", "chan": "Channel and display",
+    "rec": "Recording", "prof": "Profile", "demo": "Simulated board (demo)", "app": "App",
+}
+
+B = Binding
+BINDINGS: list[Binding] = [
+    B("down,j", "cursor(1)", "Next channel", id="move.down", show=False),
+    B("up,k", "cursor(-1)", "Previous channel", id="move.up", show=False),
+    B("pagedown", "cursor_page(1)", "Page down", id="move.pagedown", show=False),
+    B("pageup", "cursor_page(-1)", "Page up", id="move.pageup", show=False),
+    B("home", "cursor_to(0)", "First channel", id="move.first", show=False),
+    B("end", "cursor_to(-1)", "Last channel", id="move.last", show=False),
+    B("right,tab", "field(1)", "Next setting to edit", id="move.field_next", show=False),
+    B("left,shift+tab", "field(-1)", "Previous setting to edit", id="move.field_prev", show=False),
+    B("plus,equals_sign", "step(1, False)", "Raise the setting (fine step)", id="edit.up", key_display="+",
+      show=False),
+    B("minus", "step(-1, False)", "Lower the setting (fine step)", id="edit.down", key_display="-",
+      show=False),
+    B("right_square_bracket", "step(1, True)", "Raise the setting (coarse step)", id="edit.up_coarse",
+      show=False),
+    B("left_square_bracket", "step(-1, True)", "Lower the setting (coarse step)", id="edit.down_coarse",
+      show=False),
+    B("enter,e", "type_value", "Type a value for the setting", id="edit.type", key_display="⏎",
+      show=False),
+    B("a", "apply_all", "Copy this channel's settings to all channels", id="edit.all", show=False),
+    B("g", "apply_group", "Copy this channel's settings to its group", id="edit.group", show=False),
+    B("u", "undo", "Undo the last edit", id="edit.undo", show=False),
+    B("U,ctrl+y", "redo", "Redo", id="edit.redo", show=False),
+    B("b", "rebaseline(False)", "Re-baseline the selected channel", id="chan.rebase", show=False),
+    B("B", "rebaseline(True)", "Re-baseline all channels", id="chan.rebase_all", show=False),
+    B("d", "toggle_detail", "detail", id="chan.detail", tooltip="Detail panel: plot, settings, events"),
+    B("f", "toggle_spectrum", "Noise spectrum in the detail panel", id="chan.spectrum", show=False),
+    B("space", "toggle_pause", "pause", id="chan.pause", key_display="space",
+      tooltip="Pause / resume the display (detection keeps running)"),
+    B("r", "toggle_recording", "rec", id="rec.toggle", tooltip="Start / stop recording to a CSV file"),
+    B("m", "mark", "Mark this moment in the recording", id="rec.mark", show=False),
+    B("s,ctrl+s", "save", "save", id="prof.save", tooltip="Save the profile"),
+    B("S", "save_as", "Save the profile as another file", id="prof.save_as", show=False),
+    B("o", "load", "Load another profile", id="prof.load", show=False),
+    B("x", "export", "Export for firmware (C header or JSON)", id="prof.export", show=False),
+    B("t", "tap", "Tap the selected key on the simulated board", id="demo.tap", show=False),
+    B("p", "hold", "Hold / let go of the selected key on the simulated board", id="demo.hold", show=False),
+    *[B(str(n % 10), f"hold_number({n - 1})", f"Hold / let go of key {n} on the simulated board",
+        id=f"demo.key{n}", show=False) for n in range(1, 11)],
+    B("w", "wizard", "Guided capture: measure noise and touches, suggest settings", id="app.wizard",
+      show=False),
+    B("question_mark,f1", "help", "help", id="app.help", key_display="?",
+      tooltip="Help: every key and the safety cautions"),
+    B("q,ctrl+q", "quit", "quit", id="app.quit", priority=True, tooltip="Quit (asks when edits are unsaved)"),
+]
+
+
+def help_rows(bindings: Iterable[Binding] = BINDINGS) -> list[tuple[str, str, str]]:
+    """(section, keys, description) for every binding; the demo keys 1..0 collapse into one row."""
+    rows: list[tuple[str, str, str]] = []
+    for b in bindings:
+        if b.id and b.id.startswith("demo.key"):
+            if b.id == "demo.key1":
+                rows.append((SECTIONS["demo"], "1 … 9, 0", "Hold / let go of key 1 … 10 on the sim board"))
+            continue
+        section = SECTIONS.get((b.id or "app").split(".")[0], "App")
+        rows.append((section, b.key, b.tooltip or b.description))
+    rows.append((SECTIONS["app"], "ctrl+p", "Command palette: every action by name"))
+    return rows
+
+
+class PadtuneApp(App[int]):
+    """The live screen over one `LiveSource`. `ui_hz=0` disables the timer (tests call `refresh_now`)."""
+
+    CSS_PATH = "app.tcss"
+    TITLE = "padtune"
+    BINDINGS: ClassVar = BINDINGS
+    ENABLE_COMMAND_PALETTE = True
+
+    field_index: reactive[int] = reactive(0)
+    paused: reactive[bool] = reactive(False)
+    detail: reactive[bool] = reactive(False)
+    spectrum: reactive[bool] = reactive(False)
+
+    def __init__(self, source: LiveSource, *, ui_hz: float = 20.0, demo: bool = False,
+                 clock: Callable[[], float] = time.monotonic) -> None:
+        super().__init__()
+        self.source = source
+        self.ui_hz = ui_hz
+        self.demo = demo
+        self.clock = clock
+        self.history = EditHistory()
+        self.held: set[int] = set()
+        self.recent: dict[int, deque[str]] = {}
+        self.frames_drawn = 0
+        self._tick_count = 0
+        self._t0_s = clock()
+
+    # -- layout -----------------------------------------------------------------------------------
+    def compose(self) -> ComposeResult:
+        yield LinkStrip(id="link")
+        yield ChannelTable(id="table")
+        yield Static("", id="edit-bar")
+        yield DetailPanel(id="detail")
+        with Horizontal(id="lower"):
+            yield GroupsPanel(id="groups")
+            yield EventLog(id="log")
+        yield Footer(compact=True, show_command_palette=False)
+
+    def on_mount(self) -> None:
+        self.query_one("#detail").display = False
+        self._apply_size_classes()
+        if self.ui_hz > 0:
+            self.set_interval(1.0 / self.ui_hz, self.refresh_now, name="screen-timer")
+        self.refresh_now()
+
+    def on_resize(self) -> None:
+        self._apply_size_classes()
+
+    def _apply_size_classes(self) -> None:
+        self.set_class(self.size.height >= 34, "-tall")
+        self.set_class(self.size.width >= 110, "-wide")
+
+    # -- the screen timer -------------------------------------------------------------------------
+    def refresh_now(self) -> None:
+        """Drain the source, log what happened, and redraw (unless the display is paused)."""
+        try:
+            tick = self.source.poll()
+        except UserError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self._tick_count += 1
+        self._log_tick(tick)
+        with self.batch_update():
+            self.query_one(LinkStrip).show(self._link_view())
+            if not self.paused:
+                self._draw()
+
+    def _log_tick(self, tick: Tick) -> None:
+        log = self.query_one(EventLog)
+        names = self.source.channel_names()
+        for ev in tick.events:
+            line = describe_event(ev)
+            if line is not None:
+                log.add(ev.t_s - self._t0_s, line)
+        rebased = [d for d in tick.detections if isinstance(d, Rebaselined)]
+        if rebased:  # a new session re-baselines every channel at once: one line, not one per channel
+            which = sorted({d.channel for d in rebased})
+            what = "all channels" if len(which) == len(names) > 1 else " ".join(names[c] for c in which)
+            log.add(rebased[0].t_s - self._t0_s, Text(f"~ re-baselined {what}"))
+        for det in tick.detections:
+            line = None if isinstance(det, Rebaselined) else describe_detection(det, names)
+            if line is None:
+                continue
+            t_s = getattr(det, "t_s", 0.0) - self._t0_s
+            log.add(t_s, line)
+            channel = getattr(det, "channel", None)
+            if isinstance(channel, int):
+                self.recent.setdefault(channel, deque(maxlen=8)).append(f"{t_s:7.2f} {line.plain}")
+        notices = getattr(self.source, "notices", None)
+        while notices:
+            self._log(f"ⓘ {notices.popleft()}")
+
+    def _link_view(self) -> LinkView:
+        view = self.source.link_view()
+        if self.paused != view.paused:
+            view = replace(view, paused=self.paused)
+        return view
+
+    def _draw(self) -> None:
+        table = self.query_one(ChannelTable)
+        spark_points = max(8, table.size.width // 3)
+        table.show(self.source.channel_views(spark_points))
+        self.query_one(GroupsPanel).show(self.source.group_views(), self.source.slider_views())
+        self._draw_edit_bar()
+        if self.detail and (self._tick_count % 4 == 1 or self.ui_hz == 0):
+            self._draw_detail()
+        self.frames_drawn += 1
+
+    def _draw_edit_bar(self) -> None:
+        bar = self.query_one("#edit-bar", Static)
+        names = self.source.channel_names()
+        if not names:
+            bar.update(Text("waiting for the board to send its first frames…", no_wrap=True))
+            return
+        ch = self.cursor
+        styles = self.query_one(ChannelTable).styles_map()
+        width = bar.size.width or 80
+        bar.update(edit_bar(names[ch], self.source.settings(ch), self.field_key, styles, width))
+
+    def _draw_detail(self) -> None:
+        names = self.source.channel_names()
+        if not names:
+            return
+        ch = self.cursor
+        spectrum = self.source.spectrum(ch) if self.spectrum else None
+        self.query_one(DetailPanel).show(
+            names[ch], self.source.series(ch), spectrum, self.source.settings(ch), self.field_key,
+            list(self.recent.get(ch, ())), self.source.rate_hz,
+        )
+
+    # -- state helpers ----------------------------------------------------------------------------
+    @property
+    def cursor(self) -> int:
+        return self.query_one(ChannelTable).cursor
+
+    @property
+    def field_key(self) -> str:
+        return FIELDS[self.field_index].key
+
+    def validate_field_index(self, value: int) -> int:
+        return value % len(FIELDS)
+
+    def watch_field_index(self) -> None:
+        self._redraw_soon()
+
+    def watch_detail(self, shown: bool) -> None:
+        self.query_one("#detail").display = shown
+        self.query_one("#lower").display = not shown
+        self._redraw_soon()
+
+    def watch_spectrum(self) -> None:
+        self._redraw_soon()
+
+    def watch_paused(self, paused: bool) -> None:
+        self.query_one(ChannelTable).set_class(paused, "-paused")
+        self.query_one(LinkStrip).show(self._link_view())
+
+    def _redraw_soon(self) -> None:
+        if self.is_mounted and self.source.channel_names():
+            self._draw_edit_bar()
+            if self.detail:
+                self._draw_detail()
+
+    def _log(self, line: str) -> None:
+        self.query_one(EventLog).add(self.clock() - self._t0_s, Text(line))
+
+    def _has_channels(self) -> bool:
+        if self.source.channel_names():
+            return True
+        self.notify("No channels yet: waiting for the board's first frames.", severity="warning")
+        return False
+
+    # -- moving -----------------------------------------------------------------------------------
+    def action_cursor(self, rows: int) -> None:
+        table = self.query_one(ChannelTable)
+        table.cursor = table.validate_cursor(table.cursor + rows)
+        self._redraw_soon()
+
+    def action_cursor_page(self, pages: int) -> None:
+        self.action_cursor(pages * self.query_one(ChannelTable).page_rows)
+
+    def action_cursor_to(self, row: int) -> None:
+        table = self.query_one(ChannelTable)
+        table.cursor = table.validate_cursor(row if row >= 0 else table.rows - 1)
+        self._redraw_soon()
+
+    def action_field(self, step: int) -> None:
+        self.field_index += step
+
+    # -- editing ----------------------------------------------------------------------------------
+    def _apply_changes(self, description: str, changes: list[Change]) -> None:
+        done: list[Change] = []
+        for change in changes:
+            try:
+                self.source.apply(change.channel, change.after)  # type: ignore[arg-type]
+            except ValueError as exc:
+                for undo in reversed(done):
+                    self.source.apply(undo.channel, undo.before)  # type: ignore[arg-type]
+                self.notify(f"Refused: {exc}", severity="warning")
+                return
+            done.append(change)
+        if self.history.record(description, done):
+            self._log(description)
+        self._redraw_soon()
+        self.refresh_now_if_idle()
+
+    def refresh_now_if_idle(self) -> None:
+        if self.ui_hz == 0:
+            self.refresh_now()
+
+    def _set_value(self, value: int) -> None:
+        ch, key = self.cursor, self.field_key
+        old = self.source.settings(ch)
+        new, reason = with_value(old, key, value)
+        if reason:
+            self.bell()
+            self.notify(f"Refused: {reason}. It stays {getattr(old, key)}.", severity="warning")
+            return
+        label = FIELDS[self.field_index].label
+        name = self.source.channel_names()[ch]
+        self._apply_changes(f"{name}: {label} {getattr(old, key)} → {value}", [Change(ch, old, new)])
+
+    def action_step(self, steps: int, coarse: bool) -> None:
+        if self._has_channels():
+            self._set_value(stepped(self.source.settings(self.cursor), self.field_key, steps, coarse))
+
+    def action_type_value(self) -> None:
+        if not self._has_channels():
+            return
+        ch, key, f = self.cursor, self.field_key, FIELDS[self.field_index]
+        current = self.source.settings(ch)
+
+        def check(text: str) -> str | None:
+            try:
+                return with_value(current, key, parse_value(text, key))[1]
+            except ValueError as exc:
+                return str(exc)
+
+        def done(text: str | None) -> None:
+            if text is not None:
+                self._set_value(parse_value(text, key))
+
+        name = self.source.channel_names()[ch]
+        self.push_screen(PromptScreen(f"{name}: new {f.label} ({f.unit})", str(getattr(current, key)), check),
+                         done)
+
+    def _copy_to(self, targets: Iterable[int], what: str) -> None:
+        ch = self.cursor
+        settings = self.source.settings(ch)
+        changes = [Change(t, self.source.settings(t), settings) for t in targets if t != ch]
+        if not changes or all(c.before == c.after for c in changes):
+            self.notify(f"{what}: already the same settings.")
+            return
+        name = self.source.channel_names()[ch]
+        self._apply_changes(f"copied {name}'s settings to {what} ({len(changes)} channels)", changes)
+
+    def action_apply_all(self) -> None:
+        if self._has_channels():
+            self._copy_to(range(len(self.source.channel_names())), "all channels")
+
+    def action_apply_group(self) -> None:
+        if not self._has_channels():
+            return
+        members = self.source.group_of(self.cursor)
+        if len(members) < 2:
+            self.notify("This channel is in no group (groups come from the profile).", severity="warning")
+            return
+        self._copy_to(members, "its group")
+
+    def _replay(self, edit: Edit | None, verb: str) -> None:
+        if edit is None:
+            self.notify(f"Nothing to {verb}.")
+            return
+        for change in edit.changes:
+            self.source.apply(change.channel, change.after)
+        self._log(f"{verb}: {edit.description.removeprefix('undo ')}")
+        self._redraw_soon()
+        self.refresh_now_if_idle()
+
+    def action_undo(self) -> None:
+        self._replay(self.history.undo(), "undo")
+
+    def action_redo(self) -> None:
+        self._replay(self.history.redo(), "redo")
+
+    # -- channel and display ----------------------------------------------------------------------
+    def action_rebaseline(self, every: bool) -> None:
+        if not self._has_channels():
+            return
+        self.source.rebaseline(None if every else self.cursor)
+        what = "all channels" if every else self.source.channel_names()[self.cursor]
+        self._log(f"re-baseline {what}")
+
+    def action_toggle_detail(self) -> None:
+        self.detail = not self.detail
+
+    def action_toggle_spectrum(self) -> None:
+        self.spectrum = not self.spectrum
+        if self.spectrum and not self.detail:
+            self.detail = True
+
+    def action_toggle_pause(self) -> None:
+        self.paused = not self.paused
+
+    # -- recording --------------------------------------------------------------------------------
+    def action_toggle_recording(self) -> None:
+        if self.source.link_view().recording:
+            path = self.source.stop_recording()
+            self.notify(f"Recording saved to {path}")
+            self._log(f"recording stopped: {path}")
+            return
+        default = time.strftime("padtune-%Y%m%d-%H%M%S.csv")
+
+        def done(text: str | None) -> None:
+            if text:
+                path = Path(text).expanduser().resolve()
+                self.source.start_recording(path)
+                self._log(f"recording to {path}")
+
+        self.push_screen(PromptScreen("Record to file:", default, _writable_path), done)
+
+    def action_mark(self) -> None:
+        if not self.source.link_view().recording:
+            self.notify("Not recording: press r to start a recording first.", severity="warning")
+            return
+        names = self.source.channel_names()
+        text = f"mark at {names[self.cursor]}" if names else "mark"
+        self.source.mark(text)
+        self._log(text)
+
+    # -- profile ----------------------------------------------------------------------------------
+    def _after_save(self, path: Path, what: str) -> None:
+        self.notify(f"{what} written to {path}")
+        self._log(f"{what} written to {path}")
+
+    def action_save(self) -> None:
+        if self.source.profile_path() is None:
+            self.action_save_as()
+            return
+        try:
+            self._after_save(self.source.save(), "profile")
+        except UserError as exc:
+            self.notify(str(exc), severity="error")
+
+    def action_save_as(self) -> None:
+        current = self.source.profile_path()
+        default = str(current) if current else f"{self.source.link_view().board or 'board'}.toml"
+
+        def check(text: str) -> str | None:
+            reason = _writable_path(text)
+            if reason:
+                return reason
+            try:
+                self._after_save(self.source.save(Path(text).expanduser().resolve()), "profile")
+            except UserError as exc:
+                return str(exc)
+            return None
+
+        self.push_screen(PromptScreen("Save the profile as:", default, check))
+
+    def action_load(self) -> None:
+        def ask() -> None:
+            def check(text: str) -> str | None:
+                try:
+                    self.source.load(Path(text).expanduser().resolve())
+                except UserError as exc:
+                    return str(exc)
+                self.history.clear()
+                self._log(f"profile loaded from {Path(text).expanduser().resolve()}")
+                return None
+
+            current = str(self.source.profile_path() or "")
+            self.push_screen(PromptScreen("Load the profile from:", current, check))
+
+        self._unless_unsaved("Loading another profile drops your unsaved edits. Load anyway?", ask)
+
+    def action_export(self) -> None:
+        current = self.source.profile_path()
+        default = str(current.with_suffix(".h")) if current else "padtune_keys.h"
+
+        def check(text: str) -> str | None:
+            reason = _writable_path(text)
+            if reason:
+                return reason
+            try:
+                path = self.source.export(Path(text).expanduser().resolve())
+            except UserError as exc:
+                return str(exc)
+            self._after_save(path, "firmware export")
+            return None
+
+        self.push_screen(PromptScreen("Export for firmware to (.h for a C header, .json for JSON):", default,
+                                      check))
+
+    # -- simulated board --------------------------------------------------------------------------
+    def _press(self, ch: int, pressed: bool) -> None:
+        if not self.source.can_press():
+            self.notify("Key presses from the keyboard work only on a simulated board (padtune demo).",
+                        severity="warning")
+            return
+        names = self.source.channel_names()
+        if not 0 <= ch < len(names):
+            return
+        self.source.press(ch, pressed)
+        (self.held.add if pressed else self.held.discard)(ch)
+
+    def action_tap(self) -> None:
+        if self._has_channels() and self.source.can_press():
+            ch = self.cursor
+            self._press(ch, True)
+            self.set_timer(0.4, lambda: self._press(ch, False))
+        else:
+            self._press(self.cursor, True)
+
+    def action_hold(self) -> None:
+        self.action_hold_number(self.cursor)
+
+    def action_hold_number(self, ch: int) -> None:
+        self._press(ch, ch not in self.held)
+
+    # -- the rest ---------------------------------------------------------------------------------
+    def action_wizard(self) -> None:
+        try:
+            from tui.screens import capture
+        except ImportError:
+            self.notify("The guided capture is not available in this build.", severity="warning")
+            return
+        opener = getattr(capture, "open_capture", None)
+        if opener is None:
+            self.notify("The guided capture is not available in this build.", severity="warning")
+            return
+        opener(self)
+
+    def action_help(self) -> None:
+        self.push_screen(HelpScreen(help_rows()))
+
+    def _unless_unsaved(self, question: str, then: Callable[[], None]) -> None:
+        if not self.source.unsaved():
+            then()
+            return
+        self.push_screen(ConfirmScreen(question), lambda yes: then() if yes else None)
+
+    async def action_quit(self) -> None:
+        self._unless_unsaved("There are unsaved edits. Quit without saving them?", self.exit)
+
+    def get_system_commands(self, screen: Screen) -> Iterable[SystemCommand]:
+        seen = set()
+        for b in BINDINGS:
+            if b.action in seen or (b.id or "").startswith("demo.key"):
+                continue
+            seen.add(b.action)
+            yield SystemCommand(b.tooltip or b.description, f"key: {b.key.split(',')[0]}",
+                                lambda action=b.action: self.run_action(action))
+        yield SystemCommand("Change the colour theme", "light, dark and others", self.action_change_theme)
+
+    def on_unmount(self) -> None:
+        self.source.close()
+
+
+def _writable_path(text: str) -> str | None:
+    """Why a file cannot be written there (one line), or None when it can."""
+    if not text.strip():
+        return "give a file name"
+    path = Path(text).expanduser()
+    folder = path.resolve().parent
+    if not folder.is_dir():
+        return f"the folder {folder} does not exist"
+    if path.is_dir():
+        return f"{path} is a folder; give a file name"
+    return None
+

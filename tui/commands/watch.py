@@ -1,0 +1,22 @@
+"""`padtune watch PORT_OR_URL`: the live screen on a real serial port (or any pyserial URL)."""
+
+from __future__ import annotations
+
+import argparse
+
+from tui.live import check_profile_arg, run_live
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("watch", help="open the live screen on a serial port or URL",
+                       description="Open the live tuning screen on a serial port (/dev/ttyACM0, COM3) or a "
+                       "pyserial URL (sim://greenhouse, socket://host:port).")
+    p.add_argument("port", metavar="PORT_OR_URL", help="serial device path or URL")
+    p.add_argument("--baud", type=int, default=115200, help="baud rate (default 115200)")
+    p.add_argument("--profile", help="profile TOML file to load settings from")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    return run_live(args.port, args.baud, check_profile_arg(args.profile),
+                    demo=args.port.startswith("sim://"))

@@ -1,0 +1,76 @@
+"""Setting edits as steps that can be undone and redone; pure, no Textual, no engine.
+
+An edit is a batch (one key press may change one channel, a group or all channels) of
+`(channel, before, after)` changes of frozen settings objects. Applying is the caller's job: the
+history only says what to apply, so it can be tested without a board.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True, slots=True)
+class Change:
+    channel: int
+    before: object
+    after: object
+
+
+@dataclass(frozen=True, slots=True)
+class Edit:
+    description: str
+    changes: tuple[Change, ...]
+
+    def inverse(self) -> Edit:
+        return Edit(
+            f"undo {self.description}",
+            tuple(Change(c.channel, c.after, c.before) for c in self.changes),
+        )
+
+
+class EditHistory:
+    """Undo and redo stacks, bounded; a new edit clears the redo stack (as every editor does)."""
+
+    def __init__(self, limit: int = 500) -> None:
+        self._undo: list[Edit] = []
+        self._redo: list[Edit] = []
+        self._limit = limit
+
+    def record(self, description: str, changes: Sequence[Change]) -> Edit | None:
+        real = tuple(c for c in changes if c.before != c.after)
+        if not real:
+            return None
+        edit = Edit(description, real)
+        self._undo.append(edit)
+        del self._undo[: -self._limit]
+        self._redo.clear()
+        return edit
+
+    def undo(self) -> Edit | None:
+        """The edit to apply to go back one step (its changes run after -> before), or None."""
+        if not self._undo:
+            return None
+        edit = self._undo.pop()
+        self._redo.append(edit)
+        return edit.inverse()
+
+    def redo(self) -> Edit | None:
+        if not self._redo:
+            return None
+        edit = self._redo.pop()
+        self._undo.append(edit)
+        return edit
+
+    @property
+    def can_undo(self) -> bool:
+        return bool(self._undo)
+
+    @property
+    def can_redo(self) -> bool:
+        return bool(self._redo)
+
+    def clear(self) -> None:
+        self._undo.clear()
+        self._redo.clear()

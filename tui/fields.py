@@ -1,0 +1,77 @@
+"""The editable settings of a channel: their labels, units and step sizes; pure.
+
+Stepping and typed values go through `ChannelSettings.problems()`, so the screen refuses exactly what
+the engine and the profile loader would refuse, with the same reason.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+
+from processing.settings import ChannelSettings
+
+
+@dataclass(frozen=True, slots=True)
+class Field:
+    key: str
+    label: str
+    short: str
+    unit: str
+    fine: int
+    coarse: int
+    doubling: bool = False  # steps multiply or divide by two (powers of two only)
+
+
+FIELDS: tuple[Field, ...] = (
+    Field("threshold_counts", "threshold", "thr", "counts", 1, 10),
+    Field("hysteresis_counts", "hysteresis", "hyst", "counts", 1, 10),
+    Field("touch_debounce_frames", "touch debounce", "t-deb", "frames", 1, 5),
+    Field("release_debounce_frames", "release debounce", "r-deb", "frames", 1, 5),
+    Field("baseline_slow_shift", "follow toward touch", "slow", "shift", 1, 2),
+    Field("baseline_fast_shift", "follow away", "fast", "shift", 1, 2),
+    Field("baseline_period_frames", "baseline period", "period", "frames", 1, 1, doubling=True),
+    Field("stuck_timeout_frames", "stuck timeout", "stuck", "frames", 100, 1000),
+)
+_BY_KEY = {f.key: f for f in FIELDS}
+
+
+def field(key: str) -> Field:
+    return _BY_KEY[key]
+
+
+def refusal(settings: ChannelSettings) -> str | None:
+    """Why these settings cannot be used (the first problem, one line), or None when they can."""
+    problems = settings.problems()
+    if not problems:
+        return None
+    key, message = problems[0]
+    label = _BY_KEY[key].label if key in _BY_KEY else key
+    return f"{label} {message}"
+
+
+def with_value(settings: ChannelSettings, key: str, value: int) -> tuple[ChannelSettings, str | None]:
+    """Settings with one value replaced, and why they are refused (None when they are fine)."""
+    new = dataclasses.replace(settings, **{key: value})
+    return new, refusal(new)
+
+
+def stepped(settings: ChannelSettings, key: str, steps: int, coarse: bool) -> int:
+    """The value `steps` steps (negative: down) from the current one; clamped at zero."""
+    f = _BY_KEY[key]
+    value = int(getattr(settings, key))
+    if f.doubling:
+        for _ in range(abs(steps)):
+            value = value * 2 if steps > 0 else max(1, value // 2)
+        return value
+    return max(0, value + steps * (f.coarse if coarse else f.fine))
+
+
+def parse_value(text: str, key: str) -> int:
+    """A typed value as a whole number; raises ValueError with a one-line reason."""
+    cleaned = text.strip().replace("_", "")
+    try:
+        return int(cleaned, 0)
+    except ValueError:
+        raise ValueError(f"{_BY_KEY[key].label} must be a whole number of {_BY_KEY[key].unit}, "
+                         f"not {text.strip()!r}") from None

@@ -1,0 +1,63 @@
+"""The link strip: where the data comes from, how well it arrives, and what is being kept."""
+
+from __future__ import annotations
+
+from rich.text import Text
+
+from tui.render import Styles, pick
+from tui.render.views import LinkView
+
+_STATE_WORDS = {
+    "connecting": ("…", "connecting", "warn"),
+    "connected": ("●", "connected", "good"),
+    "reconnected": ("●", "connected", "good"),
+    "disconnected": ("✗", "DISCONNECTED", "bad"),
+    "reconnecting": ("↻", "RECONNECTING", "bad"),
+    "closed": ("■", "closed", "dim"),
+}
+
+
+def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
+    """One line; with `compact`, two: the connection and counters, then recording and profile."""
+    glyph, word, role = _STATE_WORDS.get(view.state, ("?", view.state, "warn"))
+    sep = Text(" │ ", style=pick(styles, "dim"))
+    text = Text(no_wrap=True, overflow="ellipsis", end="")
+    text.append(f"{glyph} {word}", pick(styles, role))
+    if view.detail and role != "good":
+        text.append(f" ({view.detail})", pick(styles, role))
+    text.append_text(sep)
+    text.append(view.port, pick(styles, "name"))
+    text.append(f" {view.baud} Bd")
+    if view.board:
+        text.append(f" {view.board}", pick(styles, "dim"))
+    text.append_text(sep)
+    text.append(f"{view.fps:.0f} fps")
+    counters = (
+        ("lost", view.lost),
+        ("garbled", view.garbled),
+        ("cksum", view.bad_checksum),
+        ("resets", view.resets),
+    )
+    if view.overflow:
+        counters += (("overflow", view.overflow),)
+    for name, count in counters:
+        text.append(f" {name} ")
+        text.append(str(count), pick(styles, "warn" if count else "dim"))
+    if compact:
+        text.append("\n")
+    else:
+        text.append_text(sep)
+    if view.recording:
+        text.append("⏺ REC ", pick(styles, "bad"))
+        text.append(view.recording if not compact else view.recording.rsplit("/", 1)[-1])
+    else:
+        text.append("not recording", pick(styles, "dim"))
+    text.append_text(sep)
+    text.append("profile ")
+    text.append(view.profile_name, pick(styles, "name"))
+    if view.unsaved:
+        text.append(" * unsaved", pick(styles, "warn"))
+    if view.paused:
+        text.append_text(sep)
+        text.append("⏸ DISPLAY PAUSED", pick(styles, "warn"))
+    return text

@@ -1,0 +1,108 @@
+"""One channel as one line of text, with columns that shrink to the width available.
+
+The fixed columns (name, numbers, state) keep their width down to 80 cells; the bar and the
+sparkline share what is left, and below about 60 cells the sparkline and then the baseline go.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from rich.text import Text
+
+from tui.render import Styles, pick
+from tui.render.bar import delta_bar
+from tui.render.glyphs import state_label, verdict_label
+from tui.render.spark import sparkline
+from tui.render.views import ChannelView
+
+
+@dataclass(frozen=True, slots=True)
+class RowLayout:
+    width: int
+    name: int
+    number: int
+    baseline: bool
+    bar: int
+    spark: int
+    noise: int
+    snr: int
+    state: int
+
+
+def row_layout(width: int, name_width: int = 8) -> RowLayout:
+    """Column widths for a table `width` cells wide (cells, not counting the one-cell gaps)."""
+    name = max(4, min(name_width, 12))
+    number, noise, snr, state = 6, 5, 7, 7
+    baseline = True
+    fixed = 2 + name + 1 + (number + 1) * 3 + noise + 1 + snr + 1 + state
+    room = width - fixed - 2  # two gaps around bar and sparkline
+    if room < 16:
+        baseline = False
+        room += number + 1
+    if room < 8:
+        name = max(4, name - (8 - room))
+        room = 8
+    spark = 0 if room < 18 else min(48, room * 2 // 5)
+    bar = max(4, room - spark - (1 if spark else 0))
+    return RowLayout(width, name, number, baseline, bar, spark, noise, snr, state)
+
+
+def _num(value: float | None, width: int, digits: int = 0) -> str:
+    if value is None:
+        return "--".rjust(width)
+    text = f"{value:.{digits}f}"
+    if len(text) > width:
+        text = f"{value:.0f}" if digits else text[:width]
+    return text.rjust(width)[-width:]
+
+
+def _bar_title(width: int) -> str:
+    for title in ("delta bar: ┃ threshold  ╎ release", "delta ┃thresh ╎release", "┃thr ╎rel", "bar"):
+        if len(title) <= width:
+            return title.ljust(width)
+    return " " * width
+
+
+def header_line(layout: RowLayout, styles: Styles) -> Text:
+    cols = ["  ", "key".ljust(layout.name), " ", "read".rjust(layout.number), " "]
+    if layout.baseline:
+        cols += ["base".rjust(layout.number), " "]
+    cols += ["delta".rjust(layout.number), " ", _bar_title(layout.bar)]
+    if layout.spark:
+        cols += [" ", "recent".ljust(layout.spark)]
+    cols += [" ", "noise".rjust(layout.noise), " ", "SNR".ljust(layout.snr), " ", "state".ljust(layout.state)]
+    return Text("".join(cols), style=pick(styles, "header"), no_wrap=True, end="")
+
+
+def channel_line(view: ChannelView, layout: RowLayout, selected: bool, styles: Styles) -> Text:
+    """The row for one channel; `selected` puts a `▶` in front (so the cursor reads without colour)."""
+    st = state_label(view.state)
+    verdict = verdict_label(view.verdict)
+    text = Text(no_wrap=True, end="")
+    text.append("▶ " if selected else "  ", pick(styles, "cursor"))
+    name = view.name[: layout.name].ljust(layout.name)
+    text.append(name, pick(styles, "edited" if view.edited else "name"))
+    text.append(" ")
+    text.append(_num(view.reading, layout.number))
+    text.append(" ")
+    if layout.baseline:
+        text.append(_num(view.baseline, layout.number), pick(styles, "dim"))
+        text.append(" ")
+    text.append(_num(view.delta, layout.number), pick(styles, st.role))
+    text.append(" ")
+    text.append_text(delta_bar(view.delta, view.threshold, view.release, layout.bar, styles, st.role))
+    if layout.spark:
+        text.append(" ")
+        text.append_text(sparkline(view.spark, view.threshold, layout.spark, styles))
+    text.append(" ")
+    noise = view.noise_pp
+    text.append(_num(noise, layout.noise, 1 if noise is not None and noise < 100 else 0))
+    text.append(" ")
+    snr = "--" if view.snr is None else f"{view.snr:.1f}" if view.snr < 100 else f"{view.snr:.0f}"
+    text.append(f"{snr:>4} {verdict.glyph}".ljust(layout.snr)[: layout.snr], pick(styles, verdict.role))
+    text.append(" ")
+    text.append(f"{st.glyph} {st.word}".ljust(layout.state)[: layout.state], pick(styles, st.role))
+    if selected:
+        text.stylize(pick(styles, "selected"))
+    return text

@@ -1,0 +1,64 @@
+"""The plain snapshots the screens draw: one per channel, group, slider and for the link.
+
+They are built by `tui.source` from the live session once per screen frame, so drawing never reaches
+into the engine while it runs, and the same snapshots can be printed by the headless output.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+
+@dataclass(frozen=True, slots=True)
+class ChannelView:
+    index: int
+    name: str
+    reading: int
+    baseline: int
+    delta: int
+    state: str
+    threshold: int
+    release: int  # threshold minus hysteresis: the delta below which a touch ends
+    noise_pp: float | None = None
+    noise_rms: float | None = None
+    snr: float | None = None
+    verdict: str | None = None
+    spark: tuple[float, ...] = ()
+    group: str | None = None
+    edited: bool = False  # differs from the profile on disk
+
+
+@dataclass(frozen=True, slots=True)
+class GroupView:
+    name: str
+    members: tuple[str, ...]
+    winner: str | None
+
+
+@dataclass(frozen=True, slots=True)
+class SliderView:
+    name: str
+    members: tuple[str, ...]
+    position: int | None  # None while not touched
+    resolution: int
+
+
+@dataclass(frozen=True, slots=True)
+class LinkView:
+    port: str
+    baud: int
+    state: str  # a protocol LinkState value
+    fps: float
+    frames: int = 0
+    lost: int = 0
+    garbled: int = 0
+    bad_checksum: int = 0
+    resets: int = 0
+    overflow: int = 0
+    detail: str = ""
+    board: str | None = None
+    recording: str | None = None  # path while recording
+    profile_name: str = "(defaults)"
+    unsaved: bool = False
+    paused: bool = False
+    extra: dict[str, int] = field(default_factory=dict)

@@ -1,0 +1,43 @@
+"""The help screen: every key of the live screen, read from its bindings, then the safety cautions."""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from typing import ClassVar
+
+from rich.console import Group
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import VerticalScroll
+from textual.screen import ModalScreen
+from textual.widgets import Static
+
+from tui.render.help import cautions_text, help_tables
+
+
+class HelpScreen(ModalScreen[None]):
+    BINDINGS: ClassVar = [
+        Binding("escape,q,question_mark,f1", "dismiss", "Close help", id="help.close"),
+        Binding("down,j", "scroll('down')", "Scroll down", show=False),
+        Binding("up,k", "scroll('up')", "Scroll up", show=False),
+        Binding("pagedown,space", "scroll('page_down')", "Page down", show=False),
+        Binding("pageup", "scroll('page_up')", "Page up", show=False),
+    ]
+
+    def __init__(self, rows: Iterable[tuple[str, str, str]]) -> None:
+        super().__init__()
+        self._rows = list(rows)
+
+    def compose(self) -> ComposeResult:
+        with VerticalScroll(id="help-body"):
+            yield Static("padtune keys  (Esc closes; ↑/↓ scroll)", id="help-title")
+            yield Static(Group(*help_tables(self._rows)), id="help-keys")
+            yield Static(cautions_text(), id="help-safety")
+
+    def action_dismiss(self, result: None = None) -> None:  # type: ignore[override]
+        self.dismiss(None)
+
+    def action_scroll(self, how: str) -> None:
+        body = self.query_one("#help-body", VerticalScroll)
+        {"down": body.scroll_down, "up": body.scroll_up, "page_down": body.scroll_page_down,
+         "page_up": body.scroll_page_up}[how]()

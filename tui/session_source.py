@@ -1,0 +1,298 @@
+"""The `LiveSource` the app runs on: a link (anything with `drain()`) feeding a `processing.Session`.
+
+Runs entirely on the UI thread: `poll()` takes what the link's reader thread queued, hands it to the
+session, writes it to the recording when one is open, and counts frames for the fps figure. The
+snapshots for drawing come from the session's engine and measures; the noise figures are refreshed
+twice a second (see `tui.quality`), the rest every frame.
+"""
+
+from __future__ import annotations
+
+import time
+from collections import deque
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Protocol
+
+import numpy as np
+
+from processing.fixed import to_counts
+from processing.measure import ChannelQuality
+from processing.profile import Profile, load_profile, save_profile
+from processing.recording import RecordingWriter
+from processing.session import Session
+from processing.settings import ChannelSettings
+from protocol.errors import UserError
+from protocol.events import Event, FrameBlock, LinkState, LinkStats, LinkStatus
+from tui.quality import all_quality
+from tui.render.views import ChannelView, GroupView, LinkView, SliderView
+from tui.source import Tick
+from tui.widgets.detail_panel import Series, Spectrum
+
+SPARK_SECONDS = 4.0
+PLOT_SECONDS = 8.0
+QUALITY_EVERY_S = 0.5
+
+
+class Producer(Protocol):
+    """What the source needs of a link: `protocol.link.Link` provides it, and so can a test feed."""
+
+    def drain(self, max_events: int | None = None) -> list[Event]: ...
+    def write(self, data: bytes) -> None: ...
+    @property
+    def stats(self) -> LinkStats: ...
+    @property
+    def state(self) -> LinkState: ...
+
+
+class SessionSource:
+    def __init__(self, producer: Producer, *, profile: Profile | None = None,
+                 profile_path: Path | None = None, port: str = "", baud: int = 115200,
+                 simulated: bool | None = None,
+                 clock: Callable[[], float] = time.monotonic, session: Session | None = None) -> None:
+        self.producer = producer
+        self.session = session or Session(profile)
+        self._path = profile_path
+        self._saved: Profile | None = profile
+        self.port, self.baud = port, baud
+        self.simulated = port.startswith("sim://") if simulated is None else simulated
+        self.clock = clock
+        self._frame_times: deque[tuple[float, int]] = deque()
+        self._quality: list[ChannelQuality] = []
+        self._quality_t_s = -1e9
+        self._status_detail = ""
+        self._recorder: RecordingWriter | None = None
+
+    # -- data in ----------------------------------------------------------------------------------
+    @property
+    def rate_hz(self) -> float | None:
+        return self.session.rate_hz if self.session.engine else None
+
+    def poll(self) -> Tick:
+        events = self.producer.drain()
+        tick = Tick()
+        for ev in events:
+            if isinstance(ev, FrameBlock):
+                tick.blocks.append(ev)
+                tick.frames += len(ev)
+            else:
+                tick.events.append(ev)
+                if isinstance(ev, LinkStatus):
+                    self._status_detail = ev.detail
+        tick.detections = list(self.session.handle(events))
+        if self._saved is None and self.session.profile is not None:
+            self._saved = self.session.profile  # the defaults the board came up with: nothing to save yet
+        if self._recorder is not None:
+            self._recorder.write_events(events)
+        now = self.clock()
+        self._frame_times.append((now, tick.frames))
+        while self._frame_times and now - self._frame_times[0][0] > 2.0:
+            self._frame_times.popleft()
+        if now - self._quality_t_s >= QUALITY_EVERY_S and self.session.measures is not None:
+            self._quality = all_quality(self.session.measures)
+            self._quality_t_s = now
+        return tick
+
+    def fps(self) -> float:
+        if len(self._frame_times) < 2:
+            return 0.0
+        span = self._frame_times[-1][0] - self._frame_times[0][0]
+        frames = sum(n for _, n in list(self._frame_times)[1:])
+        return frames / span if span > 0 else 0.0
+
+    @property
+    def notices(self) -> deque[str]:
+        """Things the session wants the user to know (a profile for another width, a board reset)."""
+        return self.session.notices
+
+    # -- snapshots --------------------------------------------------------------------------------
+    def channel_names(self) -> list[str]:
+        return list(self.session.names)
+
+    def _recent(self, what: str, seconds: float) -> np.ndarray:
+        """The last `seconds` of one history array (frames x channels), oldest first; copies only that one."""
+        m = self.session.measures
+        assert m is not None
+        h = m.history
+        n = min(len(h), max(1, int(seconds * m.rate_hz)))
+        start = (h.written - n) % h.capacity
+        arr = getattr(h, what)
+        if start + n <= h.capacity:
+            return arr[start:start + n]
+        return np.concatenate((arr[start:], arr[: start + n - h.capacity]))
+
+    def _sparks(self, points: int) -> np.ndarray | None:
+        if self.session.measures is None or len(self.session.measures.history) == 0:
+            return None
+        deltas = self._recent("deltas", SPARK_SECONDS)
+        n = len(deltas) - len(deltas) % points if len(deltas) >= points else len(deltas)
+        if n < points:
+            return deltas.T.astype(np.float64)
+        tail = deltas[len(deltas) - n:]
+        return tail.reshape(points, n // points, -1).max(axis=1).T.astype(np.float64)
+
+    def channel_views(self, spark_points: int) -> list[ChannelView]:
+        e, p = self.session.engine, self.session.profile
+        if e is None or p is None:
+            return []
+        readings, baselines, deltas, states = e.readings, e.baselines_fp, e.deltas, e.states
+        sparks = self._sparks(spark_points)
+        saved = self._saved
+        group_of = {m: g.name for g in p.groups for m in g.members}
+        out = []
+        for c in range(e.channels):
+            st = p.settings_for(c)
+            q = self._quality[c] if c < len(self._quality) else None
+            noise = q.noise if q else None
+            out.append(ChannelView(
+                index=c, name=p.names[c], reading=int(readings[c]), baseline=to_counts(baselines[c]),
+                delta=int(deltas[c]), state=states[c].name.lower(), threshold=st.threshold_counts,
+                release=st.release_level_counts,
+                noise_pp=noise.pp_counts if noise else None, noise_rms=noise.rms_counts if noise else None,
+                snr=_finite(q.snr_pp) if q else None, verdict=q.verdict if q else None,
+                spark=tuple(sparks[c].tolist()) if sparks is not None else (),
+                group=group_of.get(c),
+                edited=saved is not None and saved.channels == p.channels and saved.settings_for(c) != st,
+            ))
+        return out
+
+    def group_views(self) -> list[GroupView]:
+        p = self.session.profile
+        if p is None:
+            return []
+        names = p.names
+        return [GroupView(g.spec.name, tuple(names[m] for m in g.spec.members),
+                          None if g.winner is None else names[g.winner]) for g in self.session.groups]
+
+    def slider_views(self) -> list[SliderView]:
+        p = self.session.profile
+        if p is None:
+            return []
+        return [SliderView(s.spec.name, tuple(p.names[i] for i in s.spec.pads), s.position,
+                           max(1, s.spec.resolution - 1)) for s in self.session.sliders]
+
+    def link_view(self) -> LinkView:
+        stats = self.producer.stats
+        info = self.session.info
+        path = self._path
+        return LinkView(
+            port=self.port, baud=self.baud, state=str(self.producer.state.value), fps=self.fps(),
+            frames=stats.frames, lost=stats.lost, garbled=stats.garbled + stats.overlong,
+            bad_checksum=stats.bad_checksum, resets=stats.resets, overflow=stats.overflow,
+            detail=self._status_detail, board=(info.board if info else None),
+            recording=str(self._recorder.path) if self._recorder else None,
+            profile_name=path.name if path else "(unsaved defaults)", unsaved=self.unsaved(),
+        )
+
+    def series(self, channel: int) -> Series | None:
+        m, e = self.session.measures, self.session.engine
+        if m is None or e is None or len(m.history) < 2:
+            return None
+        t = self._recent("t_s", PLOT_SECONDS)
+        reading = self._recent("readings", PLOT_SECONDS)[:, channel]
+        delta = self._recent("deltas", PLOT_SECONDS)[:, channel]
+        pol = int(e.pol[channel]) if hasattr(e, "pol") else 1
+        return Series(t.copy(), reading.astype(np.float64), (reading - pol * delta).astype(np.float64), pol)
+
+    def spectrum(self, channel: int) -> Spectrum | None:
+        m = self.session.measures
+        if m is None:
+            return None
+        peak = m.spectrum(channel)
+        samples = m.released_deltas(channel).astype(np.float64)
+        if len(samples) < 16:
+            return Spectrum(np.zeros(1), np.zeros(1), "not enough untouched frames yet for a spectrum")
+        window = np.hanning(len(samples))
+        amp = 2.0 * np.abs(np.fft.rfft((samples - samples.mean()) * window)) / window.sum()
+        freq = np.fft.rfftfreq(len(samples), 1.0 / m.rate_hz)
+        summary = peak.describe() if peak else "no noise peak found"
+        return Spectrum(freq[1:], amp[1:], summary)
+
+    # -- settings ---------------------------------------------------------------------------------
+    def settings(self, channel: int) -> ChannelSettings:
+        return self.session.settings(channel)
+
+    def apply(self, channel: int, settings: ChannelSettings) -> None:
+        self.session.set_channel_settings(channel, settings)
+
+    def group_of(self, channel: int) -> Sequence[int]:
+        p = self.session.profile
+        for g in p.groups if p else ():
+            if channel in g.members:
+                return list(g.members)
+        return [channel]
+
+    def rebaseline(self, channel: int | None) -> None:
+        self.session.rebaseline(channel)
+
+    # -- the simulated board ----------------------------------------------------------------------
+    def can_press(self) -> bool:
+        return self.simulated
+
+    def press(self, channel: int, pressed: bool) -> None:
+        name = self.channel_names()[channel]
+        self.producer.write(f"{'+' if pressed else '-'}{name}\n".encode("ascii", "replace"))
+
+    # -- profile ----------------------------------------------------------------------------------
+    def profile_path(self) -> Path | None:
+        return self._path
+
+    def unsaved(self) -> bool:
+        current = self.session.profile
+        return current is not None and self._saved is not None and current != self._saved
+
+    def save(self, path: Path | None = None) -> Path:
+        target = path or self._path
+        profile = self.session.profile
+        if target is None:
+            raise UserError("no file name for the profile yet: use save as")
+        if profile is None:
+            raise UserError("nothing to save yet: the board has not sent any frames")
+        save_profile(profile, target)
+        self._path, self._saved = target, profile
+        return target
+
+    def load(self, path: Path) -> None:
+        profile = load_profile(path)
+        self.session.apply_profile(profile)
+        self._path, self._saved = path, self.session.profile
+
+    def export(self, path: Path) -> Path:
+        from processing import profile as profiles
+
+        profile = self.session.profile
+        if profile is None:
+            raise UserError("nothing to export yet: the board has not sent any frames")
+        if path.suffix.lower() == ".json":
+            profiles.export_json(profile, path)
+        elif path.suffix.lower() in (".h", ".hpp"):
+            profiles.export_c_header(profile, path)
+        else:
+            raise UserError(f"{path.name}: end the name in .h for a C header or .json for JSON")
+        return path
+
+    # -- recording --------------------------------------------------------------------------------
+    def start_recording(self, path: Path) -> None:
+        if self._recorder is not None:
+            raise UserError(f"already recording to {self._recorder.path}")
+        self._recorder = RecordingWriter(path, source=self.port, clock=self.clock, info=self.session.info)
+
+    def stop_recording(self) -> Path | None:
+        rec, self._recorder = self._recorder, None
+        if rec is None:
+            return None
+        rec.close()
+        return rec.path
+
+    def mark(self, text: str) -> None:
+        if self._recorder is not None:
+            self._recorder.mark(self.clock(), "note", text=text)
+
+    def close(self) -> None:
+        self.stop_recording()
+
+
+def _finite(value: float | None) -> float | None:
+    if value is None or not np.isfinite(value):
+        return None if value is None else 999.0
+    return float(value)

@@ -1,0 +1,100 @@
+"""The detail panel for the selected channel: a plot of reading and baseline with the threshold and
+release lines (or the noise spectrum), the channel's settings and its recent events.
+
+The plot is textual-plotext's PlotextPlot; it is redrawn at a few hertz, not at the table's rate.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import ClassVar
+
+import numpy as np
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical
+from textual.widgets import Static
+from textual_plotext import PlotextPlot
+
+from processing.settings import ChannelSettings
+from tui.render.settings import settings_text
+
+
+@dataclass(frozen=True, slots=True)
+class Series:
+    """Reading and baseline over time for one channel (counts; t in seconds, newest last)."""
+
+    t_s: np.ndarray
+    reading: np.ndarray
+    baseline: np.ndarray
+    polarity: int
+
+
+@dataclass(frozen=True, slots=True)
+class Spectrum:
+    freq_hz: np.ndarray
+    amplitude_counts: np.ndarray
+    summary: str  # one line: the peak and what it may be
+
+
+def _thin(x: np.ndarray, points: int) -> np.ndarray:
+    if len(x) <= points:
+        return x
+    idx = np.linspace(0, len(x) - 1, points).astype(int)
+    return x[idx]
+
+
+class DetailPanel(Vertical):
+    ROLES = ("cursor", "name", "dim")
+    COMPONENT_CLASSES: ClassVar[set[str]] = {f"detail-panel--{r}" for r in ROLES}
+
+    def compose(self) -> ComposeResult:
+        yield Static("", id="detail-title")
+        with Horizontal(id="detail-body"):
+            yield PlotextPlot(id="detail-plot")
+            with Vertical(id="detail-side"):
+                yield Static("", id="detail-settings")
+                yield Static("", id="detail-events")
+
+    def show(self, name: str, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
+             selected_key: str, events: Sequence[str], rate_hz: float | None) -> None:
+        styles = {r: self.get_component_rich_style(f"detail-panel--{r}", partial=True) for r in self.ROLES}
+        mode = "noise spectrum (f: back to the plot)" if spectrum is not None else \
+            "reading & baseline, threshold & release lines (f: noise spectrum)"
+        self.query_one("#detail-title", Static).update(Text(f"{name}: {mode}", no_wrap=True))
+        settings_lines = settings_text(settings, selected_key, styles, rate_hz)
+        self.query_one("#detail-settings", Static).update(settings_lines)
+        lines = Text("recent events\n", style=styles["dim"], no_wrap=True)
+        for line in list(events)[-6:]:
+            lines.append(line + "\n")
+        if not events:
+            lines.append("(none yet)", styles["dim"])
+        self.query_one("#detail-events", Static).update(lines)
+        self._plot(series, spectrum, settings)
+
+    def _plot(self, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings) -> None:
+        widget = self.query_one("#detail-plot", PlotextPlot)
+        plt = widget.plt
+        plt.clear_data()
+        plt.clear_figure()
+        points = max(10, widget.size.width * 2)
+        if spectrum is not None:
+            freq, amp = _thin(spectrum.freq_hz, points), _thin(spectrum.amplitude_counts, points)
+            plt.plot(freq.tolist(), amp.tolist(), label="amplitude (counts)", marker="braille")
+            plt.xlabel("Hz")
+            plt.title(spectrum.summary)
+        elif series is not None and len(series.t_s) > 1:
+            t = _thin(series.t_s - series.t_s[-1], points)
+            reading = _thin(series.reading, points)
+            baseline = _thin(series.baseline, points)
+            thr = baseline + series.polarity * settings.threshold_counts
+            rel = baseline + series.polarity * settings.release_level_counts
+            plt.plot(t.tolist(), reading.tolist(), label="reading", marker="braille")
+            plt.plot(t.tolist(), baseline.tolist(), label="baseline", marker="braille")
+            plt.plot(t.tolist(), thr.tolist(), label="threshold", marker="braille")
+            plt.plot(t.tolist(), rel.tolist(), label="release", marker="braille")
+            plt.xlabel("seconds (0 = now)")
+        else:
+            plt.title("waiting for frames")
+        widget.refresh()
