@@ -1,0 +1,296 @@
+"""A simulated board that speaks protocol v1: seeded, paced by a clock, with faults on request.
+
+`SimBoard` owns time, sequence numbers, link faults and the host's commands; the readings come from
+`devices.model.BoardModel` and the bytes from `protocol.encoder` (the one implementation of the wire
+format). Frames are generated in numpy blocks, so a 64-channel board at 1 kHz costs little.
+
+Host commands (one per line, see devices/README.md): `?` sends the info line again; `+NAME` presses
+the key NAME (or a channel number), `+NAME=0.7` presses it lightly; `-NAME` releases it; `-*` releases all.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Callable
+
+import numpy as np
+
+from devices.boards import load_board
+from devices.faults import FaultPlan, Injected
+from devices.model import BoardModel, UnitFaults
+from devices.spec import BoardSpec
+from devices.touches import Contact, TouchPlan
+from protocol import encoder
+from protocol.errors import UserError
+
+SEQ_MODULO = 65536
+MAX_BLOCK_FRAMES = 4096  # bounds memory when a slow reader asks for a long stretch at once
+_JUNK = bytes(range(0x80, 0x100))
+
+
+class SimBoard:
+    """One simulated board. Sim time runs at `speed` times the clock from construction (or `restart`)."""
+
+    def __init__(self, spec: BoardSpec | str, seed: int = 0, speed: float = 1.0,
+                 faults: FaultPlan | None = None, clock: Callable[[], float] = time.monotonic,
+                 checksum: bool = True, script: bool = True, random_per_min: float | None = None) -> None:
+        self.spec = load_board(spec) if isinstance(spec, str) else spec
+        if not 0.001 <= speed <= 1000:
+            raise UserError(f"speed {speed:g} is out of range; use a factor from 0.001 to 1000")
+        self.seed, self.speed, self.clock, self.checksum = seed, speed, clock, checksum
+        self.faults = faults or FaultPlan()
+        self.touches = TouchPlan(self.spec, seed, script=script, random_per_min=random_per_min)
+        self.model = BoardModel(self.spec, seed, self.touches, self._unit_faults())
+        for pad, from_s in self.faults.stuck_keys:
+            ch = self.channel(pad)
+            self.touches.presses.append(Contact("finger", (pad,), (ch,), from_s, math.inf, 1.0, "stuck"))
+        self.injected = Injected()
+        self._link_rng = np.random.default_rng([seed, 0x11A4])
+        self._next_frame = 0  # index of the next frame to measure; its time is index / rate_hz
+        self._seq = 0
+        self._width = self.spec.channels
+        self._pending = bytearray()
+        self._commands = bytearray()
+        self._events = self._timeline()
+        self._t0 = clock()
+        self._emit_boot()
+
+    # --- set-up -----------------------------------------------------------------------------------
+    def channel(self, name_or_index: str | int) -> int:
+        names = self.spec.names
+        if isinstance(name_or_index, int) or (isinstance(name_or_index, str) and name_or_index.isdigit()):
+            index = int(name_or_index)
+            if 0 <= index < len(names):
+                return index
+            raise UserError(f"channel {index} does not exist; {self.spec.name} has 0..{len(names) - 1}")
+        if name_or_index in names:
+            return names.index(name_or_index)
+        raise UserError(f"{self.spec.name} has no pad {name_or_index!r}; pads: {', '.join(names)}")
+
+    def _unit_faults(self) -> UnitFaults:
+        f = self.faults
+        return UnitFaults({self.channel(p) for p in f.open_pads}, {self.channel(p) for p in f.shorted_pads},
+                          {self.channel(p): k for p, k in f.noisy_pads})
+
+    def _timeline(self) -> list[tuple[int, str, float]]:
+        """Stream events as (frame index, kind, value), in frame order."""
+        rate = self.spec.rate_hz
+        events = [(math.ceil(t * rate), "reset", 0.0) for t in self.faults.resets_at_s]
+        events += [(math.ceil(t * rate), "width", float(w)) for t, w in self.faults.width_changes]
+        events += [(math.ceil(t * rate), "stall", s) for t, s in self.faults.stalls]
+        return sorted(events)
+
+    def restart_clock(self) -> None:
+        """Make sim time 'now' continue from where generation stands (e.g. when a reader connects)."""
+        self._t0 = self.clock() - self._next_frame / self.spec.rate_hz / self.speed
+
+    # --- what the board says ----------------------------------------------------------------------
+    def info_fields(self) -> dict[str, object]:
+        names = self.spec.names[: self._width]
+        names += tuple(f"ch{i}" for i in range(len(names), self._width))
+        return {"proto": 1, "board": self.spec.name, "channels": self._width,
+                "rate": f"{self.spec.rate_hz:g}", "names": ",".join(names), "method": self.spec.method.kind,
+                "polarity": "+" if self.spec.method.polarity > 0 else "-", "fw": self.spec.fw}
+
+    def info_line(self) -> bytes:
+        return encoder.encode_info(self.info_fields(), checksum=self.checksum)
+
+    def _note(self, text: str) -> None:
+        plain = text.encode("ascii", "replace").decode("ascii")  # a user's board file may say anything
+        self._pending += encoder.encode_note(plain, checksum=self.checksum)
+        self.injected.notes += 1
+
+    def _emit_info(self) -> None:
+        self._pending += self.info_line()
+        self.injected.infos += 1
+
+    def _emit_boot(self) -> None:
+        self._note(f"{self.spec.name} simulated board, seed {self.seed}: {self.spec.description}")
+        self._emit_info()
+
+    # --- time -------------------------------------------------------------------------------------
+    @property
+    def sim_time_s(self) -> float:
+        """Sim time of the clock now (frames up to here are due)."""
+        return (self.clock() - self._t0) * self.speed
+
+    @property
+    def generated_s(self) -> float:
+        return self._next_frame / self.spec.rate_hz
+
+    def seconds_to_next_frame(self) -> float:
+        """Clock seconds until the next frame is due (0 if overdue)."""
+        return max(0.0, (self._next_frame / self.spec.rate_hz - self.sim_time_s) / self.speed)
+
+    def read_due(self) -> bytes:
+        """Every byte the board has sent by now (per the clock), consumed."""
+        self.generate_until(self.sim_time_s)
+        return self.take()
+
+    def take(self) -> bytes:
+        out = bytes(self._pending)
+        self._pending.clear()
+        self.injected.bytes_out += len(out)
+        return out
+
+    def run_for(self, seconds: float) -> bytes:
+        """Generate the next `seconds` of sim time at once, ignoring the clock (tests, benchmarks)."""
+        self.generate_until(self.generated_s + seconds)
+        return self.take()
+
+    def skip_until(self, sim_t_s: float) -> int:
+        """Let frames up to sim_t_s go by unsent, as when the host's input buffer overflows.
+
+        The board measured them (sequence numbers advance), so the host sees them as lost. Returns how
+        many were skipped; they are counted in `injected.extra["overrun"]`.
+        """
+        last = math.floor(sim_t_s * self.spec.rate_hz + 1e-9)
+        skipped = 0
+        while self._next_frame <= last:
+            if self._events and self._events[0][0] <= self._next_frame:
+                self._apply(self._events.pop(0))
+                continue
+            stop = min(last + 1, self._events[0][0]) if self._events else last + 1
+            n = stop - self._next_frame
+            self._next_frame, self._seq = stop, (self._seq + n) % SEQ_MODULO
+            self.injected.frames_made += n
+            skipped += n
+        if skipped:
+            self.injected.extra["overrun"] = self.injected.extra.get("overrun", 0) + skipped
+        return skipped
+
+    def generate_until(self, sim_t_s: float) -> None:
+        """Measure and queue every frame whose time is <= sim_t_s."""
+        last = math.floor(sim_t_s * self.spec.rate_hz + 1e-9)
+        while self._next_frame <= last:
+            stop = min(last + 1, self._next_frame + MAX_BLOCK_FRAMES)
+            if self._events and self._events[0][0] <= self._next_frame:
+                self._apply(self._events.pop(0))
+                continue
+            if self._events:
+                stop = min(stop, self._events[0][0])
+            self._frames(self._next_frame, stop - self._next_frame)
+
+    def _apply(self, event: tuple[int, str, float]) -> None:
+        frame, kind, value = event
+        if kind == "reset":
+            # A watchdog restart: the firmware prints its banner and counts from 0 again. It does not
+            # resend the info line unless asked, so the host sees the sequence jump back (a reset).
+            self.injected.resets += 1
+            self._seq = 0
+            self._note(f"{self.spec.name} restarted (watchdog), fw {self.spec.fw}")
+        elif kind == "width":
+            self.injected.width_changes += 1
+            self._width = int(value)
+        else:  # a stall: the board measures and sends nothing for a while
+            self.injected.stalls += 1
+            skipped = round(value * self.spec.rate_hz)
+            self.injected.stalled_s += skipped / self.spec.rate_hz
+            self._next_frame = max(self._next_frame, frame + skipped)
+
+    def _frames(self, first: int, n: int) -> None:
+        readings = self.model.readings(first, n)
+        if self._width != readings.shape[1]:
+            readings = _rewidth(readings, self._width)
+        self._next_frame = first + n
+        self.injected.frames_made += n
+        seq0 = self._seq
+        self._seq = (self._seq + n) % SEQ_MODULO
+        if not self.faults.link_faults:
+            self._pending += encoder.encode_frames(readings, seq0, self.checksum)
+            self.injected.frames_sent += n
+            return
+        self._faulty_frames(readings, seq0)
+
+    def _faulty_frames(self, readings: np.ndarray, seq0: int) -> None:
+        f = self.faults
+        draws = self._link_rng.random((len(readings), 4))  # one row per frame: drop, garble, junk, pick
+        lines = encoder.encode_frames(readings, seq0, self.checksum).split(b"\n")[:-1]
+        for line, (u_drop, u_garble, u_junk, pick) in zip(lines, draws, strict=True):
+            if u_drop < f.drop_rate:
+                self.injected.dropped += 1
+                continue
+            if u_garble < f.garble_rate:
+                line = _garble(line, pick, self.checksum)
+                self.injected.garbled += 1
+            self._pending += line + b"\n"
+            self.injected.frames_sent += 1
+            if u_junk < f.junk_rate:
+                n = 8 + int(pick * 24)
+                self._pending += b"~" + bytes(_JUNK[int(pick * 97 + i * 31) % len(_JUNK)] for i in range(n))
+                self._pending += b"\n"
+                self.injected.junk += 1
+
+    # --- the host side ----------------------------------------------------------------------------
+    def write(self, data: bytes) -> int:
+        """Bytes from the host. Complete lines are commands; a partial line waits for its end."""
+        self._commands += data
+        while b"\n" in self._commands:
+            line, _, rest = bytes(self._commands).partition(b"\n")
+            self._commands = bytearray(rest)
+            self.command(line.decode("ascii", "replace").strip())
+        if len(self._commands) > 256:  # a host that never sends a newline must not grow memory
+            self._commands.clear()
+        return len(data)
+
+    def command(self, text: str) -> None:
+        if not text:
+            return
+        if text == "?":
+            self._emit_info()
+            return
+        if text[0] in "+-" and len(text) > 1:
+            target, _, amount = text[1:].partition("=")
+            try:
+                if target == "*" and text[0] == "-":
+                    for name in self.touches.held():
+                        self.press(name, False)
+                    return
+                strength = float(amount) if amount else 1.0
+                if not 0.0 < strength <= 3.0:
+                    raise UserError("strength must be above 0 and at most 3")
+                self.press(target, text[0] == "+", strength)
+            except (UserError, ValueError) as exc:
+                self._note(f"error: {text!r}: {exc}")
+            return
+        self._note(f"error: unknown command {text!r}; commands: ?, +PAD, +PAD=STRENGTH, -PAD, -*")
+
+    def press(self, channel: str | int, pressed: bool = True, strength: float = 1.0) -> None:
+        """Put a finger on a pad (or lift it) from the next frame on."""
+        ch = self.channel(channel)
+        now = max(self.generated_s, min(self.sim_time_s, self.generated_s + 1.0 / self.spec.rate_hz))
+        if pressed:
+            self.touches.press(ch, now, strength)
+        else:
+            self.touches.release(ch, now)
+
+    def held(self) -> list[str]:
+        return self.touches.held()
+
+    def scripted_touches(self, until_s: float | None = None) -> list[Contact]:
+        """Ground truth: every contact (script, random, presses, stuck keys) started before `until_s`.
+
+        Defaults to the time generated so far.
+        """
+        return self.touches.truth(self.generated_s if until_s is None else until_s)
+
+
+def _rewidth(readings: np.ndarray, width: int) -> np.ndarray:
+    """A board reconfigured to `width` channels: fewer drop off the end, extra ones repeat the last."""
+    ch = readings.shape[1]
+    if width <= ch:
+        return readings[:, :width]
+    extra = np.repeat(readings[:, -1:], width - ch, axis=1)
+    return np.concatenate([readings, extra], axis=1)
+
+
+def _garble(line: bytes, pick: float, checksum: bool) -> bytes:
+    """Change one byte of the payload (never the LF, never the checksum suffix) to another digit."""
+    end = line.rfind(b"*") if checksum and b"*" in line else len(line)
+    if end <= 1:
+        return line
+    pos = 1 + int(pick * (end - 1)) % (end - 1)
+    old = line[pos]
+    new = ord("0") + (old - ord("0") + 1 + int(pick * 1000) % 9) % 10 if 48 <= old <= 57 else ord("5")
+    return line[:pos] + bytes([new]) + line[pos + 1:]

@@ -1,0 +1,190 @@
+"""`padtune estimate`: predict a pad's signal and SNR behind an overlay, before any board exists.
+
+A thin shell over `devices.estimate`: it turns options (or a pad of a board file) into an
+`EstimateInput`, and prints a table on a terminal, plain lines when piped, or JSON with `--json`.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+
+from devices import physics
+from devices.boards import load_board
+from devices.estimate import DEFAULT_COMPONENTS, Estimate, EstimateInput, estimate
+from devices.materials import MATERIALS, get_material
+from devices.methods import FILE_KEYS, method_from_table
+from protocol.errors import UserError
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    p = subparsers.add_parser(
+        "estimate", help="predict finger signal, count change and SNR behind an overlay",
+        description="Predict the finger's capacitance change, the count change and the SNR of a pad behind "
+        "an overlay, with the spread the material's permittivity range gives. Start from a board file's "
+        "pad (--board, --pad) or from scratch; any option overrides.",
+    )
+    p.add_argument("--board", help="take pad, overlay, method and noise from this board (name or .toml)")
+    p.add_argument("--pad", dest="pad_name", help="which pad of --board (default: its first)")
+    p.add_argument("--pad-mm", help="rectangular pad size, WxH in mm (e.g. 12x12) or one side for a square")
+    p.add_argument("--pad-diameter-mm", type=float, help="round pad diameter in mm")
+    p.add_argument("--parasitic-pf", type=float, help="pad parasitic capacitance in pF (default: estimated)")
+    p.add_argument("--material", help=f"overlay material: {', '.join(MATERIALS)}")
+    p.add_argument("--thickness-mm", type=float, help="overlay thickness in mm")
+    p.add_argument("--air-gap-mm", type=float, help="air gap between pad and overlay in mm (default 0)")
+    p.add_argument("--finger-mm", type=float, help="fingertip contact diameter in mm (default 10)")
+    p.add_argument("--body-pf", type=float, help="body capacitance to ground in pF (default 200, standing)")
+    p.add_argument("--method", choices=sorted(FILE_KEYS), help="conversion method (default charge_time)")
+    p.add_argument("--set", action="append", default=[], metavar="KEY=VALUE",
+                   help="a method component in file units, e.g. r_ohm=1e6, timing_pf=10, adc_bits=12 "
+                   "(repeatable; see devices/README.md)")
+    p.add_argument("--noise-pf", type=float, help="rms capacitance noise at the pad in pF (default 0.02)")
+    p.add_argument("--noise-counts", type=float, help="rms noise after conversion in counts (default 0)")
+    p.add_argument("--hum-pf", type=float, help="mains hum amplitude at the pad in pF (default 0)")
+    p.add_argument("--json", action="store_true", help="print the estimate as JSON")
+    p.set_defaults(func=run)
+
+
+def _positive(value: float | None, option: str) -> float | None:
+    if value is not None and not value > 0:
+        raise UserError(f"{option} must be above zero, got {value:g}")
+    return value
+
+
+def _pad_area_m2(args: argparse.Namespace) -> float | None:
+    if args.pad_mm and args.pad_diameter_mm:
+        raise UserError("give either --pad-mm or --pad-diameter-mm, not both")
+    if args.pad_diameter_mm is not None:
+        return physics.pad_area_m2("circle", diameter_m=_positive(args.pad_diameter_mm, "--pad-diameter-mm")
+                                   * 1e-3)
+    if args.pad_mm:
+        parts = args.pad_mm.lower().split("x")
+        try:
+            sides = [float(s) for s in parts]
+        except ValueError:
+            sides = []
+        if len(sides) not in (1, 2) or min(sides) <= 0:
+            raise UserError(f"--pad-mm {args.pad_mm!r}: write the size as WxH in mm, e.g. 12x12, or one side")
+        w, h = sides[0], sides[-1]
+        return w * h * 1e-6
+    return None
+
+
+def _components(args: argparse.Namespace, kind: str, base: dict[str, float]) -> dict[str, float]:
+    table = dict(base)
+    for item in args.set:
+        key, sep, raw = item.partition("=")
+        try:
+            table[key.strip()] = float(raw)
+        except ValueError:
+            raise UserError(f"--set {item!r}: write KEY=NUMBER, e.g. r_ohm=1e6") from None
+        if not sep:
+            raise UserError(f"--set {item!r}: write KEY=NUMBER, e.g. r_ohm=1e6")
+    return table
+
+
+def build_input(args: argparse.Namespace) -> EstimateInput:
+    area = parasitic = material = thickness = method = None
+    air_gap, finger, body = 0.0, physics.FINGER_CONTACT_DIAMETER_M, physics.BODY_STANDING_F
+    noise_pf, noise_counts, hum_pf = 0.02, 0.0, 0.0
+    kind = args.method
+    if args.board:
+        spec = load_board(args.board)
+        wanted = args.pad_name or spec.names[0]
+        pad = next((p for p in spec.pads if p.name == wanted), None)
+        if pad is None:
+            raise UserError(f"--pad {args.pad_name!r}: {spec.name} has pads {', '.join(spec.names)}")
+        area, parasitic = pad.area_m2, pad.parasitic_f
+        material, thickness, air_gap = spec.overlay.material, spec.overlay.thickness_m, spec.overlay.air_gap_m
+        finger, body = spec.finger.contact_diameter_m, spec.finger.body_f
+        noise_pf, noise_counts = spec.noise.white_pf, spec.noise.counts_rms
+        hum_pf = spec.noise.hum_pf * (1 + spec.noise.hum_harmonic2)
+        if kind is None or kind == spec.method.kind:
+            method = spec.method
+            kind = spec.method.kind
+    elif args.pad_name:
+        raise UserError("--pad names a pad of a board file: give --board too")
+    kind = kind or "charge_time"
+    if method is None or args.set:
+        base = DEFAULT_COMPONENTS[kind] if method is None else _file_units(method)
+        method = method_from_table(kind, _components(args, kind, base), where="--set")
+    area = _pad_area_m2(args) or area or 1.44e-4
+    if args.parasitic_pf is not None:
+        parasitic = _positive(args.parasitic_pf, "--parasitic-pf") * 1e-12
+    elif parasitic is None or _pad_area_m2(args):
+        parasitic = physics.pad_parasitic_f(area)
+    if args.material:
+        material = get_material(args.material)
+    if args.thickness_mm is not None:
+        thickness = _positive(args.thickness_mm, "--thickness-mm") * 1e-3
+    if material is None or thickness is None:
+        raise UserError("say what the overlay is: --material NAME --thickness-mm T (or --board NAME)")
+    if args.air_gap_mm is not None:
+        if args.air_gap_mm < 0:
+            raise UserError("--air-gap-mm cannot be negative")
+        air_gap = args.air_gap_mm * 1e-3
+    finger = (_positive(args.finger_mm, "--finger-mm") or finger * 1e3) * 1e-3
+    body = (_positive(args.body_pf, "--body-pf") or body * 1e12) * 1e-12
+    if args.noise_pf is not None:
+        noise_pf = max(0.0, args.noise_pf)
+    if args.noise_counts is not None:
+        noise_counts = max(0.0, args.noise_counts)
+    if args.hum_pf is not None:
+        hum_pf = max(0.0, args.hum_pf)
+    return EstimateInput(area, parasitic, material, thickness, method, air_gap, finger, body, noise_pf,
+                         noise_counts, hum_pf)
+
+
+def _file_units(method: object) -> dict[str, float]:
+    """The method's components back in file units (so --set can change one of a board's parts)."""
+    out = {}
+    for key, (arg, factor) in FILE_KEYS[method.kind].items():  # type: ignore[attr-defined]
+        out[key] = getattr(method, arg) / factor
+    return out
+
+
+def _lines(e: Estimate) -> list[tuple[str, str]]:
+    i = e.inputs
+    sign = "+" if e.polarity > 0 else "-"
+    return [
+        ("pad", f"{i['pad_area_mm2']:.1f} mm2, parasitic {i['parasitic_pf']:.1f} pF"),
+        ("overlay", f"{i['thickness_mm']:g} mm {i['material']} (er {i['er'][0]:g}, range {i['er'][1]:g}.."
+                    f"{i['er'][2]:g}; {i['er_source']})" + (f", air gap {i['air_gap_mm']:g} mm"
+                                                            if i["air_gap_mm"] else "")),
+        ("finger", f"{i['finger_diameter_mm']:g} mm contact, body {i['body_pf']:g} pF"),
+        ("method", f"{i['method_detail']} (touch {sign})"),
+        ("finger adds", f"{e.finger_pf.nominal:.3f} pF  ({e.finger_pf.low:.3f} .. {e.finger_pf.high:.3f})"),
+        ("idle reading", f"{e.idle_counts:.0f} counts, {e.counts_per_pf:.1f} counts per pF"),
+        ("count change", f"{e.delta_counts.nominal:+.1f}  ({e.delta_counts.low:+.1f} .. "
+                         f"{e.delta_counts.high:+.1f})"),
+        ("noise", f"{e.noise_counts_rms:.2f} counts rms (white {i['noise_pf']:g} pF rms, "
+                  f"hum {i['hum_pf']:g} pF, after conversion {i['noise_counts']:g} counts)"),
+        ("SNR", f"{e.snr.nominal:.1f}  ({e.snr.low:.1f} .. {e.snr.high:.1f})"),
+        ("verdict", e.verdict),
+        *[("note", n) for n in e.notes],
+    ]
+
+
+def run(args: argparse.Namespace) -> int:
+    result = estimate(build_input(args))
+    if args.json:
+        print(json.dumps(result.as_dict(), indent=2))
+        return 0
+    rows = _lines(result)
+    if sys.stdout.isatty() and not os.environ.get("NO_COLOR"):
+        from rich.console import Console
+        from rich.table import Table
+
+        table = Table(show_header=False, box=None, padding=(0, 2))
+        table.add_column(style="bold")
+        table.add_column()
+        for k, v in rows:
+            table.add_row(k, v)
+        Console().print(table)
+    else:
+        width = max(len(k) for k, _ in rows)
+        for k, v in rows:
+            print(f"{k:<{width}}  {v}")
+    return 0
