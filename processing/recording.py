@@ -352,36 +352,13 @@ def _parse_pairs(body: str) -> tuple[dict[str, str], str]:
 
 
 def info_from_fields(fields: dict[str, str], t_s: float) -> BoardInfo:
-    """A BoardInfo from an info line's raw fields, read as protocol v1 defines them (PROTOCOL.md)."""
+    """A BoardInfo from an info line's raw fields, parsed by the protocol layer (PROTOCOL.md)."""
+    from protocol.info import InfoError, parse_info
 
-    def as_int(key: str) -> int | None:
-        try:
-            return int(fields[key]) if key in fields else None
-        except ValueError:
-            return None
-
-    rate: float | None = None
-    if "rate" in fields:
-        try:
-            rate = float(fields["rate"])
-        except ValueError:
-            rate = None
-    names = tuple(n for n in fields.get("names", "").split(",") if n)
-    signs = [s.strip() for s in fields.get("polarity", "").split(",")]
-    polarity = tuple(1 if s == "+" else -1 for s in signs if s in ("+", "-"))
-    return BoardInfo(
-        t_s=t_s,
-        fields=dict(fields),
-        proto=as_int("proto"),
-        board=fields.get("board"),
-        channels=as_int("channels"),
-        rate_hz=rate,
-        names=names,
-        method=fields.get("method"),
-        polarity=polarity,
-        fw=fields.get("fw"),
-        new_session="proto" in fields,
-    )
+    try:
+        return parse_info(dict(fields), t_s, cross_check=False)
+    except InfoError as exc:
+        raise ValueError(str(exc)) from None
 
 
 class _Builder:

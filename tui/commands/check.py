@@ -1,0 +1,126 @@
+"""`padtune check PORT_OR_URL --profile F`: a production test of one unit, with a pass/fail exit code.
+
+Hands off for `--duration` seconds (alive, noise, stuck), then with `--touch` each key in turn. Prints
+a pass/fail table (or one JSON report with `--json`); exit 0 when every channel passes, 1 otherwise,
+2 for a usage or input error. See `tui.headless.production` for what each check means.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import time
+from typing import Any
+
+from processing.session import Session
+from protocol.errors import UserError
+from tui.headless.output import channel_table, make_console
+from tui.headless.ports import StopFlag, add_port_args, load_profile_arg, open_link, seconds
+from tui.headless.production import UnitProbe, evaluate
+
+TICK_S = 0.02
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser(
+        "check", help="production test of one unit against a profile's acceptance limits",
+        description="Check one unit: every channel alive (baseline inside the profile's range: no open or "
+        "shorted pad), noise below the limit, no key stuck; with --touch, each key is asked for in turn "
+        "and its SNR checked. Exit 0 pass, 1 fail, 2 usage or input error.")
+    add_port_args(p)
+    p.add_argument("--profile", metavar="F", required=True, help="profile TOML with the [limits] to check")
+    p.add_argument("--duration", metavar="S", type=seconds, default=3.0,
+                   help="hands-off measuring time in seconds (default %(default)s)")
+    p.add_argument("--touch", action="store_true", help="then ask for each key in turn and check its SNR")
+    p.add_argument("--touch-timeout", metavar="S", type=seconds, default=10.0,
+                   help="with --touch: seconds to wait for each key (default %(default)s)")
+    p.add_argument("--json", action="store_true", help="print the report as one JSON object")
+    p.add_argument("--report", metavar="FILE.html", help="also write an HTML report with plots")
+    p.set_defaults(func=run)
+
+
+def _poll(link: Any, probe: UnitProbe, until_s: float, stop: StopFlag, done: Any = None) -> None:
+    while not stop.stopped and time.monotonic() < until_s:
+        probe.feed(link.drain())
+        if done is not None and done():
+            return
+        time.sleep(TICK_S)
+
+
+def _touch_phase(link: Any, probe: UnitProbe, names: list[str], timeout_s: float, stop: StopFlag,
+                 say: Any) -> None:
+    probe.phase = "touch"
+    for c, name in enumerate(names):
+        if c in probe.done_keys:
+            continue
+        say(f"touch and hold {name}, then let go")
+        deadline = time.monotonic() + timeout_s
+        _poll(link, probe, deadline, stop, lambda c=c: c in probe.done_keys)
+        say(f"  {name}: {'ok' if c in probe.done_keys else 'no touch seen'}")
+        if stop.stopped:
+            return
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.report:
+        from tui.report import require_matplotlib
+
+        require_matplotlib()
+    profile = load_profile_arg(args.profile)
+    console = make_console(stderr=True)
+    session = Session(profile)
+    link = open_link(args.port, args.baud)
+    origin = time.monotonic()
+    probe = UnitProbe(session, origin)
+    try:
+        with StopFlag() as stop:
+            _poll(link, probe, origin + args.duration, stop)
+            if session.engine is None:
+                raise UserError(f"no frames from {args.port} in {args.duration:g} s: check the cable, "
+                                "the port and the baud rate")
+            names = list(session.names)
+            if profile is not None and profile.channels != session.channels:
+                raise UserError(f"the board has {session.channels} channels, the profile "
+                                f"{profile.channels}: use the profile made for this board")
+            if args.touch:
+                _touch_phase(link, probe, names, args.touch_timeout, stop, lambda m: console.print(m))
+            if stop.stopped:
+                raise UserError("check interrupted: no verdict")
+    finally:
+        link.stop()
+    polarity = session.engine.pol.tolist()
+    verdicts = evaluate(probe, profile.limits, names, polarity, args.touch)
+    passed = all(v.passed for v in verdicts)
+    report = {"type": "check", "t": round(time.monotonic() - origin, 3), "passed": passed,
+              "port": args.port, "board": session.info.board if session.info else None,
+              "profile": args.profile, "duration_s": args.duration, "touch": args.touch,
+              "limits": {k: getattr(profile.limits, k) for k in profile.limits.__dataclass_fields__},
+              "channels": [v.as_dict() for v in verdicts]}
+    if args.json:
+        sys.stdout.write(json.dumps(report) + "\n")
+    else:
+        _print_table(verdicts, passed, args.touch)
+    if args.report:
+        from tui.report.check_report import write_check_report
+
+        write_check_report(args.report, report, probe, session)
+    return 0 if passed else 1
+
+
+def _print_table(verdicts: list, passed: bool, touch: bool) -> None:
+    out = make_console()
+    rows = []
+    for v in verdicts:
+        row = v.as_dict()
+        row["verdict"] = "PASS" if v.passed else "FAIL"
+        row["reason"] = "; ".join(v.reasons) or "-"
+        rows.append(row)
+    columns = [("name", "key"), ("verdict", "verdict"), ("baseline", "baseline"), ("noise_pp", "noise pp"),
+               ("noise_rms", "noise rms")]
+    if touch:
+        columns += [("signal", "signal"), ("snr", "SNR")]
+    columns.append(("reason", "reason"))
+    out.print(channel_table(rows, columns, plain=not out.is_terminal))
+    failed = [v.name for v in verdicts if not v.passed]
+    out.print("PASS: every channel passed" if passed else f"FAIL: {', '.join(failed)}")

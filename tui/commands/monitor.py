@@ -1,0 +1,72 @@
+"""`padtune monitor PORT_OR_URL`: live detection without the full screen (lines, or JSON Lines)."""
+
+from __future__ import annotations
+
+import argparse
+import time
+
+from processing.recording import RecordingWriter
+from processing.session import Session
+from tui.headless.output import make_output
+from tui.headless.ports import (
+    StopFlag,
+    add_port_args,
+    load_profile_arg,
+    open_link,
+    pump,
+    quiet_broken_pipe,
+    seconds,
+)
+from tui.headless.runner import DetectionRun
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser(
+        "monitor", help="live detection as text lines or JSON Lines (no full screen)",
+        description="Run detection on a board and print touches, releases and link events as they happen: "
+        "readable lines on a terminal, plain text when piped, JSON Lines with --json (see README, "
+        "'Headless use'). Ends after --duration, on Ctrl-C or SIGTERM, always with a summary.")
+    add_port_args(p)
+    p.add_argument("--profile", metavar="F", help="profile TOML with the detection settings")
+    p.add_argument("--json", action="store_true", help="write JSON Lines (one object per line)")
+    p.add_argument("--duration", metavar="S", type=seconds,
+                   help="stop after S seconds (default: run until stopped)")
+    p.add_argument("--every", metavar="S", type=seconds,
+                   help="print a status of every channel every S seconds")
+    p.add_argument("--record", metavar="FILE", help="also write a recording (CSV) of the same run to FILE")
+    p.add_argument("--force", action="store_true", help="with --record: overwrite FILE if it exists")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    return quiet_broken_pipe(lambda: _run(args))
+
+
+def _run(args: argparse.Namespace) -> int:
+    profile = load_profile_arg(args.profile)
+    clock = time.monotonic
+    link = open_link(args.port, args.baud, clock)
+    origin = clock()
+    recorder = None
+    try:
+        if args.record:
+            recorder = RecordingWriter(args.record, source=args.port, clock=clock, origin_t_s=origin,
+                                       overwrite=args.force)
+    except BaseException:
+        link.stop()
+        raise
+    run_ = DetectionRun(Session(profile), make_output(args.json), origin_t_s=origin, every_s=args.every)
+
+    def consume(events: list, now: float) -> None:
+        if recorder is not None:
+            recorder.write_events(events)
+        run_.feed(events, now)
+
+    try:
+        with StopFlag() as stop:
+            end = pump(link, consume, duration_s=args.duration, clock=clock, stop=stop, start_t_s=origin)
+    finally:
+        if recorder is not None:
+            recorder.close()
+    run_.finish(end)
+    return 0

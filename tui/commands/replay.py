@@ -1,0 +1,85 @@
+"""`padtune replay FILE`: run detection over a recording (or a raw capture) as if it were live.
+
+With `--profile` the detection runs with other settings than the ones recorded, which shows what would
+have happened: every touch found, the count per key and, when the recording has marks, the touches
+that fall outside them (false touches). Output is `monitor`'s, lines or JSON Lines.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+from collections.abc import Iterator
+
+from processing.recording import read_recording
+from processing.session import Session
+from protocol.events import Event, FrameBlock
+from tui.headless.output import make_output
+from tui.headless.ports import StopFlag, load_profile_arg, quiet_broken_pipe, seconds, speed_factor
+from tui.headless.runner import DetectionRun
+
+PACE_CHUNK_S = 0.05  # a paced replay hands frames over in slices of this much recorded time
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser(
+        "replay", help="run detection over a recording or a raw capture",
+        description="Feed a recording (padtune CSV) or a raw capture of protocol lines through detection "
+        "and print what it finds, like 'monitor'. Use --profile to try other settings; with marks in the "
+        "recording, touches outside them are counted as false touches.")
+    p.add_argument("file", metavar="FILE", help="recording (CSV) or raw capture of protocol lines")
+    p.add_argument("--profile", metavar="F", help="profile TOML with the detection settings to try")
+    p.add_argument("--speed", metavar="X", type=speed_factor, default=0.0,
+                   help="replay speed: 1 = real time, 4 = four times faster, 0 = as fast as possible "
+                        "(default)")
+    p.add_argument("--json", action="store_true", help="write JSON Lines (the format of 'monitor --json')")
+    p.add_argument("--every", metavar="S", type=seconds, help="a status every S seconds of recorded time")
+    p.add_argument("--rate", metavar="HZ", type=float,
+                   help="frame rate of a raw capture without an info line (default 100)")
+    p.set_defaults(func=run)
+
+
+def paced(events: list[Event], speed: float) -> Iterator[tuple[list[Event], float]]:
+    """(events, recorded time) in stream order; FrameBlocks split into slices when pacing."""
+    for event in events:
+        if isinstance(event, FrameBlock) and speed > 0 and len(event) > 1:
+            t = event.t_s
+            start = 0
+            while start < len(event):
+                stop = int(start + max(1, (t[start:] < t[start] + PACE_CHUNK_S).sum()))
+                yield [FrameBlock(t[start:stop], event.seq[start:stop], event.readings[start:stop],
+                                  event.first_index + start)], float(t[stop - 1])
+                start = stop
+        elif isinstance(event, FrameBlock):
+            yield [event], float(event.t_s[-1]) if len(event) else 0.0
+        else:
+            yield [event], float(event.t_s)
+
+
+def run(args: argparse.Namespace) -> int:
+    return quiet_broken_pipe(lambda: _run(args))
+
+
+def _run(args: argparse.Namespace) -> int:
+    profile = load_profile_arg(args.profile)
+    rec = read_recording(args.file, rate_hz=args.rate)
+    run_ = DetectionRun(Session(profile), make_output(args.json), origin_t_s=0.0, every_s=args.every,
+                        marks=rec.marks)
+    if rec.truncated:
+        run_.output.note(0.0, "the recording's last line was cut short (the writer was stopped mid-row)")
+    wall0 = time.monotonic()
+    first_t: float | None = None
+    last_t = 0.0
+    with StopFlag() as stop:
+        for batch, t_s in paced(rec.events, args.speed):
+            if stop.stopped:
+                break
+            if args.speed > 0:
+                first_t = t_s if first_t is None else first_t
+                delay = (t_s - first_t) / args.speed - (time.monotonic() - wall0)
+                if delay > 0:
+                    time.sleep(delay)
+            last_t = max(last_t, t_s)
+            run_.feed(batch, last_t)
+    run_.finish(last_t)
+    return 0

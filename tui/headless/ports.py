@@ -1,0 +1,143 @@
+"""Opening a port or URL for a headless command, option checking, and a clean way to stop.
+
+Everything a user can get wrong (a missing port, a busy one, a bad number) becomes a `UserError` or an
+argparse error with one clear line; a headless run stops cleanly on Ctrl-C, SIGTERM or a closed pipe.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import math
+import signal
+import sys
+import time
+from collections.abc import Callable
+from pathlib import Path
+from types import FrameType
+from typing import Any
+
+from protocol.errors import UserError
+
+DEFAULT_BAUD = 115200
+
+
+def seconds(text: str) -> float:
+    """argparse type: a positive, finite number of seconds."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
+    if not math.isfinite(value) or value <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
+    return value
+
+
+def speed_factor(text: str) -> float:
+    """argparse type: 0 (as fast as possible) or a positive speed factor."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a speed factor (1 = real time, 0 = flat out)") \
+            from None
+    if not math.isfinite(value) or value < 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be 0 (as fast as possible) or a positive factor")
+    return value
+
+
+def baud_rate(text: str) -> int:
+    if not text.isdigit() or int(text) <= 0:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a baud rate (a whole number such as 115200)")
+    return int(text)
+
+
+def add_port_args(p: argparse.ArgumentParser) -> None:
+    p.add_argument("port", metavar="PORT_OR_URL",
+                   help="serial device (/dev/ttyACM0, COM3) or pyserial URL (sim://greenhouse?speed=4, "
+                        "socket://host:port)")
+    p.add_argument("--baud", type=baud_rate, default=DEFAULT_BAUD, help="baud rate (default %(default)s)")
+
+
+def load_profile_arg(text: str | None) -> Any:
+    """The profile named on the command line, or None (ProfileError/UserError say what is wrong)."""
+    if text is None:
+        return None
+    from processing.profile import load_profile
+
+    path = Path(text).expanduser()
+    if not path.exists():
+        raise UserError(f"{path}: no such profile file: give an existing .toml profile")
+    if path.is_dir():
+        raise UserError(f"{path}: is a folder, not a profile file")
+    return load_profile(path)
+
+
+def open_link(target: str, baud: int, clock: Callable[[], float] = time.monotonic) -> Any:
+    """Open `target` once to turn a missing or busy port into a one-line error, then start the link."""
+    from protocol.link import Link, open_port
+
+    open_port(target, baud, 0.2).close()
+    link = Link(target, baud, clock=clock)
+    link.start()
+    return link
+
+
+class StopFlag:
+    """Set by SIGTERM (and SIGINT) so loops finish their summary instead of dying mid-line."""
+
+    def __init__(self) -> None:
+        self.stopped = False
+        self._old: dict[int, Any] = {}
+
+    def __enter__(self) -> StopFlag:
+        for sig in (signal.SIGINT, signal.SIGTERM):
+            # Outside the main thread (tests) signals cannot be caught: Ctrl-C then raises as usual.
+            with contextlib.suppress(ValueError):
+                self._old[sig] = signal.signal(sig, self._handle)
+        return self
+
+    def _handle(self, signum: int, frame: FrameType | None) -> None:
+        self.stopped = True
+
+    def __exit__(self, *exc: object) -> None:
+        for sig, old in self._old.items():
+            signal.signal(sig, old)
+
+
+def quiet_broken_pipe(func: Callable[[], int]) -> int:
+    """Run `func`; a reader that went away (`| head`) ends the command quietly."""
+    try:
+        return func()
+    except BrokenPipeError:
+        import os
+
+        # Point stdout at /dev/null so the interpreter's final flush does not complain again.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 0
+
+
+def pump(link: Any, consume: Callable[[list[Any], float], None], *, duration_s: float | None,
+         clock: Callable[[], float] = time.monotonic, stop: StopFlag | None = None,
+         tick_s: float = 0.02, start_t_s: float | None = None) -> float:
+    """Drain `link` every `tick_s` into `consume(events, now)` until the duration is over or a stop.
+
+    Returns the time the run ended. The link is stopped and drained once more at the end, so what
+    arrived before the stop is not lost.
+    """
+    start = clock() if start_t_s is None else start_t_s
+    deadline = None if duration_s is None else start + duration_s
+    try:
+        while not (stop and stop.stopped):
+            consume(link.drain(), clock())
+            now = clock()
+            if deadline is not None and now >= deadline:
+                break
+            time.sleep(tick_s if deadline is None else max(0.0, min(tick_s, deadline - now)))
+    except KeyboardInterrupt:
+        pass
+    finally:
+        link.stop()
+    end = clock()
+    consume(link.drain(), end)
+    return end

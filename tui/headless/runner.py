@@ -1,0 +1,176 @@
+"""The headless detection loop shared by `monitor` and `replay`: events in, output calls out.
+
+`DetectionRun.feed(events, now_t_s)` hands the events to the processing Session, turns detections and
+link events into `Output` calls (times in seconds since the run's origin), emits a status every
+`every_s` and counts what the summary needs. Counting from the events themselves (not from the link's
+statistics) makes a replay's summary match the live run's.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from processing.detections import GroupChange, Release, SliderChange, StuckRelease, Touch
+from processing.recording import Mark
+from processing.session import Session
+from protocol.events import BoardChanged, BoardInfo, Event, FaultKind, FrameBlock, LinkFault, LinkStatus, Note
+from tui.headless.output import Output
+
+# The link events named in the JSON format; faults not listed pass under their own kind names.
+_FAULT_EVENTS = {FaultKind.LOST: "lost", FaultKind.RESET: "reset", FaultKind.GARBLED: "garbled",
+                 FaultKind.BOARD_CHANGED: "board changed"}
+_SUMMARY_FAULTS = {FaultKind.LOST: "lost", FaultKind.GARBLED: "garbled",
+                   FaultKind.BAD_CHECKSUM: "bad_checksum", FaultKind.OVERLONG: "overlong",
+                   FaultKind.RESET: "resets"}
+
+
+def _num(value: float | None) -> float | None:
+    if value is None or not math.isfinite(value):
+        return None
+    return round(float(value), 3)
+
+
+def info_dict(info: BoardInfo) -> dict[str, Any]:
+    return {"board": info.board, "channels": info.channels, "rate_hz": info.rate_hz,
+            "names": list(info.names), "method": info.method,
+            "polarity": ["+" if p > 0 else "-" for p in info.polarity], "fw": info.fw,
+            "proto": info.proto, "fields": dict(info.fields)}
+
+
+@dataclass
+class FoundTouch:
+    """A touch as the run saw it (kept so tests and replays can compare runs)."""
+
+    channel: int
+    name: str
+    index: int
+    t: float
+    delta_counts: int
+    expected: bool | None = None  # against the recording's marks, None without marks
+
+
+@dataclass
+class DetectionRun:
+    session: Session
+    output: Output
+    origin_t_s: float = 0.0
+    every_s: float | None = None
+    marks: Sequence[Mark] = ()
+    mark_tolerance_s: float = 1.0
+    frames: int = 0
+    counts: dict[str, int] = field(default_factory=lambda: dict.fromkeys(_SUMMARY_FAULTS.values(), 0))
+    touches: list[FoundTouch] = field(default_factory=list)
+    _next_status_t: float | None = None
+    _board_changed_seen: bool = False
+
+    def name(self, channel: int) -> str:
+        names = self.session.names
+        return names[channel] if channel < len(names) else f"ch{channel}"
+
+    def feed(self, events: Iterable[Event], now_t_s: float) -> None:
+        for event in events:
+            self._event(event)
+        self.maybe_status(now_t_s)
+
+    def _rel(self, t_s: float) -> float:
+        return t_s - self.origin_t_s
+
+    def _event(self, event: Event) -> None:
+        if isinstance(event, FrameBlock):
+            self.frames += len(event)
+            for det in self.session.handle([event]):
+                self._detection(det)
+            return
+        self.session.handle([event])
+        t = self._rel(event.t_s)
+        if isinstance(event, BoardInfo):
+            self.output.hello(t, info_dict(event))
+        elif isinstance(event, Note):
+            self.output.note(t, event.text)
+        elif isinstance(event, LinkFault):
+            if event.kind in _SUMMARY_FAULTS:
+                self.counts[_SUMMARY_FAULTS[event.kind]] += event.count
+            if event.kind == FaultKind.BOARD_CHANGED and self._board_changed_seen:
+                self._board_changed_seen = False  # already told by the BoardChanged event
+                return
+            self.output.link(t, _FAULT_EVENTS.get(event.kind, event.kind.value), event.count, event.detail)
+        elif isinstance(event, BoardChanged):
+            self._board_changed_seen = True
+            self.output.link(t, "board changed", 1, f"{event.old_channels} -> {event.channels} channels")
+        elif isinstance(event, LinkStatus):
+            self.output.link(t, event.state.value, 1, event.detail)
+
+    def _detection(self, det: object) -> None:
+        if isinstance(det, Touch):
+            t = self._rel(det.t_s)
+            found = FoundTouch(det.channel, self.name(det.channel), det.index, t, det.delta_counts,
+                               self._expected(det.channel, t))
+            self.touches.append(found)
+            self.output.touch(t, found.name, det.index, det.delta_counts)
+        elif isinstance(det, Release | StuckRelease):
+            self.output.release(self._rel(det.t_s), self.name(det.channel), det.index, det.held_s,
+                                stuck=isinstance(det, StuckRelease))
+        elif isinstance(det, GroupChange | SliderChange):
+            pass  # groups and sliders show in the status rows of the TUI; not part of this format (v1)
+
+    def _expected(self, channel: int, t: float) -> bool | None:
+        """With marks: was this touch inside a marked touch of its key (or near a plain note mark)?"""
+        if not self.marks:
+            return None
+        name = self.name(channel)
+        opened: float | None = None
+        for m in sorted(self.marks, key=lambda m: m.t_s):
+            if m.kind == "touch-start" and m.channel == name:
+                opened = m.t_s
+            elif m.kind == "touch-end" and m.channel == name and opened is not None:
+                if opened - self.mark_tolerance_s <= t <= m.t_s:
+                    return True
+                opened = None
+            elif m.kind == "note" and abs(m.t_s - t) <= self.mark_tolerance_s:
+                return True
+        return False
+
+    def maybe_status(self, now_t_s: float) -> None:
+        if not self.every_s:
+            return
+        t = self._rel(now_t_s)
+        if self._next_status_t is None:
+            self._next_status_t = self.every_s
+        if t >= self._next_status_t:
+            self.output.status(t, self.status_rows())
+            while self._next_status_t <= t:
+                self._next_status_t += self.every_s
+
+    def status_rows(self) -> list[dict[str, Any]]:
+        rows = []
+        for r in self.session.rows():
+            q = r.quality
+            rows.append({"name": r.name, "reading": r.reading, "baseline": r.baseline_counts,
+                         "delta": r.delta_counts, "state": r.state.name.lower(),
+                         "noise": _num(q.noise.rms_counts) if q.noise else None, "snr": _num(q.snr_pp)})
+        return rows
+
+    def summary(self) -> dict[str, Any]:
+        channels = []
+        for r in self.session.rows():
+            q = r.quality
+            mine = [f for f in self.touches if f.channel == r.channel]
+            row: dict[str, Any] = {
+                "name": r.name, "index": r.channel, "touches": len(mine),
+                "noise_rms": _num(q.noise.rms_counts) if q.noise else None,
+                "noise_pp": _num(q.noise.pp_counts) if q.noise else None,
+                "snr": _num(q.snr_pp) if q.signal_counts is not None else None,
+            }
+            if self.marks:
+                row["false_touches"] = sum(1 for f in mine if f.expected is False)
+            channels.append(row)
+        return {"frames": self.frames, **self.counts, "channels": channels}
+
+    def finish(self, now_t_s: float) -> dict[str, Any]:
+        summary = self.summary()
+        self.output.summary(self._rel(now_t_s), summary)
+        self.output.close()
+        return summary
