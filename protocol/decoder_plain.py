@@ -1,0 +1,41 @@
+"""The plain reference decoder: one line at a time through `LineRules`, no numpy tricks.
+
+It is the yardstick the fast `protocol.decoder.Decoder` is proven against (same events, same
+statistics, for any input and any cuts), and the simplest reading of PROTOCOL.md in code.
+"""
+
+from __future__ import annotations
+
+from protocol.events import BoardInfo, Event, LinkStats
+from protocol.framing import Framer
+from protocol.rules import LineRules
+
+
+class PlainDecoder:
+    def __init__(self, max_line_bytes: int = 1024) -> None:
+        self._framer = Framer(max_line_bytes)
+        self._rules = LineRules(max_line_bytes)
+
+    @property
+    def stats(self) -> LinkStats:
+        return self._rules.stats
+
+    @property
+    def info(self) -> BoardInfo | None:
+        return self._rules.info
+
+    @property
+    def channels(self) -> int | None:
+        return self._rules.channels
+
+    def feed(self, data: bytes, t_s: float) -> list[Event]:
+        rules = self._rules
+        rules.begin(t_s)
+        rules.stats.bytes_in += len(data)
+        complete, overlong = self._framer.push(bytes(data))
+        if complete:
+            for line in complete[:-1].split(b"\n"):
+                rules.line(line)
+        if overlong is not None:
+            rules.overlong(overlong)
+        return rules.take_events()

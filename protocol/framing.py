@@ -1,0 +1,40 @@
+"""Cutting a byte stream into complete lines with bounded memory (shared by both decoders).
+
+The framer holds at most `max_line_bytes` of an unfinished line. A line that grows past the limit
+before its LF is reported once as overlong and everything up to the next LF is skipped, so memory
+stays bounded whatever arrives, and the result never depends on where the stream was cut.
+"""
+
+from __future__ import annotations
+
+
+class Framer:
+    def __init__(self, max_line_bytes: int = 1024) -> None:
+        self.max_line_bytes = max_line_bytes
+        self._partial = b""
+        self._skipping = False
+
+    @property
+    def buffered_bytes(self) -> int:
+        return len(self._partial)
+
+    def push(self, data: bytes) -> tuple[bytes, int | None]:
+        """Take more bytes; return (complete lines ending in LF, length of a new overlong tail or None).
+
+        The caller handles the complete lines first, then reports the overlong tail if there is one.
+        """
+        if self._skipping:
+            lf = data.find(b"\n")
+            if lf < 0:
+                return b"", None
+            self._skipping = False
+            data = data[lf + 1 :]
+        if self._partial:
+            data = self._partial + data
+        last = data.rfind(b"\n")
+        complete, tail = (b"", data) if last < 0 else (data[: last + 1], data[last + 1 :])
+        if len(tail) > self.max_line_bytes:
+            self._partial, self._skipping = b"", True
+            return complete, len(tail)
+        self._partial = tail
+        return complete, None
