@@ -185,7 +185,9 @@ class Measures:
         values = self.released_deltas(channel)
         if len(values) < MIN_NOISE_SAMPLES:
             return None
-        return NoiseStats(float(np.std(values)), float(values.max() - values.min()), len(values))
+        centred = values - values.mean()
+        rms = float(np.sqrt(np.mean(centred * centred)))  # population standard deviation, mean removed
+        return NoiseStats(rms, float(values.max() - values.min()), len(values))
 
     def touch_signal(self, channel: int) -> float | None:
         n = min(int(self._touched_written[channel]), self._touched.shape[0])

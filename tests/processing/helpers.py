@@ -1,0 +1,28 @@
+"""Helpers for processing tests: build FrameBlocks straight from numpy arrays."""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+
+import numpy as np
+
+from protocol.events import FrameBlock
+
+
+def block(readings: np.ndarray, first_index: int = 0, rate_hz: float = 100.0) -> FrameBlock:
+    readings = np.asarray(readings, np.int64)
+    if readings.ndim == 1:
+        readings = readings[:, None]
+    n = readings.shape[0]
+    t_s = (first_index + np.arange(n)) / rate_hz
+    return FrameBlock(t_s, np.full(n, -1, np.int64), readings, first_index)
+
+
+def blocks(readings: np.ndarray, sizes: list[int], rate_hz: float = 100.0) -> Iterator[FrameBlock]:
+    """Split a (frames, channels) array into consecutive blocks of the given sizes (cycled)."""
+    readings = np.asarray(readings, np.int64)
+    pos, k = 0, 0
+    while pos < len(readings):
+        n = max(1, sizes[k % len(sizes)])
+        yield block(readings[pos:pos + n], pos, rate_hz)
+        pos, k = pos + n, k + 1
