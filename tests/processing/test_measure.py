@@ -1,0 +1,102 @@
+"""Measures against outside references: numpy.std, statistics.pstdev, numpy FFT of synthetic sines."""
+
+import statistics
+
+import numpy as np
+import pytest
+
+from processing.detections import KeyState
+from processing.measure import History, Measures, VerdictBounds, alias_hz, explain_peak, spectrum_peak
+
+RELEASED, TOUCHED = int(KeyState.RELEASED), int(KeyState.TOUCHED)
+
+
+def feed(m, deltas, states, t0=0.0):
+    deltas = np.asarray(deltas, np.int64).reshape(len(deltas), -1)
+    states = np.asarray(states, np.int8).reshape(len(states), -1)
+    t = t0 + np.arange(len(deltas)) / m.rate_hz
+    m.ingest(t, deltas + 1000, deltas, states)
+
+
+def test_noise_rms_matches_numpy_std_and_pstdev():
+    rng = np.random.default_rng(3)
+    m = Measures(1, rate_hz=100.0, window_s=2.0)
+    d = rng.integers(-9, 10, 1000)
+    feed(m, d, np.zeros(1000))
+    noise = m.noise(0)
+    window = d[-200:]  # 2 s at 100 Hz
+    assert noise.samples == 200
+    assert noise.rms_counts == pytest.approx(np.std(window), rel=1e-12)  # reference: numpy.std
+    assert noise.rms_counts == pytest.approx(statistics.pstdev(window.tolist()), rel=1e-12)  # stdlib
+    assert noise.pp_counts == window.max() - window.min()
+
+
+def test_noise_skips_touched_frames_and_signal_is_their_median():
+    m = Measures(1, rate_hz=100.0, window_s=1.0)
+    deltas = [1, -1] * 50 + [200, 210, 190, 205, 3000] + [2, -2] * 50
+    states = [RELEASED] * 100 + [TOUCHED] * 5 + [RELEASED] * 100
+    feed(m, deltas, states)
+    q = m.quality(0)
+    assert q.noise.samples == 100 and q.noise.pp_counts == 4  # the newest 100 released frames
+    assert q.signal_counts == 205  # median of 190, 200, 205, 210, 3000
+    assert q.snr_pp == pytest.approx(205 / 4) and q.snr_rms == pytest.approx(205 / 2)
+    assert q.verdict == "solid"
+
+
+def test_verdict_bounds_configurable():
+    # Common practice, no source: below 5 not reliable, 5-10 marginal, above 10 robust.
+    b = VerdictBounds()
+    assert [b.verdict(x) for x in (None, 4.9, 5.0, 10.0, 10.1)] == ["unmeasured", "weak", "marginal",
+                                                                     "marginal", "solid"]
+    assert VerdictBounds(weak_below=3, solid_above=6).verdict(7) == "solid"
+
+
+@pytest.mark.parametrize(("tone_hz", "shows_hz"), [(60.0, 40.0), (150.0, 50.0), (120.0, 20.0), (30.0, 30.0)])
+def test_alias_frequency_against_fft_of_sampled_sine(tone_hz, shows_hz):
+    # Reference: a numpy FFT of the sampled sine peaks at the alias; fs 100 Hz: 60 -> 40, 150 -> 50.
+    fs, n = 100.0, 1000
+    t = np.arange(n) / fs
+    x = np.sin(2 * np.pi * tone_hz * t + 0.3)
+    peak_bin = int(np.argmax(np.abs(np.fft.rfft(x))[1:])) + 1
+    assert peak_bin * fs / n == pytest.approx(shows_hz)
+    assert alias_hz(tone_hz, fs) == pytest.approx(shows_hz)
+
+
+def test_spectrum_peak_names_the_mains_source():
+    fs, n = 100.0, 400
+    t = np.arange(n) / fs
+    rng = np.random.default_rng(1)
+    x = 6 * np.sin(2 * np.pi * 60 * t) + rng.normal(0, 0.5, n)  # 60 Hz mains seen at 40 Hz
+    peak = spectrum_peak(x, fs)
+    assert peak.freq_hz == pytest.approx(40.0) and peak.mains_hz == 60.0 and peak.harmonic == 1
+    assert peak.amplitude_counts == pytest.approx(6, rel=0.1)
+    assert "60 Hz" in peak.describe()
+    x = 5 * np.sin(2 * np.pi * 13.0 * t)
+    peak = spectrum_peak(x, fs)
+    assert peak.freq_hz == pytest.approx(13.0) and peak.mains_hz is None
+    # at fs 100 Hz: 120 Hz (second harmonic of 60 Hz) shows at 20 Hz; 50 Hz sits at Nyquist itself
+    assert explain_peak(20.0, 100.0, tolerance_hz=0.25) == (60.0, 2, 20.0)
+    assert explain_peak(50.0, 100.0, tolerance_hz=0.25) == (50.0, 1, 50.0)
+    assert explain_peak(33.0, 100.0, tolerance_hz=0.25) is None
+
+
+def test_spectrum_from_measures_uses_released_run():
+    m = Measures(1, rate_hz=100.0, window_s=4.0)
+    t = np.arange(400) / 100
+    feed(m, np.round(8 * np.sin(2 * np.pi * 40 * t)).astype(int), np.zeros(400))
+    assert m.spectrum(0).freq_hz == pytest.approx(40.0)
+    feed(m, [0] * 10, [TOUCHED] * 10, t0=4.0)
+    assert m.spectrum(0) is None  # nothing released since the touch
+
+
+def test_history_memory_is_bounded_and_ordered():
+    h = History(2, 100)
+    before = h.deltas.nbytes
+    for k in range(50):
+        n = 37 if k % 3 else 260
+        rows = np.arange(h.written, h.written + n)
+        h.append(rows.astype(float), np.stack([rows, -rows], 1), np.stack([rows, -rows], 1), np.zeros((n, 2)))
+    assert h.deltas.nbytes == before and len(h) == 100
+    t, r, d, _ = h.last(100)
+    assert np.array_equal(d[:, 0], np.arange(h.written - 100, h.written))
+    assert np.array_equal(t, d[:, 0].astype(float)) and np.array_equal(r, d)

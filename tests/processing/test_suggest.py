@@ -1,0 +1,64 @@
+"""Tuning suggestions. The rules are common practice, no source (see processing/suggest.py)."""
+
+import numpy as np
+
+from processing.engine import Engine
+from processing.settings import ChannelSettings
+from processing.suggest import Refusal, Suggestion, longest_run, suggest
+from tests.processing.helpers import block
+
+
+def test_clean_key_gets_half_the_signal_with_reasons():
+    rng = np.random.default_rng(5)
+    quiet = rng.integers(-5, 6, 500)
+    held = 300 + rng.integers(-10, 11, 300)
+    s = suggest(quiet, held, rate_hz=100.0)
+    assert isinstance(s, Suggestion)
+    assert s.threshold_counts == 150  # half of the median touch delta (300)
+    assert s.hysteresis_counts == round(150 * 0.15)
+    assert 2 <= s.touch_debounce_frames <= 5 and 2 <= s.release_debounce_frames <= 5
+    assert set(s.reasons) == {"threshold_counts", "hysteresis_counts", "touch_debounce_frames",
+                              "release_debounce_frames"}
+    assert "half" in s.reasons["threshold_counts"]
+    assert not s.apply(ChannelSettings()).problems()
+
+
+def test_threshold_raised_above_noise_when_half_is_too_low():
+    quiet = np.array([0, 40, -40, 10] * 50)  # top 40, pp 80: floor 120
+    held = np.full(100, 200)  # half = 100 < 120 <= 150 (3/4 of the signal)
+    s = suggest(quiet, held, rate_hz=100.0)
+    assert isinstance(s, Suggestion) and s.threshold_counts == 120
+    assert s.threshold_counts - s.hysteresis_counts > 40  # the release level stays above the noise top
+
+
+def test_refuses_when_the_signal_does_not_clear_the_noise():
+    quiet = np.array([0, 40, -40, 10] * 50)
+    r = suggest(quiet, np.full(100, 130), rate_hz=100.0)
+    assert isinstance(r, Refusal) and "does not clear the noise" in r.reason
+    r = suggest(quiet, np.full(100, 30), rate_hz=100.0)
+    assert isinstance(r, Refusal) and "does not rise above" in r.reason
+    r = suggest(quiet[:5], np.full(100, 300), rate_hz=100.0)
+    assert isinstance(r, Refusal) and "at least 16" in r.reason
+
+
+def test_debounce_spans_the_longest_burst_but_is_capped():
+    quiet = np.zeros(400, np.int64)
+    quiet[::7] = 1
+    quiet[100:104] = 30  # a 4-frame burst
+    s = suggest(quiet, np.full(100, 400), rate_hz=1000.0)
+    assert s.touch_debounce_frames == 5 and "4 frames" in s.reasons["touch_debounce_frames"]
+    quiet[200:290] = 30  # a 90-frame burst: capped at 50 ms = 5 frames at 100 Hz
+    s = suggest(quiet, np.full(100, 400), rate_hz=100.0)
+    assert s.touch_debounce_frames == 5 and "capped" in s.reasons["touch_debounce_frames"]
+    assert longest_run(np.array([1, 1, 0, 1, 1, 1, 0], bool)) == 3
+
+
+def test_suggestion_detects_the_touches_it_was_made_from():
+    rng = np.random.default_rng(9)
+    quiet = rng.normal(0, 6, 1000).round().astype(int)
+    held = (220 + rng.normal(0, 8, 400)).round().astype(int)
+    s = suggest(quiet, held, rate_hz=100.0)
+    e = Engine(1, [s.apply(ChannelSettings())], [1])
+    trace = np.concatenate([[5000], 5000 + quiet, 5000 + held, 5000 + quiet[:50]])
+    events = e.process(block(trace))
+    assert [type(ev).__name__ for ev in events] == ["Rebaselined", "Touch", "Release"]
