@@ -331,7 +331,11 @@ def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
 
 
 def _trimmed(delta: np.ndarray, runs: list[tuple[int, int]], trim: int) -> np.ndarray:
-    parts = [delta[a + trim: b - trim] for a, b in runs if b - a > 2 * trim]
+    """The touched frames without the finger's arrival and departure (at most a fifth of each side)."""
+    parts = []
+    for a, b in runs:
+        cut = min(trim, (b - a) // 5)
+        parts.append(delta[a + cut: b - cut])
     return np.concatenate(parts) if parts else np.zeros(0)
 
 
@@ -344,7 +348,7 @@ def find_touches(t_s: np.ndarray, readings: np.ndarray, names: Sequence[str], po
     for c in range(width):
         v = pol[c] * readings[:, c].astype(np.float64)
         deltas[:, c] = v - estimate_baseline(v, rate_hz)
-    trim = max(1, round(0.1 * rate_hz))
+    trim = max(1, round(0.05 * rate_hz))
     marked = _marked_stretches(t_s, marks, names)
     found: dict[int, list[tuple[int, int]]] = {}
     for c in range(width):

@@ -1,0 +1,84 @@
+"""`padtune tune FILE -o PROFILE`: suggested threshold, hysteresis and debounce per key from a recording.
+
+The touched stretches come from the recording's marks (touch-start/touch-end per key, quiet-start/
+quiet-end) or, without marks, are found in the deltas. The result is written as a profile (atomic,
+the old file kept as .bak) and printed as a table, with the reason behind every suggestion or refusal.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from processing.profile import save_profile
+from processing.recording import read_recording
+from protocol.errors import UserError
+from tui.headless.output import channel_table, make_console
+from tui.headless.ports import load_profile_arg
+from tui.headless.tuning import TuneResult, result_rows, tune_recording
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser(
+        "tune", help="suggest settings per key from a recording and write a profile",
+        description="Measure noise and touch signal of every key in a recording (marks, or touches found "
+        "in the data), suggest threshold, hysteresis and debounce with their reasons, write the profile "
+        "and print a table. Keys without a usable touch keep their settings and say why.")
+    p.add_argument("file", metavar="FILE", help="recording (CSV) or raw capture of protocol lines")
+    p.add_argument("-o", "--output", metavar="PROFILE", required=True, help="profile TOML to write")
+    p.add_argument("--profile", metavar="F",
+                   help="start from this profile (groups, sliders, limits, other settings are kept)")
+    p.add_argument("--report", metavar="FILE.html", help="also write an HTML report with plots")
+    p.add_argument("--json", action="store_true", help="print the results as one JSON object")
+    p.add_argument("--rate", metavar="HZ", type=float, help="frame rate of a raw capture without info line")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    out = Path(args.output)
+    if out.suffix.lower() != ".toml":
+        raise UserError(f"{out}: a profile is a TOML file; end the name in .toml")
+    if out.is_dir():
+        raise UserError(f"{out}: is a folder; give the profile's file name")
+    if args.report:
+        from tui.report import require_matplotlib
+
+        require_matplotlib()
+    base = load_profile_arg(args.profile)
+    rec = read_recording(args.file, rate_hz=args.rate)
+    result = tune_recording(rec, base)
+    save_profile(result.profile, out)
+    if args.report:
+        from tui.report.tune_report import write_tune_report
+
+        write_tune_report(args.report, result)
+    if args.json:
+        sys.stdout.write(json.dumps({"type": "tune", "source": result.source, "profile": str(out),
+                                     "from_marks": result.from_marks, "rate_hz": result.rate_hz,
+                                     "frames": result.frames, "channels": result_rows(result)}) + "\n")
+    else:
+        print_result(result, out)
+    return 0
+
+
+def print_result(result: TuneResult, out: Path) -> None:
+    console = make_console()
+    plain = not console.is_terminal
+    rows = result_rows(result)
+    columns = [("name", "key"), ("touches", "touches"), ("noise_pp", "noise pp"), ("noise_rms", "noise rms"),
+               ("signal", "signal"), ("snr_pp", "SNR pp"), ("snr_rms", "SNR rms"), ("verdict", "verdict"),
+               ("threshold", "threshold"), ("hysteresis", "hyst"), ("touch_debounce", "touch db"),
+               ("release_debounce", "release db")]
+    how = "from the recording's marks" if result.from_marks else "found in the deltas"
+    console.print(channel_table(rows, columns, title=f"{result.source}: {result.frames} frames at "
+                                f"{result.rate_hz:g} Hz, touches {how}", plain=plain))
+    for row in rows:
+        if row["refusal"]:
+            console.print(f"{row['name']}: no suggestion: {row['refusal']}")
+        for key, reason in row["reasons"].items():  # type: ignore[union-attr]
+            console.print(f"{row['name']} {key}: {reason}")
+    console.print("SNR = median touched delta / untouched noise (pp or RMS); verdict from SNR pp "
+                  "(common practice: below 5 weak, 5-10 marginal, above 10 solid)")
+    console.print(f"profile written to {out}")

@@ -1,0 +1,113 @@
+"""Suggestions for every key of a recording: touches from the marks or found, figures, new settings.
+
+Pure: a `Recording` and a base profile in, a `TuneResult` out (the new profile, and per key what was
+measured, the verdict, the suggestion or the reason for refusing one). `padtune tune` prints and saves
+it; the HTML report draws it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from processing.capture import KeyFigures, KeyTrace, find_touches, key_figures
+from processing.measure import VerdictBounds
+from processing.profile import Profile, profile_for, profile_from_board
+from processing.recording import Recording
+from processing.settings import ChannelSettings
+from processing.suggest import Refusal, Suggestion, suggest
+from protocol.errors import UserError
+
+MIN_FRAMES = 32
+
+
+@dataclass
+class KeyResult:
+    channel: int
+    name: str
+    figures: KeyFigures
+    verdict: str
+    outcome: Suggestion | Refusal
+    before: ChannelSettings
+    after: ChannelSettings
+    trace: KeyTrace
+
+    @property
+    def changed(self) -> bool:
+        return self.before != self.after
+
+
+@dataclass
+class TuneResult:
+    profile: Profile
+    keys: list[KeyResult]
+    t_s: np.ndarray
+    rate_hz: float
+    from_marks: bool
+    source: str
+    frames: int
+
+
+def base_profile(rec: Recording, base: Profile | None) -> Profile:
+    width = rec.channels or 0
+    if base is not None:
+        if base.channels != width:
+            raise UserError(f"the profile is for {base.channels} channels, the recording has {width}: "
+                            "give the profile made for this board, or leave --profile out")
+        return base
+    info = rec.info
+    if info is not None and (info.channels or len(info.names)) == width:
+        return profile_from_board(info)
+    return profile_for(width, rec.names if len(rec.names) == width else ())
+
+
+def tune_recording(rec: Recording, base: Profile | None = None,
+                   bounds: VerdictBounds | None = None) -> TuneResult:
+    t_s, _, readings = rec.arrays()
+    if len(t_s) < MIN_FRAMES:
+        raise UserError(f"{rec.path}: only {len(t_s)} frames; record at least a few seconds with each key "
+                        "touched")
+    rate_hz = rec.rate_hz or 100.0
+    profile = base_profile(rec, base)
+    info = rec.info
+    polarity = tuple(info.polarity) if info and info.polarity else tuple(profile.polarity) or (1,)
+    traces = find_touches(t_s, readings, profile.names, polarity, rate_hz, rec.marks)
+    bounds = bounds or VerdictBounds()
+    keys = []
+    for trace in traces:
+        c = trace.channel
+        untouched = np.rint(trace.quiet).astype(np.int64)
+        touched = np.rint(trace.touched).astype(np.int64)
+        figures = key_figures(untouched, touched)
+        outcome = suggest(untouched, touched, rate_hz)
+        if not len(trace.stretches):
+            outcome = Refusal("no touch found on this key: record it being touched (or mark the touches)")
+        before = profile.settings_for(c)
+        after = outcome.apply(before) if isinstance(outcome, Suggestion) else before
+        keys.append(KeyResult(c, profile.names[c], figures, bounds.verdict(figures.snr_pp), outcome, before,
+                              after, trace))
+        profile = profile.with_settings(c, after)
+    profile = replace(profile, rate_hz=rate_hz)
+    return TuneResult(profile, keys, t_s, rate_hz, bool(traces and traces[0].from_marks), rec.path, len(t_s))
+
+
+def result_rows(result: TuneResult) -> list[dict[str, object]]:
+    """One plain dict per key: what the table, the JSON and the report show."""
+    rows = []
+    for k in result.keys:
+        f, s = k.figures, k.after
+        ok = isinstance(k.outcome, Suggestion)
+        rows.append({
+            "name": k.name, "index": k.channel, "touches": len(k.trace.stretches),
+            "noise_pp": f.noise_pp_counts, "noise_rms": f.noise_rms_counts, "signal": f.signal_counts,
+            "snr_pp": f.snr_pp, "snr_rms": f.snr_rms, "verdict": k.verdict,
+            "threshold": s.threshold_counts if ok else None,
+            "hysteresis": s.hysteresis_counts if ok else None,
+            "touch_debounce": s.touch_debounce_frames if ok else None,
+            "release_debounce": s.release_debounce_frames if ok else None,
+            "suggested": ok,
+            "reasons": dict(k.outcome.reasons) if isinstance(k.outcome, Suggestion) else {},
+            "refusal": k.outcome.reason if isinstance(k.outcome, Refusal) else None,
+        })
+    return rows

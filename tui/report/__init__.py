@@ -1,0 +1,17 @@
+"""Self-contained HTML reports (inline SVG plots from matplotlib, no network) for `tune` and `check`.
+
+matplotlib is an optional extra (`pip install 'padtune[report]'`); `require_matplotlib` turns its
+absence into one clear line before any work is done.
+"""
+
+from __future__ import annotations
+
+from protocol.errors import UserError
+
+
+def require_matplotlib() -> None:
+    try:
+        import matplotlib  # noqa: F401
+    except ImportError:
+        raise UserError("--report needs matplotlib, which is not installed: "
+                        "pip install 'padtune[report]' (or leave --report out)") from None

@@ -1,0 +1,102 @@
+"""The report's plots as inline SVG text, drawn with matplotlib's object API (no pyplot, no display).
+
+Long traces are reduced to a min/max envelope per pixel column before drawing, so a long recording
+gives a small file that still shows every spike. Text stays text in the SVG (`svg.fonttype: none`) and
+ids are seeded, so the same data gives the same file.
+"""
+
+from __future__ import annotations
+
+import io
+import itertools
+from collections.abc import Sequence
+
+import numpy as np
+
+MAX_POINTS = 1600
+COLOURS = {"delta": "#33658a", "threshold": "#c0392b", "release": "#e67e22", "touched": "#86bbd8",
+           "untouched": "#55828b", "touch": "#f6ae2d", "limit": "#7d3c98"}
+
+
+def _figure(width_in: float = 6.4, height_in: float = 2.4):  # -> matplotlib.figure.Figure
+    import matplotlib
+
+    matplotlib.rcParams["svg.fonttype"] = "none"
+    matplotlib.rcParams["svg.hashsalt"] = "padtune"
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width_in, height_in), dpi=100, layout="constrained")
+    return fig, fig.add_subplot()
+
+
+def _svg(fig) -> str:
+    buf = io.StringIO()
+    fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "padtune"})
+    text = buf.getvalue()
+    return text[text.index("<svg"):]  # the XML prolog and doctype do not belong inside HTML
+
+
+def envelope(t_s: np.ndarray, values: np.ndarray, points: int = MAX_POINTS) -> tuple[np.ndarray, np.ndarray]:
+    """At most `points` (t, v) pairs keeping each bucket's min and max, in time order."""
+    n = len(values)
+    if n <= points:
+        return t_s, values
+    buckets = points // 2
+    edges = np.linspace(0, n, buckets + 1).astype(int)
+    ts, vs = [], []
+    for a, b in itertools.pairwise(edges):
+        seg = values[a:b]
+        i, j = int(np.argmin(seg)), int(np.argmax(seg))
+        for k in sorted((i, j)):
+            ts.append(t_s[a + k])
+            vs.append(seg[k])
+    return np.array(ts), np.array(vs)
+
+
+def delta_plot(t_s: np.ndarray, delta: np.ndarray, threshold: float | None, release: float | None,
+               stretches: Sequence[tuple[int, int]] = (), title: str = "",
+               limit_band: float | None = None) -> str:
+    fig, ax = _figure()
+    t, v = envelope(np.asarray(t_s, float), np.asarray(delta, float))
+    for a, b in stretches:
+        end_s = float(t_s[min(b, len(t_s)) - 1])
+        ax.axvspan(float(t_s[a]), end_s, color=COLOURS["touched"], alpha=0.35, lw=0)
+    ax.plot(t, v, color=COLOURS["delta"], lw=0.8, label="delta")
+    if threshold is not None:
+        ax.axhline(threshold, color=COLOURS["threshold"], lw=1, ls="--", label=f"threshold {threshold:g}")
+    if release is not None:
+        ax.axhline(release, color=COLOURS["release"], lw=1, ls=":", label=f"release {release:g}")
+    if limit_band is not None:
+        ax.axhspan(-limit_band / 2, limit_band / 2, color=COLOURS["limit"], alpha=0.12, lw=0,
+                   label=f"noise limit pp {limit_band:g}")
+    ax.set_xlabel("time (s)")
+    ax.set_ylabel("delta (counts)")
+    if title:
+        ax.set_title(title, fontsize=10)
+    ax.legend(loc="upper right", fontsize=7, frameon=False)
+    ax.grid(alpha=0.25)
+    return _svg(fig)
+
+
+def histogram_plot(untouched: np.ndarray, touched: np.ndarray, threshold: float | None,
+                   title: str = "") -> str:
+    fig, ax = _figure(4.2, 2.4)
+    values = [np.asarray(v, float) for v in (untouched, touched) if len(v)]
+    lo = min((float(v.min()) for v in values), default=0.0)
+    hi = max((float(v.max()) for v in values), default=1.0)
+    if threshold is not None:
+        lo, hi = min(lo, threshold), max(hi, threshold)
+    bins = np.linspace(lo, hi if hi > lo else lo + 1, 60)
+    if len(untouched):
+        ax.hist(untouched, bins=bins, color=COLOURS["untouched"], alpha=0.8, label="untouched")
+    if len(touched):
+        ax.hist(touched, bins=bins, color=COLOURS["touch"], alpha=0.8, label="touched")
+    if threshold is not None:
+        ax.axvline(threshold, color=COLOURS["threshold"], lw=1, ls="--", label="threshold")
+    ax.set_yscale("log")
+    ax.set_xlabel("delta (counts)")
+    ax.set_ylabel("frames")
+    if title:
+        ax.set_title(title, fontsize=10)
+    ax.legend(loc="upper center", fontsize=7, frameon=False)
+    return _svg(fig)

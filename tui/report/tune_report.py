@@ -1,0 +1,50 @@
+"""The HTML report of `padtune tune`: per key the delta with threshold lines, the two histograms, the
+figures and the suggestion with its reasons."""
+
+from __future__ import annotations
+
+from html import escape
+
+from tui.headless.tuning import TuneResult, result_rows
+from tui.report import html
+from tui.report.plots import delta_plot, histogram_plot
+
+COLUMNS = [("name", "key"), ("touches", "touches"), ("noise_pp", "noise pp"), ("noise_rms", "noise RMS"),
+           ("signal", "signal"), ("snr_pp", "SNR pp"), ("snr_rms", "SNR RMS"), ("verdict", "verdict"),
+           ("threshold", "threshold"), ("hysteresis", "hysteresis"), ("touch_debounce", "touch debounce"),
+           ("release_debounce", "release debounce")]
+
+
+def build_tune_report(result: TuneResult) -> str:
+    rows = result_rows(result)
+    how = "from the recording's marks" if result.from_marks else "found in the deltas"
+    body = [f"<h2>Summary</h2>{html.table(COLUMNS, rows)}",
+            "<p class=\"reasons\">Noise: peak-to-peak and RMS (numpy.std) of untouched deltas, counts. "
+            "Signal: median touched delta. SNR = signal / noise (pp or RMS form). Verdict from SNR pp "
+            "(common practice, no source: below 5 weak, 5-10 marginal, above 10 solid).</p>"]
+    for key, row in zip(result.keys, rows, strict=True):
+        s = key.after
+        threshold = float(s.threshold_counts)
+        release = float(s.threshold_counts - s.hysteresis_counts)
+        name = key.name
+        figures = [
+            html.figure(delta_plot(result.t_s, key.trace.delta, threshold, release, key.trace.stretches,
+                                   title=f"{name}: delta"), name, "delta",
+                        f"{name}: delta over time, touches shaded, threshold and release level"),
+            html.figure(histogram_plot(key.trace.quiet, key.trace.touched, threshold,
+                                       title=f"{name}: untouched and touched"), name, "histogram",
+                        f"{name}: histograms of untouched and touched deltas"),
+        ]
+        notes = [f"<li>{escape(k)}: {escape(v)}</li>" for k, v in row["reasons"].items()]  # type: ignore
+        if row["refusal"]:
+            notes.append(f"<li>no suggestion: {escape(str(row['refusal']))}</li>")
+        body.append(f'<section data-key="{escape(name)}"><h2>{escape(name)}</h2>'
+                    f"{html.table(COLUMNS, [row])}<ul class=\"reasons\">{''.join(notes)}</ul>"
+                    f"<div class=\"figures\">{''.join(figures)}</div></section>")
+    subtitle = (f"{result.source}: {result.frames} frames at {result.rate_hz:g} Hz, touches {how}; "
+                f"{len(result.keys)} keys")
+    return html.page("padtune tuning report", subtitle, body)
+
+
+def write_tune_report(path: str, result: TuneResult) -> None:
+    html.write_page(path, build_tune_report(result))
