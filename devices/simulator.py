@@ -47,6 +47,7 @@ class SimBoard:
             self.touches.presses.append(Contact("finger", (pad,), (ch,), from_s, math.inf, 1.0, "stuck"))
         self.injected = Injected()
         self._link_rng = np.random.default_rng([seed, 0x11A4])
+        self._until_s = 0.0  # latest sim time asked for
         self._next_frame = 0  # index of the next frame to measure; its time is index / rate_hz
         self._seq = 0
         self._width = self.spec.channels
@@ -136,7 +137,7 @@ class SimBoard:
 
     def run_for(self, seconds: float) -> bytes:
         """Generate the next `seconds` of sim time at once, ignoring the clock (tests, benchmarks)."""
-        self.generate_until(self.generated_s + seconds)
+        self.generate_until(self._until_s + seconds)
         return self.take()
 
     def skip_until(self, sim_t_s: float) -> int:
@@ -145,6 +146,7 @@ class SimBoard:
         The board measured them (sequence numbers advance), so the host sees them as lost. Returns how
         many were skipped; they are counted in `injected.extra["overrun"]`.
         """
+        self._until_s = max(self._until_s, sim_t_s)
         last = math.floor(sim_t_s * self.spec.rate_hz + 1e-9)
         skipped = 0
         while self._next_frame <= last:
@@ -162,6 +164,7 @@ class SimBoard:
 
     def generate_until(self, sim_t_s: float) -> None:
         """Measure and queue every frame whose time is <= sim_t_s."""
+        self._until_s = max(self._until_s, sim_t_s)
         last = math.floor(sim_t_s * self.spec.rate_hz + 1e-9)
         while self._next_frame <= last:
             stop = min(last + 1, self._next_frame + MAX_BLOCK_FRAMES)

@@ -111,10 +111,10 @@ class TouchPlan:
         return [c for c in pool if c.start_s <= hi and c.end_s >= lo]
 
     def truth(self, until_s: float) -> list[Contact]:
-        """Ground truth: every contact that started before `until_s`, in start order."""
+        """Ground truth: every contact that started by `until_s`, in start order."""
         self._extend_random(until_s)
         pool = self.scripted(0.0, until_s) + self._random + self.presses
-        return sorted((c for c in pool if c.start_s < until_s), key=lambda c: (c.start_s, c.channels))
+        return sorted((c for c in pool if c.start_s <= until_s), key=lambda c: (c.start_s, c.channels))
 
     def press(self, channel: int, t_s: float, strength: float) -> None:
         self.release(channel, t_s)

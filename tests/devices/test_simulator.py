@@ -1,0 +1,195 @@
+"""SimBoard end to end through protocol's own Decoder: info, pacing, seeds, faults, presses, truth."""
+
+import numpy as np
+import pytest
+
+from devices.faults import FaultPlan
+from devices.simulator import SimBoard
+from protocol.decoder import Decoder
+from protocol.errors import UserError
+from protocol.events import BoardInfo, FrameBlock, Note
+
+
+class FakeClock:
+    def __init__(self) -> None:
+        self.now = 100.0
+
+    def __call__(self) -> float:
+        return self.now
+
+
+def decode(data: bytes):
+    d = Decoder()
+    events = d.feed(data, 0.0)
+    frames = [e for e in events if isinstance(e, FrameBlock)]
+    widest = [f.readings for f in frames if f.channels == frames[0].channels] if frames else []
+    readings = np.concatenate(widest) if widest else np.zeros((0, 0), np.int64)
+    return d, events, readings
+
+
+def test_clean_stream_decodes_with_info_and_no_faults():
+    board = SimBoard("greenhouse", seed=7)
+    d, events, readings = decode(board.run_for(5.0))
+    info = next(e for e in events if isinstance(e, BoardInfo))
+    assert info.proto == 1 and info.board == "greenhouse" and info.channels == 9 and info.rate_hz == 60
+    assert info.names[:5] == ("zone1", "zone2", "zone3", "zone4", "stop") and info.polarity == (1,)
+    assert info.method == "charge_time" and info.fw
+    assert isinstance(events[0], Note)
+    s = d.stats
+    assert s.frames == 301 == board.injected.frames_sent  # frames at t = 0, 1/60, ..., 5.0
+    assert s.garbled == s.bad_checksum == s.lost == s.resets == s.width_mismatch == 0
+    assert readings.shape == (301, 9)
+
+
+def test_seed_repeats_exactly_and_differs_between_seeds():
+    a = SimBoard("pumphouse", seed=11).run_for(8.0)
+    b = SimBoard("pumphouse", seed=11)
+    chunks = b.run_for(0.5) + b.run_for(3.3) + b.run_for(4.2)
+    assert a == chunks
+    assert a != SimBoard("pumphouse", seed=12).run_for(8.0)
+
+
+def test_clock_paces_frames_and_speed_scales_time():
+    clock = FakeClock()
+    board = SimBoard("greenhouse", seed=1, speed=4.0, clock=clock)
+    _, _, first = decode(board.read_due())
+    assert len(first) == 1  # only the frame at t = 0 is due
+    clock.now += 0.5  # half a second of clock = 2 s of board time at speed 4 -> 120 more frames
+    d = Decoder()
+    d.feed(board.read_due(), 0.0)
+    assert d.stats.frames == 120
+    assert board.seconds_to_next_frame() == pytest.approx((121 / 60 - 2.0) / 4)
+    assert board.read_due() == b""
+
+
+def test_question_mark_answers_with_the_info_line():
+    board = SimBoard("grid64", seed=0)
+    board.run_for(0.01)
+    board.write(b"?")
+    assert board.take() == b""  # not a full line yet
+    board.write(b"\n")
+    assert board.take() == board.info_line()
+    assert b"channels=64" in board.info_line() and b"polarity=-" in board.info_line()
+
+
+def test_press_and_release_by_command_and_by_call():
+    board = SimBoard("greenhouse", seed=2, script=False)
+    _, _, idle = decode(board.run_for(1.0))
+    board.write(b"+zone3\n")
+    _, _, pressed = decode(board.run_for(1.0))
+    board.write(b"-zone3\n")
+    _, _, released = decode(board.run_for(1.0))
+    ch = board.channel("zone3")
+    assert pressed[10:, ch].mean() - idle[:, ch].mean() > 40  # charge time: a touch raises counts
+    assert abs(released[10:, ch].mean() - idle[:, ch].mean()) < 5
+    board.press(1, True, 0.5)
+    assert board.held() == ["zone2"]
+    board.write(b"-*\n")
+    assert board.held() == []
+    truth = board.scripted_touches()
+    assert [(c.names, c.source) for c in truth] == [(("zone3",), "press"), (("zone2",), "press")]
+    assert truth[0].hold_s == pytest.approx(1.0, abs=0.02)
+
+
+def test_bad_commands_become_board_notes_not_crashes():
+    board = SimBoard("greenhouse", seed=2)
+    board.take()
+    board.write(b"+nosuchpad\nhello\n+zone1=9\n")
+    notes = [e.text for e in decode(board.take())[1] if isinstance(e, Note)]
+    assert len(notes) == 3 and all(n.startswith("error:") for n in notes)
+    assert "no pad 'nosuchpad'" in notes[0]
+    with pytest.raises(UserError):
+        board.press("zone9")
+
+
+def test_script_ground_truth_matches_what_the_readings_show():
+    board = SimBoard("greenhouse", seed=5)
+    _, _, r = decode(board.run_for(30.0))
+    t = np.arange(len(r)) / 60.0
+    fingers = [c for c in board.scripted_touches() if c.kind == "finger"]
+    assert len(fingers) == 6 and {c.source for c in fingers} == {"script"}
+    idle = np.median(r[t < 1.5], axis=0)
+    for c in fingers:
+        ch = c.channels[0]
+        inside = (t > c.start_s + 0.1) & (t < c.end_s - 0.1)
+        assert r[inside, ch].mean() - idle[ch] > 20 * c.strength, c
+    swipe = next(c for c in board.scripted_touches() if c.kind == "swipe")
+    inside = (t > swipe.start_s) & (t < swipe.end_s)
+    slider = r[inside][:, list(swipe.channels)] - idle[list(swipe.channels)]
+    assert np.argmax(slider[:10].mean(0)) == 0 and np.argmax(slider[-10:].mean(0)) == 3  # dur0 -> dur3
+
+
+def test_random_touches_are_seeded_and_reported():
+    a = SimBoard("grid64", seed=9)
+    a.run_for(30.0)
+    truth = a.scripted_touches()
+    assert 8 <= len(truth) <= 40 and {c.source for c in truth} == {"random"}
+    b = SimBoard("grid64", seed=9)
+    assert [(c.channels, c.start_s) for c in b.scripted_touches(30.0)] == [(c.channels, c.start_s)
+                                                                            for c in truth]
+
+
+@pytest.mark.parametrize("fault, check", [
+    ("drop:0.05", lambda s, inj: s.lost == inj.dropped > 0),
+    ("garble:0.05", lambda s, inj: s.bad_checksum == inj.garbled > 0 and s.lost == inj.garbled),
+    ("junk:0.05", lambda s, inj: s.garbled == inj.junk > 0 and s.lost == 0),
+    ("reset@4", lambda s, inj: s.resets == inj.resets == 1 and s.lost == 0),
+    ("width:7@4", lambda s, inj: s.width_mismatch == 2 and s.board_changes == inj.width_changes == 1),
+])
+def test_each_link_fault_shows_in_the_link_statistics_as_injected(fault, check):
+    board = SimBoard("greenhouse", seed=3, faults=FaultPlan.parse([fault]))
+    d, _, _ = decode(board.run_for(10.0))
+    assert check(d.stats, board.injected), (d.stats, board.injected)
+    assert d.stats.frames == board.injected.frames_sent - board.injected.garbled - d.stats.width_mismatch
+
+
+def test_stall_pauses_the_stream_without_losing_sequence():
+    board = SimBoard("greenhouse", seed=3, faults=FaultPlan.parse(["stall:2@3"]))
+    d, events, _ = decode(board.run_for(6.0))
+    assert board.injected.stalls == 1 and board.injected.stalled_s == pytest.approx(2.0)
+    assert d.stats.lost == 0 and d.stats.frames == 6 * 60 + 1 - 120
+    seqs = np.concatenate([e.seq for e in events if isinstance(e, FrameBlock)])
+    assert np.all(np.diff(seqs) == 1)  # the board paused; it did not skip
+
+
+def test_stall_seen_by_the_clock():
+    clock = FakeClock()
+    board = SimBoard("greenhouse", seed=3, faults=FaultPlan.parse(["stall:1@1"]), clock=clock)
+    board.read_due()
+    clock.now += 1.5
+    board.read_due()
+    assert board.injected.frames_sent == 60  # frames before 1 s, then silence
+    clock.now += 1.0
+    board.read_due()
+    assert board.injected.frames_sent == 60 + 31  # from 2.0 s to 2.5 s
+
+
+def test_unit_faults_stuck_and_open_by_name():
+    board = SimBoard("greenhouse", seed=4, script=False,
+                     faults=FaultPlan.parse(["stuck:zone4@1", "open:zone1", "short:stop", "noisy:dur2:30"]))
+    _, _, r = decode(board.run_for(3.0))
+    z4 = board.channel("zone4")
+    assert r[90:, z4].mean() - r[:50, z4].mean() > 40
+    assert any(c.source == "stuck" for c in board.scripted_touches())
+    assert r[:, board.channel("zone1")].mean() < 0.3 * r[:, board.channel("zone2")].mean()
+    assert (r[:, board.channel("stop")] == 65535).all()
+    assert r[:, board.channel("dur2")].std() > 10 * r[:, board.channel("dur1")].std()
+    with pytest.raises(UserError, match="no pad 'zone7'"):
+        SimBoard("greenhouse", faults=FaultPlan.parse(["open:zone7"]))
+
+
+def test_skipped_frames_are_lost_on_the_host_side():
+    board = SimBoard("greenhouse", seed=1)
+    d = Decoder()
+    d.feed(board.run_for(1.0), 0.0)
+    assert board.skip_until(3.0) == 120
+    d.feed(board.run_for(1.0), 0.0)
+    assert d.stats.lost == 120 == board.injected.extra["overrun"]
+
+
+def test_no_checksum_mode_and_speed_validation():
+    data = SimBoard("greenhouse", checksum=False).run_for(0.5)
+    assert b"*" not in data.split(b"\n")[2]
+    assert decode(data)[0].stats.frames == 31
+    with pytest.raises(UserError, match="speed"):
+        SimBoard("greenhouse", speed=0)

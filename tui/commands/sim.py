@@ -1,0 +1,103 @@
+"""`padtune sim BOARD`: serve a simulated board on a pseudo-terminal (prints the path) until Ctrl-C.
+
+`padtune sim --list` lists the bundled boards. The first line printed is the device path alone, so a
+script can take it with `head -1`; the board stays on that path until stopped.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import os
+import signal
+import sys
+import time
+
+from devices.boards import list_boards, load_board
+from devices.faults import SYNTAX, FaultPlan
+from devices.pty_server import PtyServer
+from devices.simulator import SimBoard
+from protocol.errors import UserError
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    p = subparsers.add_parser(
+        "sim", help="serve a simulated board on a pseudo-terminal",
+        description="Serve a simulated board on a pseudo-terminal and print its path, so any program can "
+        "connect to it as to hardware. Write '+PAD' / '-PAD' lines to the port to press and release keys, "
+        "'?' for the info line. Ctrl-C stops. (The same boards open directly as sim://BOARD URLs.)",
+    )
+    p.add_argument("board", nargs="?", help="board name (see --list) or path to a board .toml file")
+    p.add_argument("--list", action="store_true", help="list the bundled boards and exit")
+    p.add_argument("--seed", type=int, default=0, help="random seed; a seed repeats exactly (default 0)")
+    p.add_argument("--speed", type=float, default=1.0, help="time factor: 4 runs 4x faster (default 1)")
+    p.add_argument("--fault", action="append", default=[], metavar="ITEM", help=f"inject a fault: {SYNTAX}")
+    p.add_argument("--no-checksum", action="store_true", help="send lines without checksums")
+    p.add_argument("--no-script", action="store_true", help="no scripted touches (only your key presses)")
+    p.add_argument("--random", type=float, metavar="PER_MIN", help="random touches per minute")
+    p.add_argument("--link", metavar="PATH", help="also make a symlink PATH to the device (removed on exit)")
+    p.add_argument("--duration", type=float, metavar="S", help="stop after S seconds of wall time")
+    p.set_defaults(func=run)
+
+
+def list_text() -> list[str]:
+    lines = []
+    for name in list_boards():
+        spec = load_board(name)
+        lines.append(f"{name:<12} {spec.channels:>3} ch  {spec.rate_hz:>6g} Hz  {spec.method.kind:<12}  "
+                     f"{spec.description}")
+    return lines
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.list:
+        print("\n".join(list_text()))
+        return 0
+    if not args.board:
+        raise UserError("name a board to serve, e.g. `padtune sim greenhouse` (see `padtune sim --list`)")
+    if args.random is not None and args.random < 0:
+        raise UserError("--random is touches per minute: 0 or more")
+    if args.duration is not None and args.duration <= 0:
+        raise UserError("--duration must be above zero seconds")
+    board = SimBoard(args.board, seed=args.seed, speed=args.speed, faults=FaultPlan.parse(args.fault),
+                     checksum=not args.no_checksum, script=not args.no_script, random_per_min=args.random)
+    server = PtyServer(board)
+    if args.link:
+        if os.path.lexists(args.link):
+            server.close()
+            raise UserError(f"--link {args.link} already exists; pick another path or remove it first")
+        os.symlink(server.path, args.link)
+    spec = board.spec
+    print(server.path, flush=True)
+    faults = f", faults: {', '.join(args.fault)}" if args.fault else ""
+    print(f"  {spec.name}: {spec.channels} channels at {spec.rate_hz:g} Hz, {spec.method.kind}, seed "
+          f"{args.seed}, speed {args.speed:g}x{faults}")
+    print(f"  keys: {', '.join(spec.names)}; write +KEY / -KEY lines to press and release. Ctrl-C stops.",
+          flush=True)
+    end = None if args.duration is None else time.monotonic() + args.duration
+    stopping = False
+
+    def stop_now(*_: object) -> None:
+        nonlocal stopping
+        stopping = True
+
+    old = signal.signal(signal.SIGTERM, stop_now)
+
+    def report(connected: bool) -> None:
+        print(f"  client {'connected' if connected else 'disconnected'}", flush=True)
+
+    try:
+        server.serve(lambda: stopping or (end is not None and time.monotonic() >= end), report)
+    except KeyboardInterrupt:
+        pass
+    finally:
+        signal.signal(signal.SIGTERM, old)
+        server.close()
+        if args.link:
+            with contextlib.suppress(OSError):
+                os.unlink(args.link)
+    s = server.stats
+    print(f"  stopped: {board.injected.frames_sent} frames, {s.bytes_sent} bytes sent, {s.connects} "
+          f"connection(s)" + (f", {s.bytes_dropped} bytes dropped (client not reading)" if s.bytes_dropped
+                               else ""), file=sys.stderr, flush=True)
+    return 0
