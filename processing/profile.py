@@ -149,10 +149,11 @@ def _names(raw: dict[str, Any], out: Problems) -> tuple[str, ...] | None:
     return tuple(names)
 
 
-def _channel_refs(where: str, refs: Any, names: tuple[str, ...], out: Problems) -> tuple[int, ...]:
+def _channel_refs(where: str, refs: Any, names: tuple[str, ...], out: Problems) -> tuple[int, ...] | None:
+    """Channel indices for a list of names, or None (with the problems recorded) when any is wrong."""
     if not isinstance(refs, list) or not refs:
         out.append((where, "must be a non-empty list of channel names"))
-        return ()
+        return None
     found: list[int] = []
     for ref in refs:
         if isinstance(ref, str) and ref in names:
@@ -163,7 +164,7 @@ def _channel_refs(where: str, refs: Any, names: tuple[str, ...], out: Problems) 
             out.append((where, f"unknown channel {ref!r}{hint}"))
     if len(set(found)) != len(found):
         out.append((where, "lists a channel twice"))
-    return tuple(found)
+    return tuple(found) if len(found) == len(refs) else None
 
 
 def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec, ...]:
@@ -180,9 +181,9 @@ def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec,
         if not _is_int(margin) or margin < 0:
             out.append((f"{where}switch_margin_counts", f"must be a whole number >= 0, not {margin!r}"))
         members = _channel_refs(f"{where}members", g.get("members"), names, out)
-        if len(members) == 1:
+        if members is not None and len(members) == 1:
             out.append((f"{where}members", "an exclusive group needs at least two members"))
-        groups.append(GroupSpec(str(name), members, margin if _is_int(margin) else 0))
+        groups.append(GroupSpec(str(name), members or (), margin if _is_int(margin) else 0))
     if raw is not None and not isinstance(raw, list):
         out.append(("group", "must be an array of tables ([[group]])"))
     return tuple(groups)
@@ -205,10 +206,10 @@ def _sliders(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[SliderSpe
             out.append((f"{where}resolution", f"must be a whole number from 2 to 65535, not {res!r}"))
         pads = _channel_refs(f"{where}pads", sl.get("pads"), names, out)
         need = 3 if wheel is True else 2
-        if pads and len(pads) < need:
+        if pads is not None and len(pads) < need:
             kind = "wheel" if wheel is True else "slider"
             out.append((f"{where}pads", f"a {kind} needs at least {need} pads"))
-        sliders.append(SliderSpec(str(name), pads, wheel is True, res if _is_int(res) else 100))
+        sliders.append(SliderSpec(str(name), pads or (), wheel is True, res if _is_int(res) else 100))
     if raw is not None and not isinstance(raw, list):
         out.append(("slider", "must be an array of tables ([[slider]])"))
     return tuple(sliders)
