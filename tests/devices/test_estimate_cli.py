@@ -1,0 +1,46 @@
+"""`padtune estimate` in process: options, board pads, overrides and one-line mistakes."""
+
+import json
+
+import pytest
+
+from tui.cli import main
+
+
+def run(capsys, *args):
+    code = main(["estimate", *args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_board_pad_with_override(capsys):
+    code, out, _ = run(capsys, "--board", "greenhouse", "--pad", "stop", "--json")
+    base = json.loads(out)
+    assert code == 0 and base["inputs"]["pad_area_mm2"] == pytest.approx(201.06, abs=0.01)
+    code, out, _ = run(capsys, "--board", "greenhouse", "--pad", "stop", "--thickness-mm", "6", "--json")
+    thicker = json.loads(out)
+    assert thicker["finger_pf"]["nominal"] < base["finger_pf"]["nominal"]
+    code, out, _ = run(capsys, "--board", "greenhouse", "--set", "timer_mhz=128", "--json")
+    assert json.loads(out)["counts_per_pf"] == pytest.approx(2 * json.loads(
+        run(capsys, "--board", "greenhouse", "--json")[1])["counts_per_pf"], rel=1e-6)
+
+
+def test_plain_text_when_piped(capsys):
+    code, out, _ = run(capsys, "--material", "acrylic", "--thickness-mm", "2", "--pad-diameter-mm", "15",
+                       "--hum-pf", "0.05")
+    assert code == 0 and "\x1b[" not in out
+    assert "verdict" in out and "count change" in out and "from memory" in out
+
+
+@pytest.mark.parametrize("args, words", [
+    (["--material", "acrylic", "--thickness-mm", "2", "--pad-mm", "12y12"], "--pad-mm '12y12'"),
+    (["--pad", "zone1", "--material", "acrylic", "--thickness-mm", "2"], "give --board too"),
+    (["--board", "greenhouse", "--pad", "zone9"], "has pads zone1"),
+    (["--board", "greenhouse", "--set", "r_ohm"], "KEY=NUMBER"),
+    (["--board", "greenhouse", "--set", "r_ohms=5"], "did you mean r_ohm"),
+    (["--material", "acrylic", "--thickness-mm", "0"], "--thickness-mm must be above zero"),
+    (["--material", "unobtainium", "--thickness-mm", "2"], "unknown overlay material"),
+])
+def test_mistakes(capsys, args, words):
+    code, _, err = run(capsys, *args)
+    assert code == 2 and words in err and len(err.strip().splitlines()) == 1, err
