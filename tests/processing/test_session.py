@@ -1,0 +1,126 @@
+"""Session: the glue front ends use (events in, detections and measures out)."""
+
+import numpy as np
+import pytest
+
+from processing.detections import GroupChange, Rebaselined, Release, SliderChange, Touch
+from processing.groups import GroupSpec
+from processing.profile import Profile
+from processing.session import Session
+from processing.settings import ChannelSettings
+from processing.slider import SliderSpec
+from protocol.events import BoardChanged, BoardInfo, FaultKind, FrameBlock, LinkFault, Note
+
+NAMES = ("zone1", "zone2", "zone3", "stop")
+
+
+def info(**kw):
+    base = dict(t_s=0.0, fields={}, proto=1, board="greenhouse-panel", channels=4, rate_hz=100.0, names=NAMES,
+                new_session=True)
+    base.update(kw)
+    return BoardInfo(**base)
+
+
+def frames(rows, first_index=0, rate_hz=100.0):
+    rows = np.asarray(rows, np.int64)
+    return FrameBlock((first_index + np.arange(len(rows))) / rate_hz, np.arange(len(rows)), rows, first_index)
+
+
+def quiet(n, width=4, level=1000, first_index=0, seed=0):
+    rng = np.random.default_rng(seed)
+    return frames(level + rng.integers(-3, 4, (n, width)), first_index)
+
+
+def test_info_then_frames_detects_and_names():
+    s = Session()
+    assert s.handle([info()]) == [] and s.channels == 4 and s.names == NAMES
+    out = s.handle([quiet(100)])
+    assert sorted(ev.channel for ev in out if isinstance(ev, Rebaselined)) == [0, 1, 2, 3]
+    rows = np.full((10, 4), 1000)
+    rows[:, 2] += 250
+    out = s.handle([frames(rows, 100)])
+    assert [type(ev) for ev in out] == [Touch] and out[0].channel == 2 and out[0].index == 102
+    row = s.rows()[2]
+    assert row.name == "zone3" and row.delta_counts >= 240 and row.state.reported_touched
+    assert s.rows()[0].quality.noise is not None
+
+
+def test_frames_without_info_build_defaults_and_estimate_rate():
+    s = Session()
+    s.handle([FrameBlock(np.arange(1000) / 50.0, np.arange(1000), np.full((1000, 3), 500, np.int64), 0)])
+    assert s.channels == 3 and s.names == ("ch0", "ch1", "ch2")
+    assert s.rate_hz == pytest.approx(50.0)
+
+
+def test_new_session_and_reset_rebaseline_but_notes_do_not():
+    s = Session()
+    s.handle([info(), quiet(50)])
+    assert not s.engine.pending.any()
+    s.handle([Note(1.0, "hello"), LinkFault(1.0, FaultKind.GARBLED)])
+    assert not s.engine.pending.any()
+    s.handle([LinkFault(1.0, FaultKind.RESET)])
+    assert s.engine.pending.all()
+    s.handle([quiet(5, first_index=50)])
+    s.handle([info(t_s=2.0)])
+    assert s.engine.pending.all()
+    s.handle([quiet(5, first_index=55)])
+    s.handle([info(t_s=3.0, proto=None, new_session=False)])  # a plain info reply: no re-baseline
+    assert not s.engine.pending.any()
+
+
+def test_board_changed_rebuilds_for_new_width():
+    s = Session()
+    s.handle([info(), quiet(20)])
+    s.handle([BoardChanged(1.0, 4, 6), quiet(20, width=6, first_index=20)])
+    assert s.channels == 6 and s.engine.last_deltas.shape == (20, 6)
+    assert any("6 channels" in n for n in s.notices)
+
+
+def test_polarity_from_info():
+    s = Session()
+    s.handle([info(polarity=(-1,)), quiet(20)])
+    rows = np.full((5, 4), 1000)
+    rows[:, 1] -= 300
+    out = s.handle([frames(rows, 20)])
+    assert [type(ev) for ev in out] == [Touch] and out[0].channel == 1
+
+
+def test_profile_settings_groups_and_sliders():
+    p = Profile(names=NAMES, defaults=ChannelSettings(threshold_counts=80, touch_debounce_frames=1,
+                                                      release_debounce_frames=1),
+                groups=(GroupSpec("zones", (0, 1)),), sliders=(SliderSpec("strip", (1, 2, 3)),))
+    s = Session(p)
+    s.handle([info(), quiet(20)])
+    rows = np.full((3, 4), 1000)
+    rows[:, 0] += 100
+    rows[:, 1] += 200
+    out = s.handle([frames(rows, 20)])
+    kinds = [type(ev) for ev in out]
+    assert kinds.count(Touch) == 2 and GroupChange in kinds and SliderChange in kinds
+    assert [ev.channel for ev in out if isinstance(ev, GroupChange)] == [1]
+    out = s.handle([quiet(3, first_index=23)])
+    assert [ev.channel for ev in out if isinstance(ev, GroupChange)] == [None]
+    assert [type(ev) for ev in out].count(Release) == 2
+
+
+def test_live_edit_goes_to_engine_and_profile():
+    s = Session()
+    with pytest.raises(ValueError, match="no board"):
+        s.set_channel_settings(0, ChannelSettings())
+    s.handle([info(), quiet(20)])
+    new = ChannelSettings(threshold_counts=40, hysteresis_counts=5)
+    s.set_channel_settings(3, new)
+    assert s.profile.settings_for(3) == new and s.engine.settings[3] == new and s.settings(3) == new
+    with pytest.raises(ValueError, match="hysteresis"):
+        s.set_channel_settings(3, ChannelSettings(threshold_counts=10, hysteresis_counts=10))
+    assert s.settings(3) == new  # nothing half-applied
+    with pytest.raises(ValueError, match="no channel 9"):
+        s.set_channel_settings(9, new)
+
+
+def test_mismatched_profile_uses_its_defaults_with_a_notice():
+    p = Profile(names=("a", "b"), defaults=ChannelSettings(threshold_counts=55))
+    s = Session(p)
+    s.handle([info(), quiet(10)])
+    assert s.channels == 4 and s.settings(3).threshold_counts == 55 and s.names == NAMES
+    assert any("profile is for 2 channels" in n for n in s.notices)
