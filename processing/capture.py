@@ -17,12 +17,15 @@ from __future__ import annotations
 
 import math
 from collections import deque
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from processing.measure import VerdictBounds
 from processing.recording import Mark
+from processing.settings import ChannelSettings
+from processing.suggest import Refusal, Suggestion, suggest
 from protocol.events import FrameBlock
 
 QUIET, TOUCH, RELEASE, DONE = "quiet", "touch", "release", "done"
@@ -405,3 +408,44 @@ def _marked_stretches(t_s: np.ndarray, marks: Sequence[Mark], names: Sequence[st
     if not any(m.kind == "touch-start" for m in marks):
         return None
     return {c: _mark_ranges(t_s, marks, "touch-start", "touch-end", name) for c, name in enumerate(names)}
+
+
+# ---------------------------------------------------------------- the wizard's results
+
+
+@dataclass(frozen=True)
+class CaptureOutcome:
+    """One key at the end of a guided capture: figures, verdict, suggestion (or why not), new settings."""
+
+    channel: int
+    name: str
+    figures: KeyFigures
+    verdict: str
+    suggestion: Suggestion | Refusal
+    before: ChannelSettings
+    after: ChannelSettings  # == before when refused
+    untouched: np.ndarray
+    touched: np.ndarray
+
+    @property
+    def suggested(self) -> bool:
+        return isinstance(self.suggestion, Suggestion)
+
+
+def summarise(wizard: CaptureWizard, settings_of: Callable[[int], ChannelSettings],
+              bounds: VerdictBounds | None = None) -> list[CaptureOutcome]:
+    """Figures and suggestions for every key the wizard captured (`settings_of(channel)` gives today's)."""
+    bounds = bounds or VerdictBounds()
+    out = []
+    for c, key in wizard.keys.items():
+        figures = key_figures(key.quiet, key.touched)
+        result: Suggestion | Refusal
+        if not key.seen:
+            result = Refusal(f"no touch seen on {key.name} in {key.attempts} tries: nothing to suggest")
+        else:
+            result = suggest(key.untouched, key.touched, wizard.rate_hz)
+        before = settings_of(c)
+        after = result.apply(before) if isinstance(result, Suggestion) else before
+        out.append(CaptureOutcome(c, key.name, figures, bounds.verdict(figures.snr_pp), result, before, after,
+                                  key.untouched, key.touched))
+    return out
