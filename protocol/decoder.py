@@ -27,6 +27,7 @@ class Decoder:
         self.max_line_bytes = max_line_bytes
         self._framer = Framer(max_line_bytes)
         self._rules = LineRules(max_line_bytes)
+        self.last_fallback = ""  # why the bulk scan last gave up on a batch (it should never)
 
     @property
     def stats(self) -> LinkStats:
@@ -57,8 +58,8 @@ class Decoder:
                 end = complete.find(b"\n", pos + BATCH_BYTES)
             self._batch(complete[pos : end + 1] if pos or end + 1 < size else complete)
             pos = end + 1
-        if overlong is not None:
-            rules.overlong(overlong)
+        if overlong:
+            rules.overlong()
         return rules.take_events()
 
     def _batch(self, buf: bytes) -> None:
@@ -73,7 +74,7 @@ class Decoder:
             # A disagreement between the bulk checks and the numbers found is a bug in fastscan;
             # the per-line rules still decode the batch correctly. Count it so it is seen.
             rules.stats.extra["scan_fallbacks"] = rules.stats.extra.get("scan_fallbacks", 0) + 1
-            rules.stats.extra["scan_fallback_last"] = len(str(exc))
+            self.last_fallback = str(exc)
             for line in buf[:-1].split(b"\n"):
                 rules.line(line)
             return

@@ -36,6 +36,6 @@ class PlainDecoder:
         if complete:
             for line in complete[:-1].split(b"\n"):
                 rules.line(line)
-        if overlong is not None:
-            rules.overlong(overlong)
+        if overlong:
+            rules.overlong()
         return rules.take_events()

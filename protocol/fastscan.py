@@ -186,9 +186,12 @@ def _convert(
             text[starts[i] : ends[i]] = 0x20
     counts = np.where(frame_ok, tokens, 0)
     offset = np.cumsum(counts) - counts
+    expected = int(counts.sum())
+    if not expected:  # np.fromstring reads text of nothing but spaces as one 0
+        return np.zeros(0, dtype=np.int64), offset
     numbers = np.fromstring(text.tobytes(), dtype=np.int64, sep=" ")
-    if len(numbers) != int(counts.sum()):
-        raise ScanMismatch(f"found {len(numbers)} numbers, expected {int(counts.sum())}")
+    if len(numbers) != expected:
+        raise ScanMismatch(f"found {len(numbers)} numbers, expected {expected}")
     return numbers, offset
 
 

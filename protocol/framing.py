@@ -18,15 +18,15 @@ class Framer:
     def buffered_bytes(self) -> int:
         return len(self._partial)
 
-    def push(self, data: bytes) -> tuple[bytes, int | None]:
-        """Take more bytes; return (complete lines ending in LF, length of a new overlong tail or None).
+    def push(self, data: bytes) -> tuple[bytes, bool]:
+        """Take more bytes; return (complete lines ending in LF, whether a new overlong tail began).
 
         The caller handles the complete lines first, then reports the overlong tail if there is one.
         """
         if self._skipping:
             lf = data.find(b"\n")
             if lf < 0:
-                return b"", None
+                return b"", False
             self._skipping = False
             data = data[lf + 1 :]
         if self._partial:
@@ -35,6 +35,6 @@ class Framer:
         complete, tail = (b"", data) if last < 0 else (data[: last + 1], data[last + 1 :])
         if len(tail) > self.max_line_bytes:
             self._partial, self._skipping = b"", True
-            return complete, len(tail)
+            return complete, True
         self._partial = tail
-        return complete, None
+        return complete, False

@@ -22,7 +22,9 @@ class InfoError(ValueError):
 def split_fields(text: str) -> dict[str, str]:
     """`key=value` pairs separated by spaces or tabs; commas belong to values. Last duplicate wins."""
     fields: dict[str, str] = {}
-    for token in text.split():
+    for token in text.replace("\t", " ").split(" "):
+        if not token:
+            continue
         key, eq, value = token.partition("=")
         if not eq or not key:
             raise InfoError(f"info token {token[:24]!r} is not key=value")

@@ -64,7 +64,7 @@ def parse_frame(body: bytes) -> tuple[int, list[int]] | None:
         parts.pop()  # a trailing comma (sketches often print one after every value)
     values: list[int] = []
     for part in parts:
-        tokens = part.split()
+        tokens = [t for t in part.split(b" ") if t]  # only spaces and tabs separate, not \r or \f
         if not tokens:
             return None
         for token in tokens:
@@ -132,9 +132,9 @@ class LineRules:
         self.stats.frames += readings.shape[0]
 
     # -- lines ------------------------------------------------------------------------------------
-    def overlong(self, length: int) -> None:
+    def overlong(self) -> None:
         self.stats.overlong += 1
-        self._fault(FaultKind.OVERLONG, detail=f"line of {length}+ bytes dropped")
+        self._fault(FaultKind.OVERLONG, detail=f"line over {self.max_line_bytes} bytes dropped")
 
     def garbled(self, line: bytes, why: str) -> None:
         self.stats.garbled += 1
@@ -147,7 +147,7 @@ class LineRules:
     def line(self, line: bytes) -> None:
         """Apply every rule to one line (LF removed, CR not yet)."""
         if len(line) > self.max_line_bytes:
-            self.overlong(len(line))
+            self.overlong()
             return
         if line[-1:] == b"\r":
             line = line[:-1]

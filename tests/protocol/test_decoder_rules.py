@@ -1,0 +1,246 @@
+"""One test (or a few) for every rule of PROTOCOL.md, run against both decoders."""
+
+import numpy as np
+import pytest
+
+from protocol.decoder import Decoder
+from protocol.decoder_plain import PlainDecoder
+from protocol.events import BoardChanged, BoardInfo, FaultKind, FrameBlock, LinkFault, Note
+
+from .helpers import ck, flat, frames, kinds, stream
+
+DECODERS = [Decoder, PlainDecoder]
+
+
+@pytest.fixture(params=DECODERS, ids=["fast", "plain"])
+def dec(request):
+    return request.param()
+
+
+def feed_lines(dec, lines, t_s=1.0):
+    return dec.feed(stream(lines), t_s)
+
+
+def test_plain_frames_with_every_separator(dec):
+    ev = feed_lines(dec, [b"1 2 3", b"4,5,6", b"7\t8\t9", b"10, 11 ,12", b"-1 -2 -3"])
+    assert frames(ev) == [(-1, (1, 2, 3)), (-1, (4, 5, 6)), (-1, (7, 8, 9)), (-1, (10, 11, 12)),
+                          (-1, (-1, -2, -3))]
+    assert dec.stats.frames == 5 and dec.channels == 3
+
+
+def test_trailing_separator_is_allowed_but_empty_values_are_not(dec):
+    ev = feed_lines(dec, [b"1,2,3,", b"1 2 3 ", b"1,,2,3", b"1, ,2,3", b"1,2,3,,"])
+    assert frames(ev) == [(-1, (1, 2, 3)), (-1, (1, 2, 3))]
+    assert dec.stats.garbled == 3
+
+
+def test_crlf_and_blank_lines(dec):
+    ev = dec.feed(b"1 2\r\n\r\n\n   \n\t\n3 4\r\n", 0.0)
+    assert frames(ev) == [(-1, (1, 2)), (-1, (3, 4))]
+    assert dec.stats.garbled == 0
+
+
+def test_only_one_cr_is_dropped(dec):
+    dec.feed(b"1 2\x0b3\n1\x0c2\n", 0.0)
+    assert dec.stats.garbled == 2  # only spaces and tabs separate values
+    dec.feed(b"1 2\r\r\n", 0.0)
+    assert dec.stats.garbled == 3 and dec.stats.frames == 0
+
+
+def test_32_bit_range(dec):
+    ev = feed_lines(dec, [b"2147483647 -2147483648", b"2147483648 0", b"0 -2147483649"])
+    assert frames(ev) == [(-1, (2147483647, -2147483648))]
+    assert dec.stats.garbled == 2
+
+
+def test_leading_zeros_and_minus_zero_are_decimal_integers(dec):
+    ev = feed_lines(dec, [b"007 -0", b"0000000000000000000000012 3"])
+    assert frames(ev) == [(-1, (7, 0)), (-1, (12, 3))]
+
+
+@pytest.mark.parametrize(
+    "line", [b"1 2 x", b"1 +2", b"1-2 3", b"- 1 2", b"1 2-", b"1.5 2", b"1 2 @3", b"1 2*12"]
+)
+def test_malformed_frames_are_garbled(dec, line):
+    feed_lines(dec, [line])
+    assert dec.stats.garbled == 1 and dec.stats.frames == 0
+
+
+@pytest.mark.parametrize("line", [b"hello", b" 1 2", b"?", b"*", b"\x00\xff", b"$GPGGA,1"])
+def test_anything_else_is_garbled(dec, line):
+    ev = feed_lines(dec, [line])
+    assert kinds(ev) == [FaultKind.GARBLED]
+
+
+def test_overlong_line_is_dropped_whole_and_resynchronised(dec):
+    long_line = b"1 " * 600  # 1200 bytes
+    ev = dec.feed(stream([b"1 2", long_line, b"3 4"]), 0.0)
+    assert frames(ev) == [(-1, (1, 2)), (-1, (3, 4))]
+    assert dec.stats.overlong == 1 and kinds(ev) == [FaultKind.OVERLONG]
+
+
+def test_limit_is_1024_bytes_before_the_lf_cr_included(dec):
+    exact = b"7" + b" 7" * 511 + b" "  # 1024 bytes
+    assert len(exact) == 1024
+    feed_lines(dec, [exact, exact + b"\r"])
+    assert dec.stats.frames == 1 and dec.stats.overlong == 1
+
+
+def test_overlong_across_many_chunks_keeps_memory_bounded(dec):
+    dec.feed(b"1 2\n", 0.0)
+    for _ in range(200):
+        dec.feed(b"9" * 1000, 0.0)
+        assert dec._framer.buffered_bytes <= 1024
+    ev = dec.feed(b"99\n5 6\n", 0.0)
+    assert frames(ev) == [(-1, (5, 6))]
+    assert dec.stats.overlong == 1
+
+
+def test_checksums_either_case_and_mismatch(dec):
+    good = ck(b"@1 10 20")
+    lower = good[:-4] + good[-4:].lower()
+    bad = good[:-1] + (b"0" if good[-1:] != b"0" else b"1")
+    ev = feed_lines(dec, [good, ck(b"@2 11 21")[:-4] + ck(b"@2 11 21")[-4:].lower(), bad, lower])
+    assert dec.stats.bad_checksum == 1
+    assert frames(ev)[:2] == [(1, (10, 20)), (2, (11, 21))]
+
+
+def test_no_checksum_after_a_checksummed_line_until_the_next_info_line(dec):
+    ev = feed_lines(dec, [
+        b"1 2",  # fine: no checksum seen yet
+        ck(b"3 4"),
+        b"5 6",  # bad_checksum: checksums were seen
+        b"# notes need no checksum",
+        b"! board=x",  # an info line ends the strict stretch
+        b"7 8",
+        ck(b"! board=y"),  # a checksummed info line starts another
+        b"9 10",
+    ])
+    assert frames(ev) == [(-1, (1, 2)), (-1, (3, 4)), (-1, (7, 8))]
+    assert dec.stats.bad_checksum == 2 and dec.stats.notes == 1
+
+
+def test_a_checksummed_line_of_any_kind_makes_checksums_required(dec):
+    feed_lines(dec, [ck(b"# hi"), b"1 2"])
+    assert dec.stats.bad_checksum == 1
+
+
+def test_sequence_lost_and_wrap(dec):
+    ev = feed_lines(dec, [ck(b"@65533 1"), ck(b"@65534 1"), ck(b"@65535 1"), ck(b"@0 1"), ck(b"@1 1"),
+                          ck(b"@5 1")])
+    assert [f[0] for f in frames(ev)] == [65533, 65534, 65535, 0, 1, 5]
+    assert dec.stats.lost == 3 and dec.stats.resets == 0
+    lost = [e for e in ev if isinstance(e, LinkFault)]
+    assert [(e.kind, e.count) for e in lost] == [(FaultKind.LOST, 3)]
+
+
+def test_loss_across_the_wrap_is_lost_not_a_reset(dec):
+    feed_lines(dec, [b"@65530 1", b"@2 1"])
+    assert dec.stats.lost == 7 and dec.stats.resets == 0
+
+
+def test_backward_jump_is_a_reset(dec):
+    ev = feed_lines(dec, [b"@100 1", b"@101 1", b"@0 1", b"@1 1", b"@1 1"])
+    assert dec.stats.resets == 2 and dec.stats.lost == 0
+    assert kinds(ev) == [FaultKind.RESET, FaultKind.RESET]
+    assert dec.stats.frames == 5
+
+
+def test_new_session_forgets_the_sequence(dec):
+    feed_lines(dec, [b"@100 1", b"! proto=1 board=b channels=1", b"@0 1"])
+    assert dec.stats.resets == 0 and dec.stats.lost == 0
+
+
+@pytest.mark.parametrize(
+    "line", [b"@ 1 2", b"@1", b"@1 ", b"@65536 1", b"@-1 2", b"@1a 2", b"@1-2 3", b"@1,,2"]
+)
+def test_malformed_sequenced_frames(dec, line):
+    feed_lines(dec, [line])
+    assert dec.stats.garbled == 1
+
+
+def test_sequenced_separators(dec):
+    ev = feed_lines(dec, [b"@1,2,3", b"@2\t4 ,5", b"@00003 6 7"])
+    assert frames(ev) == [(1, (2, 3)), (2, (4, 5)), (3, (6, 7))]
+
+
+def test_info_line_all_v1_keys():
+    dec = Decoder()
+    ev = dec.feed(b"! proto=1 board=greenhouse-a channels=3 rate=250.5 names=zone1,zone2,stop method=osc"
+                  b" polarity=+,-,+ fw=0.4.1 colour=green\n", 2.5)
+    (info,) = ev
+    assert isinstance(info, BoardInfo)
+    assert info.proto == 1 and info.board == "greenhouse-a" and info.channels == 3
+    assert info.rate_hz == 250.5 and info.names == ("zone1", "zone2", "stop") and info.method == "osc"
+    assert info.polarity == (1, -1, 1) and info.fw == "0.4.1" and info.new_session and info.t_s == 2.5
+    assert info.extra == {"colour": "green"}
+    assert dec.info == info and dec.channels == 3
+
+
+def test_info_single_polarity_and_merge():
+    dec = Decoder()
+    dec.feed(b"! proto=1 board=b channels=2 polarity=-\n! fw=2 rate=50\n", 0.0)
+    assert dec.info.polarity == (-1,) and dec.info.fw == "2" and dec.info.board == "b"
+    assert dec.info.rate_hz == 50.0 and dec.stats.infos == 2
+
+
+@pytest.mark.parametrize("line", [
+    b"! proto=x", b"! channels=0", b"! channels=2 names=a", b"! rate=-1", b"! rate=nan", b"! polarity=x",
+    b"! channels=2 polarity=+,-,+", b"! board", b"! =5", b"!", b"! names=a,,b", b"! board=\xe9",
+])
+def test_bad_info_lines_are_garbled_with_a_reason(dec, line):
+    ev = feed_lines(dec, [line])
+    (fault,) = ev
+    assert fault.kind == FaultKind.GARBLED and "info" in fault.detail
+    assert dec.info is None
+
+
+def test_info_channels_sets_width_and_announces_a_change(dec):
+    ev = feed_lines(dec, [b"! proto=1 channels=2", b"1 2 3", b"1 2", b"! channels=3", b"1 2 3"])
+    assert frames(ev) == [(-1, (1, 2)), (-1, (1, 2, 3))]
+    changes = [e for e in ev if isinstance(e, BoardChanged)]
+    assert [(c.old_channels, c.channels) for c in changes] == [(2, 3)]
+    assert dec.stats.width_mismatch == 1 and dec.stats.board_changes == 1
+
+
+def test_comment_is_a_note_never_garbage(dec):
+    ev = feed_lines(dec, [b"#  zone 3 recalibrated  ", b"#", ck(b"# with sum")])
+    assert [e.text for e in ev if isinstance(e, Note)] == ["zone 3 recalibrated", "", "with sum"]
+    assert dec.stats.notes == 3 and dec.stats.garbled == 0
+
+
+def test_width_mismatch_and_board_change_after_three(dec):
+    ev = feed_lines(dec, [b"1 2", b"1 2 3", b"1 2", b"1 2 3", b"1 2 3", b"1 2 3 4", b"1 2 3", b"1 2 3",
+                          b"1 2 3", b"1 2 3"])
+    # 3-wide frames: 1 (streak broken by a 2-wide frame), then 2, 3 -> the third makes the change
+    assert dec.stats.width_mismatch == 6  # streaks of 3-wide: 1 | 1, 2 | (4-wide) | 1, 2, then the change
+    assert dec.stats.frames == 4
+    assert dec.stats.board_changes == 1 and dec.channels == 3
+    change = next(e for e in ev if isinstance(e, BoardChanged))
+    assert (change.old_channels, change.channels) == (2, 3)
+
+
+def test_board_change_delivers_the_third_frame(dec):
+    ev = feed_lines(dec, [b"1 2", b"@0 1 2 3", b"@1 1 2 3", b"@2 1 2 3", b"@3 1 2 3"])
+    seqs = [f[0] for f in frames(ev)]
+    assert seqs == [-1, 2, 3]
+    assert dec.stats.lost == 0  # the dropped frames' numbers were seen, so they are not "lost"
+    assert isinstance(ev[-2], BoardChanged) and isinstance(ev[-1], FrameBlock)
+
+
+def test_stream_order_and_timestamps(dec):
+    ev = dec.feed(b"# a\n1 2\n3 4\n! board=x\n5 6\n", 7.0)
+    assert [type(e).__name__ for e in ev] == ["Note", "FrameBlock", "BoardInfo", "FrameBlock"]
+    assert ev[1].first_index == 0 and ev[3].first_index == 2
+    assert np.all(ev[1].t_s == 7.0) and ev[1].readings.dtype == np.int64
+
+
+def test_line_completed_in_a_later_chunk_takes_that_chunks_time(dec):
+    assert dec.feed(b"1 2", 1.0) == []
+    ev = dec.feed(b" 3\n", 2.0)
+    assert flat(ev) == [("frame", 2.0, -1, (1, 2, 3), 0)]
+
+
+def test_stats_count_bytes(dec):
+    dec.feed(b"1 2\n3", 0.0)
+    assert dec.stats.bytes_in == 5
