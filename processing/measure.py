@@ -54,6 +54,10 @@ class History:
     def last(self, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """The newest `n` frames (fewer if not yet written), oldest first: t_s, readings, deltas, states."""
         n = min(n, len(self))
+        end = self.written % self.capacity or (self.capacity if self.written else 0)
+        if n <= end:  # one contiguous slice: views, no copy
+            sl = slice(end - n, end)
+            return self.t_s[sl], self.readings[sl], self.deltas[sl], self.states[sl]
         idx = (np.arange(self.written - n, self.written)) % self.capacity
         return self.t_s[idx], self.readings[idx], self.deltas[idx], self.states[idx]
 
@@ -154,6 +158,7 @@ class Measures:
         self.history = History(channels, max(history_frames, 2 * self.window_frames))
         self._touched = np.zeros((max(1, touched_frames), channels), np.int64)
         self._touched_written = np.zeros(channels, np.int64)
+        self._signal_cache: dict[int, tuple[int, float | None]] = {}
 
     @property
     def window_frames(self) -> int:
@@ -175,6 +180,19 @@ class Measures:
         else:
             self._touched_written[channel] = 0
 
+    def qualities(self) -> list[ChannelQuality]:
+        """`quality` of every channel, vectorised for the common case of a fully released window."""
+        w = self.window_frames
+        _, _, deltas, states = self.history.last(w)
+        full = (states == KeyState.RELEASED).all(axis=0) & (len(deltas) >= MIN_NOISE_SAMPLES)
+        rms = np.sqrt(np.mean((deltas - deltas.mean(axis=0)) ** 2, axis=0)) if len(deltas) else None
+        pp = (deltas.max(axis=0) - deltas.min(axis=0)) if len(deltas) else None
+        out = []
+        for c in range(self.channels):
+            noise = NoiseStats(float(rms[c]), float(pp[c]), len(deltas)) if full[c] else self.noise(c)
+            out.append(self._quality(noise, self.touch_signal(c)))
+        return out
+
     def released_deltas(self, channel: int) -> np.ndarray:
         """Deltas of the newest `window_frames` released frames still in the history, oldest first."""
         _, _, deltas, states = self.history.last(self.history.capacity)
@@ -190,11 +208,19 @@ class Measures:
         return NoiseStats(rms, float(values.max() - values.min()), len(values))
 
     def touch_signal(self, channel: int) -> float | None:
-        n = min(int(self._touched_written[channel]), self._touched.shape[0])
-        return float(np.median(self._touched[:n, channel])) if n else None
+        written = int(self._touched_written[channel])
+        cached = self._signal_cache.get(channel)
+        if cached is not None and cached[0] == written:  # no touched frame since: same median
+            return cached[1]
+        n = min(written, self._touched.shape[0])
+        value = float(np.median(self._touched[:n, channel])) if n else None
+        self._signal_cache[channel] = (written, value)
+        return value
 
     def quality(self, channel: int) -> ChannelQuality:
-        noise, signal = self.noise(channel), self.touch_signal(channel)
+        return self._quality(self.noise(channel), self.touch_signal(channel))
+
+    def _quality(self, noise: NoiseStats | None, signal: float | None) -> ChannelQuality:
         snr_pp = snr_rms = None
         if noise is not None and signal is not None:
             snr_pp = signal / noise.pp_counts if noise.pp_counts > 0 else math.inf

@@ -84,8 +84,9 @@ class Session:
             return []
         e, m, p = self.engine, self.measures, self._profile
         readings, baselines, deltas, states = e.readings, e.baselines_fp, e.deltas, e.states
+        quality = m.qualities()
         return [ChannelRow(c, p.names[c], readings[c], to_counts(baselines[c]), deltas[c], states[c],
-                           p.settings_for(c), m.quality(c)) for c in range(e.channels)]
+                           p.settings_for(c), quality[c]) for c in range(e.channels)]
 
     # ------------------------------------------------------------ commands
     def set_channel_settings(self, channel: int, settings: ChannelSettings) -> None:

@@ -100,3 +100,21 @@ def test_history_memory_is_bounded_and_ordered():
     t, r, d, _ = h.last(100)
     assert np.array_equal(d[:, 0], np.arange(h.written - 100, h.written))
     assert np.array_equal(t, d[:, 0].astype(float)) and np.array_equal(r, d)
+
+
+def test_vectorised_qualities_equal_per_channel_quality():
+    rng = np.random.default_rng(8)
+    m = Measures(3, rate_hz=100.0, window_s=1.0, history_frames=300)
+    for k in range(7):
+        d = rng.integers(-6, 7, (90, 3))
+        s = np.zeros((90, 3), np.int8)
+        if k in (2, 5):
+            s[40:60, 1] = TOUCHED
+            d[40:60, 1] += 200
+        feed(m, d, s, t0=k)
+        for got, want in zip(m.qualities(), [m.quality(c) for c in range(3)], strict=True):
+            assert got.verdict == want.verdict and got.signal_counts == want.signal_counts
+            assert (got.noise is None) == (want.noise is None)
+            if got.noise:  # summation order differs between the vectorised and per-channel forms
+                assert got.noise.rms_counts == pytest.approx(want.noise.rms_counts, rel=1e-12)
+                assert (got.noise.pp_counts, got.noise.samples) == (want.noise.pp_counts, want.noise.samples)
