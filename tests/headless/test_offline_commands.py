@@ -1,0 +1,214 @@
+"""replay and tune as subprocesses over recordings of the simulated board, and the HTML report."""
+
+from __future__ import annotations
+
+from html.parser import HTMLParser
+
+import pytest
+
+from processing.profile import load_profile
+from processing.recording import Mark, read_recording
+from tests.headless.helpers import json_lines, match_touches, padtune, sim_capture, write_recording
+
+SECONDS = 22.0  # the greenhouse script up to the end of the long zone2 hold (before the splash)
+
+
+@pytest.fixture(scope="module")
+def work(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("offline")
+    sim, data = sim_capture(SECONDS, seed=1)
+    (folder / "gh.raw").write_bytes(data)
+    write_recording(folder / "gh.csv", data)
+    out = padtune("tune", str(folder / "gh.csv"), "-o", str(folder / "gh.toml"), "--json")
+    assert out.returncode == 0, out.stderr
+    return folder, sim, json_lines(out.stdout)[0]
+
+
+def test_tune_writes_a_profile_that_replay_uses_to_find_every_scripted_touch(work):
+    folder, sim, tuned = work
+    profile = load_profile(folder / "gh.toml")
+    assert profile.names[:5] == ("zone1", "zone2", "zone3", "zone4", "stop")
+    rows = {r["name"]: r for r in tuned["channels"]}
+    for name in ("zone1", "zone2", "zone3", "stop"):
+        assert rows[name]["suggested"], rows[name]
+        s = profile.settings_for(profile.names.index(name))
+        assert s.threshold_counts == rows[name]["threshold"]
+        assert rows[name]["noise_pp"] < s.threshold_counts < rows[name]["signal"]
+    out = padtune("replay", str(folder / "gh.csv"), "--profile", str(folder / "gh.toml"), "--json")
+    assert out.returncode == 0, out.stderr
+    events = json_lines(out.stdout)
+    assert all("type" in e and "t" in e for e in events)
+    assert events[-1]["type"] == "summary" and events[-1]["frames"] == round(SECONDS * 60) + 1
+    touches = [e for e in events if e["type"] == "touch"]
+    debounce = max(profile.settings_for(c).touch_debounce_frames for c in range(profile.channels))
+    truth = [c for c in sim.scripted_touches(SECONDS - 0.5)]
+    missing, extra = match_touches(touches, truth, 60.0, debounce, profile.names)
+    assert not missing, missing
+    assert not extra, extra
+    releases = [e for e in events if e["type"] == "release"]
+    assert {r["channel"] for r in releases} >= {"zone1", "zone3", "zone4", "stop"}
+    counts = {c["name"]: c["touches"] for c in events[-1]["channels"]}
+    assert counts["zone2"] == 2 and counts["zone1"] == 1
+
+
+def test_raw_capture_replays_exactly_like_its_csv_recording(work):
+    folder, _, _ = work
+    profile = str(folder / "gh.toml")
+    raw = json_lines(padtune("replay", str(folder / "gh.raw"), "--profile", profile, "--json").stdout)
+    csv = json_lines(padtune("replay", str(folder / "gh.csv"), "--profile", profile, "--json").stdout)
+    key = lambda e: (e["type"], e.get("channel"), e.get("index"), e.get("delta"))  # noqa: E731
+    assert [key(e) for e in raw if e["type"] in ("touch", "release")] == \
+        [key(e) for e in csv if e["type"] in ("touch", "release")]
+    assert raw[-1]["channels"] == csv[-1]["channels"]
+
+
+def test_marks_count_false_touches(work, tmp_path):
+    folder, _, _ = work
+    data = (folder / "gh.raw").read_bytes()
+    # Only the first zone1 touch (2.0-2.6 s) and the stop touch (11-12.5 s) are marked as intended.
+    marks = [Mark(1.9, "touch-start", "zone1"), Mark(2.8, "touch-end", "zone1"),
+             Mark(10.9, "touch-start", "stop"), Mark(12.7, "touch-end", "stop")]
+    write_recording(tmp_path / "marked.csv", data, marks)
+    out = padtune("replay", str(tmp_path / "marked.csv"), "--profile", str(folder / "gh.toml"), "--json")
+    summary = json_lines(out.stdout)[-1]
+    rows = {c["name"]: c for c in summary["channels"]}
+    assert rows["zone1"]["false_touches"] == 0 and rows["stop"]["false_touches"] == 0
+    assert rows["zone2"]["false_touches"] == rows["zone2"]["touches"] == 2
+    human = padtune("replay", str(tmp_path / "marked.csv"), "--profile", str(folder / "gh.toml"))
+    assert "false" in human.stdout and "\x1b[" not in human.stdout  # piped: plain text
+
+
+def test_tune_uses_marks_when_present(work, tmp_path):
+    folder, _, _ = work
+    data = (folder / "gh.raw").read_bytes()
+    marks = [Mark(0.2, "quiet-start"), Mark(1.8, "quiet-end"),
+             Mark(2.05, "touch-start", "zone1"), Mark(2.55, "touch-end", "zone1")]
+    write_recording(tmp_path / "m.csv", data, marks)
+    out = padtune("tune", str(tmp_path / "m.csv"), "-o", str(tmp_path / "m.toml"), "--json")
+    assert out.returncode == 0, out.stderr
+    result = json_lines(out.stdout)[0]
+    assert result["from_marks"] is True
+    rows = {r["name"]: r for r in result["channels"]}
+    assert rows["zone1"]["suggested"] and rows["zone1"]["touches"] == 1
+    assert not rows["zone2"]["suggested"] and "no touch" in rows["zone2"]["refusal"]
+    human = padtune("tune", str(tmp_path / "m.csv"), "-o", str(tmp_path / "m.toml"))
+    assert "from the recording's marks" in human.stdout and "zone2: no suggestion" in human.stdout
+    assert (tmp_path / "m.toml.bak").exists()  # the second save kept the first profile
+
+
+class ReportParser(HTMLParser):
+    """Collects table rows (data-key -> {data-field: text}) and figures (data-key -> plots with svg)."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.rows: dict[str, list[dict[str, str]]] = {}
+        self.figures: dict[str, dict[str, bool]] = {}
+        self.external: list[str] = []
+        self._row: dict[str, str] | None = None
+        self._field: str | None = None
+        self._figure: tuple[str, str] | None = None
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        for attr in ("src", "href"):
+            if a.get(attr) and not a[attr].startswith("#"):
+                self.external.append(a[attr])
+        if tag == "tr" and "data-key" in a:
+            self._row = {}
+            self.rows.setdefault(a["data-key"], []).append(self._row)
+        elif tag == "td" and self._row is not None:
+            self._field = a.get("data-field")
+            self._row[self._field] = ""
+        elif tag == "figure":
+            self._figure = (a["data-key"], a["data-plot"])
+            self.figures.setdefault(a["data-key"], {})[a["data-plot"]] = False
+        elif tag == "svg" and self._figure:
+            self.figures[self._figure[0]][self._figure[1]] = True
+
+    def handle_endtag(self, tag):
+        if tag == "tr":
+            self._row = None
+        elif tag == "td":
+            self._field = None
+        elif tag == "figure":
+            self._figure = None
+
+    def handle_data(self, data):
+        if self._row is not None and self._field:
+            self._row[self._field] += data
+
+
+def _shown(value) -> str:
+    return "-" if value is None else f"{value:.1f}" if isinstance(value, float) else str(value)
+
+
+def test_tune_report_has_every_key_with_plots_and_matching_numbers(work, tmp_path):
+    folder, _, _ = work
+    report = tmp_path / "tune.html"
+    out = padtune("tune", str(folder / "gh.csv"), "-o", str(tmp_path / "r.toml"), "--report", str(report),
+                  "--json")
+    assert out.returncode == 0, out.stderr
+    result = json_lines(out.stdout)[0]
+    parser = ReportParser()
+    parser.feed(report.read_text(encoding="utf-8"))
+    assert not parser.external  # self-contained: nothing loaded from anywhere
+    names = read_recording(folder / "gh.csv").names
+    assert set(parser.rows) == set(names) and len(names) == 9
+    for row in result["channels"]:
+        shown = parser.rows[row["name"]]
+        assert len(shown) == 2  # summary table and the key's own section
+        for cells in shown:
+            for field in ("noise_pp", "noise_rms", "signal", "snr_pp", "threshold", "hysteresis"):
+                assert cells[field] == _shown(row[field]), (row["name"], field)
+            assert cells["verdict"] == row["verdict"]
+        assert parser.figures[row["name"]] == {"delta": True, "histogram": True}
+
+
+def test_report_without_matplotlib_says_so_in_one_line(work, tmp_path):
+    folder, _, _ = work
+    blocker = tmp_path / "block"
+    blocker.mkdir()
+    (blocker / "matplotlib.py").write_text("raise ImportError('blocked for the test')\n")
+    out = padtune("tune", str(folder / "gh.csv"), "-o", str(tmp_path / "x.toml"), "--report",
+                  str(tmp_path / "x.html"), env={"PYTHONPATH": str(blocker)})
+    assert out.returncode == 2
+    assert out.stderr.strip().count("\n") == 0 and "needs matplotlib" in out.stderr
+    assert not (tmp_path / "x.toml").exists()  # nothing half done
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (["replay", "/nonexistent/rec.csv"], "no such file"),
+        (["replay", "{tmp}"], "is a folder"),
+        (["replay", "{tmp}/garbage.csv"], "no frames found"),
+        (["replay", "{tmp}/damaged.csv"], ":3: "),
+        (["replay", "{gh}", "--speed", "-1"], "must be 0"),
+        (["replay", "{gh}", "--every", "abc"], "not a number of seconds"),
+        (["replay", "{gh}", "--profile", "/nonexistent.toml"], "no such profile"),
+        (["replay", "{gh}", "--profile", "{tmp}/bad.toml"], "bad.toml"),
+        (["tune", "{gh}", "-o", "{tmp}/out.txt"], "end the name in .toml"),
+        (["tune", "{gh}"], "required"),
+        (["tune", "{tmp}/short.csv", "-o", "{tmp}/s.toml"], "only"),
+    ],
+)
+def test_bad_arguments_and_files_exit_2_with_one_clear_line(work, tmp_path, args, message):
+    folder, _, _ = work
+    (tmp_path / "garbage.csv").write_bytes(b"\x00\x01 hello there\nnot a frame\n")
+    (tmp_path / "damaged.csv").write_text("# padtune recording v1\nt_s,seq,a\n0.1,0,zz\n")
+    (tmp_path / "short.csv").write_text("# padtune recording v1\nt_s,seq,a\n0.1,0,5\n")
+    (tmp_path / "bad.toml").write_text("format_version = 1\nchannels = 2\nnames = ['a', 'b']\n"
+                                       "[defaults]\nthreshhold_counts = 5\n")
+    full = [a.replace("{tmp}", str(tmp_path)).replace("{gh}", str(folder / "gh.csv")) for a in args]
+    out = padtune(*full)
+    assert out.returncode == 2, (out.stdout, out.stderr)
+    assert message in out.stderr
+    assert "Traceback" not in out.stderr
+    if not out.stderr.startswith("usage:"):  # argparse adds its usage line; ours are one line
+        assert out.stderr.strip().count("\n") == 0 or "bad.toml" in message, out.stderr
+
+
+def test_every_command_has_help():
+    for command in ("monitor", "record", "replay", "tune", "check"):
+        out = padtune(command, "--help")
+        assert out.returncode == 0 and f"usage: padtune {command}" in out.stdout
