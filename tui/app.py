@@ -225,7 +225,8 @@ class PadtuneApp(App[int]):
         ch = self.cursor
         styles = self.query_one(ChannelTable).styles_map()
         width = bar.size.width or 80
-        bar.update(edit_bar(names[ch], self.source.settings(ch), self.field_key, styles, width))
+        position = f"{ch + 1}/{len(names)}" if len(names) > 1 else ""
+        bar.update(edit_bar(names[ch], self.source.settings(ch), self.field_key, styles, width, position))
 
     def _draw_detail(self) -> None:
         names = self.source.channel_names()
@@ -315,6 +316,8 @@ class PadtuneApp(App[int]):
         self.refresh_now_if_idle()
 
     def refresh_now_if_idle(self) -> None:
+        """Show the effect of an action at once (the timer would, within a frame; tests run without it)."""
+        self.query_one(LinkStrip).show(self._link_view())
         if self.ui_hz == 0:
             self.refresh_now()
 
@@ -418,14 +421,20 @@ class PadtuneApp(App[int]):
             path = self.source.stop_recording()
             self.notify(f"Recording saved to {path}")
             self._log(f"recording stopped: {path}")
+            self.refresh_now_if_idle()
             return
         default = time.strftime("padtune-%Y%m%d-%H%M%S.csv")
 
         def done(text: str | None) -> None:
             if text:
                 path = Path(text).expanduser().resolve()
-                self.source.start_recording(path)
+                try:
+                    self.source.start_recording(path)
+                except UserError as exc:
+                    self.notify(str(exc), severity="error")
+                    return
                 self._log(f"recording to {path}")
+                self.refresh_now_if_idle()
 
         self.push_screen(PromptScreen("Record to file:", default, _writable_path), done)
 
@@ -442,6 +451,7 @@ class PadtuneApp(App[int]):
     def _after_save(self, path: Path, what: str) -> None:
         self.notify(f"{what} written to {path}")
         self._log(f"{what} written to {path}")
+        self.refresh_now_if_idle()
 
     def action_save(self) -> None:
         if self.source.profile_path() is None:
@@ -462,7 +472,7 @@ class PadtuneApp(App[int]):
                 return reason
             try:
                 self._after_save(self.source.save(Path(text).expanduser().resolve()), "profile")
-            except UserError as exc:
+            except (UserError, OSError) as exc:
                 return str(exc)
             return None
 
@@ -473,7 +483,7 @@ class PadtuneApp(App[int]):
             def check(text: str) -> str | None:
                 try:
                     self.source.load(Path(text).expanduser().resolve())
-                except UserError as exc:
+                except (UserError, OSError) as exc:
                     return str(exc)
                 self.history.clear()
                 self._log(f"profile loaded from {Path(text).expanduser().resolve()}")
@@ -494,7 +504,7 @@ class PadtuneApp(App[int]):
                 return reason
             try:
                 path = self.source.export(Path(text).expanduser().resolve())
-            except UserError as exc:
+            except (UserError, OSError) as exc:
                 return str(exc)
             self._after_save(path, "firmware export")
             return None

@@ -12,8 +12,9 @@ from protocol.errors import UserError
 
 
 def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = False) -> int:
-    from processing.profile import load_profile
     from protocol.link import Link, open_port
+
+    from processing.profile import load_profile
     from tui.app import PadtuneApp
     from tui.session_source import SessionSource
 

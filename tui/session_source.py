@@ -181,7 +181,7 @@ class SessionSource:
             bad_checksum=stats.bad_checksum, resets=stats.resets, overflow=stats.overflow,
             detail=self._status_detail, board=(info.board if info else None),
             recording=str(self._recorder.path) if self._recorder else None,
-            profile_name=path.name if path else "(unsaved defaults)", unsaved=self.unsaved(),
+            profile_name=path.name if path else "(not saved yet)", unsaved=self.unsaved(),
         )
 
     def series(self, channel: int) -> Series | None:
@@ -258,18 +258,21 @@ class SessionSource:
         self._path, self._saved = path, self.session.profile
 
     def export(self, path: Path) -> Path:
-        from processing import profile as profiles
+        from processing import export
 
         profile = self.session.profile
         if profile is None:
             raise UserError("nothing to export yet: the board has not sent any frames")
         if path.suffix.lower() == ".json":
-            profiles.export_json(profile, path)
+            export.export_json(profile, path, source=self._source_name())
         elif path.suffix.lower() in (".h", ".hpp"):
-            profiles.export_c_header(profile, path)
+            export.export_c_header(profile, path, source=self._source_name())
         else:
             raise UserError(f"{path.name}: end the name in .h for a C header or .json for JSON")
         return path
+
+    def _source_name(self) -> str:
+        return str(self._path) if self._path and not self.unsaved() else ""
 
     # -- recording --------------------------------------------------------------------------------
     def start_recording(self, path: Path) -> None:

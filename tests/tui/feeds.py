@@ -14,7 +14,8 @@ from protocol.events import BoardInfo, Event, FrameBlock, LinkState, LinkStats, 
 
 class SyntheticFeed:
     def __init__(self, names: tuple[str, ...] = ("zone1", "zone2", "zone3", "zone4", "stop"),
-                 rate_hz: float = 100.0, base_counts: int = 1000, noise_counts: int = 2, seed: int = 3) -> None:
+                 rate_hz: float = 100.0, base_counts: int = 1000, noise_counts: int = 2,
+                 seed: int = 3) -> None:
         self.names, self.rate_hz, self.base, self.noise = names, rate_hz, base_counts, noise_counts
         self.rng = np.random.default_rng(seed)
         self.t_s = 0.0
@@ -69,3 +70,51 @@ def screen_text(app: object) -> str:
     """The screen as plain text lines (what a user reads), for asserting on what is shown."""
     strips = app.screen._compositor.render_strips()  # type: ignore[attr-defined]
     return "\n".join(strip.text.rstrip() for strip in strips)
+
+
+class SimFeed:
+    """A seeded simulated board decoded by the real decoder; `advance()` moves its clock forward.
+
+    Frames are fed in steps of one screen frame (1/20 s by default) so arrival times look like a link's.
+    """
+
+    def __init__(self, board: str = "greenhouse", seed: int = 7, step_s: float = 0.05, script: bool = False,
+                 **sim_args: object) -> None:
+        from devices.simulator import SimBoard
+        from protocol.decoder import Decoder
+
+        self.t_s = 0.0
+        self.step_s = step_s
+        self.board = SimBoard(board, seed=seed, clock=lambda: self.t_s, script=script, **sim_args)
+        self.decoder = Decoder()
+        self.queue: list[Event] = []
+        self._state = LinkState.CONNECTED
+
+    def advance(self, seconds: float) -> None:
+        steps = max(1, round(seconds / self.step_s))
+        for _ in range(steps):
+            self.t_s += self.step_s
+            self.queue.extend(self.decoder.feed(self.board.read_due(), self.t_s))
+
+    def drain(self, max_events: int | None = None) -> list[Event]:
+        out, self.queue = self.queue, []
+        return out
+
+    def write(self, data: bytes) -> None:
+        self.board.write(data)
+
+    @property
+    def stats(self) -> LinkStats:
+        return self.decoder.stats.snapshot()
+
+    @property
+    def state(self) -> LinkState:
+        return self._state
+
+
+def log_text(app: object) -> str:
+    """Everything in the event log, oldest first (the screen shows only its last lines)."""
+    from tui.widgets.event_log import EventLog
+
+    log = app.query_one(EventLog)  # type: ignore[attr-defined]
+    return "\n".join(strip.text.rstrip() for strip in log.lines)

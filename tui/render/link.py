@@ -22,16 +22,21 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
     glyph, word, role = _STATE_WORDS.get(view.state, ("?", view.state, "warn"))
     sep = Text(" │ ", style=pick(styles, "dim"))
     text = Text(no_wrap=True, overflow="ellipsis", end="")
+    if view.paused:
+        text.append("⏸ DISPLAY PAUSED", pick(styles, "warn"))
+        text.append_text(sep)
     text.append(f"{glyph} {word}", pick(styles, role))
     if view.detail and role != "good":
         text.append(f" ({view.detail})", pick(styles, role))
     text.append_text(sep)
     text.append(view.port, pick(styles, "name"))
     text.append(f" {view.baud} Bd")
-    if view.board:
+    if view.board and not compact:
         text.append(f" {view.board}", pick(styles, "dim"))
     text.append_text(sep)
     text.append(f"{view.fps:.0f} fps")
+    if compact:
+        text.append("\n")
     counters = (
         ("lost", view.lost),
         ("garbled", view.garbled),
@@ -40,24 +45,18 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
     )
     if view.overflow:
         counters += (("overflow", view.overflow),)
-    for name, count in counters:
-        text.append(f" {name} ")
+    for i, (name, count) in enumerate(counters):
+        text.append(f"{' ' if i or not compact else ''}{name} ")
         text.append(str(count), pick(styles, "warn" if count else "dim"))
-    if compact:
-        text.append("\n")
-    else:
-        text.append_text(sep)
+    text.append_text(sep)
     if view.recording:
         text.append("⏺ REC ", pick(styles, "bad"))
         text.append(view.recording if not compact else view.recording.rsplit("/", 1)[-1])
     else:
-        text.append("not recording", pick(styles, "dim"))
+        text.append("rec off", pick(styles, "dim"))
     text.append_text(sep)
     text.append("profile ")
     text.append(view.profile_name, pick(styles, "name"))
     if view.unsaved:
-        text.append(" * unsaved", pick(styles, "warn"))
-    if view.paused:
-        text.append_text(sep)
-        text.append("⏸ DISPLAY PAUSED", pick(styles, "warn"))
+        text.append(" *unsaved", pick(styles, "warn"))
     return text

@@ -31,10 +31,13 @@ def _duration(seconds: float) -> str:
     return f"{seconds * 1000:.0f} ms" if seconds < 10 else f"{seconds:.0f} s"
 
 
-def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: Styles, width: int) -> Text:
+def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: Styles, width: int,
+             position: str = "") -> Text:
     """One line: the selected channel and its main settings, the field under edit marked with `▸`."""
     text = Text(no_wrap=True, end="")
     text.append(f"{name} ", pick(styles, "header"))
+    if position:
+        text.append(f"{position} ", pick(styles, "dim"))
     for f in FIELDS:
         value = getattr(settings, f.key)
         chosen = f.key == selected_key

@@ -10,6 +10,7 @@ from collections.abc import Sequence
 from typing import ClassVar
 
 from rich.style import Style
+from rich.text import Text
 from textual.reactive import reactive
 from textual.strip import Strip
 from textual.widget import Widget
@@ -100,8 +101,10 @@ class ChannelTable(Widget):
         if y == 0:
             text = header_line(layout, styles)
             if len(self._views) > self.size.height - 1:
-                last = min(len(self._views), self._top + self.size.height - 1)
-                text.append(f" {self._top + 1}-{last}/{len(self._views)}", styles["dim"])
+                # More rows than fit: say so in the cursor column; the edit bar shows "n/N".
+                more_up, more_down = self._top > 0, self._top + self.size.height - 1 < len(self._views)
+                text = Text("↕" if more_up and more_down else "↑" if more_up else "↓", styles["dim"]) + \
+                    text[1:]
         else:
             index = self._top + y - 1
             if index >= len(self._views):

@@ -65,8 +65,8 @@ class DetailPanel(Vertical):
         self.query_one("#detail-title", Static).update(Text(f"{name}: {mode}", no_wrap=True))
         settings_lines = settings_text(settings, selected_key, styles, rate_hz)
         self.query_one("#detail-settings", Static).update(settings_lines)
-        lines = Text("recent events\n", style=styles["dim"], no_wrap=True)
-        for line in list(events)[-6:]:
+        lines = Text("recent events, newest first\n", style=styles["dim"], no_wrap=True)
+        for line in reversed(list(events)[-6:]):
             lines.append(line + "\n")
         if not events:
             lines.append("(none yet)", styles["dim"])

@@ -1,0 +1,404 @@
+"""Every action of the live screen through Textual's pilot, on the real session fed by a test feed.
+
+The screen timer is off (`ui_hz=0`): each test moves the feed's clock and calls `refresh_now()`,
+which is exactly what the timer does, so nothing depends on threads or wall time.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from textual.pilot import Pilot
+
+from processing.detections import KeyState
+from processing.profile import load_profile
+from processing.recording import read_recording
+from processing.session import Session
+from tests.tui.feeds import SimFeed, SyntheticFeed, log_text, screen_text
+from tui.app import BINDINGS, PadtuneApp, help_rows
+from tui.demo_profile import demo_profile
+from tui.render.help import SAFETY_CAUTIONS
+from tui.screens.confirm import ConfirmScreen
+from tui.screens.help import HelpScreen
+from tui.screens.prompt import PromptScreen
+from tui.session_source import SessionSource
+
+
+def make_app(feed: SyntheticFeed | None = None, **source_args: object) -> tuple[PadtuneApp, SyntheticFeed]:
+    feed = feed or SyntheticFeed()
+    source = SessionSource(feed, port="test://feed", clock=lambda: feed.t_s, **source_args)
+    return PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s), feed
+
+
+def run(app: PadtuneApp, feed: SyntheticFeed | SimFeed, seconds: float, step_s: float = 0.05) -> None:
+    for _ in range(max(1, round(seconds / step_s))):
+        feed.advance(step_s)
+        app.refresh_now()
+
+
+async def type_into_prompt(pilot: Pilot, text: str) -> None:
+    assert isinstance(pilot.app.screen, PromptScreen)
+    await pilot.press("ctrl+a", "ctrl+k")  # clear the proposed value
+    await pilot.press(*list(text))
+    await pilot.press("enter")
+    await pilot.pause()
+
+
+def session_of(app: PadtuneApp) -> Session:
+    return app.source.session  # type: ignore[attr-defined]
+
+
+async def test_typed_threshold_changes_live_detection() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 1.0)
+        await pilot.press("down")  # zone2
+        feed.set_touch(1, 80)  # below the default threshold of 100: no touch
+        run(app, feed, 0.5)
+        engine = session_of(app).engine
+        assert engine.states[1] == KeyState.RELEASED
+        await pilot.press("enter")
+        await type_into_prompt(pilot, "50")
+        assert engine.settings[1].threshold_counts == 50
+        run(app, feed, 0.3)
+        assert engine.states[1] == KeyState.TOUCHED
+        assert "● TOUCH" in screen_text(app)
+        assert "zone2: threshold 100 → 50" in screen_text(app)
+        assert app.source.unsaved()
+
+
+async def test_fine_and_coarse_steps_and_field_choice() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("plus", "plus", "right_square_bracket")
+        assert app.source.settings(0).threshold_counts == 100 + 1 + 1 + 10
+        await pilot.press("left_square_bracket", "minus")
+        assert app.source.settings(0).threshold_counts == 101
+        await pilot.press("right")  # hysteresis
+        await pilot.press("plus")
+        assert app.source.settings(0).hysteresis_counts == 16
+        await pilot.press("right", "right", "right", "right", "right")  # baseline period doubles
+        await pilot.press("plus")
+        assert app.source.settings(0).baseline_period_frames == 32
+        assert app.source.settings(1) == session_of(app).profile.defaults  # others untouched
+
+
+async def test_refused_values_keep_the_old_one_and_say_why() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("right", "enter")  # hysteresis
+        await type_into_prompt(pilot, "150")
+        assert isinstance(app.screen, PromptScreen)  # still open, with the reason
+        error = str(app.screen.query_one("#prompt-error").render())
+        assert "below the threshold" in error
+        await pilot.press("escape")
+        assert app.source.settings(0).hysteresis_counts == 15
+        await pilot.press("enter")
+        await type_into_prompt(pilot, "abc")
+        assert "whole number" in str(app.screen.query_one("#prompt-error").render())
+        await pilot.press("escape")
+        await pilot.press("left")  # threshold: stepping below 1 is refused, the value stays
+        for _ in range(3):
+            await pilot.press("left_square_bracket")
+        await pilot.pause()
+        assert app.source.settings(0).threshold_counts == 70
+        app.source.apply(0, app.source.settings(0).__class__(threshold_counts=5, hysteresis_counts=2))
+        await pilot.press("left_square_bracket")
+        assert app.source.settings(0).threshold_counts == 5
+        assert not app.history.can_undo or app.source.settings(0).threshold_counts == 5
+
+
+async def test_undo_and_redo_restore_the_engine() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        engine = session_of(app).engine
+        await pilot.press("plus", "plus", "a")  # 102 on zone1, then copied to all
+        assert [s.threshold_counts for s in engine.settings] == [102] * 5
+        await pilot.press("u")
+        assert [s.threshold_counts for s in engine.settings] == [102, 100, 100, 100, 100]
+        await pilot.press("u", "u")
+        assert [s.threshold_counts for s in engine.settings] == [100] * 5
+        assert not app.source.unsaved()
+        await pilot.press("u")  # nothing left: says so, changes nothing
+        await pilot.press("U")
+        assert engine.settings[0].threshold_counts == 101
+        await pilot.press("ctrl+y", "ctrl+y")
+        assert [s.threshold_counts for s in engine.settings] == [102] * 5
+
+
+async def test_apply_to_group_only_touches_the_group() -> None:
+    feed = SimFeed()
+    source = SessionSource(feed, port="sim://greenhouse", profile=demo_profile("greenhouse"),
+                           clock=lambda: feed.t_s)
+    app = PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s, demo=True)
+    async with app.run_test() as pilot:
+        run(app, feed, 1.0)
+        await pilot.press("plus", "g")
+        names = source.channel_names()
+        thresholds = {n: source.settings(i).threshold_counts for i, n in enumerate(names)}
+        assert {thresholds[f"zone{i}"] for i in range(1, 5)} == {31}
+        assert thresholds["stop"] == 30 and thresholds["dur0"] == 30
+        await pilot.press("end", "g")  # dur3 is in no group: refused with a notice, nothing changes
+        assert source.settings(len(names) - 1).threshold_counts == 30
+
+
+async def test_save_writes_a_valid_profile_and_clears_unsaved(tmp_path: Path) -> None:
+    app, feed = make_app()
+    target = tmp_path / "keys.toml"
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("down", "plus")
+        assert "*unsaved" in screen_text(app)
+        await pilot.press("s")  # no file yet: asks where
+        await type_into_prompt(pilot, str(target))
+        assert not isinstance(app.screen, PromptScreen)
+        saved = load_profile(target)
+        assert saved.settings_for(1).threshold_counts == 101
+        assert saved.settings_for(0).threshold_counts == 100
+        assert saved.names == feed.names
+        assert not app.source.unsaved()
+        run(app, feed, 0.1)
+        text = screen_text(app)
+        assert "keys.toml" in text and "*unsaved" not in text
+        await pilot.press("plus", "s")  # a second save goes to the same file at once
+        assert load_profile(target).settings_for(1).threshold_counts == 102
+        assert (tmp_path / "keys.toml.bak").exists()
+
+
+async def test_save_as_refuses_a_missing_folder(tmp_path: Path) -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("S")
+        await type_into_prompt(pilot, str(tmp_path / "nope" / "x.toml"))
+        assert "does not exist" in str(app.screen.query_one("#prompt-error").render())
+        await pilot.press("escape")
+        assert not list(tmp_path.iterdir())
+
+
+async def test_load_replaces_settings_and_export_writes_a_header(tmp_path: Path) -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("plus", "plus", "plus")
+        await pilot.press("S")
+        await type_into_prompt(pilot, str(tmp_path / "a.toml"))
+        await pilot.press("minus")
+        assert app.source.unsaved()
+        await pilot.press("o")
+        assert isinstance(app.screen, ConfirmScreen)  # loading would drop the unsaved edit
+        await pilot.press("y")
+        await type_into_prompt(pilot, str(tmp_path / "missing.toml"))
+        assert "no such profile" in str(app.screen.query_one("#prompt-error").render())
+        await pilot.press("ctrl+a", "ctrl+k")
+        await type_into_prompt(pilot, str(tmp_path / "a.toml"))
+        assert app.source.settings(0).threshold_counts == 103
+        assert not app.source.unsaved()
+        await pilot.press("x")
+        await type_into_prompt(pilot, str(tmp_path / "keys.h"))
+        header = (tmp_path / "keys.h").read_text()
+        assert "103" in header
+        assert f"firmware export written to {tmp_path / 'keys.h'}" in log_text(app)
+
+
+async def test_quit_asks_when_edits_are_unsaved() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("plus", "q")
+        assert isinstance(app.screen, ConfirmScreen)
+        assert "unsaved" in screen_text(app)
+        await pilot.press("n")
+        assert not isinstance(app.screen, ConfirmScreen)
+        assert app.is_running
+        await pilot.press("q", "y")
+        await pilot.pause()
+    assert not app.is_running
+
+
+async def test_quit_without_edits_does_not_ask() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("q")
+        await pilot.pause()
+    assert not app.is_running
+
+
+async def test_disconnect_shows_at_once_and_clears_and_edits_survive() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("plus")
+        feed.disconnect()
+        app.refresh_now()
+        text = screen_text(app)
+        assert "RECONNECTING" in text
+        assert "link disconnected" in text
+        assert app.query_one("#link").has_class("-down")
+        feed.reconnect()
+        run(app, feed, 0.5)
+        text = screen_text(app)
+        assert "RECONNECTING" not in text and "● connected" in text
+        assert not app.query_one("#link").has_class("-down")
+        assert app.source.settings(0).threshold_counts == 101
+        assert "*unsaved" in text
+
+
+async def test_rebaseline_one_and_all() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 1.0)
+        feed.base += 40  # everything drifts up at once
+        run(app, feed, 0.1)
+        assert session_of(app).engine.deltas[2] >= 35
+        await pilot.press("down", "down", "b")
+        run(app, feed, 0.1)
+        deltas = session_of(app).engine.deltas
+        assert abs(deltas[2]) <= 5 and deltas[0] >= 35
+        await pilot.press("B")
+        run(app, feed, 0.1)
+        assert all(abs(d) <= 5 for d in session_of(app).engine.deltas)
+        assert "re-baselined" in screen_text(app)
+
+
+async def test_pause_freezes_the_display_but_not_detection() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("space")
+        before = screen_text(app).splitlines()[3]
+        feed.set_touch(0, 300)
+        run(app, feed, 0.5)
+        assert session_of(app).engine.states[0] == KeyState.TOUCHED
+        text = screen_text(app)
+        assert text.splitlines()[3] == before  # zone1's row did not move
+        assert "DISPLAY PAUSED" in text
+        assert "zone1 touch" in text  # the log keeps running
+        await pilot.press("space")
+        run(app, feed, 0.1)
+        assert "● TOUCH" in screen_text(app)
+
+
+async def test_recording_with_a_mark(tmp_path: Path) -> None:
+    app, feed = make_app()
+    target = tmp_path / "run.csv"
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("m")  # not recording: says so
+        await pilot.press("r")
+        await type_into_prompt(pilot, str(target))
+        run(app, feed, 1.0)
+        assert "⏺ REC" in screen_text(app)
+        await pilot.press("m")
+        run(app, feed, 1.0)
+        await pilot.press("r")
+        assert "rec off" in screen_text(app)
+    rec = read_recording(target)
+    assert rec.frames == 200
+    assert rec.names == feed.names
+    assert [m.text for m in rec.marks] == ["mark at zone1"]
+
+
+async def test_demo_keys_press_the_simulated_board() -> None:
+    feed = SimFeed()
+    source = SessionSource(feed, port="sim://greenhouse", profile=demo_profile("greenhouse"),
+                           clock=lambda: feed.t_s)
+    app = PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s, demo=True)
+    async with app.run_test() as pilot:
+        run(app, feed, 1.5)
+        await pilot.press("2")
+        assert feed.board.held() == ["zone2"]
+        run(app, feed, 0.5)
+        assert source.session.engine.states[1] == KeyState.TOUCHED
+        text = screen_text(app)
+        assert "zone2 touch" in text and "group zones: ● zone2 wins" in text
+        await pilot.press("2")
+        run(app, feed, 0.5)
+        assert feed.board.held() == []
+        assert source.session.engine.states[1] == KeyState.RELEASED
+        assert "zone2 release" in log_text(app)
+
+
+async def test_key_presses_refused_on_a_real_port() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("1", "t")
+        assert feed.written == []
+
+
+async def test_detail_panel_and_spectrum() -> None:
+    app, feed = make_app()
+    async with app.run_test(size=(120, 40)) as pilot:
+        run(app, feed, 3.0)
+        await pilot.press("d")
+        app.refresh_now()
+        await pilot.pause()
+        text = screen_text(app)
+        assert "reading & baseline" in text and "release level" in text and "▸ threshold" in text
+        await pilot.press("f")
+        run(app, feed, 0.2)
+        await pilot.pause()
+        assert "noise spectrum" in screen_text(app) and "strongest noise" in screen_text(app)
+        await pilot.press("d")
+        assert not app.query_one("#detail").display
+
+
+async def test_help_lists_every_binding_and_the_cautions() -> None:
+    app, feed = make_app()
+    async with app.run_test(size=(120, 40)) as pilot:
+        run(app, feed, 0.2)
+        await pilot.press("question_mark")
+        assert isinstance(app.screen, HelpScreen)
+        await pilot.pause()
+        shown = app.screen.query_one("#help-keys").render()
+        assert shown is not None
+        rows = help_rows()
+        described = {b.tooltip or b.description for b in BINDINGS if not (b.id or "").startswith("demo.key")}
+        assert described <= {r[2] for r in rows}
+        safety = str(app.screen.query_one("#help-safety").render())
+        assert "isolat" in safety and "not safety controls" in safety
+        assert len(SAFETY_CAUTIONS) == 3
+        await pilot.press("escape")
+        assert not isinstance(app.screen, HelpScreen)
+
+
+async def test_command_palette_lists_actions_by_name() -> None:
+    app, _ = make_app()
+    async with app.run_test() as pilot:
+        titles = [c.title for c in app.get_system_commands(app.screen)]
+        assert "Save the profile" in titles and "Undo the last edit" in titles
+        assert "Re-baseline all channels" in titles
+        await pilot.press("ctrl+p")
+        await pilot.pause()
+        assert app.screen.__class__.__name__ == "CommandPalette"
+
+
+async def test_moving_through_64_channels_keeps_the_cursor_in_view() -> None:
+    feed = SyntheticFeed(names=tuple(f"k{i}" for i in range(64)))
+    app, feed = make_app(feed)
+    async with app.run_test() as pilot:
+        run(app, feed, 0.3)
+        await pilot.press("end")
+        text = screen_text(app)
+        assert "▶ k63" in text and "/64" in text
+        await pilot.press("pageup", "home")
+        assert "▶ k0" in screen_text(app)
+
+
+async def test_touch_events_land_in_the_log_and_the_detail_history() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 1.0)
+        feed.set_touch(0, 200)
+        run(app, feed, 0.5)
+        feed.set_touch(0, 0)
+        run(app, feed, 0.5)
+        lines = list(app.recent[0])
+        assert any("touch" in line for line in lines) and any("release" in line for line in lines)
+        await pilot.press("d")
+        assert "zone1 release" in screen_text(app)
