@@ -20,6 +20,7 @@ from devices.touches import Contact, TouchPlan
 CHUNK_FRAMES = 256
 OPEN_PAD_F = 2e-12  # an open pad leaves only the pin and a stub of trace
 SHORTED_PAD_F = 1e-6  # a pad shorted to ground looks like an enormous capacitor
+MIN_PAD_F = 0.1e-12
 
 
 @dataclass(slots=True)
@@ -128,6 +129,7 @@ class BoardModel:
             cap[:, ch] = OPEN_PAD_F + white[:, ch] * white_pf[ch] * 1e-12
         for ch in self.faults.shorted_pads:
             cap[:, ch] = SHORTED_PAD_F
+        np.maximum(cap, MIN_PAD_F, out=cap)  # noise never makes a capacitance negative
         counts = self.spec.method.counts(cap, dither)
         if self.spec.noise.counts_rms:
             counts = counts + np.rint(post * self.spec.noise.counts_rms).astype(np.int64)

@@ -7,6 +7,7 @@ seconds and a list of (channel, share) pairs: how much of the fingertip lies ove
 
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass
 
@@ -15,6 +16,7 @@ import numpy as np
 from devices.spec import BoardSpec, ScriptTouch
 
 RAMP_S = 0.03  # a finger arrives and leaves over some tens of milliseconds, not in one frame
+MAX_HISTORY = 100_000  # random touches and presses kept as ground truth; older ones are forgotten
 
 
 @dataclass(frozen=True, slots=True)
@@ -67,7 +69,8 @@ class TouchPlan:
         self.script = script and bool(spec.script)
         self.random_per_min = spec.random.per_min if random_per_min is None else random_per_min
         self._rng = np.random.default_rng([seed, 0x70C4])
-        self._random: list[Contact] = []
+        self._random: list[Contact] = []  # in time order, one after another: ends rise with starts
+        self._random_ends: list[float] = []
         self._random_until_s = 0.0
         self._next_random_s = self._gap_s()
         self.presses: list[Contact] = []
@@ -88,7 +91,11 @@ class TouchPlan:
             name = self._random_pads[int(self._rng.random() * len(self._random_pads))]
             self._random.append(Contact("finger", (name,), (self.spec.channel_index(name),), start,
                                         start + hold, strength, "random"))
+            self._random_ends.append(start + hold)
             self._next_random_s = start + hold + self._gap_s()
+        if len(self._random) > MAX_HISTORY:
+            del self._random[: len(self._random) - MAX_HISTORY]
+            del self._random_ends[: len(self._random_ends) - MAX_HISTORY]
         self._random_until_s = max(self._random_until_s, until_s)
 
     def scripted(self, start_s: float, end_s: float) -> list[Contact]:
@@ -107,7 +114,8 @@ class TouchPlan:
         """Every contact that touches the time span [start_s - ramp, end_s + ramp]."""
         self._extend_random(end_s + RAMP_S)
         lo, hi = start_s - RAMP_S, end_s + RAMP_S
-        pool = self.scripted(start_s, end_s) + self._random + self.presses
+        recent = self._random[bisect.bisect_left(self._random_ends, lo):]
+        pool = self.scripted(start_s, end_s) + recent + self.presses
         return [c for c in pool if c.start_s <= hi and c.end_s >= lo]
 
     def truth(self, until_s: float) -> list[Contact]:
@@ -118,6 +126,10 @@ class TouchPlan:
 
     def press(self, channel: int, t_s: float, strength: float) -> None:
         self.release(channel, t_s)
+        if len(self.presses) > MAX_HISTORY:  # forget the oldest finished presses, never a held one
+            held = [c for c in self.presses if math.isinf(c.end_s)]
+            done = [c for c in self.presses if not math.isinf(c.end_s)]
+            self.presses = held + done[len(done) - MAX_HISTORY:]
         name = self.spec.names[channel]
         self.presses.append(Contact("finger", (name,), (channel,), t_s, math.inf, strength, "press"))
 

@@ -156,3 +156,33 @@ def test_padtune_estimate_json_and_plain_text():
     bad = subprocess.run([sys.executable, "-m", "tui.cli", "estimate", "--thickness-mm", "3"],
                          capture_output=True, text=True, timeout=60)
     assert bad.returncode == 2 and "--material" in bad.stderr and "Traceback" not in bad.stderr
+
+
+def test_pty_server_sends_only_to_a_client_and_starts_each_connection_cleanly():
+    from devices.pty_server import PtyServer
+
+    board = SimBoard("greenhouse", seed=2, speed=6.0)
+    server = PtyServer(board)
+    stop = threading.Event()
+    thread = threading.Thread(target=server.serve, args=(stop.is_set,), daemon=True)
+    thread.start()
+    try:
+        time.sleep(0.3)  # nobody connected: nothing is sent, the board keeps time
+        assert server.stats.bytes_sent == 0
+        for connection in (1, 2):
+            port = serial.Serial(server.path, 115200, timeout=0.05)
+            decoder = Decoder()
+            events = read_all(port, decoder, 0.6)
+            port.write(b"?\n")
+            events += read_all(port, decoder, 0.3)
+            port.close()
+            time.sleep(0.2)
+            s = decoder.stats
+            assert s.garbled == s.bad_checksum == s.lost == 0 and s.frames > 30, (connection, s)
+            assert s.infos == 2  # one on connect, one asked for with ?
+            assert not isinstance(events[0], FrameBlock)  # the info line comes before any frame
+        assert server.stats.connects == 2
+    finally:
+        stop.set()
+        thread.join(5)
+        server.close()

@@ -1,0 +1,68 @@
+"""Property tests (hypothesis): the simulator's promises hold for any cuts, inputs and fault plans."""
+
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from devices.faults import FaultPlan
+from devices.simulator import SimBoard
+from protocol.decoder import Decoder
+from protocol.errors import UserError
+from protocol.events import FrameBlock
+
+REFERENCE = {}
+
+
+def reference(seed: int, faults: tuple[str, ...]) -> bytes:
+    key = (seed, faults)
+    if key not in REFERENCE:
+        REFERENCE[key] = SimBoard("greenhouse", seed=seed, faults=FaultPlan.parse(faults)).run_for(6.0)
+    return REFERENCE[key]
+
+
+@settings(max_examples=25, deadline=None)
+@given(cuts=st.lists(st.floats(0.001, 2.0), min_size=1, max_size=8), seed=st.sampled_from([0, 7]),
+       faults=st.sampled_from([(), ("drop:0.05", "garble:0.03", "junk:0.02", "reset@2", "width:8@4")]))
+def test_same_seed_same_bytes_however_time_is_cut(cuts, seed, faults):
+    board = SimBoard("greenhouse", seed=seed, faults=FaultPlan.parse(faults))
+    data = b""
+    total = 0.0
+    for cut in cuts:
+        if total + cut > 6.0:
+            break
+        data += board.run_for(cut)
+        total += cut
+    data += board.run_for(6.0 - total)
+    assert data == reference(seed, faults)
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.text(max_size=40))
+def test_fault_items_parse_or_say_why(text):
+    try:
+        FaultPlan.parse([text])
+    except UserError as exc:
+        assert "\n" not in str(exc)
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.binary(max_size=600))
+def test_any_host_bytes_are_survived(data):
+    board = SimBoard("greenhouse", seed=1)
+    board.write(data)
+    assert len(board._commands) <= 256  # a host that never ends a line cannot grow memory
+    d = Decoder()
+    d.feed(board.run_for(0.2), 0.0)
+    assert d.stats.garbled == d.stats.bad_checksum == 0  # replies are well-formed lines
+
+
+@pytest.mark.parametrize("board", ["greenhouse", "pumphouse", "grid64"])
+def test_readings_stay_inside_the_methods_range(board):
+    # A wildly noisy pad and a shorted one still give readings the method can produce: 0..max_count.
+    names = SimBoard(board).spec.names
+    b = SimBoard(board, seed=3, faults=FaultPlan.parse([f"noisy:{names[0]}:1000", f"short:{names[1]}"]))
+    d = Decoder()
+    blocks = [e for e in d.feed(b.run_for(2.0), 0.0) if isinstance(e, FrameBlock)]
+    assert d.stats.frames > 0 and d.stats.garbled == 0
+    for block in blocks:
+        assert block.readings.min() >= 0 and block.readings.max() <= b.spec.method.max_count
