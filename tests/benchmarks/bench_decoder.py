@@ -1,0 +1,165 @@
+"""Decoder throughput: protocol v1 frames with sequence numbers and checksums, 16 and 64 channels.
+
+Prints MB/s and frames/s of the fast decoder (`protocol.decoder.Decoder`, fed 64 KiB chunks) as
+ratios, measured in this one run, to
+- the byte rate of USB full-speed bulk transfers: 19 packets of 64 bytes per 1 ms frame, 1,216,000 B/s
+  (USB 2.0 specification, full-speed bulk bandwidth), and
+- a plain per-line split()/int() loop with the CRC check, run in the same process on the same bytes.
+It also checks that the fast decoder gives exactly the same events and statistics as the plain
+reference decoder (`protocol.decoder_plain`), and the same frames and counts as the plain loop.
+Best of several interleaved repeats. Never a pass/fail on time: the numbers are for reading.
+
+    python tests/benchmarks/bench_decoder.py [--quick]
+"""
+
+from __future__ import annotations
+
+import argparse
+import binascii
+import pathlib
+import sys
+import time
+
+import numpy as np
+
+sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
+
+from protocol.decoder import Decoder
+from protocol.decoder_plain import PlainDecoder
+from protocol.encoder import encode_frames, encode_note
+from protocol.events import FrameBlock
+
+USB_FULL_SPEED_BULK_BPS = 19 * 64 * 1000  # 1,216,000 B/s
+CHUNK_BYTES = 64 * 1024
+
+
+def make_stream(frames: int, channels: int, seed: int = 7) -> bytes:
+    """Readings like a real board's: per-channel baselines, a little noise, a few touches; a note every
+    2000 frames and one frame missing every 5000, so the run logic is exercised too."""
+    rng = np.random.default_rng(seed)
+    baseline = rng.integers(900, 32000, size=channels)
+    readings = baseline + np.rint(rng.normal(0.0, 5.0, size=(frames, channels))).astype(np.int64)
+    touched = rng.random((frames, channels)) < 0.02
+    readings[touched] -= rng.integers(60, 400, size=int(touched.sum()))
+    out, seq = [], 0
+    for start in range(0, frames, 1000):
+        block = readings[start : start + 1000]
+        out.append(encode_frames(block, seq % 65536, checksum=True))
+        seq += len(block) + (1 if start % 5000 == 4000 else 0)
+        if start % 2000 == 1000:
+            out.append(encode_note(f"frame {start}: zone check", checksum=True))
+    return b"".join(out)
+
+
+def plain_loop(data: bytes) -> tuple[np.ndarray, np.ndarray, dict[str, int]]:
+    """What one writes first: split lines, check the CRC, split() the values, int() each one."""
+    crc = binascii.crc_hqx
+    rows: list[list[int]] = []
+    seqs: list[int] = []
+    counts = {"lost": 0, "resets": 0, "bad_checksum": 0, "notes": 0, "width_mismatch": 0}
+    last: int | None = None
+    width: int | None = None
+    for line in data.split(b"\n"):
+        if line[-1:] == b"\r":
+            line = line[:-1]
+        if not line:
+            continue
+        body, star, given = line.rpartition(b"*")
+        if not star or len(given) != 4:
+            body = line
+        elif crc(body, 0xFFFF) != int(given, 16):
+            counts["bad_checksum"] += 1
+            continue
+        if body[:1] == b"#":
+            counts["notes"] += 1
+            continue
+        tokens = body.replace(b",", b" ").split()
+        seq = -1
+        if tokens[0][:1] == b"@":
+            seq = int(tokens[0][1:])
+            tokens = tokens[1:]
+            if last is not None and seq != (last + 1) % 65536:
+                if seq > last:
+                    counts["lost"] += seq - last - 1
+                else:
+                    counts["resets"] += 1
+            last = seq
+        values = [int(t) for t in tokens]
+        if width is None:
+            width = len(values)
+        elif len(values) != width:
+            counts["width_mismatch"] += 1
+            continue
+        rows.append(values)
+        seqs.append(seq)
+    return np.array(rows, dtype=np.int64), np.array(seqs, dtype=np.int64), counts
+
+
+def run_decoder(decoder_cls: type, data: bytes) -> tuple[list, object]:
+    dec = decoder_cls()
+    events = []
+    for k in range(0, len(data), CHUNK_BYTES):
+        events += dec.feed(data[k : k + CHUNK_BYTES], 0.0)
+    return events, dec.stats
+
+
+def summary(events: list) -> tuple[np.ndarray, np.ndarray, list, list]:
+    blocks = [e for e in events if isinstance(e, FrameBlock)]
+    readings = np.concatenate([b.readings for b in blocks])
+    seqs = np.concatenate([b.seq for b in blocks])
+    indices = np.concatenate([b.first_index + np.arange(len(b)) for b in blocks])
+    others = [e for e in events if not isinstance(e, FrameBlock)]
+    return readings, seqs, indices.tolist(), others
+
+
+def check_same(data: bytes) -> None:
+    fast_events, fast_stats = run_decoder(Decoder, data)
+    plain_events, plain_stats = run_decoder(PlainDecoder, data)
+    fr, fs, fi, fo = summary(fast_events)
+    pr, ps, pi, po = summary(plain_events)
+    assert fast_stats.as_dict() == plain_stats.as_dict(), (fast_stats, plain_stats)
+    assert np.array_equal(fr, pr) and np.array_equal(fs, ps) and fi == pi and fo == po
+    lr, ls, counts = plain_loop(data)
+    assert np.array_equal(fr, lr) and np.array_equal(fs, ls)
+    for key, value in counts.items():
+        assert getattr(fast_stats, key) == value, key
+
+
+def best_of(repeats: int, fns: dict) -> dict[str, float]:
+    best = dict.fromkeys(fns, float("inf"))
+    for _ in range(repeats):
+        for name, fn in fns.items():
+            t0 = time.perf_counter()
+            fn()
+            best[name] = min(best[name], time.perf_counter() - t0)
+    return best
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="small sizes, a few seconds")
+    args = parser.parse_args()
+    frames, repeats = (3000, 2) if args.quick else (40000, 5)
+    kib = CHUNK_BYTES // 1024
+    print(f"decoder throughput, {frames} frames a run, best of {repeats}, fed {kib} KiB chunks")
+    for channels in (16, 64):
+        data = make_stream(frames, channels)
+        check_same(data)
+        n_frames = Decoder().feed(data, 0.0)
+        n_frames = sum(len(e) for e in n_frames if isinstance(e, FrameBlock))
+        runs = {"fast": lambda d=data: run_decoder(Decoder, d), "loop": lambda d=data: plain_loop(d)}
+        best = best_of(repeats, runs)
+        mb_s = len(data) / best["fast"] / 1e6
+        loop_mb_s = len(data) / best["loop"] / 1e6
+        print(
+            f"{channels:3d} channels ({len(data) / n_frames:.0f} B/frame): fast {mb_s:6.1f} MB/s, "
+            f"{n_frames / best['fast']:9.0f} frames/s | plain loop {loop_mb_s:5.1f} MB/s | "
+            f"{best['loop'] / best['fast']:.2f}x the plain loop, "
+            f"{len(data) / best['fast'] / USB_FULL_SPEED_BULK_BPS:.1f}x USB full-speed bulk | "
+            "same events and stats as the plain decoder: yes"
+        )
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
