@@ -16,7 +16,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from devices.boards import load_board
+from devices.boards import MAX_LINE_BYTES, frame_line_bytes, load_board
 from devices.faults import FaultPlan, Injected
 from devices.model import BoardModel, UnitFaults
 from devices.spec import BoardSpec
@@ -53,6 +53,10 @@ class SimBoard:
         self._width = self.spec.channels
         self._pending = bytearray()
         self._commands = bytearray()
+        for _, width in self.faults.width_changes:
+            if frame_line_bytes(width, self.spec.method.max_count) > MAX_LINE_BYTES:
+                raise UserError(f"fault width:{width}: frames that wide would not fit in one protocol line; "
+                                "use a smaller width")
         self._events = self._timeline()
         self._t0 = clock()
         self._emit_boot()

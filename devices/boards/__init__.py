@@ -30,6 +30,7 @@ from devices.spec import (
 from protocol.errors import UserError
 
 BOARDS_DIR = pathlib.Path(__file__).parent
+MAX_LINE_BYTES = 1024  # protocol v1's line limit (protocol/PROTOCOL.md)
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_.-]{0,31}$")
 _TOP = {"board", "method", "overlay", "finger", "pad_defaults", "pad", "pad_grid", "slider", "noise",
         "script"}
@@ -128,6 +129,9 @@ class _Parser:
         method = method_from_table(kind, method_table, where=f"{self.file}: method")
         pads = self.pads(data)
         names = [p.name for p in pads]
+        if frame_line_bytes(len(pads), method.max_count) > MAX_LINE_BYTES:
+            raise self.fail("pad", f"{len(pads)} pads make frame lines longer than the protocol's "
+                            f"{MAX_LINE_BYTES} bytes with this method's readings; use fewer pads")
         sliders = self.sliders(data, names)
         return BoardSpec(
             name=self.name(b, "board"), description=self.text(b, "board", "description", "a simulated board"),
@@ -296,6 +300,11 @@ class _Parser:
             raise self.fail("script.random", "each _min must not exceed its _max")
         return RandomTouchSpec(pads=tuple(self.known_pad(p, "script.random.pads", names) for p in pads),
                                **values)
+
+
+def frame_line_bytes(channels: int, max_count: int) -> int:
+    """Longest frame line for this width: `@65535 `, readings and spaces, `*HHHH`."""
+    return 7 + channels * (len(str(max_count)) + 1) + 5
 
 
 def _all_method_keys() -> set[str]:

@@ -97,3 +97,18 @@ def test_unknown_board_name_and_bad_toml(tmp_path):
     assert "not valid TOML" in str(err.value) and "\n" not in str(err.value)
     with pytest.raises(UserError):
         load_board(str(tmp_path / "missing.toml"))
+
+
+def test_boards_too_wide_for_one_protocol_line_are_refused(tmp_path):
+    # protocol v1 drops lines over 1024 bytes: a board whose frames could not fit is a file mistake.
+    text = GOOD.split("[[pad]]")[0] + "[pad_grid]\nrows = 16\ncols = 16\npitch_mm = 10\n"
+    with pytest.raises(UserError, match="longer than the protocol's 1024 bytes"):
+        load_board(write(tmp_path, text))
+
+
+def test_width_fault_too_wide_is_refused():
+    from devices.faults import FaultPlan
+    from devices.simulator import SimBoard
+
+    with pytest.raises(UserError, match="would not fit"):
+        SimBoard("grid64", faults=FaultPlan.parse(["width:250@1"]))

@@ -25,6 +25,14 @@ def test_board_pad_with_override(capsys):
         run(capsys, "--board", "greenhouse", "--json")[1])["counts_per_pf"], rel=1e-6)
 
 
+def test_isolated_person_gives_a_smaller_signal(capsys):
+    # Human-body model (common practice, no source): less body capacitance, less finger signal in series.
+    standing = json.loads(run(capsys, "--board", "greenhouse", "--json")[1])
+    isolated = json.loads(run(capsys, "--board", "greenhouse", "--isolated", "--json")[1])
+    assert isolated["inputs"]["body_pf"] == 50
+    assert isolated["finger_pf"]["nominal"] < standing["finger_pf"]["nominal"]
+
+
 def test_plain_text_when_piped(capsys):
     code, out, _ = run(capsys, "--material", "acrylic", "--thickness-mm", "2", "--pad-diameter-mm", "15",
                        "--hum-pf", "0.05")

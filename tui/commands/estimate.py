@@ -36,6 +36,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--air-gap-mm", type=float, help="air gap between pad and overlay in mm (default 0)")
     p.add_argument("--finger-mm", type=float, help="fingertip contact diameter in mm (default 10)")
     p.add_argument("--body-pf", type=float, help="body capacitance to ground in pF (default 200, standing)")
+    p.add_argument("--isolated", action="store_true",
+                   help=f"the person is insulated from ground (body {physics.BODY_ISOLATED_F * 1e12:g} pF)")
     p.add_argument("--method", choices=sorted(FILE_KEYS), help="conversion method (default charge_time)")
     p.add_argument("--set", action="append", default=[], metavar="KEY=VALUE",
                    help="a method component in file units, e.g. r_ohm=1e6, timing_pf=10, adc_bits=12 "
@@ -126,6 +128,9 @@ def build_input(args: argparse.Namespace) -> EstimateInput:
             raise UserError("--air-gap-mm cannot be negative")
         air_gap = args.air_gap_mm * 1e-3
     finger = (_positive(args.finger_mm, "--finger-mm") or finger * 1e3) * 1e-3
+    if args.isolated and args.body_pf is not None:
+        raise UserError("give either --isolated or --body-pf, not both")
+    body = physics.BODY_ISOLATED_F if args.isolated else body
     body = (_positive(args.body_pf, "--body-pf") or body * 1e12) * 1e-12
     if args.noise_pf is not None:
         noise_pf = max(0.0, args.noise_pf)
