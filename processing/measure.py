@@ -62,6 +62,13 @@ class History:
         return self.t_s[idx], self.readings[idx], self.deltas[idx], self.states[idx]
 
 
+    def column(self, channel: int, n: int) -> tuple[np.ndarray, np.ndarray]:
+        """Deltas and states of one channel over the newest `n` frames, oldest first (no full-row copy)."""
+        n = min(n, len(self))
+        idx = (np.arange(self.written - n, self.written)) % self.capacity
+        return self.deltas[idx, channel], self.states[idx, channel]
+
+
 @dataclass(frozen=True, slots=True)
 class NoiseStats:
     rms_counts: float
@@ -148,59 +155,108 @@ def spectrum_peak(samples: np.ndarray, fs_hz: float) -> SpectrumPeak | None:
     return SpectrumPeak(freq, float(amplitude), len(x), m, h, a)
 
 
+class ColumnRing:
+    """One fixed-size ring per channel, filled with the frames a mask selects (e.g. released ones)."""
+
+    def __init__(self, capacity: int, channels: int) -> None:
+        self.capacity = max(1, capacity)
+        self.data = np.zeros((self.capacity, channels), np.int64)
+        self.written = np.zeros(channels, np.int64)
+        self._cols = np.arange(channels)
+
+    def push(self, values: np.ndarray, mask: np.ndarray) -> None:
+        counts = mask.sum(axis=0)
+        whole = counts == len(values)
+        if whole.any():  # channels that take every row: one vectorised scatter
+            rows = values[-self.capacity:]
+            skip = len(values) - len(rows)
+            cols = self._cols[whole]
+            pos = (self.written[cols][None, :] + skip + np.arange(len(rows))[:, None]) % self.capacity
+            self.data[pos, cols[None, :]] = rows[:, cols]
+        for c in np.flatnonzero(~whole & (counts > 0)).tolist():
+            picked = values[mask[:, c], c]
+            rows = picked[-self.capacity:]
+            pos = (self.written[c] + len(picked) - len(rows) + np.arange(len(rows))) % self.capacity
+            self.data[pos, c] = rows
+        self.written += counts
+
+    def filled(self, channel: int) -> np.ndarray:
+        """The stored values of a channel in ring order (fine for order-free statistics)."""
+        return self.data[:min(int(self.written[channel]), self.capacity), channel]
+
+    def ordered(self, channel: int) -> np.ndarray:
+        n = min(int(self.written[channel]), self.capacity)
+        idx = (int(self.written[channel]) - n + np.arange(n)) % self.capacity
+        return self.data[idx, channel]
+
+    def clear(self, channel: int | None = None) -> None:
+        if channel is None:
+            self.written[:] = 0
+        else:
+            self.written[channel] = 0
+
+
 class Measures:
-    """Per-channel noise, touch signal, SNR and verdict, computed on demand from bounded rings."""
+    """Per-channel noise, touch signal, SNR and verdict from bounded rings (allocated once)."""
 
     def __init__(self, channels: int, rate_hz: float, window_s: float = 2.0, history_frames: int = 4096,
                  touched_frames: int = 2048, bounds: VerdictBounds | None = None) -> None:
-        self.channels, self.rate_hz, self.window_s = channels, rate_hz, window_s
+        self.channels, self.window_s = channels, window_s
         self.bounds = bounds or VerdictBounds()
+        self._rate_hz = rate_hz
         self.history = History(channels, max(history_frames, 2 * self.window_frames))
-        self._touched = np.zeros((max(1, touched_frames), channels), np.int64)
-        self._touched_written = np.zeros(channels, np.int64)
+        self._released = ColumnRing(self.window_frames, channels)
+        self._touched = ColumnRing(touched_frames, channels)
         self._signal_cache: dict[int, tuple[int, float | None]] = {}
 
     @property
+    def rate_hz(self) -> float:
+        return self._rate_hz
+
+    @rate_hz.setter
+    def rate_hz(self, value: float) -> None:
+        """A new frame rate changes the window length: the noise window starts again."""
+        self._rate_hz = value
+        if self.window_frames != self._released.capacity:
+            self._released = ColumnRing(self.window_frames, self.channels)
+
+    @property
     def window_frames(self) -> int:
-        return max(MIN_NOISE_SAMPLES, math.ceil(self.window_s * self.rate_hz))
+        return max(MIN_NOISE_SAMPLES, math.ceil(self.window_s * self._rate_hz))
 
     def ingest(self, t_s: np.ndarray, readings: np.ndarray, deltas: np.ndarray, states: np.ndarray) -> None:
         self.history.append(t_s, readings, deltas, states)
+        self._released.push(deltas, states == KeyState.RELEASED)
         touched = states == KeyState.TOUCHED
-        cap = self._touched.shape[0]
-        for c in np.flatnonzero(touched.any(axis=0)).tolist():
-            values = deltas[touched[:, c], c][-cap:]
-            idx = (self._touched_written[c] + np.arange(len(values))) % cap
-            self._touched[idx, c] = values
-            self._touched_written[c] += len(values)
+        if touched.any():
+            self._touched.push(deltas, touched)
 
     def clear_touch_signal(self, channel: int | None = None) -> None:
+        self._touched.clear(channel)
         if channel is None:
-            self._touched_written[:] = 0
+            self._signal_cache.clear()
         else:
-            self._touched_written[channel] = 0
+            self._signal_cache.pop(channel, None)
 
     def qualities(self) -> list[ChannelQuality]:
-        """`quality` of every channel, vectorised for the common case of a fully released window."""
-        w = self.window_frames
-        _, _, deltas, states = self.history.last(w)
-        full = (states == KeyState.RELEASED).all(axis=0) & (len(deltas) >= MIN_NOISE_SAMPLES)
-        rms = np.sqrt(np.mean((deltas - deltas.mean(axis=0)) ** 2, axis=0)) if len(deltas) else None
-        pp = (deltas.max(axis=0) - deltas.min(axis=0)) if len(deltas) else None
+        """`quality` of every channel; the channels with a full noise window are done in one pass."""
+        ring = self._released
+        full = ring.written >= ring.capacity
+        data = ring.data
+        rms = np.sqrt(np.mean((data - data.mean(axis=0)) ** 2, axis=0))
+        pp = data.max(axis=0) - data.min(axis=0)
         out = []
         for c in range(self.channels):
-            noise = NoiseStats(float(rms[c]), float(pp[c]), len(deltas)) if full[c] else self.noise(c)
+            noise = NoiseStats(float(rms[c]), float(pp[c]), ring.capacity) if full[c] else self.noise(c)
             out.append(self._quality(noise, self.touch_signal(c)))
         return out
 
     def released_deltas(self, channel: int) -> np.ndarray:
-        """Deltas of the newest `window_frames` released frames still in the history, oldest first."""
-        _, _, deltas, states = self.history.last(self.history.capacity)
-        values = deltas[states[:, channel] == KeyState.RELEASED, channel]
-        return values[-self.window_frames:]
+        """Deltas of the newest `window_frames` frames in which the channel was released, oldest first."""
+        return self._released.ordered(channel)
 
     def noise(self, channel: int) -> NoiseStats | None:
-        values = self.released_deltas(channel)
+        values = self._released.filled(channel)
         if len(values) < MIN_NOISE_SAMPLES:
             return None
         centred = values - values.mean()
@@ -208,12 +264,12 @@ class Measures:
         return NoiseStats(rms, float(values.max() - values.min()), len(values))
 
     def touch_signal(self, channel: int) -> float | None:
-        written = int(self._touched_written[channel])
+        written = int(self._touched.written[channel])
         cached = self._signal_cache.get(channel)
         if cached is not None and cached[0] == written:  # no touched frame since: same median
             return cached[1]
-        n = min(written, self._touched.shape[0])
-        value = float(np.median(self._touched[:n, channel])) if n else None
+        values = self._touched.filled(channel)
+        value = float(np.median(values)) if len(values) else None
         self._signal_cache[channel] = (written, value)
         return value
 

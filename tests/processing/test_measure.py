@@ -118,3 +118,32 @@ def test_vectorised_qualities_equal_per_channel_quality():
             if got.noise:  # summation order differs between the vectorised and per-channel forms
                 assert got.noise.rms_counts == pytest.approx(want.noise.rms_counts, rel=1e-12)
                 assert (got.noise.pp_counts, got.noise.samples) == (want.noise.pp_counts, want.noise.samples)
+
+
+def test_column_ring_keeps_the_newest_selected_values():
+    # Reference: collections.deque(maxlen=capacity) fed the same selected values one by one.
+    from collections import deque
+
+    from processing.measure import ColumnRing
+    rng = np.random.default_rng(11)
+    ring = ColumnRing(50, 3)
+    refs = [deque(maxlen=50) for _ in range(3)]
+    for _ in range(40):
+        n = int(rng.integers(1, 120))
+        values = rng.integers(-100, 100, (n, 3))
+        mask = rng.random((n, 3)) < rng.choice([0.0, 0.5, 1.0], 3)
+        ring.push(values, mask)
+        for c in range(3):
+            refs[c].extend(values[mask[:, c], c].tolist())
+            assert ring.ordered(c).tolist() == list(refs[c])
+    assert ring.data.shape == (50, 3)
+
+
+def test_touch_signal_forgets_after_clear():
+    m = Measures(1, rate_hz=100.0)
+    feed(m, [300] * 10, [TOUCHED] * 10)
+    assert m.touch_signal(0) == 300
+    m.clear_touch_signal(0)
+    assert m.touch_signal(0) is None
+    feed(m, [100] * 10, [TOUCHED] * 10)
+    assert m.touch_signal(0) == 100
