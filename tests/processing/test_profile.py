@@ -3,6 +3,7 @@
 
 import json
 import os
+import pathlib
 import stat
 import subprocess
 import sys
@@ -232,3 +233,12 @@ def test_json_export(tmp_path):
     assert doc["channels"][4]["threshold_counts"] == 200 and doc["channels"][0]["threshold_counts"] == 120
     assert doc["groups"][0]["member_names"] == ["zone1", "zone2", "zone3", "zone4"]
     assert doc["sliders"][0]["pads"] == [5, 6, 7] and doc["limits"]["min_snr_pp"] == 5.0
+
+
+def test_readme_example_profile_loads(tmp_path):
+    readme = (pathlib.Path(__file__).resolve().parents[2] / "README.md").read_text()
+    section = readme.split("## Profile file", 1)[1]
+    example = section.split("```toml\n", 1)[1].split("```", 1)[0]
+    p = load_profile(write(tmp_path, example))
+    assert p.channels == 6 and p.settings_for(4).threshold_counts == 160 and p.groups[0].name == "zones"
+    assert p.limits.min_snr_pp == 5.0 and p.sliders[0].pads == (1, 2, 5)
