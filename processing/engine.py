@@ -145,6 +145,10 @@ class Engine:
         self.clean |= due
 
     @property
+    def polarity(self) -> list[int]:
+        return self.pol.tolist()
+
+    @property
     def readings(self) -> list[int]:
         return self.reading.tolist()
 

@@ -52,12 +52,13 @@ class History:
         self.written += n
 
     def last(self, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """The newest `n` frames (fewer if not yet written), oldest first: t_s, readings, deltas, states."""
+        """Copies of the newest `n` frames (fewer if not yet written), oldest first: t_s, readings, deltas,
+        states."""
         n = min(n, len(self))
         end = self.written % self.capacity or (self.capacity if self.written else 0)
-        if n <= end:  # one contiguous slice: views, no copy
+        if n <= end:  # one contiguous slice (copied: the ring is overwritten as frames arrive)
             sl = slice(end - n, end)
-            return self.t_s[sl], self.readings[sl], self.deltas[sl], self.states[sl]
+            return tuple(a[sl].copy() for a in (self.t_s, self.readings, self.deltas, self.states))
         idx = (np.arange(self.written - n, self.written)) % self.capacity
         return self.t_s[idx], self.readings[idx], self.deltas[idx], self.states[idx]
 

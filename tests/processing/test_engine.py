@@ -105,3 +105,14 @@ def test_engine_refuses_wrong_width_and_polarity():
     e = Engine(2, [STILL, STILL], [1, 1])
     with pytest.raises(ValueError, match="channels"):
         e.process(block(np.array([[1, 2, 3]])))
+
+
+def test_both_engines_expose_the_same_current_values():
+    readings = np.array([[1000, 2000], [1010, 1990], [1200, 1700]])
+    views = []
+    for cls in ENGINES:
+        e = cls(2, [STILL, STILL], [1, -1])
+        e.process(block(readings))
+        views.append((e.polarity, e.readings, e.baselines_fp, e.deltas, e.states, e.frames))
+    assert views[0] == views[1]
+    assert views[0][0] == [1, -1] and views[0][1] == [1200, 1700] and views[0][3] == [200, 300]
