@@ -40,6 +40,9 @@ from tui.widgets.event_log import EventLog
 from tui.widgets.groups_panel import GroupsPanel
 from tui.widgets.link_strip import LinkStrip
 
+# Sparkline buckets handed to the table; it shrinks them to the width it has (48 cells at most).
+SPARK_POINTS = 48
+
 # Binding id prefix -> the section it is listed under in the help screen.
 SECTIONS = {
     "move": "Move", "edit": "Edit the selected channel", "chan": "Channel and display",
@@ -208,8 +211,7 @@ class PadtuneApp(App[int]):
 
     def _draw(self) -> None:
         table = self.query_one(ChannelTable)
-        spark_points = max(8, table.size.width // 3)
-        table.show(self.source.channel_views(spark_points))
+        table.show(self.source.channel_views(SPARK_POINTS))
         self.query_one(GroupsPanel).show(self.source.group_views(), self.source.slider_views())
         self._draw_edit_bar()
         if self.detail and (self._tick_count % 4 == 1 or self.ui_hz == 0):

@@ -26,16 +26,16 @@ def key_display(keys: str) -> str:
     return " / ".join(names.get(k.strip(), k.strip()) for k in keys.split(","))
 
 
-def help_tables(rows: Iterable[tuple[str, str, str]], width: int = 100) -> list[Table]:
+def help_tables(rows: Iterable[tuple[str, str, str]]) -> list[Table]:
     """One table per section from `(section, keys, description)` rows, in the order first seen."""
     sections: dict[str, list[tuple[str, str]]] = {}
     for section, keys, description in rows:
         sections.setdefault(section, []).append((keys, description))
     tables = []
     for section, entries in sections.items():
-        table = Table(title=section, title_justify="left", show_header=False, box=None, pad_edge=False,
-                      expand=False)
-        table.add_column("keys", no_wrap=True, min_width=14)
+        table = Table(title=section, title_justify="left", title_style="bold underline", show_header=False,
+                      box=None, pad_edge=False, expand=False)
+        table.add_column("keys", no_wrap=True, min_width=18, max_width=18)
         table.add_column("what it does")
         for keys, description in entries:
             table.add_row(key_display(keys), description)

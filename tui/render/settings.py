@@ -17,11 +17,12 @@ def settings_text(settings: ChannelSettings, selected_key: str | None, styles: S
         mark = "▸" if f.key == selected_key else " "
         role = "cursor" if f.key == selected_key else "name"
         text.append(f"{mark} {f.label:<19} ", pick(styles, role))
-        text.append(f"{value:>6} {f.unit}", pick(styles, role))
+        if f.key == "stuck_timeout_frames" and value == 0:
+            text.append(f"{'never':>6}", pick(styles, role))
+        else:
+            text.append(f"{value:>6} {f.unit}", pick(styles, role))
         if rate_hz and f.unit == "frames" and value:
             text.append(f" {_duration(value / rate_hz)}", pick(styles, "dim"))
-        elif f.key == "stuck_timeout_frames":
-            text.append(" (never)", pick(styles, "dim"))
         text.append("\n")
     text.append(f"  {'release level':<19} {settings.release_level_counts:>6} counts", pick(styles, "dim"))
     return text

@@ -6,6 +6,7 @@ from collections.abc import Iterable
 from typing import ClassVar
 
 from rich.console import Group
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import VerticalScroll
@@ -22,6 +23,8 @@ class HelpScreen(ModalScreen[None]):
         Binding("up,k", "scroll('up')", "Scroll up", show=False),
         Binding("pagedown,space", "scroll('page_down')", "Page down", show=False),
         Binding("pageup", "scroll('page_up')", "Page up", show=False),
+        Binding("home", "scroll('home')", "Top", show=False),
+        Binding("end", "scroll('end')", "End", show=False),
     ]
 
     def __init__(self, rows: Iterable[tuple[str, str, str]]) -> None:
@@ -30,8 +33,12 @@ class HelpScreen(ModalScreen[None]):
 
     def compose(self) -> ComposeResult:
         with VerticalScroll(id="help-body"):
-            yield Static("padtune keys  (Esc closes; ↑/↓ scroll)", id="help-title")
-            yield Static(Group(*help_tables(self._rows)), id="help-keys")
+            yield Static("padtune keys  (Esc closes; ↑/↓, PgUp/PgDn, Home/End scroll)", id="help-title")
+            yield Static("Boards may be mains-powered: the safety cautions are at the end of this page (End).",
+                         id="help-safety-pointer")
+            tables = help_tables(self._rows)
+            spaced = [item for table in tables for item in (table, Text(""))]
+            yield Static(Group(*spaced), id="help-keys")
             yield Static(cautions_text(), id="help-safety")
 
     def action_dismiss(self, result: None = None) -> None:  # type: ignore[override]
@@ -40,4 +47,4 @@ class HelpScreen(ModalScreen[None]):
     def action_scroll(self, how: str) -> None:
         body = self.query_one("#help-body", VerticalScroll)
         {"down": body.scroll_down, "up": body.scroll_up, "page_down": body.scroll_page_down,
-         "page_up": body.scroll_page_up}[how]()
+         "page_up": body.scroll_page_up, "home": body.scroll_home, "end": body.scroll_end}[how]()

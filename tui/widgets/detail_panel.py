@@ -60,8 +60,8 @@ class DetailPanel(Vertical):
     def show(self, name: str, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
              selected_key: str, events: Sequence[str], rate_hz: float | None) -> None:
         styles = {r: self.get_component_rich_style(f"detail-panel--{r}", partial=True) for r in self.ROLES}
-        mode = "noise spectrum (f: back to the plot)" if spectrum is not None else \
-            "reading & baseline, threshold & release lines (f: noise spectrum)"
+        mode = "noise spectrum of the untouched delta (f: back to the plot)" if spectrum is not None else \
+            "reading ⣿  baseline ·  threshold =  release -  (f: noise spectrum)"
         self.query_one("#detail-title", Static).update(Text(f"{name}: {mode}", no_wrap=True))
         settings_lines = settings_text(settings, selected_key, styles, rate_hz)
         self.query_one("#detail-settings", Static).update(settings_lines)
@@ -90,10 +90,11 @@ class DetailPanel(Vertical):
             baseline = _thin(series.baseline, points)
             thr = baseline + series.polarity * settings.threshold_counts
             rel = baseline + series.polarity * settings.release_level_counts
-            plt.plot(t.tolist(), reading.tolist(), label="reading", marker="braille")
-            plt.plot(t.tolist(), baseline.tolist(), label="baseline", marker="braille")
-            plt.plot(t.tolist(), thr.tolist(), label="threshold", marker="braille")
-            plt.plot(t.tolist(), rel.tolist(), label="release", marker="braille")
+            # Each line has its own marker so the plot reads without colour; the legend only where it fits.
+            legend = widget.size.width >= 70
+            for values, label, marker in ((thr, "threshold", "="), (rel, "release", "-"),
+                                          (baseline, "baseline", "·"), (reading, "reading", "braille")):
+                plt.plot(t.tolist(), values.tolist(), label=label if legend else None, marker=marker)
             plt.xlabel("seconds (0 = now)")
         else:
             plt.title("waiting for frames")

@@ -28,4 +28,4 @@ class LinkStrip(Static):
             role: self.get_component_rich_style(f"link-strip--{role}", partial=True) for role in ROLES
         }
         self.set_class(view.state in ("disconnected", "reconnecting"), "-down")
-        self.update(link_strip(view, styles, compact=self.size.width < 120))
+        self.update(link_strip(view, styles, compact=self.app.size.width < 140))

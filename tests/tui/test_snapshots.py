@@ -1,0 +1,67 @@
+"""SVG snapshots of the live screen at 80x24 and 120x40: main view, detail panel, help.
+
+The data is a seeded simulated greenhouse board decoded by the real decoder, with the clock moved by
+the test (no timer, no wall time), so every run draws the same screen. Approve changes with
+`make snapshots-update` only after looking at the new SVGs.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from tests.tui.feeds import SimFeed
+from tui.app import PadtuneApp
+from tui.demo_profile import demo_profile
+from tui.session_source import SessionSource
+
+SIZES = [(80, 24), (120, 40)]
+
+
+def demo_app() -> PadtuneApp:
+    feed = SimFeed(seed=11)
+    source = SessionSource(feed, port="sim://greenhouse?seed=11", profile=demo_profile("greenhouse"),
+                           clock=lambda: feed.t_s)
+    app = PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s, demo=True)
+
+    def advance(seconds: float) -> None:
+        for _ in range(round(seconds / feed.step_s)):
+            feed.advance(feed.step_s)
+            app.refresh_now()
+
+    app.advance = advance  # type: ignore[attr-defined]
+    return app
+
+
+async def settle(pilot) -> None:
+    app = pilot.app
+    app.advance(3.0)
+    app.source.press(1, True)  # zone2 held, and the slider touched near its second pad
+    app.source.press(6, True)
+    app.advance(1.0)
+    await pilot.pause()
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_main_screen(snap_compare, size) -> None:
+    assert snap_compare(demo_app(), terminal_size=size, run_before=settle)
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_detail_panel(snap_compare, size) -> None:
+    async def before(pilot) -> None:
+        await settle(pilot)
+        await pilot.press("down", "d")
+        pilot.app.advance(0.2)
+        await pilot.pause()
+
+    assert snap_compare(demo_app(), terminal_size=size, run_before=before)
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_help_screen(snap_compare, size) -> None:
+    async def before(pilot) -> None:
+        await settle(pilot)
+        await pilot.press("question_mark")
+        await pilot.pause()
+
+    assert snap_compare(demo_app(), terminal_size=size, run_before=before)
