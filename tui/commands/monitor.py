@@ -45,8 +45,8 @@ def run(args: argparse.Namespace) -> int:
 def _run(args: argparse.Namespace) -> int:
     profile = load_profile_arg(args.profile)
     clock = time.monotonic
+    origin = clock()  # before the link starts, so its first events have t >= 0
     link = open_link(args.port, args.baud, clock)
-    origin = clock()
     recorder = None
     try:
         if args.record:

@@ -1,0 +1,236 @@
+"""monitor, record, replay and check as subprocesses against live simulated boards (sim:// URLs and a
+pseudo-terminal served by devices.pty_server), as a user or a script would run them."""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+import signal
+import subprocess
+import sys
+import threading
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import pytest
+
+from devices.pty_server import PtyServer
+from devices.simulator import SimBoard
+from processing.profile import load_profile, save_profile
+from processing.recording import read_recording
+from processing.settings import Limits
+from tests.headless.helpers import ROOT, json_lines, match_touches, padtune, sim_capture, write_recording
+from tests.headless.test_offline_commands import ReportParser
+
+pytestmark = pytest.mark.e2e
+RATE_HZ = 60.0  # the greenhouse board's frame rate
+
+
+@pytest.fixture(scope="module")
+def profiles(tmp_path_factory):
+    """A tuned greenhouse profile (from a recording of the script), and one with acceptance limits."""
+    folder = tmp_path_factory.mktemp("live")
+    _, data = sim_capture(22.0, seed=1)
+    write_recording(folder / "gh.csv", data)
+    out = padtune("tune", str(folder / "gh.csv"), "-o", str(folder / "tuned.toml"))
+    assert out.returncode == 0, out.stderr
+    tuned = load_profile(folder / "tuned.toml")
+    rec = read_recording(folder / "gh.csv")
+    _, _, readings = rec.arrays()
+    lo, hi = int(readings.min() * 0.8), int(readings.max() * 1.2)
+    # Limits a production engineer might set from a good unit (common practice, no source: a margin of
+    # about 20 % on the baseline and a few times the good unit's noise).
+    limits = Limits(max_noise_pp_counts=40.0, max_noise_rms_counts=8.0, min_snr_pp=2.0,
+                    baseline_min_counts=lo, baseline_max_counts=hi)
+    save_profile(replace(tuned, limits=limits), folder / "limits.toml")
+    return folder
+
+
+def test_monitor_json_matches_the_simulated_touch_script(profiles):
+    url = "sim://greenhouse?speed=4&seed=3"
+    out = padtune("monitor", url, "--profile", str(profiles / "tuned.toml"), "--json", "--duration", "6",
+                  "--every", "2")
+    assert out.returncode == 0, out.stderr
+    events = json_lines(out.stdout)
+    assert all({"type", "t"} <= set(e) for e in events)
+    assert next(e for e in events if e["type"] != "link")["type"] in ("note", "hello")
+    hello = next(e for e in events if e["type"] == "hello")
+    assert hello["board"] == "greenhouse" and hello["channels"] == 9 and hello["rate_hz"] == RATE_HZ
+    statuses = [e for e in events if e["type"] == "status"]
+    assert len(statuses) >= 2 and len(statuses[0]["channels"]) == 9
+    fields = {"name", "reading", "baseline", "delta", "state", "noise", "snr"}
+    assert set(statuses[0]["channels"][0]) == fields
+    summary = events[-1]
+    assert summary["type"] == "summary" and summary["lost"] == 0 and summary["garbled"] == 0
+    # Frame index n is sim time n / rate exactly: compare detections with the script in sim time.
+    sim_s = summary["frames"] / RATE_HZ
+    assert sim_s > 20.0, "the run must cover the script up to the long zone2 hold"
+    truth = SimBoard("greenhouse", seed=3).touches.truth(sim_s - 1.0)
+    touches = [{**e, "t": e["index"] / RATE_HZ} for e in events if e["type"] == "touch"]
+    touches = [t for t in touches if t["t"] < sim_s - 1.0]
+    profile = load_profile(profiles / "tuned.toml")
+    debounce = max(s.touch_debounce_frames for s in profile.all_settings())
+    missing, extra = match_touches(touches, truth, RATE_HZ, debounce, profile.names)
+    assert not missing and not extra, (missing, extra)
+
+
+def test_monitor_with_record_then_replay_gives_the_same_events(profiles, tmp_path):
+    rec = tmp_path / "live.csv"
+    profile = str(profiles / "tuned.toml")
+    live = padtune("monitor", "sim://greenhouse?speed=4&seed=5", "--profile", profile, "--json",
+                   "--duration", "4", "--record", str(rec))
+    assert live.returncode == 0, live.stderr
+    again = padtune("replay", str(rec), "--profile", profile, "--json")
+    assert again.returncode == 0, again.stderr
+
+    def detections(text: str) -> list[tuple]:
+        return [(e["type"], e["channel"], e["index"], e.get("delta"), round(e["t"], 4))
+                for e in json_lines(text) if e["type"] in ("touch", "release")]
+
+    assert detections(live.stdout), "the script touches keys in the first seconds"
+    assert detections(again.stdout) == detections(live.stdout)
+    live_sum, replay_sum = json_lines(live.stdout)[-1], json_lines(again.stdout)[-1]
+    assert replay_sum["frames"] == live_sum["frames"]
+    assert replay_sum["channels"] == live_sum["channels"]
+
+
+def test_monitor_human_lines_are_plain_when_piped(profiles):
+    out = padtune("monitor", "sim://greenhouse?speed=4&seed=3", "--profile", str(profiles / "tuned.toml"),
+                  "--duration", "2", env={"NO_COLOR": ""})
+    assert out.returncode == 0, out.stderr
+    assert "\x1b[" not in out.stdout
+    assert "touch    zone1" in out.stdout and "summary after" in out.stdout
+
+
+def test_record_survives_kill_9(tmp_path):
+    path = tmp_path / "killed.csv"
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "record", "sim://greenhouse?speed=2&seed=4",
+                             "-o", str(path)], cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    try:
+        deadline = time.monotonic() + 30
+        while time.monotonic() < deadline:  # wait until frames are on disk, then let it run a while
+            if path.exists() and path.read_text().count("\n") > 20:
+                break
+            time.sleep(0.05)
+        time.sleep(1.5)
+        killed_epoch = time.time()
+        proc.send_signal(signal.SIGKILL)
+        proc.wait(10)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    rec = read_recording(path)
+    t_s, seq, readings = rec.arrays()
+    assert readings.shape[1] == 9 and len(seq) > 60
+    assert (seq == range(len(seq))).all()  # every row whole, none missing
+    start = dt.datetime.strptime(rec.meta["start_utc"], "%Y-%m-%dT%H:%M:%S.%fZ").replace(tzinfo=dt.UTC)
+    lost_s = killed_epoch - (start.timestamp() + float(t_s[-1]))
+    assert lost_s < 1.0, f"lost {lost_s:.2f} s of frames"
+    out = padtune("replay", str(path), "--json")
+    assert out.returncode == 0 and json_lines(out.stdout)[-1]["frames"] == len(seq)
+
+
+def _check(profiles: Path, url: str, *extra: str) -> tuple[int, dict]:
+    out = padtune("check", url, "--profile", str(profiles / "limits.toml"), "--duration", "1.5", "--json",
+                  *extra)
+    assert out.returncode in (0, 1), out.stderr
+    report = json_lines(out.stdout)[0]
+    return out.returncode, report
+
+
+def test_check_passes_a_healthy_board(profiles, tmp_path):
+    html_path = tmp_path / "check.html"
+    code, report = _check(profiles, "sim://greenhouse?seed=6&script=0", "--report", str(html_path))
+    assert code == 0 and report["passed"], report
+    for ch in report["channels"]:
+        assert ch["checks"] == {"alive": "pass", "noise": "pass", "stuck": "pass"}
+    parser = ReportParser()
+    parser.feed(html_path.read_text(encoding="utf-8"))
+    assert not parser.external
+    for ch in report["channels"]:
+        rows = parser.rows[ch["name"]]
+        assert all(r["verdict"] == "PASS" and r["noise_pp"] == f"{ch['noise_pp']:.1f}" for r in rows)
+        assert parser.figures[ch["name"]] == {"delta": True, "histogram": True}
+
+
+@pytest.mark.parametrize(
+    ("fault", "pad", "reason", "check"),
+    [
+        ("open:zone2", "zone2", "open pad", "alive"),
+        ("short:stop", "stop", "shorted pad", "alive"),
+        ("noisy:zone3:20", "zone3", "noisy pad", "noise"),
+        ("stuck:zone4@0.5", "zone4", "stuck key", "stuck"),
+    ],
+)
+def test_check_fails_a_faulty_unit_with_the_right_reason(profiles, fault, pad, reason, check):
+    code, report = _check(profiles, f"sim://greenhouse?seed=6&script=0&fault={fault}")
+    assert code == 1 and not report["passed"]
+    failed = [c for c in report["channels"] if not c["passed"]]
+    assert [c["name"] for c in failed] == [pad], failed
+    assert failed[0]["checks"][check] == "fail"
+    assert any(r.startswith(reason) for r in failed[0]["reasons"]), failed[0]["reasons"]
+
+
+def test_check_touch_step_over_a_pseudo_terminal(profiles):
+    """The guided step asks for each key; a 'person' (this test) touches it on the simulated panel."""
+    board = SimBoard("greenhouse", seed=8, script=False)
+    server = PtyServer(board)
+    stop = threading.Event()
+    thread = threading.Thread(target=server.serve, args=(stop.is_set,), daemon=True)
+    thread.start()
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "tui.cli", "check", server.path, "--profile", str(profiles / "limits.toml"),
+         "--duration", "1", "--touch", "--touch-timeout", "4", "--json"],
+        cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+        env={**os.environ, "NO_COLOR": "1"})
+    asked = []
+    try:
+        for line in proc.stderr:
+            if line.startswith("touch and hold "):
+                name = line.split()[3].rstrip(",")
+                asked.append(name)
+                if name == "dur2":
+                    continue  # this key is never touched: the check must fail it
+                time.sleep(0.2)
+                board.press(name, True)
+                time.sleep(0.5)
+                board.press(name, False)
+        out = proc.stdout.read()
+        proc.wait(30)
+    finally:
+        stop.set()
+        if proc.poll() is None:
+            proc.kill()
+        thread.join(5)
+        server.close()
+    assert asked == list(board.spec.names)
+    assert proc.returncode == 1
+    report = json_lines(out)[0]
+    by_name = {c["name"]: c for c in report["channels"]}
+    assert not by_name["dur2"]["passed"] and by_name["dur2"]["checks"]["touch"] == "fail"
+    for name, ch in by_name.items():
+        if name != "dur2":
+            assert ch["passed"], ch
+            assert ch["snr"] >= 2.0 and ch["signal"] > 0
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (["monitor", "/dev/padtune-no-such-port", "--duration", "1"], "/dev/padtune-no-such-port"),
+        (["monitor", "sim://nosuchboard", "--duration", "1"], "nosuchboard"),
+        (["monitor", "sim://greenhouse", "--duration", "-3"], "must be a positive number"),
+        (["record", "sim://greenhouse", "-o", "{tmp}/exists.csv", "--duration", "1"], "already exists"),
+        (["record", "sim://greenhouse", "-o", "/nonexistent-dir/x.csv", "--duration", "1"], "cannot create"),
+        (["check", "sim://greenhouse", "--duration", "1"], "--profile"),
+        (["check", "sim://greenhouse", "--profile", "{tmp}/missing.toml"], "no such profile"),
+        (["monitor", "sim://greenhouse", "--baud", "fast"], "not a baud rate"),
+    ],
+)
+def test_live_commands_reject_bad_input_with_exit_2(tmp_path, args, message):
+    (tmp_path / "exists.csv").write_text("keep me")
+    out = padtune(*[a.replace("{tmp}", str(tmp_path)) for a in args])
+    assert out.returncode == 2, (out.stdout, out.stderr)
+    assert message in out.stderr and "Traceback" not in out.stderr
+    assert (tmp_path / "exists.csv").read_text() == "keep me"
