@@ -2,7 +2,8 @@
 
 Temporary file in the same folder, write, flush, fsync, copy the old file's mode, keep the previous file
 as `<name>.bak` (a hard link to the old content, so the target never goes missing), `os.replace`, then
-fsync the folder so the rename itself survives a power cut.
+fsync the folder so the rename itself survives a power cut. Temporary names carry the writer's process
+id, so the next save removes what a killed writer left behind.
 """
 
 from __future__ import annotations
@@ -31,7 +32,7 @@ def _fsync_dir(folder: Path) -> None:
 def _keep_backup(path: Path) -> None:
     """Make `<path>.bak` hold the current content without ever removing `path`."""
     bak = path.with_name(path.name + ".bak")
-    tmp = path.with_name(f".{path.name}.bak-{os.getpid()}.tmp")
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.bak.tmp")
     with contextlib.suppress(FileNotFoundError):
         tmp.unlink()
     try:
@@ -39,6 +40,22 @@ def _keep_backup(path: Path) -> None:
     except OSError:  # no hard links on this file system: copy instead (still atomic for the .bak)
         shutil.copy2(path, tmp)
     os.replace(tmp, bak)
+
+
+def _sweep_stale(folder: Path, name: str) -> None:
+    """Remove temporary files a crashed writer left behind (their process is gone)."""
+    for leftover in folder.glob(f".{name}.*.tmp"):
+        parts = leftover.name[len(name) + 2:].split(".")
+        pid = int(parts[0]) if parts and parts[0].isdigit() else None
+        if pid is None or pid == os.getpid():
+            continue
+        try:
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            with contextlib.suppress(FileNotFoundError):
+                leftover.unlink()
+        except PermissionError:  # alive, someone else's
+            continue
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes, keep_backup: bool = True) -> None:
@@ -50,7 +67,8 @@ def atomic_write_bytes(path: str | os.PathLike[str], data: bytes, keep_backup: b
         existed = True
     except FileNotFoundError:
         mode, existed = _umask_mode(), False
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    _sweep_stale(folder, target.name)
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.{os.getpid()}.", suffix=".tmp", dir=folder)
     try:
         with os.fdopen(fd, "wb") as f:
             f.write(data)

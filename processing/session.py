@@ -185,6 +185,9 @@ class Session:
         names = tuple(info.names) if info and len(info.names) == channels else ()
         board = (info.board if info else None) or (wanted.board if wanted else "")
         rate = (info.rate_hz if info else None) or (wanted.rate_hz if wanted else None)
+        if wanted is not None and wanted.board and info is not None and info.board \
+                and info.board != wanted.board:
+            self.notices.append(f"profile is for board '{wanted.board}', this board says '{info.board}'")
         if wanted is not None and wanted.channels == channels:
             profile = wanted
             if names and names != wanted.names and all(NAME_RE.match(n) for n in names) \

@@ -124,3 +124,11 @@ def test_mismatched_profile_uses_its_defaults_with_a_notice():
     s.handle([info(), quiet(10)])
     assert s.channels == 4 and s.settings(3).threshold_counts == 55 and s.names == NAMES
     assert any("profile is for 2 channels" in n for n in s.notices)
+
+
+def test_profile_for_another_board_id_is_used_with_a_notice():
+    p = Profile(names=NAMES, board="seed-tray", defaults=ChannelSettings(threshold_counts=66))
+    s = Session(p)
+    s.handle([info(), quiet(10)])
+    assert s.settings(0).threshold_counts == 66
+    assert any("seed-tray" in n and "greenhouse-panel" in n for n in s.notices)
