@@ -31,7 +31,10 @@ class RowLayout:
 
 
 def row_layout(width: int, name_width: int = 8) -> RowLayout:
-    """Column widths for a table `width` cells wide (cells, not counting the one-cell gaps)."""
+    """Column widths for a table `width` cells wide (cells, not counting the one-cell gaps).
+
+    Rows fit from 60 cells up; below that the table widget crops them at the right edge.
+    """
     name = max(4, min(name_width, 12))
     number, noise, snr, state = 6, 5, 7, 7
     baseline = True

@@ -1,0 +1,136 @@
+"""The plain renderables: widths never overflow, marks stay visible, states read without colour."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from rich.console import Console
+
+from processing.detections import KeyState
+from processing.measure import Measures
+from tui.quality import all_quality
+from tui.render.bar import RELEASE_MARK, THRESHOLD_MARK, delta_bar
+from tui.render.glyphs import state_label, verdict_label
+from tui.render.groups import slider_track
+from tui.render.link import link_strip
+from tui.render.row import channel_line, header_line, row_layout
+from tui.render.spark import downsample_max, sparkline
+from tui.render.views import ChannelView, LinkView
+
+
+def view(**kw: object) -> ChannelView:
+    base = dict(index=0, name="zone1", reading=1234, baseline=1100, delta=134, state="touched", threshold=100,
+                release=85, noise_pp=3.2, noise_rms=1.1, snr=23.4, verdict="solid", spark=tuple(range(60)))
+    base.update(kw)
+    return ChannelView(**base)  # type: ignore[arg-type]
+
+
+@pytest.mark.parametrize("width", [60, 79, 80, 100, 119, 120, 160, 240])
+def test_rows_and_header_fit_every_width(width: int) -> None:
+    layout = row_layout(width, name_width=12)
+    for v in (view(), view(delta=-40, state="released", snr=None, verdict="unmeasured", noise_pp=None),
+              view(delta=10**7, reading=10**7, name="a-very-long-key-name")):
+        assert channel_line(v, layout, True, {}).cell_len <= width
+    assert header_line(layout, {}).cell_len <= width
+
+
+def test_narrow_tables_drop_sparkline_then_baseline() -> None:
+    assert row_layout(120).spark > 0 and row_layout(120).baseline
+    assert row_layout(60).spark == 0
+    assert not row_layout(50).baseline
+
+
+def test_bar_marks_threshold_and_release_even_when_filled() -> None:
+    empty = delta_bar(0, 100, 70, 20, {}).plain
+    full = delta_bar(400, 100, 70, 20, {}).plain
+    for bar in (empty, full):
+        assert bar.count(THRESHOLD_MARK) == 1 and bar.count(RELEASE_MARK) == 1
+        assert len(bar) == 20
+    assert empty.index(RELEASE_MARK) < empty.index(THRESHOLD_MARK)
+    assert full.endswith("▸")  # past the scale: said, not clipped silently
+    assert delta_bar(-5, 100, 70, 20, {}).plain.startswith("◂")
+
+
+def test_bar_fill_is_proportional() -> None:
+    # threshold at 60 % of 20 cells = cell 12; half the threshold fills 6 cells
+    bar = delta_bar(50, 100, 70, 20, {}).plain
+    assert bar[:6] == "██████" and bar[6] == " "
+
+
+def test_sparkline_keeps_short_peaks() -> None:
+    values = [0.0] * 100
+    values[37] = 100.0
+    assert max(downsample_max(values, 10)) == 100.0
+    line = sparkline(values, 100, 10, {}).plain
+    assert len(line) == 10 and "█" in line or "▇" in line
+
+
+def test_sparkline_pads_short_history_on_the_left() -> None:
+    assert sparkline([1.0, 2.0], 100, 6, {}).plain.startswith("    ")
+
+
+@pytest.mark.parametrize("state", list(KeyState))
+def test_every_engine_state_has_a_glyph_and_a_word(state: KeyState) -> None:
+    label = state_label(state)
+    assert label.glyph != "?" and label.word
+    assert label.word == state_label(state.name.lower()).word
+
+
+def test_verdicts_read_without_colour() -> None:
+    words = {verdict_label(v).word for v in ("solid", "marginal", "weak", "unmeasured")}
+    assert len(words) == 4
+    assert verdict_label(None).glyph == "?"
+
+
+def test_row_without_styles_is_plain_and_still_says_everything() -> None:
+    console = Console(no_color=True, width=120, file=None, force_terminal=False)
+    line = channel_line(view(), row_layout(120), False, {})
+    with console.capture() as cap:
+        console.print(line)
+    out = cap.get()
+    assert "\x1b[" not in out
+    assert "TOUCH" in out and "●" in out and "solid" not in out  # verdict glyph ✓ with SNR
+    assert "✓" in out
+
+
+def test_link_strip_says_disconnected_and_unsaved() -> None:
+    v = LinkView(port="/dev/ttyACM0", baud=115200, state="reconnecting", fps=0.0, lost=3,
+                 profile_name="keys.toml", unsaved=True, recording="/tmp/r.csv")
+    text = link_strip(v, {}, compact=True).plain
+    assert "RECONNECTING" in text and "lost 3" in text and "keys.toml *unsaved" in text
+    assert "REC r.csv" in text and text.count("\n") == 1
+
+
+def test_slider_track_marker_moves() -> None:
+    assert slider_track(None, 99, 10) == "─" * 10
+    assert slider_track(0, 99, 10).index("◆") == 0
+    assert slider_track(99, 99, 10).index("◆") == 9
+    assert slider_track(50, 99, 11).index("◆") == 5
+
+
+def test_all_quality_matches_measures_quality_per_channel() -> None:
+    # processing.measure.Measures.quality is the definition; all_quality computes all channels at once.
+    rng = np.random.default_rng(5)
+    m = Measures(channels=6, rate_hz=100.0, window_s=1.0, history_frames=512)
+    for block in range(8):
+        n = 97
+        deltas = rng.normal(0, 3 + np.arange(6), size=(n, 6)).round().astype(np.int64)
+        states = np.zeros((n, 6), np.int8)
+        if block in (3, 4):
+            states[:, 2] = KeyState.TOUCHED
+            deltas[:, 2] += 80
+        states[10:20, 4] = KeyState.CONFIRMING
+        m.ingest(np.arange(n) / 100.0 + block, 1000 + deltas, deltas, states)
+    fast = all_quality(m)
+    for c in range(6):
+        ref = m.quality(c)
+        assert ref.noise is not None and fast[c].noise is not None
+        assert fast[c].noise.samples == ref.noise.samples
+        assert fast[c].noise.pp_counts == ref.noise.pp_counts
+        assert fast[c].noise.rms_counts == pytest.approx(ref.noise.rms_counts, rel=1e-12)
+        assert fast[c].verdict == ref.verdict
+        assert (fast[c].snr_pp is None) == (ref.snr_pp is None)
+    # and against numpy directly: population std of the newest window of released frames (numpy.std)
+    _, _, d, s = m.history.last(len(m.history))
+    released = d[s[:, 0] == KeyState.RELEASED, 0][-m.window_frames:]
+    assert fast[0].noise.rms_counts == pytest.approx(float(np.std(released)), rel=1e-12)
