@@ -49,7 +49,7 @@ def test_steps_fine_coarse_and_doubling() -> None:
 
 def test_inconsistent_values_are_refused_with_the_reason() -> None:
     s = ChannelSettings(threshold_counts=50, hysteresis_counts=10)
-    new, reason = with_value(s, "hysteresis_counts", 50)
+    _, reason = with_value(s, "hysteresis_counts", 50)
     assert reason is not None and "below the threshold" in reason
     _, reason = with_value(s, "threshold_counts", 10)  # threshold down to the hysteresis: same problem
     assert reason is not None and "hysteresis" in reason

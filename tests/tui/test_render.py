@@ -62,7 +62,7 @@ def test_sparkline_keeps_short_peaks() -> None:
     values[37] = 100.0
     assert max(downsample_max(values, 10)) == 100.0
     line = sparkline(values, 100, 10, {}).plain
-    assert len(line) == 10 and "█" in line or "▇" in line
+    assert len(line) == 10 and ("█" in line or "▇" in line)
 
 
 def test_sparkline_pads_short_history_on_the_left() -> None:
