@@ -23,7 +23,7 @@ class ChannelState:
     """Everything the detector remembers about one channel (the C struct has the same fields)."""
 
     __slots__ = ("acc", "baseline_fp", "clean", "count", "delta", "held", "pending", "reading", "state",
-                 "touch_t_s", "was_touched")
+                 "touch_t_s")
 
     def __init__(self) -> None:
         self.baseline_fp = 0  # baseline in counts * 2**FRAC_BITS
@@ -36,7 +36,6 @@ class ChannelState:
         self.reading = 0
         self.delta = 0
         self.touch_t_s = 0.0
-        self.was_touched = False
 
 
 def step(ch: ChannelState, s: ChannelSettings, polarity: int, reading: int, channel: int, index: int,

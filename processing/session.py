@@ -128,6 +128,8 @@ class Session:
         if len(block) == 0:
             return []
         if self.engine is None or self.engine.channels != block.channels:
+            if self.engine is not None:
+                self.notices.append(f"frames now have {block.channels} channels (was {self.engine.channels})")
             self._build(block.channels)
         assert self.engine is not None and self.measures is not None
         found: list[DetectionEvent] = list(self.engine.process(block))
