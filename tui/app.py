@@ -178,23 +178,26 @@ class PadtuneApp(App[int]):
             if not self.paused:
                 self._draw()
 
+    def _since_start(self, t_s: float) -> float:
+        return max(0.0, t_s - self._t0_s)
+
     def _log_tick(self, tick: Tick) -> None:
         log = self.query_one(EventLog)
         names = self.source.channel_names()
         for ev in tick.events:
             line = describe_event(ev)
             if line is not None:
-                log.add(ev.t_s - self._t0_s, line)
+                log.add(self._since_start(ev.t_s), line)
         rebased = [d for d in tick.detections if isinstance(d, Rebaselined)]
         if rebased:  # a new session re-baselines every channel at once: one line, not one per channel
             which = sorted({d.channel for d in rebased})
             what = "all channels" if len(which) == len(names) > 1 else " ".join(names[c] for c in which)
-            log.add(rebased[0].t_s - self._t0_s, Text(f"~ re-baselined {what}"))
+            log.add(self._since_start(rebased[0].t_s), Text(f"~ re-baselined {what}"))
         for det in tick.detections:
             line = None if isinstance(det, Rebaselined) else describe_detection(det, names)
             if line is None:
                 continue
-            t_s = getattr(det, "t_s", 0.0) - self._t0_s
+            t_s = self._since_start(getattr(det, "t_s", 0.0))
             log.add(t_s, line)
             channel = getattr(det, "channel", None)
             if isinstance(channel, int):
@@ -275,7 +278,7 @@ class PadtuneApp(App[int]):
                 self._draw_detail()
 
     def _log(self, line: str) -> None:
-        self.query_one(EventLog).add(self.clock() - self._t0_s, Text(line))
+        self.query_one(EventLog).add(self._since_start(self.clock()), Text(line))
 
     def _has_channels(self) -> bool:
         if self.source.channel_names():

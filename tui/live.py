@@ -1,31 +1,32 @@
 """Opening the live screen on a port or URL: builds the link, the session and the app, runs it.
 
-Shared by `padtune demo`, `padtune watch` and the port picker; all errors a user can cause (a busy
-port, a bad profile) are raised as `UserError` before the screen opens, so they print as one line.
+Shared by `padtune demo`, `padtune watch` and the port picker. Everything a user can get wrong (a
+busy or missing port, a bad profile) raises `UserError` before the screen opens, so it prints as one
+line; once the screen is up, the link reconnects by itself and the screen shows its state.
 """
 
 from __future__ import annotations
 
 from pathlib import Path
 
+from processing.profile import Profile, load_profile
 from protocol.errors import UserError
 
 
-def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = False) -> int:
-    from protocol.link import Link, open_port
-
-    from processing.profile import load_profile
+def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = False,
+             start_profile: Profile | None = None) -> int:
+    """Open `target`, run the screen until the user quits; `start_profile` is used when no file is given."""
+    from protocol.link import Link
     from tui.app import PadtuneApp
     from tui.session_source import SessionSource
 
-    profile = load_profile(profile_path) if profile_path is not None else None
-    # Open once up front so a missing or busy port is a one-line error, not a screen that never connects.
-    open_port(target, baud, 0.2).close()
+    profile = load_profile(profile_path) if profile_path is not None else start_profile
     link = Link(target, baud)
-    source = SessionSource(link, profile=profile, profile_path=profile_path, port=target, baud=baud)
-    app = PadtuneApp(source, demo=demo)
-    link.start()
+    link.start()  # UserError (one line) when the port cannot be opened
     try:
+        source = SessionSource(link, profile=profile, profile_path=profile_path, port=target, baud=baud,
+                               simulated=target.startswith("sim://"))
+        app = PadtuneApp(source, demo=demo)
         app.run()
     finally:
         link.stop()
@@ -39,3 +40,9 @@ def check_profile_arg(text: str | None) -> Path | None:
     if not path.is_file():
         raise UserError(f"no profile file at {path}: give an existing .toml file, or leave --profile out")
     return path
+
+
+def check_baud(baud: int) -> int:
+    if baud <= 0 or baud > 20_000_000:
+        raise UserError(f"baud rate {baud} is not valid: give a positive rate such as 115200")
+    return baud

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from tui.live import check_profile_arg, run_live
+from tui.live import check_baud, check_profile_arg, run_live
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -18,5 +18,5 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    return run_live(args.port, args.baud, check_profile_arg(args.profile),
+    return run_live(args.port, check_baud(args.baud), check_profile_arg(args.profile),
                     demo=args.port.startswith("sim://"))

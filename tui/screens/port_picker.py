@@ -79,9 +79,8 @@ class PortPickerApp(App[str | None]):
 
 def scan_choices() -> list[Choice]:
     """The serial ports of this machine and the simulated boards, as the picker lists them."""
-    from protocol.ports import list_ports
-
     from devices.boards import list_boards
+    from protocol.ports import list_ports
 
     ports = [(p.device, p.description or "") for p in list_ports()]
     return choices(ports, list_boards())
