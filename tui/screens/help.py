@@ -34,8 +34,8 @@ class HelpScreen(ModalScreen[None]):
     def compose(self) -> ComposeResult:
         with VerticalScroll(id="help-body"):
             yield Static("padtune keys  (Esc closes; ↑/↓, PgUp/PgDn, Home/End scroll)", id="help-title")
-            yield Static("Boards may be mains-powered: the safety cautions are at the end of this page (End).",
-                         id="help-safety-pointer")
+            yield Static("Boards may be mains-powered: the safety cautions are at the end of this page "
+                         "(End).", id="help-safety-pointer")
             tables = help_tables(self._rows)
             spaced = [item for table in tables for item in (table, Text(""))]
             yield Static(Group(*spaced), id="help-keys")
