@@ -1,6 +1,6 @@
 """C99 integer semantics of the detection path.
 
-Reference: ISO C99 6.5.5p6 (integer division truncates toward zero, "truncation toward zero"); Python's
+Reference: ISO C99 6.5.5p6 and its footnote ("truncation toward zero"; clause number from memory); Python's
 fractions.Fraction and math.trunc give the exact truncated quotient independently of our helpers.
 """
 
