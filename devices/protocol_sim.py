@@ -11,6 +11,7 @@ URL: `sim://BOARD?seed=7&speed=4&fault=drop:0.01&fault=reset@5&checksum=1&script
 
 from __future__ import annotations
 
+import math
 import threading
 import time
 import urllib.parse
@@ -21,8 +22,9 @@ from devices.faults import FaultPlan
 from devices.simulator import SimBoard
 from protocol.errors import UserError
 
-OPTIONS = ("seed", "speed", "fault", "checksum", "script", "random", "backlog_s")
+OPTIONS = ("seed", "speed", "fault", "checksum", "script", "random", "backlog_s", "packet_ms")
 MAX_BACKLOG_S = 2.0  # a host that stops reading longer than this loses frames, as with a full OS buffer
+PACKET_S = 0.01  # frames are released in 10 ms packets, as a board's USB buffer would send them
 
 
 def _flag(name: str, value: str) -> bool:
@@ -40,8 +42,8 @@ def _number(name: str, value: str, kind: type = float) -> float:
         raise UserError(f"sim:// option {name}={value!r}: must be a number") from None
 
 
-def board_from_url(url: str) -> tuple[SimBoard, float]:
-    """The SimBoard a `sim://` URL describes, and its backlog limit in seconds. UserError if wrong."""
+def board_from_url(url: str) -> tuple[SimBoard, float, float]:
+    """The SimBoard a `sim://` URL describes, its backlog limit and packet time in seconds."""
     parts = urllib.parse.urlsplit(url)
     if parts.scheme != "sim":
         raise UserError(f"{url!r} is not a sim:// URL")
@@ -62,7 +64,10 @@ def board_from_url(url: str) -> tuple[SimBoard, float]:
         random_per_min=_number("random", one["random"]) if "random" in one else None,
     )
     backlog_s = _number("backlog_s", one.get("backlog_s", str(MAX_BACKLOG_S)))
-    return board, backlog_s
+    packet_s = _number("packet_ms", one.get("packet_ms", str(PACKET_S * 1e3))) / 1e3
+    if not 0.0 <= packet_s <= 1.0:
+        raise UserError(f"sim:// option packet_ms={packet_s * 1e3:g}: use 0 to 1000 ms")
+    return board, backlog_s, packet_s
 
 
 class Serial(SerialBase):
@@ -74,6 +79,7 @@ class Serial(SerialBase):
         self._lock = threading.Lock()
         self._cancel = threading.Event()
         self._backlog_s = MAX_BACKLOG_S
+        self._packet_s = PACKET_S
         super().__init__(*args, **kwargs)
 
     # --- pyserial plumbing ------------------------------------------------------------------------
@@ -83,7 +89,7 @@ class Serial(SerialBase):
         if self._port is None:
             raise SerialException("Port must be configured before it can be used.")
         try:
-            self.board, self._backlog_s = board_from_url(self.portstr)
+            self.board, self._backlog_s, self._packet_s = board_from_url(self.portstr)
         except UserError as exc:
             # pyserial callers expect SerialException from open(); the message stays one clear line.
             raise SerialException(str(exc)) from exc
@@ -97,6 +103,9 @@ class Serial(SerialBase):
 
     def from_url(self, url: str) -> SimBoard:
         return board_from_url(url)[0]
+
+    def _packet_board_s(self, board: SimBoard) -> float:
+        return self._packet_s * board.speed
 
     def _reconfigure_port(self) -> None:
         """Baud rate, parity and the like mean nothing to a simulated board."""
@@ -133,7 +142,12 @@ class Serial(SerialBase):
             behind_s = board.sim_time_s - board.generated_s
             if behind_s > self._backlog_s * board.speed:
                 board.skip_until(board.sim_time_s - self._backlog_s * board.speed)
-            self._buffer += board.read_due()
+            # Frames go out in whole packets: generating a frame or two per read would cost far more.
+            packet = self._packet_board_s(board)
+            now = board.sim_time_s
+            release = math.floor(now / packet) * packet if packet > 0 else now
+            board.generate_until(release)
+            self._buffer += board.take()
 
     def _require(self) -> SimBoard:
         if not self.is_open or self.board is None:
@@ -153,7 +167,7 @@ class Serial(SerialBase):
             self._pull()
             if len(self._buffer) >= size or self._timeout == 0 or self._cancel.is_set() or not self.is_open:
                 break
-            wait = max(board.seconds_to_next_frame(), 0.0005)
+            wait = max(self._seconds_to_release(board), 0.0005)
             if deadline is not None:
                 left = deadline - time.monotonic()
                 if left <= 0:
@@ -164,6 +178,12 @@ class Serial(SerialBase):
             out = bytes(self._buffer[:size])
             del self._buffer[:size]
         return out
+
+    def _seconds_to_release(self, board: SimBoard) -> float:
+        """Clock seconds until the packet holding the next frame goes out."""
+        packet = self._packet_board_s(board)
+        due = board.generated_s if packet <= 0 else math.ceil(board.generated_s / packet - 1e-9) * packet
+        return max(0.0, (due - board.sim_time_s) / board.speed)
 
     def cancel_read(self) -> None:
         self._cancel.set()

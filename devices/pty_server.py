@@ -19,6 +19,8 @@ from dataclasses import dataclass
 
 from devices.simulator import SimBoard
 
+PACKET_S = 0.01
+
 
 @dataclass(slots=True)
 class ServeStats:
@@ -68,7 +70,8 @@ class PtyServer:
         self._out += self.board.read_due()
         self._trim()
         self._write()
-        return min(0.05, max(self.board.seconds_to_next_frame(), 0.001))
+        # Sleep to the next frame but at least a packet time: a 1 kHz board goes out in 10 ms packets.
+        return min(0.05, max(self.board.seconds_to_next_frame(), PACKET_S))
 
     def _read_commands(self) -> None:
         try:

@@ -15,12 +15,13 @@ from protocol.events import FrameBlock
 
 
 def test_handler_module_imports_and_parses_options():
-    board, backlog_s = protocol_sim.board_from_url(
-        "sim://pumphouse?seed=5&speed=8&fault=drop:0.1&fault=reset@2&checksum=0&script=0&random=12&backlog_s=1")
+    board, backlog_s, packet_s = protocol_sim.board_from_url(
+        "sim://pumphouse?seed=5&speed=8&fault=drop:0.1&fault=reset@2&checksum=0&script=0&random=12&backlog_s=1"
+        "&packet_ms=5")
     assert board.spec.name == "pumphouse" and board.seed == 5 and board.speed == 8
     assert board.faults.drop_rate == 0.1 and board.faults.resets_at_s == (2.0,)
     assert not board.checksum and not board.touches.script and board.touches.random_per_min == 12
-    assert backlog_s == 1
+    assert backlog_s == 1 and packet_s == 0.005
 
 
 @pytest.mark.parametrize("url, words", [
@@ -30,6 +31,7 @@ def test_handler_module_imports_and_parses_options():
     ("sim://greenhouse?checksum=maybe", "use 1 or 0"),
     ("sim://greenhouse?fault=explode", "unknown fault"),
     ("sim://glasshouse", "unknown board"),
+    ("sim://greenhouse?packet_ms=5000", "use 0 to 1000 ms"),
 ])
 def test_bad_urls_are_one_line_errors(url, words):
     with pytest.raises(UserError) as err:
@@ -41,7 +43,7 @@ def test_board_file_path_url(tmp_path):
     src = devices.boards.BOARDS_DIR / "greenhouse.toml"
     path = tmp_path / "mine.toml"
     path.write_text(src.read_text())
-    board, _ = protocol_sim.board_from_url(f"sim://{path}")
+    board, _, _ = protocol_sim.board_from_url(f"sim://{path}")
     assert board.spec.name == "greenhouse"
 
 
