@@ -40,6 +40,16 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.set_defaults(func=run)
 
 
+def _say(text: str) -> None:
+    """Print a status line; if whoever read our output has gone (`| head -1`), keep serving quietly."""
+    try:
+        print(text, flush=True)
+    except BrokenPipeError:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())  # so the interpreter's last flush cannot fail either
+        os.close(devnull)
+
+
 def list_text() -> list[str]:
     lines = []
     for name in list_boards():
@@ -68,12 +78,11 @@ def run(args: argparse.Namespace) -> int:
             raise UserError(f"--link {args.link} already exists; pick another path or remove it first")
         os.symlink(server.path, args.link)
     spec = board.spec
-    print(server.path, flush=True)
+    _say(server.path)
     faults = f", faults: {', '.join(args.fault)}" if args.fault else ""
-    print(f"  {spec.name}: {spec.channels} channels at {spec.rate_hz:g} Hz, {spec.method.kind}, seed "
-          f"{args.seed}, speed {args.speed:g}x{faults}")
-    print(f"  keys: {', '.join(spec.names)}; write +KEY / -KEY lines to press and release. Ctrl-C stops.",
-          flush=True)
+    _say(f"  {spec.name}: {spec.channels} channels at {spec.rate_hz:g} Hz, {spec.method.kind}, seed "
+         f"{args.seed}, speed {args.speed:g}x{faults}")
+    _say(f"  keys: {', '.join(spec.names)}; write +KEY / -KEY lines to press and release. Ctrl-C stops.")
     end = None if args.duration is None else time.monotonic() + args.duration
     stopping = False
 
@@ -84,7 +93,7 @@ def run(args: argparse.Namespace) -> int:
     old = signal.signal(signal.SIGTERM, stop_now)
 
     def report(connected: bool) -> None:
-        print(f"  client {'connected' if connected else 'disconnected'}", flush=True)
+        _say(f"  client {'connected' if connected else 'disconnected'}")
 
     try:
         server.serve(lambda: stopping or (end is not None and time.monotonic() >= end), report)
