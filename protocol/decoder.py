@@ -46,6 +46,10 @@ class Decoder:
         """Bytes of an unfinished line held for the next feed (never more than max_line_bytes)."""
         return self._framer.buffered_bytes
 
+    def drop_partial(self) -> int:
+        """Forget an unfinished line, so bytes from before a reconnect never join bytes after it."""
+        return self._framer.drop_partial()
+
     def feed(self, data: bytes | bytearray | memoryview, t_s: float) -> list[Event]:
         rules = self._rules
         rules.begin(t_s)

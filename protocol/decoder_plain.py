@@ -28,6 +28,10 @@ class PlainDecoder:
     def channels(self) -> int | None:
         return self._rules.channels
 
+    def drop_partial(self) -> int:
+        """Forget an unfinished line, so bytes from before a reconnect never join bytes after it."""
+        return self._framer.drop_partial()
+
     def feed(self, data: bytes, t_s: float) -> list[Event]:
         rules = self._rules
         rules.begin(t_s)

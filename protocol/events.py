@@ -25,6 +25,7 @@ class FaultKind(StrEnum):
     WIDTH_MISMATCH = "width_mismatch"  # a frame with a channel count other than the known one
     BOARD_CHANGED = "board_changed"  # three frames in a row of one new width: the board changed
     OVERFLOW = "overflow"  # events the consumer was too slow to take (bounded queue), count = dropped
+    BAUD_SUSPECT = "baud_suspect"  # most bytes of the first 2 s after opening were garbage: wrong baud?
 
 
 class LinkState(StrEnum):

@@ -38,3 +38,9 @@ class Framer:
             return complete, True
         self._partial = tail
         return complete, False
+
+    def drop_partial(self) -> int:
+        """Forget an unfinished line (the link calls this when the port went away mid-line)."""
+        dropped = len(self._partial)
+        self._partial, self._skipping = b"", False
+        return dropped

@@ -1,0 +1,89 @@
+"""The bounded, thread-safe hand-over between the link's reader thread and its consumer.
+
+A slow consumer never grows memory: past `max_frames` queued frames the newest frames are dropped
+and one `LinkFault(OVERFLOW)` marker (its count growing) stands where they would have been; past
+`max_events` other events, notes and faults are dropped and counted too. Connection status events
+are always kept (there are only ever a few).
+"""
+
+from __future__ import annotations
+
+import threading
+from collections import deque
+from collections.abc import Callable
+
+from protocol.events import Event, FaultKind, FrameBlock, LinkFault, LinkStatus
+
+
+class EventBuffer:
+    def __init__(self, max_frames: int = 20_000, max_events: int = 10_000) -> None:
+        if max_frames < 1 or max_events < 1:
+            raise ValueError("the event buffer needs room for at least one frame and one event")
+        self.max_frames = max_frames
+        self.max_events = max_events
+        self._items: deque[Event] = deque()
+        self._frames = 0
+        self._others = 0
+        self._lock = threading.Lock()
+        self.dropped_frames = 0
+        self.dropped_events = 0
+
+    def __len__(self) -> int:
+        with self._lock:
+            return len(self._items)
+
+    @property
+    def queued_frames(self) -> int:
+        return self._frames
+
+    def put(self, events: list[Event], on_drop: Callable[[int, int], None] | None = None) -> None:
+        """Queue events in order; `on_drop(frames, events)` is told what had to be dropped."""
+        lost_frames = lost_events = 0
+        with self._lock:
+            for ev in events:
+                if isinstance(ev, FrameBlock):
+                    lost_frames += self._put_frames(ev)
+                elif isinstance(ev, LinkStatus) or self._others < self.max_events:
+                    self._items.append(ev)
+                    self._others += 1
+                else:
+                    lost_events += 1
+            self.dropped_frames += lost_frames
+            self.dropped_events += lost_events
+        if on_drop is not None and (lost_frames or lost_events):
+            on_drop(lost_frames, lost_events)
+
+    def _put_frames(self, block: FrameBlock) -> int:
+        room = self.max_frames - self._frames
+        n = len(block)
+        if n <= room:
+            self._items.append(block)
+            self._frames += n
+            return 0
+        if room > 0:
+            self._items.append(
+                FrameBlock(block.t_s[:room], block.seq[:room], block.readings[:room], block.first_index)
+            )
+            self._frames += room
+        dropped = n - max(room, 0)
+        last = self._items[-1] if self._items else None
+        if isinstance(last, LinkFault) and last.kind is FaultKind.OVERFLOW:
+            self._items[-1] = LinkFault(last.t_s, FaultKind.OVERFLOW, last.count + dropped, last.detail)
+        else:
+            detail = "the consumer fell behind; newest frames dropped"
+            self._items.append(LinkFault(float(block.t_s[0]), FaultKind.OVERFLOW, dropped, detail))
+            self._others += 1
+        return dropped
+
+    def drain(self, max_events: int | None = None) -> list[Event]:
+        out: list[Event] = []
+        with self._lock:
+            items = self._items
+            while items and (max_events is None or len(out) < max_events):
+                ev = items.popleft()
+                if isinstance(ev, FrameBlock):
+                    self._frames -= len(ev)
+                else:
+                    self._others -= 1
+                out.append(ev)
+        return out
