@@ -13,7 +13,7 @@ from collections import deque
 from collections.abc import Callable, Iterable
 from dataclasses import replace
 from pathlib import Path
-from typing import ClassVar
+from typing import Any, ClassVar
 
 from rich.text import Text
 from textual.app import App, ComposeResult, SystemCommand
@@ -93,8 +93,12 @@ BINDINGS: list[Binding] = [
       show=False),
     B("question_mark,f1", "help", "help", id="app.help", key_display="?",
       tooltip="Help: every key and the safety cautions"),
-    B("q,ctrl+q", "quit", "quit", id="app.quit", priority=True, tooltip="Quit (asks when edits are unsaved)"),
+    B("q,ctrl+q", "quit", "quit", id="app.quit", tooltip="Quit (asks when edits are unsaved)"),
 ]
+
+
+# Actions that belong to the live screen (everything bound above except help and quit).
+_LIVE_ACTIONS = {b.action.split("(")[0] for b in BINDINGS} - {"help", "quit"}
 
 
 def help_rows(bindings: Iterable[Binding] = BINDINGS) -> list[tuple[str, str, str]]:
@@ -150,7 +154,7 @@ class PadtuneApp(App[int]):
         yield Footer(compact=True, show_command_palette=False)
 
     def on_mount(self) -> None:
-        self.query_one("#detail").display = False
+        self._main("#detail").display = False
         self._apply_size_classes()
         if self.ui_hz > 0:
             self.set_interval(1.0 / self.ui_hz, self.refresh_now, name="screen-timer")
@@ -174,7 +178,7 @@ class PadtuneApp(App[int]):
         self._tick_count += 1
         self._log_tick(tick)
         with self.batch_update():
-            self.query_one(LinkStrip).show(self._link_view())
+            self._main(LinkStrip).show(self._link_view())
             if not self.paused:
                 self._draw()
 
@@ -182,7 +186,7 @@ class PadtuneApp(App[int]):
         return max(0.0, t_s - self._t0_s)
 
     def _log_tick(self, tick: Tick) -> None:
-        log = self.query_one(EventLog)
+        log = self._main(EventLog)
         names = self.source.channel_names()
         for ev in tick.events:
             line = describe_event(ev)
@@ -213,22 +217,22 @@ class PadtuneApp(App[int]):
         return view
 
     def _draw(self) -> None:
-        table = self.query_one(ChannelTable)
+        table = self._main(ChannelTable)
         table.show(self.source.channel_views(SPARK_POINTS))
-        self.query_one(GroupsPanel).show(self.source.group_views(), self.source.slider_views())
+        self._main(GroupsPanel).show(self.source.group_views(), self.source.slider_views())
         self._draw_edit_bar()
         if self.detail and (self._tick_count % 4 == 1 or self.ui_hz == 0):
             self._draw_detail()
         self.frames_drawn += 1
 
     def _draw_edit_bar(self) -> None:
-        bar = self.query_one("#edit-bar", Static)
+        bar = self._main("#edit-bar", Static)
         names = self.source.channel_names()
         if not names:
             bar.update(Text("waiting for the board to send its first frames…", no_wrap=True))
             return
         ch = self.cursor
-        styles = self.query_one(ChannelTable).styles_map()
+        styles = self._main(ChannelTable).styles_map()
         width = bar.size.width or 80
         position = f"{ch + 1}/{len(names)}" if len(names) > 1 else ""
         bar.update(edit_bar(names[ch], self.source.settings(ch), self.field_key, styles, width, position))
@@ -239,15 +243,22 @@ class PadtuneApp(App[int]):
             return
         ch = self.cursor
         spectrum = self.source.spectrum(ch) if self.spectrum else None
-        self.query_one(DetailPanel).show(
+        self._main(DetailPanel).show(
             names[ch], self.source.series(ch), spectrum, self.source.settings(ch), self.field_key,
             list(self.recent.get(ch, ())), self.source.rate_hz,
         )
 
+    def _main(self, selector: str | type, expect_type: type | None = None) -> Any:
+        """A widget of the live screen, whichever screen (help, a prompt, the capture) is on top."""
+        screen = self.screen_stack[0] if self.screen_stack else self.screen
+        if expect_type is None:
+            return screen.query_one(selector)
+        return screen.query_one(selector, expect_type)
+
     # -- state helpers ----------------------------------------------------------------------------
     @property
     def cursor(self) -> int:
-        return self.query_one(ChannelTable).cursor
+        return self._main(ChannelTable).cursor
 
     @property
     def field_key(self) -> str:
@@ -260,16 +271,16 @@ class PadtuneApp(App[int]):
         self._redraw_soon()
 
     def watch_detail(self, shown: bool) -> None:
-        self.query_one("#detail").display = shown
-        self.query_one("#lower").display = not shown
+        self._main("#detail").display = shown
+        self._main("#lower").display = not shown
         self._redraw_soon()
 
     def watch_spectrum(self) -> None:
         self._redraw_soon()
 
     def watch_paused(self, paused: bool) -> None:
-        self.query_one(ChannelTable).set_class(paused, "-paused")
-        self.query_one(LinkStrip).show(self._link_view())
+        self._main(ChannelTable).set_class(paused, "-paused")
+        self._main(LinkStrip).show(self._link_view())
 
     def _redraw_soon(self) -> None:
         if self.is_mounted and self.source.channel_names():
@@ -278,7 +289,7 @@ class PadtuneApp(App[int]):
                 self._draw_detail()
 
     def _log(self, line: str) -> None:
-        self.query_one(EventLog).add(self._since_start(self.clock()), Text(line))
+        self._main(EventLog).add(self._since_start(self.clock()), Text(line))
 
     def _has_channels(self) -> bool:
         if self.source.channel_names():
@@ -288,15 +299,15 @@ class PadtuneApp(App[int]):
 
     # -- moving -----------------------------------------------------------------------------------
     def action_cursor(self, rows: int) -> None:
-        table = self.query_one(ChannelTable)
+        table = self._main(ChannelTable)
         table.cursor = table.validate_cursor(table.cursor + rows)
         self._redraw_soon()
 
     def action_cursor_page(self, pages: int) -> None:
-        self.action_cursor(pages * self.query_one(ChannelTable).page_rows)
+        self.action_cursor(pages * self._main(ChannelTable).page_rows)
 
     def action_cursor_to(self, row: int) -> None:
-        table = self.query_one(ChannelTable)
+        table = self._main(ChannelTable)
         table.cursor = table.validate_cursor(row if row >= 0 else table.rows - 1)
         self._redraw_soon()
 
@@ -322,7 +333,7 @@ class PadtuneApp(App[int]):
 
     def refresh_now_if_idle(self) -> None:
         """Show the effect of an action at once (the timer would, within a frame; tests run without it)."""
-        self.query_one(LinkStrip).show(self._link_view())
+        self._main(LinkStrip).show(self._link_view())
         if self.ui_hz == 0:
             self.refresh_now()
 
@@ -567,6 +578,11 @@ class PadtuneApp(App[int]):
 
     async def action_quit(self) -> None:
         self._unless_unsaved("There are unsaved edits. Quit without saving them?", self.exit)
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        """Keys of the live screen do nothing while another screen (help, a prompt, the capture) is on top."""
+        covered = bool(self.screen_stack) and self.screen is not self.screen_stack[0]
+        return not (covered and action in _LIVE_ACTIONS)
 
     def get_system_commands(self, screen: Screen) -> Iterable[SystemCommand]:
         seen = set()

@@ -402,3 +402,35 @@ async def test_touch_events_land_in_the_log_and_the_detail_history() -> None:
         assert any("touch" in line for line in lines) and any("release" in line for line in lines)
         await pilot.press("d")
         assert "zone1 release" in screen_text(app)
+
+
+async def test_live_keys_do_nothing_under_a_dialog_and_q_can_be_typed() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("question_mark")
+        await pilot.press("plus", "a", "b")
+        run(app, feed, 0.2)  # the screen timer keeps running under the help screen
+        assert app.source.settings(0).threshold_counts == 100
+        await pilot.press("q")  # closes help, does not quit
+        assert app.is_running and not isinstance(app.screen, HelpScreen)
+        await pilot.press("S")
+        await pilot.press("ctrl+a", "ctrl+k", "q", "+")
+        run(app, feed, 0.2)
+        assert isinstance(app.screen, PromptScreen)
+        assert app.screen.query_one("#prompt-input").value == "q+"
+        assert app.source.settings(0).threshold_counts == 100
+        await pilot.press("escape")
+
+
+async def test_capture_wizard_opens_on_w() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("w")
+        await pilot.pause()
+        assert app.screen.__class__.__name__ == "CaptureScreen"
+        run(app, feed, 0.5)  # the live screen keeps polling under it
+        await pilot.press("escape")
+        await pilot.pause()
+        assert app.screen is app.screen_stack[0]
