@@ -2,8 +2,11 @@
 
 From a pad, an overlay, a finger, a conversion method and the noise, it predicts the finger's added
 capacitance, the count change and the SNR, each at the material's nominal permittivity and at both
-ends of its range (`devices.materials`). SNR here is signal over the untouched rms noise (white, hum,
-rounding); the trade's usual floor is 5 and 10 is comfortable (common practice, no source).
+ends of its range (`devices.materials`). SNR comes in the two forms padtune measures live: signal over
+noise peak-to-peak (`snr_pp`, the one verdicts use everywhere in padtune: below 5 weak, 5-10 marginal,
+above 10 solid; common practice, no source) and signal over noise rms (`snr_rms`). Noise is the
+untouched noise: white (pp taken as 6 x rms, what a few hundred samples of Gaussian noise span; common
+practice, no source), hum (a sine: pp is twice its amplitude) and the reading's rounding.
 """
 
 from __future__ import annotations
@@ -15,8 +18,10 @@ from devices import physics
 from devices.materials import Material
 from devices.methods import Method
 
-SNR_FLOOR = 5.0  # common practice, no source
-SNR_GOOD = 10.0  # common practice, no source
+# The same bounds as processing.measure's verdict (devices may not import processing).
+SNR_PP_WEAK_BELOW = 5.0  # common practice, no source
+SNR_PP_SOLID_ABOVE = 10.0  # common practice, no source
+PP_PER_RMS = 6.0  # peak-to-peak of Gaussian noise over a few hundred samples (common practice, no source)
 
 # Components used when the designer names a method but not its parts (everyday units, like board files).
 DEFAULT_COMPONENTS: dict[str, dict[str, float]] = {
@@ -52,9 +57,11 @@ class Spread:
 class Estimate:
     finger_pf: Spread
     delta_counts: Spread  # signed: the direction a touch moves the reading
-    snr: Spread
+    snr_pp: Spread
+    snr_rms: Spread
     idle_counts: float
     noise_counts_rms: float
+    noise_counts_pp: float
     counts_per_pf: float
     polarity: int
     verdict: str
@@ -83,9 +90,12 @@ def estimate(inp: EstimateInput) -> Estimate:
     step = 1e-15
     slope = abs(float(m.value(base + step)) - float(m.value(base - step))) / (2 * step)  # counts per farad
     quantisation = 1.0 / math.sqrt(12.0)  # uniform rounding error of an integer reading, rms
-    noise_pf = math.hypot(inp.noise_pf, inp.hum_pf / math.sqrt(2.0))
-    noise = math.sqrt((slope * noise_pf * 1e-12) ** 2 + inp.noise_counts**2 + quantisation**2)
-    snrs = [abs(d) / noise for d in deltas]
+    random_rms = math.sqrt((slope * inp.noise_pf * 1e-12) ** 2 + inp.noise_counts**2 + quantisation**2)
+    hum_amplitude = slope * inp.hum_pf * 1e-12
+    noise_rms = math.sqrt(random_rms**2 + hum_amplitude**2 / 2.0)
+    noise_pp = max(1.0, PP_PER_RMS * random_rms + 2.0 * hum_amplitude)  # integer readings: at least 1
+    snr_pp = [abs(d) / noise_pp for d in deltas]
+    snr_rms = [abs(d) / noise_rms for d in deltas]
     idle = float(m.value(base))
     notes = []
     if idle >= m.max_count or idle < 1:
@@ -95,15 +105,15 @@ def estimate(inp: EstimateInput) -> Estimate:
         notes.append("a touch would push the reading past the top of the counter")
     if max(abs(d) for d in deltas) < 2:
         notes.append("the count change is below 2 counts: the method cannot resolve this finger")
-    worst = min(snrs)
-    if worst >= SNR_GOOD:
-        verdict = "works: SNR at least 10 across the material's range"
-    elif worst >= SNR_FLOOR:
-        verdict = "marginal: SNR between 5 and 10 somewhere in the material's range"
-    elif max(snrs) >= SNR_FLOOR:
-        verdict = "risky: SNR falls below 5 at one end of the material's range"
+    worst, best = min(snr_pp), max(snr_pp)
+    if worst > SNR_PP_SOLID_ABOVE:
+        verdict = "solid: SNR (pp) above 10 across the material's range"
+    elif worst >= SNR_PP_WEAK_BELOW:
+        verdict = "marginal: SNR (pp) between 5 and 10 somewhere in the material's range"
+    elif best >= SNR_PP_WEAK_BELOW:
+        verdict = "weak at one end: SNR (pp) falls below 5 within the material's range"
     else:
-        verdict = "will not work: SNR below 5 (thinner overlay, larger pad, or less noise)"
+        verdict = "weak: SNR (pp) below 5 (try a thinner overlay, a larger pad, or less noise)"
     inputs = {
         "pad_area_mm2": inp.pad_area_m2 * 1e6, "parasitic_pf": inp.parasitic_f * 1e12,
         "material": inp.material.key, "er": list(ers), "er_source": inp.material.source,
@@ -112,5 +122,5 @@ def estimate(inp: EstimateInput) -> Estimate:
         "method": m.kind, "method_detail": m.describe(), "noise_pf": inp.noise_pf,
         "noise_counts": inp.noise_counts, "hum_pf": inp.hum_pf,
     }
-    return Estimate(Spread(*(c * 1e12 for c in fingers)), Spread(*deltas), Spread(*snrs), idle, noise,
-                    slope * 1e-12, m.polarity, verdict, notes, inputs)
+    return Estimate(Spread(*(c * 1e12 for c in fingers)), Spread(*deltas), Spread(*snr_pp), Spread(*snr_rms),
+                    idle, noise_rms, noise_pp, slope * 1e-12, m.polarity, verdict, notes, inputs)

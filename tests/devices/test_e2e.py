@@ -152,7 +152,8 @@ def test_padtune_estimate_json_and_plain_text():
     assert result["inputs"]["material"] == "soda-lime-glass" and result["inputs"]["er"] == [7.2, 6.0, 8.0]
     plain = subprocess.run([sys.executable, "-m", "tui.cli", "estimate", "--board", "greenhouse"],
                            capture_output=True, text=True, timeout=60)
-    assert plain.returncode == 0 and "SNR" in plain.stdout and "\x1b[" not in plain.stdout  # piped: no colour
+    assert plain.returncode == 0 and "SNR (pp)" in plain.stdout
+    assert "\x1b[" not in plain.stdout  # piped: plain text, no colour codes
     bad = subprocess.run([sys.executable, "-m", "tui.cli", "estimate", "--thickness-mm", "3"],
                          capture_output=True, text=True, timeout=60)
     assert bad.returncode == 2 and "--material" in bad.stderr and "Traceback" not in bad.stderr

@@ -1,6 +1,7 @@
 """The overlay estimator: physics it must respect, and agreement with the simulated board it predicts."""
 
 import dataclasses
+import math
 
 import numpy as np
 import pytest
@@ -23,7 +24,8 @@ def inp(material="polycarbonate", thickness_mm=3.0, kind="charge_time", **kw):
 def test_spread_follows_the_permittivity_range():
     e = estimate(inp())
     assert e.finger_pf.low < e.finger_pf.nominal < e.finger_pf.high
-    assert e.snr.low < e.snr.nominal < e.snr.high
+    assert e.snr_pp.low < e.snr_pp.nominal < e.snr_pp.high
+    assert e.snr_rms.nominal > e.snr_pp.nominal  # rms noise is the smaller figure
     assert e.delta_counts.nominal > 0 and e.polarity == 1
 
 
@@ -39,9 +41,9 @@ def test_thicker_overlay_gives_less_and_glass_gives_more():
 def test_methods_have_their_polarity_and_verdicts_follow_noise():
     assert estimate(inp(kind="oscillator")).delta_counts.nominal < 0
     assert estimate(inp(kind="charge_share")).delta_counts.nominal < 0
-    assert estimate(inp()).verdict.startswith("works")
+    assert estimate(inp(noise_pf=0.005)).verdict.startswith("solid")
     noisy = estimate(inp(thickness_mm=10, noise_pf=0.2))
-    assert noisy.verdict.startswith("will not work") and noisy.snr.high < 5
+    assert noisy.verdict.startswith("weak:") and noisy.snr_pp.high < 5
 
 
 def test_out_of_range_components_are_noted():
@@ -64,3 +66,14 @@ def test_estimate_agrees_with_the_simulated_greenhouse_board():
                                spec.method, noise_pf=spec.noise.white_pf))
     assert measured == pytest.approx(e.delta_counts.nominal, rel=0.1)
     assert r[20:110].std() == pytest.approx(e.noise_counts_rms, rel=0.5)
+    quiet = r[20:110]
+    assert quiet.max() - quiet.min() == pytest.approx(e.noise_counts_pp, rel=0.5)
+
+
+def test_hum_counts_as_a_sine_in_both_forms():
+    # A sine of amplitude A has rms A / sqrt 2 and peak-to-peak 2 A (any signals textbook).
+    base = estimate(inp(noise_pf=0.0))
+    hum = estimate(inp(noise_pf=0.0, hum_pf=0.1))
+    amplitude = hum.counts_per_pf * 0.1
+    assert hum.noise_counts_rms == pytest.approx(math.hypot(base.noise_counts_rms, amplitude / math.sqrt(2)))
+    assert hum.noise_counts_pp == pytest.approx(6 / math.sqrt(12) + 2 * amplitude)

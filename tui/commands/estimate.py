@@ -164,9 +164,10 @@ def _lines(e: Estimate) -> list[tuple[str, str]]:
         ("idle reading", f"{e.idle_counts:.0f} counts, {e.counts_per_pf:.1f} counts per pF"),
         ("count change", f"{e.delta_counts.nominal:+.1f}  ({e.delta_counts.low:+.1f} .. "
                          f"{e.delta_counts.high:+.1f})"),
-        ("noise", f"{e.noise_counts_rms:.2f} counts rms (white {i['noise_pf']:g} pF rms, "
-                  f"hum {i['hum_pf']:g} pF, after conversion {i['noise_counts']:g} counts)"),
-        ("SNR", f"{e.snr.nominal:.1f}  ({e.snr.low:.1f} .. {e.snr.high:.1f})"),
+        ("noise", f"{e.noise_counts_pp:.1f} counts pp, {e.noise_counts_rms:.2f} rms (white {i['noise_pf']:g} "
+                  f"pF rms, hum {i['hum_pf']:g} pF, after conversion {i['noise_counts']:g} counts)"),
+        ("SNR (pp)", f"{e.snr_pp.nominal:.1f}  ({e.snr_pp.low:.1f} .. {e.snr_pp.high:.1f})"),
+        ("SNR (rms)", f"{e.snr_rms.nominal:.1f}  ({e.snr_rms.low:.1f} .. {e.snr_rms.high:.1f})"),
         ("verdict", e.verdict),
         *[("note", n) for n in e.notes],
     ]
