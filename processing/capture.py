@@ -16,7 +16,6 @@ estimate) and finds the touched stretches as the frames well above the untouched
 from __future__ import annotations
 
 import math
-from collections import deque
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
@@ -53,14 +52,22 @@ class KeyCapture:
     name: str
     quiet: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # hands-off frames
     touched: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
-    crosstalk: list[int] = field(default_factory=list)  # while other keys were held
+    crosstalk: list[int] = field(default_factory=list)  # while another key was held
+    stray_frames: int = 0  # frames it rose beyond its noise while another key was held (left out)
     attempts: int = 0
     seen: bool = False  # a touch clearly rose above the noise
 
     @property
     def untouched(self) -> np.ndarray:
-        """Everything this key saw while not touched: hands off, and while the others were held."""
-        return np.concatenate([self.quiet, np.array(self.crosstalk, np.int64)])
+        """What this key saw while not touched: hands off, and while the others were held.
+
+        A frame that reached half this key's own typical touch was this key being touched (a stray
+        finger), not crosstalk, and is left out.
+        """
+        cross = np.array(self.crosstalk, np.int64)
+        if len(self.touched):
+            cross = cross[cross < 0.5 * float(np.median(self.touched))]
+        return np.concatenate([self.quiet, cross])
 
 
 def expand_polarity(polarity: Sequence[int], channels: int) -> np.ndarray:
@@ -68,6 +75,22 @@ def expand_polarity(polarity: Sequence[int], channels: int) -> np.ndarray:
     if len(polarity) == channels:
         return np.array(list(polarity), np.int64)
     return np.full(channels, polarity[0] if len(polarity) == 1 else 1, np.int64)
+
+
+def disturbed(quiet: np.ndarray, min_rise_counts: float) -> bool:
+    """Did something touch the key during hands off? A run of 3+ frames beyond 8 robust sigmas.
+
+    The robust sigma is 1.4826 x the median absolute deviation (the normal-distribution consistency
+    factor, NIST/SEMATECH e-Handbook 1.3.5.6); 8 sigmas is far beyond any noise peak in a few seconds.
+    """
+    q = np.asarray(quiet, np.float64)
+    if len(q) < 8:
+        return False
+    centre = np.median(q)
+    sigma = max(1.4826 * float(np.median(np.abs(q - centre))), 0.5)
+    beyond = np.abs(q - centre) > max(8.0 * sigma, 2.0 * min_rise_counts)
+    run = np.convolve(beyond.astype(np.int8), np.ones(3, np.int8), mode="valid")
+    return bool((run >= 3).any())
 
 
 def _level(quiet: np.ndarray, min_rise_counts: float) -> float:
@@ -99,9 +122,9 @@ class CaptureWizard:
         self.keys = {c: KeyCapture(c, self.names[c]) for c in keys}
         self.step_index = 0
         self.notice = ""
+        self._quiet_tries = 0
         self._baseline = np.zeros(len(names))
-        self._recent: deque[np.ndarray] = deque()  # readings of the last second, for the baselines
-        self._recent_sum = np.zeros(len(names))
+        self._follow = 1.0 / max(1.0, rate_hz)  # baselines follow drift with a one-second time constant
         self._levels = np.full(len(names), min_rise_counts, float)
         self._reset_step(None)
 
@@ -175,40 +198,41 @@ class CaptureWizard:
         c = step.channel
         assert c is not None
         deltas = self._deltas(row)
-        self._track_baseline(row, c)
+        self._track_baseline(row, deltas, c)
         others = [k for k in range(len(self.names)) if k != c]
         if step.kind == TOUCH:
             self._touch_frame(c, deltas, others, now_s)
         else:
             self._release_frame(c, deltas, now_s)
 
-    def _finish_quiet(self, now_s: float) -> None:
+    def _finish_quiet(self, now_s: float, force: bool = False) -> None:
         rows = np.array(self._rows, np.int64)
         self._baseline = rows.mean(axis=0)
         quiet = (self.polarity * (rows - self._baseline)).round().astype(np.int64)
+        moved = [c for c in range(len(self.names)) if disturbed(quiet[:, c], self.min_rise_counts)]
+        if moved and not force and self._quiet_tries + 1 < self.max_attempts:
+            self._quiet_tries += 1
+            self._reset_step(now_s)
+            self.notice = f"{self.names[moved[0]]} moved during hands off: measuring again, hands off please"
+            return
         for c, key in self.keys.items():
             key.quiet = quiet[:, c].copy()
         self._levels = np.array([_level(quiet[:, c], self.min_rise_counts) for c in range(len(self.names))])
-        self._recent = deque(rows[-max(1, round(self.rate_hz)):].astype(np.float64))
-        self._recent_sum = np.sum(self._recent, axis=0)
         self._advance(now_s)
 
-    def _track_baseline(self, row: np.ndarray, target: int) -> None:
-        """Keep following slow drift on every key except the one being touched now."""
-        self._recent.append(row.astype(np.float64))
-        self._recent_sum += self._recent[-1]
-        if len(self._recent) > max(1, round(self.rate_hz)):
-            self._recent_sum -= self._recent.popleft()
-        frozen = self._baseline[target]
-        self._baseline = self._recent_sum / len(self._recent)
-        self._baseline[target] = frozen
+    def _track_baseline(self, row: np.ndarray, deltas: np.ndarray, target: int) -> None:
+        """Follow slow drift on every key that is quiet now, except the one being asked for.
+
+        A key that rose beyond its noise level (a stray finger, strong crosstalk) keeps its baseline,
+        so one stray touch cannot pull the baseline up and make the frames after it look negative.
+        """
+        follow = (np.abs(deltas) <= self._levels) & (np.arange(len(row)) != target)
+        self._baseline = np.where(follow, self._baseline + (row - self._baseline) * self._follow,
+                                  self._baseline)
 
     def _touch_frame(self, c: int, deltas: np.ndarray, others: list[int], now_s: float) -> None:
         key = self.keys[c]
         level = self._levels[c]
-        for k in others:
-            if k in self.keys:
-                self.keys[k].crosstalk.append(round(deltas[k]))
         if not self._onset:
             if deltas[c] > level:
                 self._onset, self._count, self.notice = True, 0, ""
@@ -226,6 +250,13 @@ class CaptureWizard:
         self._low_run = 0
         if self._count > self.settle_frames:
             self._held.append(round(deltas[c]))
+            for k in others:  # what the finger on this key does to the others
+                if k not in self.keys:
+                    continue
+                if deltas[k] > self._levels[k]:  # a stray finger, not coupling: keep it out
+                    self.keys[k].stray_frames += 1
+                else:
+                    self.keys[k].crosstalk.append(round(deltas[k]))
             if len(self._held) >= self.hold_frames:
                 key.touched = np.array(self._held, np.int64)
                 self._advance(now_s)
@@ -234,9 +265,6 @@ class CaptureWizard:
         if deltas[c] < self._levels[c] / 2 or not self.keys[c].seen:
             self._count += 1
             if self._count >= self.release_frames:
-                # The finger's frames must not set the next baselines: restart the window after it.
-                self._recent = deque(list(self._recent)[-1:])
-                self._recent_sum = np.sum(self._recent, axis=0)
                 self._advance(now_s)
         else:
             self._count = 0
@@ -267,7 +295,7 @@ class CaptureWizard:
             return
         if step.kind == QUIET:
             if len(self._rows) >= 8:
-                self._finish_quiet(now_s)
+                self._finish_quiet(now_s, force=True)
             return
         self._advance(now_s)
         if step.kind == TOUCH:
@@ -426,6 +454,7 @@ class CaptureOutcome:
     after: ChannelSettings  # == before when refused
     untouched: np.ndarray
     touched: np.ndarray
+    stray_frames: int = 0
 
     @property
     def suggested(self) -> bool:
@@ -447,5 +476,5 @@ def summarise(wizard: CaptureWizard, settings_of: Callable[[int], ChannelSetting
         before = settings_of(c)
         after = result.apply(before) if isinstance(result, Suggestion) else before
         out.append(CaptureOutcome(c, key.name, figures, bounds.verdict(figures.snr_pp), result, before, after,
-                                  key.untouched, key.touched))
+                                  key.untouched, key.touched, key.stray_frames))
     return out

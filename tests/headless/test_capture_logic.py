@@ -190,3 +190,36 @@ def test_baseline_estimate_follows_drift_and_ignores_touches():
     values[800:1000] += 500
     base = estimate_baseline(values, RATE_HZ)
     assert np.max(np.abs(base[100:-100] - (100 + 3.0 * t[100:-100]))) < 10
+
+
+def _feed_rows(w: CaptureWizard, rows: np.ndarray, t0: float) -> float:
+    t = t0
+    for i, row in enumerate(rows):
+        w.feed(FrameBlock(np.array([t]), np.array([i]), row[None, :].astype(np.int64), i), t)
+        t += 1 / RATE_HZ
+    return t
+
+
+def test_a_touch_during_hands_off_measures_again():
+    rng = np.random.default_rng(11)
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=0.5)
+    rows = 1000 + rng.normal(0, 2, (100, 3))
+    rows[40:60, 1] += 150  # someone brushed zone2
+    t = _feed_rows(w, rows.round(), 0.0)
+    assert w.step.kind == QUIET and w.notice.startswith("zone2 moved during hands off")
+    _feed_rows(w, (1000 + rng.normal(0, 2, (100, 3))).round(), t)
+    assert w.step.kind == TOUCH
+    assert w.keys[1].quiet.max() - w.keys[1].quiet.min() < 30  # the clean second measurement
+
+
+def test_stray_touches_on_other_keys_are_not_taken_as_their_noise():
+    rng = np.random.default_rng(12)
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=1.0)
+    t = _feed_rows(w, (1000 + rng.normal(0, 2, (100, 3))).round(), 0.0)
+    rows = 1000 + rng.normal(0, 2, (150, 3))
+    rows[:, 0] += 200  # zone1 held as asked
+    rows[60:90, 2] += 180  # and a stray finger on stop meanwhile
+    _feed_rows(w, rows.round(), t)
+    stop = w.keys[2]
+    assert stop.stray_frames >= 25
+    assert stop.untouched.max() < 20  # the stray touch is not in stop's untouched deltas

@@ -34,7 +34,7 @@ from tui.headless.histogram import DeltaHistogram
 
 TICK_S = 0.1
 COLUMNS = ("key", "noise pp", "noise rms", "touch", "SNR pp", "SNR rms", "verdict", "threshold", "hyst",
-           "debounce", "")
+           "debounce", "applied")
 
 
 def _num(value: float | None, digits: int = 1) -> str:
@@ -45,7 +45,7 @@ def outcome_row(o: CaptureOutcome, applied: bool) -> tuple[str, ...]:
     f, s = o.figures, o.after
     settings = (str(s.threshold_counts), str(s.hysteresis_counts),
                 f"{s.touch_debounce_frames}/{s.release_debounce_frames}") if o.suggested else ("-", "-", "-")
-    mark = "applied" if applied else ("" if o.suggested else "no suggestion")
+    mark = "yes" if applied else ("-" if o.suggested else "none")
     return (o.name, _num(f.noise_pp_counts), _num(f.noise_rms_counts), _num(f.signal_counts),
             _num(f.snr_pp), _num(f.snr_rms), o.verdict, *settings, mark)
 
@@ -58,6 +58,9 @@ def outcome_detail(o: CaptureOutcome) -> Group:
             lines.append(Text(f"  {key}: {reason}"))
     else:
         lines.append(Text(f"  no suggestion: {o.suggestion.reason}"))  # type: ignore[union-attr]
+    if o.stray_frames:
+        lines.append(Text(f"  {o.stray_frames} frames rose beyond its noise while other keys were held "
+                          "(a stray finger or strong crosstalk): left out of its untouched deltas"))
     threshold = float(o.after.threshold_counts) if o.suggested else None
     lines.append(Text(""))
     return Group(*lines, DeltaHistogram(o.untouched, o.touched, threshold=threshold, width=48))
