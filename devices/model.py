@@ -92,7 +92,7 @@ class BoardModel:
             return
         overlap = np.minimum(self.finger_m2 * c.strength * env, self.pad_area_m2[ch])
         plate = self.plate_f_per_m2 * overlap
-        body = self.spec.finger.body_f
+        body = self.spec.finger.body_f if c.body_f is None else c.body_f
         touch[:, ch] += plate * body / (plate + body)
         presence[:, ch] += env
 

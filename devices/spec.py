@@ -73,6 +73,7 @@ class ScriptTouch:
     from_pos: float = 0.0
     to_pos: float = 0.0
     wet_area_m2: float = 0.0
+    body_f: float | None = None  # who touches: None = the board's [finger] body_pf
 
 
 @dataclass(frozen=True, slots=True)

@@ -32,6 +32,7 @@ class Contact:
     from_pos: float = 0.0
     to_pos: float = 0.0
     wet_area_m2: float = 0.0
+    body_f: float | None = None  # the person's capacitance to ground; None: the board's default
 
     @property
     def hold_s(self) -> float:
@@ -58,7 +59,7 @@ class Contact:
 def _from_script(spec: BoardSpec, t: ScriptTouch, offset_s: float) -> Contact:
     return Contact(t.kind, t.pads, tuple(spec.channel_index(p) for p in t.pads), t.at_s + offset_s,
                    t.at_s + offset_s + t.hold_s, t.strength, "script", t.slider, t.from_pos, t.to_pos,
-                   t.wet_area_m2)
+                   t.wet_area_m2, t.body_f)
 
 
 class TouchPlan:

@@ -257,23 +257,24 @@ class _Parser:
         for i, t in enumerate(s.get("touch", [])):
             where = f"script.touch[{i}]"
             self.check_keys(t, where, {"pad", "slider", "water", "at_s", "hold_s", "strength", "from", "to",
-                                       "wet_area_mm2"})
+                                       "wet_area_mm2", "who", "body_pf"})
             targets = [k for k in ("pad", "slider", "water") if k in t]
             if len(targets) != 1:
                 raise self.fail(where, "needs exactly one of pad = NAME, slider = NAME or water = [NAMES]")
             at_s = self.num(t, where, "at_s")
             hold_s = self.num(t, where, "hold_s", low=0.0, inclusive_low=False)
             strength = self.num(t, where, "strength", 1.0, low=0.0, high=3.0)
+            body = self.who(t, where)
             if "pad" in t:
                 out.append(ScriptTouch("finger", (self.known_pad(t["pad"], f"{where}.pad", names),), at_s,
-                                       hold_s, strength))
+                                       hold_s, strength, body_f=body))
             elif "slider" in t:
                 if t["slider"] not in by_slider:
                     raise self.fail(f"{where}.slider", f"no slider named {t['slider']!r}")
                 sl = by_slider[t["slider"]]
                 out.append(ScriptTouch("swipe", sl.pads, at_s, hold_s, strength, sl.name,
                                        self.num(t, where, "from", 0.0, high=1.0),
-                                       self.num(t, where, "to", 1.0, high=1.0)))
+                                       self.num(t, where, "to", 1.0, high=1.0), body_f=body))
             else:
                 wet = t["water"]
                 if not isinstance(wet, list) or not wet:
@@ -286,6 +287,20 @@ class _Parser:
             raise self.fail("script.loop_s", f"{loop_s:g} s is shorter than the script; make it longer "
                             "than the last touch's at_s + hold_s")
         return out
+
+    def who(self, t: dict, where: str) -> float | None:
+        """Who touches: `who = "standing" | "isolated"` or `body_pf = N`; None means the board's finger."""
+        if "who" in t and "body_pf" in t:
+            raise self.fail(where, "give either who or body_pf, not both")
+        if "body_pf" in t:
+            return self.num(t, where, "body_pf", low=1.0, high=2000.0) * 1e-12
+        if "who" in t:
+            people = {"standing": physics.BODY_STANDING_F, "isolated": physics.BODY_ISOLATED_F}
+            if t["who"] not in people:
+                raise self.fail(f"{where}.who", f"{t['who']!r} is not known; use standing or isolated "
+                                "(or body_pf = N)")
+            return people[t["who"]]
+        return None
 
     def random(self, data: dict, names: list[str]) -> RandomTouchSpec:
         s = data.get("script", {})

@@ -112,3 +112,13 @@ def test_width_fault_too_wide_is_refused():
 
     with pytest.raises(UserError, match="would not fit"):
         SimBoard("grid64", faults=FaultPlan.parse(["width:250@1"]))
+
+
+def test_script_who_touches(tmp_path):
+    base = GOOD + "[[script.touch]]\npad = \"a\"\nat_s = 1\nhold_s = 1\n"
+    spec = load_board(write(tmp_path, base + "who = \"isolated\"\n"))
+    assert spec.script[0].body_f == pytest.approx(50e-12)
+    assert load_board(write(tmp_path, base + "body_pf = 80\n")).script[0].body_f == pytest.approx(80e-12)
+    assert load_board(write(tmp_path, base)).script[0].body_f is None
+    with pytest.raises(UserError, match="use standing or isolated"):
+        load_board(write(tmp_path, base + "who = \"ghost\"\n"))

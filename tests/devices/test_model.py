@@ -118,3 +118,16 @@ def test_unit_faults():
     assert bad[70:110, 1].mean() - bad[:30, 1].mean() > 30  # the other key still works
     assert (bad[:, 4] == spec.method.max_count).all()  # shorted: the charge timer runs out
     assert bad[:, 5].std() > 8 * good[:, 5].std()
+
+
+def test_who_touches_matters_an_isolated_person_gives_less():
+    # Human-body model (common practice, no source): the finger plate is in series with the body.
+    spec = quiet_board()
+    standing = dataclasses.replace(spec, script=(ScriptTouch("finger", ("zone1",), 0.0, 5.0),))
+    isolated = dataclasses.replace(spec, script=(ScriptTouch("finger", ("zone1",), 0.0, 5.0, body_f=5e-12),))
+    base = model(spec).capacitance(60, 1)[0][0, 0]
+    d_standing = model(standing).capacitance(60, 1)[0][0, 0] - base
+    d_isolated = model(isolated).capacitance(60, 1)[0][0, 0] - base
+    assert d_isolated < 0.9 * d_standing
+    plate = d_standing * 200e-12 / (200e-12 - d_standing)  # undo the series with the standing body
+    assert d_isolated == pytest.approx(plate * 5e-12 / (plate + 5e-12), rel=1e-6)
