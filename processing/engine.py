@@ -59,6 +59,8 @@ class Engine:
         self.period_mask = col("baseline_period_frames") - 1
         self.mean_mul = np.array([1 << (FRAC_BITS - s.period_exp) for s in settings], np.int64)
         self.chunk = min(s.baseline_period_frames for s in settings) if settings else 1
+        self._uniform = bool(settings) and all(s.baseline_period_frames == self.chunk for s in settings)
+        self._spec_periods, self._cooldown, self._backoff = 8, 0, 1
 
     def set_settings(self, channel: int, s: ChannelSettings) -> None:
         s.check()
@@ -83,6 +85,15 @@ class Engine:
         found: list[tuple[int, int, DetectionEvent]] = []
         start = 0
         while start < n:
+            if self._cooldown:
+                self._cooldown -= 1
+            elif self._uniform and self.frames & (self.chunk - 1) == 0 and n - start >= 2 * self.chunk:
+                periods = min(self._spec_periods, (n - start) // self.chunk)
+                taken = self._speculate(readings, start, periods, deltas, states)
+                self._adapt(periods, taken)
+                start += taken * self.chunk
+                if taken == periods:
+                    continue
             room = self.chunk - (self.frames & (self.chunk - 1))
             stop = min(n, start + room)
             self._chunk(block, readings, start, stop, deltas, states, found)
@@ -93,6 +104,53 @@ class Engine:
         self.last_deltas, self.last_states = deltas, states
         found.sort(key=lambda item: (item[0], item[1]))
         return [ev for _, _, ev in found]
+
+    def _adapt(self, periods: int, taken: int) -> None:
+        """Speculate over about as many periods as tend to pass quietly; back off while it keeps failing."""
+        if taken == periods:
+            self._spec_periods, self._backoff = min(64, periods * 2), 1
+        elif taken:
+            self._spec_periods, self._backoff = max(2, taken), 1
+        else:
+            self._spec_periods = 2
+            self._cooldown = self._backoff
+            self._backoff = min(64, self._backoff * 2)
+
+    def _speculate(self, readings: np.ndarray, start: int, periods: int, deltas: np.ndarray,
+                   states: np.ndarray) -> int:
+        """Settle whole baseline periods at once while no channel changes state; returns periods taken.
+
+        Needs one period length for all channels, a period-aligned start (so every channel has acc = 0
+        and, unless an edit or re-baseline intervened, clean = true) and every channel released or
+        touched. The baseline recursion runs period by period over channel vectors; the deltas of all
+        frames follow in one operation; the first period in which any channel could change state (or
+        reach its stuck timeout) ends the run, and the caller steps that period the careful way.
+        """
+        released, touched = self.state == RELEASED, self.state == TOUCHED
+        if self.pending.any() or not self.clean.all() or not (released | touched).all():
+            return 0
+        p, c = self.chunk, self.channels
+        seg = readings[start:start + periods * p].reshape(periods, p, c)
+        means_fp = seg.sum(axis=1) * self.mean_mul
+        bases = np.empty((periods + 1, c), np.int64)
+        bases[0] = self.baseline_fp
+        for k in range(periods):
+            diff = means_fp[k] - bases[k]
+            shift = np.where(self.pol * diff > 0, self.slow, self.fast)
+            bases[k + 1] = bases[k] + np.where(released, tdiv_pow2_np(diff, shift), 0)
+        x = self.pol * (seg * ONE_FP - bases[:periods, None, :])
+        held_end = self.held + p * np.arange(1, periods + 1)[:, None]
+        quiet_tch = (x.min(axis=1) >= self.rel_fp) & ((self.stuck == 0) | (held_end < self.stuck))
+        quiet = np.where(released, x.max(axis=1) < self.thr_fp, quiet_tch).all(axis=1)
+        taken = periods if quiet.all() else int(np.argmin(quiet))
+        if taken:
+            rows = slice(start, start + taken * p)
+            deltas[rows] = tdiv_pow2_np(x[:taken].reshape(taken * p, c), FRAC_BITS)
+            states[rows] = self.state
+            self.baseline_fp = bases[taken].copy()
+            self.held += np.where(touched, taken * p, 0)
+            self.frames += taken * p
+        return taken
 
     def _chunk(self, block: FrameBlock, readings: np.ndarray, start: int, stop: int, deltas: np.ndarray,
                states: np.ndarray, found: list) -> None:

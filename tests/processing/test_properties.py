@@ -1,5 +1,7 @@
 """Properties of the detector over generated traces (hypothesis): debounce, hysteresis, fast == plain."""
 
+from dataclasses import replace
+
 import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -40,8 +42,10 @@ def traces(draw, max_channels=5):
     readings = 5000 + level[:, None] + rng.integers(-noise, noise + 1, (len(level), channels))
     readings[:, ::2] += rng.integers(-50, 50)  # channels differ
     setts = [draw(channel_settings()) for _ in range(channels)]
+    if draw(st.booleans()):  # one period for all channels: the fast engine's whole-period path
+        setts = [replace(s, baseline_period_frames=setts[0].baseline_period_frames) for s in setts]
     polarity = [draw(st.sampled_from([1, -1])) for _ in range(channels)]
-    sizes = draw(st.lists(st.integers(1, 80), min_size=1, max_size=5))
+    sizes = draw(st.lists(st.integers(1, 300), min_size=1, max_size=5))
     rebase = draw(st.lists(st.integers(0, len(level)), max_size=2))
     return readings.astype(np.int64), setts, polarity, sizes, rebase
 
