@@ -73,13 +73,9 @@ def load_profile_arg(text: str | None) -> Any:
 
 
 def open_link(target: str, baud: int, clock: Callable[[], float] = time.monotonic) -> Any:
-    """Open `target` once to turn a missing or busy port into a one-line error, then start the link."""
-    try:
-        from protocol.link import Link, open_port
-    except ImportError:  # protocol.link not in this tree yet: the thin stand-in (see its docstring)
-        from tui.headless.fallback_link import Link, open_port  # type: ignore[assignment]
+    """Start a `protocol.link.Link` on `target` (a missing, busy or forbidden port is a UserError)."""
+    from protocol.link import Link
 
-    open_port(target, baud, 0.2).close()
     link = Link(target, baud, clock=clock)
     link.start()
     return link
