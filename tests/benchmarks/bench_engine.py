@@ -39,7 +39,15 @@ def synthetic(frames: int, channels: int, seed: int = 1) -> np.ndarray:
     return np.round(x).astype(np.int64)
 
 
+REPEATS = 1  # best of this many runs (2 in the full run: the machine is shared, the best is the engine)
+
+
 def run(cls, readings: np.ndarray, rate_hz: float = 100.0):
+    runs = [_run_once(cls, readings, rate_hz) for _ in range(REPEATS)]
+    return min(r[0] for r in runs), runs[0][1], runs[0][2]
+
+
+def _run_once(cls, readings: np.ndarray, rate_hz: float):
     channels = readings.shape[1]
     e = cls(channels, [ChannelSettings()] * channels, [1] * channels)
     t_s = np.arange(len(readings)) / rate_hz
@@ -108,6 +116,8 @@ def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="small sizes, a few seconds")
     args = ap.parse_args()
+    global REPEATS
+    REPEATS = 1 if args.quick else 2
     sizes = {16: 4_000, 64: 2_000, 256: 500} if args.quick else {16: 60_000, 64: 20_000, 256: 5_000}
     for channels, frames in sizes.items():
         compare(channels, frames)
