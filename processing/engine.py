@@ -7,6 +7,11 @@ for the whole chunk, or touched and stays at or above its release level without 
 timeout, cannot change state: it is settled in bulk. Every other channel (a possible transition, a
 pending re-baseline, confirming or releasing) is run through the reference `step` frame by frame for
 that chunk. Period ends are then applied to all channels at once, exactly as `period_end` does.
+
+When every channel has the same period and none is confirming, releasing or pending, whole periods are
+settled at once (`_speculate`): the baseline recursion runs period by period over channel vectors, the
+deltas of all those frames follow in one operation, and the first period in which any channel could
+change state is handed back to the chunk path. How many periods to try adapts to how busy the keys are.
 """
 
 from __future__ import annotations
