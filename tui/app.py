@@ -271,6 +271,7 @@ class PadtuneApp(App[int]):
         self._redraw_soon()
 
     def watch_detail(self, shown: bool) -> None:
+        self.set_class(shown, "-detail")
         self._main("#detail").display = shown
         self._main("#lower").display = not shown
         self._redraw_soon()

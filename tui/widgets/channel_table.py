@@ -42,6 +42,9 @@ class ChannelTable(Widget):
     # -- data in ----------------------------------------------------------------------------------
     def show(self, views: Sequence[ChannelView]) -> None:
         """Replace the rows (called by the app's screen timer) and redraw."""
+        if len(views) != len(self._views):
+            self._views = views
+            self.refresh(layout=True)  # the table's height follows its row count
         self._views = views
         self.cursor = self.validate_cursor(self.cursor)
         self._scroll_to_cursor()
@@ -69,6 +72,10 @@ class ChannelTable(Widget):
     @property
     def page_rows(self) -> int:
         return max(1, self.size.height - 2)
+
+    def get_content_height(self, container: object, viewport: object, width: int) -> int:
+        """One line per channel plus the header, so the table takes only the room it needs."""
+        return len(self._views) + 1 if self._views else 2
 
     # -- drawing ----------------------------------------------------------------------------------
     def notify_style_update(self) -> None:
