@@ -234,3 +234,24 @@ def test_live_commands_reject_bad_input_with_exit_2(tmp_path, args, message):
     assert out.returncode == 2, (out.stdout, out.stderr)
     assert message in out.stderr and "Traceback" not in out.stderr
     assert (tmp_path / "exists.csv").read_text() == "keep me"
+
+
+def test_link_faults_show_as_link_events_and_in_the_summary(tmp_path):
+    url = ("sim://greenhouse?speed=4&seed=2&fault=drop:0.02&fault=junk:0.01&fault=garble:0.01"
+           "&fault=reset@6&fault=width:7@14")
+    rec = tmp_path / "faults.csv"
+    out = padtune("monitor", url, "--json", "--duration", "4.5", "--record", str(rec))
+    assert out.returncode == 0, out.stderr
+    events = json_lines(out.stdout)
+    link = [e for e in events if e["type"] == "link"]
+    kinds = {e["event"] for e in link}
+    assert {"lost", "garbled", "bad_checksum", "reset", "board changed"} <= kinds, kinds
+    summary = events[-1]
+    for kind, key in (("lost", "lost"), ("garbled", "garbled"), ("bad_checksum", "bad_checksum"),
+                      ("reset", "resets")):
+        assert summary[key] == sum(e["count"] for e in link if e["event"] == kind) > 0
+    assert len(summary["channels"]) == 7  # the board now sends 7 channels
+    # The recording keeps the faults in stream order: its replay counts the same.
+    again = json_lines(padtune("replay", str(rec), "--json").stdout)[-1]
+    for key in ("frames", "lost", "garbled", "bad_checksum", "resets"):
+        assert again[key] == summary[key], key

@@ -212,3 +212,22 @@ def test_every_command_has_help():
     for command in ("monitor", "record", "replay", "tune", "check"):
         out = padtune(command, "--help")
         assert out.returncode == 0 and f"usage: padtune {command}" in out.stdout
+
+
+def test_paced_replay_gives_the_same_events_as_flat_out(work):
+    folder, _, _ = work
+    profile = str(folder / "gh.toml")
+    # A short piece of the recording: pacing hands frames over in 50 ms slices instead of one block.
+    data = (folder / "gh.raw").read_bytes()
+    short = b"\n".join(data.split(b"\n")[:400]) + b"\n"
+    (folder / "short.raw").write_bytes(short)
+    fast = json_lines(padtune("replay", str(folder / "short.raw"), "--profile", profile, "--json").stdout)
+    paced = json_lines(padtune("replay", str(folder / "short.raw"), "--profile", profile, "--json",
+                               "--speed", "40", "--every", "1").stdout)
+    flat = json_lines(padtune("replay", str(folder / "short.raw"), "--profile", profile, "--json",
+                              "--every", "1").stdout)
+    pick = lambda events: [e for e in events if e["type"] in ("touch", "release")]  # noqa: E731
+    assert pick(fast) and pick(paced) == pick(fast) == pick(flat)
+    for run in (paced, flat):
+        times = [e["t"] for e in run if e["type"] == "status"]
+        assert times == pytest.approx([1.0, 2.0, 3.0, 4.0, 5.0, 6.0], abs=0.3)

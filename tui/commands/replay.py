@@ -39,14 +39,14 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.set_defaults(func=run)
 
 
-def paced(events: list[Event], speed: float) -> Iterator[tuple[list[Event], float]]:
-    """(events, recorded time) in stream order; FrameBlocks split into slices when pacing."""
+def paced(events: list[Event], slice_s: float | None) -> Iterator[tuple[list[Event], float]]:
+    """(events, recorded time) in stream order; FrameBlocks cut into `slice_s` slices if given."""
     for event in events:
-        if isinstance(event, FrameBlock) and speed > 0 and len(event) > 1:
+        if isinstance(event, FrameBlock) and slice_s and len(event) > 1:
             t = event.t_s
             start = 0
             while start < len(event):
-                stop = int(start + max(1, (t[start:] < t[start] + PACE_CHUNK_S).sum()))
+                stop = int(start + max(1, (t[start:] < t[start] + slice_s).sum()))
                 yield [FrameBlock(t[start:stop], event.seq[start:stop], event.readings[start:stop],
                                   event.first_index + start)], float(t[stop - 1])
                 start = stop
@@ -71,7 +71,9 @@ def _run(args: argparse.Namespace) -> int:
     first_t: float | None = None
     last_t = 0.0
     with StopFlag() as stop:
-        for batch, t_s in paced(rec.events, args.speed):
+        # Slices keep a paced replay smooth and put each status at its recorded time.
+        slice_s = PACE_CHUNK_S if args.speed > 0 else (args.every / 4 if args.every else None)
+        for batch, t_s in paced(rec.events, slice_s):
             if stop.stopped:
                 break
             if args.speed > 0:
