@@ -167,6 +167,13 @@ def _channel_refs(where: str, refs: Any, names: tuple[str, ...], out: Problems) 
     return tuple(found) if len(found) == len(refs) else None
 
 
+def _unique_names(table: str, names: list[str], out: Problems) -> None:
+    for i, name in enumerate(names):
+        if name in names[:i]:
+            first = names.index(name)
+            out.append((f"{table}[{i}].name", f"'{name}' is already the name of {table}[{first}]"))
+
+
 def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec, ...]:
     groups: list[GroupSpec] = []
     for i, g in enumerate(raw if isinstance(raw, list) else []):
@@ -186,6 +193,7 @@ def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec,
         groups.append(GroupSpec(str(name), members or (), margin if _is_int(margin) else 0))
     if raw is not None and not isinstance(raw, list):
         out.append(("group", "must be an array of tables ([[group]])"))
+    _unique_names("group", [g.name for g in groups], out)
     return tuple(groups)
 
 
@@ -212,6 +220,7 @@ def _sliders(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[SliderSpe
         sliders.append(SliderSpec(str(name), pads or (), wheel is True, res if _is_int(res) else 100))
     if raw is not None and not isinstance(raw, list):
         out.append(("slider", "must be an array of tables ([[slider]])"))
+    _unique_names("slider", [s.name for s in sliders], out)
     return tuple(sliders)
 
 

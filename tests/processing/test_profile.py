@@ -193,6 +193,13 @@ def test_wrong_table_shapes():
     assert profile is None and {"group", "slider", "channel", "limits"} <= {key for key, _ in found}
 
 
+def test_duplicate_group_and_slider_names(tmp_path):
+    text = GOOD + '[[group]]\nname = "zones"\nmembers = ["zone2", "stop"]\n'
+    assert "group[1].name: 'zones' is already the name of group[0]" in problems(tmp_path, text)
+    text = GOOD + '[[slider]]\nname = "strip"\npads = ["zone2", "stop"]\n'
+    assert "slider[1].name: 'strip' is already the name of slider[0]" in problems(tmp_path, text)
+
+
 def test_several_problems_all_reported_one_line_each(tmp_path):
     text = GOOD.replace("threshold_counts = 120", "thresold_counts = 120").replace("min_snr_pp", "min_snr")
     lines = problems(tmp_path, text).splitlines()
