@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import datetime as dt
 import os
+import select
 import signal
 import subprocess
 import sys
@@ -255,3 +256,57 @@ def test_link_faults_show_as_link_events_and_in_the_summary(tmp_path):
     again = json_lines(padtune("replay", str(rec), "--json").stdout)[-1]
     for key in ("frames", "lost", "garbled", "bad_checksum", "resets"):
         assert again[key] == summary[key], key
+
+
+def test_monitor_without_duration_ends_on_sigterm_with_a_summary():
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "monitor", "sim://greenhouse?speed=4",
+                             "--json"], cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        first = proc.stdout.readline()  # the link is up once it reports
+        assert '"type":"link"' in first
+        time.sleep(0.5)
+        proc.send_signal(signal.SIGTERM)
+        out, err = proc.communicate(timeout=20)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    assert proc.returncode == 0, err
+    assert json_lines(out)[-1]["type"] == "summary" and json_lines(out)[-1]["frames"] > 0
+
+
+def test_record_on_a_terminal_marks_a_moment_on_enter(tmp_path):
+    """stdin and stderr on a pseudo-terminal, as when a person runs it: Enter writes a mark."""
+    import pty
+    import tty
+
+    master, slave = pty.openpty()
+    tty.setraw(slave)
+    path = tmp_path / "marked.csv"
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "record", "sim://greenhouse?speed=4",
+                             "-o", str(path)], cwd=ROOT, stdin=slave, stdout=slave, stderr=slave,
+                            env={**os.environ, "NO_COLOR": "1", "TERM": "xterm"})
+    os.close(slave)
+    seen = bytearray()
+    deadline = time.monotonic() + 30
+
+    def read_until(text: bytes) -> None:
+        while text not in seen and time.monotonic() < deadline:
+            ready, _, _ = select.select([master], [], [], 0.2)
+            if ready:
+                seen.extend(os.read(master, 1024))
+        assert text in seen, bytes(seen)
+
+    try:
+        read_until(b"Enter marks a moment")
+        os.write(master, b"zone1 by hand\n")
+        read_until(b"mark at")
+        proc.send_signal(signal.SIGTERM)
+        proc.wait(20)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+        os.close(master)
+    assert proc.returncode == 0
+    rec = read_recording(path)
+    assert [(m.kind, m.text) for m in rec.marks] == [("note", "zone1 by hand")]
+    assert rec.frames > 0
