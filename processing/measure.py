@@ -17,6 +17,9 @@ import numpy as np
 
 from processing.detections import KeyState
 
+SNR_DEFINITION = ("SNR = touch signal / noise. Touch signal: median delta while touched. Noise: peak-to-peak "
+                  "(pp form) or RMS (standard deviation, RMS form) of the delta over the last {window_s:g} s "
+                  "of released frames.")
 MIN_NOISE_SAMPLES = 8
 MIN_SPECTRUM_SAMPLES = 16
 MAINS_HZ = (50.0, 60.0)
@@ -86,6 +89,12 @@ class VerdictBounds:
 
     weak_below: float = 5.0
     solid_above: float = 10.0
+
+    def describe(self) -> str:
+        """The verdict rule in one line, for help screens and reports."""
+        lo, hi = f"{self.weak_below:g}", f"{self.solid_above:g}"
+        return (f"verdict from SNR pp: below {lo} weak, {lo}-{hi} marginal, above {hi} solid "
+                "(common practice, no source)")
 
     def verdict(self, snr_pp: float | None) -> str:
         if snr_pp is None:
@@ -224,6 +233,10 @@ class Measures:
     @property
     def window_frames(self) -> int:
         return max(MIN_NOISE_SAMPLES, math.ceil(self.window_s * self._rate_hz))
+
+    def definition(self) -> str:
+        """How SNR and the verdict are defined here, to show beside the numbers."""
+        return f"{SNR_DEFINITION.format(window_s=self.window_s)} {self.bounds.describe()}."
 
     def ingest(self, t_s: np.ndarray, readings: np.ndarray, deltas: np.ndarray, states: np.ndarray) -> None:
         self.history.append(t_s, readings, deltas, states)

@@ -147,3 +147,9 @@ def test_touch_signal_forgets_after_clear():
     assert m.touch_signal(0) is None
     feed(m, [100] * 10, [TOUCHED] * 10)
     assert m.touch_signal(0) == 100
+
+
+def test_definition_text_states_the_forms_window_and_bounds():
+    text = Measures(1, rate_hz=100.0, window_s=3.0, bounds=VerdictBounds(4, 12)).definition()
+    assert "median delta while touched" in text and "last 3 s" in text and "RMS" in text
+    assert "below 4 weak" in text and "above 12 solid" in text
