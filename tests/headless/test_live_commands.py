@@ -310,3 +310,18 @@ def test_record_on_a_terminal_marks_a_moment_on_enter(tmp_path):
     rec = read_recording(path)
     assert [(m.kind, m.text) for m in rec.marks] == [("note", "zone1 by hand")]
     assert rec.frames > 0
+
+
+def test_limits_from_a_good_unit_pass_it_and_fail_a_short(profiles, tmp_path):
+    """The production flow: record a good unit, `tune --limits`, then `check` units against it."""
+    out = padtune("tune", str(profiles / "gh.csv"), "-o", str(tmp_path / "golden.toml"), "--limits", "--json")
+    assert out.returncode == 0, out.stderr
+    limits = json_lines(out.stdout)[0]["limits"]
+    assert all(limits[k] is not None for k in ("max_noise_pp_counts", "min_snr_pp", "baseline_min_counts"))
+    good = padtune("check", "sim://greenhouse?seed=9&script=0", "--profile", str(tmp_path / "golden.toml"),
+                   "--duration", "1.5")
+    assert good.returncode == 0, good.stdout
+    assert "PASS: every channel passed" in good.stdout
+    bad = padtune("check", "sim://greenhouse?seed=9&script=0&fault=short:zone1", "--profile",
+                  str(tmp_path / "golden.toml"), "--duration", "1.5")
+    assert bad.returncode == 1 and "FAIL: zone1" in bad.stdout and "shorted pad?" in bad.stdout

@@ -10,14 +10,16 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 from processing.profile import save_profile
 from processing.recording import read_recording
+from processing.settings import LIMIT_KEYS
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import load_profile_arg
-from tui.headless.tuning import TuneResult, result_rows, tune_recording
+from tui.headless.tuning import TuneResult, limits_from_result, result_rows, tune_recording
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -33,6 +35,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--report", metavar="FILE.html", help="also write an HTML report with plots")
     p.add_argument("--json", action="store_true", help="print the results as one JSON object")
     p.add_argument("--rate", metavar="HZ", type=float, help="frame rate of a raw capture without info line")
+    p.add_argument("--limits", action="store_true",
+                   help="also set the profile's production limits from this recording of a good unit "
+                        "(baseline range, noise, SNR; see README)")
+    p.add_argument("--baseline-margin", metavar="PCT", type=float, default=20.0,
+                   help="with --limits: widen the good unit's baseline range by PCT %% (default 20)")
     p.set_defaults(func=run)
 
 
@@ -49,15 +56,22 @@ def run(args: argparse.Namespace) -> int:
     base = load_profile_arg(args.profile)
     rec = read_recording(args.file, rate_hz=args.rate)
     result = tune_recording(rec, base)
+    if args.limits:
+        if not 0 <= args.baseline_margin < 100:
+            raise UserError(f"--baseline-margin {args.baseline_margin:g}: give a percentage from 0 to 99")
+        limits = limits_from_result(result, rec.arrays()[2], args.baseline_margin / 100)
+        result.profile = replace(result.profile, limits=limits)
     save_profile(result.profile, out)
     if args.report:
         from tui.report.tune_report import write_tune_report
 
         write_tune_report(args.report, result)
     if args.json:
+        limits = {k: getattr(result.profile.limits, k) for k in LIMIT_KEYS}
         sys.stdout.write(json.dumps({"type": "tune", "source": result.source, "profile": str(out),
                                      "from_marks": result.from_marks, "rate_hz": result.rate_hz,
-                                     "frames": result.frames, "channels": result_rows(result)}) + "\n")
+                                     "frames": result.frames, "limits": limits,
+                                     "channels": result_rows(result)}) + "\n")
     else:
         print_result(result, out)
     return 0
@@ -81,4 +95,8 @@ def print_result(result: TuneResult, out: Path) -> None:
             console.print(f"{row['name']} {key}: {reason}")
     console.print("SNR = median touched delta / untouched noise (pp or RMS); verdict from SNR pp "
                   "(common practice: below 5 weak, 5-10 marginal, above 10 solid)")
+    limits = [f"{k} {getattr(result.profile.limits, k)}" for k in LIMIT_KEYS
+              if getattr(result.profile.limits, k) is not None]
+    if limits:
+        console.print("production limits: " + ", ".join(limits))
     console.print(f"profile written to {out}")

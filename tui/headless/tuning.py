@@ -7,6 +7,7 @@ it; the HTML report draws it.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -15,7 +16,7 @@ from processing.capture import KeyFigures, KeyTrace, find_touches, key_figures
 from processing.measure import VerdictBounds
 from processing.profile import Profile, profile_for, profile_from_board
 from processing.recording import Recording
-from processing.settings import ChannelSettings
+from processing.settings import ChannelSettings, Limits
 from processing.suggest import Refusal, Suggestion, suggest
 from protocol.errors import UserError
 
@@ -111,3 +112,24 @@ def result_rows(result: TuneResult) -> list[dict[str, object]]:
             "refusal": k.outcome.reason if isinstance(k.outcome, Refusal) else None,
         })
     return rows
+
+
+def limits_from_result(result: TuneResult, readings: np.ndarray, baseline_margin: float = 0.2) -> Limits:
+    """Acceptance limits for `padtune check` from a recording of a good unit.
+
+    Common practice, no source: the baseline range is the good unit's lowest and highest baseline
+    widened by `baseline_margin` (20 %), the noise limits three times its noisiest key, and the SNR
+    limit 70 % of its weakest key (so the same design passes with margin and a bad unit does not).
+    """
+    baselines = np.median(readings, axis=0)
+    pps = [k.figures.noise_pp_counts for k in result.keys if k.figures.noise_pp_counts is not None]
+    rmss = [k.figures.noise_rms_counts for k in result.keys if k.figures.noise_rms_counts is not None]
+    snrs = [k.figures.snr_pp for k in result.keys
+            if k.figures.snr_pp is not None and np.isfinite(k.figures.snr_pp) and k.trace.stretches]
+    return Limits(
+        max_noise_pp_counts=float(math.ceil(3 * max(pps))) if pps and max(pps) > 0 else None,
+        max_noise_rms_counts=round(3 * max(rmss), 1) if rmss and max(rmss) > 0 else None,
+        min_snr_pp=round(0.7 * min(snrs), 1) if snrs else None,
+        baseline_min_counts=math.floor(float(baselines.min()) * (1 - baseline_margin)),
+        baseline_max_counts=math.ceil(float(baselines.max()) * (1 + baseline_margin)),
+    )
