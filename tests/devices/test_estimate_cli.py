@@ -33,6 +33,19 @@ def test_isolated_person_gives_a_smaller_signal(capsys):
     assert isolated["finger_pf"]["nominal"] < standing["finger_pf"]["nominal"]
 
 
+def test_from_scratch_defaults_and_pad_override(capsys):
+    code, out, _ = run(capsys, "--material", "acrylic", "--thickness-mm", "2", "--json")
+    e = json.loads(out)
+    assert code == 0 and e["inputs"]["method"] == "charge_time"
+    assert e["inputs"]["pad_area_mm2"] == pytest.approx(144)
+    board = json.loads(run(capsys, "--board", "greenhouse", "--json")[1])
+    bigger = json.loads(run(capsys, "--board", "greenhouse", "--pad-mm", "20", "--json")[1])
+    assert bigger["inputs"]["pad_area_mm2"] == pytest.approx(400) and bigger["inputs"]["parasitic_pf"] != 14
+    assert board["inputs"]["parasitic_pf"] == 14
+    other = json.loads(run(capsys, "--board", "greenhouse", "--method", "oscillator", "--json")[1])
+    assert other["inputs"]["method"] == "oscillator" and other["polarity"] == -1
+
+
 def test_plain_text_when_piped(capsys):
     code, out, _ = run(capsys, "--material", "acrylic", "--thickness-mm", "2", "--pad-diameter-mm", "15",
                        "--hum-pf", "0.05")
@@ -48,6 +61,8 @@ def test_plain_text_when_piped(capsys):
     (["--board", "greenhouse", "--set", "r_ohms=5"], "did you mean r_ohm"),
     (["--material", "acrylic", "--thickness-mm", "0"], "--thickness-mm must be above zero"),
     (["--material", "unobtainium", "--thickness-mm", "2"], "unknown overlay material"),
+    (["--board", "greenhouse", "--noise-pf", "-1"], "--noise-pf cannot be negative"),
+    (["--board", "greenhouse", "--isolated", "--body-pf", "80"], "not both"),
 ])
 def test_mistakes(capsys, args, words):
     code, _, err = run(capsys, *args)

@@ -87,59 +87,77 @@ def _components(args: argparse.Namespace, kind: str, base: dict[str, float]) -> 
     return table
 
 
-def build_input(args: argparse.Namespace) -> EstimateInput:
-    area = parasitic = material = thickness = method = None
-    air_gap, finger, body = 0.0, physics.FINGER_CONTACT_DIAMETER_M, physics.BODY_STANDING_F
-    noise_pf, noise_counts, hum_pf = 0.02, 0.0, 0.0
-    kind = args.method
-    if args.board:
-        spec = load_board(args.board)
-        wanted = args.pad_name or spec.names[0]
-        pad = next((p for p in spec.pads if p.name == wanted), None)
-        if pad is None:
-            raise UserError(f"--pad {args.pad_name!r}: {spec.name} has pads {', '.join(spec.names)}")
-        area, parasitic = pad.area_m2, pad.parasitic_f
-        material, thickness, air_gap = spec.overlay.material, spec.overlay.thickness_m, spec.overlay.air_gap_m
-        finger, body = spec.finger.contact_diameter_m, spec.finger.body_f
-        noise_pf, noise_counts = spec.noise.white_pf, spec.noise.counts_rms
-        hum_pf = spec.noise.hum_pf * (1 + spec.noise.hum_harmonic2)
-        if kind is None or kind == spec.method.kind:
-            method = spec.method
-            kind = spec.method.kind
-    elif args.pad_name:
-        raise UserError("--pad names a pad of a board file: give --board too")
-    kind = kind or "charge_time"
-    if method is None or args.set:
-        base = DEFAULT_COMPONENTS[kind] if method is None else _file_units(method)
-        method = method_from_table(kind, _components(args, kind, base), where="--set")
-    area = _pad_area_m2(args) or area or 1.44e-4
+def _from_board(args: argparse.Namespace) -> dict[str, object]:
+    """EstimateInput fields taken from one pad of a board file (the starting point for overrides)."""
+    spec = load_board(args.board)
+    wanted = args.pad_name or spec.names[0]
+    pad = next((p for p in spec.pads if p.name == wanted), None)
+    if pad is None:
+        raise UserError(f"--pad {args.pad_name!r}: {spec.name} has pads {', '.join(spec.names)}")
+    return {"pad_area_m2": pad.area_m2, "parasitic_f": pad.parasitic_f, "material": spec.overlay.material,
+            "thickness_m": spec.overlay.thickness_m, "air_gap_m": spec.overlay.air_gap_m,
+            "method": spec.method, "finger_diameter_m": spec.finger.contact_diameter_m,
+            "body_f": spec.finger.body_f, "noise_pf": spec.noise.white_pf,
+            "noise_counts": spec.noise.counts_rms,
+            "hum_pf": spec.noise.hum_pf * (1 + spec.noise.hum_harmonic2)}
+
+
+def _method(args: argparse.Namespace, board_method: object | None) -> object:
+    if board_method is not None and args.method in (None, board_method.kind):  # type: ignore[attr-defined]
+        if not args.set:
+            return board_method
+        kind, base = board_method.kind, _file_units(board_method)  # type: ignore[attr-defined]
+    else:
+        kind = args.method or "charge_time"
+        base = DEFAULT_COMPONENTS[kind]
+    return method_from_table(kind, _components(args, kind, base), where="--set")
+
+
+def _not_negative(value: float | None, option: str) -> float | None:
+    if value is not None and value < 0:
+        raise UserError(f"{option} cannot be negative, got {value:g}")
+    return value
+
+
+def _pad_and_parasitic(args: argparse.Namespace, fields: dict[str, object]) -> None:
+    area = _pad_area_m2(args)
+    if area is not None:
+        fields["pad_area_m2"] = area
+        fields.pop("parasitic_f", None)  # a new pad size: the board pad's parasitic no longer applies
+    fields.setdefault("pad_area_m2", 1.44e-4)
     if args.parasitic_pf is not None:
-        parasitic = _positive(args.parasitic_pf, "--parasitic-pf") * 1e-12
-    elif parasitic is None or _pad_area_m2(args):
-        parasitic = physics.pad_parasitic_f(area)
+        fields["parasitic_f"] = _positive(args.parasitic_pf, "--parasitic-pf") * 1e-12
+    fields.setdefault("parasitic_f", physics.pad_parasitic_f(fields["pad_area_m2"]))  # type: ignore[arg-type]
+
+
+def build_input(args: argparse.Namespace) -> EstimateInput:
+    if args.pad_name and not args.board:
+        raise UserError("--pad names a pad of a board file: give --board too")
+    fields = _from_board(args) if args.board else {}
+    fields["method"] = _method(args, fields.get("method"))
+    _pad_and_parasitic(args, fields)
     if args.material:
-        material = get_material(args.material)
+        fields["material"] = get_material(args.material)
     if args.thickness_mm is not None:
-        thickness = _positive(args.thickness_mm, "--thickness-mm") * 1e-3
-    if material is None or thickness is None:
+        fields["thickness_m"] = _positive(args.thickness_mm, "--thickness-mm") * 1e-3
+    if "material" not in fields or "thickness_m" not in fields:
         raise UserError("say what the overlay is: --material NAME --thickness-mm T (or --board NAME)")
-    if args.air_gap_mm is not None:
-        if args.air_gap_mm < 0:
-            raise UserError("--air-gap-mm cannot be negative")
-        air_gap = args.air_gap_mm * 1e-3
-    finger = (_positive(args.finger_mm, "--finger-mm") or finger * 1e3) * 1e-3
     if args.isolated and args.body_pf is not None:
         raise UserError("give either --isolated or --body-pf, not both")
-    body = physics.BODY_ISOLATED_F if args.isolated else body
-    body = (_positive(args.body_pf, "--body-pf") or body * 1e12) * 1e-12
-    if args.noise_pf is not None:
-        noise_pf = max(0.0, args.noise_pf)
-    if args.noise_counts is not None:
-        noise_counts = max(0.0, args.noise_counts)
-    if args.hum_pf is not None:
-        hum_pf = max(0.0, args.hum_pf)
-    return EstimateInput(area, parasitic, material, thickness, method, air_gap, finger, body, noise_pf,
-                         noise_counts, hum_pf)
+    if args.isolated:
+        fields["body_f"] = physics.BODY_ISOLATED_F
+    overrides = {
+        "air_gap_m": (_not_negative(args.air_gap_mm, "--air-gap-mm"), 1e-3),
+        "finger_diameter_m": (_positive(args.finger_mm, "--finger-mm"), 1e-3),
+        "body_f": (_positive(args.body_pf, "--body-pf"), 1e-12),
+        "noise_pf": (_not_negative(args.noise_pf, "--noise-pf"), 1.0),
+        "noise_counts": (_not_negative(args.noise_counts, "--noise-counts"), 1.0),
+        "hum_pf": (_not_negative(args.hum_pf, "--hum-pf"), 1.0),
+    }
+    for key, (value, factor) in overrides.items():
+        if value is not None:
+            fields[key] = value * factor
+    return EstimateInput(**fields)  # type: ignore[arg-type]
 
 
 def _file_units(method: object) -> dict[str, float]:
