@@ -325,3 +325,23 @@ def test_limits_from_a_good_unit_pass_it_and_fail_a_short(profiles, tmp_path):
     bad = padtune("check", "sim://greenhouse?seed=9&script=0&fault=short:zone1", "--profile",
                   str(tmp_path / "golden.toml"), "--duration", "1.5")
     assert bad.returncode == 1 and "FAIL: zone1" in bad.stdout and "shorted pad?" in bad.stdout
+
+
+def test_check_fails_a_silent_unit_and_warns_about_missing_limits(profiles):
+    import tty
+
+    master, slave = os.openpty()  # a port where nothing ever speaks: a dead unit
+    tty.setraw(slave)
+    try:
+        out = padtune("check", os.ttyname(slave), "--profile", str(profiles / "limits.toml"),
+                      "--duration", "1", "--json")
+    finally:
+        os.close(slave)
+        os.close(master)
+    assert out.returncode == 1, out.stderr
+    report = json_lines(out.stdout)[0]
+    assert report["passed"] is False and "no frames" in report["reason"]
+    bare = padtune("check", "sim://greenhouse?script=0", "--profile", str(profiles / "tuned.toml"),
+                   "--duration", "1")
+    assert bare.returncode == 0 and "not checked" not in bare.stdout
+    assert "the profile has no [limits]" in bare.stderr

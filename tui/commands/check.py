@@ -76,9 +76,8 @@ def run(args: argparse.Namespace) -> int:
     try:
         with StopFlag() as stop:
             _poll(link, probe, origin + args.duration, stop)
-            if session.engine is None:
-                raise UserError(f"no frames from {args.port} in {args.duration:g} s: check the cable, "
-                                "the port and the baud rate")
+            if session.engine is None and not stop.stopped:
+                return _dead_unit(args, time.monotonic() - origin)
             names = list(session.names)
             if profile is not None and profile.channels != session.channels:
                 raise UserError(f"the board has {session.channels} channels, the profile "
@@ -89,10 +88,15 @@ def run(args: argparse.Namespace) -> int:
                 raise UserError("check interrupted: no verdict")
     finally:
         link.stop()
+    assert session.engine is not None and profile is not None
     polarity = session.engine.pol.tolist()
     verdicts = evaluate(probe, profile.limits, names, polarity, args.touch)
     passed = all(v.passed for v in verdicts)
+    warnings = []
+    if all(getattr(profile.limits, k) is None for k in profile.limits.__dataclass_fields__):
+        warnings.append("the profile has no [limits]: only stuck keys (and --touch) were checked")
     report = {"type": "check", "t": round(time.monotonic() - origin, 3), "passed": passed,
+              "warnings": warnings,
               "port": args.port, "board": session.info.board if session.info else None,
               "profile": args.profile, "duration_s": args.duration, "touch": args.touch,
               "limits": {k: getattr(profile.limits, k) for k in profile.limits.__dataclass_fields__},
@@ -101,11 +105,26 @@ def run(args: argparse.Namespace) -> int:
         sys.stdout.write(json.dumps(report) + "\n")
     else:
         _print_table(verdicts, passed, args.touch)
+        for warning in warnings:
+            console.print(f"warning: {warning}")
     if args.report:
         from tui.report.check_report import write_check_report
 
         write_check_report(args.report, report, probe, session)
     return 0 if passed else 1
+
+
+def _dead_unit(args: argparse.Namespace, elapsed_s: float) -> int:
+    """Not one frame: a failed unit (or the wrong port or baud rate), reported like any failure."""
+    reason = (f"no frames from {args.port} in {elapsed_s:.1f} s: a dead unit, or check the cable, the "
+              "port and the baud rate")
+    if args.json:
+        sys.stdout.write(json.dumps({"type": "check", "t": round(elapsed_s, 3), "passed": False,
+                                     "port": args.port, "profile": args.profile, "reason": reason,
+                                     "channels": []}) + "\n")
+    else:
+        make_console().print(f"FAIL: {reason}")
+    return 1
 
 
 def _print_table(verdicts: list, passed: bool, touch: bool) -> None:

@@ -88,7 +88,7 @@ PLAIN_WIDTH = 200
 def make_console(stream: IO[str] | None = None, stderr: bool = False) -> Console:
     """A rich console that is plain when piped and colourless under NO_COLOR (rich honours both)."""
     target = stream if stream is not None else (sys.stderr if stderr else sys.stdout)
-    console = Console(file=target, no_color="NO_COLOR" in os.environ or None, highlight=False,
+    console = Console(file=target, no_color="NO_COLOR" in os.environ or None, highlight=False, markup=False,
                       soft_wrap=True)
     if not console.is_terminal and "COLUMNS" not in os.environ:
         console.width = PLAIN_WIDTH  # a pipe has no width: never cut a table to 80 columns
