@@ -34,6 +34,7 @@ log = logging.getLogger("padtune.link")
 Opener = Callable[[str, int, float], serial.SerialBase]
 _READ_ERRORS = (serial.SerialException, OSError, TypeError, AttributeError)
 VANISH_CHECK_S = 0.5
+BULK_READ_BYTES = 1 << 16
 
 
 class Link:
@@ -76,6 +77,7 @@ class Link:
         self._baud_check: BaudCheck | None = None
         self._baud_suspect = False
         self._callback_errors = 0
+        self._greedy = port.lower().startswith("socket://")
 
     # -- public ------------------------------------------------------------------------------------
     @property
@@ -179,6 +181,8 @@ class Link:
         assert ser is not None
         try:
             data = ser.read(ser.in_waiting or 1)
+            if data and self._greedy:
+                data += self._read_more(ser)
         except _READ_ERRORS as exc:
             if not self._stop.is_set():
                 self._lost(f"read failed: {exc}")
@@ -199,6 +203,15 @@ class Link:
             events = events + self._baud_verdict(verdict, now)
         if events:
             self._deliver(events)
+
+    def _read_more(self, ser: serial.SerialBase) -> bytes:
+        """For socket://, whose in_waiting only says "something": take what is there without waiting."""
+        old = ser.timeout
+        ser.timeout = 0
+        try:
+            return ser.read(BULK_READ_BYTES)
+        finally:
+            ser.timeout = old
 
     def _baud_verdict(self, suspect: bool, now: float) -> list[Event]:
         check, self._baud_check = self._baud_check, None

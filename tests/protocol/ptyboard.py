@@ -75,7 +75,10 @@ class Collector:
             self.poll()
             if condition():
                 return
-            assert time.monotonic() < deadline, f"timed out waiting for {what}; events: {self.summary()}"
+            assert time.monotonic() < deadline, (
+                f"timed out waiting for {what}; {len(self.frames())} frames; {self.link.stats}; "
+                f"events: {self.summary()}"
+            )
             time.sleep(0.01)
 
     def states(self) -> list[LinkState]:
