@@ -6,7 +6,8 @@ Pure functions. The rules are common practice, no source:
 - hysteresis about 15 % of the threshold (10-20 % is usual), kept so the release level stays above the
   highest untouched delta;
 - debounce long enough to span the longest observed noise burst (a run of frames beyond 2 RMS) plus one
-  frame, at least 2 frames and at most `max_debounce_s` (50 ms: a slower key feels sluggish).
+  frame, at least 2 frames and at most `max_debounce_s` (50 ms: a slower key feels sluggish) or 255 frames;
+- every suggestion is a valid setting: threshold 1 .. 2^24, hysteresis below the threshold.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from processing.settings import ChannelSettings
+from processing.settings import MAX_COUNTS, MAX_DEBOUNCE_FRAMES, ChannelSettings
 
 
 @dataclass(frozen=True, slots=True)
@@ -52,9 +53,39 @@ def longest_run(mask: np.ndarray) -> int:
 
 
 def _debounce(run: int, rate_hz: float, max_debounce_s: float) -> tuple[int, bool]:
-    cap = max(2, math.floor(max_debounce_s * rate_hz))
+    """Frames to span a run of `run` frames, capped at `max_debounce_s` and at what the detector accepts."""
+    cap = min(MAX_DEBOUNCE_FRAMES, max(2, math.floor(max_debounce_s * rate_hz)))
     want = max(2, run + 1)
     return min(want, cap), want > cap
+
+
+def _threshold(signal: float, top: int, pp: int) -> tuple[int, str] | Refusal:
+    """Half the signal, raised to clear the noise top by one pp; refused when that is near the signal."""
+    floor = max(1, top + max(pp, 1))
+    half = math.floor(signal / 2)
+    if floor > math.floor(signal * 3 / 4) or floor > MAX_COUNTS:
+        return Refusal(f"the touch signal (median {signal:g} counts) does not clear the noise: "
+                       f"a threshold must be at least {floor} to clear it (highest untouched delta {top}, "
+                       f"pp {pp}), above 3/4 of the signal; "
+                       "reduce the noise or strengthen the touch before tuning")
+    if half > MAX_COUNTS:
+        return MAX_COUNTS, (f"half the typical touch delta ({signal:g} counts) is more than the detector "
+                            f"takes: at most {MAX_COUNTS}")
+    if half >= floor:
+        return half, (f"half the typical touch delta ({signal:g} counts); clears "
+                      f"the highest untouched delta ({top}) by {half - top} counts")
+    return floor, (f"raised above half the touch delta ({half}) to the noise top {top} "
+                   f"plus one noise pp ({pp}), so noise cannot reach it")
+
+
+def _hysteresis(threshold: int, top: int, fraction: float) -> tuple[int, str]:
+    """About `fraction` of the threshold, cut so the release level stays above the noise top."""
+    hyst = min(max(1, round(threshold * fraction)), threshold - 1)
+    if threshold - hyst > top:
+        return hyst, f"{fraction:.0%} of the threshold"
+    hyst = max(0, threshold - top - 1)
+    return hyst, (f"cut so the release level ({threshold - hyst}) stays above the highest untouched "
+                  f"delta ({top})")
 
 
 def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: float, *,
@@ -72,39 +103,23 @@ def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: flo
     if signal <= top:
         return Refusal(f"the touch signal (median {signal:g} counts) does not rise above the noise (highest "
                        f"untouched delta {top} counts): check the overlay, electrode and grounding")
-    floor = top + max(pp, 1)
-    half = math.floor(signal / 2)
-    if floor > math.floor(signal * 3 / 4):
-        return Refusal(f"the touch signal (median {signal:g} counts) does not clear the noise: "
-                       f"a threshold must be at least {floor} (noise top {top} + pp {pp}), "
-                       "above 3/4 of the signal; "
-                       "reduce the noise or strengthen the touch before tuning")
+    chosen = _threshold(signal, top, pp)
+    if isinstance(chosen, Refusal):
+        return chosen
     reasons: dict[str, str] = {}
-    if half >= floor:
-        threshold = half
-        reasons["threshold_counts"] = (f"half the typical touch delta ({signal:g} counts); clears "
-                                       f"the highest untouched delta ({top}) by {threshold - top} counts")
-    else:
-        threshold = floor
-        reasons["threshold_counts"] = (f"raised above half the touch delta ({half}) to the noise top {top} "
-                                       f"plus one noise pp ({pp}), so noise cannot reach it")
-    hyst = max(1, round(threshold * hysteresis_fraction))
-    reasons["hysteresis_counts"] = f"{hysteresis_fraction:.0%} of the threshold"
-    if threshold - hyst <= top:
-        hyst = max(0, threshold - top - 1)
-        reasons["hysteresis_counts"] = (f"cut so the release level ({threshold - hyst}) stays above "
-                                        f"the highest untouched delta ({top})")
+    threshold, reasons["threshold_counts"] = chosen
+    hyst, reasons["hysteresis_counts"] = _hysteresis(threshold, top, hysteresis_fraction)
     centre = float(np.median(quiet))
     burst = longest_run(np.abs(quiet - centre) > 2 * rms) if rms > 0 else 0
     touch_db, capped = _debounce(burst, rate_hz, max_debounce_s)
     reasons["touch_debounce_frames"] = (f"noise bursts beyond 2 RMS lasted up to {burst} frames; {touch_db} "
                                         f"frames ({1000 * touch_db / rate_hz:.0f} ms) span them")
     if capped:
-        reasons["touch_debounce_frames"] += f" (capped at {max_debounce_s * 1000:.0f} ms, to stay quick)"
+        reasons["touch_debounce_frames"] += f" (capped at {touch_db} frames, to stay quick)"
     dropout = longest_run(held < threshold - hyst)
     release_db, capped = _debounce(dropout, rate_hz, max_debounce_s)
     reasons["release_debounce_frames"] = (f"the touched delta dipped below the release level for up to "
                                           f"{dropout} frames; {release_db} frames span that")
     if capped:
-        reasons["release_debounce_frames"] += f" (capped at {max_debounce_s * 1000:.0f} ms)"
+        reasons["release_debounce_frames"] += f" (capped at {release_db} frames)"
     return Suggestion(threshold, hyst, touch_db, release_db, reasons, signal, float(pp), rms)

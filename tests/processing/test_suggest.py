@@ -1,6 +1,8 @@
 """Tuning suggestions. The rules are common practice, no source (see processing/suggest.py)."""
 
 import numpy as np
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from processing.engine import Engine
 from processing.settings import ChannelSettings
@@ -62,3 +64,30 @@ def test_suggestion_detects_the_touches_it_was_made_from():
     trace = np.concatenate([[5000], 5000 + quiet, 5000 + held, 5000 + quiet[:50]])
     events = e.process(block(trace))
     assert [type(ev).__name__ for ev in events] == ["Rebaselined", "Touch", "Release"]
+
+
+def test_every_suggestion_is_a_valid_setting_at_the_edges():
+    # A suggestion must always be something the engine accepts (ALGORITHM.md: threshold 1 .. 2^24,
+    # hysteresis 0 .. threshold-1, debounce 1 .. 255), even for a tiny signal, a huge one or a fast board.
+    tiny = suggest(np.full(20, -5), np.full(20, 2), rate_hz=100.0)  # threshold 1: no room for hysteresis
+    huge = suggest(np.zeros(20, np.int64), np.full(20, 10**9), rate_hz=100.0)
+    quiet = np.zeros(4000, np.int64)
+    quiet[100:400] = 30  # a 300-frame burst at 20 kHz (15 ms): over the 255-frame debounce ceiling
+    fast = suggest(quiet, np.full(20, 100), rate_hz=20000.0)
+    for s in (tiny, huge, fast):
+        assert isinstance(s, Suggestion)
+        assert s.apply(ChannelSettings()).problems() == []
+    assert tiny.threshold_counts == 1 and tiny.hysteresis_counts == 0
+    assert fast.touch_debounce_frames == 255 and "capped" in fast.reasons["touch_debounce_frames"]
+    assert "at most" in huge.reasons["threshold_counts"]
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.integers(-60, 60), min_size=16, max_size=80),
+       st.lists(st.integers(-20, 400), min_size=16, max_size=80),
+       st.sampled_from([10.0, 100.0, 1000.0, 50000.0]))
+def test_suggestions_always_apply_cleanly(quiet, held, rate_hz):
+    s = suggest(np.array(quiet), np.array(held), rate_hz)
+    if isinstance(s, Suggestion):
+        assert s.apply(ChannelSettings()).problems() == []
+        assert s.threshold_counts - s.hysteresis_counts > max(quiet)  # the release level clears the noise
