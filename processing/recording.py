@@ -42,7 +42,7 @@ import time
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
-from urllib.parse import quote, unquote
+from urllib.parse import quote
 
 import numpy as np
 
@@ -51,10 +51,8 @@ from protocol.events import (
     BoardChanged,
     BoardInfo,
     Event,
-    FaultKind,
     FrameBlock,
     LinkFault,
-    LinkState,
     LinkStatus,
     Note,
 )
@@ -332,217 +330,14 @@ class RecordingWriter:
         self.close()
 
 
-# ---------------------------------------------------------------- reading (pure parsing)
+# Reading lives in processing.recording_read; its functions are part of this module's API too, looked
+# up on first use (PEP 562) because that module imports this one.
+_READERS = ("info_from_fields", "parse_raw_capture", "parse_recording_text", "read_recording")
 
 
-def _parse_pairs(body: str) -> tuple[dict[str, str], str]:
-    """`k=v k=v text=...` -> (pairs, text)."""
-    text = ""
-    if body.startswith("text="):
-        body, text = "", body[5:]
-    elif " text=" in body:
-        body, text = body.split(" text=", 1)
-    pairs: dict[str, str] = {}
-    for token in body.split():
-        key, sep, value = token.partition("=")
-        if not sep:
-            raise ValueError(f"expected key=value, got {token!r}")
-        pairs[key] = unquote(value)
-    return pairs, text
+def __getattr__(name: str) -> object:
+    if name in _READERS:
+        from processing import recording_read
 
-
-def info_from_fields(fields: dict[str, str], t_s: float) -> BoardInfo:
-    """A BoardInfo from an info line's raw fields, parsed by the protocol layer (PROTOCOL.md)."""
-    from protocol.info import InfoError, parse_info
-
-    try:
-        return parse_info(dict(fields), t_s, cross_check=False)
-    except InfoError as exc:
-        raise ValueError(str(exc)) from None
-
-
-class _Builder:
-    """Collects data rows into FrameBlocks between stream rows."""
-
-    def __init__(self, rec: Recording, where: str) -> None:
-        self.rec = rec
-        self.where = where
-        self.rows: list[list[str]] = []
-        self.linenos: list[int] = []
-        self.width: int | None = None
-        self.next_index = 0
-
-    def add_row(self, lineno: int, line: str) -> None:
-        cells = line.split(",")
-        if self.width is None:
-            raise ValueError("a data row before the header row")
-        if len(cells) != self.width + 2:
-            raise ValueError(f"expected {self.width + 2} columns, got {len(cells)}")
-        self.rows.append(cells)
-        self.linenos.append(lineno)
-
-    def close_block(self) -> None:
-        if not self.rows:
-            return
-        arr = np.array(self.rows)
-        try:
-            block = FrameBlock(
-                t_s=arr[:, 0].astype(np.float64),
-                seq=arr[:, 1].astype(np.int64),
-                readings=arr[:, 2:].astype(np.int64).reshape(len(arr), -1),
-                first_index=self.next_index,
-            )
-        except ValueError:
-            self._raise_for_bad_row()
-        self.rows, self.linenos = [], []
-        self.next_index += len(block)
-        self.rec.events.append(block)
-
-    def _raise_for_bad_row(self) -> None:
-        for lineno, cells in zip(self.linenos, self.rows, strict=True):
-            try:
-                float(cells[0])
-                [int(c) for c in cells[1:]]
-            except ValueError:
-                raise UserError(
-                    f"{self.where}:{lineno}: a data row must hold a time, a seq and integer readings, "
-                    f"got {','.join(cells)[:60]!r}"
-                ) from None
-        raise UserError(f"{self.where}: a data row could not be read")
-
-
-def _stream_row(b: _Builder, kind: str, pairs: dict[str, str], text: str) -> None:
-    rec = b.rec
-    t_s = float(pairs.get("t_s", "nan"))
-    if kind == "info":
-        rec.events.append(info_from_fields({k: v for k, v in pairs.items() if k != "t_s"}, t_s))
-    elif kind == "note":
-        rec.events.append(Note(t_s, text.strip()))
-    elif kind == "fault":
-        rec.events.append(LinkFault(t_s, FaultKind(pairs["kind"]), int(pairs.get("count", 1)), text))
-    elif kind == "link":
-        rec.events.append(LinkStatus(t_s, LinkState(pairs["state"]), pairs.get("port", ""), text))
-    elif kind == "board-changed":
-        old = pairs.get("old", "")
-        rec.events.append(BoardChanged(t_s, int(old) if old else None, int(pairs["channels"])))
-    elif kind == "index":
-        b.next_index = int(pairs["value"])
-    elif kind == "mark":
-        mkind = pairs.get("kind", "note")
-        if mkind not in MARK_KINDS:
-            raise ValueError(f"unknown mark kind {mkind!r}")
-        rec.marks.append(Mark(t_s, mkind, pairs.get("channel"), text))
-    # Unknown stream kinds come from a newer writer: skipped, the frames still read.
-
-
-def parse_recording_text(text: str, where: str = "<recording>") -> Recording:
-    """Parse a padtune recording. Raises UserError `where:line: what is wrong` for a damaged file."""
-    lines = text.split("\n")
-    truncated = bool(lines) and lines[-1] != ""
-    lines = lines[:-1]  # the last piece is empty for a whole file, or a partial row to drop
-    if not lines or not lines[0].startswith(FORMAT_PREFIX):
-        raise UserError(f"{where}: not a padtune recording (first line must be {FORMAT_LINE!r})")
-    try:
-        version = int(lines[0][len(FORMAT_PREFIX):].strip())
-    except ValueError:
-        raise UserError(f"{where}:1: cannot read the format version in {lines[0]!r}") from None
-    if version != 1:
-        raise UserError(f"{where}:1: recording format v{version} is newer than this padtune reads (v1)")
-    rec = Recording(path=where, version=version, truncated=truncated)
-    b = _Builder(rec, where)
-    in_meta = True
-    for lineno, raw in enumerate(lines[1:], start=2):
-        line = raw.rstrip("\r")
-        try:
-            in_meta = _parse_line(b, lineno, line, in_meta)
-        except (ValueError, KeyError) as exc:
-            raise UserError(
-                f"{where}:{lineno}: {exc}; the file is damaged or not a padtune recording"
-            ) from None
-    try:
-        b.close_block()
-    except ValueError as exc:
-        raise UserError(f"{where}: {exc}") from None
-    return rec
-
-
-def _parse_line(b: _Builder, lineno: int, line: str, in_meta: bool) -> bool:
-    rec = b.rec
-    if not line.strip():
-        return in_meta
-    if line.startswith("#"):
-        body = line[1:].strip()
-        kind, _, rest = body.partition(" ")
-        if in_meta and "=" in kind and " " not in body:
-            key, _, value = body.partition("=")
-            rec.meta[key] = unquote(value)
-            if key == "first_index":
-                b.next_index = int(value)
-            return True
-        if kind == "first_index" or body.startswith("first_index="):
-            b.next_index = int(body.partition("=")[2])
-            return in_meta
-        b.close_block()
-        pairs, text = _parse_pairs(rest)
-        _stream_row(b, kind, pairs, text)
-        return in_meta
-    if line.startswith(HEADER_START):
-        b.close_block()
-        rec.names = tuple(line.split(",")[2:])
-        b.width = len(rec.names)
-        return False
-    b.add_row(lineno, line)
-    return False
-
-
-def parse_raw_capture(data: bytes, where: str = "<capture>", rate_hz: float | None = None) -> Recording:
-    """A raw capture of protocol v1 lines through the protocol's decoder.
-
-    Times are made up: frame n arrives at n / rate (the info line's rate, else `rate_hz`, else 100 Hz).
-    """
-    from protocol.decoder import Decoder  # the decoder owns the wire format
-
-    decoder = Decoder()
-    rec = Recording(path=where, version=None, truncated=not data.endswith(b"\n") and bool(data))
-    rate = rate_hz
-    frames = 0
-
-    def feed(chunk: bytes) -> None:
-        nonlocal frames, rate
-        t_s = frames / (rate or 100.0)
-        for event in decoder.feed(chunk, t_s):
-            if isinstance(event, FrameBlock):
-                frames += len(event)
-            elif isinstance(event, BoardInfo) and event.rate_hz and rate_hz is None:
-                rate = event.rate_hz
-            rec.events.append(event)
-
-    # Fed line by line so that each frame gets its own made-up time.
-    for line in data.splitlines(keepends=True):
-        if not line.endswith(b"\n"):
-            break  # a partial last line: dropped like the CSV reader does
-        feed(line)
-    rec.names = decoder.info.names if decoder.info and decoder.info.names else ()
-    if rec.frames == 0:
-        raise UserError(f"{where}: no frames found: not a padtune recording nor a capture of protocol lines")
-    return rec
-
-
-def read_recording(path: str | os.PathLike[str], rate_hz: float | None = None) -> Recording:
-    """Read a padtune recording or a raw capture of protocol lines (UserError for anything unreadable)."""
-    p = Path(path)
-    try:
-        data = p.read_bytes()
-    except FileNotFoundError:
-        raise UserError(f"{p}: no such file") from None
-    except IsADirectoryError:
-        raise UserError(f"{p}: is a folder, not a recording") from None
-    except OSError as exc:
-        raise UserError(f"{p}: cannot read: {exc.strerror}") from None
-    if data.startswith(FORMAT_PREFIX.encode()):
-        try:
-            text = data.decode("utf-8")
-        except UnicodeDecodeError as exc:
-            raise UserError(f"{p}: not valid UTF-8 at byte {exc.start}: the file is damaged") from None
-        return parse_recording_text(text, str(p))
-    return parse_raw_capture(data, str(p), rate_hz)
+        return getattr(recording_read, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -6,16 +6,9 @@ import numpy as np
 import pytest
 from rich.console import Console
 
-from processing.capture import (
-    QUIET,
-    RELEASE,
-    TOUCH,
-    CaptureWizard,
-    estimate_baseline,
-    find_touches,
-    key_figures,
-)
+from processing.capture import QUIET, RELEASE, TOUCH, CaptureWizard
 from processing.recording import Mark
+from processing.stretches import estimate_baseline, find_touches, key_figures
 from protocol.events import FrameBlock
 from tui.headless.histogram import DeltaHistogram, bar_row, bin_counts
 

@@ -12,11 +12,11 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from processing.capture import KeyFigures, KeyTrace, find_touches, key_figures
 from processing.measure import VerdictBounds
 from processing.profile import Profile, profile_for, profile_from_board
 from processing.recording import Recording
 from processing.settings import ChannelSettings, Limits
+from processing.stretches import KeyFigures, KeyTrace, find_touches, key_figures
 from processing.suggest import Refusal, Suggestion, suggest
 from protocol.errors import UserError
 

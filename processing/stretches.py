@@ -1,0 +1,160 @@
+"""Touched and untouched stretches in a recording, and the figures every tuning view shows.
+
+`find_touches` uses the recording's marks when it has touch marks; without, it estimates a drift-
+following baseline (a rolling minimum of half-second medians, a standard morphological baseline
+estimate) and finds the touched stretches as the frames well above the untouched spread. `key_figures`
+gives noise pp and RMS, the median touch delta and both SNR forms, defined as `processing.measure` does.
+Pure numpy, no I/O.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from processing.recording import Mark
+
+
+def expand_polarity(polarity: Sequence[int], channels: int) -> np.ndarray:
+    """One sign per channel: a per-channel list as given, a single sign for all, +1 when unknown."""
+    if len(polarity) == channels:
+        return np.array(list(polarity), np.int64)
+    return np.full(channels, polarity[0] if len(polarity) == 1 else 1, np.int64)
+
+
+@dataclass(frozen=True, slots=True)
+class KeyFigures:
+    noise_pp_counts: float | None
+    noise_rms_counts: float | None
+    signal_counts: float | None  # median touched delta
+    snr_pp: float | None
+    snr_rms: float | None
+
+
+def key_figures(quiet: np.ndarray, touched: np.ndarray) -> KeyFigures:
+    """Noise pp/RMS of hands-off deltas, median touch delta, both SNR forms (as in processing.measure)."""
+    pp = rms = signal = snr_pp = snr_rms = None
+    if len(quiet) >= 2:
+        q = np.asarray(quiet, np.float64)
+        pp, rms = float(q.max() - q.min()), float(np.std(q))
+    if len(touched):
+        signal = float(np.median(touched))
+    if signal is not None and pp is not None and rms is not None:
+        snr_pp = signal / pp if pp > 0 else math.inf
+        snr_rms = signal / rms if rms > 0 else math.inf
+    return KeyFigures(pp, rms, signal, snr_pp, snr_rms)
+
+
+# ---------------------------------------------------------------- touches in a recording
+
+
+@dataclass
+class KeyTrace:
+    """One key of a recording: its delta trace and where it was touched."""
+
+    channel: int
+    name: str
+    delta: np.ndarray  # float counts, touch positive, one per frame
+    stretches: list[tuple[int, int]]  # [start, stop) frame ranges of touches
+    quiet: np.ndarray  # untouched deltas (far from any touch of any key)
+    touched: np.ndarray  # deltas inside this key's touches, edges trimmed
+    from_marks: bool
+
+
+def estimate_baseline(values: np.ndarray, rate_hz: float, window_s: float = 0.5, span_s: float = 6.0):
+    """Rolling minimum of window medians (touch positive), interpolated back to every frame."""
+    n = len(values)
+    w = max(1, round(window_s * rate_hz))
+    starts = np.arange(0, n, w)
+    medians = np.array([np.median(values[s:s + w]) for s in starts])
+    half = max(1, round(span_s / window_s / 2))
+    low = np.array([medians[max(0, i - half): i + half + 1].min() for i in range(len(medians))])
+    centres = np.minimum(starts + w / 2, n - 1)
+    return np.interp(np.arange(n), centres, low) if len(low) > 1 else np.full(n, low[0] if len(low) else 0.0)
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    edges = np.flatnonzero(np.diff(np.concatenate([[0], mask.astype(np.int8), [0]])))
+    return list(zip(edges[0::2].tolist(), edges[1::2].tolist(), strict=True))
+
+
+def _trimmed(delta: np.ndarray, runs: list[tuple[int, int]], trim: int) -> np.ndarray:
+    """The touched frames without the finger's arrival and departure (at most a fifth of each side)."""
+    parts = []
+    for a, b in runs:
+        cut = min(trim, (b - a) // 5)
+        parts.append(delta[a + cut: b - cut])
+    return np.concatenate(parts) if parts else np.zeros(0)
+
+
+def find_touches(t_s: np.ndarray, readings: np.ndarray, names: Sequence[str], polarity: Sequence[int],
+                 rate_hz: float, marks: Sequence[Mark] = (), min_touch_s: float = 0.1) -> list[KeyTrace]:
+    """Per key: delta trace, touched stretches (from marks, else found), untouched and touched deltas."""
+    n, width = readings.shape
+    pol = expand_polarity(polarity, width)
+    deltas = np.empty((n, width))
+    for c in range(width):
+        v = pol[c] * readings[:, c].astype(np.float64)
+        deltas[:, c] = v - estimate_baseline(v, rate_hz)
+    trim = max(1, round(0.05 * rate_hz))
+    marked = _marked_stretches(t_s, marks, names)
+    found: dict[int, list[tuple[int, int]]] = {}
+    for c in range(width):
+        found[c] = marked[c] if marked is not None else _find_runs(deltas[:, c], rate_hz, min_touch_s)
+    busy = np.zeros(n, bool)  # any key touched, widened by a guard, is no use for noise
+    guard = max(1, round(0.3 * rate_hz))
+    for runs in found.values():
+        for a, b in runs:
+            busy[max(0, a - guard): b + guard] = True
+    quiet_mask = ~busy
+    if marked is not None and (q := _mark_ranges(t_s, marks, "quiet-start", "quiet-end", None)):
+        quiet_mask = np.zeros(n, bool)
+        for a, b in q:
+            quiet_mask[a:b] = True
+    return [KeyTrace(c, names[c], deltas[:, c], found[c], deltas[quiet_mask, c],
+                     _trimmed(deltas[:, c], found[c], trim), marked is not None) for c in range(width)]
+
+
+def _find_runs(delta: np.ndarray, rate_hz: float, min_touch_s: float) -> list[tuple[int, int]]:
+    """Frames well above the untouched spread, as runs at least `min_touch_s` long."""
+    centre = np.median(delta)
+    mad = float(np.median(np.abs(delta - centre))) * 1.4826  # MAD to sigma for normal noise (NIST handbook)
+    spread = max(mad, 0.5)
+    top = float(np.percentile(delta, 99.5))
+    level = max(centre + 8 * spread, centre + 0.4 * (top - centre))
+    if top - centre < 10 * spread:
+        return []  # nothing stands out of the noise
+    runs = [(a, b) for a, b in _runs(delta > level) if b - a >= max(2, round(min_touch_s * rate_hz))]
+    merged: list[tuple[int, int]] = []
+    gap = max(1, round(0.05 * rate_hz))
+    for a, b in runs:
+        if merged and a - merged[-1][1] <= gap:
+            merged[-1] = (merged[-1][0], b)
+        else:
+            merged.append((a, b))
+    return merged
+
+
+def _mark_ranges(t_s: np.ndarray, marks: Sequence[Mark], start_kind: str, end_kind: str,
+                 channel: str | None) -> list[tuple[int, int]]:
+    out, opened = [], None
+    for m in sorted(marks, key=lambda m: m.t_s):
+        if m.channel != channel and channel is not None:
+            continue
+        if m.kind == start_kind:
+            opened = m.t_s
+        elif m.kind == end_kind and opened is not None:
+            out.append((int(np.searchsorted(t_s, opened)), int(np.searchsorted(t_s, m.t_s))))
+            opened = None
+    return out
+
+
+def _marked_stretches(t_s: np.ndarray, marks: Sequence[Mark], names: Sequence[str]):
+    if not any(m.kind == "touch-start" for m in marks):
+        return None
+    return {c: _mark_ranges(t_s, marks, "touch-start", "touch-end", name) for c, name in enumerate(names)}
+
+
