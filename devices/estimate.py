@@ -6,7 +6,8 @@ ends of its range (`devices.materials`). SNR comes in the two forms padtune meas
 noise peak-to-peak (`snr_pp`, the one verdicts use everywhere in padtune: below 5 weak, 5-10 marginal,
 above 10 solid; common practice, no source) and signal over noise rms (`snr_rms`). Noise is the
 untouched noise: white (pp taken as 6 x rms, what a few hundred samples of Gaussian noise span; common
-practice, no source), hum (a sine: pp is twice its amplitude) and the reading's rounding.
+practice, no source), hum (a sine: pp is twice its amplitude) and the reading's quantisation
+(`quantisation_rms` of the method: a counter's random gate phase or an ADC's rounding).
 """
 
 from __future__ import annotations
@@ -81,46 +82,72 @@ def _delta_counts(method: Method, base_f: float, added_f: float) -> float:
     return float(method.value(base_f + added_f)) - float(method.value(base_f))
 
 
-def estimate(inp: EstimateInput) -> Estimate:
-    m = inp.method
-    base = inp.parasitic_f
-    ers = (inp.material.er_nominal, inp.material.er_low, inp.material.er_high)
-    fingers = [_finger_f(inp, er) for er in ers]
-    deltas = [_delta_counts(m, base, c) for c in fingers]
-    step = 1e-15
-    slope = abs(float(m.value(base + step)) - float(m.value(base - step))) / (2 * step)  # counts per farad
-    quantisation = 1.0 / math.sqrt(12.0)  # uniform rounding error of an integer reading, rms
-    random_rms = math.sqrt((slope * inp.noise_pf * 1e-12) ** 2 + inp.noise_counts**2 + quantisation**2)
+def _slope_counts_per_f(method: Method, base_f: float) -> float:
+    step_f = 1e-15
+    return abs(float(method.value(base_f + step_f)) - float(method.value(base_f - step_f))) / (2 * step_f)
+
+
+def _noise_counts(inp: EstimateInput, slope: float) -> tuple[float, float]:
+    """Untouched noise in counts, (rms, pp): white and conversion noise and rounding, plus hum as a sine."""
+    random_rms = math.sqrt((slope * inp.noise_pf * 1e-12) ** 2 + inp.noise_counts**2
+                           + inp.method.quantisation_rms**2)
     hum_amplitude = slope * inp.hum_pf * 1e-12
-    noise_rms = math.sqrt(random_rms**2 + hum_amplitude**2 / 2.0)
-    noise_pp = max(1.0, PP_PER_RMS * random_rms + 2.0 * hum_amplitude)  # integer readings: at least 1
-    snr_pp = [abs(d) / noise_pp for d in deltas]
-    snr_rms = [abs(d) / noise_rms for d in deltas]
-    idle = float(m.value(base))
+    rms = math.sqrt(random_rms**2 + hum_amplitude**2 / 2.0)
+    pp = max(1.0, PP_PER_RMS * random_rms + 2.0 * hum_amplitude)  # integer readings: at least 1
+    return rms, pp
+
+
+def _idle_in_range(method: Method, idle: float) -> bool:
+    return 1 <= idle < method.max_count
+
+
+def _notes(method: Method, idle: float, deltas: list[float]) -> list[str]:
     notes = []
-    if idle >= m.max_count or idle < 1:
-        notes.append(f"the idle reading {idle:.0f} is outside the method's range 0..{m.max_count}: "
+    if not _idle_in_range(method, idle):
+        notes.append(f"the idle reading {idle:.0f} is outside the method's range 0..{method.max_count}: "
                      "change the components")
-    elif idle + max(deltas, key=abs) > m.max_count:
+    elif idle + max(deltas, key=abs) > method.max_count:
         notes.append("a touch would push the reading past the top of the counter")
     if max(abs(d) for d in deltas) < 2:
         notes.append("the count change is below 2 counts: the method cannot resolve this finger")
+    return notes
+
+
+def _verdict(method: Method, idle: float, snr_pp: list[float]) -> str:
+    if not _idle_in_range(method, idle):
+        return "unusable: the idle reading is outside the method's range (change the components)"
     worst, best = min(snr_pp), max(snr_pp)
     if worst > SNR_PP_SOLID_ABOVE:
-        verdict = "solid: SNR (pp) above 10 across the material's range"
-    elif worst >= SNR_PP_WEAK_BELOW:
-        verdict = "marginal: SNR (pp) between 5 and 10 somewhere in the material's range"
-    elif best >= SNR_PP_WEAK_BELOW:
-        verdict = "weak at one end: SNR (pp) falls below 5 within the material's range"
-    else:
-        verdict = "weak: SNR (pp) below 5 (try a thinner overlay, a larger pad, or less noise)"
-    inputs = {
+        return "solid: SNR (pp) above 10 across the material's range"
+    if worst >= SNR_PP_WEAK_BELOW:
+        return "marginal: SNR (pp) between 5 and 10 somewhere in the material's range"
+    if best >= SNR_PP_WEAK_BELOW:
+        return "weak at one end: SNR (pp) falls below 5 within the material's range"
+    return "weak: SNR (pp) below 5 (try a thinner overlay, a larger pad, or less noise)"
+
+
+def _inputs(inp: EstimateInput, ers: tuple[float, float, float]) -> dict[str, object]:
+    """The inputs in everyday units, as the report and --json show them."""
+    return {
         "pad_area_mm2": inp.pad_area_m2 * 1e6, "parasitic_pf": inp.parasitic_f * 1e12,
         "material": inp.material.key, "er": list(ers), "er_source": inp.material.source,
         "thickness_mm": inp.thickness_m * 1e3, "air_gap_mm": inp.air_gap_m * 1e3,
         "finger_diameter_mm": inp.finger_diameter_m * 1e3, "body_pf": inp.body_f * 1e12,
-        "method": m.kind, "method_detail": m.describe(), "noise_pf": inp.noise_pf,
+        "method": inp.method.kind, "method_detail": inp.method.describe(), "noise_pf": inp.noise_pf,
         "noise_counts": inp.noise_counts, "hum_pf": inp.hum_pf,
     }
+
+
+def estimate(inp: EstimateInput) -> Estimate:
+    m, base = inp.method, inp.parasitic_f
+    ers = (inp.material.er_nominal, inp.material.er_low, inp.material.er_high)
+    fingers = [_finger_f(inp, er) for er in ers]
+    deltas = [_delta_counts(m, base, c) for c in fingers]
+    slope = _slope_counts_per_f(m, base)
+    noise_rms, noise_pp = _noise_counts(inp, slope)
+    snr_pp = [abs(d) / noise_pp for d in deltas]
+    snr_rms = [abs(d) / noise_rms for d in deltas]
+    idle = float(m.value(base))
     return Estimate(Spread(*(c * 1e12 for c in fingers)), Spread(*deltas), Spread(*snr_pp), Spread(*snr_rms),
-                    idle, noise_rms, noise_pp, slope * 1e-12, m.polarity, verdict, notes, inputs)
+                    idle, noise_rms, noise_pp, slope * 1e-12, m.polarity, _verdict(m, idle, snr_pp),
+                    _notes(m, idle, deltas), _inputs(inp, ers))

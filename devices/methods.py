@@ -9,6 +9,9 @@
 
 Each has `value(c_f)` (the ideal reading as a float, for the estimator) and `counts(c_f, dither)` (the
 integer the board would send; `dither` in [0, 1) stands for the unknown phase of a counter's gate).
+`quantisation_rms` is the rms error the integer adds to the ideal value: a counter read with a random
+gate phase, floor(x + U) with U uniform on [0, 1), errs with variance f (1 - f) for the fraction f of x,
+1/6 on average over f; an ADC that rounds errs uniformly over one code, variance 1/12.
 """
 
 from __future__ import annotations
@@ -24,6 +27,8 @@ import numpy as np
 from protocol.errors import UserError
 
 LN2 = math.log(2.0)
+COUNTER_QUANTISATION_RMS = math.sqrt(1.0 / 6.0)  # floor(x + U), random phase U, mean over the fraction of x
+ROUNDING_QUANTISATION_RMS = math.sqrt(1.0 / 12.0)  # rounding to the nearest code
 
 
 def astable_frequency_hz(r1_ohm: float, r2_ohm: float, c_f: float) -> float:
@@ -61,6 +66,7 @@ class RCOscillator:
     counter_bits: int = 24
     kind: ClassVar[str] = "oscillator"
     polarity: ClassVar[int] = -1
+    quantisation_rms: ClassVar[float] = COUNTER_QUANTISATION_RMS
 
     @property
     def max_count(self) -> int:
@@ -85,6 +91,7 @@ class ChargeShare:
     adc_bits: int = 12
     kind: ClassVar[str] = "charge_share"
     polarity: ClassVar[int] = -1
+    quantisation_rms: ClassVar[float] = ROUNDING_QUANTISATION_RMS
 
     @property
     def max_count(self) -> int:
@@ -112,6 +119,7 @@ class ChargeTime:
     timer_bits: int = 16
     kind: ClassVar[str] = "charge_time"
     polarity: ClassVar[int] = 1
+    quantisation_rms: ClassVar[float] = COUNTER_QUANTISATION_RMS
 
     @property
     def max_count(self) -> int:
@@ -159,7 +167,7 @@ def method_from_table(kind: str, table: dict[str, object], where: str = "method"
             hint = f" (did you mean {close[0]}?)" if close else ""
             raise UserError(f"{where}.{key}: not a {kind} setting{hint}; known: {', '.join(keys)}")
         arg, factor = keys[key]
-        if isinstance(raw, bool) or not isinstance(raw, int | float) or raw <= 0:
+        if isinstance(raw, bool) or not isinstance(raw, int | float) or not math.isfinite(raw) or raw <= 0:
             raise UserError(f"{where}.{key}: must be a positive number, got {raw!r}")
         if arg in _INT_ARGS:
             if int(raw) != raw or not 4 <= raw <= 32:

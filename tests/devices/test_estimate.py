@@ -76,4 +76,5 @@ def test_hum_counts_as_a_sine_in_both_forms():
     hum = estimate(inp(noise_pf=0.0, hum_pf=0.1))
     amplitude = hum.counts_per_pf * 0.1
     assert hum.noise_counts_rms == pytest.approx(math.hypot(base.noise_counts_rms, amplitude / math.sqrt(2)))
-    assert hum.noise_counts_pp == pytest.approx(6 / math.sqrt(12) + 2 * amplitude)
+    # the charge-time counter's random gate phase errs by sqrt(1/6) counts rms (tests/devices/test_methods.py)
+    assert hum.noise_counts_pp == pytest.approx(6 * math.sqrt(1 / 6) + 2 * amplitude)

@@ -63,7 +63,35 @@ def test_plain_text_when_piped(capsys):
     (["--material", "unobtainium", "--thickness-mm", "2"], "unknown overlay material"),
     (["--board", "greenhouse", "--noise-pf", "-1"], "--noise-pf cannot be negative"),
     (["--board", "greenhouse", "--isolated", "--body-pf", "80"], "not both"),
+    (["--material", "acrylic", "--thickness-mm", "inf"], "--thickness-mm must be a finite number"),
+    (["--material", "acrylic", "--thickness-mm", "60"], "at most 50"),
+    (["--board", "greenhouse", "--noise-pf", "nan"], "--noise-pf must be a finite number"),
+    (["--board", "greenhouse", "--pad-mm", "nanxnan"], "--pad-mm 'nanxnan'"),
+    (["--board", "greenhouse", "--pad-mm", "1e6"], "at most 200 mm"),
+    (["--board", "greenhouse", "--set", "r_ohm=inf"], "KEY=NUMBER"),
+    (["--board", "greenhouse", "--body-pf", "0"], "--body-pf must be from 1 to 2000"),
+    (["--board", "greenhouse", "--air-gap-mm", "-1"], "--air-gap-mm must be from 0 to 20"),
 ])
 def test_mistakes(capsys, args, words):
     code, _, err = run(capsys, *args)
     assert code == 2 and words in err and len(err.strip().splitlines()) == 1, err
+
+
+def test_components_out_of_range_give_an_unusable_verdict(capsys):
+    # An ADC whose reference is below the shared voltage clips at full scale: no SNR verdict applies.
+    code, out, _ = run(capsys, "--material", "acrylic", "--thickness-mm", "3", "--method", "charge_share",
+                       "--set", "vdd_v=5", "--set", "vref_v=3.3", "--json")
+    e = json.loads(out)
+    assert code == 0 and e["verdict"].startswith("unusable") and "outside the method's range" in e["notes"][0]
+
+
+def test_output_into_a_closed_pipe_is_quiet():
+    # `padtune estimate ... | head -1`: the reader leaves early; no traceback, exit 0.
+    import subprocess
+    import sys
+
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "estimate", "--board", "greenhouse", "--json"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    proc.stdout.close()  # nobody reads: the first write meets a broken pipe
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 0 and b"Traceback" not in err, err

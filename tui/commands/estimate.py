@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import os
 import sys
 
@@ -28,7 +29,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     p.add_argument("--board", help="take pad, overlay, method and noise from this board (name or .toml)")
     p.add_argument("--pad", dest="pad_name", help="which pad of --board (default: its first)")
-    p.add_argument("--pad-mm", help="rectangular pad size, WxH in mm (e.g. 12x12) or one side for a square")
+    p.add_argument("--pad-mm", help="rectangular pad size, WxH in mm (e.g. 12x12) or one side for a square "
+                   "(default 12x12, or the --board pad)")
     p.add_argument("--pad-diameter-mm", type=float, help="round pad diameter in mm")
     p.add_argument("--parasitic-pf", type=float, help="pad parasitic capacitance in pF (default: estimated)")
     p.add_argument("--material", help=f"overlay material: {', '.join(MATERIALS)}")
@@ -49,9 +51,32 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.set_defaults(func=run)
 
 
-def _positive(value: float | None, option: str) -> float | None:
-    if value is not None and not value > 0:
-        raise UserError(f"{option} must be above zero, got {value:g}")
+# The same bounds as board files (devices/boards/__init__.py), so an estimate and a board agree on sense.
+MAX_THICKNESS_MM = 50.0
+MAX_PAD_MM = 200.0
+MAX_PARASITIC_PF = 1000.0
+MAX_AIR_GAP_MM = 20.0
+FINGER_MM_RANGE = (1.0, 40.0)
+BODY_PF_RANGE = (1.0, 2000.0)
+
+
+def _finite(value: float | None, option: str) -> float | None:
+    if value is not None and not math.isfinite(value):
+        raise UserError(f"{option} must be a finite number, got {value:g}")
+    return value
+
+
+def _positive(value: float | None, option: str, high: float = math.inf) -> float | None:
+    if _finite(value, option) is not None and not 0 < value <= high:  # type: ignore[operator]
+        limit = f" and at most {high:g}" if high < math.inf else ""
+        raise UserError(f"{option} must be above zero{limit}, got {value:g}")
+    return value
+
+
+def _within(value: float | None, option: str, bounds: tuple[float, float]) -> float | None:
+    low, high = bounds
+    if _finite(value, option) is not None and not low <= value <= high:  # type: ignore[operator]
+        raise UserError(f"{option} must be from {low:g} to {high:g}, got {value:g}")
     return value
 
 
@@ -59,16 +84,17 @@ def _pad_area_m2(args: argparse.Namespace) -> float | None:
     if args.pad_mm and args.pad_diameter_mm:
         raise UserError("give either --pad-mm or --pad-diameter-mm, not both")
     if args.pad_diameter_mm is not None:
-        return physics.pad_area_m2("circle", diameter_m=_positive(args.pad_diameter_mm, "--pad-diameter-mm")
-                                   * 1e-3)
+        diameter_mm = _positive(args.pad_diameter_mm, "--pad-diameter-mm", MAX_PAD_MM)
+        return physics.pad_area_m2("circle", diameter_m=diameter_mm * 1e-3)  # type: ignore[operator]
     if args.pad_mm:
         parts = args.pad_mm.lower().split("x")
         try:
             sides = [float(s) for s in parts]
         except ValueError:
             sides = []
-        if len(sides) not in (1, 2) or min(sides) <= 0:
-            raise UserError(f"--pad-mm {args.pad_mm!r}: write the size as WxH in mm, e.g. 12x12, or one side")
+        if len(sides) not in (1, 2) or not all(0 < side <= MAX_PAD_MM for side in sides):
+            raise UserError(f"--pad-mm {args.pad_mm!r}: write the size as WxH in mm, e.g. 12x12, or one side "
+                            f"(each side above 0 and at most {MAX_PAD_MM:g} mm)")
         w, h = sides[0], sides[-1]
         return w * h * 1e-6
     return None
@@ -79,11 +105,12 @@ def _components(args: argparse.Namespace, kind: str, base: dict[str, float]) -> 
     for item in args.set:
         key, sep, raw = item.partition("=")
         try:
-            table[key.strip()] = float(raw)
+            value = float(raw)
         except ValueError:
-            raise UserError(f"--set {item!r}: write KEY=NUMBER, e.g. r_ohm=1e6") from None
-        if not sep:
+            value = math.nan
+        if not sep or not math.isfinite(value):
             raise UserError(f"--set {item!r}: write KEY=NUMBER, e.g. r_ohm=1e6")
+        table[key.strip()] = value
     return table
 
 
@@ -114,7 +141,7 @@ def _method(args: argparse.Namespace, board_method: object | None) -> object:
 
 
 def _not_negative(value: float | None, option: str) -> float | None:
-    if value is not None and value < 0:
+    if _finite(value, option) is not None and value < 0:  # type: ignore[operator]
         raise UserError(f"{option} cannot be negative, got {value:g}")
     return value
 
@@ -126,7 +153,7 @@ def _pad_and_parasitic(args: argparse.Namespace, fields: dict[str, object]) -> N
         fields.pop("parasitic_f", None)  # a new pad size: the board pad's parasitic no longer applies
     fields.setdefault("pad_area_m2", 1.44e-4)
     if args.parasitic_pf is not None:
-        fields["parasitic_f"] = _positive(args.parasitic_pf, "--parasitic-pf") * 1e-12
+        fields["parasitic_f"] = _positive(args.parasitic_pf, "--parasitic-pf", MAX_PARASITIC_PF) * 1e-12
     fields.setdefault("parasitic_f", physics.pad_parasitic_f(fields["pad_area_m2"]))  # type: ignore[arg-type]
 
 
@@ -139,7 +166,7 @@ def build_input(args: argparse.Namespace) -> EstimateInput:
     if args.material:
         fields["material"] = get_material(args.material)
     if args.thickness_mm is not None:
-        fields["thickness_m"] = _positive(args.thickness_mm, "--thickness-mm") * 1e-3
+        fields["thickness_m"] = _positive(args.thickness_mm, "--thickness-mm", MAX_THICKNESS_MM) * 1e-3
     if "material" not in fields or "thickness_m" not in fields:
         raise UserError("say what the overlay is: --material NAME --thickness-mm T (or --board NAME)")
     if args.isolated and args.body_pf is not None:
@@ -147,9 +174,9 @@ def build_input(args: argparse.Namespace) -> EstimateInput:
     if args.isolated:
         fields["body_f"] = physics.BODY_ISOLATED_F
     overrides = {
-        "air_gap_m": (_not_negative(args.air_gap_mm, "--air-gap-mm"), 1e-3),
-        "finger_diameter_m": (_positive(args.finger_mm, "--finger-mm"), 1e-3),
-        "body_f": (_positive(args.body_pf, "--body-pf"), 1e-12),
+        "air_gap_m": (_within(args.air_gap_mm, "--air-gap-mm", (0.0, MAX_AIR_GAP_MM)), 1e-3),
+        "finger_diameter_m": (_within(args.finger_mm, "--finger-mm", FINGER_MM_RANGE), 1e-3),
+        "body_f": (_within(args.body_pf, "--body-pf", BODY_PF_RANGE), 1e-12),
         "noise_pf": (_not_negative(args.noise_pf, "--noise-pf"), 1.0),
         "noise_counts": (_not_negative(args.noise_counts, "--noise-counts"), 1.0),
         "hum_pf": (_not_negative(args.hum_pf, "--hum-pf"), 1.0),
@@ -193,9 +220,20 @@ def _lines(e: Estimate) -> list[tuple[str, str]]:
 
 def run(args: argparse.Namespace) -> int:
     result = estimate(build_input(args))
-    if args.json:
-        print(json.dumps(result.as_dict(), indent=2))
-        return 0
+    try:
+        _print(result, as_json=args.json)
+    except BrokenPipeError:
+        # The reader went away (`| head`): the answer was not wanted further; leave without a traceback.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())  # so the interpreter's last flush cannot fail either
+        os.close(devnull)
+    return 0
+
+
+def _print(result: Estimate, as_json: bool) -> None:
+    if as_json:
+        print(json.dumps(result.as_dict(), indent=2), flush=True)
+        return
     rows = _lines(result)
     if sys.stdout.isatty() and not os.environ.get("NO_COLOR"):
         from rich.console import Console
@@ -209,6 +247,4 @@ def run(args: argparse.Namespace) -> int:
         Console().print(table)
     else:
         width = max(len(k) for k, _ in rows)
-        for k, v in rows:
-            print(f"{k:<{width}}  {v}")
-    return 0
+        print("\n".join(f"{k:<{width}}  {v}" for k, v in rows), flush=True)
