@@ -7,8 +7,8 @@ and `LineRules.line`: every line the scan does not vouch for goes through those 
 tests/protocol prove with hypothesis that both paths give the same events and statistics.
 
 Checksums: `binascii.crc_hqx` runs over each whole line (its checksum suffix included) in one `map`,
-and CRC linearity turns "CRC(body) == carried value" into "CRC(line) == Z(carried) ^ CRC0(suffix)",
-where Z advances a register over the suffix's length of zero bytes; both are table look-ups.
+and CRC linearity turns "CRC(body) == carried value" into "CRC(line) == table[carried value]"
+(see `_whole_line_crc_table`), one look-up per line.
 """
 
 from __future__ import annotations
@@ -25,6 +25,30 @@ from protocol.rules import INT32_MAX, INT32_MIN, SEQ_MODULUS
 _CRC_BYTE = np.array([binascii.crc_hqx(bytes([i]), 0) for i in range(256)], dtype=np.int64)
 _ZERO_HI = {k: np.array([binascii.crc_hqx(bytes(k), x << 8) for x in range(256)]) for k in (5, 6)}
 _ZERO_LO = {k: np.array([binascii.crc_hqx(bytes(k), x) for x in range(256)]) for k in (5, 6)}
+
+
+def _whole_line_crc_table() -> np.ndarray:
+    """[case * 2 + cr, H]: the CRC of a whole line `body*HHHH` (+ CR) whose body's CRC is H.
+
+    CRC linearity: CRC(init, body + suffix) = Z(CRC(init, body)) ^ CRC(0, suffix), where Z runs the
+    register over as many zero bytes as the suffix is long. case 0 writes hex upper-case, 1 lower.
+    """
+    carried = np.arange(65536, dtype=np.int64)
+    nibbles = [(carried >> shift) & 15 for shift in (12, 8, 4, 0)]
+    table = np.empty((4, 65536), dtype=np.int64)
+    for case, letter in enumerate((0x41, 0x61)):
+        suffix = np.zeros(65536, dtype=np.int64)
+        chars = [np.full(65536, 0x2A), *(np.where(n < 10, 0x30 + n, letter + n - 10) for n in nibbles)]
+        for cr in (0, 1):
+            crc = suffix.copy()
+            for ch in chars + ([np.full(65536, 0x0D)] if cr else []):
+                crc = ((crc << 8) & 0xFFFF) ^ _CRC_BYTE[(crc >> 8) ^ ch]
+            k = 5 + cr
+            table[case * 2 + cr] = _ZERO_HI[k][carried >> 8] ^ _ZERO_LO[k][carried & 0xFF] ^ crc
+    return table
+
+
+_WHOLE_LINE_CRC = _whole_line_crc_table()
 _HEX = np.full(256, 255, dtype=np.int64)
 for _i, _c in enumerate(b"0123456789abcdef"):
     _HEX[_c] = _i
@@ -88,7 +112,8 @@ def scan(buf: bytes, max_line_bytes: int) -> Scan:
     length = ends - starts
     has_cr = (arr[ends - 1] == 0x0D) & (length > 0)
     stop = ends - has_cr  # end of the line without its CR
-    hexes = [_HEX[arr[np.maximum(stop - k, 0)]] for k in (4, 3, 2, 1)]
+    raw = [arr[np.maximum(stop - k, 0)] for k in (4, 3, 2, 1)]
+    hexes = [_HEX[r] for r in raw]
     checked = (stop - starts >= 5) & (arr[np.maximum(stop - 5, 0)] == 0x2A)
     for h in hexes:
         checked &= h < 16
@@ -121,7 +146,7 @@ def scan(buf: bytes, max_line_bytes: int) -> Scan:
 
     numbers, offset = _convert(arr, is_num, frame_ok, tokens, starts, ends, stop, checked)
     frame_ok &= _in_range(numbers, offset, frame_ok, sequenced)
-    _check_crcs(buf, arr, frame_ok, checked, has_cr, stop, hexes)
+    _check_crcs(buf, frame_ok, checked, has_cr, raw, hexes)
     return Scan(buf, starts, ends, frame_ok, checked, sequenced, width, numbers, offset)
 
 
@@ -211,11 +236,10 @@ def _in_range(
 
 def _check_crcs(
     buf: bytes,
-    arr: np.ndarray,
     frame_ok: np.ndarray,
     checked: np.ndarray,
     has_cr: np.ndarray,
-    stop: np.ndarray,
+    raw: list[np.ndarray],
     hexes: list[np.ndarray],
 ) -> None:
     """Clear frame_ok where the carried checksum is wrong (those lines take the per-line way)."""
@@ -227,18 +251,8 @@ def _check_crcs(
     crc_all = np.fromiter(
         map(binascii.crc_hqx, whole, itertools.repeat(CRC_INIT)), dtype=np.int64, count=len(whole)
     )
-    got = crc_all[lines]
     given = (hexes[0][lines] << 12) | (hexes[1][lines] << 8) | (hexes[2][lines] << 4) | hexes[3][lines]
-    suffix = np.zeros(len(lines), dtype=np.int64)  # CRC from 0 over "*HHHH" (and the CR, if any)
-    first = stop[lines] - 5
-    for k in range(5):
-        suffix = ((suffix << 8) & 0xFFFF) ^ _CRC_BYTE[(suffix >> 8) ^ arr[first + k]]
-    cr = has_cr[lines]
-    with_cr = ((suffix << 8) & 0xFFFF) ^ _CRC_BYTE[(suffix >> 8) ^ 0x0D]
-    suffix = np.where(cr, with_cr, suffix)
-    zero = np.where(
-        cr,
-        _ZERO_HI[6][given >> 8] ^ _ZERO_LO[6][given & 0xFF],
-        _ZERO_HI[5][given >> 8] ^ _ZERO_LO[5][given & 0xFF],
-    )
-    frame_ok[lines[got != (zero ^ suffix)]] = False
+    # Mixed-case hex misses both tables and so takes the per-line way, which checks it properly.
+    lower = np.maximum(np.maximum(raw[0][lines], raw[1][lines]), np.maximum(raw[2][lines], raw[3][lines]))
+    table = (lower >= 0x61) * 2 + has_cr[lines]
+    frame_ok[lines[crc_all[lines] != _WHOLE_LINE_CRC[table, given]]] = False
