@@ -141,6 +141,7 @@ class PadtuneApp(App[int]):
         self.frames_drawn = 0
         self._tick_count = 0
         self._t0_s = clock()
+        self._edit_bar_key: tuple[object, ...] | None = None
 
     # -- layout -----------------------------------------------------------------------------------
     def compose(self) -> ComposeResult:
@@ -235,7 +236,10 @@ class PadtuneApp(App[int]):
         styles = self._main(ChannelTable).styles_map()
         width = bar.size.width or 80
         position = f"{ch + 1}/{len(names)}" if len(names) > 1 else ""
-        bar.update(edit_bar(names[ch], self.source.settings(ch), self.field_key, styles, width, position))
+        key = (names[ch], self.source.settings(ch), self.field_key, width, position)
+        if key != self._edit_bar_key:  # an unchanged bar costs no layout pass
+            self._edit_bar_key = key
+            bar.update(edit_bar(names[ch], key[1], self.field_key, styles, width, position))
 
     def _draw_detail(self) -> None:
         names = self.source.channel_names()

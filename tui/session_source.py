@@ -176,7 +176,7 @@ class SessionSource:
         info = self.session.info
         path = self._path
         return LinkView(
-            port=self.port, baud=self.baud, state=str(self.producer.state.value), fps=self.fps(),
+            port=self.port, baud=self.baud, state=str(self.producer.state.value), fps=round(self.fps()),
             frames=stats.frames, lost=stats.lost, garbled=stats.garbled + stats.overlong,
             bad_checksum=stats.bad_checksum, resets=stats.resets, overflow=stats.overflow,
             detail=self._status_detail, board=(info.board if info else None),

@@ -6,9 +6,10 @@ hysteresis) a `╎`, so both stay visible with or without colour, filled or not.
 
 from __future__ import annotations
 
+from rich.style import Style
 from rich.text import Text
 
-from tui.render import Styles, pick
+from tui.render import Piece, Styles, pick, to_text
 
 _EIGHTHS = " ▏▎▍▌▋▊▉█"
 THRESHOLD_MARK = "┃"
@@ -31,7 +32,12 @@ def delta_bar(
     role: str = "bar",
 ) -> Text:
     """A bar `width` cells wide. A negative delta (away from touch) shows as `◂` in the first cell."""
-    text = Text(no_wrap=True, end="")
+    return to_text(bar_pieces(delta_counts, threshold_counts, release_counts, width, styles, role))
+
+
+def bar_pieces(delta_counts: float, threshold_counts: int, release_counts: int, width: int, styles: Styles,
+               role: str = "bar") -> list[Piece]:
+    text: list[Piece] = []
     if width <= 0:
         return text
     per_cell = bar_scale_counts(threshold_counts, width)
@@ -40,21 +46,35 @@ def delta_bar(
     eighths = int(max(0.0, delta_counts) / per_cell * 8)
     fill_style = pick(styles, role)
     empty_style = pick(styles, "bar-empty")
-    for cell in range(width):
-        if cell == t_cell:
-            text.append(THRESHOLD_MARK, pick(styles, "threshold"))
-        elif cell == r_cell:
-            text.append(RELEASE_MARK, pick(styles, "release"))
-        else:
-            part = min(8, max(0, eighths - cell * 8))
-            if part == 0 and cell == 0 and delta_counts < 0:
-                text.append("◂", pick(styles, "dim"))
-            elif part == 0:
-                text.append(" ", empty_style)
-            else:
-                text.append(_EIGHTHS[part], fill_style)
+    full_cells, part = divmod(eighths, 8)
+    cells = ["█"] * min(full_cells, width)
+    if full_cells < width:
+        cells.append(_EIGHTHS[part] if part else " ")
+        cells.extend(" " * (width - len(cells)))
+    if delta_counts < 0:
+        cells[0] = "◂"
+    filled = min(width, full_cells + (1 if part else 0))
+    # One run per stretch of one style (fill, empty, the two marks): a handful of spans per bar.
+    marks = sorted({t_cell: (THRESHOLD_MARK, "threshold"), r_cell: (RELEASE_MARK, "release")}.items())
+    pos = 0
+    for cell, (glyph, mark_role) in marks:
+        _runs(text, cells, pos, cell, filled, fill_style, empty_style)
+        text.append((glyph, pick(styles, mark_role)))
+        pos = cell + 1
+    _runs(text, cells, pos, width, filled, fill_style, empty_style)
     if eighths > width * 8:
         # Past the end of the scale: say so rather than clip silently.
-        text.right_crop(1)
-        text.append("▸", fill_style)
+        last, style = text[-1]
+        text[-1] = (last[:-1] + "▸", style) if len(last) > 1 else ("▸", fill_style)
     return text
+
+
+def _runs(out: list[Piece], cells: list[str], start: int, stop: int, filled: int, fill: Style,
+          empty: Style) -> None:
+    if start >= stop:
+        return
+    split = max(start, min(stop, filled))
+    if split > start:
+        out.append(("".join(cells[start:split]), fill))
+    if stop > split:
+        out.append(("".join(cells[split:stop]), empty))

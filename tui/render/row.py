@@ -10,10 +10,10 @@ from dataclasses import dataclass
 
 from rich.text import Text
 
-from tui.render import Styles, pick
-from tui.render.bar import delta_bar
+from tui.render import NULL, Piece, Styles, pick, to_text
+from tui.render.bar import bar_pieces
 from tui.render.glyphs import state_label, verdict_label
-from tui.render.spark import sparkline
+from tui.render.spark import spark_pieces
 from tui.render.views import ChannelView
 
 
@@ -80,32 +80,29 @@ def header_line(layout: RowLayout, styles: Styles) -> Text:
 
 def channel_line(view: ChannelView, layout: RowLayout, selected: bool, styles: Styles) -> Text:
     """The row for one channel; `selected` puts a `▶` in front (so the cursor reads without colour)."""
+    return to_text(row_pieces(view, layout, selected, styles))
+
+
+def row_pieces(view: ChannelView, layout: RowLayout, selected: bool, styles: Styles) -> list[Piece]:
+    """The row as pieces, exactly `layout.width` cells or fewer; the table adds the selected background."""
     st = state_label(view.state)
     verdict = verdict_label(view.verdict)
-    text = Text(no_wrap=True, end="")
-    text.append("▶ " if selected else "  ", pick(styles, "cursor"))
-    name = view.name[: layout.name].ljust(layout.name)
-    text.append(name, pick(styles, "edited" if view.edited else "name"))
-    text.append(" ")
-    text.append(_num(view.reading, layout.number))
-    text.append(" ")
+    plain = NULL
+    out: list[Piece] = [("▶ " if selected else "  ", pick(styles, "cursor")),
+                        (view.name[: layout.name].ljust(layout.name), pick(styles, "edited" if view.edited
+                                                                              else "name")),
+                        (" " + _num(view.reading, layout.number) + " ", plain)]
     if layout.baseline:
-        text.append(_num(view.baseline, layout.number), pick(styles, "dim"))
-        text.append(" ")
-    text.append(_num(view.delta, layout.number), pick(styles, st.role))
-    text.append(" ")
-    text.append_text(delta_bar(view.delta, view.threshold, view.release, layout.bar, styles, st.role))
+        out += [(_num(view.baseline, layout.number), pick(styles, "dim")), (" ", plain)]
+    out += [(_num(view.delta, layout.number), pick(styles, st.role)), (" ", plain)]
+    out += bar_pieces(view.delta, view.threshold, view.release, layout.bar, styles, st.role)
     if layout.spark:
-        text.append(" ")
-        text.append_text(sparkline(view.spark, view.threshold, layout.spark, styles))
-    text.append(" ")
+        out.append((" ", plain))
+        out += spark_pieces(view.spark, view.threshold, layout.spark, styles)
     noise = view.noise_pp
-    text.append(_num(noise, layout.noise, 1 if noise is not None and noise < 100 else 0))
-    text.append(" ")
+    out.append((" " + _num(noise, layout.noise, 1 if noise is not None and noise < 100 else 0) + " ", plain))
     snr = "--" if view.snr is None else f"{view.snr:.1f}" if view.snr < 100 else f"{view.snr:.0f}"
-    text.append(f"{snr:>4} {verdict.glyph}".ljust(layout.snr)[: layout.snr], pick(styles, verdict.role))
-    text.append(" ")
-    text.append(f"{st.glyph} {st.word}".ljust(layout.state)[: layout.state], pick(styles, st.role))
-    if selected:
-        text.stylize(pick(styles, "selected"))
-    return text
+    out += [(f"{snr:>4} {verdict.glyph}".ljust(layout.snr)[: layout.snr], pick(styles, verdict.role)),
+            (" ", plain),
+            (f"{st.glyph} {st.word}".ljust(layout.state)[: layout.state], pick(styles, st.role))]
+    return out

@@ -6,7 +6,7 @@ from collections.abc import Sequence
 
 from rich.text import Text
 
-from tui.render import Styles, pick
+from tui.render import Piece, Styles, pick, to_text
 
 _LEVELS = "▁▂▃▄▅▆▇█"
 
@@ -33,7 +33,12 @@ def sparkline(
     values: Sequence[float], threshold_counts: int, width: int, styles: Styles, role: str = "spark"
 ) -> Text:
     """`width` cells, right-aligned (newest at the right). A value at the threshold reaches level 7 of 8."""
-    text = Text(no_wrap=True, end="")
+    return to_text(spark_pieces(values, threshold_counts, width, styles, role))
+
+
+def spark_pieces(values: Sequence[float], threshold_counts: int, width: int, styles: Styles,
+                 role: str = "spark") -> list[Piece]:
+    text: list[Piece] = []
     if width <= 0:
         return text
     buckets = downsample_max(values, width)
@@ -41,8 +46,17 @@ def sparkline(
     style = pick(styles, role)
     hot = pick(styles, "touched")
     if len(buckets) < width:
-        text.append(" " * (width - len(buckets)))
-    for value in buckets:
-        level = int(max(0.0, value) / top * (len(_LEVELS) - 1) + 0.5)
-        text.append(_LEVELS[level], hot if value >= threshold_counts > 0 else style)
+        text.append((" " * (width - len(buckets)), style))
+    scale = (len(_LEVELS) - 1) / top
+    run: list[str] = []
+    run_hot = False
+    for value in buckets:  # one span per run of cells at or above the threshold, or below it
+        is_hot = value >= threshold_counts > 0
+        if is_hot != run_hot and run:
+            text.append(("".join(run), hot if run_hot else style))
+            run = []
+        run_hot = is_hot
+        run.append(_LEVELS[int(max(0.0, value) * scale + 0.5)])
+    if run:
+        text.append(("".join(run), hot if run_hot else style))
     return text

@@ -18,14 +18,16 @@ class LinkStrip(Static):
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__("", id=id)
-        self._last: LinkView | None = None
+        self._last_plain: str | None = None
+        self._last_state: str | None = None
 
     def show(self, view: LinkView) -> None:
-        if view == self._last:
-            return
-        self._last = view
         styles: dict[str, Style] = {
             role: self.get_component_rich_style(f"link-strip--{role}", partial=True) for role in ROLES
         }
+        text = link_strip(view, styles, compact=self.app.size.width < 140)
+        if text.plain == self._last_plain and view.state == self._last_state:
+            return  # the same words: no update, so no layout pass
+        self._last_plain, self._last_state = text.plain, view.state
         self.set_class(view.state in ("disconnected", "reconnecting"), "-down")
-        self.update(link_strip(view, styles, compact=self.app.size.width < 140))
+        self.update(text)

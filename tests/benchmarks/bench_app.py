@@ -1,0 +1,188 @@
+"""CPU of the running live screen per second of wall time, and the screen frames per second it reached.
+
+Two boards through the real link (`sim://`, decoded on the link's reader thread) into the full app at
+120x40 with its 20 Hz screen timer: 16 channels at 100 Hz and 64 channels at 1 kHz. Printed per board:
+- the UI thread's CPU (the app: draining, detection, measures, drawing) as % of one core,
+- the whole process (adding the link thread and the simulated board itself),
+- screen frames per second reached, and frames handled against the board's frame rate (1.00x = kept up).
+Targets (issue 5): under 12 % of a core for 16 channels at 100 Hz and under 35 % for 64 at 1 kHz, with
+the screen at 20 fps or more.
+
+Then the same 64 rows drawn two ways in one process, fed the same snapshots at 20 Hz: padtune's
+one-widget line-API table, and a plain straightforward table of one widget per cell (a Static per
+number and a Textual Sparkline per row). The ratio of their UI CPU is printed.
+
+The headless driver writes nothing to a terminal, so the cost of the terminal itself is not counted.
+`--quick` runs each part for about a second (the test suite does this so the script cannot rot).
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import re
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+import devices  # noqa: E402
+from textual.app import App, ComposeResult  # noqa: E402
+from textual.containers import Horizontal, VerticalScroll  # noqa: E402
+from textual.widgets import Sparkline, Static  # noqa: E402
+
+from protocol.link import Link  # noqa: E402
+from tui.app import PadtuneApp  # noqa: E402
+from tui.session_source import SessionSource  # noqa: E402
+from tui.widgets.channel_table import ChannelTable  # noqa: E402
+
+
+def board_16ch(folder: Path) -> Path:
+    """A 4 x 4 grid at 100 Hz, made from the bundled grid64 description."""
+    text = (ROOT / "devices" / "boards" / "grid64.toml").read_text()
+    text = re.sub(r'name = "grid64"', 'name = "grid16"', text)
+    text = re.sub(r"rate_hz = 1000", "rate_hz = 100", text)
+    text = re.sub(r"rows = 8", "rows = 4", text)
+    text = re.sub(r"cols = 8", "cols = 4", text)
+    path = folder / "grid16.toml"
+    path.write_text(text)
+    return path
+
+
+class Meter:
+    """UI-thread and process CPU over a stretch of wall time."""
+
+    def __enter__(self) -> Meter:
+        self.wall0, self.ui0, self.proc0 = time.monotonic(), time.thread_time(), time.process_time()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.wall = time.monotonic() - self.wall0
+        self.ui = (time.thread_time() - self.ui0) / self.wall
+        self.proc = (time.process_time() - self.proc0) / self.wall
+
+
+async def wait_for_channels(source: SessionSource, timeout_s: float = 10.0) -> None:
+    t0 = time.monotonic()
+    while not source.channel_names():
+        if time.monotonic() - t0 > timeout_s:
+            raise RuntimeError("the simulated board sent no frames")
+        await asyncio.sleep(0.05)
+
+
+async def run_app(url: str, rate_hz: float, seconds: float) -> dict[str, float]:
+    link = Link(url, 921600)
+    link.start()
+    source = SessionSource(link, port=url, baud=921600)
+    app = PadtuneApp(source, ui_hz=20)
+    try:
+        async with app.run_test(size=(120, 40)):
+            await wait_for_channels(source)
+            await asyncio.sleep(1.0)  # history rings fill, first noise figures computed
+            frames0, drawn0 = link.stats.frames, app.frames_drawn
+            with Meter() as m:
+                await asyncio.sleep(seconds)
+            frames, drawn = link.stats.frames - frames0, app.frames_drawn - drawn0
+            stats = link.stats
+    finally:
+        link.stop()
+    return {"ui": m.ui, "proc": m.proc, "fps": drawn / m.wall, "kept": frames / m.wall / rate_hz,
+            "lost": stats.lost + stats.overflow}
+
+
+class PlainRow(Horizontal):
+    """One channel as separate widgets: the straightforward way to build the table."""
+
+    DEFAULT_CSS = "PlainRow { height: 1; } PlainRow Static { width: 8; } PlainRow Sparkline { width: 30; }"
+
+    def compose(self) -> ComposeResult:
+        for _ in range(6):
+            yield Static("")
+        yield Sparkline([])
+
+
+class TableApp(App[None]):
+    """Draws the same snapshots at 20 Hz with either the line-API table or one widget per cell."""
+
+    def __init__(self, source: SessionSource, plain: bool) -> None:
+        super().__init__()
+        self.source, self.plain, self.drawn = source, plain, 0
+
+    def compose(self) -> ComposeResult:
+        if self.plain:
+            with VerticalScroll():
+                for _ in range(64):
+                    yield PlainRow()
+        else:
+            yield ChannelTable()
+
+    def on_mount(self) -> None:
+        self.set_interval(1 / 20, self.tick)
+
+    def tick(self) -> None:
+        self.source.poll()
+        views = self.source.channel_views(48)
+        with self.batch_update():
+            if self.plain:
+                for row, v in zip(self.query(PlainRow), views, strict=False):
+                    cells = list(row.query(Static))
+                    for cell, value in zip(cells, (v.name, v.reading, v.baseline, v.delta, v.noise_pp, v.state),
+                                           strict=True):
+                        cell.update(str(value))
+                    row.query_one(Sparkline).data = list(v.spark)
+            else:
+                self.query_one(ChannelTable).show(views)
+        self.drawn += 1
+
+
+async def run_table(url: str, plain: bool, seconds: float) -> dict[str, float]:
+    link = Link(url, 921600)
+    link.start()
+    source = SessionSource(link, port=url, baud=921600)
+    app = TableApp(source, plain)
+    try:
+        async with app.run_test(size=(120, 70)):
+            await wait_for_channels(source)
+            await asyncio.sleep(0.5)
+            drawn0 = app.drawn
+            with Meter() as m:
+                await asyncio.sleep(seconds)
+            drawn = app.drawn - drawn0
+    finally:
+        link.stop()
+    return {"ui": m.ui, "fps": drawn / m.wall}
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="about a second per part")
+    args = parser.parse_args()
+    seconds = 1.0 if args.quick else 6.0
+    devices.register_url_handlers()
+    with tempfile.TemporaryDirectory() as tmp:
+        boards = [("16 ch @ 100 Hz", f"sim://{board_16ch(Path(tmp))}?seed=2", 100.0, 0.12),
+                  ("64 ch @ 1 kHz", "sim://grid64?seed=2", 1000.0, 0.35)]
+        print(f"live screen, 120x40, screen timer 20 Hz, {seconds:g} s each")
+        for label, url, rate, target in boards:
+            r = asyncio.run(run_app(url, rate, seconds))
+            verdict = "within" if r["ui"] < target and r["fps"] >= 20 * 0.95 else "OVER"
+            print(f"  {label:15} app (UI thread) {r['ui'] * 100:5.1f} % of a core (target < {target * 100:.0f} %, "
+                  f"{verdict}); whole process incl. link and simulated board {r['proc'] * 100:5.1f} %; "
+                  f"screen {r['fps']:4.1f} fps; frames handled {r['kept']:.2f}x the board's rate; "
+                  f"lost {r['lost']}")
+        url = "sim://grid64?seed=2"
+        line = asyncio.run(run_table(url, plain=False, seconds=seconds))
+        plain = asyncio.run(run_table(url, plain=True, seconds=seconds))
+        ratio = plain["ui"] / max(line["ui"], 1e-9)
+        print("64 rows at 20 Hz, same snapshots, one process:")
+        print(f"  one line-API widget   {line['ui'] * 100:5.1f} % of a core, {line['fps']:4.1f} fps")
+        print(f"  one widget per cell   {plain['ui'] * 100:5.1f} % of a core, {plain['fps']:4.1f} fps")
+        print(f"  the line-API table uses {ratio:.1f}x less CPU than the widget-per-cell table")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
