@@ -345,3 +345,50 @@ def test_check_fails_a_silent_unit_and_warns_about_missing_limits(profiles):
                    "--duration", "1")
     assert bare.returncode == 0 and "not checked" not in bare.stdout
     assert "the profile has no [limits]" in bare.stderr
+
+
+def _run_on_pty(args: list[str], no_color: bool) -> bytes:
+    """Run padtune with stdout and stderr on a pseudo-terminal, as in a terminal window."""
+    import tty
+
+    env = {k: v for k, v in os.environ.items() if k not in ("NO_COLOR", "COLUMNS")}
+    env["TERM"] = "xterm-256color"
+    if no_color:
+        env["NO_COLOR"] = "1"
+    master, slave = os.openpty()
+    tty.setraw(slave)
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", *args], cwd=ROOT, stdin=subprocess.DEVNULL,
+                            stdout=slave, stderr=slave, env=env)
+    os.close(slave)
+    out = bytearray()
+    try:
+        while True:
+            ready, _, _ = select.select([master], [], [], 0.2)
+            if ready:
+                try:
+                    chunk = os.read(master, 4096)
+                except OSError:  # the child closed its side
+                    break
+                if not chunk:
+                    break
+                out.extend(chunk)
+            elif proc.poll() is not None:
+                break
+        proc.wait(20)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+        os.close(master)
+    return bytes(out)
+
+
+def test_monitor_on_a_terminal_uses_colour_unless_no_color(profiles):
+    import re
+
+    args = ["monitor", "sim://greenhouse?speed=4&seed=3", "--profile", str(profiles / "tuned.toml"),
+            "--duration", "1.5"]
+    colour_sgr = re.compile(rb"\x1b\[[0-9;]*(3[0-7]|38;[25])[0-9;]*m")  # SGR foreground colours
+    coloured = _run_on_pty(args, no_color=False)
+    assert b"touch" in coloured and colour_sgr.search(coloured), coloured[:300]
+    plain = _run_on_pty(args, no_color=True)
+    assert b"touch" in plain and not colour_sgr.search(plain)
