@@ -129,6 +129,9 @@ def _settings(where: str, table: Any, base: ChannelSettings, out: Problems) -> C
 
 def _names(raw: dict[str, Any], out: Problems) -> tuple[str, ...] | None:
     channels, names = raw.get("channels"), raw.get("names")
+    if channels is None:
+        out.append(("channels", "missing; add the channel count (channels = N)"))
+        return None
     if not _is_int(channels) or not 1 <= channels <= MAX_CHANNELS:
         out.append(("channels", f"must be a channel count from 1 to {MAX_CHANNELS}, not {channels!r}"))
         return None
@@ -158,6 +161,8 @@ def _channel_refs(where: str, refs: Any, names: tuple[str, ...], out: Problems) 
     for ref in refs:
         if isinstance(ref, str) and ref in names:
             found.append(names.index(ref))
+        elif not isinstance(ref, str):
+            out.append((where, f"{ref!r} is not a channel name (names are strings in quotes)"))
         else:
             close = difflib.get_close_matches(str(ref), names, n=1)
             hint = f"; did you mean '{close[0]}'?" if close else ""
@@ -174,6 +179,13 @@ def _unique_names(table: str, names: list[str], out: Problems) -> None:
             out.append((f"{table}[{i}].name", f"'{name}' is already the name of {table}[{first}]"))
 
 
+def _name_problem(where: str, name: Any, out: Problems) -> None:
+    if name is None:
+        out.append((f"{where}name", f"missing; give it a name ({NAME_HINT})"))
+    elif not isinstance(name, str) or not NAME_RE.match(name):
+        out.append((f"{where}name", f"must be a name ({NAME_HINT}), not {name!r}"))
+
+
 def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec, ...]:
     groups: list[GroupSpec] = []
     for i, g in enumerate(raw if isinstance(raw, list) else []):
@@ -183,8 +195,7 @@ def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec,
             continue
         _unknown(where, g, GROUP_KEYS, out)
         name, margin = g.get("name"), g.get("switch_margin_counts", 0)
-        if not isinstance(name, str) or not NAME_RE.match(name):
-            out.append((f"{where}name", f"must be a name ({NAME_HINT}), not {name!r}"))
+        _name_problem(where, name, out)
         if not _is_int(margin) or margin < 0:
             out.append((f"{where}switch_margin_counts", f"must be a whole number >= 0, not {margin!r}"))
         members = _channel_refs(f"{where}members", g.get("members"), names, out)
@@ -206,8 +217,7 @@ def _sliders(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[SliderSpe
             continue
         _unknown(where, sl, SLIDER_KEYS, out)
         name, wheel, res = sl.get("name"), sl.get("wheel", False), sl.get("resolution", 100)
-        if not isinstance(name, str) or not NAME_RE.match(name):
-            out.append((f"{where}name", f"must be a name ({NAME_HINT}), not {name!r}"))
+        _name_problem(where, name, out)
         if not isinstance(wheel, bool):
             out.append((f"{where}wheel", f"must be true or false, not {wheel!r}"))
         if not _is_int(res) or not 2 <= res <= 65535:
@@ -238,7 +248,9 @@ def _limits(raw: Any, out: Problems) -> Limits:
 
 def _head(raw: dict[str, Any], out: Problems) -> None:
     version = raw.get("format_version")
-    if not _is_int(version):
+    if version is None:
+        out.append(("format_version", f"missing; add format_version = {FORMAT_VERSION}"))
+    elif not _is_int(version):
         out.append(("format_version", f"must be the whole number {FORMAT_VERSION}, not {version!r}"))
     elif version > FORMAT_VERSION:
         out.append(("format_version", f"{version} is newer than this padtune reads ({FORMAT_VERSION}); "
@@ -295,9 +307,13 @@ def load_profile(path: str | os.PathLike[str]) -> Profile:
     try:
         data = p.read_bytes()
     except FileNotFoundError:
-        raise ProfileError([f"{p}: no such profile file"]) from None
+        raise ProfileError([f"{p}: no such profile file; check the path"]) from None
+    except IsADirectoryError:
+        raise ProfileError([f"{p}: is a folder, not a profile file"]) from None
+    except PermissionError:
+        raise ProfileError([f"{p}: cannot read: permission denied; check the file's permissions"]) from None
     except OSError as exc:
-        raise ProfileError([f"{p}: cannot read: {exc.strerror}"]) from None
+        raise ProfileError([f"{p}: cannot read: {exc.strerror or exc}"]) from None
     try:
         raw = tomllib.loads(data.decode("utf-8"))
     except UnicodeDecodeError:

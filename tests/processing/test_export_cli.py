@@ -1,6 +1,9 @@
 """`padtune export` run as a user would: a subprocess, exit codes and one-line errors."""
 
 import json
+import os
+import pathlib
+import shutil
 import subprocess
 import sys
 
@@ -26,17 +29,80 @@ def test_export_header_and_json(tmp_path):
     assert json.loads((tmp_path / "panel.json").read_text())["channels"][2]["name"] == "stop"
 
 
-def test_bad_profile_exits_2_with_one_line(tmp_path):
+def test_bad_profile_exits_2_one_line_per_problem(tmp_path):
     bad = GOOD.replace("threshold_counts = 120", "thresold_counts = 120")
     bad = bad.replace('"zone1", "zone2"]\n[[slider]]', '"zone1", "zone7"]\n[[slider]]')
     (tmp_path / "panel.toml").write_text(bad)
     out = padtune("export", "panel.toml", "--json", "panel.json", cwd=tmp_path)
-    assert out.returncode == 2 and out.stdout == ""
-    lines = out.stderr.strip().splitlines()
-    assert len(lines) == 1 and "Traceback" not in out.stderr
-    assert "panel.toml:defaults.thresold_counts: unknown key; did you mean 'threshold_counts'?" in lines[0]
-    assert "group[0].members: unknown channel 'zone7'" in lines[0]
+    assert out.returncode == 2 and out.stdout == "" and "Traceback" not in out.stderr
+    assert out.stderr.splitlines() == [
+        "padtune: panel.toml:defaults.thresold_counts: unknown key; did you mean 'threshold_counts'?",
+        "panel.toml:group[0].members: unknown channel 'zone7'; did you mean 'zone2'?",
+    ]
     assert not (tmp_path / "panel.json").exists()
+
+
+BAD_FILES = [
+    # (file text, a piece of each line expected, in order)
+    (GOOD.replace("[defaults]", "[defualts]"), ["defualts: unknown key; did you mean 'defaults'?"]),
+    (GOOD.replace("channels = 3", 'channels = "3"').replace("= 120", "= 1.5"),
+     ["channels: must be a channel count from 1 to 1024, not '3'",
+      "defaults.threshold_counts: must be a whole number, not 1.5"]),
+    (GOOD.replace("threshold_counts = 120", "threshold_counts = 120\nhysteresis_counts = 120"),
+     ["defaults.hysteresis_counts: 120 must be below the threshold (120)"]),
+    (GOOD.replace('"zone1", "zone2"]\n[[slider]]', '"zone1", "pump"]\n[[slider]]'),
+     ["group[0].members: unknown channel 'pump'"]),
+    ("board = greenhouse\n", ["not valid TOML"]),
+    ("", ["format_version: missing; add format_version = 1", "channels: missing; add the channel count"]),
+]
+
+
+@pytest.mark.parametrize(("text", "pieces"), BAD_FILES,
+                         ids=["misspelt", "types", "hysteresis", "group", "not-toml", "empty"])
+def test_bad_files_each_problem_on_its_own_line(tmp_path, text, pieces):
+    (tmp_path / "bad.toml").write_text(text)
+    out = padtune("export", "bad.toml", "--json", "out.json", cwd=tmp_path)
+    assert out.returncode == 2 and "Traceback" not in out.stderr and out.stdout == ""
+    lines = out.stderr.removeprefix("padtune: ").splitlines()
+    assert len(lines) == len(pieces)
+    for line, piece in zip(lines, pieces, strict=True):
+        assert line.startswith("bad.toml") and piece in line, (line, piece)
+    assert sorted(q.name for q in tmp_path.iterdir()) == ["bad.toml"]  # nothing written, no temp file
+
+
+def test_unusable_paths_give_one_line(tmp_path):
+    (tmp_path / "folder.toml").mkdir()
+    out = padtune("export", "folder.toml", "--json", "out.json", cwd=tmp_path)
+    assert out.returncode == 2
+    assert out.stderr.strip() == "padtune: folder.toml: is a folder, not a profile file"
+    (tmp_path / "p.toml").write_text(GOOD)
+    out = padtune("export", "p.toml", "--json", "no-such-folder/out.json", cwd=tmp_path)
+    assert out.returncode == 2 and "Traceback" not in out.stderr
+    assert "no-such-folder/out.json: cannot write: the folder no-such-folder does not exist" in out.stderr
+    out = padtune("export", "p.toml", "--c-header", "folder.toml", cwd=tmp_path)
+    assert out.returncode == 2 and "folder.toml: cannot write: it is a folder" in out.stderr
+    assert sorted(q.name for q in tmp_path.iterdir()) == ["folder.toml", "p.toml"]
+    assert list((tmp_path / "folder.toml").iterdir()) == []
+
+
+@pytest.mark.skipif(not hasattr(os, "geteuid") or os.geteuid() != 0 or shutil.which("setpriv") is None,
+                    reason="needs root and setpriv to run the CLI as another user")
+def test_unreadable_profile_as_another_user(tmp_path):
+    # As root every file is readable, so run the CLI as 'nobody' (uid 65534) on a mode-000 file.
+    tmp_path.chmod(0o777)
+    (tmp_path / "p.toml").write_text(GOOD)
+    (tmp_path / "p.toml").chmod(0)
+    root = pathlib.Path(__file__).resolve().parents[2]
+    as_nobody = ["setpriv", "--reuid=65534", "--regid=65534", "--clear-groups"]
+    cmd = [*as_nobody, sys.executable, "-m", "tui.cli", "export", "p.toml", "--json", "out.json"]
+    out = subprocess.run(cmd, capture_output=True, text=True, cwd=tmp_path, timeout=60,
+                         env={**os.environ, "PYTHONPATH": str(root)})
+    if "Permission denied" in out.stderr and "p.toml" not in out.stderr:
+        pytest.skip(f"nobody cannot run the interpreter here: {out.stderr.strip()}")
+    assert out.returncode == 2 and "Traceback" not in out.stderr, out.stderr
+    want = "padtune: p.toml: cannot read: permission denied; check the file's permissions"
+    assert out.stderr.strip() == want
+    assert not (tmp_path / "out.json").exists()
 
 
 def test_missing_profile_and_output_required(tmp_path):

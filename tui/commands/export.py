@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 
 from processing.export import export_c_header, export_json
-from processing.profile import ProfileError, load_profile
+from processing.profile import load_profile
 from protocol.errors import UserError
 
 
@@ -20,11 +20,20 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.set_defaults(func=run)
 
 
+def _why(target: Path, exc: OSError) -> str:
+    """What went wrong writing `target`, in words that say what to fix."""
+    folder = target.parent
+    if not folder.is_dir():
+        return f"the folder {folder} does not exist"
+    if target.is_dir():
+        return "it is a folder; name a file"
+    if isinstance(exc, PermissionError):
+        return "permission denied; choose a folder you can write to"
+    return exc.strerror or str(exc)
+
+
 def run(args: argparse.Namespace) -> int:
-    try:
-        profile = load_profile(args.profile)
-    except ProfileError as exc:  # the export contract is one line on stderr, so join every problem
-        raise UserError("; ".join(exc.problems)) from None
+    profile = load_profile(args.profile)  # ProfileError: one `file:key: problem` line each, exit 2
     target = Path(args.c_header or args.json)
     if target.resolve() == Path(args.profile).resolve():
         raise UserError(f"{target}: refusing to overwrite the profile itself; choose another output file")
@@ -34,7 +43,7 @@ def run(args: argparse.Namespace) -> int:
         else:
             export_json(profile, target, source=Path(args.profile).name)
     except OSError as exc:
-        raise UserError(f"{target}: cannot write: {exc.strerror or exc}") from None
+        raise UserError(f"{target}: cannot write: {_why(target, exc)}") from None
     print(f"wrote {target} ({profile.channels} channels, {len(profile.groups)} groups, "
           f"{len(profile.sliders)} sliders)")
     return 0
