@@ -33,8 +33,9 @@ from protocol.events import FrameBlock
 from tui.headless.histogram import DeltaHistogram
 
 TICK_S = 0.1
-COLUMNS = ("key", "noise pp", "noise rms", "touch", "SNR pp", "SNR rms", "verdict", "threshold", "hyst",
-           "debounce", "applied")
+# Short headings so the whole table fits 80 columns: noise and SNR in pp and RMS form, threshold,
+# hysteresis, touch/release debounce (frames), and whether the suggestion has been applied.
+COLUMNS = ("key", "noise pp", "rms", "touch", "SNR pp", "rms", "verdict", "thr", "hyst", "db", "set")
 
 
 def _num(value: float | None, digits: int = 1) -> str:
