@@ -296,3 +296,26 @@ def test_callback_errors_are_counted_not_fatal(tmp_path):
 def test_link_fault_is_hashable_small_dataclass():
     fault = LinkFault(0.0, FaultKind.BAUD_SUSPECT, 1, "x")
     assert fault.kind == "baud_suspect"
+
+
+def test_timestamps_and_baud_window_use_the_given_clock(tmp_path):
+    path = tmp_path / "tty"
+    path.touch()
+    fake = FakeSerial(str(path), 0.02)
+    now = [1000.0]
+    link = Link(str(path), opener=lambda *a: fake, clock=lambda: now[0])
+    got = Collector(link)
+    link.start()
+    try:
+        fake.feed(b"\xf8\x00\xfe\x80" * 40 + b"\n")  # wrong-baud noise, inside the window
+        got.wait(lambda: link.stats.bytes_in == 161, "the noise to be read")
+        assert not link.baud_suspect  # the window has not passed on this clock
+        now[0] = 1002.5
+        got.wait(lambda: link.baud_suspect, "the verdict once the clock passed 2 s")
+        fake.feed(encode_frames(np.ones((2, 2)), 0))
+        got.wait(lambda: len(got.frames()) == 2, "frames")
+        (frames_block,) = [e for e in got.events if isinstance(e, FrameBlock)]
+        assert frames_block.t_s.tolist() == [1002.5, 1002.5]
+        assert got.events[0].t_s == 1000.0  # the connected status
+    finally:
+        link.stop()
