@@ -17,7 +17,7 @@ from processing.session import Session
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import StopFlag, add_port_args, load_profile_arg, open_link, seconds
-from tui.headless.production import UnitProbe, evaluate
+from tui.headless.production import UnitProbe, evaluate, touch_figures
 
 TICK_S = 0.02
 
@@ -57,7 +57,12 @@ def _touch_phase(link: Any, probe: UnitProbe, names: list[str], timeout_s: float
         say(f"touch and hold {name}, then let go")
         deadline = time.monotonic() + timeout_s
         _poll(link, probe, deadline, stop, lambda c=c: c in probe.done_keys)
-        say(f"  {name}: {'ok' if c in probe.done_keys else 'no touch seen'}")
+        if c in probe.done_keys:
+            signal, snr = touch_figures(probe, c)
+            shown = f", SNR {snr:.1f}" if snr is not None else ""
+            say(f"  {name}: touch seen, delta {signal:.0f} counts{shown}")
+        else:
+            say(f"  {name}: no touch seen in {timeout_s:g} s")
         if stop.stopped:
             return
 

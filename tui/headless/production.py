@@ -125,6 +125,18 @@ class UnitProbe:
                      (self.t_s, self.readings, self.deltas, self.states))  # type: ignore[return-value]
 
 
+def touch_figures(probe: UnitProbe, channel: int) -> tuple[float | None, float | None]:
+    """(median touched delta, SNR pp) of one key so far, for the operator's prompt."""
+    samples = probe.touch_samples.get(channel, [])
+    if not samples:
+        return None, None
+    signal = float(np.median(samples))
+    _, _, deltas, states = probe.arrays()
+    quiet = deltas[states[:, channel] == KeyState.RELEASED, channel] if len(states) else np.zeros(0)
+    pp = float(quiet.max() - quiet.min()) if len(quiet) >= 8 else None
+    return signal, (signal / pp if pp else None)
+
+
 def _alive(v: ChannelVerdict, limits: Limits, polarity: int) -> None:
     lo, hi = limits.baseline_min_counts, limits.baseline_max_counts
     if (lo is None and hi is None) or v.baseline_counts is None:
