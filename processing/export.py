@@ -125,4 +125,5 @@ def export_c_header(profile: Profile, path: str | os.PathLike[str], source: str 
 def export_json(profile: Profile, path: str | os.PathLike[str], source: str = "",
                 now: dt.datetime | None = None) -> None:
     doc = json_document(profile, source or "(unsaved profile)", now)
-    atomic_write_bytes(path, (json.dumps(doc, indent=2) + "\n").encode("utf-8"), keep_backup=False)
+    text = json.dumps(doc, indent=2, allow_nan=False) + "\n"  # strict JSON: limits are finite (validated)
+    atomic_write_bytes(path, text.encode("utf-8"), keep_backup=False)

@@ -19,7 +19,7 @@ import tomli_w
 
 from processing.atomic import atomic_write_bytes
 from processing.groups import GroupSpec
-from processing.settings import LIMIT_KEYS, SETTING_KEYS, ChannelSettings, Limits
+from processing.settings import LIMIT_KEYS, SETTING_KEYS, ChannelSettings, Limits, is_positive_number
 from processing.slider import SliderSpec
 from protocol.errors import UserError
 
@@ -260,7 +260,7 @@ def _head(raw: dict[str, Any], out: Problems) -> None:
     if not isinstance(raw.get("board", ""), str):
         out.append(("board", "must be a string"))
     rate = raw.get("rate_hz")
-    if rate is not None and (not isinstance(rate, int | float) or isinstance(rate, bool) or rate <= 0):
+    if rate is not None and not is_positive_number(rate):
         out.append(("rate_hz", f"must be a positive number, not {rate!r}"))
 
 
@@ -275,7 +275,7 @@ def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[s
     if names is None or defaults is None:
         return None, out
     polarity = raw.get("polarity", [])
-    if not isinstance(polarity, list) or any(p not in (1, -1) or isinstance(p, bool) for p in polarity) or \
+    if not isinstance(polarity, list) or any(not _is_int(p) or p not in (1, -1) for p in polarity) or \
             len(polarity) not in (0, len(names)):
         out.append(("polarity", f"must be a list of {len(names)} values, each 1 or -1 (or left out)"))
     overrides: dict[int, ChannelSettings] = {}

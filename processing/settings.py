@@ -6,6 +6,7 @@ report `file:key: message`; the engine refuses settings with problems.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, fields
 
 MAX_COUNTS = 1 << 24  # readings and thresholds are assumed to fit comfortably in 32 bits
@@ -92,6 +93,11 @@ class ChannelSettings:
 SETTING_KEYS: tuple[str, ...] = tuple(f.name for f in fields(ChannelSettings))
 
 
+def is_positive_number(value: object) -> bool:
+    """A finite number above zero (not a bool; NaN and infinity are refused: JSON and C cannot hold them)."""
+    return isinstance(value, int | float) and not isinstance(value, bool) and 0 < value < math.inf
+
+
 @dataclass(frozen=True, slots=True)
 class Limits:
     """Acceptance limits for production checks. None means the limit is not checked."""
@@ -106,8 +112,7 @@ class Limits:
         out: list[tuple[str, str]] = []
         for key in ("max_noise_pp_counts", "max_noise_rms_counts", "min_snr_pp"):
             value = getattr(self, key)
-            if value is not None and not (isinstance(value, int | float) and not isinstance(value, bool)
-                                          and value > 0):
+            if value is not None and not is_positive_number(value):
                 out.append((key, f"must be a positive number, not {value!r}"))
         for key in ("baseline_min_counts", "baseline_max_counts"):
             value = getattr(self, key)

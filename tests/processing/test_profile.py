@@ -174,11 +174,21 @@ def test_killed_writer_leaves_old_or_new_never_broken(tmp_path):
     (("min_snr_pp = 5.0", "baseline_min_counts = 900\nbaseline_max_counts = 100"), "limits.baseline_max_counts: 100 must be above baseline_min_counts (900)"),
     (("channels = 3", "channels = 3\npolarity = [1, 0, 1]"), "polarity: must be a list of 3 values, each 1 or -1"),
     (("channels = 3", "channels = 3\nrate_hz = -100"), "rate_hz: must be a positive number"),
+    (("channels = 3", "channels = 3\nrate_hz = nan"), "rate_hz: must be a positive number, not nan"),  # crashed the session
+    (("channels = 3", "channels = 3\nrate_hz = inf"), "rate_hz: must be a positive number, not inf"),
+    (("channels = 3", "channels = 3\npolarity = [1.0, 1, -1]"), "polarity: must be a list of 3 values, each 1 or -1"),
+    (("min_snr_pp = 5.0", "max_noise_pp_counts = inf"), "limits.max_noise_pp_counts: must be a positive number, not inf"),
+    (("min_snr_pp = 5.0", "min_snr_pp = nan"), "limits.min_snr_pp: must be a positive number, not nan"),
+    (("", "[[group]]\nname = 5\nmembers = [1, 2]\n"), "group[1].members: 1 is not a channel name (names are strings in quotes)"),
+    (("[[group]]\nname = \"zones\"", "[[group]]"), "group[0].name: missing; give it a name"),
+    (("format_version = 1\n", ""), "format_version: missing; add format_version = 1"),
+    (("channels = 3\n", ""), "channels: missing; add the channel count"),
 ])
 def test_every_validation_error(tmp_path, edit, expected):
     old, new = edit
     assert old in GOOD
-    assert expected in problems(tmp_path, GOOD.replace(old, new, 1))
+    text = GOOD.replace(old, new, 1) if old else GOOD + new
+    assert expected in problems(tmp_path, text)
 
 
 def test_wrong_table_shapes():
