@@ -392,3 +392,47 @@ def test_monitor_on_a_terminal_uses_colour_unless_no_color(profiles):
     assert b"touch" in coloured and colour_sgr.search(coloured), coloured[:300]
     plain = _run_on_pty(args, no_color=True)
     assert b"touch" in plain and not colour_sgr.search(plain)
+
+
+def test_monitor_reports_an_unplug_and_the_replug(tmp_path):
+    """A board on a pseudo-terminal behind a stable symlink, unplugged and plugged back mid-run."""
+    import numpy as np
+
+    from protocol.encoder import encode_frames, encode_info
+    from tests.protocol.ptyboard import PtyBoard
+
+    board = PtyBoard(tmp_path)
+    info = encode_info({"proto": 1, "board": "bench", "channels": 2, "rate": 100, "names": "a,b"})
+    block = lambda first, n: encode_frames(1000 + np.zeros((n, 2), np.int64), first, checksum=True)  # noqa: E731
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "monitor", str(board.path), "--json"], cwd=ROOT,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    lines: list[str] = []
+
+    def wait_for(text: str) -> None:
+        deadline = time.monotonic() + 30
+        while not any(text in line for line in lines) and time.monotonic() < deadline:
+            lines.append(proc.stdout.readline())
+        assert any(text in line for line in lines), lines
+
+    try:
+        wait_for('"event":"connected"')
+        board.send(info + block(0, 40))
+        wait_for('"type":"hello"')
+        time.sleep(0.3)
+        board.unplug()
+        wait_for('"event":"disconnected"')
+        board.plug()
+        wait_for('"event":"reconnected"')
+        board.send(block(40, 40))
+        time.sleep(0.5)
+        proc.send_signal(signal.SIGTERM)
+        out, _ = proc.communicate(timeout=20)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+        board.close()
+    events = json_lines("".join(lines) + out)
+    summary = events[-1]
+    assert summary["type"] == "summary" and summary["frames"] == 80 and summary["lost"] == 0
+    states = [e["event"] for e in events if e["type"] == "link"]
+    assert states.index("disconnected") < states.index("reconnected")
