@@ -117,12 +117,13 @@ class Decoder:
         per_line = int(sc.width[i]) + sequenced
         start = int(sc.offset[i])
         block = sc.numbers[start : start + (j - i) * per_line].reshape(j - i, per_line)
+        # Copies, so a queued block never keeps the whole batch's number array alive.
         if sequenced:
-            seq = np.ascontiguousarray(block[:, 0])
-            readings = np.ascontiguousarray(block[:, 1:])
+            seq = block[:, 0].copy()
+            readings = block[:, 1:].copy()
         else:
             seq = np.full(j - i, -1, dtype=np.int64)
-            readings = block
+            readings = block.copy()
         self._rules.accept_run(seq, readings, any_checked)
 
 
