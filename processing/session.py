@@ -40,6 +40,17 @@ class ChannelRow:
     quality: ChannelQuality
 
 
+_INFO_KEYS = ("proto", "board", "channels", "rate_hz", "names", "method", "polarity", "fw")
+
+
+def _merged_info(session: BoardInfo | None, line: BoardInfo) -> BoardInfo:
+    """The session's info after `line`: a new session replaces it, any other line updates the keys it has."""
+    if session is None or line.new_session:
+        return line
+    given = {k: getattr(line, k) for k in _INFO_KEYS if getattr(line, k) not in (None, ())}
+    return replace(session, t_s=line.t_s, fields={**session.fields, **line.fields}, **given)
+
+
 class Session:
     """Owns one board's engine, measures, groups and sliders. Not thread-safe: call from one thread."""
 
@@ -142,9 +153,10 @@ class Session:
         self._estimate_rate()
         return found
 
-    def _info(self, info: BoardInfo) -> None:
+    def _info(self, line: BoardInfo) -> None:
+        """A line with `proto` starts a new session; one without updates the session's info key by key."""
         old = self.info
-        self.info = info
+        self.info = info = _merged_info(old, line)
         width = info.channels or (len(info.names) or None)
         rebuild = self.engine is None or self.engine.channels != width or self._polarity_changed(old, info)
         if width and rebuild:
@@ -153,7 +165,7 @@ class Session:
         self._rename(info)
         if info.rate_hz and self.measures is not None:
             self.measures.rate_hz, self._rate_declared = float(info.rate_hz), True
-        if info.new_session and self.engine is not None:
+        if line.new_session and self.engine is not None:
             self.notices.append("new session: baselines taken again")
             self.engine.rebaseline()
 

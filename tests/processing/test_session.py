@@ -132,3 +132,17 @@ def test_profile_for_another_board_id_is_used_with_a_notice():
     s.handle([info(), quiet(10)])
     assert s.settings(0).threshold_counts == 66
     assert any("seed-tray" in n and "greenhouse-panel" in n for n in s.notices)
+
+
+def test_info_without_proto_updates_keys_and_keeps_the_rest():
+    # PROTOCOL.md: "Info lines without proto update the session's info key by key." A later rate-only
+    # line must not make the session forget the board's polarity and names (nor start a new session).
+    s = Session()
+    s.handle([info(polarity=(-1,)), quiet(20)])
+    s.handle([BoardInfo(t_s=1.0, fields={"rate": "200"}, rate_hz=200.0)])
+    assert not s.engine.pending.any() and s.rate_hz == 200.0 and s.info.names == NAMES
+    s.handle([BoardChanged(1.0, 4, 6), quiet(20, width=6, first_index=20)])
+    rows = np.full((5, 6), 1000)
+    rows[:, 1] -= 300  # polarity -1: a drop is a touch
+    out = s.handle([frames(rows, 40)])
+    assert [type(ev) for ev in out] == [Touch] and out[0].channel == 1
