@@ -64,7 +64,8 @@ class KeyTrace:
     from_marks: bool
 
 
-def estimate_baseline(values: np.ndarray, rate_hz: float, window_s: float = 0.5, span_s: float = 6.0):
+def estimate_baseline(values: np.ndarray, rate_hz: float, window_s: float = 0.5,
+                      span_s: float = 6.0) -> np.ndarray:
     """Rolling minimum of window medians (touch positive), interpolated back to every frame."""
     n = len(values)
     w = max(1, round(window_s * rate_hz))
@@ -152,7 +153,8 @@ def _mark_ranges(t_s: np.ndarray, marks: Sequence[Mark], start_kind: str, end_ki
     return out
 
 
-def _marked_stretches(t_s: np.ndarray, marks: Sequence[Mark], names: Sequence[str]):
+def _marked_stretches(t_s: np.ndarray, marks: Sequence[Mark],
+                      names: Sequence[str]) -> dict[int, list[tuple[int, int]]] | None:
     if not any(m.kind == "touch-start" for m in marks):
         return None
     return {c: _mark_ranges(t_s, marks, "touch-start", "touch-end", name) for c, name in enumerate(names)}

@@ -10,15 +10,20 @@ from __future__ import annotations
 import io
 import itertools
 from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+if TYPE_CHECKING:  # matplotlib is optional: imported only when a report is drawn
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
 
 MAX_POINTS = 1600
 COLOURS = {"delta": "#33658a", "threshold": "#c0392b", "release": "#e67e22", "touched": "#86bbd8",
            "untouched": "#55828b", "touch": "#f6ae2d", "limit": "#7d3c98"}
 
 
-def _figure(width_in: float = 6.4, height_in: float = 2.4):  # -> matplotlib.figure.Figure
+def _figure(width_in: float = 6.4, height_in: float = 2.4) -> tuple[Figure, Axes]:
     import matplotlib
 
     matplotlib.rcParams["svg.fonttype"] = "none"
@@ -29,7 +34,7 @@ def _figure(width_in: float = 6.4, height_in: float = 2.4):  # -> matplotlib.fig
     return fig, fig.add_subplot()
 
 
-def _svg(fig) -> str:
+def _svg(fig: Figure) -> str:
     buf = io.StringIO()
     fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "padtune"})
     text = buf.getvalue()
