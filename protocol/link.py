@@ -78,6 +78,8 @@ class Link:
         self._baud_suspect = False
         self._callback_errors = 0
         self._greedy = port.lower().startswith("socket://")
+        # A POSIX device path can be watched for disappearing; COM3 and URLs are simply reopened.
+        self._is_path = os.name == "posix" and not is_url(port)
 
     # -- public ------------------------------------------------------------------------------------
     @property
@@ -108,7 +110,7 @@ class Link:
         if self._thread is not None:
             raise RuntimeError("link already started")
         self._serial = self._opener(self.port, self.baud, self.read_timeout_s)
-        if not is_url(self.port):
+        if self._is_path:
             self._identity = self._lookup_identity()
         self._opened(LinkState.CONNECTED, "")
         self._thread = threading.Thread(target=self._run, name=f"padtune-link {self.port}", daemon=True)
@@ -225,7 +227,7 @@ class Link:
     _last_vanish_check = 0.0
 
     def _vanished(self, now: float) -> bool:
-        if is_url(self.device) or now - self._last_vanish_check < VANISH_CHECK_S:
+        if not self._is_path or now - self._last_vanish_check < VANISH_CHECK_S:
             return False
         self._last_vanish_check = now
         return not os.path.exists(self.device)
@@ -264,7 +266,7 @@ class Link:
         return False
 
     def _find_target(self) -> str | None:
-        if is_url(self.port) or os.path.exists(self.port):
+        if not self._is_path or os.path.exists(self.port):
             return self.port
         if self._identity is None:
             return None
