@@ -103,6 +103,11 @@ def _fmt(value: Any, digits: int = 1) -> str:
     return str(value)
 
 
+# Verdicts are words first; colour only helps on a terminal (and goes away under NO_COLOR or a pipe).
+VERDICT_STYLES = {"PASS": "bold green", "FAIL": "bold red", "solid": "green", "marginal": "yellow",
+                  "weak": "red"}
+
+
 def channel_table(rows: Sequence[Mapping[str, Any]], columns: Sequence[tuple[str, str]],
                   title: str | None = None, plain: bool = False) -> Table:
     """A rich table of per-channel dicts; `columns` are (key, heading). ASCII borders when plain."""
@@ -112,7 +117,8 @@ def channel_table(rows: Sequence[Mapping[str, Any]], columns: Sequence[tuple[str
         left = key in ("name", "state", "verdict", "reason")
         table.add_column(heading, justify="left" if left else "right")
     for row in rows:
-        table.add_row(*(Text(_fmt(row.get(key))) for key, _ in columns))
+        table.add_row(*(Text(_fmt(row.get(key)), style=VERDICT_STYLES.get(str(row.get(key)), ""))
+                        if key == "verdict" else Text(_fmt(row.get(key))) for key, _ in columns))
     return table
 
 
