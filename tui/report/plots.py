@@ -63,9 +63,10 @@ def delta_plot(t_s: np.ndarray, delta: np.ndarray, threshold: float | None, rele
                limit_band: float | None = None) -> str:
     fig, ax = _figure()
     t, v = envelope(np.asarray(t_s, float), np.asarray(delta, float))
-    for a, b in stretches:
+    for i, (a, b) in enumerate(stretches):
         end_s = float(t_s[min(b, len(t_s)) - 1])
-        ax.axvspan(float(t_s[a]), end_s, color=COLOURS["touched"], alpha=0.35, lw=0)
+        ax.axvspan(float(t_s[a]), end_s, color=COLOURS["touched"], alpha=0.35, lw=0,
+                   label="touched" if i == 0 else None)
     ax.plot(t, v, color=COLOURS["delta"], lw=0.8, label="delta")
     if threshold is not None:
         ax.axhline(threshold, color=COLOURS["threshold"], lw=1, ls="--", label=f"threshold {threshold:g}")
@@ -78,7 +79,7 @@ def delta_plot(t_s: np.ndarray, delta: np.ndarray, threshold: float | None, rele
     ax.set_ylabel("delta (counts)")
     if title:
         ax.set_title(title, fontsize=10)
-    ax.legend(loc="upper right", fontsize=7, frameon=False)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), fontsize=7, frameon=False)  # beside, not over
     ax.grid(alpha=0.25)
     return _svg(fig)
 
