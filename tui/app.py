@@ -142,6 +142,8 @@ class PadtuneApp(App[int]):
         self._tick_count = 0
         self._t0_s = clock()
         self._edit_bar_key: tuple[object, ...] | None = None
+        self._table: ChannelTable | None = None
+        self._widgets: dict[tuple[object, object], Any] = {}
 
     # -- layout -----------------------------------------------------------------------------------
     def compose(self) -> ComposeResult:
@@ -155,6 +157,7 @@ class PadtuneApp(App[int]):
         yield Footer(compact=True, show_command_palette=False)
 
     def on_mount(self) -> None:
+        self._table = self._main(ChannelTable)
         self._main("#detail").display = False
         self._apply_size_classes()
         if self.ui_hz > 0:
@@ -171,6 +174,8 @@ class PadtuneApp(App[int]):
     # -- the screen timer -------------------------------------------------------------------------
     def refresh_now(self) -> None:
         """Drain the source, log what happened, and redraw (unless the display is paused)."""
+        if self._table is None or not self._table.is_attached:
+            return  # not mounted yet, or shutting down: the widgets are gone
         try:
             tick = self.source.poll()
         except UserError as exc:
@@ -253,7 +258,19 @@ class PadtuneApp(App[int]):
         )
 
     def _main(self, selector: str | type, expect_type: type | None = None) -> Any:
-        """A widget of the live screen, whichever screen (help, a prompt, the capture) is on top."""
+        """A widget of the live screen, whichever screen (help, a prompt, the capture) is on top.
+
+        Found once and kept: the screen timer asks for the same few widgets twenty times a second.
+        """
+        key = (selector, expect_type)
+        found = self._widgets.get(key)
+        if found is not None and found.is_attached:
+            return found
+        found = self._query_main(selector, expect_type)
+        self._widgets[key] = found
+        return found
+
+    def _query_main(self, selector: str | type, expect_type: type | None) -> Any:
         screen = self.screen_stack[0] if self.screen_stack else self.screen
         if expect_type is None:
             return screen.query_one(selector)

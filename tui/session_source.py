@@ -61,6 +61,7 @@ class SessionSource:
         self._quality: list[ChannelQuality] = []
         self._quality_t_s = -1e9
         self._status_detail = ""
+        self._fps, self._fps_t_s = 0.0, -1e9
         self._recorder: RecordingWriter | None = None
 
     # -- data in ----------------------------------------------------------------------------------
@@ -94,11 +95,18 @@ class SessionSource:
         return tick
 
     def fps(self) -> float:
+        """Frames per second over the last two seconds, refreshed once a second (a steady figure)."""
+        now = self.clock()
+        if now - self._fps_t_s < 1.0:
+            return self._fps
+        self._fps_t_s = now
         if len(self._frame_times) < 2:
-            return 0.0
-        span = self._frame_times[-1][0] - self._frame_times[0][0]
-        frames = sum(n for _, n in list(self._frame_times)[1:])
-        return frames / span if span > 0 else 0.0
+            self._fps = 0.0
+        else:
+            span = self._frame_times[-1][0] - self._frame_times[0][0]
+            frames = sum(n for _, n in list(self._frame_times)[1:])
+            self._fps = frames / span if span > 0 else 0.0
+        return self._fps
 
     @property
     def notices(self) -> deque[str]:

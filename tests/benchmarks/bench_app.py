@@ -29,11 +29,11 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-import devices  # noqa: E402
 from textual.app import App, ComposeResult  # noqa: E402
 from textual.containers import Horizontal, VerticalScroll  # noqa: E402
 from textual.widgets import Sparkline, Static  # noqa: E402
 
+import devices  # noqa: E402
 from protocol.link import Link  # noqa: E402
 from tui.app import PadtuneApp  # noqa: E402
 from tui.session_source import SessionSource  # noqa: E402
@@ -129,8 +129,8 @@ class TableApp(App[None]):
             if self.plain:
                 for row, v in zip(self.query(PlainRow), views, strict=False):
                     cells = list(row.query(Static))
-                    for cell, value in zip(cells, (v.name, v.reading, v.baseline, v.delta, v.noise_pp, v.state),
-                                           strict=True):
+                    values = (v.name, v.reading, v.baseline, v.delta, v.noise_pp, v.state)
+                    for cell, value in zip(cells, values, strict=True):
                         cell.update(str(value))
                     row.query_one(Sparkline).data = list(v.spark)
             else:
@@ -169,8 +169,9 @@ def main() -> int:
         for label, url, rate, target in boards:
             r = asyncio.run(run_app(url, rate, seconds))
             verdict = "within" if r["ui"] < target and r["fps"] >= 20 * 0.95 else "OVER"
-            print(f"  {label:15} app (UI thread) {r['ui'] * 100:5.1f} % of a core (target < {target * 100:.0f} %, "
-                  f"{verdict}); whole process incl. link and simulated board {r['proc'] * 100:5.1f} %; "
+            print(f"  {label:15} app (UI thread) {r['ui'] * 100:5.1f} % of a core "
+                  f"(target < {target * 100:.0f} %, {verdict}); whole process incl. link and simulated "
+                  f"board {r['proc'] * 100:5.1f} %; "
                   f"screen {r['fps']:4.1f} fps; frames handled {r['kept']:.2f}x the board's rate; "
                   f"lost {r['lost']}")
         url = "sim://grid64?seed=2"

@@ -49,7 +49,7 @@ class LinkView:
     baud: int
     state: str  # a protocol LinkState value
     fps: float
-    frames: int = 0
+    frames: int = field(default=0, compare=False)  # grows every frame: not a reason to redraw
     lost: int = 0
     garbled: int = 0
     bad_checksum: int = 0

@@ -19,13 +19,26 @@ class LinkStrip(Static):
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__("", id=id)
         self._last_plain: str | None = None
+        self._last_view: LinkView | None = None
+        self._last_compact = False
+        self._styles: dict[str, Style] | None = None
         self._last_state: str | None = None
 
+    def notify_style_update(self) -> None:
+        super().notify_style_update()
+        self._styles = None
+        self._last_view = None
+
     def show(self, view: LinkView) -> None:
-        styles: dict[str, Style] = {
-            role: self.get_component_rich_style(f"link-strip--{role}", partial=True) for role in ROLES
-        }
-        text = link_strip(view, styles, compact=self.app.size.width < 140)
+        compact = self.app.size.width < 140
+        if view == self._last_view and compact == self._last_compact:
+            return
+        self._last_view, self._last_compact = view, compact
+        if self._styles is None:
+            self._styles = {
+                role: self.get_component_rich_style(f"link-strip--{role}", partial=True) for role in ROLES
+            }
+        text = link_strip(view, self._styles, compact=compact)
         if text.plain == self._last_plain and view.state == self._last_state:
             return  # the same words: no update, so no layout pass
         self._last_plain, self._last_state = text.plain, view.state
