@@ -1,5 +1,7 @@
 """The detection state machine, worked by hand against ALGORITHM.md, and both engines on the same input."""
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 
@@ -116,3 +118,81 @@ def test_both_engines_expose_the_same_current_values():
         views.append((e.polarity, e.readings, e.baselines_fp, e.deltas, e.states, e.frames))
     assert views[0] == views[1]
     assert views[0][0] == [1, -1] and views[0][1] == [1200, 1700] and views[0][3] == [200, 300]
+
+
+EDGE = ChannelSettings(threshold_counts=100, hysteresis_counts=30, touch_debounce_frames=1,
+                       release_debounce_frames=1, baseline_slow_shift=16, baseline_fast_shift=16,
+                       baseline_period_frames=256)
+
+
+@pytest.mark.parametrize("cls", ENGINES)
+@pytest.mark.parametrize("polarity", [1, -1])
+def test_threshold_and_release_level_edges(cls, polarity):
+    # ALGORITHM.md step 3: a touch at delta >= T (exactly 100 counts), none at T - 1; while touched,
+    # delta exactly T - H (70) holds the touch, T - H - 1 (69) releases it (debounce 1 both ways).
+    deltas = [0, 99, 100, 70, 70, 69, 99, 100]
+    _e, events = run(cls, [5000 + polarity * d for d in deltas], EDGE, polarity=(polarity,))
+    assert [(type(ev), ev.index, ev.delta_counts) for ev in events] == [
+        (Touch, 2, 100), (Release, 5, 69), (Touch, 7, 100)]
+
+
+@pytest.mark.parametrize("cls", ENGINES)
+def test_delta_and_baseline_steps_truncate_toward_zero(cls):
+    # Hand-worked with period 1 and both shifts 1 (ALGORITHM.md steps 2 and 5, C99 division):
+    # frame 1 (1001) moves the baseline from 256000 by 256 / 2 = 128 to 256128 (1000.5 counts).
+    # Frame 2 (1000): delta = -128 / 256 = 0 in C (floor would say -1); the baseline then halves the gap
+    # 256064, 256032, ... 256002, 256001, and stays at 256001: -1 / 2 = 0 in C (floor: -1, reaching 256000).
+    s = ChannelSettings(threshold_counts=100, hysteresis_counts=0, baseline_slow_shift=1,
+                        baseline_fast_shift=1, baseline_period_frames=1)
+    e = cls(1, [s], [1])
+    seen = []
+    for k, r in enumerate([1000, 1001] + [1000] * 12):
+        e.process(block(np.array([r]), first_index=k))
+        seen.append((e.deltas[0], e.baselines_fp[0]))
+    assert seen[:4] == [(0, 256000), (1, 256128), (0, 256064), (0, 256032)]
+    assert [b for _, b in seen[-4:]] == [256001] * 4 and all(d == 0 for d, _ in seen[2:])
+
+
+@pytest.mark.parametrize("cls", ENGINES)
+def test_readings_at_the_int32_limits(cls):
+    # Readings span the whole int32 range (protocol/rules.py refuses wider ones): the delta of a jump from
+    # INT32_MIN to INT32_MAX is 2^32 - 1 counts, exact in int64 on both paths, either polarity.
+    lo, hi = -(2**31), 2**31 - 1
+    s = replace(EDGE, threshold_counts=1 << 24, hysteresis_counts=0)
+    _e, events = run(cls, [lo, hi, hi, lo], s)
+    assert events == [Touch(0, 1, 0.01, 2**32 - 1), Release(0, 3, 0.03, pytest.approx(0.02), 2, 0)]
+    e, events = run(cls, [hi, lo, lo, hi], s, polarity=(-1,))
+    assert [ev.delta_counts for ev in events] == [2**32 - 1, 0]
+    assert e.baselines_fp == [hi * 256]
+
+
+@pytest.mark.parametrize("cls", ENGINES)
+def test_settings_edited_mid_touch_keep_the_state_and_counts(cls):
+    # A live edit changes the rule from the next frame on; the state and the running count stay.
+    s = replace(EDGE, release_debounce_frames=3)
+    e = cls(1, [s], [1])
+    e.process(block(np.array([1000, 1200, 1200, 1050, 1050])))  # touched at 1, releasing: count 2 of 3
+    assert e.states == [KeyState.RELEASING]
+    e.set_settings(0, replace(s, release_debounce_frames=2))  # count 2 already meets the new 2 ...
+    events = e.process(block(np.array([1050]), first_index=5))  # ... and the next low frame makes 3
+    assert [(type(ev), ev.index, ev.held_frames) for ev in events] == [(Release, 5, 4)]
+    e.process(block(np.array([1200]), first_index=6))
+    assert e.states == [KeyState.TOUCHED]
+    e.set_settings(0, replace(s, threshold_counts=300, hysteresis_counts=50))  # release level now 250
+    events = e.process(block(np.array([1200]), first_index=7))
+    assert e.states == [KeyState.RELEASING] and events == []
+
+
+@pytest.mark.parametrize("cls", ENGINES)
+def test_rebaseline_mid_confirm_and_mid_release(cls):
+    s = replace(EDGE, touch_debounce_frames=3, release_debounce_frames=3)
+    e = cls(1, [s], [1])
+    e.process(block(np.array([1000, 1200, 1200])))  # confirming: 2 of 3
+    e.rebaseline()
+    events = e.process(block(np.array([1200, 1200, 1200, 1200]), first_index=3))
+    assert events == [Rebaselined(0, 3, 0.03, False)]  # the count is gone; 1200 is the new zero
+    e.process(block(np.array([1400, 1400, 1400, 1250]), first_index=7))  # touched at 9, releasing
+    assert e.states == [KeyState.RELEASING]
+    e.rebaseline(0)
+    events = e.process(block(np.array([1250, 1250]), first_index=11))
+    assert events == [Rebaselined(0, 11, 0.11, True)] and e.states == [KeyState.RELEASED]
