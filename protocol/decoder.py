@@ -15,9 +15,10 @@ from protocol.events import BoardInfo, Event, LinkStats
 from protocol.fastscan import Scan, ScanMismatch, scan
 from protocol.framing import Framer
 from protocol.rules import LineRules
+from protocol.smallbatch import decode_lines
 
 BATCH_BYTES = 1 << 18  # bounds the scan's temporary arrays (about 10 bytes per input byte)
-MIN_BATCH_LINES = 12  # below this the per-line way is cheaper than the fixed cost of a scan
+SCAN_MIN_BYTES = 10_000  # below this smallbatch's regex way beats the fixed cost of a scan
 
 
 class Decoder:
@@ -68,9 +69,8 @@ class Decoder:
 
     def _batch(self, buf: bytes) -> None:
         rules = self._rules
-        if buf.count(b"\n") < MIN_BATCH_LINES:
-            for line in buf[:-1].split(b"\n"):
-                rules.line(line)
+        if len(buf) < SCAN_MIN_BYTES:
+            decode_lines(buf[:-1].split(b"\n"), rules)
             return
         try:
             result = scan(buf, self.max_line_bytes)

@@ -244,3 +244,20 @@ def test_line_completed_in_a_later_chunk_takes_that_chunks_time(dec):
 def test_stats_count_bytes(dec):
     dec.feed(b"1 2\n3", 0.0)
     assert dec.stats.bytes_in == 5
+
+
+@pytest.mark.parametrize("scan_min_bytes", [0, 10**9], ids=["bulk-scan", "small-batch"])
+def test_clean_frames_take_the_bulk_ways(scan_min_bytes):
+    """Guard for the proofs: clean frames really go through the fast ways, not the per-line rules."""
+    from unittest import mock
+
+    import protocol.decoder as fast_module
+    from protocol.rules import LineRules
+
+    dec = Decoder()
+    data = stream([b"! proto=1 channels=3"] + [ck(b"@%d 1 2 3" % i) for i in range(50)])
+    with mock.patch.object(fast_module, "SCAN_MIN_BYTES", scan_min_bytes), \
+         mock.patch.object(LineRules, "frame", side_effect=AssertionError("per-line frame")) as per_line:
+        ev = dec.feed(data, 0.0)
+    assert per_line.call_count == 0
+    assert [f[0] for f in frames(ev)] == list(range(50))
