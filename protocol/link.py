@@ -24,7 +24,7 @@ from protocol.decoder import Decoder
 from protocol.encoder import REQUEST_INFO
 from protocol.errors import UserError
 from protocol.eventbuffer import EventBuffer
-from protocol.events import Event, FaultKind, LinkFault, LinkState, LinkStats, LinkStatus
+from protocol.events import BoardInfo, Event, FaultKind, LinkFault, LinkState, LinkStats, LinkStatus
 from protocol.opening import is_url, open_port
 from protocol.ports import UsbIdentity, find_usb, usb_identity
 
@@ -94,6 +94,15 @@ class Link:
     def baud_suspect(self) -> bool:
         """True when most bytes in the first 2 s after (re)opening were garbage: wrong baud rate?"""
         return self._baud_suspect
+
+    @property
+    def info(self) -> BoardInfo | None:
+        """The session's info as the board last described itself (merged info lines), or None."""
+        return self._decoder.info
+
+    @property
+    def channels(self) -> int | None:
+        return self._decoder.channels
 
     @property
     def stats(self) -> LinkStats:

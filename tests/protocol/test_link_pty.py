@@ -61,7 +61,7 @@ def test_frames_info_and_notes_arrive_in_order(board, link_of):
     assert kinds[:3] == ["LinkStatus", "BoardInfo", "Note"]
     stats = link.stats
     assert stats.frames == 200 and stats.lost == 0 and stats.garbled == 0 and link.connected
-    assert link._decoder.info.board == "greenhouse"
+    assert link.info.board == "greenhouse"
 
 
 def test_unplug_and_replug_keeps_the_session(board, link_of):
@@ -80,7 +80,7 @@ def test_unplug_and_replug_keeps_the_session(board, link_of):
     assert [s for s, _ in got.frames()] == list(range(100))
     stats = link.stats
     assert stats.frames == 100 and stats.lost == 0 and stats.garbled == 0  # the cut line was not glued on
-    assert link._decoder.info.board == "greenhouse"  # the session's info survived
+    assert link.info.board == "greenhouse"  # the session's info survived
     assert got.states() == [LinkState.CONNECTED, LinkState.DISCONNECTED, LinkState.RECONNECTING,
                             LinkState.RECONNECTED]
 
