@@ -183,6 +183,13 @@ def test_killed_writer_leaves_old_or_new_never_broken(tmp_path):
     (("[[group]]\nname = \"zones\"", "[[group]]"), "group[0].name: missing; give it a name"),
     (("format_version = 1\n", ""), "format_version: missing; add format_version = 1"),
     (("channels = 3\n", ""), "channels: missing; add the channel count"),
+    (('names = ["zone1", "zone2", "stop"]', 'names = ["zone1", 2, "stop"]'), "names: must be a list of channel names (strings)"),
+    (('board = "greenhouse-panel"', "board = 7"), "board: must be a string"),
+    (("format_version = 1", "xyzzy = 1\nformat_version = 1"), "xyzzy: unknown key; known keys: format_version, board"),
+    (('pads = ["zone1", "zone2", "stop"]\nwheel = true', 'pads = ["zone1"]\nwheel = false'), "slider[0].pads: a slider needs at least 2 pads"),
+    (('pads = ["zone1", "zone2", "stop"]', 'pads = ["zone1", "zone2", "pump"]'), "slider[0].pads: unknown channel 'pump'"),
+    (("threshold_counts = 200", "hysteresis_counts = -1"), "channel.stop.hysteresis_counts: must not be negative (-1)"),
+    (("min_snr_pp = 5.0", "baseline_min_counts = 5.5"), "limits.baseline_min_counts: must be a whole number, not 5.5"),
 ])
 def test_every_validation_error(tmp_path, edit, expected):
     old, new = edit
@@ -201,6 +208,9 @@ def test_wrong_table_shapes():
     raw["defaults"] = {}
     profile, found = profile_from_dict(raw)
     assert profile is None and {"group", "slider", "channel", "limits"} <= {key for key, _ in found}
+    raw.update(group=[1], slider=["x"], limits={})
+    assert ("group[0]", "must be a table") in profile_from_dict(raw)[1]
+    assert ("slider[0]", "must be a table") in profile_from_dict(raw)[1]
 
 
 def test_duplicate_group_and_slider_names(tmp_path):
