@@ -97,8 +97,9 @@ BINDINGS: list[Binding] = [
 ]
 
 
-# Actions that belong to the live screen (everything bound above except help and quit).
-_LIVE_ACTIONS = {b.action.split("(")[0] for b in BINDINGS} - {"help", "quit"}
+# Actions that are off while a dialog or another screen is on top: all but quit (help's own keys
+# then show in the footer instead of the live screen's).
+_COVERED_OFF = {b.action.split("(")[0] for b in BINDINGS} - {"quit"}
 
 
 def help_rows(bindings: Iterable[Binding] = BINDINGS) -> list[tuple[str, str, str]]:
@@ -438,9 +439,8 @@ class PadtuneApp(App[int]):
     def action_rebaseline(self, every: bool) -> None:
         if not self._has_channels():
             return
+        # The engine takes the next frame as the baseline and reports it; the log shows that event.
         self.source.rebaseline(None if every else self.cursor)
-        what = "all channels" if every else self.source.channel_names()[self.cursor]
-        self._log(f"re-baseline {what}")
 
     def action_toggle_detail(self) -> None:
         self.detail = not self.detail
@@ -474,7 +474,12 @@ class PadtuneApp(App[int]):
                 self._log(f"recording to {path}")
                 self.refresh_now_if_idle()
 
-        self.push_screen(PromptScreen("Record to file:", default, _writable_path), done)
+        def check(text: str) -> str | None:
+            if Path(text).expanduser().exists():
+                return f"{Path(text).expanduser()} exists: recordings are never overwritten, give a new name"
+            return _writable_path(text)
+
+        self.push_screen(PromptScreen("Record to file:", default, check), done)
 
     def action_mark(self) -> None:
         if not self.source.link_view().recording:
@@ -504,8 +509,10 @@ class PadtuneApp(App[int]):
         current = self.source.profile_path()
         default = str(current) if current else f"{self.source.link_view().board or 'board'}.toml"
 
+        asked: set[Path] = set()
+
         def check(text: str) -> str | None:
-            reason = _writable_path(text)
+            reason = _writable_path(text) or _replacing(text, current, asked, "the old one is kept as .bak")
             if reason:
                 return reason
             try:
@@ -536,8 +543,10 @@ class PadtuneApp(App[int]):
         current = self.source.profile_path()
         default = str(current.with_suffix(".h")) if current else "padtune_keys.h"
 
+        asked: set[Path] = set()
+
         def check(text: str) -> str | None:
-            reason = _writable_path(text)
+            reason = _writable_path(text) or _replacing(text, None, asked, "it will be replaced")
             if reason:
                 return reason
             try:
@@ -604,7 +613,7 @@ class PadtuneApp(App[int]):
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
         """Keys of the live screen do nothing while another screen (help, a prompt, the capture) is on top."""
         covered = bool(self.screen_stack) and self.screen is not self.screen_stack[0]
-        return not (covered and action in _LIVE_ACTIONS)
+        return not (covered and action.split("(")[0] in _COVERED_OFF)
 
     def get_system_commands(self, screen: Screen) -> Iterable[SystemCommand]:
         seen = set()
@@ -618,6 +627,15 @@ class PadtuneApp(App[int]):
 
     def on_unmount(self) -> None:
         self.source.close()
+
+
+def _replacing(text: str, current: Path | None, asked: set[Path], consequence: str) -> str | None:
+    """Ask once before replacing an existing file (other than the one in use): Enter again confirms."""
+    path = Path(text).expanduser().resolve()
+    if not path.exists() or path == current or path in asked:
+        return None
+    asked.add(path)
+    return f"{path.name} exists: press Enter again to replace it ({consequence}), or change the name"
 
 
 def _writable_path(text: str) -> str | None:

@@ -434,3 +434,31 @@ async def test_capture_wizard_opens_on_w() -> None:
         await pilot.press("escape")
         await pilot.pause()
         assert app.screen is app.screen_stack[0]
+
+
+async def test_save_as_and_export_ask_before_replacing_a_file(tmp_path: Path) -> None:
+    app, feed = make_app()
+    other = tmp_path / "other.toml"
+    other.write_text("# someone else's file\n")
+    header = tmp_path / "keys.h"
+    header.write_text("/* old */\n")
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("plus", "S")
+        await type_into_prompt(pilot, str(other))
+        assert "press Enter again" in str(app.screen.query_one("#prompt-error").render())
+        assert other.read_text() == "# someone else's file\n"
+        await pilot.press("enter")
+        await pilot.pause()
+        assert load_profile(other).settings_for(0).threshold_counts == 101
+        assert (tmp_path / "other.toml.bak").read_text() == "# someone else's file\n"
+        await pilot.press("x")
+        await type_into_prompt(pilot, str(header))
+        assert "press Enter again" in str(app.screen.query_one("#prompt-error").render())
+        await pilot.press("enter")
+        await pilot.pause()
+        assert "101" in header.read_text()
+        await pilot.press("r")
+        await type_into_prompt(pilot, str(header))
+        assert "never overwritten" in str(app.screen.query_one("#prompt-error").render())
+        await pilot.press("escape")

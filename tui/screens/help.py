@@ -11,14 +11,14 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import VerticalScroll
 from textual.screen import ModalScreen
-from textual.widgets import Static
+from textual.widgets import Footer, Static
 
 from tui.render.help import cautions_text, help_tables
 
 
 class HelpScreen(ModalScreen[None]):
     BINDINGS: ClassVar = [
-        Binding("escape,q,question_mark,f1", "dismiss", "Close help", id="help.close"),
+        Binding("escape,q,question_mark,f1", "dismiss", "close help", id="help.close", key_display="Esc"),
         Binding("down,j", "scroll('down')", "Scroll down", show=False),
         Binding("up,k", "scroll('up')", "Scroll up", show=False),
         Binding("pagedown,space", "scroll('page_down')", "Page down", show=False),
@@ -40,6 +40,7 @@ class HelpScreen(ModalScreen[None]):
             spaced = [item for table in tables for item in (table, Text(""))]
             yield Static(Group(*spaced), id="help-keys")
             yield Static(cautions_text(), id="help-safety")
+        yield Footer(compact=True, show_command_palette=False)
 
     def action_dismiss(self, result: None = None) -> None:  # type: ignore[override]
         self.dismiss(None)

@@ -60,8 +60,10 @@ class DetailPanel(Vertical):
     def show(self, name: str, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
              selected_key: str, events: Sequence[str], rate_hz: float | None) -> None:
         styles = {r: self.get_component_rich_style(f"detail-panel--{r}", partial=True) for r in self.ROLES}
-        mode = "noise spectrum of the untouched delta (f: back to the plot)" if spectrum is not None else \
-            "reading ⣿  baseline ·  threshold =  release -  (f: noise spectrum)"
+        if spectrum is not None:
+            mode = f"noise spectrum of the untouched delta: {spectrum.summary} (f: back to the plot)"
+        else:
+            mode = "reading ⣿  baseline ·  threshold =  release -  (f: noise spectrum)"
         self.query_one("#detail-title", Static).update(Text(f"{name}: {mode}", no_wrap=True))
         settings_lines = settings_text(settings, selected_key, styles, rate_hz)
         self.query_one("#detail-settings", Static).update(settings_lines)
@@ -83,7 +85,6 @@ class DetailPanel(Vertical):
             freq, amp = _thin(spectrum.freq_hz, points), _thin(spectrum.amplitude_counts, points)
             plt.plot(freq.tolist(), amp.tolist(), label="amplitude (counts)", marker="braille")
             plt.xlabel("Hz")
-            plt.title(spectrum.summary)
         elif series is not None and len(series.t_s) > 1:
             t = _thin(series.t_s - series.t_s[-1], points)
             reading = _thin(series.reading, points)
