@@ -64,6 +64,8 @@ def board_from_url(url: str) -> tuple[SimBoard, float, float]:
         random_per_min=_number("random", one["random"]) if "random" in one else None,
     )
     backlog_s = _number("backlog_s", one.get("backlog_s", str(MAX_BACKLOG_S)))
+    if not 0.0 < backlog_s <= 3600.0:  # also refuses nan
+        raise UserError(f"sim:// option backlog_s={backlog_s:g}: use more than 0 and at most 3600 s")
     packet_s = _number("packet_ms", one.get("packet_ms", str(PACKET_S * 1e3))) / 1e3
     if not 0.0 <= packet_s <= 1.0:
         raise UserError(f"sim:// option packet_ms={packet_s * 1e3:g}: use 0 to 1000 ms")

@@ -11,6 +11,7 @@ the key NAME (or a channel number), `+NAME=0.7` presses it lightly; `-NAME` rele
 from __future__ import annotations
 
 import math
+import numbers
 import time
 from collections.abc import Callable
 
@@ -25,6 +26,8 @@ from protocol import encoder
 from protocol.errors import UserError
 
 SEQ_MODULO = 65536
+MAX_SEED = 2**63 - 1
+MAX_RANDOM_PER_MIN = 600.0  # ten touches a second: more than any hand, enough for load tests
 MAX_BLOCK_FRAMES = 4096  # bounds memory when a slow reader asks for a long stretch at once
 _JUNK = bytes(range(0x80, 0x100))
 
@@ -36,8 +39,7 @@ class SimBoard:
                  faults: FaultPlan | None = None, clock: Callable[[], float] = time.monotonic,
                  checksum: bool = True, script: bool = True, random_per_min: float | None = None) -> None:
         self.spec = load_board(spec) if isinstance(spec, str) else spec
-        if not 0.001 <= speed <= 1000:
-            raise UserError(f"speed {speed:g} is out of range; use a factor from 0.001 to 1000")
+        _check_run_options(seed, speed, random_per_min)
         self.seed, self.speed, self.clock, self.checksum = seed, speed, clock, checksum
         self.faults = faults or FaultPlan()
         self.touches = TouchPlan(self.spec, seed, script=script, random_per_min=random_per_min)
@@ -281,6 +283,17 @@ class SimBoard:
         Defaults to the time generated so far.
         """
         return self.touches.truth(self.generated_s if until_s is None else until_s)
+
+
+def _check_run_options(seed: int, speed: float, random_per_min: float | None) -> None:
+    """One-line UserErrors for run options a user typed (CLI flags, sim:// URL options)."""
+    if isinstance(seed, bool) or not isinstance(seed, numbers.Integral) or not 0 <= seed <= MAX_SEED:
+        raise UserError(f"seed {seed!r} is out of range; use a whole number from 0 to {MAX_SEED}")
+    if not 0.001 <= speed <= 1000:  # also refuses nan
+        raise UserError(f"speed {speed:g} is out of range; use a factor from 0.001 to 1000")
+    if random_per_min is not None and not 0.0 <= random_per_min <= MAX_RANDOM_PER_MIN:
+        raise UserError(f"random touches {random_per_min:g} per minute is out of range; use 0 to "
+                        f"{MAX_RANDOM_PER_MIN:g}")
 
 
 def _rewidth(readings: np.ndarray, width: int) -> np.ndarray:

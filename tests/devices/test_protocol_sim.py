@@ -32,6 +32,10 @@ def test_handler_module_imports_and_parses_options():
     ("sim://greenhouse?fault=explode", "unknown fault"),
     ("sim://glasshouse", "unknown board"),
     ("sim://greenhouse?packet_ms=5000", "use 0 to 1000 ms"),
+    ("sim://greenhouse?seed=-1", "seed -1 is out of range"),
+    ("sim://greenhouse?random=nan", "random touches nan per minute is out of range"),
+    ("sim://greenhouse?backlog_s=nan", "backlog_s=nan"),
+    ("sim://greenhouse?backlog_s=-1", "backlog_s=-1"),
 ])
 def test_bad_urls_are_one_line_errors(url, words):
     with pytest.raises(UserError) as err:

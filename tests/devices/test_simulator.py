@@ -193,3 +193,32 @@ def test_no_checksum_mode_and_speed_validation():
     assert decode(data)[0].stats.frames == 31
     with pytest.raises(UserError, match="speed"):
         SimBoard("greenhouse", speed=0)
+
+
+@pytest.mark.parametrize("args, words", [
+    (["--seed", "-1"], "seed -1 is out of range"),
+    (["--speed", "nan"], "speed nan is out of range"),
+    (["--random", "-2"], "random touches -2 per minute"),
+    (["--duration", "nan"], "--duration must be a number of seconds above zero"),
+    (["--duration", "0"], "--duration must be a number of seconds above zero"),
+    (["--fault", "drop:2"], "the rate must be a number from 0 to 1"),
+])
+def test_padtune_sim_option_mistakes_are_one_line(capsys, args, words):
+    from tui.cli import main
+
+    code = main(["sim", "greenhouse", *args])
+    err = capsys.readouterr().err
+    assert code == 2 and words in err and len(err.strip().splitlines()) == 1, err
+
+
+def test_padtune_sim_broken_board_file_is_one_line(capsys, tmp_path):
+    from devices.boards import BOARDS_DIR
+    from tui.cli import main
+
+    bad = tmp_path / "panel.toml"
+    good = (BOARDS_DIR / "greenhouse.toml").read_text()
+    bad.write_text(good.replace('material = "polycarbonate"', 'material = "polycarbonat"'))
+    assert main(["sim", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("padtune: panel.toml: overlay.material:") and "did you mean polycarbonate" in err
+    assert len(err.strip().splitlines()) == 1

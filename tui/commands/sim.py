@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import math
 import os
 import signal
 import sys
@@ -65,10 +66,8 @@ def run(args: argparse.Namespace) -> int:
         return 0
     if not args.board:
         raise UserError("name a board to serve, e.g. `padtune sim greenhouse` (see `padtune sim --list`)")
-    if args.random is not None and args.random < 0:
-        raise UserError("--random is touches per minute: 0 or more")
-    if args.duration is not None and args.duration <= 0:
-        raise UserError("--duration must be above zero seconds")
+    if args.duration is not None and not 0 < args.duration < math.inf:  # also refuses nan
+        raise UserError(f"--duration must be a number of seconds above zero, got {args.duration:g}")
     board = SimBoard(args.board, seed=args.seed, speed=args.speed, faults=FaultPlan.parse(args.fault),
                      checksum=not args.no_checksum, script=not args.no_script, random_per_min=args.random)
     server = PtyServer(board)
