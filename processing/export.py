@@ -24,7 +24,9 @@ def _stamp(now: dt.datetime | None) -> str:
 
 
 def _c_comment(text: str) -> str:
-    return text.replace("*/", "* /")
+    """Free text made safe inside a one-line C block comment (no comment marks, no control characters)."""
+    flat = "".join(ch if ch.isprintable() else " " for ch in text)
+    return flat.replace("*/", "* /").replace("/*", "/ *")
 
 
 def _polarity(profile: Profile, channel: int) -> int:

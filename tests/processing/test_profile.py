@@ -8,6 +8,7 @@ import stat
 import subprocess
 import sys
 import textwrap
+from dataclasses import replace
 
 import pytest
 
@@ -253,6 +254,24 @@ def test_c_header_compiles_and_names_the_profile(tmp_path):
     subprocess.run([cc, "-std=c99", "-Wall", "-Wextra", "-pedantic", "-Werror", "-o", str(tmp_path / "m"),
                     str(main)], check=True, cwd=tmp_path)
     assert subprocess.run([str(tmp_path / "m")]).returncode == 0
+
+
+def test_c_header_comment_survives_any_board_id(tmp_path):
+    # A board id is free text in the profile; in the header's comment a "/*" would trip -Wcomment (an
+    # error under -Werror), a "*/" would end the comment early and a newline would split the line.
+    import shutil
+    nasty = replace(greenhouse(), board="gh/*x*/\n#error y\tz")
+    text = c_header_text(nasty, "a*/b.toml")
+    head = text.split("#ifndef", 1)[0]
+    assert "\n#error" not in head and head.count("\n") == 3
+    assert head.count("/*") == 1 and head.count("*/") == 1 and "\t" not in head
+    cc = shutil.which("cc") or shutil.which("gcc")
+    if cc is None:
+        pytest.skip("no C compiler here to check the header compiles")
+    (tmp_path / "p.h").write_text(text)
+    (tmp_path / "main.c").write_text('#include "p.h"\nint main(void) { return padtune_channels[0].polarity - 1; }\n')
+    subprocess.run([cc, "-std=c99", "-Wall", "-Wextra", "-pedantic", "-Werror", "-o", str(tmp_path / "m"),
+                    str(tmp_path / "main.c")], check=True, cwd=tmp_path)
 
 
 def test_json_export(tmp_path):
