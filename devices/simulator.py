@@ -28,6 +28,8 @@ from protocol.errors import UserError
 SEQ_MODULO = 65536
 MAX_SEED = 2**63 - 1
 MAX_RANDOM_PER_MIN = 600.0  # ten touches a second: more than any hand, enough for load tests
+MAX_NOTE_CHARS = 400  # well inside protocol v1's 1024-byte line with its prefix and checksum
+MAX_ECHO_CHARS = 40  # how much of a bad host command an error note quotes back
 MAX_BLOCK_FRAMES = 4096  # bounds memory when a slow reader asks for a long stretch at once
 _JUNK = bytes(range(0x80, 0x100))
 
@@ -73,7 +75,7 @@ class SimBoard:
             raise UserError(f"channel {index} does not exist; {self.spec.name} has 0..{len(names) - 1}")
         if name_or_index in names:
             return names.index(name_or_index)
-        raise UserError(f"{self.spec.name} has no pad {name_or_index!r}; pads: {', '.join(names)}")
+        raise UserError(f"{self.spec.name} has no pad {_clip(name_or_index)!r}; pads: {', '.join(names)}")
 
     def _unit_faults(self) -> UnitFaults:
         f = self.faults
@@ -104,7 +106,10 @@ class SimBoard:
         return encoder.encode_info(self.info_fields(), checksum=self.checksum)
 
     def _note(self, text: str) -> None:
-        plain = text.encode("ascii", "replace").decode("ascii")  # a user's board file may say anything
+        # A board file or a host's command may say anything: one ASCII line that fits the protocol.
+        plain = " ".join(text.encode("ascii", "replace").decode("ascii").split())
+        if len(plain) > MAX_NOTE_CHARS:
+            plain = plain[: MAX_NOTE_CHARS - 3] + "..."
         self._pending += encoder.encode_note(plain, checksum=self.checksum)
         self.injected.notes += 1
 
@@ -261,9 +266,10 @@ class SimBoard:
                     raise UserError("strength must be above 0 and at most 3")
                 self.press(target, text[0] == "+", strength)
             except (UserError, ValueError) as exc:
-                self._note(f"error: {text!r}: {exc}")
+                self._note(f"error: {_clip(text)!r}: {exc}")
             return
-        self._note(f"error: unknown command {text!r}; commands: ?, +PAD, +PAD=STRENGTH, -PAD, -*")
+        self._note(f"error: unknown command {_clip(text)!r}; commands: ?, +PAD, +PAD=STRENGTH, -PAD, "
+                   "-* (lift all)")
 
     def press(self, channel: str | int, pressed: bool = True, strength: float = 1.0) -> None:
         """Put a finger on a pad (or lift it) from the next frame on."""
@@ -283,6 +289,10 @@ class SimBoard:
         Defaults to the time generated so far.
         """
         return self.touches.truth(self.generated_s if until_s is None else until_s)
+
+
+def _clip(text: str) -> str:
+    return text if len(text) <= MAX_ECHO_CHARS else text[: MAX_ECHO_CHARS - 3] + "..."
 
 
 def _check_run_options(seed: int, speed: float, random_per_min: float | None) -> None:

@@ -32,6 +32,8 @@ from protocol.errors import UserError
 BOARDS_DIR = pathlib.Path(__file__).parent
 MAX_LINE_BYTES = 1024  # protocol v1's line limit (protocol/PROTOCOL.md)
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_.-]{0,31}$")
+_FW_RE = re.compile(r"^[A-Za-z0-9_.+-]{1,32}$")  # goes into the info line: no spaces, commas or '='
+MAX_DESCRIPTION_CHARS = 200  # the boot comment line carries it
 _TOP = {"board", "method", "overlay", "finger", "pad_defaults", "pad", "pad_grid", "slider", "noise",
         "script"}
 
@@ -92,6 +94,14 @@ class _Parser:
                 hint = f" (did you mean {close[0]}?)" if close else ""
                 raise self.fail(f"{where}.{k}", f"unknown key{hint}; known: {', '.join(sorted(allowed))}")
 
+    def tables(self, value: object, where: str, example: str) -> list[dict]:
+        """A TOML array of tables (`[[slider]]`, `[[script.touch]]`): anything else is one clear line."""
+        if value is None:
+            return []
+        if not isinstance(value, list) or not all(isinstance(t, dict) for t in value):
+            raise self.fail(where, f"must be a list of tables, written {example}")
+        return value
+
     def num(self, table: dict, where: str, key: str, default: float | None = None, *, low: float = 0.0,
             high: float = math.inf, inclusive_low: bool = True) -> float:
         if key not in table:
@@ -111,6 +121,26 @@ class _Parser:
         value = table.get(key, default)
         if not isinstance(value, str) or not value:
             raise self.fail(f"{where}.{key}", "must be a non-empty string")
+        return value
+
+    def whole(self, table: dict, where: str, key: str, low: int, high: int) -> int:
+        value = self.num(table, where, key, low=low, high=high)
+        if value != int(value):
+            raise self.fail(f"{where}.{key}", f"must be a whole number, got {value:g}")
+        return int(value)
+
+    def one_line(self, table: dict, where: str, key: str, default: str) -> str:
+        value = self.text(table, where, key, default)
+        if "\n" in value or "\r" in value or len(value) > MAX_DESCRIPTION_CHARS:
+            raise self.fail(f"{where}.{key}", f"must be one line of at most {MAX_DESCRIPTION_CHARS} "
+                            "characters")
+        return value
+
+    def fw(self, table: dict) -> str:
+        value = self.text(table, "board", "fw", "sim-1")
+        if not _FW_RE.match(value):
+            raise self.fail("board.fw", f"{value!r} is not a plain version (letters, digits, _ . + -; "
+                            "at most 32 characters; no spaces)")
         return value
 
     def name(self, table: dict, where: str, key: str = "name") -> str:
@@ -134,8 +164,8 @@ class _Parser:
                             f"{MAX_LINE_BYTES} bytes with this method's readings; use fewer pads")
         sliders = self.sliders(data, names)
         return BoardSpec(
-            name=self.name(b, "board"), description=self.text(b, "board", "description", "a simulated board"),
-            fw=self.text(b, "board", "fw", "sim-1"),
+            name=self.name(b, "board"),
+            description=self.one_line(b, "board", "description", "a simulated board"), fw=self.fw(b),
             rate_hz=self.num(b, "board", "rate_hz", low=1.0, high=5000.0),
             method=method, overlay=self.overlay(data), finger=self.finger(data), pads=tuple(pads),
             sliders=tuple(sliders), noise=self.noise(data),
@@ -189,8 +219,8 @@ class _Parser:
         out: list[PadSpec] = []
         if "pad_grid" in data:
             g = self.table(data, "pad_grid", {"rows", "cols", "pitch_mm", "prefix"})
-            rows = int(self.num(g, "pad_grid", "rows", low=1, high=64))
-            cols = int(self.num(g, "pad_grid", "cols", low=1, high=64))
+            rows = self.whole(g, "pad_grid", "rows", 1, 64)
+            cols = self.whole(g, "pad_grid", "cols", 1, 64)
             pitch = self.num(g, "pad_grid", "pitch_mm", low=1, high=100)
             prefix = self.text(g, "pad_grid", "prefix", "k")
             area, parasitic = self.pad({}, "pad_defaults", defaults)
@@ -222,7 +252,7 @@ class _Parser:
 
     def sliders(self, data: dict, names: list[str]) -> list[SliderSpec]:
         out = []
-        for i, t in enumerate(data.get("slider", [])):
+        for i, t in enumerate(self.tables(data.get("slider"), "slider", "[[slider]]")):
             where = f"slider[{i}]"
             self.check_keys(t, where, {"name", "pads"})
             pads = t.get("pads")
@@ -230,7 +260,12 @@ class _Parser:
                 raise self.fail(f"{where}.pads", "must list two or more pad names, in order along it")
             for p in pads:
                 self.known_pad(p, f"{where}.pads", names)
-            out.append(SliderSpec(self.name(t, where), tuple(pads)))
+            if len(set(pads)) != len(pads):
+                raise self.fail(f"{where}.pads", "names a pad twice; each pad lies once along a slider")
+            name = self.name(t, where)
+            if name in {s.name for s in out}:
+                raise self.fail(f"{where}.name", f"the slider name {name!r} is used twice")
+            out.append(SliderSpec(name, tuple(pads)))
         return out
 
     def known_pad(self, pad: object, where: str, names: list[str]) -> str:
@@ -248,13 +283,16 @@ class _Parser:
             raise self.fail("noise.mains_hz", f"must be 50 or 60, got {values['mains_hz']:g}")
         if values["temp_period_s"] <= 0:
             raise self.fail("noise.temp_period_s", "must be > 0")
+        if values["crosstalk"] > 1:
+            raise self.fail("noise.crosstalk", f"is the fraction of a touched pad's signal a neighbour sees: "
+                            f"0 to 1, got {values['crosstalk']:g}")
         return NoiseSpec(**values)
 
     def script(self, data: dict, names: list[str], sliders: list[SliderSpec]) -> list[ScriptTouch]:
         s = self.table(data, "script", {"loop_s", "touch", "random"}, required=False)
         by_slider = {sl.name: sl for sl in sliders}
         out = []
-        for i, t in enumerate(s.get("touch", [])):
+        for i, t in enumerate(self.tables(s.get("touch"), "script.touch", "[[script.touch]]")):
             where = f"script.touch[{i}]"
             self.check_keys(t, where, {"pad", "slider", "water", "at_s", "hold_s", "strength", "from", "to",
                                        "wet_area_mm2", "who", "body_pf"})

@@ -122,3 +122,37 @@ def test_script_who_touches(tmp_path):
     assert load_board(write(tmp_path, base)).script[0].body_f is None
     with pytest.raises(UserError, match="use standing or isolated"):
         load_board(write(tmp_path, base + "who = \"ghost\"\n"))
+
+
+@pytest.mark.parametrize("extra, words", [
+    ("[slider]\nname = \"s\"\npads = [\"a\", \"b\"]\n", "slider: must be a list of tables"),
+    ("[[slider]]\nname = \"s\"\npads = [\"a\", \"a\"]\n", "names a pad twice"),
+    ("[[slider]]\nname = \"s\"\npads = [\"a\", \"b\"]\n[[slider]]\nname = \"s\"\npads = [\"b\", \"a\"]\n",
+     "the slider name 's' is used twice"),
+    ("[script]\ntouch = 3\n", "script.touch: must be a list of tables"),
+    ("[script]\n[script.touch]\npad = \"a\"\nat_s = 1\nhold_s = 1\n", "script.touch: must be a list"),
+    ("[noise]\ncrosstalk = 5\n", "noise.crosstalk: is the fraction"),
+])
+def test_structure_mistakes_are_one_line(tmp_path, extra, words):
+    with pytest.raises(UserError) as err:
+        load_board(write(tmp_path, GOOD + extra))
+    assert words in str(err.value) and "\n" not in str(err.value), str(err.value)
+
+
+@pytest.mark.parametrize("change, words", [
+    (("name = \"mini\"", "name = \"mini\"\nfw = \"v 1=2\""), "board.fw: 'v 1=2' is not a plain version"),
+    (("name = \"mini\"", "name = \"mini\"\ndescription = \"two\\nlines\""), "must be one line"),
+    (("name = \"mini\"", "name = \"mini\"\ndescription = \"" + "x" * 300 + "\""), "at most 200"),
+])
+def test_text_that_goes_on_the_wire_is_checked(tmp_path, change, words):
+    # The info line cannot carry spaces in a value and a comment is one line of at most 1024 bytes
+    # (protocol/PROTOCOL.md): a board file that would break them is refused when it is read.
+    with pytest.raises(UserError) as err:
+        load_board(write(tmp_path, GOOD.replace(*change, 1)))
+    assert words in str(err.value), str(err.value)
+
+
+def test_grid_rows_must_be_whole(tmp_path):
+    text = GOOD.split("[[pad]]")[0] + "[pad_grid]\nrows = 2.5\ncols = 2\npitch_mm = 10\n"
+    with pytest.raises(UserError, match=r"pad_grid\.rows: must be a whole number"):
+        load_board(write(tmp_path, text))

@@ -222,3 +222,15 @@ def test_padtune_sim_broken_board_file_is_one_line(capsys, tmp_path):
     err = capsys.readouterr().err
     assert err.startswith("padtune: panel.toml: overlay.material:") and "did you mean polycarbonate" in err
     assert len(err.strip().splitlines()) == 1
+
+
+def test_long_host_lines_are_answered_in_one_protocol_line():
+    # protocol v1 lines are at most 1024 bytes (protocol/PROTOCOL.md): a host that sends a very long
+    # line gets a short error comment back, and the board goes on.
+    board = SimBoard("greenhouse", seed=2)
+    board.take()
+    board.write(b"+" + b"x" * 3000 + b"\n" + b"hello" * 600 + b"\n")
+    d, events, _ = decode(board.take() + board.run_for(0.5))
+    notes = [e.text for e in events if isinstance(e, Note)]
+    assert len(notes) == 2 and all(n.startswith("error:") and len(n) < 500 for n in notes)
+    assert d.stats.overlong == d.stats.garbled == 0 and d.stats.frames > 20
