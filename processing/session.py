@@ -65,6 +65,7 @@ class Session:
         self.sliders: list[Slider] = []
         self.notices: deque[str] = deque(maxlen=50)  # things the user should know (mismatched profile, ...)
         self._profile: Profile | None = profile
+        self._edited: dict[int, Profile] = {}  # by width: the profile with live edits, kept across rebuilds
         self._rate_declared = False
 
     # ------------------------------------------------------------ state for front ends
@@ -108,10 +109,12 @@ class Session:
             raise ValueError(f"no channel {channel}: the board has {self.engine.channels}")
         self.engine.set_settings(channel, settings)
         self._profile = self._profile.with_settings(channel, settings)
+        self._edited[self._profile.channels] = self._profile
 
     def apply_profile(self, profile: Profile) -> None:
         """Use a (newly loaded) profile: rebuilds now when the width is known, else on the first frames."""
         self.requested_profile = self._profile = profile
+        self._edited.clear()
         if self.engine is not None:
             self._build(self.engine.channels)
 
@@ -195,7 +198,7 @@ class Session:
 
     def _build(self, channels: int) -> None:
         """A fresh engine (baselines from the next frame) and measures for `channels` channels."""
-        info, wanted = self.info, self.requested_profile
+        info, wanted = self.info, self._edited.get(channels, self.requested_profile)
         names = tuple(info.names) if info and len(info.names) == channels else ()
         board = (info.board if info else None) or (wanted.board if wanted else "")
         rate = (info.rate_hz if info else None) or (wanted.rate_hz if wanted else None)

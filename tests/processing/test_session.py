@@ -146,3 +146,19 @@ def test_info_without_proto_updates_keys_and_keeps_the_rest():
     rows[:, 1] -= 300  # polarity -1: a drop is a touch
     out = s.handle([frames(rows, 40)])
     assert [type(ev) for ev in out] == [Touch] and out[0].channel == 1
+
+
+def test_live_edits_survive_a_rebuild_for_the_same_width():
+    # "Loses nothing": a board that briefly sends another width (BoardChanged there and back) or a new
+    # polarity rebuilds the engine; the settings edited live come back with the width they were made for.
+    p = Profile(names=NAMES, defaults=ChannelSettings(threshold_counts=80))
+    s = Session(p)
+    s.handle([info(), quiet(20)])
+    edited = ChannelSettings(threshold_counts=45, hysteresis_counts=5)
+    s.set_channel_settings(3, edited)
+    s.handle([BoardChanged(1.0, 4, 6), quiet(10, width=6, first_index=20)])
+    assert s.settings(5).threshold_counts == 80
+    s.handle([BoardChanged(2.0, 6, 4), quiet(10, first_index=30)])
+    assert s.settings(3) == edited and s.engine.settings[3] == edited
+    s.handle([info(t_s=3.0, polarity=(-1,)), quiet(10, first_index=40)])  # polarity now given: rebuilt
+    assert s.engine.polarity == [-1] * 4 and s.settings(3) == edited
