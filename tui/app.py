@@ -185,7 +185,11 @@ class PadtuneApp(App[int]):
         self._tick_count += 1
         self._log_tick(tick)
         with self.batch_update():
-            self._main(LinkStrip).show(self._link_view())
+            view = self._link_view()
+            self._main(LinkStrip).show(view)
+            # Rows that stopped updating look it: the board is away or silent.
+            stale = view.state in ("disconnected", "reconnecting") or view.silent_s is not None
+            self._table.set_class(stale, "-stale")
             if not self.paused:
                 self._draw()
 

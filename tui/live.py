@@ -25,7 +25,7 @@ def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = Fal
     link.start()  # UserError (one line) when the port cannot be opened
     try:
         source = SessionSource(link, profile=profile, profile_path=profile_path, port=target, baud=baud,
-                               simulated=target.startswith("sim://"))
+                               simulated=demo or target.startswith("sim://"))
         app = PadtuneApp(source, demo=demo)
         app.run()
     finally:

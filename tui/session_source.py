@@ -62,6 +62,7 @@ class SessionSource:
         self._quality_t_s = -1e9
         self._status_detail = ""
         self._fps, self._fps_t_s = 0.0, -1e9
+        self._last_frame_t_s: float | None = None
         self._recorder: RecordingWriter | None = None
 
     # -- data in ----------------------------------------------------------------------------------
@@ -86,6 +87,8 @@ class SessionSource:
         if self._recorder is not None:
             self._recorder.write_events(events)
         now = self.clock()
+        if tick.frames:
+            self._last_frame_t_s = now
         self._frame_times.append((now, tick.frames))
         while self._frame_times and now - self._frame_times[0][0] > 2.0:
             self._frame_times.popleft()
@@ -190,7 +193,15 @@ class SessionSource:
             detail=self._status_detail, board=(info.board if info else None),
             recording=str(self._recorder.path) if self._recorder else None,
             profile_name=path.name if path else "(not saved yet)", unsaved=self.unsaved(),
+            silent_s=self._silent_s(),
         )
+
+    def _silent_s(self) -> int | None:
+        """Whole seconds since the last frame, once that is over two seconds (a stalled board)."""
+        if self._last_frame_t_s is None:
+            return None
+        gap = self.clock() - self._last_frame_t_s
+        return int(gap) if gap >= 2.0 else None
 
     def series(self, channel: int) -> Series | None:
         m, e = self.session.measures, self.session.engine

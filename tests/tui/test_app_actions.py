@@ -462,3 +462,18 @@ async def test_save_as_and_export_ask_before_replacing_a_file(tmp_path: Path) ->
         await type_into_prompt(pilot, str(header))
         assert "never overwritten" in str(app.screen.query_one("#prompt-error").render())
         await pilot.press("escape")
+
+
+async def test_a_silent_board_is_flagged_and_its_rows_look_stale() -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        for _ in range(30):  # three seconds without a frame
+            feed.t_s += 0.1
+            app.refresh_now()
+        await pilot.pause()
+        assert "NO FRAMES for 3 s" in screen_text(app)
+        assert app.query_one("#table").has_class("-stale")
+        run(app, feed, 0.2)
+        assert "NO FRAMES" not in screen_text(app)
+        assert not app.query_one("#table").has_class("-stale")

@@ -13,4 +13,9 @@ def default_command(args: argparse.Namespace) -> int:
     target = PortPickerApp(scan_choices).run()
     if not target:
         return 0
-    return run_live(target, 115200, None, demo=target.startswith("sim://"))
+    start = None
+    if target.startswith("sim://"):
+        from tui.demo_profile import demo_profile
+
+        start = demo_profile(target.removeprefix("sim://").split("?")[0])
+    return run_live(target, 115200, None, demo=target.startswith("sim://"), start_profile=start)

@@ -14,9 +14,12 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("port", metavar="PORT_OR_URL", help="serial device path or URL")
     p.add_argument("--baud", type=int, default=115200, help="baud rate (default 115200)")
     p.add_argument("--profile", help="profile TOML file to load settings from")
+    p.add_argument("--press-keys", action="store_true",
+                   help="the board takes +KEY / -KEY lines (a simulated board on a pseudo-terminal): let "
+                   "keys 1-9, 0, p and t press its keys")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
     return run_live(args.port, check_baud(args.baud), check_profile_arg(args.profile),
-                    demo=args.port.startswith("sim://"))
+                    demo=args.press_keys or args.port.startswith("sim://"))

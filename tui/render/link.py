@@ -25,9 +25,12 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
     if view.paused:
         text.append("⏸ DISPLAY PAUSED", pick(styles, "warn"))
         text.append_text(sep)
+    if view.silent_s is not None and role == "good":
+        glyph, word, role = "●", f"connected, NO FRAMES for {view.silent_s} s", "warn"
     text.append(f"{glyph} {word}", pick(styles, role))
-    if view.detail and role != "good":
-        text.append(f" ({view.detail})", pick(styles, role))
+    if view.detail and role == "bad":
+        detail = view.detail if len(view.detail) <= 40 else view.detail[:39] + "…"
+        text.append(f" ({detail})", pick(styles, role))
     text.append_text(sep)
     text.append(view.port, pick(styles, "name"))
     text.append(f" {view.baud} Bd")

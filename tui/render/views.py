@@ -61,4 +61,5 @@ class LinkView:
     profile_name: str = "(defaults)"
     unsaved: bool = False
     paused: bool = False
+    silent_s: int | None = None  # whole seconds without a frame while connected (None: frames arrive)
     extra: dict[str, int] = field(default_factory=dict)

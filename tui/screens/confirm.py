@@ -1,4 +1,8 @@
-"""A yes/no question (quit with unsaved edits, overwrite a file): `y` or Enter yes, `n` or Esc no."""
+"""A yes/no question (quit with unsaved edits, drop them for another profile): `y` yes, `n` or Esc no.
+
+Enter is deliberately not an answer: these questions guard against losing work, so a reflex
+Enter must not say yes.
+"""
 
 from __future__ import annotations
 
@@ -13,7 +17,7 @@ from textual.widgets import Static
 
 class ConfirmScreen(ModalScreen[bool]):
     BINDINGS: ClassVar = [
-        Binding("y,enter", "answer(True)", "Yes", id="confirm.yes"),
+        Binding("y", "answer(True)", "Yes", id="confirm.yes"),
         Binding("n,escape", "answer(False)", "No", id="confirm.no"),
     ]
 
@@ -25,7 +29,7 @@ class ConfirmScreen(ModalScreen[bool]):
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog"):
             yield Static(self._question, classes="dialog-question")
-            yield Static(f"[y / Enter] {self._yes}    [n / Esc] {self._no}", classes="dialog-keys",
+            yield Static(f"[y] {self._yes}    [n / Esc] {self._no}", classes="dialog-keys",
                          markup=False)
 
     def action_answer(self, yes: bool) -> None:
