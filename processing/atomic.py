@@ -59,8 +59,11 @@ def _sweep_stale(folder: Path, name: str) -> None:
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes, keep_backup: bool = True) -> None:
-    """Replace `path` with `data` atomically (OSError propagates; the old file is then untouched)."""
-    target = Path(path)
+    """Replace `path` with `data` atomically (OSError propagates; the old file is then untouched).
+
+    A symlink is followed: the file it points to is replaced, and the link stays a link.
+    """
+    target = Path(os.path.realpath(path))
     folder = target.parent if str(target.parent) else Path(".")
     try:
         mode = target.stat().st_mode & 0o7777

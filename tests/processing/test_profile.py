@@ -290,3 +290,17 @@ def test_readme_example_profile_loads(tmp_path):
     p = load_profile(write(tmp_path, example))
     assert p.channels == 6 and p.settings_for(4).threshold_counts == 160 and p.groups[0].name == "zones"
     assert p.limits.min_snr_pp == 5.0 and p.sliders[0].pads == (1, 2, 5)
+
+
+def test_save_through_a_symlink_keeps_the_link(tmp_path):
+    # A profile kept elsewhere and linked in: saving writes the real file (and its .bak beside it),
+    # the link stays a link.
+    (tmp_path / "real").mkdir()
+    real, link = tmp_path / "real" / "p.toml", tmp_path / "p.toml"
+    first = profile_for(2, ("a", "b"))
+    save_profile(first, real)
+    link.symlink_to(real)
+    second = first.with_settings(1, ChannelSettings(threshold_counts=321))
+    save_profile(second, link)
+    assert link.is_symlink() and load_profile(real) == second and load_profile(link) == second
+    assert load_profile(tmp_path / "real" / "p.toml.bak") == first
