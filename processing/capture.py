@@ -19,6 +19,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from processing.measure import VerdictBounds
+from processing.recording import Mark
 from processing.settings import ChannelSettings
 from processing.stretches import KeyFigures, expand_polarity, key_figures
 from processing.suggest import Refusal, Suggestion, suggest
@@ -113,6 +114,8 @@ class CaptureWizard:
         self.step_index = 0
         self.notice = ""
         self._quiet_tries = 0
+        self.marks: list[Mark] = []  # quiet-start/-end, touch-start/-end at frame times, as they happen
+        self._t_s = 0.0
         self._baseline = np.zeros(len(names))
         self._follow = 1.0 / max(1.0, rate_hz)  # baselines follow drift with a one-second time constant
         self._levels = np.full(len(names), min_rise_counts, float)
@@ -154,11 +157,17 @@ class CaptureWizard:
             raise ValueError(f"frames have {readings.shape[1]} channels, the capture {len(self.names)}")
         if self._started_s is None:
             self._started_s = now_s
-        for row in readings:
+        for row, t_s in zip(readings, np.asarray(block.t_s, np.float64).tolist(), strict=True):
             if self.done:
                 break
+            self._t_s = t_s
             self._frame(row, now_s)
         self._check_timeout(now_s)
+
+    def _mark(self, kind: str, channel: int | None = None) -> None:
+        """Record where a stretch began or ended (frame time), for a recording made meanwhile."""
+        self.marks.append(Mark(self._t_s, kind, None if channel is None else self.names[channel],
+                               "guided capture"))
 
     def _reset_step(self, now_s: float | None) -> None:
         self._count = 0
@@ -180,6 +189,8 @@ class CaptureWizard:
         step = self.step
         assert step is not None
         if step.kind == QUIET:
+            if not self._rows:
+                self._mark("quiet-start")
             self._rows.append(row)
             self._count += 1
             if self._count >= self.quiet_frames:
@@ -205,6 +216,7 @@ class CaptureWizard:
             self._reset_step(now_s)
             self.notice = f"{self.names[moved[0]]} moved during hands off: measuring again, hands off please"
             return
+        self._mark("quiet-end")
         for c, key in self.keys.items():
             key.quiet = quiet[:, c].copy()
         self._levels = np.array([_level(quiet[:, c], self.min_rise_counts) for c in range(len(self.names))])
@@ -234,11 +246,15 @@ class CaptureWizard:
         if deltas[c] < level / 2:
             self._low_run += 1
             if self._low_run >= 3:  # the finger left before the hold was complete
+                if self._held:
+                    self._mark("touch-end", c)
                 self._held, self._onset, self._low_run, self._started_s = [], False, 0, now_s
                 self.notice = f"Lifted too soon: touch and hold {self.names[c]} until the bar is full"
             return
         self._low_run = 0
         if self._count > self.settle_frames:
+            if not self._held:
+                self._mark("touch-start", c)
             self._held.append(round(deltas[c]))
             for k in others:  # what the finger on this key does to the others
                 if k not in self.keys:
@@ -249,6 +265,7 @@ class CaptureWizard:
                     self.keys[k].crosstalk.append(round(deltas[k]))
             if len(self._held) >= self.hold_frames:
                 key.touched = np.array(self._held, np.int64)
+                self._mark("touch-end", c)
                 self._advance(now_s)
 
     def _release_frame(self, c: int, deltas: np.ndarray, now_s: float) -> None:
@@ -287,6 +304,8 @@ class CaptureWizard:
             if len(self._rows) >= 8:
                 self._finish_quiet(now_s, force=True)
             return
+        if step.kind == TOUCH and self._held:
+            self._mark("touch-end", step.channel)
         self._advance(now_s)
         if step.kind == TOUCH:
             self.step_index += 1

@@ -56,3 +56,50 @@ async def test_w_opens_the_capture_and_apply_all_is_one_undoable_edit():
         await pilot.press("u")
         await pilot.pause()
         assert [source.settings(c) for c in range(5)] == before
+
+
+async def test_capture_while_recording_leaves_marks_that_tune_uses(tmp_path):
+    from processing.recording import read_recording
+    from tests.headless.helpers import json_lines, padtune
+
+    feed = SyntheticFeed(noise_counts=2)
+    clock = Clock()
+    source = SessionSource(feed, port="test://feed", clock=clock)
+    app = PadtuneApp(source, ui_hz=0, clock=clock)
+    path = tmp_path / "wizard.csv"
+    async with app.run_test(size=(100, 32)) as pilot:
+        feed.advance(0.5)
+        clock.t_s = feed.t_s
+        app.refresh_now()
+        source.start_recording(path)
+        await pilot.press("w")
+        await pilot.pause()
+        screen = app.screen
+        screen.tick_s = 0
+        for _ in range(600):
+            step = screen.wizard.step if screen.wizard else None
+            for c in range(5):
+                feed.set_touch(c, 0)
+            if step is not None and step.kind == "touch":
+                feed.set_touch(step.channel, 120)
+            feed.advance(0.05)
+            clock.t_s = feed.t_s  # one clock for frames and the recording, as with a real link
+            app.refresh_now()
+            screen.tick()
+            if screen.outcomes:
+                break
+        await pilot.press("escape")
+        await pilot.pause()
+        source.stop_recording()
+    rec = read_recording(path)
+    kinds = [(m.kind, m.channel) for m in rec.marks]
+    assert kinds[:2] == [("quiet-start", None), ("quiet-end", None)]
+    for name in feed.names:
+        assert ("touch-start", name) in kinds and ("touch-end", name) in kinds
+    out = padtune("tune", str(path), "-o", str(tmp_path / "w.toml"), "--json")
+    assert out.returncode == 0, out.stderr
+    result = json_lines(out.stdout)[0]
+    assert result["from_marks"] and all(r["suggested"] for r in result["channels"])
+    by_name = {o.name: o for o in screen.outcomes}
+    for row in result["channels"]:  # the same stretches give about the same touch figure
+        assert abs(row["signal"] - by_name[row["name"]].figures.signal_counts) <= 3

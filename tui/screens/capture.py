@@ -27,6 +27,7 @@ from textual.screen import Screen
 from textual.widgets import DataTable, Footer, ProgressBar, Static
 
 from processing.capture import CaptureOutcome, CaptureWizard, summarise
+from processing.recording import Mark
 from processing.session import Session
 from processing.settings import ChannelSettings
 from protocol.events import FrameBlock
@@ -81,9 +82,11 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
 
     def __init__(self, session: Session, *, clock: Callable[[], float] = time.monotonic,
                  poll: Callable[[], Any] | None = None, tick_s: float = TICK_S,
-                 **wizard_options: Any) -> None:
+                 marker: Callable[[Mark], None] | None = None, **wizard_options: Any) -> None:
         super().__init__()
         self.session, self.clock, self.poll, self.tick_s = session, clock, poll, tick_s
+        self.marker = marker  # gets the wizard's quiet/touch marks (open_capture: into the recording)
+        self._marks_sent = 0
         self.wizard_options = wizard_options
         self.wizard: CaptureWizard | None = None
         self.outcomes: list[CaptureOutcome] = []
@@ -126,7 +129,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         h = m.history
         if h is not self._history:  # the board changed width or restarted: begin again
             self.notify("The board changed: the capture starts again.", severity="warning")
-            self.wizard = None
+            self.wizard, self._marks_sent = None, 0
             return None
         new = h.written - self._seen
         self._seen = h.written
@@ -150,9 +153,19 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         else:
             self.wizard.feed(FrameBlock(np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 1), np.int64), 0),
                              self.clock())
+        self._send_marks()
         if self.wizard.done and not was_done:
             self._finish()
         self._show_step()
+
+    def _send_marks(self) -> None:
+        if self.wizard is None:
+            return
+        new = self.wizard.marks[self._marks_sent:]
+        self._marks_sent = len(self.wizard.marks)
+        if self.marker is not None:
+            for mark in new:
+                self.marker(mark)
 
     def _show_step(self) -> None:
         w = self.wizard
@@ -202,6 +215,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
     def action_skip(self) -> None:
         if self.wizard is not None and not self.wizard.done:
             self.wizard.skip(self.clock())
+            self._send_marks()
             if self.wizard.done:
                 self._finish()
             self._show_step()
@@ -255,4 +269,12 @@ def open_capture(app: Any) -> None:
                 source.apply(c, s)
         app.notify(f"Applied the suggestions for {len(result)} key(s).")
 
-    app.push_screen(CaptureScreen(session, clock=getattr(app, "clock", time.monotonic)), done)
+    def marker(mark: Mark) -> None:
+        # While the app records, the capture's stretches go into the file as marks, so the same
+        # recording can be re-tuned (`padtune tune`) or replayed against its marks later. The source
+        # has no public way to write a typed mark yet: this reaches its writer when there is one.
+        writer = getattr(source, "_recorder", None)
+        if writer is not None:
+            writer.mark(mark.t_s, mark.kind, mark.channel, mark.text)
+
+    app.push_screen(CaptureScreen(session, clock=getattr(app, "clock", time.monotonic), marker=marker), done)
