@@ -44,6 +44,12 @@ def run(args: argparse.Namespace) -> int:
             export_json(profile, target, source=Path(args.profile).name)
     except OSError as exc:
         raise UserError(f"{target}: cannot write: {_why(target, exc)}") from None
-    print(f"wrote {target} ({profile.channels} channels, {len(profile.groups)} groups, "
-          f"{len(profile.sliders)} sliders)")
+    counts = ", ".join(_count(n, what) for n, what in ((profile.channels, "channel"),
+                                                        (len(profile.groups), "group"),
+                                                        (len(profile.sliders), "slider")))
+    print(f"wrote {target} ({counts})")
     return 0
+
+
+def _count(n: int, what: str) -> str:
+    return f"{n} {what}" if n == 1 else f"{n} {what}s"
