@@ -65,7 +65,6 @@ class History:
         idx = (np.arange(self.written - n, self.written)) % self.capacity
         return self.t_s[idx], self.readings[idx], self.deltas[idx], self.states[idx]
 
-
     def column(self, channel: int, n: int) -> tuple[np.ndarray, np.ndarray]:
         """Deltas and states of one channel over the newest `n` frames, oldest first (no full-row copy)."""
         n = min(n, len(self))
