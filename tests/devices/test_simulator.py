@@ -169,7 +169,7 @@ def test_unit_faults_stuck_and_open_by_name():
                      faults=FaultPlan.parse(["stuck:zone4@1", "open:zone1", "short:stop", "noisy:dur2:30"]))
     _, _, r = decode(board.run_for(3.0))
     z4 = board.channel("zone4")
-    assert r[90:, z4].mean() - r[:50, z4].mean() > 40
+    assert r[90:, z4].mean() - r[:50, z4].mean() > 25  # zone4 is the small key: about 37 counts
     assert any(c.source == "stuck" for c in board.scripted_touches())
     assert r[:, board.channel("zone1")].mean() < 0.3 * r[:, board.channel("zone2")].mean()
     assert (r[:, board.channel("stop")] == 65535).all()
