@@ -74,6 +74,7 @@ class UnitProbe:
         self.deltas: list[np.ndarray] = []
         self.states: list[np.ndarray] = []
         self.touched_at: dict[int, float] = {}  # channel -> first touch with hands off (run time)
+        self.quiet_touches: dict[int, int] = {}  # channel -> touches reported with hands off
         self.touch_samples: dict[int, list[int]] = {}  # phase 2: touched deltas per key
         self.touch_seen: set[int] = set()
         self.done_keys: set[int] = set()
@@ -109,6 +110,7 @@ class UnitProbe:
         if isinstance(det, Touch):
             if self.phase == "quiet":
                 self.touched_at.setdefault(det.channel, det.t_s - self.origin_t_s)
+                self.quiet_touches[det.channel] = self.quiet_touches.get(det.channel, 0) + 1
             else:
                 self.touch_seen.add(det.channel)
         elif (isinstance(det, Release | StuckRelease) and self.phase == "touch"
@@ -166,16 +168,14 @@ def _noise(v: ChannelVerdict, limits: Limits) -> None:
     if all(limit is None for limit, _, _ in pairs):
         v.checks["noise"] = UNCHECKED
         return
-    v.checks["noise"] = PASS
-    for limit, value, form in pairs:
-        if limit is None:
-            continue
-        if value is None:
-            v.checks["noise"] = FAIL
-            v.reasons.append("noise not measured: too few released frames")
-        elif value > limit:
-            v.checks["noise"] = FAIL
-            v.reasons.append(f"noisy pad: noise {form} {value:.1f} counts is above the limit {limit:g}")
+    over = [f"{form} {value:.1f} counts (limit {limit:g})" for limit, value, form in pairs
+            if limit is not None and value is not None and value > limit]
+    unmeasured = any(limit is not None and value is None for limit, value, _ in pairs)
+    v.checks["noise"] = FAIL if over or unmeasured else PASS
+    if over:
+        v.reasons.append("noisy pad: noise " + ", ".join(over))
+    elif unmeasured:
+        v.reasons.append("noise not measured: too few released frames")
 
 
 def evaluate(probe: UnitProbe, limits: Limits, names: list[str], polarity: list[int],
@@ -193,17 +193,32 @@ def evaluate(probe: UnitProbe, limits: Limits, names: list[str], polarity: list[
         v = ChannelVerdict(c, name, baseline, pp, rms)
         _alive(v, limits, polarity[c] if c < len(polarity) else 1)
         _noise(v, limits)
-        if c in probe.touched_at or (len(states) and states[-1, c] in (KeyState.TOUCHED, KeyState.RELEASING)):
-            v.stuck_at_s = probe.touched_at.get(c)
-            v.checks["stuck"] = FAIL
-            when = f" from {v.stuck_at_s:.1f} s" if v.stuck_at_s is not None else ""
-            v.reasons.append(f"stuck key: reported touched{when} while nobody touched the panel")
-        else:
-            v.checks["stuck"] = PASS
+        _stuck(v, probe, states)
         if touch:
             _snr(v, probe, limits)
         out.append(v)
     return out
+
+
+def _stuck(v: ChannelVerdict, probe: UnitProbe, states: np.ndarray) -> None:
+    """Touched with hands off: held to the end is a stuck key; touch after touch with a failed noise
+    check is noise making false touches (the noise reason says how much)."""
+    c = v.channel
+    held = bool(len(states)) and states[-1, c] in (KeyState.TOUCHED, KeyState.RELEASING)
+    count = probe.quiet_touches.get(c, 0)
+    if not held and count == 0:
+        v.checks["stuck"] = PASS
+        return
+    v.checks["stuck"] = FAIL
+    v.stuck_at_s = probe.touched_at.get(c)
+    when = f" from {v.stuck_at_s:.1f} s" if v.stuck_at_s is not None else ""
+    if not held and v.checks.get("noise") == FAIL:
+        v.reasons.append(f"false touches: reported touched {count} times with hands off, from its noise")
+    elif held:
+        v.reasons.append(f"stuck key: reported touched{when} while nobody touched the panel")
+    else:
+        v.reasons.append(f"false touches: reported touched {count} times{when} while nobody touched "
+                         "the panel")
 
 
 def _snr(v: ChannelVerdict, probe: UnitProbe, limits: Limits) -> None:
