@@ -119,11 +119,15 @@ def test_garbage_and_lost_frames(board, link_of):
 
 
 def test_wrong_baud_noise_is_reported(board, link_of):
-    link, got = link_of()
+    now = [100.0]  # the link's clock: it moves on only when the noise is in, however loaded the machine
+    link, got = link_of(clock=lambda: now[0])
     got.wait_state(LinkState.CONNECTED)
     rng = random.Random(3)  # what a UART at the wrong rate delivers: mostly framing-error bytes
     noise = bytes(rng.choice([0x00, 0x80, 0xF8, 0xFE, 0xE0, 0x78, 0x0A]) for _ in range(3000))
     board.send(noise)
+    got.wait(lambda: link.stats.bytes_in == len(noise), "the noise to be read")
+    assert not link.baud_suspect  # still inside the first 2 s on the link's clock
+    now[0] += 2.5
     got.wait(lambda: bool(got.faults(FaultKind.BAUD_SUSPECT)), "the wrong-baud warning")
     assert link.baud_suspect
     assert "baud rate 115200 is probably wrong" in got.faults(FaultKind.BAUD_SUSPECT)[0].detail
