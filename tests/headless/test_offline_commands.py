@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from html.parser import HTMLParser
 
+import numpy as np
 import pytest
 
 from processing.profile import load_profile
@@ -231,3 +232,22 @@ def test_paced_replay_gives_the_same_events_as_flat_out(work):
     for run in (paced, flat):
         times = [e["t"] for e in run if e["type"] == "status"]
         assert times == pytest.approx([1.0, 2.0, 3.0, 4.0, 5.0, 6.0], abs=0.3)
+
+
+def test_groups_and_sliders_of_the_profile_appear_in_json(work, tmp_path):
+    from processing.profile import save_profile
+    from tui.demo_profile import demo_profile
+
+    folder, _, _ = work
+    save_profile(demo_profile("greenhouse"), tmp_path / "demo.toml")
+    events = json_lines(padtune("replay", str(folder / "gh.csv"), "--profile", str(tmp_path / "demo.toml"),
+                                "--json").stdout)
+    sliders = [e for e in events if e["type"] == "slider"]
+    groups = [e for e in events if e["type"] == "group"]
+    assert groups and {"group", "channel", "index"} <= set(groups[0])
+    assert sliders and sliders[0]["touched"] and sliders[-1]["position"] is None
+    positions = np.array([e["position"] for e in sliders if e["touched"]], float)
+    # The script swipes the duration slider from one end to the other: the position rises with time
+    # (noise makes it jitter by a few steps). numpy's correlation coefficient as the measure.
+    assert positions[:3].max() < 20 and positions.max() > 80
+    assert np.corrcoef(np.arange(len(positions)), positions)[0, 1] > 0.9

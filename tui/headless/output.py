@@ -41,6 +41,8 @@ class Output(Protocol):
     def release(self, t_s: float, channel: str, index: int, held_s: float, stuck: bool = False) -> None: ...
     def link(self, t_s: float, event: str, count: int = 1, detail: str = "") -> None: ...
     def note(self, t_s: float, text: str) -> None: ...
+    def group(self, t_s: float, group: str, channel: str | None, index: int) -> None: ...
+    def slider(self, t_s: float, slider: str, position: int | None, touched: bool, index: int) -> None: ...
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None: ...
     def summary(self, t_s: float, summary: Mapping[str, Any]) -> None: ...
     def close(self) -> None: ...
@@ -71,6 +73,12 @@ class JsonLinesOutput:
 
     def note(self, t_s: float, text: str) -> None:
         self._emit("note", t_s, text=text)
+
+    def group(self, t_s: float, group: str, channel: str | None, index: int) -> None:
+        self._emit("group", t_s, group=group, channel=channel, index=index)
+
+    def slider(self, t_s: float, slider: str, position: int | None, touched: bool, index: int) -> None:
+        self._emit("slider", t_s, slider=slider, position=position, touched=touched, index=index)
 
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
         self._emit("status", t_s, channels=list(channels))
@@ -159,6 +167,13 @@ class HumanOutput:
 
     def note(self, t_s: float, text: str) -> None:
         self._line(t_s, "note", "dim", text)
+
+    def group(self, t_s: float, group: str, channel: str | None, index: int) -> None:
+        self._line(t_s, "group", "magenta", f"{group}: {channel or 'none'} reported  (frame {index})")
+
+    def slider(self, t_s: float, slider: str, position: int | None, touched: bool, index: int) -> None:
+        where = f"at {position}" if touched and position is not None else "released"
+        self._line(t_s, "slider", "magenta", f"{slider} {where}  (frame {index})")
 
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
         self.console.print(channel_table(channels, STATUS_COLUMNS, title=f"status at {t_s:.1f} s",

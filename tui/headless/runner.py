@@ -113,8 +113,11 @@ class DetectionRun:
         elif isinstance(det, Release | StuckRelease):
             self.output.release(self._rel(det.t_s), self.name(det.channel), det.index, det.held_s,
                                 stuck=isinstance(det, StuckRelease))
-        elif isinstance(det, GroupChange | SliderChange):
-            pass  # groups and sliders show in the status rows of the TUI; not part of this format (v1)
+        elif isinstance(det, GroupChange):
+            name = None if det.channel is None else self.name(det.channel)
+            self.output.group(self._rel(det.t_s), det.group, name, det.index)
+        elif isinstance(det, SliderChange):
+            self.output.slider(self._rel(det.t_s), det.slider, det.position, det.touched, det.index)
 
     def _expected(self, channel: int, t: float) -> bool | None:
         """With marks: was this touch inside a marked touch of its key (or near a plain note mark)?"""
