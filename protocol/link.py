@@ -96,6 +96,21 @@ class Link:
         return self._baud_suspect
 
     @property
+    def baud_checked(self) -> bool:
+        """True once the wrong-baud check of the current opening has reached its verdict."""
+        return self._baud_check is None
+
+    @property
+    def running(self) -> bool:
+        """True while the reader thread runs (it ends on stop(), or on a loss without reconnect)."""
+        return self._thread is not None and self._thread.is_alive()
+
+    @property
+    def queued_frames(self) -> int:
+        """Frames waiting for drain() (never more than max_queued_frames)."""
+        return self._buffer.queued_frames
+
+    @property
     def info(self) -> BoardInfo | None:
         """The session's info as the board last described itself (merged info lines), or None."""
         return self._decoder.info

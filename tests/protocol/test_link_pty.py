@@ -137,7 +137,7 @@ def test_clean_stream_is_not_suspected(board, link_of):
     link, got = link_of()
     got.wait_state(LinkState.CONNECTED)
     board.send(INFO + frames(0, 100))
-    got.wait(lambda: link._baud_check is None, "the baud verdict (after 2 s)")
+    got.wait(lambda: link.baud_checked, "the baud verdict (after 2 s)")
     assert not link.baud_suspect and not got.faults(FaultKind.BAUD_SUSPECT)
 
 
@@ -157,7 +157,7 @@ def test_slow_consumer_never_grows_memory(board, link_of):
     while link.stats.frames < 1000 and time.monotonic() < deadline:
         time.sleep(0.01)  # not draining: the consumer is "slow"
     assert link.stats.frames == 1000
-    assert link._buffer.queued_frames <= 100
+    assert link.queued_frames <= 100
     got.poll()
     kept = len(got.frames())
     (overflow,) = got.faults(FaultKind.OVERFLOW)
@@ -189,7 +189,7 @@ def test_stop_ends_the_reader_and_is_idempotent(board, link_of):
     link.stop()
     got.poll()
     assert got.states()[-1] is LinkState.CLOSED and got.states().count(LinkState.CLOSED) == 1
-    assert not link._thread.is_alive()
+    assert not link.running
 
 
 def test_without_reconnect_the_link_stays_down(board, link_of):
@@ -197,8 +197,8 @@ def test_without_reconnect_the_link_stays_down(board, link_of):
     got.wait_state(LinkState.CONNECTED)
     board.unplug()
     got.wait_state(LinkState.DISCONNECTED)
-    link._thread.join(30)
-    assert not link._thread.is_alive() and link.state is LinkState.DISCONNECTED
+    got.wait(lambda: not link.running, "the reader to end")
+    assert link.state is LinkState.DISCONNECTED
 
 
 def test_missing_port_is_one_line():
