@@ -87,11 +87,11 @@ def _slope_counts_per_f(method: Method, base_f: float) -> float:
     return abs(float(method.value(base_f + step_f)) - float(method.value(base_f - step_f))) / (2 * step_f)
 
 
-def _noise_counts(inp: EstimateInput, slope: float) -> tuple[float, float]:
+def _noise_counts(inp: EstimateInput, counts_per_f: float) -> tuple[float, float]:
     """Untouched noise in counts, (rms, pp): white and conversion noise and rounding, plus hum as a sine."""
-    random_rms = math.sqrt((slope * inp.noise_pf * 1e-12) ** 2 + inp.noise_counts**2
+    random_rms = math.sqrt((counts_per_f * inp.noise_pf * 1e-12) ** 2 + inp.noise_counts**2
                            + inp.method.quantisation_rms**2)
-    hum_amplitude = slope * inp.hum_pf * 1e-12
+    hum_amplitude = counts_per_f * inp.hum_pf * 1e-12
     rms = math.sqrt(random_rms**2 + hum_amplitude**2 / 2.0)
     pp = max(1.0, PP_PER_RMS * random_rms + 2.0 * hum_amplitude)  # integer readings: at least 1
     return rms, pp
@@ -139,15 +139,15 @@ def _inputs(inp: EstimateInput, ers: tuple[float, float, float]) -> dict[str, ob
 
 
 def estimate(inp: EstimateInput) -> Estimate:
-    m, base = inp.method, inp.parasitic_f
+    m, base_f = inp.method, inp.parasitic_f  # the untouched pad
     ers = (inp.material.er_nominal, inp.material.er_low, inp.material.er_high)
     fingers = [_finger_f(inp, er) for er in ers]
-    deltas = [_delta_counts(m, base, c) for c in fingers]
-    slope = _slope_counts_per_f(m, base)
-    noise_rms, noise_pp = _noise_counts(inp, slope)
+    deltas = [_delta_counts(m, base_f, c) for c in fingers]
+    counts_per_f = _slope_counts_per_f(m, base_f)
+    noise_rms, noise_pp = _noise_counts(inp, counts_per_f)
     snr_pp = [abs(d) / noise_pp for d in deltas]
     snr_rms = [abs(d) / noise_rms for d in deltas]
-    idle = float(m.value(base))
+    idle = float(m.value(base_f))
     return Estimate(Spread(*(c * 1e12 for c in fingers)), Spread(*deltas), Spread(*snr_pp), Spread(*snr_rms),
-                    idle, noise_rms, noise_pp, slope * 1e-12, m.polarity, _verdict(m, idle, snr_pp),
+                    idle, noise_rms, noise_pp, counts_per_f * 1e-12, m.polarity, _verdict(m, idle, snr_pp),
                     _notes(m, idle, deltas), _inputs(inp, ers))
