@@ -1,20 +1,27 @@
-"""One test (or a few) for every rule of PROTOCOL.md, run against both decoders."""
+"""One test (or a few) for every rule of PROTOCOL.md, on the plain decoder and each fast way."""
+
+from unittest import mock
 
 import numpy as np
 import pytest
 
+import protocol.decoder as fast_module
 from protocol.decoder import Decoder
 from protocol.decoder_plain import PlainDecoder
 from protocol.events import BoardChanged, BoardInfo, FaultKind, FrameBlock, LinkFault, Note
 
 from .helpers import ck, flat, frames, kinds, stream
 
-DECODERS = [Decoder, PlainDecoder]
 
-
-@pytest.fixture(params=DECODERS, ids=["fast", "plain"])
+@pytest.fixture(params=["fast", "scan", "small", "plain"])
 def dec(request):
-    return request.param()
+    """Every rule test runs on the plain decoder and on each way of the fast one."""
+    if request.param == "plain":
+        yield PlainDecoder()
+        return
+    limit = {"fast": fast_module.SCAN_MIN_BYTES, "scan": 0, "small": 10**9}[request.param]
+    with mock.patch.object(fast_module, "SCAN_MIN_BYTES", limit):
+        yield Decoder()
 
 
 def feed_lines(dec, lines, t_s=1.0):
@@ -249,9 +256,6 @@ def test_stats_count_bytes(dec):
 @pytest.mark.parametrize("scan_min_bytes", [0, 10**9], ids=["bulk-scan", "small-batch"])
 def test_clean_frames_take_the_bulk_ways(scan_min_bytes):
     """Guard for the proofs: clean frames really go through the fast ways, not the per-line rules."""
-    from unittest import mock
-
-    import protocol.decoder as fast_module
     from protocol.rules import LineRules
 
     dec = Decoder()
