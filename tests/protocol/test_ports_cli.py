@@ -47,3 +47,31 @@ def test_ports_listing_with_fake_usb(monkeypatch, capsys):
     assert command.run(argparse.Namespace(json=False)) == 0
     text = capsys.readouterr().out
     assert "/dev/ttyACM0" in text and "1209:7D00" in text and "GH-01" in text and "greenhouse panel" in text
+
+
+def test_ports_on_a_terminal_draws_a_table_and_honours_no_color():
+    """Run as a user at a terminal: stdout is a pseudo-terminal, NO_COLOR set."""
+    import tty
+
+    master, slave = os.openpty()
+    tty.setraw(slave)
+    env = {**os.environ, "NO_COLOR": "1", "COLUMNS": "100"}
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "ports"], stdout=slave, stderr=subprocess.PIPE,
+                            env=env)
+    os.close(slave)
+    out = b""
+    try:
+        while True:
+            try:
+                chunk = os.read(master, 4096)
+            except OSError:  # the child closed its end
+                break
+            if not chunk:
+                break
+            out += chunk
+    finally:
+        os.close(master)
+    assert proc.wait(timeout=120) == 0, proc.stderr.read()
+    text = out.decode()
+    assert "pseudo-terminals and URLs" in text
+    assert "\x1b[3" not in text  # no colour codes under NO_COLOR
