@@ -22,6 +22,7 @@ from devices.methods import Method
 # The same bounds as processing.measure's verdict (devices may not import processing).
 SNR_PP_WEAK_BELOW = 5.0  # common practice, no source
 SNR_PP_SOLID_ABOVE = 10.0  # common practice, no source
+THICK_OVERLAY_RATIO = 0.3  # overlay + gap beyond this share of the fingertip's width: fringing matters
 PP_PER_RMS = 6.0  # peak-to-peak of Gaussian noise over a few hundred samples (common practice, no source)
 
 # Components used when the designer names a method but not its parts (everyday units, like board files).
@@ -101,8 +102,14 @@ def _idle_in_range(method: Method, idle: float) -> bool:
     return 1 <= idle < method.max_count
 
 
-def _notes(method: Method, idle: float, deltas: list[float]) -> list[str]:
+def _notes(inp: EstimateInput, idle: float, deltas: list[float]) -> list[str]:
+    method = inp.method
     notes = []
+    if inp.thickness_m + inp.air_gap_m > THICK_OVERLAY_RATIO * inp.finger_diameter_m:
+        # The parallel-plate model holds while the gap is small next to the plates (any electrostatics
+        # text); past that, field lines fringing around the fingertip add signal the model leaves out.
+        notes.append("the overlay is thick next to the fingertip: fringing (left out here) adds some signal, "
+                     "so the real count change may be larger than this")
     if not _idle_in_range(method, idle):
         notes.append(f"the idle reading {idle:.0f} is outside the method's range 0..{method.max_count}: "
                      "change the components")
@@ -150,4 +157,4 @@ def estimate(inp: EstimateInput) -> Estimate:
     idle = float(m.value(base_f))
     return Estimate(Spread(*(c * 1e12 for c in fingers)), Spread(*deltas), Spread(*snr_pp), Spread(*snr_rms),
                     idle, noise_rms, noise_pp, counts_per_f * 1e-12, m.polarity, _verdict(m, idle, snr_pp),
-                    _notes(m, idle, deltas), _inputs(inp, ers))
+                    _notes(inp, idle, deltas), _inputs(inp, ers))

@@ -108,3 +108,10 @@ def test_demo_board_has_solid_keys_and_one_marginal_key_to_tune():
         signal = np.median(r[int(3.3 * rate):int(4.8 * rate)]) - np.median(quiet)
         snr_pp = signal / np.ptp(quiet)
         assert (snr_pp > 10) if name == "zone1" else (5 <= snr_pp <= 10), (name, snr_pp)
+
+
+def test_thick_overlay_is_flagged_as_beyond_the_parallel_plate_model():
+    # Parallel plates hold while the gap is small next to the plates (any electrostatics text); a 6 mm
+    # overlay under a 10 mm fingertip is past that, a 2 mm one is not.
+    assert any("fringing" in n for n in estimate(inp("soda-lime-glass", thickness_mm=6)).notes)
+    assert not any("fringing" in n for n in estimate(inp(thickness_mm=2)).notes)
