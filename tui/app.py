@@ -12,12 +12,10 @@ import time
 from collections import deque
 from collections.abc import Callable, Iterable
 from dataclasses import replace
-from pathlib import Path
 from typing import Any, ClassVar
 
 from rich.text import Text
 from textual.app import App, ComposeResult, SystemCommand
-from textual.binding import Binding
 from textual.containers import Horizontal
 from textual.reactive import reactive
 from textual.screen import Screen
@@ -25,6 +23,8 @@ from textual.widgets import Footer, Static
 
 from processing.detections import Rebaselined
 from protocol.errors import UserError
+from tui.app_files import FileActions
+from tui.bindings import _COVERED_OFF, BINDINGS, help_rows
 from tui.describe import describe_detection, describe_event
 from tui.edits import Change, Edit, EditHistory
 from tui.fields import FIELDS, parse_value, stepped, with_value
@@ -43,80 +43,7 @@ from tui.widgets.link_strip import LinkStrip
 # Sparkline buckets handed to the table; it shrinks them to the width it has (48 cells at most).
 SPARK_POINTS = 48
 
-# Binding id prefix -> the section it is listed under in the help screen.
-SECTIONS = {
-    "move": "Move", "edit": "Edit the selected channel", "chan": "Channel and display",
-    "rec": "Recording", "prof": "Profile", "demo": "Simulated board (demo)", "app": "App",
-}
-
-B = Binding
-BINDINGS: list[Binding] = [
-    B("down,j", "cursor(1)", "Next channel", id="move.down", show=False),
-    B("up,k", "cursor(-1)", "Previous channel", id="move.up", show=False),
-    B("pagedown", "cursor_page(1)", "Page down", id="move.pagedown", show=False),
-    B("pageup", "cursor_page(-1)", "Page up", id="move.pageup", show=False),
-    B("home", "cursor_to(0)", "First channel", id="move.first", show=False),
-    B("end", "cursor_to(-1)", "Last channel", id="move.last", show=False),
-    B("right,tab", "field(1)", "Next setting to edit", id="move.field_next", show=False),
-    B("left,shift+tab", "field(-1)", "Previous setting to edit", id="move.field_prev", show=False),
-    B("plus,equals_sign", "step(1, False)", "Raise the setting (fine step)", id="edit.up", key_display="+",
-      show=False),
-    B("minus", "step(-1, False)", "Lower the setting (fine step)", id="edit.down", key_display="-",
-      show=False),
-    B("right_square_bracket", "step(1, True)", "Raise the setting (coarse step)", id="edit.up_coarse",
-      show=False),
-    B("left_square_bracket", "step(-1, True)", "Lower the setting (coarse step)", id="edit.down_coarse",
-      show=False),
-    B("enter,e", "type_value", "Type a value for the setting", id="edit.type", key_display="⏎",
-      show=False),
-    B("a", "apply_all", "Copy this channel's settings to all channels", id="edit.all", show=False),
-    B("g", "apply_group", "Copy this channel's settings to its group", id="edit.group", show=False),
-    B("u", "undo", "Undo the last edit", id="edit.undo", show=False),
-    B("U,ctrl+y", "redo", "Redo", id="edit.redo", show=False),
-    B("b", "rebaseline(False)", "Re-baseline the selected channel", id="chan.rebase", show=False),
-    B("B", "rebaseline(True)", "Re-baseline all channels", id="chan.rebase_all", show=False),
-    B("d", "toggle_detail", "detail", id="chan.detail", tooltip="Detail panel: plot, settings, events"),
-    B("f", "toggle_spectrum", "Noise spectrum in the detail panel", id="chan.spectrum", show=False),
-    B("space", "toggle_pause", "pause", id="chan.pause", key_display="space",
-      tooltip="Pause / resume the display (detection keeps running)"),
-    B("r", "toggle_recording", "rec", id="rec.toggle", tooltip="Start / stop recording to a CSV file"),
-    B("m", "mark", "Mark this moment in the recording", id="rec.mark", show=False),
-    B("s,ctrl+s", "save", "save", id="prof.save", tooltip="Save the profile"),
-    B("S", "save_as", "Save the profile as another file", id="prof.save_as", show=False),
-    B("o", "load", "Load another profile", id="prof.load", show=False),
-    B("x", "export", "Export for firmware (C header or JSON)", id="prof.export", show=False),
-    B("t", "tap", "Tap the selected key on the simulated board", id="demo.tap", show=False),
-    B("p", "hold", "Hold / let go of the selected key on the simulated board", id="demo.hold", show=False),
-    *[B(str(n % 10), f"hold_number({n - 1})", f"Hold / let go of key {n} on the simulated board",
-        id=f"demo.key{n}", show=False) for n in range(1, 11)],
-    B("w", "wizard", "Guided capture: measure noise and touches, suggest settings", id="app.wizard",
-      show=False),
-    B("question_mark,f1", "help", "help", id="app.help", key_display="?",
-      tooltip="Help: every key and the safety cautions"),
-    B("q,ctrl+q", "quit", "quit", id="app.quit", tooltip="Quit (asks when edits are unsaved)"),
-]
-
-
-# Actions that are off while a dialog or another screen is on top: all but quit (help's own keys
-# then show in the footer instead of the live screen's).
-_COVERED_OFF = {b.action.split("(")[0] for b in BINDINGS} - {"quit"}
-
-
-def help_rows(bindings: Iterable[Binding] = BINDINGS) -> list[tuple[str, str, str]]:
-    """(section, keys, description) for every binding; the demo keys 1..0 collapse into one row."""
-    rows: list[tuple[str, str, str]] = []
-    for b in bindings:
-        if b.id and b.id.startswith("demo.key"):
-            if b.id == "demo.key1":
-                rows.append((SECTIONS["demo"], "1 … 9, 0", "Hold / let go of key 1 … 10 on the sim board"))
-            continue
-        section = SECTIONS.get((b.id or "app").split(".")[0], "App")
-        rows.append((section, b.key, b.tooltip or b.description))
-    rows.append((SECTIONS["app"], "ctrl+p", "Command palette: every action by name"))
-    return rows
-
-
-class PadtuneApp(App[int]):
+class PadtuneApp(FileActions, App[int]):
     """The live screen over one `LiveSource`. `ui_hz=0` disables the timer (tests call `refresh_now`)."""
 
     CSS_PATH = "app.tcss"
@@ -457,112 +384,6 @@ class PadtuneApp(App[int]):
     def action_toggle_pause(self) -> None:
         self.paused = not self.paused
 
-    # -- recording --------------------------------------------------------------------------------
-    def action_toggle_recording(self) -> None:
-        if self.source.link_view().recording:
-            path = self.source.stop_recording()
-            self.notify(f"Recording saved to {path}")
-            self._log(f"recording stopped: {path}")
-            self.refresh_now_if_idle()
-            return
-        default = time.strftime("padtune-%Y%m%d-%H%M%S.csv")
-
-        def done(text: str | None) -> None:
-            if text:
-                path = Path(text).expanduser().resolve()
-                try:
-                    self.source.start_recording(path)
-                except UserError as exc:
-                    self.notify(str(exc), severity="error")
-                    return
-                self._log(f"recording to {path}")
-                self.refresh_now_if_idle()
-
-        def check(text: str) -> str | None:
-            if Path(text).expanduser().exists():
-                return f"{Path(text).expanduser()} exists: recordings are never overwritten, give a new name"
-            return _writable_path(text)
-
-        self.push_screen(PromptScreen("Record to file:", default, check), done)
-
-    def action_mark(self) -> None:
-        if not self.source.link_view().recording:
-            self.notify("Not recording: press r to start a recording first.", severity="warning")
-            return
-        names = self.source.channel_names()
-        text = f"mark at {names[self.cursor]}" if names else "mark"
-        self.source.mark(text)
-        self._log(text)
-
-    # -- profile ----------------------------------------------------------------------------------
-    def _after_save(self, path: Path, what: str) -> None:
-        self.notify(f"{what} written to {path}")
-        self._log(f"{what} written to {path}")
-        self.refresh_now_if_idle()
-
-    def action_save(self) -> None:
-        if self.source.profile_path() is None:
-            self.action_save_as()
-            return
-        try:
-            self._after_save(self.source.save(), "profile")
-        except UserError as exc:
-            self.notify(str(exc), severity="error")
-
-    def action_save_as(self) -> None:
-        current = self.source.profile_path()
-        default = str(current) if current else f"{self.source.link_view().board or 'board'}.toml"
-
-        asked: set[Path] = set()
-
-        def check(text: str) -> str | None:
-            reason = _writable_path(text) or _replacing(text, current, asked, "the old one is kept as .bak")
-            if reason:
-                return reason
-            try:
-                self._after_save(self.source.save(Path(text).expanduser().resolve()), "profile")
-            except (UserError, OSError) as exc:
-                return str(exc)
-            return None
-
-        self.push_screen(PromptScreen("Save the profile as:", default, check))
-
-    def action_load(self) -> None:
-        def ask() -> None:
-            def check(text: str) -> str | None:
-                try:
-                    self.source.load(Path(text).expanduser().resolve())
-                except (UserError, OSError) as exc:
-                    return str(exc)
-                self.history.clear()
-                self._log(f"profile loaded from {Path(text).expanduser().resolve()}")
-                return None
-
-            current = str(self.source.profile_path() or "")
-            self.push_screen(PromptScreen("Load the profile from:", current, check))
-
-        self._unless_unsaved("Loading another profile drops your unsaved edits. Load anyway?", ask)
-
-    def action_export(self) -> None:
-        current = self.source.profile_path()
-        default = str(current.with_suffix(".h")) if current else "padtune_keys.h"
-
-        asked: set[Path] = set()
-
-        def check(text: str) -> str | None:
-            reason = _writable_path(text) or _replacing(text, None, asked, "it will be replaced")
-            if reason:
-                return reason
-            try:
-                path = self.source.export(Path(text).expanduser().resolve())
-            except (UserError, OSError) as exc:
-                return str(exc)
-            self._after_save(path, "firmware export")
-            return None
-
-        self.push_screen(PromptScreen("Export for firmware to (.h for a C header, .json for JSON):", default,
-                                      check))
-
     # -- simulated board --------------------------------------------------------------------------
     def _press(self, ch: int, pressed: bool) -> None:
         if not self.source.can_press():
@@ -631,26 +452,3 @@ class PadtuneApp(App[int]):
 
     def on_unmount(self) -> None:
         self.source.close()
-
-
-def _replacing(text: str, current: Path | None, asked: set[Path], consequence: str) -> str | None:
-    """Ask once before replacing an existing file (other than the one in use): Enter again confirms."""
-    path = Path(text).expanduser().resolve()
-    if not path.exists() or path == current or path in asked:
-        return None
-    asked.add(path)
-    return f"{path.name} exists: press Enter again to replace it ({consequence}), or change the name"
-
-
-def _writable_path(text: str) -> str | None:
-    """Why a file cannot be written there (one line), or None when it can."""
-    if not text.strip():
-        return "give a file name"
-    path = Path(text).expanduser()
-    folder = path.resolve().parent
-    if not folder.is_dir():
-        return f"the folder {folder} does not exist"
-    if path.is_dir():
-        return f"{path} is a folder; give a file name"
-    return None
-

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import pytest
 from textual.pilot import Pilot
 
 from processing.detections import KeyState
@@ -477,3 +478,16 @@ async def test_a_silent_board_is_flagged_and_its_rows_look_stale() -> None:
         run(app, feed, 0.2)
         assert "NO FRAMES" not in screen_text(app)
         assert not app.query_one("#table").has_class("-stale")
+
+
+async def test_no_color_keeps_every_state_readable(monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv("NO_COLOR", "1")
+    app, feed = make_app()
+    assert app.no_color
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        feed.set_touch(1, 300)
+        run(app, feed, 0.3)
+        await pilot.pause()
+        text = screen_text(app)
+        assert "▶ zone1" in text and "● TOUCH" in text and "· idle" in text and "┃" in text
