@@ -55,7 +55,8 @@ def run(cls, readings, setts, polarity, sizes, rebase, edits=()):
     events, deltas, states = [], [], []
     for b in blocks(readings, sizes):
         if any(b.first_index <= r < b.first_index + len(b) for r in rebase):
-            e.rebaseline(b.first_index % readings.shape[1])
+            which = b.first_index % (readings.shape[1] + 1)  # one channel, or all of them
+            e.rebaseline(which if which < readings.shape[1] else None)
         for at, ch, s in edits:
             if b.first_index <= at < b.first_index + len(b):
                 e.set_settings(ch, s)
