@@ -1,22 +1,59 @@
 """SVG snapshots of the guided capture at 80x24 and 120x40: a step in progress and the results.
 
-A seeded simulated board with no script, a test clock and a simulated person (from
-test_capture_screen) make every run draw the same screen. Approve changes with
-`pytest tests/headless/test_capture_snapshots.py --snapshot-update` after looking at the SVGs.
+Frames come from seeded numpy noise with touches added by a simulated person (not from the board
+simulator, whose physics may change), and a test clock, so every run draws the same screen. Approve
+changes with `pytest tests/headless/test_capture_snapshots.py --snapshot-update` after looking.
 """
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
-from tests.headless.test_capture_screen import Host, Rig
+from processing.capture import TOUCH
+from processing.session import Session
+from protocol.events import BoardInfo, FrameBlock
+from tests.headless.test_capture_screen import Clock, Host
 from tui.screens.capture import CaptureScreen
 
 SIZES = [(80, 24), (120, 40)]
+NAMES = ("zone1", "zone2", "zone3", "zone4", "stop")
+RATE_HZ = 50.0
+
+
+class SyntheticRig:
+    """Seeded frames (baseline, noise, a little crosstalk) and a person who does as asked."""
+
+    def __init__(self) -> None:
+        self.clock = Clock()
+        self.session = Session()
+        self.rng = np.random.default_rng(21)
+        self.index = 0
+        self.touch = np.zeros(len(NAMES))
+        self.screen: CaptureScreen | None = None
+        self.session.handle([BoardInfo(0.0, {}, proto=1, channels=len(NAMES), rate_hz=RATE_HZ, names=NAMES,
+                                       polarity=(1,), new_session=True)])
+
+    def react(self) -> None:
+        w = self.screen.wizard if self.screen else None
+        step = w.step if w else None
+        self.touch[:] = 0
+        if step is not None and step.kind == TOUCH:
+            self.touch[step.channel] = 80 + 10 * step.channel
+            self.touch[(step.channel + 1) % len(NAMES)] = 3  # crosstalk to the neighbour
+
+    def feed(self) -> None:
+        n = round(0.1 * RATE_HZ)
+        base = np.array([1400, 1410, 1390, 1405, 1650])
+        readings = (base + self.touch + self.rng.normal(0, 2.0, (n, len(NAMES)))).round().astype(np.int64)
+        t = self.clock.t_s + np.arange(1, n + 1) / RATE_HZ
+        self.session.handle([FrameBlock(t, np.arange(self.index, self.index + n), readings, self.index)])
+        self.index += n
+        self.clock.t_s = float(t[-1])
 
 
 def capture_app() -> Host:
-    rig = Rig()
+    rig = SyntheticRig()
     rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, quiet_s=1.0, hold_s=0.6,
                                timeout_s=3.0)
     app = Host(rig.screen)
