@@ -191,6 +191,8 @@ def test_report_without_matplotlib_says_so_in_one_line(work, tmp_path):
         (["tune", "{gh}", "-o", "{tmp}/out.txt"], "end the name in .toml"),
         (["tune", "{gh}"], "required"),
         (["tune", "{tmp}/short.csv", "-o", "{tmp}/s.toml"], "only"),
+        (["tune", "{gh}", "-o", "{tmp}/r.toml", "--report", "/nonexistent-dir/r.html"], "does not exist"),
+        (["tune", "{gh}", "-o", "{tmp}/r.toml", "--report", "{tmp}"], "is a folder"),
     ],
 )
 def test_bad_arguments_and_files_exit_2_with_one_clear_line(work, tmp_path, args, message):

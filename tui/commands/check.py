@@ -69,9 +69,10 @@ def _touch_phase(link: Any, probe: UnitProbe, names: list[str], timeout_s: float
 
 def run(args: argparse.Namespace) -> int:
     if args.report:
-        from tui.report import require_matplotlib
+        from tui.report import check_report_path, require_matplotlib
 
         require_matplotlib()
+        check_report_path(args.report)
     profile = load_profile_arg(args.profile)
     console = make_console(stderr=True)
     session = Session(profile)

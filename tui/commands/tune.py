@@ -50,9 +50,10 @@ def run(args: argparse.Namespace) -> int:
     if out.is_dir():
         raise UserError(f"{out}: is a folder; give the profile's file name")
     if args.report:
-        from tui.report import require_matplotlib
+        from tui.report import check_report_path, require_matplotlib
 
         require_matplotlib()
+        check_report_path(args.report)
     base = load_profile_arg(args.profile)
     rec = read_recording(args.file, rate_hz=args.rate)
     result = tune_recording(rec, base)

@@ -15,3 +15,15 @@ def require_matplotlib() -> None:
     except ImportError:
         raise UserError("--report needs matplotlib, which is not installed: "
                         "pip install 'padtune[report]' (or leave --report out)") from None
+
+
+def check_report_path(text: str) -> None:
+    """Refuse a report path that cannot be written before any measuring is done."""
+    from pathlib import Path
+
+    path = Path(text).expanduser()
+    if path.is_dir():
+        raise UserError(f"--report {path}: is a folder; give the report's file name (FILE.html)")
+    folder = path.resolve().parent
+    if not folder.is_dir():
+        raise UserError(f"--report {path}: the folder {folder} does not exist")
