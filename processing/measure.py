@@ -2,7 +2,8 @@
 
 Definitions (also in ALGORITHM.md, "Measures"):
 - noise RMS: population standard deviation (numpy.std, mean removed) of the delta over the last
-  `window_s` seconds of frames in which the channel was released; noise pp: max - min over the same frames.
+  `window_s` seconds of frames in which the channel was released (since its last re-baseline); noise pp:
+  max - min over the same frames.
 - touch signal: median delta of the frames in state touched (the last `touched_frames` of them).
 - SNR pp = signal / noise pp; SNR RMS = signal / noise RMS. The verdict uses the pp form.
 Memory is bounded: every buffer is a fixed-size ring allocated once.
@@ -243,6 +244,20 @@ class Measures:
         touched = states == KeyState.TOUCHED
         if touched.any():
             self._touched.push(deltas, touched)
+
+    def restart_noise(self, first_rows: dict[int, int], deltas: np.ndarray, states: np.ndarray) -> None:
+        """Start noise windows again (a re-baseline moved the zero): `first_rows` maps a channel to the
+        first row of the block just ingested that counts for it."""
+        if not first_rows:
+            return
+        cols = np.array(list(first_rows), np.int64)
+        begin = np.array(list(first_rows.values()), np.int64)
+        for c in cols.tolist():
+            self._released.clear(c)
+        mask = np.zeros(states.shape, bool)
+        rows = np.arange(len(states))[:, None]
+        mask[:, cols] = (rows >= begin[None, :]) & (states[:, cols] == KeyState.RELEASED)
+        self._released.push(deltas, mask)
 
     def clear_touch_signal(self, channel: int | None = None) -> None:
         self._touched.clear(channel)

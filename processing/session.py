@@ -12,7 +12,7 @@ from collections import deque
 from collections.abc import Iterable
 from dataclasses import dataclass, replace
 
-from processing.detections import DetectionEvent, KeyState
+from processing.detections import DetectionEvent, KeyState, Rebaselined, StuckRelease
 from processing.engine import Engine
 from processing.fixed import to_counts
 from processing.groups import ExclusiveGroup
@@ -149,6 +149,9 @@ class Session:
         found: list[DetectionEvent] = list(self.engine.process(block))
         deltas, states = self.engine.last_deltas, self.engine.last_states
         self.measures.ingest(block.t_s, block.readings, deltas, states)
+        moved = {ev.channel: ev.index - block.first_index for ev in found
+                 if isinstance(ev, Rebaselined | StuckRelease)}  # a new zero: older deltas are not its noise
+        self.measures.restart_noise(moved, deltas, states)
         for tracker in (*self.groups, *self.sliders):
             found.extend(tracker.update(block.first_index, block.t_s, deltas, states))
         if len(self.groups) + len(self.sliders):

@@ -162,3 +162,24 @@ def test_live_edits_survive_a_rebuild_for_the_same_width():
     assert s.settings(3) == edited and s.engine.settings[3] == edited
     s.handle([info(t_s=3.0, polarity=(-1,)), quiet(10, first_index=40)])  # polarity now given: rebuilt
     assert s.engine.polarity == [-1] * 4 and s.settings(3) == edited
+
+
+def test_noise_window_starts_again_at_a_rebaseline():
+    # Deltas before a re-baseline are measured against the old baseline: mixing them into the window
+    # would show the step as noise. Hand-worked: 100 frames at delta +40 (the baseline lagged a rise),
+    # re-baseline, then +-1 noise: pp 2 counts from the new frames only, not 41.
+    s = Session()
+    s.handle([info(), quiet(20)])
+    rows = np.full((100, 4), 1000)
+    rows[:, 0] += 40
+    s.handle([frames(rows, 20)])
+    assert s.measures.noise(0).pp_counts >= 40
+    s.rebaseline(0)
+    rows = np.full((30, 4), 1040)
+    rows[::2, 0] += 1
+    rows[1::2, 0] -= 1
+    out = s.handle([frames(rows, 120)])
+    assert Rebaselined(0, 120, 1.2, False) in out
+    noise = s.measures.noise(0)
+    assert noise.samples == 30 and noise.pp_counts == 2
+    assert s.measures.noise(1).samples > 30  # other channels keep their window
