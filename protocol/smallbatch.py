@@ -1,8 +1,8 @@
 """The decoder's way for small batches: a strict regex per line, then one conversion per run.
 
 A handful of lines (what a live link usually reads at once) costs less this way than the fixed
-price of `protocol.fastscan`'s vectorised passes. Only the most common frame shape is taken here:
-`@seq` (optional) and values separated by single spaces, with or without a checksum. Every other
+price of `protocol.fastscan`'s vectorised passes. Frames are taken here when they are plain
+decimal values (at most ten digits) with the v1 separators, `@seq` or not, checksummed or not. Every other
 line, or a run with a value out of range, goes through `LineRules.line`, so the results are the
 per-line rules' exactly (tests/protocol proves it with hypothesis, as for the scan).
 """
@@ -16,7 +16,21 @@ import numpy as np
 
 from protocol.rules import INT32_MAX, INT32_MIN, SEQ_MODULUS, LineRules
 
-_FRAME = re.compile(rb"(?:@([0-9]{1,5}) )?(-?[0-9]{1,10}(?: -?[0-9]{1,10})*)(?:\*([0-9A-Fa-f]{4}))?\r?")
+# A run of spaces and tabs holding at most one comma; possessive, so a long run cannot backtrack.
+_SEP = rb"(?>[ \t]*+,[ \t]*+|[ \t]++)"
+_VALUE = rb"-?[0-9]{1,10}"
+_FRAME = re.compile(
+    rb"(?:@([0-9]{1,5})" + _SEP + rb")?(" + _VALUE + rb"(?:" + _SEP + _VALUE + rb")*" + _SEP + rb"?)"
+    rb"(?:\*([0-9A-Fa-f]{4}))?\r?"
+)
+_TO_SPACE = bytes.maketrans(b",\t", b"  ")
+
+
+def _width(values: bytes) -> int:
+    """How many values: the encoder's single spaces are counted, anything else is split."""
+    if b"," in values or b"\t" in values or b"  " in values or values.endswith(b" "):
+        return len(values.translate(_TO_SPACE).split())
+    return values.count(b" ") + 1
 
 
 class _Run:
@@ -32,7 +46,7 @@ class _Run:
     def flush(self, rules: LineRules, width: int) -> None:
         if not self.lines:
             return
-        numbers = np.fromstring(b" ".join(self.values), dtype=np.int64, sep=" ")
+        numbers = np.fromstring(b" ".join(self.values).translate(_TO_SPACE), dtype=np.int64, sep=" ")
         if len(numbers) != len(self.lines) * width or numbers.min() < INT32_MIN or numbers.max() > INT32_MAX:
             for line in self.lines:  # out of range (or a surprise): the per-line rules decide
                 rules.line(line)
@@ -61,7 +75,7 @@ def decode_lines(lines: list[bytes], rules: LineRules) -> None:
             values = m.group(2)
             seq_text = m.group(1)
             sequenced = seq_text is not None
-            ok = ok and values.count(b" ") + 1 == rules.channels
+            ok = ok and _width(values) == rules.channels
             if ok and sequenced:
                 seq = int(seq_text)
                 ok = seq < SEQ_MODULUS
