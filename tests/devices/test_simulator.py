@@ -234,3 +234,12 @@ def test_long_host_lines_are_answered_in_one_protocol_line():
     notes = [e.text for e in events if isinstance(e, Note)]
     assert len(notes) == 2 and all(n.startswith("error:") and len(n) < 500 for n in notes)
     assert d.stats.overlong == d.stats.garbled == 0 and d.stats.frames > 20
+
+
+def test_padtune_sim_link_in_a_missing_folder_is_one_line(capsys, tmp_path):
+    from tui.cli import main
+
+    link = tmp_path / "no" / "such" / "tty"
+    assert main(["sim", "greenhouse", "--link", str(link), "--duration", "0.1"]) == 2
+    err = capsys.readouterr().err
+    assert "cannot make the link" in err and len(err.strip().splitlines()) == 1, err

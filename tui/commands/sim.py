@@ -51,6 +51,19 @@ def _say(text: str) -> None:
         os.close(devnull)
 
 
+def _make_link(server: PtyServer, link: str) -> None:
+    """The stable symlink of --link; a path that cannot be made is a one-line mistake."""
+    if os.path.lexists(link):
+        server.close()
+        raise UserError(f"--link {link} already exists; pick another path or remove it first")
+    try:
+        os.symlink(server.path, link)
+    except OSError as exc:
+        server.close()
+        raise UserError(f"--link {link}: cannot make the link ({exc.strerror}); pick a path in a folder "
+                        "you can write") from None
+
+
 def list_text() -> list[str]:
     lines = []
     for name in list_boards():
@@ -72,16 +85,27 @@ def run(args: argparse.Namespace) -> int:
                      checksum=not args.no_checksum, script=not args.no_script, random_per_min=args.random)
     server = PtyServer(board)
     if args.link:
-        if os.path.lexists(args.link):
-            server.close()
-            raise UserError(f"--link {args.link} already exists; pick another path or remove it first")
-        os.symlink(server.path, args.link)
+        _make_link(server, args.link)
+    _announce(board, server, args)
+    _serve(server, args)
+    s = server.stats
+    print(f"  stopped: {board.injected.frames_sent} frames, {s.bytes_sent} bytes sent, {s.connects} "
+          f"connection(s)" + (f", {s.bytes_dropped} bytes dropped (client not reading)" if s.bytes_dropped
+                               else ""), file=sys.stderr, flush=True)
+    return 0
+
+
+def _announce(board: SimBoard, server: PtyServer, args: argparse.Namespace) -> None:
     spec = board.spec
-    _say(server.path)
+    _say(server.path)  # alone on the first line, for `head -1`
     faults = f", faults: {', '.join(args.fault)}" if args.fault else ""
     _say(f"  {spec.name}: {spec.channels} channels at {spec.rate_hz:g} Hz, {spec.method.kind}, seed "
          f"{args.seed}, speed {args.speed:g}x{faults}")
     _say(f"  keys: {', '.join(spec.names)}; write +KEY / -KEY lines to press and release. Ctrl-C stops.")
+
+
+def _serve(server: PtyServer, args: argparse.Namespace) -> None:
+    """Serve until Ctrl-C, SIGTERM or --duration; then close the pty and remove the --link."""
     end = None if args.duration is None else time.monotonic() + args.duration
     stopping = False
 
@@ -89,23 +113,17 @@ def run(args: argparse.Namespace) -> int:
         nonlocal stopping
         stopping = True
 
-    old = signal.signal(signal.SIGTERM, stop_now)
-
     def report(connected: bool) -> None:
         _say(f"  client {'connected' if connected else 'disconnected'}")
 
+    old = signal.signal(signal.SIGTERM, stop_now)
     try:
         server.serve(lambda: stopping or (end is not None and time.monotonic() >= end), report)
     except KeyboardInterrupt:
-        pass
+        pass  # Ctrl-C is how a user stops the server: not an error
     finally:
         signal.signal(signal.SIGTERM, old)
         server.close()
         if args.link:
-            with contextlib.suppress(OSError):
+            with contextlib.suppress(FileNotFoundError):  # the user may have removed it already
                 os.unlink(args.link)
-    s = server.stats
-    print(f"  stopped: {board.injected.frames_sent} frames, {s.bytes_sent} bytes sent, {s.connects} "
-          f"connection(s)" + (f", {s.bytes_dropped} bytes dropped (client not reading)" if s.bytes_dropped
-                               else ""), file=sys.stderr, flush=True)
-    return 0
