@@ -115,3 +115,16 @@ def test_thick_overlay_is_flagged_as_beyond_the_parallel_plate_model():
     # overlay under a 10 mm fingertip is past that, a 2 mm one is not.
     assert any("fringing" in n for n in estimate(inp("soda-lime-glass", thickness_mm=6)).notes)
     assert not any("fringing" in n for n in estimate(inp(thickness_mm=2)).notes)
+
+
+def test_estimated_noise_rms_matches_a_long_quiet_run_of_the_simulator():
+    # Two routes to the same number: the estimator's rms (white noise through the slope, plus the counter's
+    # sqrt(1/6) quantisation) and numpy's std of a minute of simulated readings in 2 s windows (so the
+    # slow drift stays out). Leaving the quantisation at sqrt(1/12) would be about 6 % low here.
+    spec = load_board("greenhouse")
+    quiet = dataclasses.replace(spec, script=(), loop_s=0.0)
+    events = Decoder().feed(SimBoard(quiet, seed=1).run_for(60.0), 0.0)
+    r = np.concatenate([e.readings for e in events if isinstance(e, FrameBlock)])[:, 0].astype(float)
+    measured = np.mean([r[i:i + 120].std() for i in range(0, len(r) - 120, 120)])
+    e = _board_estimate(spec, spec.pads[0])
+    assert measured == pytest.approx(e.noise_counts_rms, rel=0.03)
