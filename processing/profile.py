@@ -315,7 +315,7 @@ def load_profile(path: str | os.PathLike[str]) -> Profile:
     except OSError as exc:
         raise ProfileError([f"{p}: cannot read: {exc.strerror or exc}"]) from None
     try:
-        raw = tomllib.loads(data.decode("utf-8"))
+        raw = tomllib.loads(data.decode("utf-8-sig"))  # a byte order mark is not a mistake
     except UnicodeDecodeError:
         raise ProfileError([f"{p}: not UTF-8 text; a profile is a TOML file"]) from None
     except tomllib.TOMLDecodeError as exc:

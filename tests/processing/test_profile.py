@@ -304,3 +304,10 @@ def test_save_through_a_symlink_keeps_the_link(tmp_path):
     save_profile(second, link)
     assert link.is_symlink() and load_profile(real) == second and load_profile(link) == second
     assert load_profile(tmp_path / "real" / "p.toml.bak") == first
+
+
+def test_profile_saved_by_a_windows_editor_loads(tmp_path):
+    # Notepad and friends may start the file with a UTF-8 byte order mark and end lines with CR LF.
+    path = tmp_path / "p.toml"
+    path.write_bytes(b"\xef\xbb\xbf" + GOOD.replace("\n", "\r\n").encode("utf-8"))
+    assert load_profile(path) == load_profile(write(tmp_path, GOOD, "q.toml"))
