@@ -80,6 +80,17 @@ def _parse_one(item: str, acc: dict[str, list], rates: dict[str, float]) -> None
         raise UserError(f"fault {item!r} is not understood; fault items are {SYNTAX}")
     kind, arg, at = m["kind"], m["arg"], m["at"]
     at_s = _number(at, item, "the time after @", 0.0, 1e7) if at is not None else None
+    if kind in ("drop", "garble", "junk", "reset", "width", "stall"):
+        _stream_fault(item, kind, arg, at_s, acc, rates)
+    elif kind in ("open", "short", "noisy", "stuck"):
+        _pad_fault(item, kind, arg, at_s, acc)
+    else:
+        raise UserError(f"fault {item!r}: unknown fault {kind!r}; fault items are {SYNTAX}")
+
+
+def _stream_fault(item: str, kind: str, arg: str | None, at_s: float | None, acc: dict[str, list],
+                  rates: dict[str, float]) -> None:
+    """What the cable and the firmware do to the stream: rates, or events at a time."""
     if kind in ("drop", "garble", "junk"):
         if at_s is not None:
             raise UserError(f"fault {item!r}: {kind} takes a rate, not a time (e.g. {kind}:0.01)")
@@ -91,28 +102,32 @@ def _parse_one(item: str, acc: dict[str, list], rates: dict[str, float]) -> None
     elif kind == "width":
         if at_s is None:
             raise UserError(f"fault {item!r}: write width:N@SECONDS, e.g. width:7@3")
-        acc["width_changes"].append((at_s, int(_number(arg, item, "the width", 1, 256))))
-    elif kind == "stall":
+        width = _number(arg, item, "the width", 1, 256)
+        if width != int(width):
+            raise UserError(f"fault {item!r}: the width is a whole number of channels, e.g. width:7@3")
+        acc["width_changes"].append((at_s, int(width)))
+    else:
         if at_s is None:
             raise UserError(f"fault {item!r}: write stall:SECONDS@SECONDS, e.g. stall:2@4")
         acc["stalls"].append((at_s, _number(arg, item, "the stall length", 0.001, 3600)))
-    elif kind in ("open", "short", "noisy", "stuck"):
-        if not arg:
-            raise UserError(f"fault {item!r}: name the pad, e.g. {kind}:zone1")
-        pad, _, extra = arg.partition(":")
-        if kind == "noisy":
-            factor = _number(extra, item, "the noise factor", 1.0, 1000.0) if extra else 10.0
-            acc["noisy_pads"].append((pad, factor))
-        elif extra:
-            raise UserError(f"fault {item!r}: {kind} takes only a pad name")
-        elif kind == "stuck":
-            acc["stuck_keys"].append((pad, at_s or 0.0))
-        else:
-            acc["open_pads" if kind == "open" else "shorted_pads"].append(pad)
-        if kind != "stuck" and at_s is not None:
-            raise UserError(f"fault {item!r}: {kind} is there from the start; it takes no @time")
+
+
+def _pad_fault(item: str, kind: str, arg: str | None, at_s: float | None, acc: dict[str, list]) -> None:
+    """What a bad unit looks like: a pad open, shorted, noisy or stuck."""
+    if not arg:
+        raise UserError(f"fault {item!r}: name the pad, e.g. {kind}:zone1")
+    if kind != "stuck" and at_s is not None:
+        raise UserError(f"fault {item!r}: {kind} is there from the start; it takes no @time")
+    pad, _, extra = arg.partition(":")
+    if kind == "noisy":
+        factor = _number(extra, item, "the noise factor", 1.0, 1000.0) if extra else 10.0
+        acc["noisy_pads"].append((pad, factor))
+    elif extra:
+        raise UserError(f"fault {item!r}: {kind} takes only a pad name")
+    elif kind == "stuck":
+        acc["stuck_keys"].append((pad, at_s or 0.0))
     else:
-        raise UserError(f"fault {item!r}: unknown fault {kind!r}; fault items are {SYNTAX}")
+        acc["open_pads" if kind == "open" else "shorted_pads"].append(pad)
 
 
 @dataclass(slots=True)

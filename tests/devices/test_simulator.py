@@ -243,3 +243,19 @@ def test_padtune_sim_link_in_a_missing_folder_is_one_line(capsys, tmp_path):
     assert main(["sim", "greenhouse", "--link", str(link), "--duration", "0.1"]) == 2
     err = capsys.readouterr().err
     assert "cannot make the link" in err and len(err.strip().splitlines()) == 1, err
+
+
+@pytest.mark.parametrize("item, words", [
+    ("width:7.5@3", "whole number of channels"),
+    ("width:7", "write width:N@SECONDS"),
+    ("reset", "write reset@SECONDS"),
+    ("drop:0.1@2", "takes a rate, not a time"),
+    ("open:zone1@3", "takes no @time"),
+    ("short:stop:2", "takes only a pad name"),
+    ("noisy:dur1:0.5", "noise factor must be a number from 1 to 1000"),
+    ("melt:zone1", "unknown fault 'melt'"),
+])
+def test_fault_items_say_what_is_wrong(item, words):
+    with pytest.raises(UserError) as err:
+        FaultPlan.parse([item])
+    assert words in str(err.value) and "\n" not in str(err.value), str(err.value)
