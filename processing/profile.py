@@ -19,7 +19,14 @@ import tomli_w
 
 from processing.atomic import atomic_write_bytes
 from processing.groups import GroupSpec
-from processing.settings import LIMIT_KEYS, SETTING_KEYS, ChannelSettings, Limits, is_positive_number
+from processing.settings import (
+    LIMIT_KEYS,
+    MAX_COUNTS,
+    SETTING_KEYS,
+    ChannelSettings,
+    Limits,
+    is_positive_number,
+)
 from processing.slider import SliderSpec
 from protocol.errors import UserError
 
@@ -196,8 +203,9 @@ def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec,
         _unknown(where, g, GROUP_KEYS, out)
         name, margin = g.get("name"), g.get("switch_margin_counts", 0)
         _name_problem(where, name, out)
-        if not _is_int(margin) or margin < 0:
-            out.append((f"{where}switch_margin_counts", f"must be a whole number >= 0, not {margin!r}"))
+        if not _is_int(margin) or not 0 <= margin <= MAX_COUNTS:
+            out.append((f"{where}switch_margin_counts",
+                        f"must be a whole number from 0 to {MAX_COUNTS}, not {margin!r}"))
         members = _channel_refs(f"{where}members", g.get("members"), names, out)
         if members is not None and len(members) == 1:
             out.append((f"{where}members", "an exclusive group needs at least two members"))

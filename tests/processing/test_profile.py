@@ -165,7 +165,8 @@ def test_killed_writer_leaves_old_or_new_never_broken(tmp_path):
     (('members = ["zone1", "zone2"]', 'members = "zone1"'), "group[0].members: must be a non-empty list of channel names"),
     (('members = ["zone1", "zone2"]', 'members = ["zone1"]'), "group[0].members: an exclusive group needs at least two members"),
     (('members = ["zone1", "zone2"]', 'members = ["zone1", "zone1"]'), "group[0].members: lists a channel twice"),
-    (('name = "zones"', 'name = "zones"\nswitch_margin_counts = -1'), "group[0].switch_margin_counts: must be a whole number >= 0"),
+    (('name = "zones"', 'name = "zones"\nswitch_margin_counts = -1'), "group[0].switch_margin_counts: must be a whole number from 0 to 16777216"),
+    (('name = "zones"', 'name = "zones"\nswitch_margin_counts = 4294967296'), "group[0].switch_margin_counts: must be a whole number from 0 to 16777216"),  # the header's int32_t
     (('name = "zones"', 'name = "zones"\nmembrs = []'), "group[0].membrs: unknown key; did you mean 'members'?"),
     (('pads = ["zone1", "zone2", "stop"]', 'pads = ["zone1", "zone2"]'), "slider[0].pads: a wheel needs at least 3 pads"),
     (("wheel = true", "wheel = 1"), "slider[0].wheel: must be true or false"),
