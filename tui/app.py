@@ -23,6 +23,7 @@ from textual.widgets import Footer, Static
 
 from processing.detections import Rebaselined
 from protocol.errors import UserError
+from protocol.events import BoardChanged
 from tui.app_files import FileActions
 from tui.bindings import _COVERED_OFF, BINDINGS, help_rows
 from tui.describe import describe_detection, describe_event
@@ -130,6 +131,10 @@ class PadtuneApp(FileActions, App[int]):
             line = describe_event(ev)
             if line is not None:
                 log.add(self._since_start(ev.t_s), line)
+            if isinstance(ev, BoardChanged) and self.history.can_undo:
+                # Edits were for channels that no longer line up: they cannot be undone on this board.
+                self.history.clear()
+                log.add(self._since_start(ev.t_s), Text("ⓘ the board changed: the edit history was cleared"))
         rebased = [d for d in tick.detections if isinstance(d, Rebaselined)]
         if rebased:  # a new session re-baselines every channel at once: one line, not one per channel
             which = sorted({d.channel for d in rebased})
@@ -354,8 +359,13 @@ class PadtuneApp(FileActions, App[int]):
         if edit is None:
             self.notify(f"Nothing to {verb}.")
             return
-        for change in edit.changes:
-            self.source.apply(change.channel, change.after)
+        try:
+            for change in edit.changes:
+                self.source.apply(change.channel, change.after)  # type: ignore[arg-type]
+        except ValueError as exc:  # the channels changed under the edit (no board, another width)
+            self.history.clear()
+            self.notify(f"Cannot {verb}: {exc}. The edit history was cleared.", severity="warning")
+            return
         self._log(f"{verb}: {edit.description.removeprefix('undo ')}")
         self._redraw_soon()
         self.refresh_now_if_idle()
