@@ -20,14 +20,13 @@ import numpy as np
 from devices.boards import MAX_LINE_BYTES, frame_line_bytes, load_board
 from devices.faults import FaultPlan, Injected
 from devices.model import BoardModel, UnitFaults
-from devices.spec import BoardSpec
+from devices.spec import MAX_RANDOM_PER_MIN, BoardSpec
 from devices.touches import Contact, TouchPlan
 from protocol import encoder
 from protocol.errors import UserError
 
 SEQ_MODULO = 65536
 MAX_SEED = 2**63 - 1
-MAX_RANDOM_PER_MIN = 600.0  # ten touches a second: more than any hand, enough for load tests
 MAX_NOTE_CHARS = 400  # well inside protocol v1's 1024-byte line with its prefix and checksum
 MAX_ECHO_CHARS = 40  # how much of a bad host command an error note quotes back
 MAX_BLOCK_FRAMES = 4096  # bounds memory when a slow reader asks for a long stretch at once

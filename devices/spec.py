@@ -76,6 +76,10 @@ class ScriptTouch:
     body_f: float | None = None  # who touches: None = the board's [finger] body_pf
 
 
+MAX_RANDOM_PER_MIN = 600.0  # ten touches a second: more than any hand, enough for load tests
+MIN_RANDOM_HOLD_S = 0.02  # about a frame at 50 Hz; a touch shorter than its own ramps is no touch
+
+
 @dataclass(frozen=True, slots=True)
 class RandomTouchSpec:
     per_min: float = 0.0

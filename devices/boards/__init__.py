@@ -18,6 +18,8 @@ from devices import physics
 from devices.materials import get_material
 from devices.methods import method_from_table
 from devices.spec import (
+    MAX_RANDOM_PER_MIN,
+    MIN_RANDOM_HOLD_S,
     BoardSpec,
     FingerSpec,
     NoiseSpec,
@@ -349,6 +351,12 @@ class _Parser:
         if not isinstance(pads, list):
             raise self.fail("script.random.pads", "must be a list of pad names")
         values = {k: self.num(t, "script.random", k, getattr(defaults, k)) for k in keys - {"pads"}}
+        if values["per_min"] > MAX_RANDOM_PER_MIN:
+            raise self.fail("script.random.per_min", f"must be <= {MAX_RANDOM_PER_MIN:g}, got "
+                            f"{values['per_min']:g}")
+        if values["hold_min_s"] < MIN_RANDOM_HOLD_S:
+            raise self.fail("script.random.hold_min_s", f"must be >= {MIN_RANDOM_HOLD_S:g} s, got "
+                            f"{values['hold_min_s']:g}")
         if values["hold_min_s"] > values["hold_max_s"] or values["strength_min"] > values["strength_max"]:
             raise self.fail("script.random", "each _min must not exceed its _max")
         return RandomTouchSpec(pads=tuple(self.known_pad(p, "script.random.pads", names) for p in pads),

@@ -156,3 +156,14 @@ def test_grid_rows_must_be_whole(tmp_path):
     text = GOOD.split("[[pad]]")[0] + "[pad_grid]\nrows = 2.5\ncols = 2\npitch_mm = 10\n"
     with pytest.raises(UserError, match=r"pad_grid\.rows: must be a whole number"):
         load_board(write(tmp_path, text))
+
+
+@pytest.mark.parametrize("extra, words", [
+    ("[script.random]\nper_min = 1e9\n", "script.random.per_min: must be <= 600"),
+    ("[script.random]\nper_min = 10\nhold_min_s = 0\n", "script.random.hold_min_s: must be >= 0.02 s"),
+])
+def test_random_touches_are_bounded(tmp_path, extra, words):
+    # Unbounded rates with zero-length touches would make the touch plan loop without end.
+    with pytest.raises(UserError) as err:
+        load_board(write(tmp_path, GOOD + extra))
+    assert words in str(err.value), str(err.value)
