@@ -259,6 +259,8 @@ class RecordingWriter:
         return self._fd is None
 
     def write_events(self, events: Iterable[Event]) -> None:
+        if self._fd is None:  # closed, or abandoned after a write error: nothing may pile up in memory
+            return
         for event in events:
             if isinstance(event, FrameBlock):
                 self._write_block(event)
@@ -308,9 +310,19 @@ class RecordingWriter:
         data = "".join(self._buffer).encode("utf-8")
         self._buffer.clear()
         view = memoryview(data)
-        while view:
-            written = os.write(self._fd, view)
-            view = view[written:]
+        try:
+            while view:
+                written = os.write(self._fd, view)
+                view = view[written:]
+        except OSError as exc:
+            # A full disk or a vanished drive: stop writing, keep what reached the file, and say so in
+            # one line (the reader drops a partial last row, so the file stays readable).
+            os.close(self._fd)
+            self._fd = None
+            raise UserError(
+                f"writing the recording {self.path} failed ({exc.strerror}); the rows written before "
+                "this point are kept"
+            ) from None
         self._last_flush_s = self._clock()
 
     def close(self) -> None:

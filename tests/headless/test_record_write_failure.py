@@ -1,0 +1,58 @@
+"""A recording that cannot be written (a full disk) ends with one clear line, not a traceback.
+
+`/dev/full` is the Linux device whose every write fails with ENOSPC (documented in full(4)), the
+standard stand-in for a full disk.
+"""
+
+import os
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from processing.recording import RecordingWriter
+from protocol.errors import UserError
+from protocol.events import FrameBlock
+
+pytestmark = pytest.mark.skipif(not os.path.exists("/dev/full"), reason="needs Linux /dev/full")
+
+
+def _block(n: int, channels: int = 3) -> FrameBlock:
+    return FrameBlock(
+        t_s=np.arange(n, dtype=np.float64) * 0.01,
+        seq=np.arange(n, dtype=np.int64),
+        readings=np.full((n, channels), 1000, dtype=np.int64),
+        first_index=0,
+    )
+
+
+def test_writer_turns_a_full_disk_into_a_user_error():
+    # The header is written at once, so the very first write already meets the full disk.
+    with pytest.raises(UserError, match="No space left on device"):
+        RecordingWriter("/dev/full", overwrite=True)
+
+
+def test_writer_stops_buffering_after_a_failed_write(tmp_path):
+    writer = RecordingWriter(tmp_path / "r.csv", flush_interval_s=0.0)
+    os.close(writer._fd)  # the drive vanishes under the writer: every later write fails
+    writer._fd = os.open("/dev/full", os.O_WRONLY)
+    with pytest.raises(UserError, match="No space left on device"):
+        writer.write_events([_block(10)])
+    assert writer.closed
+    writer.write_events([_block(10)])  # after the failure nothing is kept in memory
+    assert writer._buffer == []
+    writer.close()
+    assert (tmp_path / "r.csv").read_text().startswith("# padtune recording")
+
+
+def test_record_command_on_a_full_disk_exits_2_with_one_line():
+    out = subprocess.run(
+        [sys.executable, "-m", "tui.cli", "record", "sim://greenhouse?speed=8&seed=3",
+         "-o", "/dev/full", "--force", "--duration", "3"],
+        capture_output=True, text=True, timeout=120,
+    )
+    assert out.returncode == 2, out.stderr
+    lines = out.stderr.strip().splitlines()
+    assert len(lines) == 1 and "No space left on device" in lines[0], out.stderr
+    assert "Traceback" not in out.stderr
