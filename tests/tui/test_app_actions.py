@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 import pytest
 from textual.pilot import Pilot
 
@@ -491,3 +492,40 @@ async def test_no_color_keeps_every_state_readable(monkeypatch: pytest.MonkeyPat
         await pilot.pause()
         text = screen_text(app)
         assert "▶ zone1" in text and "● TOUCH" in text and "· idle" in text and "┃" in text
+
+
+async def test_before_the_first_frame_keys_say_why_they_wait() -> None:
+    app, feed = make_app()
+    feed.queue.clear()  # not even the info line yet
+    async with app.run_test() as pilot:
+        app.refresh_now()
+        await pilot.press("plus", "enter", "a", "b", "d", "t", "d")
+        await pilot.pause()
+        assert "waiting for the board" in screen_text(app)
+        await pilot.press("s")
+        await type_into_prompt(pilot, "keys.toml")
+        assert "nothing to save yet" in str(app.screen.query_one("#prompt-error").render())
+        await pilot.press("escape")
+        assert app.is_running
+
+
+async def test_a_wider_board_rebuilds_the_table_and_drops_the_history() -> None:
+    from protocol.events import BoardChanged, FrameBlock
+
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("plus")
+        assert app.history.can_undo
+        n = 10
+        readings = 1000 + feed.rng.integers(-2, 3, size=(n, 8))
+        t = feed.t_s + (1 + np.arange(n)) / 100
+        feed.queue += [BoardChanged(float(t[0]), 5, 8),
+                       FrameBlock(t, np.arange(n), readings, feed.index)]
+        app.refresh_now()
+        await pilot.pause()
+        assert len(app.source.channel_names()) == 8
+        assert not app.history.can_undo
+        assert "edit history was cleared" in log_text(app)
+        await pilot.press("end")
+        assert app.cursor == 7
