@@ -403,7 +403,9 @@ class PadtuneApp(FileActions, App[int]):
         names = self.source.channel_names()
         if not 0 <= ch < len(names):
             return
-        self.source.press(ch, pressed)
+        if not self.source.press(ch, pressed):
+            self.notify("The board is not connected: the key press was not sent.", severity="warning")
+            return
         (self.held.add if pressed else self.held.discard)(ch)
 
     def action_tap(self) -> None:

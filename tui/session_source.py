@@ -38,7 +38,7 @@ class Producer(Protocol):
     """What the source needs of a link: `protocol.link.Link` provides it, and so can a test feed."""
 
     def drain(self, max_events: int | None = None) -> list[Event]: ...
-    def write(self, data: bytes) -> None: ...
+    def write(self, data: bytes) -> bool | None: ...
     @property
     def stats(self) -> LinkStats: ...
     @property
@@ -248,9 +248,11 @@ class SessionSource:
     def can_press(self) -> bool:
         return self.simulated
 
-    def press(self, channel: int, pressed: bool) -> None:
+    def press(self, channel: int, pressed: bool) -> bool:
+        """Send `+NAME` / `-NAME` to the board; False when the link could not send it now."""
         name = self.channel_names()[channel]
-        self.producer.write(f"{'+' if pressed else '-'}{name}\n".encode("ascii", "replace"))
+        sent = self.producer.write(f"{'+' if pressed else '-'}{name}\n".encode("ascii", "replace"))
+        return sent is not False
 
     # -- profile ----------------------------------------------------------------------------------
     def profile_path(self) -> Path | None:

@@ -54,8 +54,9 @@ class SyntheticFeed:
         out, self.queue = self.queue, []
         return out
 
-    def write(self, data: bytes) -> None:
+    def write(self, data: bytes) -> bool:
         self.written.append(data)
+        return True
 
     @property
     def stats(self) -> LinkStats:
@@ -100,8 +101,9 @@ class SimFeed:
         out, self.queue = self.queue, []
         return out
 
-    def write(self, data: bytes) -> None:
+    def write(self, data: bytes) -> bool:
         self.board.write(data)
+        return True
 
     @property
     def stats(self) -> LinkStats:
