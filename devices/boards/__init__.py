@@ -309,7 +309,7 @@ class _Parser:
                 out.append(ScriptTouch("finger", (self.known_pad(t["pad"], f"{where}.pad", names),), at_s,
                                        hold_s, strength, body_f=body))
             elif "slider" in t:
-                if t["slider"] not in by_slider:
+                if not isinstance(t["slider"], str) or t["slider"] not in by_slider:
                     raise self.fail(f"{where}.slider", f"no slider named {t['slider']!r}")
                 sl = by_slider[t["slider"]]
                 out.append(ScriptTouch("swipe", sl.pads, at_s, hold_s, strength, sl.name,
@@ -336,7 +336,7 @@ class _Parser:
             return self.num(t, where, "body_pf", low=1.0, high=2000.0) * 1e-12
         if "who" in t:
             people = {"standing": physics.BODY_STANDING_F, "isolated": physics.BODY_ISOLATED_F}
-            if t["who"] not in people:
+            if not isinstance(t["who"], str) or t["who"] not in people:
                 raise self.fail(f"{where}.who", f"{t['who']!r} is not known; use standing or isolated "
                                 "(or body_pf = N)")
             return people[t["who"]]

@@ -66,3 +66,54 @@ def test_readings_stay_inside_the_methods_range(board):
     assert d.stats.frames > 0 and d.stats.garbled == 0
     for block in blocks:
         assert block.readings.min() >= 0 and block.readings.max() <= b.spec.method.max_count
+
+
+def _leaves(data, path=()):
+    """Every (path, value) of a parsed TOML document, lists and tables included."""
+    yield path, data
+    if isinstance(data, dict):
+        for k, v in data.items():
+            yield from _leaves(v, (*path, k))
+    elif isinstance(data, list):
+        for i, v in enumerate(data):
+            yield from _leaves(v, (*path, i))
+
+
+def _replaced(data, path, value):
+    if not path:
+        return value
+    head, rest = path[0], path[1:]
+    if isinstance(data, dict):
+        return {**data, head: _replaced(data[head], rest, value)}
+    return [(_replaced(v, rest, value) if i == head else v) for i, v in enumerate(data)]
+
+
+TOML_VALUES = st.one_of(st.none(), st.booleans(), st.integers(-10**6, 10**6), st.floats(allow_nan=True),
+                        st.text(max_size=12), st.lists(st.integers(0, 3), max_size=3),
+                        st.dictionaries(st.sampled_from(["name", "x", "pad"]), st.integers(0, 3), max_size=2))
+
+
+@settings(max_examples=300, deadline=None)
+@given(data=st.data())
+def test_any_one_changed_value_in_a_board_file_loads_or_says_why(data):
+    # Whatever one value of a bundled board is changed to (any TOML type, or removed), reading the file
+    # either gives a board or a one-line UserError: never another exception.
+    import tomllib
+
+    from devices.boards import BOARDS_DIR, _Parser
+
+    name = data.draw(st.sampled_from(["greenhouse", "pumphouse", "grid64"]))
+    doc = tomllib.loads((BOARDS_DIR / f"{name}.toml").read_text())
+    paths = [p for p, _ in _leaves(doc) if p]
+    path = data.draw(st.sampled_from(paths))
+    value = data.draw(TOML_VALUES)
+    changed = _replaced(doc, path, value)
+    if value is None and isinstance(path[-1], str):  # None stands for "the key is left out"
+        parent = changed
+        for k in path[:-1]:
+            parent = parent[k]
+        del parent[path[-1]]
+    try:
+        _Parser(f"{name}.toml").board(changed, source="test")
+    except UserError as exc:
+        assert "\n" not in str(exc)
