@@ -56,6 +56,8 @@ MAX_THICKNESS_MM = 50.0
 MAX_PAD_MM = 200.0
 MAX_PARASITIC_PF = 1000.0
 MAX_AIR_GAP_MM = 20.0
+MAX_NOISE_PF = 100.0  # far past any pad's whole capacitance: a typo, not a board
+MAX_NOISE_COUNTS = 1e6
 FINGER_MM_RANGE = (1.0, 40.0)
 BODY_PF_RANGE = (1.0, 2000.0)
 
@@ -140,12 +142,6 @@ def _method(args: argparse.Namespace, board_method: object | None) -> object:
     return method_from_table(kind, _components(args, kind, base), where="--set")
 
 
-def _not_negative(value: float | None, option: str) -> float | None:
-    if _finite(value, option) is not None and value < 0:  # type: ignore[operator]
-        raise UserError(f"{option} cannot be negative, got {value:g}")
-    return value
-
-
 def _pad_and_parasitic(args: argparse.Namespace, fields: dict[str, object]) -> None:
     area = _pad_area_m2(args)
     if area is not None:
@@ -177,9 +173,9 @@ def build_input(args: argparse.Namespace) -> EstimateInput:
         "air_gap_m": (_within(args.air_gap_mm, "--air-gap-mm", (0.0, MAX_AIR_GAP_MM)), 1e-3),
         "finger_diameter_m": (_within(args.finger_mm, "--finger-mm", FINGER_MM_RANGE), 1e-3),
         "body_f": (_within(args.body_pf, "--body-pf", BODY_PF_RANGE), 1e-12),
-        "noise_pf": (_not_negative(args.noise_pf, "--noise-pf"), 1.0),
-        "noise_counts": (_not_negative(args.noise_counts, "--noise-counts"), 1.0),
-        "hum_pf": (_not_negative(args.hum_pf, "--hum-pf"), 1.0),
+        "noise_pf": (_within(args.noise_pf, "--noise-pf", (0.0, MAX_NOISE_PF)), 1.0),
+        "noise_counts": (_within(args.noise_counts, "--noise-counts", (0.0, MAX_NOISE_COUNTS)), 1.0),
+        "hum_pf": (_within(args.hum_pf, "--hum-pf", (0.0, MAX_NOISE_PF)), 1.0),
     }
     for key, (value, factor) in overrides.items():
         if value is not None:
