@@ -84,23 +84,34 @@ def test_fast_engine_identical_to_plain(trace, data):
 
 @FAST
 @given(traces())
-def test_never_a_touch_shorter_than_its_debounce(trace):
+def test_touch_and_release_exactly_after_their_debounce(trace):
+    # Never sooner (the N or M frames before the event all qualify) and never later (the frame before
+    # them did not), unless a re-baseline or stuck release intervened.
     readings, setts, polarity, sizes, rebase = trace
     _, events, deltas, _ = run(PlainEngine, readings, setts, polarity, sizes, rebase)
     touched_at: dict[int, int] = {}
+    special = {(ev.index, ev.channel) for ev in events if isinstance(ev, StuckRelease | Rebaselined)}
+
+    def undisturbed(c: int, first: int, last: int) -> bool:
+        return first >= 0 and not any((i, c) in special for i in range(first, last + 1))
+
     for ev in events:
-        s = setts[ev.channel]
+        s, c = setts[ev.channel], ev.channel
         if isinstance(ev, Touch):
             n = s.touch_debounce_frames
             assert ev.index + 1 >= n
-            assert (deltas[ev.index - n + 1:ev.index + 1, ev.channel] >= s.threshold_counts).all()
-            touched_at[ev.channel] = ev.index
+            assert (deltas[ev.index - n + 1:ev.index + 1, c] >= s.threshold_counts).all()
+            if undisturbed(c, ev.index - n, ev.index):  # and not later: the frame before the run was low
+                assert deltas[ev.index - n, c] < s.threshold_counts
+            touched_at[c] = ev.index
         elif isinstance(ev, Release):
             m = s.release_debounce_frames
-            assert ev.held_frames >= m and ev.index - touched_at.pop(ev.channel) == ev.held_frames
-            assert (deltas[ev.index - m + 1:ev.index + 1, ev.channel] < s.release_level_counts).all()
+            assert ev.held_frames >= m and ev.index - touched_at.pop(c) == ev.held_frames
+            assert (deltas[ev.index - m + 1:ev.index + 1, c] < s.release_level_counts).all()
+            if undisturbed(c, ev.index - m, ev.index):
+                assert deltas[ev.index - m, c] >= s.release_level_counts
         elif isinstance(ev, StuckRelease | Rebaselined):
-            touched_at.pop(ev.channel, None)
+            touched_at.pop(c, None)
 
 
 @FAST
