@@ -153,6 +153,28 @@ FILE_KEYS: dict[str, dict[str, tuple[str, float]]] = {
                     "timer_mhz": ("timer_hz", 1e6), "timer_bits": ("timer_bits", 1)},
 }
 _INT_ARGS = {"counter_bits", "adc_bits", "timer_bits"}
+# Plausible ranges of each component in file units: wide enough for any board, narrow enough that a
+# typo (1e160 ohm) is refused instead of overflowing the arithmetic.
+FILE_RANGES: dict[str, tuple[float, float]] = {
+    "r1_ohm": (1.0, 1e9), "r2_ohm": (1.0, 1e9), "r_ohm": (1.0, 1e9), "timing_pf": (0.1, 1e7),
+    "gate_ms": (0.001, 1e4), "sample_pf": (0.1, 1e6), "vdd_v": (0.1, 60.0), "vref_v": (0.1, 60.0),
+    "threshold_v": (0.01, 60.0), "timer_mhz": (0.001, 1e4),
+    "counter_bits": (4, 32), "adc_bits": (4, 32), "timer_bits": (4, 32),
+}
+
+
+def _component(raw: object, where: str, key: str, factor: float, whole: bool) -> float | int:
+    """One component from file units to SI, or a one-line UserError saying what range it must be in."""
+    if isinstance(raw, bool) or not isinstance(raw, int | float) or not math.isfinite(raw) or raw <= 0:
+        raise UserError(f"{where}: must be a positive number, got {raw!r}")
+    low, high = FILE_RANGES[key]
+    if whole:
+        if int(raw) != raw or not low <= raw <= high:
+            raise UserError(f"{where}: must be a whole number of bits from {low:g} to {high:g}, got {raw!r}")
+        return int(raw)
+    if not low <= raw <= high:
+        raise UserError(f"{where}: must be from {low:g} to {high:g}, got {raw!r}")
+    return float(raw) * factor
 
 
 def method_from_table(kind: str, table: dict[str, object], where: str = "method") -> Method:
@@ -167,14 +189,7 @@ def method_from_table(kind: str, table: dict[str, object], where: str = "method"
             hint = f" (did you mean {close[0]}?)" if close else ""
             raise UserError(f"{where}.{key}: not a {kind} setting{hint}; known: {', '.join(keys)}")
         arg, factor = keys[key]
-        if isinstance(raw, bool) or not isinstance(raw, int | float) or not math.isfinite(raw) or raw <= 0:
-            raise UserError(f"{where}.{key}: must be a positive number, got {raw!r}")
-        if arg in _INT_ARGS:
-            if int(raw) != raw or not 4 <= raw <= 32:
-                raise UserError(f"{where}.{key}: must be a whole number of bits from 4 to 32, got {raw!r}")
-            kwargs[arg] = int(raw)
-        else:
-            kwargs[arg] = float(raw) * factor
+        kwargs[arg] = _component(raw, f"{where}.{key}", key, factor, arg in _INT_ARGS)
     cls = METHOD_KINDS[kind]
     required = {f.name for f in dataclasses.fields(cls) if f.default is dataclasses.MISSING}
     missing = [k for k, (arg, _) in keys.items() if arg in required and arg not in kwargs]

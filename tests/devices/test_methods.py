@@ -105,6 +105,8 @@ def test_method_from_table_converts_units_and_reports_mistakes():
         ("charge_time", {"r_ohm": 1e6, "vdd_v": 3.3, "threshold_v": 5, "timer_mhz": 48}, "below vdd_v"),
         ("charge_share", {"sample_pf": -3}, "positive number"),
         ("charge_share", {"sample_pf": 20, "adc_bits": 12.5}, "whole number"),
+        ("charge_share", {"sample_pf": 1e160}, "must be from 0.1 to 1e+06"),
+        ("oscillator", {"r1_ohm": 1e3, "r2_ohm": 1e3, "timing_pf": 10, "gate_ms": float("inf")}, "positive"),
         ("sigma_delta", {}, "unknown method"),
     ]:
         with pytest.raises(UserError) as err:

@@ -1,5 +1,8 @@
 """Property tests (hypothesis): the simulator's promises hold for any cuts, inputs and fault plans."""
 
+import argparse
+import json
+
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -9,6 +12,8 @@ from devices.simulator import SimBoard
 from protocol.decoder import Decoder
 from protocol.errors import UserError
 from protocol.events import FrameBlock
+from tui.commands.estimate import build_input, register
+from tui.commands.estimate import estimate as run_estimate
 
 REFERENCE = {}
 
@@ -117,3 +122,32 @@ def test_any_one_changed_value_in_a_board_file_loads_or_says_why(data):
         _Parser(f"{name}.toml").board(changed, source="test")
     except UserError as exc:
         assert "\n" not in str(exc)
+
+
+ESTIMATE_FLOATS = ("--pad-diameter-mm", "--parasitic-pf", "--thickness-mm", "--air-gap-mm", "--finger-mm",
+                   "--body-pf", "--noise-pf", "--noise-counts", "--hum-pf")
+
+
+@settings(max_examples=300, deadline=None)
+@given(values=st.dictionaries(st.sampled_from(ESTIMATE_FLOATS), st.floats(), max_size=4),
+       method=st.sampled_from(["charge_time", "charge_share", "oscillator"]),
+       sets=st.lists(st.tuples(st.sampled_from(["r_ohm", "timer_mhz", "sample_pf", "adc_bits", "timing_pf",
+                                                "gate_ms", "vdd_v", "threshold_v"]),
+                               st.floats()), max_size=2))
+def test_any_estimate_options_give_finite_json_or_one_line(values, method, sets):
+    # Whatever numbers a designer types, `padtune estimate --json` prints strict JSON (no NaN or
+    # Infinity, which json.dumps(allow_nan=False) refuses) or refuses the input in one line.
+    parser = argparse.ArgumentParser()
+    register(parser.add_subparsers())
+    argv = ["estimate", "--material", "acrylic", "--thickness-mm", "3", "--method", method]
+    for option, value in values.items():
+        argv += [f"{option}={value!r}"]
+    for key, value in sets:
+        argv += ["--set", f"{key}={value!r}"]
+    args = parser.parse_args(argv)
+    try:
+        result = run_estimate(build_input(args))
+    except UserError as exc:
+        assert "\n" not in str(exc)
+        return
+    json.dumps(result.as_dict(), allow_nan=False)
