@@ -128,3 +128,12 @@ def test_estimated_noise_rms_matches_a_long_quiet_run_of_the_simulator():
     measured = np.mean([r[i:i + 120].std() for i in range(0, len(r) - 120, 120)])
     e = _board_estimate(spec, spec.pads[0])
     assert measured == pytest.approx(e.noise_counts_rms, rel=0.03)
+
+
+def test_estimate_verdict_bounds_are_the_live_ones():
+    # devices may not import processing, so the bounds are repeated: they must stay the same numbers.
+    from devices.estimate import SNR_PP_SOLID_ABOVE, SNR_PP_WEAK_BELOW
+    from processing.measure import VerdictBounds
+
+    live = VerdictBounds()
+    assert live.weak_below == SNR_PP_WEAK_BELOW and live.solid_above == SNR_PP_SOLID_ABOVE
