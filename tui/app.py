@@ -36,13 +36,14 @@ from tui.screens.help import HelpScreen
 from tui.screens.prompt import PromptScreen
 from tui.source import LiveSource, Tick
 from tui.widgets.channel_table import ChannelTable
-from tui.widgets.detail_panel import DetailPanel
+from tui.widgets.detail_panel import DetailPanel, Spectrum
 from tui.widgets.event_log import EventLog
 from tui.widgets.groups_panel import GroupsPanel
 from tui.widgets.link_strip import LinkStrip
 
 # Sparkline buckets handed to the table; it shrinks them to the width it has (48 cells at most).
 SPARK_POINTS = 48
+SPECTRUM_EVERY_S = 1.0
 
 class PadtuneApp(FileActions, App[int]):
     """The live screen over one `LiveSource`. `ui_hz=0` disables the timer (tests call `refresh_now`)."""
@@ -73,6 +74,7 @@ class PadtuneApp(FileActions, App[int]):
         self._edit_bar_key: tuple[object, ...] | None = None
         self._table: ChannelTable | None = None
         self._widgets: dict[tuple[object, object], Any] = {}
+        self._spectrum_cache: tuple[int, float, Spectrum | None] | None = None
 
     # -- layout -----------------------------------------------------------------------------------
     def compose(self) -> ComposeResult:
@@ -188,11 +190,21 @@ class PadtuneApp(FileActions, App[int]):
         if not names:
             return
         ch = self.cursor
-        spectrum = self.source.spectrum(ch) if self.spectrum else None
+        spectrum = self._spectrum_for(ch) if self.spectrum else None
         self._main(DetailPanel).show(
             names[ch], self.source.series(ch), spectrum, self.source.settings(ch), self.field_key,
             list(self.recent.get(ch, ())), self.source.rate_hz,
         )
+
+    def _spectrum_for(self, ch: int) -> Spectrum | None:
+        """The noise spectrum, recomputed at most once a second (it covers seconds of frames anyway)."""
+        now = self.clock()
+        cached = self._spectrum_cache
+        if cached is not None and cached[0] == ch and now - cached[1] < SPECTRUM_EVERY_S:
+            return cached[2]
+        spectrum = self.source.spectrum(ch)
+        self._spectrum_cache = (ch, now, spectrum)
+        return spectrum
 
     def _main(self, selector: str | type, expect_type: type | None = None) -> Any:
         """A widget of the live screen, whichever screen (help, a prompt, the capture) is on top.

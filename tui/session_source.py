@@ -16,8 +16,9 @@ from typing import Protocol
 
 import numpy as np
 
+from processing.detections import KeyState
 from processing.fixed import to_counts
-from processing.measure import ChannelQuality
+from processing.measure import MIN_SPECTRUM_SAMPLES, ChannelQuality, spectrum_peak
 from processing.profile import Profile, load_profile, save_profile
 from processing.recording import RecordingWriter
 from processing.session import Session
@@ -214,13 +215,17 @@ class SessionSource:
         return Series(t.copy(), reading.astype(np.float64), (reading - pol * delta).astype(np.float64), pol)
 
     def spectrum(self, channel: int) -> Spectrum | None:
+        """Amplitude spectrum of the same frames `Measures.spectrum` uses (the newest unbroken run of
+        untouched frames in the noise window), with its peak and mains-alias check as the summary."""
         m = self.session.measures
         if m is None:
             return None
-        peak = m.spectrum(channel)
-        samples = m.released_deltas(channel).astype(np.float64)
-        if len(samples) < 16:
-            return Spectrum(np.zeros(1), np.zeros(1), "not enough untouched frames yet for a spectrum")
+        _, _, deltas, states = m.history.last(m.window_frames)
+        broken = np.flatnonzero(states[:, channel] != KeyState.RELEASED)
+        samples = deltas[int(broken[-1]) + 1 if len(broken) else 0:, channel].astype(np.float64)
+        if len(samples) < MIN_SPECTRUM_SAMPLES:
+            return Spectrum(np.zeros(1), np.zeros(1), "not enough untouched frames yet: hands off a moment")
+        peak = spectrum_peak(samples, m.rate_hz)
         window = np.hanning(len(samples))
         amp = 2.0 * np.abs(np.fft.rfft((samples - samples.mean()) * window)) / window.sum()
         freq = np.fft.rfftfreq(len(samples), 1.0 / m.rate_hz)

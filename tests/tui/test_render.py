@@ -134,3 +134,27 @@ def test_all_quality_matches_measures_quality_per_channel() -> None:
     _, _, d, s = m.history.last(len(m.history))
     released = d[s[:, 0] == KeyState.RELEASED, 0][-m.window_frames:]
     assert fast[0].noise.rms_counts == pytest.approx(float(np.std(released)), rel=1e-12)
+
+
+def test_spectrum_peak_matches_measures_and_finds_an_injected_tone() -> None:
+    # A 12 Hz sine of amplitude 3 counts sampled at 100 Hz: the plot's peak and the summary agree with
+    # Measures.spectrum (processing's definition), and the frequency is the tone's (numpy.fft).
+    from tests.tui.feeds import SyntheticFeed
+    from tui.session_source import SessionSource
+
+    feed = SyntheticFeed(noise_counts=0)
+    source = SessionSource(feed)
+    source.poll()
+    t = np.arange(400) / 100.0
+    tone = np.round(3 * np.sin(2 * np.pi * 12.0 * t)).astype(np.int64)
+    from protocol.events import FrameBlock
+
+    readings = 1000 + np.repeat(tone[:, None], len(feed.names), axis=1)
+    feed.queue.append(FrameBlock(t + 1.0, np.arange(400), readings, 0))
+    source.poll()
+    spec = source.spectrum(0)
+    ref = source.session.measures.spectrum(0)
+    assert spec is not None and ref is not None
+    assert spec.freq_hz[int(np.argmax(spec.amplitude_counts))] == pytest.approx(ref.freq_hz, abs=0.01)
+    assert ref.freq_hz == pytest.approx(12.0, abs=0.5)
+    assert f"{ref.freq_hz:.1f} Hz" in spec.summary
