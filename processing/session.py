@@ -149,15 +149,25 @@ class Session:
         found: list[DetectionEvent] = list(self.engine.process(block))
         deltas, states = self.engine.last_deltas, self.engine.last_states
         self.measures.ingest(block.t_s, block.readings, deltas, states)
-        moved = {ev.channel: ev.index - block.first_index for ev in found
-                 if isinstance(ev, Rebaselined | StuckRelease)}  # a new zero: older deltas are not its noise
-        self.measures.restart_noise(moved, deltas, states)
+        self.measures.restart_noise(self._new_zeros(block.first_index, found), deltas, states)
         for tracker in (*self.groups, *self.sliders):
             found.extend(tracker.update(block.first_index, block.t_s, deltas, states))
         if len(self.groups) + len(self.sliders):
             found.sort(key=lambda e: e.index)
         self._estimate_rate()
         return found
+
+    @staticmethod
+    def _new_zeros(first_index: int, found: list[DetectionEvent]) -> dict[int, int]:
+        """Per channel, the first row of the block measured against a new baseline: older deltas are not its
+        noise. A re-baselined frame has delta 0 already; a stuck release's frame still the old delta."""
+        rows: dict[int, int] = {}
+        for ev in found:
+            if isinstance(ev, Rebaselined):
+                rows[ev.channel] = ev.index - first_index
+            elif isinstance(ev, StuckRelease):
+                rows[ev.channel] = ev.index - first_index + 1
+        return rows
 
     def _info(self, line: BoardInfo) -> None:
         """A line with `proto` starts a new session; one without updates the session's info key by key."""

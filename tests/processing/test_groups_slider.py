@@ -37,6 +37,9 @@ def test_centroid_hand_worked_slider():
     assert centroid_position([80, 40, 0, 0], wheel=False, resolution=100) == 11
     # negative deltas weigh nothing: [-30, 0, 90, -5] -> num = 180, den = 90: 2.0 -> 66
     assert centroid_position([-30, 0, 90, -5], wheel=False, resolution=100) == 66
+    # a tie for the strongest pad goes to the lower one: [50, 100, 100, 0] -> pad 1 with pads 0 and 2:
+    # num = 0*50 + 1*100 + 2*100 = 300, den = 250 -> 300*99 / 750 = 39 (39.6). (Pad 2 would give 49.)
+    assert centroid_position([50, 100, 100, 0], wheel=False, resolution=100) == 39
 
 
 def test_centroid_hand_worked_wheel_wraps():

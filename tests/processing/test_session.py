@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from processing.detections import GroupChange, Rebaselined, Release, SliderChange, Touch
+from processing.detections import GroupChange, Rebaselined, Release, SliderChange, StuckRelease, Touch
 from processing.groups import GroupSpec
 from processing.profile import Profile
 from processing.session import Session
@@ -183,3 +183,23 @@ def test_noise_window_starts_again_at_a_rebaseline():
     noise = s.measures.noise(0)
     assert noise.samples == 30 and noise.pp_counts == 2
     assert s.measures.noise(1).samples > 30  # other channels keep their window
+
+
+def test_noise_after_a_stuck_release_counts_only_frames_after_it():
+    # Hand-worked: released at 1000 +- 30 (pp 60), then held at 1300 from row 30 (touch at once), released
+    # by the stuck timeout at row 40 (held 10 frames; that frame's delta is still 300, against the old
+    # baseline), then 1300 or 1301: the noise is the 29 frames after the stuck release, pp 1.
+    p = Profile(names=NAMES, defaults=ChannelSettings(threshold_counts=100, hysteresis_counts=10,
+                                                      touch_debounce_frames=1, release_debounce_frames=1,
+                                                      baseline_period_frames=256, stuck_timeout_frames=10))
+    s = Session(p)
+    s.handle([info(), frames(np.full((10, 4), 1000))])
+    rows = np.full((70, 4), 1000)
+    rows[:30:2, 0] += 30
+    rows[1:30:2, 0] -= 30
+    rows[30:, 0] = 1300
+    rows[41::2, 0] += 1
+    out = s.handle([frames(rows, 10)])
+    assert [(type(ev), ev.index) for ev in out if ev.channel == 0] == [(Touch, 40), (StuckRelease, 50)]
+    noise = s.measures.noise(0)
+    assert noise.samples == 29 and noise.pp_counts == 1
