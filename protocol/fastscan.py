@@ -127,9 +127,10 @@ def scan(buf: bytes, max_line_bytes: int) -> Scan:
     is_num = is_digit | is_minus
     is_space = (arr == 0x20) | (arr == 0x09)
     is_comma = arr == 0x2C
-    bad = ~(is_num | is_space | is_comma | (arr == 0x40))
-    _mark_bad_minus(arr, is_digit, is_space, is_comma, is_lf, bad)
-    _mark_bad_at(arr, bad)
+    is_at = arr == 0x40
+    bad = ~(is_num | is_space | is_comma | is_at)
+    _mark_bad_minus(is_minus, is_digit, is_space, is_comma, is_lf, bad)
+    _mark_bad_at(arr, is_at, bad)
     _mark_double_commas(is_space, is_comma, bad)
     if not _SATURATES:
         _mark_long_digit_runs(is_digit, bad)
@@ -151,11 +152,11 @@ def scan(buf: bytes, max_line_bytes: int) -> Scan:
 
 
 def _mark_bad_minus(
-    arr: np.ndarray, is_digit: np.ndarray, is_space: np.ndarray, is_comma: np.ndarray, is_lf: np.ndarray,
-    bad: np.ndarray,
+    is_minus: np.ndarray, is_digit: np.ndarray, is_space: np.ndarray, is_comma: np.ndarray,
+    is_lf: np.ndarray, bad: np.ndarray,
 ) -> None:
     """A minus must start a value: after a separator or at the line start, and before a digit."""
-    pos = np.flatnonzero(arr == 0x2D)
+    pos = np.flatnonzero(is_minus)
     if not len(pos):
         return
     before = np.maximum(pos - 1, 0)
@@ -163,9 +164,9 @@ def _mark_bad_minus(
     bad[pos[~after_ok | ~is_digit[pos + 1]]] = True
 
 
-def _mark_bad_at(arr: np.ndarray, bad: np.ndarray) -> None:
+def _mark_bad_at(arr: np.ndarray, is_at: np.ndarray, bad: np.ndarray) -> None:
     """`@` may only open a line."""
-    pos = np.flatnonzero(arr == 0x40)
+    pos = np.flatnonzero(is_at)
     if len(pos):
         bad[pos[(pos > 0) & (arr[np.maximum(pos - 1, 0)] != 0x0A)]] = True
 
