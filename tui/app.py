@@ -44,6 +44,7 @@ from tui.widgets.link_strip import LinkStrip
 # Sparkline buckets handed to the table; it shrinks them to the width it has (48 cells at most).
 SPARK_POINTS = 48
 SPECTRUM_EVERY_S = 1.0
+DETAIL_EVERY_S = 0.5
 
 class PadtuneApp(FileActions, App[int]):
     """The live screen over one `LiveSource`. `ui_hz=0` disables the timer (tests call `refresh_now`)."""
@@ -166,7 +167,9 @@ class PadtuneApp(FileActions, App[int]):
         table.show(self.source.channel_views(SPARK_POINTS))
         self._main(GroupsPanel).show(self.source.group_views(), self.source.slider_views())
         self._draw_edit_bar()
-        if self.detail and (self._tick_count % 4 == 1 or self.ui_hz == 0):
+        # The plot is plotext (pure Python, tens of ms a build): twice a second is live enough for it.
+        every = max(1, round(self.ui_hz * DETAIL_EVERY_S))
+        if self.detail and (self.ui_hz == 0 or self._tick_count % every == 1):
             self._draw_detail()
         self.frames_drawn += 1
 
