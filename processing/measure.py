@@ -218,6 +218,8 @@ class Measures:
         self._released = ColumnRing(self.window_frames, channels)
         self._touched = ColumnRing(touched_frames, channels)
         self._signal_cache: dict[int, tuple[int, float | None]] = {}
+        # per channel, the history frame number (History.written counts) from which frames count as noise
+        self.noise_start_frame = np.zeros(channels, np.int64)
 
     @property
     def rate_hz(self) -> float:
@@ -247,13 +249,15 @@ class Measures:
 
     def restart_noise(self, first_rows: dict[int, int], deltas: np.ndarray, states: np.ndarray) -> None:
         """Start noise windows again (a re-baseline moved the zero): `first_rows` maps a channel to the
-        first row of the block just ingested that counts for it."""
+        first row of the block just ingested that counts for it. `noise_start_frame` records it for code
+        that recomputes noise from `history` (frames before it are not the channel's noise)."""
         if not first_rows:
             return
         cols = np.array(list(first_rows), np.int64)
         begin = np.array(list(first_rows.values()), np.int64)
         for c in cols.tolist():
             self._released.clear(c)
+        self.noise_start_frame[cols] = self.history.written - len(states) + begin
         mask = np.zeros(states.shape, bool)
         rows = np.arange(len(states))[:, None]
         mask[:, cols] = (rows >= begin[None, :]) & (states[:, cols] == KeyState.RELEASED)

@@ -203,3 +203,9 @@ def test_noise_after_a_stuck_release_counts_only_frames_after_it():
     assert [(type(ev), ev.index) for ev in out if ev.channel == 0] == [(Touch, 40), (StuckRelease, 50)]
     noise = s.measures.noise(0)
     assert noise.samples == 29 and noise.pp_counts == 1
+    # the same frames from the history, for code that recomputes noise there
+    h = s.measures.history
+    _, _, d, st = h.last(len(h))
+    first = int(s.measures.noise_start_frame[0]) - (h.written - len(h))
+    assert first == 10 + 41
+    assert d[first:, 0][st[first:, 0] == 0].tolist() == s.measures.released_deltas(0).tolist()
