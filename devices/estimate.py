@@ -22,7 +22,8 @@ from devices.methods import Method
 # The same bounds as processing.measure's verdict (devices may not import processing).
 SNR_PP_WEAK_BELOW = 5.0  # common practice, no source
 SNR_PP_SOLID_ABOVE = 10.0  # common practice, no source
-THICK_OVERLAY_RATIO = 0.3  # overlay + gap beyond this share of the fingertip's width: fringing matters
+# Overlay + gap past this share of the fingertip's width: fringing matters (rule of thumb, no source).
+THICK_OVERLAY_RATIO = 0.3
 PP_PER_RMS = 6.0  # peak-to-peak of Gaussian noise over a few hundred samples (common practice, no source)
 
 # Components used when the designer names a method but not its parts (everyday units, like board files).

@@ -17,7 +17,7 @@ EPSILON_0_F_PER_M = 8.8541878188e-12
 
 BODY_STANDING_F = 200e-12  # person standing on a floor: 100..300 pF (common practice, no source)
 BODY_ISOLATED_F = 50e-12  # insulated from ground: a few tens of pF (common practice, no source)
-FINGER_CONTACT_DIAMETER_M = 10e-3  # a pressed fingertip is about 8..12 mm across (common practice)
+FINGER_CONTACT_DIAMETER_M = 10e-3  # a pressed fingertip is about 8..12 mm across (common practice, no source)
 WATER_FLOAT_F = 1e-12  # a loose water film's own capacitance to its surroundings (assumption, no source)
 
 
