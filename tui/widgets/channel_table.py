@@ -44,10 +44,12 @@ class ChannelTable(Widget):
 
     # -- data in ----------------------------------------------------------------------------------
     def show(self, views: Sequence[ChannelView]) -> None:
-        """Replace the rows (called by the app's screen timer) and redraw."""
+        """Replace the rows (called by the app's screen timer) and redraw what changed."""
         if len(views) != len(self._views):
             self._views = views
             self.refresh(layout=True)  # the table's height follows its row count
+        elif list(views) == list(self._views):
+            return  # nothing new (a silent board, a slow one between frames): no redraw at all
         self._views = views
         self.cursor = self.validate_cursor(self.cursor)
         self._scroll_to_cursor()
