@@ -14,14 +14,22 @@ import importlib
 import pkgutil
 import sys
 from collections.abc import Sequence
+from typing import NoReturn
 
 import devices
 from tui import commands
 from tui.errors import UserError
 
 
+class OneLineParser(argparse.ArgumentParser):
+    """An argparse parser whose usage errors are one line that points at `--help` (exit 2)."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(2, f"{self.prog}: {message} (see '{self.prog} --help')\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = OneLineParser(
         prog="padtune",
         description="Bring up and tune capacitive touch keys live over a serial port.",
     )
