@@ -60,7 +60,7 @@ class PtyServer:
                 self.stats.connects += 1
                 self.board.generate_until(self.board.sim_time_s)
                 self.board.take()  # what was made while nobody listened is gone
-                self.board.command("?")
+                self.board.announce()  # a new client is a new session
             if on_change:
                 on_change(present)
         if not present:

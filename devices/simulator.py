@@ -94,15 +94,20 @@ class SimBoard:
         self._t0 = self.clock() - self._next_frame / self.spec.rate_hz / self.speed
 
     # --- what the board says ----------------------------------------------------------------------
-    def info_fields(self) -> dict[str, object]:
+    def info_fields(self, announce: bool = True) -> dict[str, object]:
+        """The info line's keys; `announce` adds `proto`, which starts a new session on the host.
+
+        An answer to `?` leaves `proto` out (PROTOCOL.md, "Host to board"): asking must not re-baseline.
+        """
         names = self.spec.names[: self._width]
         names += tuple(f"ch{i}" for i in range(len(names), self._width))
-        return {"proto": 1, "board": self.spec.name, "channels": self._width,
+        lead: dict[str, object] = {"proto": 1} if announce else {}
+        return {**lead, "board": self.spec.name, "channels": self._width,
                 "rate": f"{self.spec.rate_hz:g}", "names": ",".join(names), "method": self.spec.method.kind,
                 "polarity": "+" if self.spec.method.polarity > 0 else "-", "fw": self.spec.fw}
 
-    def info_line(self) -> bytes:
-        return encoder.encode_info(self.info_fields(), checksum=self.checksum)
+    def info_line(self, announce: bool = True) -> bytes:
+        return encoder.encode_info(self.info_fields(announce), checksum=self.checksum)
 
     def _note(self, text: str) -> None:
         # A board file or a host's command may say anything: one ASCII line that fits the protocol.
@@ -112,9 +117,13 @@ class SimBoard:
         self._pending += encoder.encode_note(plain, checksum=self.checksum)
         self.injected.notes += 1
 
-    def _emit_info(self) -> None:
-        self._pending += self.info_line()
+    def _emit_info(self, announce: bool = True) -> None:
+        self._pending += self.info_line(announce)
         self.injected.infos += 1
+
+    def announce(self) -> None:
+        """Send the info line with `proto`, as a board does when a host connects to it while running."""
+        self._emit_info(announce=True)
 
     def _emit_boot(self) -> None:
         self._note(f"{self.spec.name} simulated board, seed {self.seed}: {self.spec.description}")
@@ -251,7 +260,7 @@ class SimBoard:
         if not text:
             return
         if text == "?":
-            self._emit_info()
+            self._emit_info(announce=False)
             return
         if text[0] in "+-" and len(text) > 1:
             target, _, amount = text[1:].partition("=")

@@ -68,8 +68,30 @@ def test_question_mark_answers_with_the_info_line():
     board.write(b"?")
     assert board.take() == b""  # not a full line yet
     board.write(b"\n")
-    assert board.take() == board.info_line()
-    assert b"channels=64" in board.info_line() and b"polarity=-" in board.info_line()
+    answer = board.take()
+    assert answer == board.info_line(announce=False)
+    assert b"channels=64" in answer and b"polarity=-" in answer
+    # The answer carries no proto: asking must not start a new session (PROTOCOL.md, host to board).
+    assert b"proto=" not in answer and b"proto=1" in board.info_line()
+
+
+def test_asking_for_the_info_keeps_a_held_key_touched():
+    from processing.detections import KeyState, Rebaselined, Release
+    from processing.session import Session
+    from processing.settings import ChannelSettings
+    from protocol.decoder import Decoder
+
+    board = SimBoard("greenhouse", seed=2, script=False)
+    decoder, session = Decoder(), Session()
+    session.handle(decoder.feed(board.run_for(3.0), 0.0))
+    session.set_channel_settings(0, ChannelSettings(threshold_counts=30, hysteresis_counts=8))
+    board.press("zone1", True)
+    session.handle(decoder.feed(board.run_for(1.0), 0.0))
+    assert session.rows()[0].state == KeyState.TOUCHED
+    board.write(b"?\n")
+    after = session.handle(decoder.feed(board.run_for(0.5), 0.0))
+    assert not [e for e in after if isinstance(e, Release | Rebaselined)]
+    assert session.rows()[0].state == KeyState.TOUCHED
 
 
 def test_press_and_release_by_command_and_by_call():
