@@ -20,6 +20,9 @@ from tui.headless.ports import StopFlag, add_port_args, load_profile_arg, open_l
 from tui.headless.production import UnitProbe, evaluate, touch_figures
 
 TICK_S = 0.02
+# A board that resets when its port opens (many USB boards do) may take a couple of seconds to send
+# its first frame; the hands-off time counts from that frame (common practice, no source).
+FIRST_FRAME_WAIT_S = 5.0
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -31,7 +34,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_port_args(p)
     p.add_argument("--profile", metavar="F", required=True, help="profile TOML with the [limits] to check")
     p.add_argument("--duration", metavar="S", type=seconds, default=3.0,
-                   help="hands-off measuring time in seconds (default %(default)s)")
+                   help="hands-off measuring time in seconds from the first frame (default %(default)s)")
     p.add_argument("--touch", action="store_true", help="then ask for each key in turn and check its SNR")
     p.add_argument("--touch-timeout", metavar="S", type=seconds, default=10.0,
                    help="with --touch: seconds to wait for each key (default %(default)s)")
@@ -46,6 +49,16 @@ def _poll(link: Any, probe: UnitProbe, until_s: float, stop: StopFlag, done: Any
         if done is not None and done():
             return
         time.sleep(TICK_S)
+
+
+def _quiet_phase(link: Any, probe: UnitProbe, duration_s: float, stop: StopFlag) -> bool:
+    """Wait for the first frame, then measure hands off for `duration_s`; False when no frame came."""
+    wait_s = max(FIRST_FRAME_WAIT_S, duration_s)
+    _poll(link, probe, time.monotonic() + wait_s, stop, lambda: probe.quiet_frames > 0)
+    if probe.quiet_frames == 0:
+        return False
+    _poll(link, probe, time.monotonic() + duration_s, stop)
+    return True
 
 
 def _touch_phase(link: Any, probe: UnitProbe, names: list[str], timeout_s: float, stop: StopFlag,
@@ -81,8 +94,7 @@ def run(args: argparse.Namespace) -> int:
     probe = UnitProbe(session, origin)
     try:
         with StopFlag() as stop:
-            _poll(link, probe, origin + args.duration, stop)
-            if session.engine is None and not stop.stopped:
+            if not _quiet_phase(link, probe, args.duration, stop) and not stop.stopped:
                 return _dead_unit(args, time.monotonic() - origin)
             names = list(session.names)
             if profile is not None and profile.channels != session.channels:
