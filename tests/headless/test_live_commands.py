@@ -26,6 +26,50 @@ from tests.headless.test_offline_commands import ReportParser
 
 pytestmark = pytest.mark.e2e
 RATE_HZ = 60.0  # the greenhouse board's frame rate
+WATER_START_S = 23.0  # the script's water film on zone3 and zone4
+BACKLOG_S = 60  # sim:// keeps this many seconds for a reader that stalls (a loaded CI machine)
+WAIT_S = 30.0  # generous: the machine running the tests may be loaded
+
+
+class LineWatcher:
+    """Collects a child's stdout lines in a thread, so a test waits on a condition with a deadline
+    instead of blocking in readline() or sleeping and hoping."""
+
+    def __init__(self, stream) -> None:
+        self.lines: list[str] = []
+        self._thread = threading.Thread(target=self._read, args=(stream,), daemon=True)
+        self._thread.start()
+
+    def _read(self, stream) -> None:
+        for line in stream:
+            self.lines.append(line)
+
+    def wait_for(self, condition, what: str) -> None:
+        deadline = time.monotonic() + WAIT_S
+        while not condition(self.lines):
+            assert time.monotonic() < deadline, f"timed out waiting for {what}: {self.lines[-5:]}"
+            time.sleep(0.02)
+
+    def wait_text(self, text: str) -> None:
+        self.wait_for(lambda lines: any(text in line for line in lines), text)
+
+    def finish(self) -> str:
+        self._thread.join(WAIT_S)
+        return "".join(self.lines)
+
+
+def recorded_rows(path: Path) -> int:
+    """Whole data rows a recording holds on disk by now (a row being written is not counted)."""
+    if not path.exists():
+        return 0
+    return sum(1 for line in path.read_text().split("\n")[:-1] if line[:1].isdigit())
+
+
+def wait_rows(path: Path, rows: int) -> None:
+    deadline = time.monotonic() + WAIT_S
+    while recorded_rows(path) < rows:
+        assert time.monotonic() < deadline, f"{path} holds {recorded_rows(path)} of {rows} rows"
+        time.sleep(0.05)
 
 
 @pytest.fixture(scope="module")
@@ -49,8 +93,10 @@ def profiles(tmp_path_factory):
 
 
 def test_monitor_json_matches_the_simulated_touch_script(profiles):
-    url = "sim://greenhouse?speed=4&seed=3"
-    out = padtune("monitor", url, "--profile", str(profiles / "tuned.toml"), "--json", "--duration", "6",
+    # 7 s at 4x covers the script to the long zone2 hold (ends at 21.5 s) even when the start is slow on
+    # a loaded machine; a generous backlog keeps a stalled test process from losing frames.
+    url = f"sim://greenhouse?speed=4&seed=3&backlog_s={BACKLOG_S}"
+    out = padtune("monitor", url, "--profile", str(profiles / "tuned.toml"), "--json", "--duration", "7",
                   "--every", "2")
     assert out.returncode == 0, out.stderr
     events = json_lines(out.stdout)
@@ -59,17 +105,20 @@ def test_monitor_json_matches_the_simulated_touch_script(profiles):
     hello = next(e for e in events if e["type"] == "hello")
     assert hello["board"] == "greenhouse" and hello["channels"] == 9 and hello["rate_hz"] == RATE_HZ
     statuses = [e for e in events if e["type"] == "status"]
-    assert len(statuses) >= 2 and len(statuses[0]["channels"]) == 9
+    assert len(statuses) >= 2 and len(statuses[-1]["channels"]) == 9  # the first may precede the board
     fields = {"name", "reading", "baseline", "delta", "state", "noise", "snr"}
-    assert set(statuses[0]["channels"][0]) == fields
+    assert set(statuses[-1]["channels"][0]) == fields
     summary = events[-1]
     assert summary["type"] == "summary" and summary["lost"] == 0 and summary["garbled"] == 0
     # Frame index n is sim time n / rate exactly: compare detections with the script in sim time.
     sim_s = summary["frames"] / RATE_HZ
     assert sim_s > 20.0, "the run must cover the script up to the long zone2 hold"
-    truth = SimBoard("greenhouse", seed=3).touches.truth(sim_s - 1.0)
+    # Up to the water film at 23 s: whether a film reads as a touch is the tuning's business, not this test's.
+    horizon_s = min(sim_s - 1.0, WATER_START_S - 0.5)
+    truth = SimBoard("greenhouse", seed=3).touches.truth(horizon_s)
+    assert not [c for c in truth if c.kind == "water"]
     touches = [{**e, "t": e["index"] / RATE_HZ} for e in events if e["type"] == "touch"]
-    touches = [t for t in touches if t["t"] < sim_s - 1.0]
+    touches = [t for t in touches if t["t"] < horizon_s]
     profile = load_profile(profiles / "tuned.toml")
     debounce = max(s.touch_debounce_frames for s in profile.all_settings())
     missing, extra = match_touches(touches, truth, RATE_HZ, debounce, profile.names)
@@ -98,7 +147,7 @@ def test_monitor_with_record_then_replay_gives_the_same_events(profiles, tmp_pat
 
 def test_monitor_human_lines_are_plain_when_piped(profiles):
     out = padtune("monitor", "sim://greenhouse?speed=4&seed=3", "--profile", str(profiles / "tuned.toml"),
-                  "--duration", "2", env={"NO_COLOR": ""})
+                  "--duration", "3", env={"NO_COLOR": ""})  # zone1 is touched at 2 s of sim time (0.5 s)
     assert out.returncode == 0, out.stderr
     assert "\x1b[" not in out.stdout
     assert "touch    zone1" in out.stdout and "summary after" in out.stdout
@@ -109,7 +158,7 @@ def test_record_survives_kill_9(tmp_path):
     proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "record", "sim://greenhouse?speed=2&seed=4",
                              "-o", str(path)], cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     try:
-        deadline = time.monotonic() + 30
+        deadline = time.monotonic() + WAIT_S
         while time.monotonic() < deadline:  # wait until frames are on disk, then let it run a while
             if path.exists() and path.read_text().count("\n") > 20:
                 break
@@ -182,7 +231,7 @@ def test_check_touch_step_over_a_pseudo_terminal(profiles):
     thread.start()
     proc = subprocess.Popen(
         [sys.executable, "-m", "tui.cli", "check", server.path, "--profile", str(profiles / "limits.toml"),
-         "--duration", "1", "--touch", "--touch-timeout", "4", "--json"],
+         "--duration", "1", "--touch", "--touch-timeout", "8", "--json"],
         cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
         env={**os.environ, "NO_COLOR": "1"})
     asked = []
@@ -241,7 +290,8 @@ def test_link_faults_show_as_link_events_and_in_the_summary(tmp_path):
     url = ("sim://greenhouse?speed=4&seed=2&fault=drop:0.02&fault=junk:0.01&fault=garble:0.01"
            "&fault=reset@6&fault=width:7@14")
     rec = tmp_path / "faults.csv"
-    out = padtune("monitor", url, "--json", "--duration", "4.5", "--record", str(rec))
+    # 6 s at 4x reaches the width change at 14 s of sim time with room for a slow start.
+    out = padtune("monitor", url, "--json", "--duration", "6", "--record", str(rec))
     assert out.returncode == 0, out.stderr
     events = json_lines(out.stdout)
     link = [e for e in events if e["type"] == "link"]
@@ -260,17 +310,21 @@ def test_link_faults_show_as_link_events_and_in_the_summary(tmp_path):
 
 def test_monitor_without_duration_ends_on_sigterm_with_a_summary():
     proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "monitor", "sim://greenhouse?speed=4",
-                             "--json"], cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+                             "--json", "--every", "0.2"], cwd=ROOT, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+    watcher = LineWatcher(proc.stdout)
     try:
-        first = proc.stdout.readline()  # the link is up once it reports
-        assert '"type":"link"' in first
-        time.sleep(0.5)
+        # A status with channels: frames have gone through detection, so the summary must count them.
+        watcher.wait_for(lambda lines: any('"type":"status"' in x and '"name"' in x for x in lines),
+                         "a status with channels")
         proc.send_signal(signal.SIGTERM)
-        out, err = proc.communicate(timeout=20)
+        proc.wait(WAIT_S)
+        out, err = watcher.finish(), proc.stderr.read()
     finally:
         if proc.poll() is None:
             proc.kill()
     assert proc.returncode == 0, err
+    assert json_lines(out)[0]["type"] == "link"
     assert json_lines(out)[-1]["type"] == "summary" and json_lines(out)[-1]["frames"] > 0
 
 
@@ -287,7 +341,7 @@ def test_record_on_a_terminal_marks_a_moment_on_enter(tmp_path):
                             env={**os.environ, "NO_COLOR": "1", "TERM": "xterm"})
     os.close(slave)
     seen = bytearray()
-    deadline = time.monotonic() + 30
+    deadline = time.monotonic() + WAIT_S
 
     def read_until(text: bytes) -> None:
         while text not in seen and time.monotonic() < deadline:
@@ -298,6 +352,7 @@ def test_record_on_a_terminal_marks_a_moment_on_enter(tmp_path):
 
     try:
         read_until(b"Enter marks a moment")
+        wait_rows(path, 1)  # frames are on disk, so the recording holds some when it stops
         os.write(master, b"zone1 by hand\n")
         read_until(b"mark at")
         proc.send_signal(signal.SIGTERM)
@@ -404,34 +459,30 @@ def test_monitor_reports_an_unplug_and_the_replug(tmp_path):
     board = PtyBoard(tmp_path)
     info = encode_info({"proto": 1, "board": "bench", "channels": 2, "rate": 100, "names": "a,b"})
     block = lambda first, n: encode_frames(1000 + np.zeros((n, 2), np.int64), first, checksum=True)  # noqa: E731
-    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "monitor", str(board.path), "--json"], cwd=ROOT,
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
-    lines: list[str] = []
-
-    def wait_for(text: str) -> None:
-        deadline = time.monotonic() + 30
-        while not any(text in line for line in lines) and time.monotonic() < deadline:
-            lines.append(proc.stdout.readline())
-        assert any(text in line for line in lines), lines
-
+    rec = tmp_path / "unplug.csv"
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "monitor", str(board.path), "--json",
+                             "--record", str(rec)], cwd=ROOT, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+    watcher = LineWatcher(proc.stdout)
     try:
-        wait_for('"event":"connected"')
+        watcher.wait_text('"event":"connected"')
         board.send(info + block(0, 40))
-        wait_for('"type":"hello"')
-        time.sleep(0.3)
+        watcher.wait_text('"type":"hello"')
+        wait_rows(rec, 40)  # every frame read before the unplug (closing the pty drops unread bytes)
         board.unplug()
-        wait_for('"event":"disconnected"')
+        watcher.wait_text('"event":"disconnected"')
         board.plug()
-        wait_for('"event":"reconnected"')
+        watcher.wait_text('"event":"reconnected"')
         board.send(block(40, 40))
-        time.sleep(0.5)
+        wait_rows(rec, 80)
         proc.send_signal(signal.SIGTERM)
-        out, _ = proc.communicate(timeout=20)
+        proc.wait(WAIT_S)
+        out = watcher.finish()
     finally:
         if proc.poll() is None:
             proc.kill()
         board.close()
-    events = json_lines("".join(lines) + out)
+    events = json_lines(out)
     summary = events[-1]
     assert summary["type"] == "summary" and summary["frames"] == 80 and summary["lost"] == 0
     states = [e["event"] for e in events if e["type"] == "link"]
