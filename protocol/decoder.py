@@ -11,45 +11,24 @@ from __future__ import annotations
 
 import numpy as np
 
-from protocol.events import BoardInfo, Event, LinkStats
+from protocol.decoder_plain import PlainDecoder
+from protocol.events import Event
 from protocol.fastscan import Scan, ScanMismatch, scan
-from protocol.framing import Framer
-from protocol.rules import LineRules
 from protocol.smallbatch import decode_lines
 
 BATCH_BYTES = 1 << 18  # bounds the scan's temporary arrays (about 10 bytes per input byte)
 SCAN_MIN_BYTES = 10_000  # below this smallbatch's regex way beats the fixed cost of a scan
 
 
-class Decoder:
-    """Feed bytes, get events. `stats`, `info` (the session's merged info) and `channels` are live."""
+class Decoder(PlainDecoder):
+    """Feed bytes, get events. `stats`, `info` (the session's merged info) and `channels` are live.
+
+    The same state and rules as `PlainDecoder`; only `feed` differs, taking frames in bulk.
+    """
 
     def __init__(self, max_line_bytes: int = 1024) -> None:
-        self.max_line_bytes = max_line_bytes
-        self._framer = Framer(max_line_bytes)
-        self._rules = LineRules(max_line_bytes)
+        super().__init__(max_line_bytes)
         self.last_fallback = ""  # why the bulk scan last gave up on a batch (it should never)
-
-    @property
-    def stats(self) -> LinkStats:
-        return self._rules.stats
-
-    @property
-    def info(self) -> BoardInfo | None:
-        return self._rules.info
-
-    @property
-    def channels(self) -> int | None:
-        return self._rules.channels
-
-    @property
-    def buffered_bytes(self) -> int:
-        """Bytes of an unfinished line held for the next feed (never more than max_line_bytes)."""
-        return self._framer.buffered_bytes
-
-    def drop_partial(self) -> int:
-        """Forget an unfinished line, so bytes from before a reconnect never join bytes after it."""
-        return self._framer.drop_partial()
 
     def feed(self, data: bytes | bytearray | memoryview, t_s: float) -> list[Event]:
         rules = self._rules

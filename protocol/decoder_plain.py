@@ -12,7 +12,10 @@ from protocol.rules import LineRules
 
 
 class PlainDecoder:
+    """One line at a time; the state (framer, rules, statistics) the fast decoder shares."""
+
     def __init__(self, max_line_bytes: int = 1024) -> None:
+        self.max_line_bytes = max_line_bytes
         self._framer = Framer(max_line_bytes)
         self._rules = LineRules(max_line_bytes)
 
@@ -27,6 +30,11 @@ class PlainDecoder:
     @property
     def channels(self) -> int | None:
         return self._rules.channels
+
+    @property
+    def buffered_bytes(self) -> int:
+        """Bytes of an unfinished line held for the next feed (never more than max_line_bytes)."""
+        return self._framer.buffered_bytes
 
     def drop_partial(self) -> int:
         """Forget an unfinished line, so bytes from before a reconnect never join bytes after it."""
