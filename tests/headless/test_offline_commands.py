@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from html.parser import HTMLParser
 
 import numpy as np
@@ -111,9 +112,10 @@ class ReportParser(HTMLParser):
 
     def handle_starttag(self, tag, attrs):
         a = dict(attrs)
-        for attr in ("src", "href"):
-            if a.get(attr) and not a[attr].startswith("#"):
-                self.external.append(a[attr])
+        for name, value in attrs:  # src, href and xlink:href: only links inside the page
+            if (name in ("src", "href") or name.endswith(":href")) and value and not value.startswith("#"):
+                self.external.append(value)
+        self.external += [v for v in a.values() if v and re.search(r"url\((?!#)|@import", v)]
         if tag == "tr" and "data-key" in a:
             self._row = {}
             self.rows.setdefault(a["data-key"], []).append(self._row)
@@ -135,6 +137,8 @@ class ReportParser(HTMLParser):
             self._figure = None
 
     def handle_data(self, data):
+        if re.search(r"url\((?!#)|@import", data):  # a stylesheet (or SVG style) fetching something
+            self.external.append(data.strip()[:80])
         if self._row is not None and self._field:
             self._row[self._field] += data
 

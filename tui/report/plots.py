@@ -36,7 +36,8 @@ def _figure(width_in: float = 6.4, height_in: float = 2.4) -> tuple[Figure, Axes
 
 def _svg(fig: Figure) -> str:
     buf = io.StringIO()
-    fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "padtune"})
+    # No metadata block: it only adds an RDF header with outside namespace URLs to every plot.
+    fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None, "Format": None, "Type": None})
     text = buf.getvalue()
     return text[text.index("<svg"):]  # the XML prolog and doctype do not belong inside HTML
 
