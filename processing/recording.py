@@ -236,15 +236,20 @@ class RecordingWriter:
         self._buffer: list[str] = []
         self._last_flush_s = clock()
         flags = os.O_WRONLY | os.O_CREAT | (os.O_TRUNC if overwrite else os.O_EXCL)
+        if self.path.is_dir():
+            raise UserError(f"{self.path} is a folder: give the recording's file name (such as run.csv)")
         try:
             self._fd: int | None = os.open(self.path, flags, 0o644)
         except FileExistsError:
             raise UserError(
-                f"{self.path} already exists: choose another file name or allow overwriting"
+                f"{self.path} already exists: choose another file name, or overwrite it "
+                "(--force on the command line)"
             ) from None
         except OSError as exc:
             raise UserError(f"cannot create recording {self.path}: {exc.strerror}") from None
-        head = [FORMAT_LINE + "\n", f"# start_utc={utc_stamp(wall_clock())}\n"]
+        # start_utc is the wall time of the origin (t_s = 0), which may lie before this call.
+        start_epoch_s = wall_clock() - (clock() - self.origin_t_s)
+        head = [FORMAT_LINE + "\n", f"# start_utc={utc_stamp(start_epoch_s)}\n"]
         if source:
             head.append(f"# source={_enc(source)}\n")
         for key, value in (meta or {}).items():
@@ -329,11 +334,15 @@ class RecordingWriter:
         if self._fd is None:
             return
         try:
-            self.flush()
+            self.flush()  # on a failed write this closes the file itself and raises UserError
             os.fsync(self._fd)
+        except OSError as exc:
+            raise UserError(f"writing the recording {self.path} failed ({exc.strerror}); the rows "
+                            "written before this point are kept") from None
         finally:
-            os.close(self._fd)
-            self._fd = None
+            if self._fd is not None:
+                os.close(self._fd)
+                self._fd = None
 
     def __enter__(self) -> RecordingWriter:
         return self

@@ -115,6 +115,9 @@ class PadtuneApp(FileActions, App[int]):
             return
         self._tick_count += 1
         self._log_tick(tick)
+        for problem in tick.errors:  # a recording that could not be written (a full disk): say why
+            self._log(f"✗ {problem}")
+            self.notify(problem, severity="error", timeout=10)
         with self.batch_update():
             view = self._link_view()
             self._main(LinkStrip).show(view)

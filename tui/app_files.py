@@ -34,7 +34,13 @@ class FileActions:
     # -- recording --------------------------------------------------------------------------------
     def action_toggle_recording(self) -> None:
         if self.source.link_view().recording:
-            path = self.source.stop_recording()
+            try:
+                path = self.source.stop_recording()
+            except UserError as exc:  # its last rows could not be written (a full disk)
+                self.notify(str(exc), severity="error", timeout=10)
+                self._log(f"✗ recording stopped: {exc}")
+                self.refresh_now_if_idle()
+                return
             self.notify(f"Recording saved to {path}")
             self._log(f"recording stopped: {path}")
             self.refresh_now_if_idle()
@@ -65,8 +71,8 @@ class FileActions:
             return
         names = self.source.channel_names()
         text = f"mark at {names[self.cursor]}" if names else "mark"
-        self.source.mark(text)
-        self._log(text)
+        if self.source.mark("note", text=text):
+            self._log(text)
 
     # -- profile ----------------------------------------------------------------------------------
     def _after_save(self, path: Path, what: str) -> None:

@@ -7,6 +7,7 @@ line; once the screen is up, the link reconnects by itself and the screen shows 
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
 
 from processing.profile import Profile, load_profile
@@ -30,6 +31,8 @@ def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = Fal
         app.run()
     finally:
         link.stop()
+    for problem in source.exit_problems:  # after the screen is gone, so they stay readable
+        print(f"padtune: {problem}", file=sys.stderr)
     return int(app.return_code or 0)
 
 

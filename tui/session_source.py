@@ -65,6 +65,9 @@ class SessionSource:
         self._fps, self._fps_t_s = 0.0, -1e9
         self._last_frame_t_s: float | None = None
         self._recorder: RecordingWriter | None = None
+        self._recording_error: str | None = None  # why the last recording stopped by itself
+        self._errors: deque[str] = deque()  # for the next tick: things that went wrong between polls
+        self.exit_problems: list[str] = []
 
     # -- data in ----------------------------------------------------------------------------------
     @property
@@ -85,8 +88,9 @@ class SessionSource:
         tick.detections = list(self.session.handle(events))
         if self._saved is None and self.session.profile is not None:
             self._saved = self.session.profile  # the defaults the board came up with: nothing to save yet
-        if self._recorder is not None:
-            self._recorder.write_events(events)
+        self._record(events)
+        while self._errors:
+            tick.errors.append(self._errors.popleft())
         now = self.clock()
         if tick.frames:
             self._last_frame_t_s = now
@@ -193,6 +197,7 @@ class SessionSource:
             bad_checksum=stats.bad_checksum, resets=stats.resets, overflow=stats.overflow,
             detail=self._status_detail, board=(info.board if info else None),
             recording=str(self._recorder.path) if self._recorder else None,
+            recording_error=self._recording_error,
             profile_name=path.name if path else "(not saved yet)", unsaved=self.unsaved(),
             silent_s=self._silent_s(),
         )
@@ -305,20 +310,61 @@ class SessionSource:
         if self._recorder is not None:
             raise UserError(f"already recording to {self._recorder.path}")
         self._recorder = RecordingWriter(path, source=self.port, clock=self.clock, info=self.session.info)
+        self._recording_error = None
 
     def stop_recording(self) -> Path | None:
+        """Close the recording; raises UserError when its last rows could not be written (disk full)."""
         rec, self._recorder = self._recorder, None
         if rec is None:
             return None
-        rec.close()
+        try:
+            rec.close()
+        except UserError as exc:
+            self._recording_error = str(exc)
+            raise
         return rec.path
 
-    def mark(self, text: str) -> None:
-        if self._recorder is not None:
-            self._recorder.mark(self.clock(), "note", text=text)
+    def mark(self, kind: str = "note", channel: str | None = None, text: str = "",
+             t_s: float | None = None) -> bool:
+        """Write a mark (`processing.recording.MARK_KINDS`) at `t_s` (default now) into the recording.
+
+        False when nothing is being recorded. A failed write stops the recording and is reported in
+        the next tick's `errors`, like a failure while frames are written: callers never see it raise.
+        A mark kind that does not exist is a programming error and raises UserError.
+        """
+        rec = self._recorder
+        if rec is None:
+            return False
+        try:
+            rec.mark(self.clock() if t_s is None else t_s, kind, channel, text)
+        except UserError as exc:
+            if not rec.closed:
+                raise  # an unknown kind: nothing was written and the recording goes on
+            self._recording_failed(exc)
+            return False
+        return True
+
+    def _record(self, events: list[Event]) -> None:
+        """Hand a poll's events to the recording (the writer flushes on its own schedule, even with none)."""
+        if self._recorder is None:
+            return
+        try:
+            self._recorder.write_events(events)
+        except UserError as exc:  # a full disk, a vanished drive: the writer has closed its file
+            self._recording_failed(exc)
+
+    def _recording_failed(self, exc: UserError) -> None:
+        self._recorder = None
+        self._recording_error = str(exc)
+        self._errors.append(f"recording stopped: {exc}")
 
     def close(self) -> None:
-        self.stop_recording()
+        """Stop the recording at exit. A failure to write its last rows is kept in `exit_problems`
+        (the screen is closing: `tui.live.run_live` prints them once it is gone)."""
+        try:
+            self.stop_recording()
+        except UserError as exc:
+            self.exit_problems.append(str(exc))
 
 
 def _finite(value: float | None) -> float | None:

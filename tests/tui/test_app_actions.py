@@ -6,6 +6,7 @@ which is exactly what the timer does, so nothing depends on threads or wall time
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 import numpy as np
@@ -16,6 +17,7 @@ from processing.detections import KeyState
 from processing.profile import load_profile
 from processing.recording import read_recording
 from processing.session import Session
+from protocol.errors import UserError
 from tests.tui.feeds import SimFeed, SyntheticFeed, log_text, screen_text
 from tui.app import BINDINGS, PadtuneApp, help_rows
 from tui.demo_profile import demo_profile
@@ -529,3 +531,89 @@ async def test_a_wider_board_rebuilds_the_table_and_drops_the_history() -> None:
         assert "edit history was cleared" in log_text(app)
         await pilot.press("end")
         assert app.cursor == 7
+
+
+async def test_a_full_disk_stops_the_recording_says_why_and_the_app_runs_on(tmp_path: Path) -> None:
+    app, feed = make_app()
+    target = tmp_path / "full.csv"
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        await pilot.press("r")
+        await type_into_prompt(pilot, str(target))
+        run(app, feed, 0.5)
+        assert "⏺ REC" in screen_text(app)
+        # The disk fills up: every write from now on fails as on a full disk (ENOSPC from /dev/full).
+        writer = app.source._recorder  # type: ignore[attr-defined]
+        full = os.open("/dev/full", os.O_WRONLY)
+        os.dup2(full, writer._fd)
+        os.close(full)
+        run(app, feed, 1.0)  # the writer flushes every 0.25 s: the failure comes inside a screen tick
+        await pilot.pause()
+        shown = screen_text(app)
+        assert "REC FAILED" in shown and "No space left on device" in shown
+        assert "recording stopped" in log_text(app) and "No space left on device" in log_text(app)
+        assert any("No space left" in n.message for n in app._notifications)
+        assert app.source.link_view().recording is None
+        run(app, feed, 0.5)  # the app goes on; detection too
+        feed.set_touch(0, 300)
+        run(app, feed, 0.5)
+        assert "● TOUCH" in screen_text(app)
+        await pilot.press("m")  # nothing recording now: says so, does not raise
+        assert "Not recording" in "".join(n.message for n in app._notifications)
+    assert target.exists()
+
+
+async def test_a_recording_to_dev_full_fails_on_stop_with_the_reason(tmp_path: Path) -> None:
+    app, feed = make_app()
+    async with app.run_test() as pilot:
+        run(app, feed, 0.2)
+        source = app.source
+        source.start_recording(tmp_path / "r.csv")  # type: ignore[attr-defined]
+        writer = source._recorder  # type: ignore[attr-defined]
+        full = os.open("/dev/full", os.O_WRONLY)
+        os.dup2(full, writer._fd)
+        os.close(full)
+        feed.advance(0.05)
+        source.poll()  # buffered, not yet flushed (the flush comes every 0.25 s)
+        await pilot.press("r")  # stop: the last rows cannot be written
+        await pilot.pause()
+        assert "REC FAILED" in screen_text(app)
+        assert "recording stopped" in log_text(app)
+        assert not isinstance(app.screen, PromptScreen)
+
+
+def test_source_mark_writes_typed_marks_and_reports_a_failed_write(tmp_path: Path) -> None:
+    feed = SyntheticFeed()
+    source = SessionSource(feed, port="test://feed", clock=lambda: feed.t_s)
+    feed.advance(0.5)
+    source.poll()
+    assert source.mark("note", text="before") is False  # not recording
+    source.start_recording(tmp_path / "m.csv")
+    feed.advance(0.5)
+    source.poll()
+    assert source.mark("touch-start", "zone2", "hold zone 2")
+    assert source.mark("touch-end", "zone2", t_s=feed.t_s + 0.1)
+    with pytest.raises(UserError, match="unknown mark kind"):
+        source.mark("touch-begin", "zone2")
+    assert source.link_view().recording is not None  # a bad kind writes nothing and stops nothing
+    path = source.stop_recording()
+    assert path is not None
+    marks = read_recording(path).marks
+    assert [(m.kind, m.channel, m.text) for m in marks] == [("touch-start", "zone2", "hold zone 2"),
+                                                            ("touch-end", "zone2", "")]
+    assert marks[1].t_s == pytest.approx(marks[0].t_s + 0.1)
+
+    source.start_recording(tmp_path / "m2.csv")
+    writer = source._recorder
+    assert writer is not None
+    full = os.open("/dev/full", os.O_WRONLY)
+    os.dup2(full, writer._fd)  # type: ignore[arg-type]
+    os.close(full)
+    writer.flush_interval_s = 0.0  # the mark is handed to the disk at once, and fails
+    assert source.mark("note", text="lost") is False
+    assert source.link_view().recording is None
+    assert "No space left" in (source.link_view().recording_error or "")
+    feed.advance(0.05)
+    assert any("recording stopped" in e for e in source.poll().errors)
+    source.close()
+    assert source.exit_problems == []

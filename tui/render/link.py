@@ -55,6 +55,9 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
     if view.recording:
         text.append("⏺ REC ", pick(styles, "bad"))
         text.append(view.recording if not compact else view.recording.rsplit("/", 1)[-1])
+    elif view.recording_error:
+        text.append("✗ REC FAILED", pick(styles, "bad"))
+        text.append(f" ({_why(view.recording_error)})", pick(styles, "bad"))
     else:
         text.append("rec off", pick(styles, "dim"))
     text.append_text(sep)
@@ -63,3 +66,10 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
     if view.unsaved:
         text.append(" *unsaved", pick(styles, "warn"))
     return text
+
+
+def _why(error: str) -> str:
+    """The cause in a failed recording's message (`... failed (No space left on device); ...`)."""
+    start, end = error.find("("), error.find(")")
+    reason = error[start + 1:end] if 0 <= start < end else error
+    return reason if len(reason) <= 30 else reason[:29] + "…"

@@ -58,6 +58,7 @@ class LinkView:
     detail: str = ""
     board: str | None = None
     recording: str | None = None  # path while recording
+    recording_error: str | None = None  # why the last recording stopped by itself (a full disk)
     profile_name: str = "(defaults)"
     unsaved: bool = False
     paused: bool = False

@@ -271,10 +271,7 @@ def open_capture(app: Any) -> None:
 
     def marker(mark: Mark) -> None:
         # While the app records, the capture's stretches go into the file as marks, so the same
-        # recording can be re-tuned (`padtune tune`) or replayed against its marks later. The source
-        # has no public way to write a typed mark yet: this reaches its writer when there is one.
-        writer = getattr(source, "_recorder", None)
-        if writer is not None:
-            writer.mark(mark.t_s, mark.kind, mark.channel, mark.text)
+        # recording can be re-tuned (`padtune tune`) or replayed against its marks later.
+        source.mark(mark.kind, mark.channel, mark.text, t_s=mark.t_s)
 
     app.push_screen(CaptureScreen(session, clock=getattr(app, "clock", time.monotonic), marker=marker), done)
