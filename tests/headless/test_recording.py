@@ -223,3 +223,13 @@ def test_kill_minus_nine_loses_at_most_the_flush_interval(tmp_path):
     # at most the last second; the writer hands rows over every 0.25 s.
     lost_s = killed_at - (origin_t_s + t_s[-1])
     assert 0.0 <= lost_s < 1.0
+
+
+def test_start_utc_is_the_wall_time_of_the_origin(tmp_path):
+    """An origin taken before the port opened (as `record` and `monitor` do) dates the file from it."""
+    w = RecordingWriter(tmp_path / "o.csv", origin_t_s=99.5, clock=FakeClock(100.0), wall_clock=lambda: 60.0)
+    w.write_events([block(0, 100.0, [[1]])])
+    w.close()
+    rec = read_recording(tmp_path / "o.csv")
+    assert rec.meta["start_utc"] == "1970-01-01T00:00:59.500000Z"
+    assert rec.arrays()[0].tolist() == [0.5]

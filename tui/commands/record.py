@@ -40,9 +40,11 @@ def _read_marks(lines: queue.Queue[str]) -> None:
 def run(args: argparse.Namespace) -> int:
     clock = time.monotonic
     console = make_console(stderr=True)
+    origin = clock()  # before the link starts, so its first events have t_s >= 0
     link = open_link(args.port, args.baud, clock)
     try:
-        writer = RecordingWriter(args.output, source=args.port, clock=clock, overwrite=args.force)
+        writer = RecordingWriter(args.output, source=args.port, clock=clock, origin_t_s=origin,
+                                 overwrite=args.force)
     except BaseException:
         link.stop()
         raise
