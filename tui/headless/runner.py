@@ -9,7 +9,8 @@ statistics) makes a replay's summary match the live run's.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Sequence
+import sys
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -40,6 +41,13 @@ def info_dict(info: BoardInfo) -> dict[str, Any]:
             "proto": info.proto, "fields": dict(info.fields)}
 
 
+def warn_on_stderr(text: str) -> None:
+    """Session notices (a profile made for another board, a re-baseline) go to stderr, so stdout keeps
+    its format (JSON Lines stay pure) and a person still sees them."""
+    sys.stderr.write(f"padtune: {text}\n")
+    sys.stderr.flush()
+
+
 @dataclass
 class FoundTouch:
     """A touch as the run saw it (kept so tests and replays can compare runs)."""
@@ -60,6 +68,7 @@ class DetectionRun:
     every_s: float | None = None
     marks: Sequence[Mark] = ()
     mark_tolerance_s: float = 1.0
+    warn: Callable[[str], None] = warn_on_stderr
     frames: int = 0
     counts: dict[str, int] = field(default_factory=lambda: dict.fromkeys(_SUMMARY_FAULTS.values(), 0))
     touches: list[FoundTouch] = field(default_factory=list)
@@ -73,6 +82,9 @@ class DetectionRun:
     def feed(self, events: Iterable[Event], now_t_s: float) -> None:
         for event in events:
             self._event(event)
+            notices = self.session.notices
+            while notices:
+                self.warn(notices.popleft())
         self.maybe_status(now_t_s)
 
     def _rel(self, t_s: float) -> float:
