@@ -15,7 +15,14 @@ from processing.recording import read_recording
 from processing.session import Session
 from protocol.events import Event, FrameBlock
 from tui.headless.output import make_output
-from tui.headless.ports import StopFlag, load_profile_arg, quiet_broken_pipe, seconds, speed_factor
+from tui.headless.ports import (
+    StopFlag,
+    frame_rate,
+    load_profile_arg,
+    quiet_broken_pipe,
+    seconds,
+    speed_factor,
+)
 from tui.headless.runner import DetectionRun
 
 PACE_CHUNK_S = 0.05  # a paced replay hands frames over in slices of this much recorded time
@@ -34,7 +41,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                         "(default)")
     p.add_argument("--json", action="store_true", help="write JSON Lines (the format of 'monitor --json')")
     p.add_argument("--every", metavar="S", type=seconds, help="a status every S seconds of recorded time")
-    p.add_argument("--rate", metavar="HZ", type=float,
+    p.add_argument("--rate", metavar="HZ", type=frame_rate,
                    help="frame rate of a raw capture without an info line (default 100)")
     p.set_defaults(func=run)
 

@@ -18,7 +18,7 @@ from processing.recording import read_recording
 from processing.settings import LIMIT_KEYS
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
-from tui.headless.ports import load_profile_arg
+from tui.headless.ports import frame_rate, load_profile_arg, percentage
 from tui.headless.tuning import TuneResult, limits_from_result, result_rows, tune_recording
 
 
@@ -34,11 +34,12 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="start from this profile (groups, sliders, limits, other settings are kept)")
     p.add_argument("--report", metavar="FILE.html", help="also write an HTML report with plots")
     p.add_argument("--json", action="store_true", help="print the results as one JSON object")
-    p.add_argument("--rate", metavar="HZ", type=float, help="frame rate of a raw capture without info line")
+    p.add_argument("--rate", metavar="HZ", type=frame_rate,
+                   help="frame rate of a raw capture without info line")
     p.add_argument("--limits", action="store_true",
                    help="also set the profile's production limits from this recording of a good unit "
                         "(baseline range, noise, SNR; see README)")
-    p.add_argument("--baseline-margin", metavar="PCT", type=float, default=20.0,
+    p.add_argument("--baseline-margin", metavar="PCT", type=percentage, default=20.0,
                    help="with --limits: widen the good unit's baseline range by PCT %% (default 20)")
     p.set_defaults(func=run)
 
@@ -58,15 +59,18 @@ def run(args: argparse.Namespace) -> int:
     rec = read_recording(args.file, rate_hz=args.rate)
     result = tune_recording(rec, base)
     if args.limits:
-        if not 0 <= args.baseline_margin < 100:
-            raise UserError(f"--baseline-margin {args.baseline_margin:g}: give a percentage from 0 to 99")
         limits = limits_from_result(result, rec.arrays()[2], args.baseline_margin / 100)
         result.profile = replace(result.profile, limits=limits)
-    save_profile(result.profile, out)
-    if args.report:
-        from tui.report.tune_report import write_tune_report
+    page = None
+    if args.report:  # drawn before anything is saved: a failure here leaves no new profile behind
+        from tui.report.tune_report import build_tune_report
 
-        write_tune_report(args.report, result)
+        page = build_tune_report(result)
+    save_profile(result.profile, out)
+    if page is not None:
+        from tui.report.html import write_page
+
+        write_page(args.report, page)
     if args.json:
         limits = {k: getattr(result.profile.limits, k) for k in LIMIT_KEYS}
         sys.stdout.write(json.dumps({"type": "tune", "source": result.source, "profile": str(out),

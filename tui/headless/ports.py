@@ -45,6 +45,28 @@ def speed_factor(text: str) -> float:
     return value
 
 
+def frame_rate(text: str) -> float:
+    """argparse type: a frame rate in Hz (positive, finite, at most 1 MHz)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a frame rate in Hz (such as 100)") from None
+    if not math.isfinite(value) or not 0 < value <= 1e6:
+        raise argparse.ArgumentTypeError(f"{text!r} must be a frame rate above 0 and at most 1e6 Hz")
+    return value
+
+
+def percentage(text: str) -> float:
+    """argparse type: a percentage from 0 up to (not including) 100."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a percentage (such as 20)") from None
+    if not 0 <= value < 100:  # also refuses nan
+        raise argparse.ArgumentTypeError(f"{text!r} must be a percentage from 0 to 99")
+    return value
+
+
 def baud_rate(text: str) -> int:
     if not text.isdigit() or int(text) <= 0:
         raise argparse.ArgumentTypeError(f"{text!r} is not a baud rate (a whole number such as 115200)")

@@ -44,7 +44,3 @@ def build_tune_report(result: TuneResult) -> str:
     subtitle = (f"{result.source}: {result.frames} frames at {result.rate_hz:g} Hz, touches {how}; "
                 f"{len(result.keys)} keys")
     return html.page("padtune tuning report", subtitle, body)
-
-
-def write_tune_report(path: str, result: TuneResult) -> None:
-    html.write_page(path, build_tune_report(result))
