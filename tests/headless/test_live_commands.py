@@ -33,11 +33,13 @@ WAIT_S = 30.0  # generous: the machine running the tests may be loaded
 
 class LineWatcher:
     """Collects a child's stdout lines in a thread, so a test waits on a condition with a deadline
-    instead of blocking in readline() or sleeping and hoping."""
+    instead of blocking in readline() or sleeping and hoping. A child that ended fails the wait at
+    once, with its exit code and stderr."""
 
-    def __init__(self, stream) -> None:
+    def __init__(self, proc: subprocess.Popen) -> None:
+        self.proc = proc
         self.lines: list[str] = []
-        self._thread = threading.Thread(target=self._read, args=(stream,), daemon=True)
+        self._thread = threading.Thread(target=self._read, args=(proc.stdout,), daemon=True)
         self._thread.start()
 
     def _read(self, stream) -> None:
@@ -47,6 +49,10 @@ class LineWatcher:
     def wait_for(self, condition, what: str) -> None:
         deadline = time.monotonic() + WAIT_S
         while not condition(self.lines):
+            if not self._thread.is_alive() and not condition(self.lines):  # stdout closed: it ended
+                self.proc.wait(WAIT_S)
+                err = self.proc.stderr.read() if self.proc.stderr else ""
+                raise AssertionError(f"exited {self.proc.returncode} before {what}: {err[-2000:]}")
             assert time.monotonic() < deadline, f"timed out waiting for {what}: {self.lines[-5:]}"
             time.sleep(0.02)
 
@@ -312,7 +318,7 @@ def test_monitor_without_duration_ends_on_sigterm_with_a_summary():
     proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "monitor", "sim://greenhouse?speed=4",
                              "--json", "--every", "0.2"], cwd=ROOT, stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True)
-    watcher = LineWatcher(proc.stdout)
+    watcher = LineWatcher(proc)
     try:
         # A status with channels: frames have gone through detection, so the summary must count them.
         watcher.wait_for(lambda lines: any('"type":"status"' in x and '"name"' in x for x in lines),
@@ -463,7 +469,7 @@ def test_monitor_reports_an_unplug_and_the_replug(tmp_path):
     proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "monitor", str(board.path), "--json",
                              "--record", str(rec)], cwd=ROOT, stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True)
-    watcher = LineWatcher(proc.stdout)
+    watcher = LineWatcher(proc)
     try:
         watcher.wait_text('"event":"connected"')
         board.send(info + block(0, 40))
