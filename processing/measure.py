@@ -2,8 +2,8 @@
 
 Definitions (also in ALGORITHM.md, "Measures"):
 - noise RMS: population standard deviation (numpy.std, mean removed) of the delta over the last
-  `window_s` seconds of frames in which the channel was released (since its last re-baseline); noise pp:
-  max - min over the same frames.
+  `window_s` seconds of frames in which the channel was released and clear of touch activity by
+  `settle_s` on both sides (since its last re-baseline); noise pp: max - min over the same frames.
 - touch signal: median delta of the frames in state touched (the last `touched_frames` of them).
 - SNR pp = signal / noise pp; SNR RMS = signal / noise RMS. The verdict uses the pp form.
 Memory is bounded: every buffer is a fixed-size ring allocated once.
@@ -12,6 +12,7 @@ Memory is bounded: every buffer is a fixed-size ring allocated once.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 import numpy as np
@@ -20,10 +21,15 @@ from processing.detections import KeyState
 
 SNR_DEFINITION = ("SNR = touch signal / noise. Touch signal: median delta while touched. Noise: peak-to-peak "
                   "(pp form) or RMS (standard deviation, RMS form) of the delta over the last {window_s:g} s "
-                  "of released frames.")
+                  "of released frames at least {settle_s:g} s clear of a touch.")
 MIN_NOISE_SAMPLES = 8
 MIN_SPECTRUM_SAMPLES = 16
 MAINS_HZ = (50.0, 60.0)
+# Settle guard: released frames this close to touch activity (before the state left released, after it
+# came back) are not noise. A finger landing or lifting moves the delta for some tens of ms on either side
+# of the threshold crossing (common practice, no source; from memory), and the release debounce adds a few
+# frames; 0.1 s covers that with margin at any frame rate while costing a 2 s window only 0.2 s per touch.
+SETTLE_S = 0.1
 
 
 class History:
@@ -206,16 +212,58 @@ class ColumnRing:
             self.written[channel] = 0
 
 
+class SettleGate:
+    """Holds released frames back until they are known to lie clear of touch activity.
+
+    A released frame counts as noise only when every frame within `guard_frames` before and after it is
+    released too: a finger landing moves the delta before the state leaves released (the approach stays
+    under the threshold for a while), and a lifting finger's tail runs on after it comes back. So each
+    frame is decided `guard_frames` frames late, once the frames after it have arrived; the newest ones
+    wait. Frames before a channel's `start_frame` (its last re-baseline) never count, but touch activity
+    before it still guards the frames after it (a stuck release lets go of a finger still landing).
+    """
+
+    NEVER = np.iinfo(np.int64).min // 4  # "no touch activity seen yet": far enough back for any guard
+
+    def __init__(self, channels: int, guard_frames: int, last_busy: np.ndarray | None = None) -> None:
+        self.guard_frames = g = max(0, guard_frames)
+        self.tail_deltas = np.zeros((g, channels), np.int64)  # the undecided newest frames
+        self.tail_ok = np.zeros((g, channels), bool)  # ... that are released (none before the first block)
+        self.last_busy = np.full(channels, self.NEVER, np.int64) if last_busy is None else last_busy.copy()
+
+    def select(self, deltas: np.ndarray, states: np.ndarray, first_frame: int,
+               start_frame: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Frames decided by this block (`first_frame` = frame number of its first row): the deltas of
+        frames `first_frame - guard .. first_frame + n - guard` and the mask of those that count."""
+        g, n = self.guard_frames, len(deltas)
+        frame = first_frame + np.arange(n, dtype=np.int64)[:, None]
+        busy = states != KeyState.RELEASED
+        last_busy = np.maximum.accumulate(np.where(busy, frame, self.NEVER), axis=0)
+        np.maximum(last_busy, self.last_busy[None, :], out=last_busy)
+        ext_deltas = np.concatenate((self.tail_deltas, deltas))
+        ext_ok = np.concatenate((self.tail_ok, ~busy))
+        decided_frame = frame - g  # frame decided at each row: the one `g` rows back
+        mask = ext_ok[:n] & (decided_frame >= start_frame[None, :]) & (last_busy < decided_frame - g)
+        values = ext_deltas[:n]
+        self.tail_deltas, self.tail_ok = ext_deltas[n:].copy(), ext_ok[n:].copy()
+        self.last_busy = last_busy[-1].copy()
+        return values, mask
+
+
 class Measures:
     """Per-channel noise, touch signal, SNR and verdict from bounded rings (allocated once)."""
 
     def __init__(self, channels: int, rate_hz: float, window_s: float = 2.0, history_frames: int = 4096,
-                 touched_frames: int = 2048, bounds: VerdictBounds | None = None) -> None:
-        self.channels, self.window_s = channels, window_s
+                 touched_frames: int = 2048, bounds: VerdictBounds | None = None,
+                 settle_s: float = SETTLE_S) -> None:
+        if settle_s < 0:
+            raise ValueError(f"settle guard must be 0 s or more, not {settle_s:g} s")
+        self.channels, self.window_s, self.settle_s = channels, window_s, settle_s
         self.bounds = bounds or VerdictBounds()
         self._rate_hz = rate_hz
         self.history = History(channels, max(history_frames, 2 * self.window_frames))
         self._released = ColumnRing(self.window_frames, channels)
+        self._gate = SettleGate(channels, self.guard_frames)
         self._touched = ColumnRing(touched_frames, channels)
         self._signal_cache: dict[int, tuple[int, float | None]] = {}
         # per channel, the history frame number (History.written counts) from which frames count as noise
@@ -231,37 +279,37 @@ class Measures:
         self._rate_hz = value
         if self.window_frames != self._released.capacity:
             self._released = ColumnRing(self.window_frames, self.channels)
+        if self.guard_frames != self._gate.guard_frames:  # undecided frames are dropped, activity kept
+            self._gate = SettleGate(self.channels, self.guard_frames, self._gate.last_busy)
 
     @property
     def window_frames(self) -> int:
         return max(MIN_NOISE_SAMPLES, math.ceil(self.window_s * self._rate_hz))
 
+    @property
+    def guard_frames(self) -> int:
+        """The settle guard in frames at the current rate (rounded up: never shorter than `settle_s`)."""
+        return math.ceil(self.settle_s * self._rate_hz - 1e-9)
+
     def definition(self) -> str:
         """How SNR and the verdict are defined here, to show beside the numbers."""
-        return f"{SNR_DEFINITION.format(window_s=self.window_s)} {self.bounds.describe()}."
+        text = SNR_DEFINITION.format(window_s=self.window_s, settle_s=self.settle_s)
+        return f"{text} {self.bounds.describe()}."
 
-    def ingest(self, t_s: np.ndarray, readings: np.ndarray, deltas: np.ndarray, states: np.ndarray) -> None:
+    def ingest(self, t_s: np.ndarray, readings: np.ndarray, deltas: np.ndarray, states: np.ndarray,
+               restart: Mapping[int, int] | None = None) -> None:
+        """Take a block of frames. `restart` maps a channel to the first row of this block measured against
+        a new baseline (a re-baseline moved the zero): its noise window starts again there, and
+        `noise_start_frame` records where for code that recomputes noise from `history`."""
         self.history.append(t_s, readings, deltas, states)
-        self._released.push(deltas, states == KeyState.RELEASED)
+        first_frame = self.history.written - len(t_s)
+        for c, row in (restart or {}).items():
+            self._released.clear(c)
+            self.noise_start_frame[c] = first_frame + row
+        self._released.push(*self._gate.select(deltas, states, first_frame, self.noise_start_frame))
         touched = states == KeyState.TOUCHED
         if touched.any():
             self._touched.push(deltas, touched)
-
-    def restart_noise(self, first_rows: dict[int, int], deltas: np.ndarray, states: np.ndarray) -> None:
-        """Start noise windows again (a re-baseline moved the zero): `first_rows` maps a channel to the
-        first row of the block just ingested that counts for it. `noise_start_frame` records it for code
-        that recomputes noise from `history` (frames before it are not the channel's noise)."""
-        if not first_rows:
-            return
-        cols = np.array(list(first_rows), np.int64)
-        begin = np.array(list(first_rows.values()), np.int64)
-        for c in cols.tolist():
-            self._released.clear(c)
-        self.noise_start_frame[cols] = self.history.written - len(states) + begin
-        mask = np.zeros(states.shape, bool)
-        rows = np.arange(len(states))[:, None]
-        mask[:, cols] = (rows >= begin[None, :]) & (states[:, cols] == KeyState.RELEASED)
-        self._released.push(deltas, mask)
 
     def clear_touch_signal(self, channel: int | None = None) -> None:
         self._touched.clear(channel)
@@ -271,20 +319,33 @@ class Measures:
             self._signal_cache.pop(channel, None)
 
     def qualities(self) -> list[ChannelQuality]:
-        """`quality` of every channel; the channels with a full noise window are done in one pass."""
+        """`quality` of every channel, the noise of all channels in one pass over the window ring (no
+        per-channel copies): a channel's stored values are the first `count` rows of its column."""
         ring = self._released
-        full = ring.written >= ring.capacity
-        data = ring.data
-        rms = np.sqrt(np.mean((data - data.mean(axis=0)) ** 2, axis=0))
-        pp = data.max(axis=0) - data.min(axis=0)
+        count = np.minimum(ring.written, ring.capacity)
+        data = ring.data.astype(np.float64)
+        if (count < ring.capacity).any():
+            valid = np.arange(ring.capacity)[:, None] < count[None, :]
+            safe = np.maximum(count, 1)
+            mean = np.where(valid, data, 0.0).sum(axis=0) / safe
+            centred = np.where(valid, data - mean, 0.0)
+            hi = np.where(valid, data, -np.inf).max(axis=0)
+            lo = np.where(valid, data, np.inf).min(axis=0)
+        else:
+            mean = data.mean(axis=0)
+            centred = data - mean
+            hi, lo = data.max(axis=0), data.min(axis=0)
+        rms = np.sqrt((centred * centred).sum(axis=0) / np.maximum(count, 1))
+        pp = hi - lo
         out = []
-        for c in range(self.channels):
-            noise = NoiseStats(float(rms[c]), float(pp[c]), ring.capacity) if full[c] else self.noise(c)
+        for c, n in enumerate(count.tolist()):
+            noise = NoiseStats(float(rms[c]), float(pp[c]), n) if n >= MIN_NOISE_SAMPLES else None
             out.append(self._quality(noise, self.touch_signal(c)))
         return out
 
     def released_deltas(self, channel: int) -> np.ndarray:
-        """Deltas of the newest `window_frames` frames in which the channel was released, oldest first."""
+        """Deltas of the noise window (the newest `window_frames` released frames clear of touch activity,
+        since the last re-baseline), oldest first."""
         return self._released.ordered(channel)
 
     def noise(self, channel: int) -> NoiseStats | None:

@@ -16,7 +16,7 @@ from processing.detections import DetectionEvent, KeyState, Rebaselined, StuckRe
 from processing.engine import Engine
 from processing.fixed import to_counts
 from processing.groups import ExclusiveGroup
-from processing.measure import ChannelQuality, Measures, VerdictBounds
+from processing.measure import SETTLE_S, ChannelQuality, Measures, VerdictBounds
 from processing.profile import NAME_RE, Profile, profile_for
 from processing.reference import PlainEngine
 from processing.settings import ChannelSettings
@@ -55,9 +55,11 @@ class Session:
     """Owns one board's engine, measures, groups and sliders. Not thread-safe: call from one thread."""
 
     def __init__(self, profile: Profile | None = None, *, window_s: float = 2.0, history_frames: int = 8192,
-                 bounds: VerdictBounds | None = None, plain: bool = False) -> None:
+                 bounds: VerdictBounds | None = None, plain: bool = False,
+                 settle_s: float = SETTLE_S) -> None:
         self.requested_profile = profile
         self.window_s, self.history_frames, self.bounds, self.plain = window_s, history_frames, bounds, plain
+        self.settle_s = settle_s  # the noise window's guard around touch activity (processing.measure)
         self.info: BoardInfo | None = None
         self.engine: Engine | PlainEngine | None = None
         self.measures: Measures | None = None
@@ -148,8 +150,8 @@ class Session:
         assert self.engine is not None and self.measures is not None
         found: list[DetectionEvent] = list(self.engine.process(block))
         deltas, states = self.engine.last_deltas, self.engine.last_states
-        self.measures.ingest(block.t_s, block.readings, deltas, states)
-        self.measures.restart_noise(self._new_zeros(block.first_index, found), deltas, states)
+        self.measures.ingest(block.t_s, block.readings, deltas, states,
+                             restart=self._new_zeros(block.first_index, found))
         for tracker in (*self.groups, *self.sliders):
             found.extend(tracker.update(block.first_index, block.t_s, deltas, states))
         if len(self.groups) + len(self.sliders):
@@ -235,7 +237,7 @@ class Session:
         cls = PlainEngine if self.plain else Engine
         self.engine = cls(channels, profile.all_settings(), polarity)
         self.measures = Measures(channels, rate or DEFAULT_RATE_HZ, self.window_s, self.history_frames,
-                                 bounds=self.bounds)
+                                 bounds=self.bounds, settle_s=self.settle_s)
         self._rate_declared = rate is not None
         self.groups = [ExclusiveGroup(g) for g in profile.groups]
         self.sliders = [Slider(s) for s in profile.sliders]

@@ -24,7 +24,7 @@ def test_noise_rms_matches_numpy_std_and_pstdev():
     d = rng.integers(-9, 10, 1000)
     feed(m, d, np.zeros(1000))
     noise = m.noise(0)
-    window = d[-200:]  # 2 s at 100 Hz
+    window = d[-210:-10]  # 2 s at 100 Hz; the newest 10 (0.1 s settle guard) wait for the frames after them
     assert noise.samples == 200
     assert noise.rms_counts == pytest.approx(np.std(window), rel=1e-12)  # reference: numpy.std
     assert noise.rms_counts == pytest.approx(statistics.pstdev(window.tolist()), rel=1e-12)  # stdlib
@@ -32,7 +32,7 @@ def test_noise_rms_matches_numpy_std_and_pstdev():
 
 
 def test_noise_skips_touched_frames_and_signal_is_their_median():
-    m = Measures(1, rate_hz=100.0, window_s=1.0)
+    m = Measures(1, rate_hz=100.0, window_s=1.0, settle_s=0.0)  # no settle guard: every released frame
     deltas = [1, -1] * 50 + [200, 210, 190, 205, 3000] + [2, -2] * 50
     states = [RELEASED] * 100 + [TOUCHED] * 5 + [RELEASED] * 100
     feed(m, deltas, states)

@@ -181,14 +181,17 @@ def test_noise_window_starts_again_at_a_rebaseline():
     out = s.handle([frames(rows, 120)])
     assert Rebaselined(0, 120, 1.2, False) in out
     noise = s.measures.noise(0)
-    assert noise.samples == 30 and noise.pp_counts == 2
+    # the newest 10 of the 30 (the 0.1 s settle guard at 100 Hz) wait until the frames after them are in
+    assert noise.samples == 20 and noise.pp_counts == 2
     assert s.measures.noise(1).samples > 30  # other channels keep their window
 
 
 def test_noise_after_a_stuck_release_counts_only_frames_after_it():
     # Hand-worked: released at 1000 +- 30 (pp 60), then held at 1300 from row 30 (touch at once), released
     # by the stuck timeout at row 40 (held 10 frames; that frame's delta is still 300, against the old
-    # baseline), then 1300 or 1301: the noise is the 29 frames after the stuck release, pp 1.
+    # baseline), then 1300 or 1301: the noise is the 29 frames after the stuck release, pp 1, less the
+    # settle guard (0.1 s = 10 frames at 100 Hz) after the touch (rows 41-49: released from row 40) and the
+    # newest 10 frames, still undecided: rows 50-59, 10 frames.
     p = Profile(names=NAMES, defaults=ChannelSettings(threshold_counts=100, hysteresis_counts=10,
                                                       touch_debounce_frames=1, release_debounce_frames=1,
                                                       baseline_period_frames=256, stuck_timeout_frames=10))
@@ -202,10 +205,11 @@ def test_noise_after_a_stuck_release_counts_only_frames_after_it():
     out = s.handle([frames(rows, 10)])
     assert [(type(ev), ev.index) for ev in out if ev.channel == 0] == [(Touch, 40), (StuckRelease, 50)]
     noise = s.measures.noise(0)
-    assert noise.samples == 29 and noise.pp_counts == 1
+    assert noise.samples == 10 and noise.pp_counts == 1
     # the same frames from the history, for code that recomputes noise there
     h = s.measures.history
     _, _, d, st = h.last(len(h))
     first = int(s.measures.noise_start_frame[0]) - (h.written - len(h))
     assert first == 10 + 41
-    assert d[first:, 0][st[first:, 0] == 0].tolist() == s.measures.released_deltas(0).tolist()
+    assert d[10 + 50:10 + 60, 0].tolist() == s.measures.released_deltas(0).tolist()
+    assert (st[10 + 40:, 0] == 0).all() and (st[10 + 39, 0] != 0)  # released from row 40 on
