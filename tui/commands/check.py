@@ -122,9 +122,11 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         sys.stdout.write(json.dumps(report) + "\n")
     else:
-        _print_table(verdicts, passed, args.touch)
-        for warning in warnings:
+        _print_table(verdicts, args.touch)
+        for warning in warnings:  # before the verdict line, so a PASS with nothing checked says so first
             console.print(f"warning: {warning}")
+        failed = [v.name for v in verdicts if not v.passed]
+        make_console().print("PASS: every channel passed" if passed else f"FAIL: {', '.join(failed)}")
     if args.report:
         from tui.report.check_report import write_check_report
 
@@ -145,7 +147,7 @@ def _dead_unit(args: argparse.Namespace, elapsed_s: float) -> int:
     return 1
 
 
-def _print_table(verdicts: list, passed: bool, touch: bool) -> None:
+def _print_table(verdicts: list, touch: bool) -> None:
     out = make_console()
     rows = []
     for v in verdicts:
@@ -159,5 +161,3 @@ def _print_table(verdicts: list, passed: bool, touch: bool) -> None:
         columns += [("signal", "signal"), ("snr", "SNR")]
     columns.append(("reason", "reason"))
     out.print(channel_table(rows, columns, plain=not out.is_terminal))
-    failed = [v.name for v in verdicts if not v.passed]
-    out.print("PASS: every channel passed" if passed else f"FAIL: {', '.join(failed)}")

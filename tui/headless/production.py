@@ -212,13 +212,13 @@ def _stuck(v: ChannelVerdict, probe: UnitProbe, states: np.ndarray) -> None:
     v.checks["stuck"] = FAIL
     v.stuck_at_s = probe.touched_at.get(c)
     when = f" from {v.stuck_at_s:.1f} s" if v.stuck_at_s is not None else ""
+    times = "once" if count == 1 else f"{count} times"
     if not held and v.checks.get("noise") == FAIL:
-        v.reasons.append(f"false touches: reported touched {count} times with hands off, from its noise")
+        v.reasons.append(f"false touches: reported touched {times} with hands off, from its noise")
     elif held:
         v.reasons.append(f"stuck key: reported touched{when} while nobody touched the panel")
     else:
-        v.reasons.append(f"false touches: reported touched {count} times{when} while nobody touched "
-                         "the panel")
+        v.reasons.append(f"false touches: reported touched {times}{when} while nobody touched the panel")
 
 
 def _snr(v: ChannelVerdict, probe: UnitProbe, limits: Limits) -> None:

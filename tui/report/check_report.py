@@ -39,7 +39,9 @@ def build_check_report(report: dict[str, Any], probe: UnitProbe, session: Sessio
                                    title=f"{name}: hands-off delta",
                                    limit_band=limits.get("max_noise_pp_counts")),
                         name, "delta", f"{name}: delta with hands off, threshold and release level"),
-            html.figure(histogram_plot(d, touched, float(s.threshold_counts), title=f"{name}: deltas"),
+            # Hands off is not "untouched": a stuck key or a stray touch shows in it.
+            html.figure(histogram_plot(d, touched, float(s.threshold_counts), title=f"{name}: deltas",
+                                       labels=("hands off", "touched")),
                         name, "histogram", f"{name}: hands-off deltas and touched deltas (with --touch)"),
         ]
         body.append(f'<section data-key="{escape(name)}"><h2>{escape(name)}: {escape(row["verdict"])}</h2>'

@@ -86,7 +86,7 @@ def delta_plot(t_s: np.ndarray, delta: np.ndarray, threshold: float | None, rele
 
 
 def histogram_plot(untouched: np.ndarray, touched: np.ndarray, threshold: float | None,
-                   title: str = "") -> str:
+                   title: str = "", labels: tuple[str, str] = ("untouched", "touched")) -> str:
     fig, ax = _figure(4.2, 2.4)
     values = [np.asarray(v, float) for v in (untouched, touched) if len(v)]
     lo = min((float(v.min()) for v in values), default=0.0)
@@ -95,9 +95,9 @@ def histogram_plot(untouched: np.ndarray, touched: np.ndarray, threshold: float 
         lo, hi = min(lo, threshold), max(hi, threshold)
     bins = np.linspace(lo, hi if hi > lo else lo + 1, 60)
     if len(untouched):
-        ax.hist(untouched, bins=bins, color=COLOURS["untouched"], alpha=0.8, label="untouched")
+        ax.hist(untouched, bins=bins, color=COLOURS["untouched"], alpha=0.8, label=labels[0])
     if len(touched):
-        ax.hist(touched, bins=bins, color=COLOURS["touch"], alpha=0.8, label="touched")
+        ax.hist(touched, bins=bins, color=COLOURS["touch"], alpha=0.8, label=labels[1])
     if threshold is not None:
         ax.axvline(threshold, color=COLOURS["threshold"], lw=1, ls="--", label="threshold")
     ax.set_yscale("log")
