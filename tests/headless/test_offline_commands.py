@@ -80,6 +80,16 @@ def test_marks_count_false_touches(work, tmp_path):
     assert "false" in human.stdout and "\x1b[" not in human.stdout  # piped: plain text
 
 
+def test_note_marks_alone_judge_no_touch(work, tmp_path):
+    """A moment marked with Enter in `record` says nothing about which touches were meant."""
+    folder, _, _ = work
+    write_recording(tmp_path / "noted.csv", (folder / "gh.raw").read_bytes(), [Mark(2.0, "note", None, "x")])
+    out = padtune("replay", str(tmp_path / "noted.csv"), "--profile", str(folder / "gh.toml"), "--json")
+    channels = json_lines(out.stdout)[-1]["channels"]
+    assert sum(c["touches"] for c in channels) > 2
+    assert not any("false_touches" in c for c in channels)
+
+
 def test_tune_uses_marks_when_present(work, tmp_path):
     folder, _, _ = work
     data = (folder / "gh.raw").read_bytes()

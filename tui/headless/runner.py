@@ -131,9 +131,14 @@ class DetectionRun:
         elif isinstance(det, SliderChange):
             self.output.slider(self._rel(det.t_s), det.slider, det.position, det.touched, det.index)
 
+    @property
+    def judges_touches(self) -> bool:
+        """Only touch marks say which touches were meant; a recording with plain notes alone does not."""
+        return any(m.kind == "touch-start" for m in self.marks)
+
     def _expected(self, channel: int, t: float) -> bool | None:
-        """With marks: was this touch inside a marked touch of its key (or near a plain note mark)?"""
-        if not self.marks:
+        """With touch marks: was this touch inside a marked touch of its key (or near a note mark)?"""
+        if not self.judges_touches:
             return None
         name = self.name(channel)
         opened: float | None = None
@@ -179,7 +184,7 @@ class DetectionRun:
                 "noise_pp": _num(q.noise.pp_counts) if q.noise else None,
                 "snr": _num(q.snr_pp) if q.signal_counts is not None else None,
             }
-            if self.marks:
+            if self.judges_touches:
                 row["false_touches"] = sum(1 for f in mine if f.expected is False)
             channels.append(row)
         return {"frames": self.frames, **self.counts, "channels": channels}
