@@ -176,7 +176,8 @@ class ColumnRing:
 
     def __init__(self, capacity: int, channels: int) -> None:
         self.capacity = max(1, capacity)
-        self.data = np.zeros((self.capacity, channels), np.int64)
+        # column-major: a channel's values are contiguous, for per-channel slices and column statistics
+        self.data = np.zeros((self.capacity, channels), np.int64, order="F")
         self.written = np.zeros(channels, np.int64)
         self._cols = np.arange(channels)
 
@@ -264,6 +265,7 @@ class Measures:
         self.history = History(channels, max(history_frames, 2 * self.window_frames))
         self._released = ColumnRing(self.window_frames, channels)
         self._gate = SettleGate(channels, self.guard_frames)
+        self._scratch: np.ndarray | None = None  # qualities()' work array, the window ring's shape
         self._touched = ColumnRing(touched_frames, channels)
         self._signal_cache: dict[int, tuple[int, float | None]] = {}
         # per channel, the history frame number (History.written counts) from which frames count as noise
@@ -319,24 +321,32 @@ class Measures:
             self._signal_cache.pop(channel, None)
 
     def qualities(self) -> list[ChannelQuality]:
-        """`quality` of every channel, the noise of all channels in one pass over the window ring (no
-        per-channel copies): a channel's stored values are the first `count` rows of its column."""
+        """`quality` of every channel, the noise of all channels in one pass over the window ring: a
+        channel's stored values are the first `count` rows of its column. The arithmetic runs in a scratch
+        array kept between calls: fresh megabyte temporaries cost more in page faults than the sums."""
         ring = self._released
         count = np.minimum(ring.written, ring.capacity)
-        data = ring.data.astype(np.float64)
-        if (count < ring.capacity).any():
-            valid = np.arange(ring.capacity)[:, None] < count[None, :]
-            safe = np.maximum(count, 1)
-            mean = np.where(valid, data, 0.0).sum(axis=0) / safe
-            centred = np.where(valid, data - mean, 0.0)
-            hi = np.where(valid, data, -np.inf).max(axis=0)
-            lo = np.where(valid, data, np.inf).min(axis=0)
-        else:
-            mean = data.mean(axis=0)
-            centred = data - mean
-            hi, lo = data.max(axis=0), data.min(axis=0)
-        rms = np.sqrt((centred * centred).sum(axis=0) / np.maximum(count, 1))
-        pp = hi - lo
+        if self._scratch is None or self._scratch.shape != ring.data.shape:
+            self._scratch = np.empty(ring.data.shape, np.float64, order="F")
+        work = self._scratch
+        np.copyto(work, ring.data)
+        # Rows past a channel's count hold stale values; those columns are few and short-lived (after a
+        # re-baseline): fill them with their row 0 (stored whenever count > 0) so the extremes are right,
+        # take the filler back out of the sum, and zero it before squaring.
+        short = np.flatnonzero(count < ring.capacity)
+        short_counts = count[short].tolist()
+        for c, n in zip(short.tolist(), short_counts, strict=True):
+            work[n:, c] = work[0, c]
+        hi, lo = work.max(axis=0), work.min(axis=0)
+        sums = work.sum(axis=0)
+        sums[short] -= (ring.capacity - count[short]) * work[0, short]
+        mean = sums / np.maximum(count, 1)  # exact: integer deltas, sums far below 2**53
+        np.subtract(work, mean, out=work)
+        for c, n in zip(short.tolist(), short_counts, strict=True):
+            work[n:, c] = 0.0
+        np.multiply(work, work, out=work)
+        rms = np.sqrt(work.sum(axis=0) / np.maximum(count, 1))
+        pp = (hi - lo).tolist()
         out = []
         for c, n in enumerate(count.tolist()):
             noise = NoiseStats(float(rms[c]), float(pp[c]), n) if n >= MIN_NOISE_SAMPLES else None
