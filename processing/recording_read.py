@@ -25,6 +25,7 @@ from protocol.events import (
     LinkStatus,
     Note,
 )
+from protocol.rules import INT32_MAX, INT32_MIN
 
 
 def _parse_pairs(body: str) -> tuple[dict[str, str], str]:
@@ -82,6 +83,8 @@ class _Builder:
             ints = arr[:, 1:]
             if not np.all(np.isfinite(arr[:, 0])) or np.any(ints != np.round(ints)):
                 raise ValueError("not whole numbers")
+            if ints.size and (ints.min() < INT32_MIN or ints.max() > INT32_MAX):
+                raise ValueError("out of range")  # a board's readings and seq are 32-bit (PROTOCOL.md)
         except ValueError:
             self._raise_for_bad_row()
         block = FrameBlock(t_s=arr[:, 0].copy(), seq=ints[:, 0].astype(np.int64),
@@ -96,10 +99,11 @@ class _Builder:
             try:
                 if not math.isfinite(float(cells[0])):
                     raise ValueError("time is not finite")
-                [int(c) for c in cells[1:]]
+                if not all(INT32_MIN <= int(c) <= INT32_MAX for c in cells[1:]):
+                    raise ValueError("out of range")
             except ValueError:
                 raise UserError(
-                    f"{self.where}:{lineno}: a data row must hold a time, a seq and integer readings, "
+                    f"{self.where}:{lineno}: a data row must hold a time, a seq and 32-bit integer readings, "
                     f"got {','.join(cells)[:60]!r}"
                 ) from None
         raise UserError(f"{self.where}: a data row could not be read")
@@ -183,6 +187,8 @@ def _parse_line(b: _Builder, lineno: int, line: str, in_meta: bool) -> bool:
     if line.startswith(HEADER_START):
         b.close_block()
         rec.names = tuple(line.split(",")[2:])
+        if not rec.names or not all(rec.names):
+            raise ValueError(f"the header {line[:60]!r} must name every channel column after t_s,seq")
         b.width = len(rec.names)
         return False
     b.add_row(lineno, line)

@@ -233,3 +233,18 @@ def test_start_utc_is_the_wall_time_of_the_origin(tmp_path):
     rec = read_recording(tmp_path / "o.csv")
     assert rec.meta["start_utc"] == "1970-01-01T00:00:59.500000Z"
     assert rec.arrays()[0].tolist() == [0.5]
+
+
+@pytest.mark.parametrize(
+    ("body", "message"),
+    [
+        ("t_s,seq,a\n0.1,0,99999999999999999999999\n", ":3: a data row must hold"),  # was an OverflowError
+        ("t_s,seq,a\n0.1,0,2147483648\n", ":3: a data row must hold"),  # one past int32
+        ("t_s,seq\n0.1,0\n", ":2: the header"),  # no channel at all
+        ("t_s,seq,a,\n0.1,0,1,2\n", ":2: the header"),  # an unnamed column
+    ],
+)
+def test_a_damaged_recording_is_one_line_naming_the_row(tmp_path, body, message):
+    (tmp_path / "bad.csv").write_text(FORMAT_LINE + "\n" + body)
+    with pytest.raises(UserError, match=message):
+        read_recording(tmp_path / "bad.csv")
