@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import re
 from html.parser import HTMLParser
 
@@ -267,3 +268,24 @@ def test_groups_and_sliders_of_the_profile_appear_in_json(work, tmp_path):
     # (noise makes it jitter by a few steps). numpy's correlation coefficient as the measure.
     assert positions[:3].max() < 20 and positions.max() > 80
     assert np.corrcoef(np.arange(len(positions)), positions)[0, 1] > 0.9
+
+
+# A status every 50 ms of recorded time: far more output than a pipe holds, so the writer meets the
+# closed pipe (a short output would fit in the pipe's buffer and never notice).
+@pytest.mark.parametrize("command", [["replay", "{csv}", "--every", "0.05"],
+                                     ["replay", "{csv}", "--json", "--every", "0.05"]])
+def test_a_reader_that_goes_away_ends_the_command_quietly_with_exit_0(work, tmp_path, command):
+    """`padtune ... | head -1`: exit 0 (1 would read as a failed check), nothing on stderr."""
+    import subprocess
+    import sys
+
+    from tests.headless.helpers import ROOT
+
+    folder, _, _ = work
+    args = [a.format(csv=folder / "gh.csv", tmp=tmp_path) for a in command]
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", *args], cwd=ROOT, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, env={**os.environ, "NO_COLOR": "1"})
+    proc.stdout.readline()
+    proc.stdout.close()  # the reader goes away after one line, as `head -1` does
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 0 and b"Traceback" not in err and b"Exception" not in err, err

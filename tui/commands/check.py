@@ -16,7 +16,14 @@ from typing import Any
 from processing.session import Session
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
-from tui.headless.ports import StopFlag, add_port_args, load_profile_arg, open_link, seconds
+from tui.headless.ports import (
+    StopFlag,
+    add_port_args,
+    load_profile_arg,
+    open_link,
+    quiet_broken_pipe,
+    seconds,
+)
 from tui.headless.production import UnitProbe, evaluate, touch_figures
 
 TICK_S = 0.02
@@ -95,9 +102,10 @@ def run(args: argparse.Namespace) -> int:
     try:
         with StopFlag() as stop:
             if not _quiet_phase(link, probe, args.duration, stop) and not stop.stopped:
-                return _dead_unit(args, time.monotonic() - origin)
+                elapsed_s = time.monotonic() - origin
+                return quiet_broken_pipe(lambda: _dead_unit(args, elapsed_s), code_on_pipe=1)
             names = list(session.names)
-            if profile is not None and profile.channels != session.channels:
+            if profile.channels != session.channels:
                 raise UserError(f"the board has {session.channels} channels, the profile "
                                 f"{profile.channels}: use the profile made for this board")
             if args.touch:
@@ -106,32 +114,42 @@ def run(args: argparse.Namespace) -> int:
                 raise UserError("check interrupted: no verdict")
     finally:
         link.stop()
-    assert session.engine is not None and profile is not None
-    polarity = session.engine.pol.tolist()
-    verdicts = evaluate(probe, profile.limits, names, polarity, args.touch)
-    passed = all(v.passed for v in verdicts)
-    warnings = []
-    if all(getattr(profile.limits, k) is None for k in profile.limits.__dataclass_fields__):
-        warnings.append("the profile has no [limits]: only stuck keys (and --touch) were checked")
-    report = {"type": "check", "t": round(time.monotonic() - origin, 3), "passed": passed,
-              "warnings": warnings,
-              "port": args.port, "board": session.info.board if session.info else None,
-              "profile": args.profile, "duration_s": args.duration, "touch": args.touch,
-              "limits": {k: getattr(profile.limits, k) for k in profile.limits.__dataclass_fields__},
-              "channels": [v.as_dict() for v in verdicts]}
-    if args.json:
-        sys.stdout.write(json.dumps(report) + "\n")
-    else:
-        _print_table(verdicts, args.touch)
-        for warning in warnings:  # before the verdict line, so a PASS with nothing checked says so first
-            console.print(f"warning: {warning}")
-        failed = [v.name for v in verdicts if not v.passed]
-        make_console().print("PASS: every channel passed" if passed else f"FAIL: {', '.join(failed)}")
+    assert session.engine is not None
+    verdicts = evaluate(probe, profile.limits, names, session.engine.pol.tolist(), args.touch)
+    report = _report(args, session, profile.limits, verdicts, time.monotonic() - origin)
+    code = 0 if report["passed"] else 1
+    # The verdict is the exit code even when the reader of the output went away (`| head`).
+    quiet_broken_pipe(lambda: _show(args, report, verdicts, console), code_on_pipe=code)
     if args.report:
         from tui.report.check_report import write_check_report
 
         write_check_report(args.report, report, probe, session)
-    return 0 if passed else 1
+    return code
+
+
+def _report(args: argparse.Namespace, session: Session, limits: Any, verdicts: list,
+            elapsed_s: float) -> dict[str, Any]:
+    """The JSON report (also what the HTML report is drawn from)."""
+    keys = list(limits.__dataclass_fields__)
+    warnings = []
+    if all(getattr(limits, k) is None for k in keys):
+        warnings.append("the profile has no [limits]: only stuck keys (and --touch) were checked")
+    return {"type": "check", "t": round(elapsed_s, 3), "passed": all(v.passed for v in verdicts),
+            "warnings": warnings, "port": args.port, "board": session.info.board if session.info else None,
+            "profile": args.profile, "duration_s": args.duration, "touch": args.touch,
+            "limits": {k: getattr(limits, k) for k in keys}, "channels": [v.as_dict() for v in verdicts]}
+
+
+def _show(args: argparse.Namespace, report: dict[str, Any], verdicts: list, console: Any) -> int:
+    if args.json:
+        sys.stdout.write(json.dumps(report) + "\n")
+        return 0
+    _print_table(verdicts, args.touch)
+    for warning in report["warnings"]:  # before the verdict line: a PASS with nothing checked says so
+        console.print(f"warning: {warning}")
+    failed = [v.name for v in verdicts if not v.passed]
+    make_console().print("PASS: every channel passed" if report["passed"] else f"FAIL: {', '.join(failed)}")
+    return 0
 
 
 def _dead_unit(args: argparse.Namespace, elapsed_s: float) -> int:

@@ -18,7 +18,7 @@ from processing.recording import read_recording
 from processing.settings import LIMIT_KEYS
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
-from tui.headless.ports import frame_rate, load_profile_arg, percentage
+from tui.headless.ports import frame_rate, load_profile_arg, percentage, quiet_broken_pipe
 from tui.headless.tuning import TuneResult, limits_from_result, result_rows, tune_recording
 
 
@@ -71,6 +71,10 @@ def run(args: argparse.Namespace) -> int:
         from tui.report.html import write_page
 
         write_page(args.report, page)
+    return quiet_broken_pipe(lambda: _show(args, result, out))
+
+
+def _show(args: argparse.Namespace, result: TuneResult, out: Path) -> int:
     if args.json:
         limits = {k: getattr(result.profile.limits, k) for k in LIMIT_KEYS}
         sys.stdout.write(json.dumps({"type": "tune", "source": result.source, "profile": str(out),

@@ -93,11 +93,21 @@ class JsonLinesOutput:
 PLAIN_WIDTH = 200
 
 
+class PipeConsole(Console):
+    """rich ends the process with exit code 1 when the reader goes away (`| head`), but padtune's 1
+    means a failed check: here a closed pipe raises BrokenPipeError, which the command ends on quietly
+    (`tui.headless.ports.quiet_broken_pipe`) with its own exit code."""
+
+    def on_broken_pipe(self) -> None:
+        self.quiet = True
+        raise BrokenPipeError("the reader of the output went away")
+
+
 def make_console(stream: IO[str] | None = None, stderr: bool = False) -> Console:
     """A rich console that is plain when piped and colourless under NO_COLOR (rich honours both)."""
     target = stream if stream is not None else (sys.stderr if stderr else sys.stdout)
-    console = Console(file=target, no_color="NO_COLOR" in os.environ or None, highlight=False, markup=False,
-                      soft_wrap=True)
+    console = PipeConsole(file=target, no_color="NO_COLOR" in os.environ or None, highlight=False,
+                          markup=False, soft_wrap=True)
     if not console.is_terminal and "COLUMNS" not in os.environ:
         console.width = PLAIN_WIDTH  # a pipe has no width: never cut a table to 80 columns
     return console

@@ -125,17 +125,20 @@ class StopFlag:
             signal.signal(sig, old)
 
 
-def quiet_broken_pipe(func: Callable[[], int]) -> int:
-    """Run `func`; a reader that went away (`| head`) ends the command quietly."""
+def quiet_broken_pipe(func: Callable[[], int], code_on_pipe: int = 0) -> int:
+    """Run `func` (which flushes what it writes); a reader that went away (`| head`) ends the command
+    quietly with `code_on_pipe`."""
     try:
-        return func()
+        code = func()
+        sys.stdout.flush()  # inside the guard: a failed flush at exit would print a traceback
+        return code
     except BrokenPipeError:
         import os
 
         # Point stdout at /dev/null so the interpreter's final flush does not complain again.
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
-        return 0
+        return code_on_pipe
 
 
 def pump(link: Any, consume: Callable[[list[Any], float], None], *, duration_s: float | None,
