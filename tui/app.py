@@ -29,6 +29,7 @@ from tui.bindings import _COVERED_OFF, BINDINGS, help_rows
 from tui.describe import describe_detection, describe_event
 from tui.edits import Change, Edit, EditHistory
 from tui.fields import FIELDS, parse_value, stepped, with_value
+from tui.render.help import key_display
 from tui.render.settings import edit_bar
 from tui.render.views import LinkView
 from tui.screens.confirm import ConfirmScreen
@@ -184,7 +185,7 @@ class PadtuneApp(FileActions, App[int]):
             return
         ch = self.cursor
         styles = self._main(ChannelTable).styles_map()
-        width = bar.size.width or 80
+        width = bar.size.width or max(20, self.size.width - 2)  # before its first layout: the screen's
         position = f"{ch + 1}/{len(names)}" if len(names) > 1 else ""
         key = (names[ch], self.source.settings(ch), self.field_key, width, position)
         if key != self._edit_bar_key:  # an unchanged bar costs no layout pass
@@ -347,7 +348,8 @@ class PadtuneApp(FileActions, App[int]):
                 self._set_value(parse_value(text, key))
 
         name = self.source.channel_names()[ch]
-        self.push_screen(PromptScreen(f"{name}: new {f.label} ({f.unit})", str(getattr(current, key)), check),
+        unit = "a shift n: the baseline moves 1/2ⁿ of the way a step" if f.unit == "shift" else f.unit
+        self.push_screen(PromptScreen(f"{name}: new {f.label} ({unit})", str(getattr(current, key)), check),
                          done)
 
     def _copy_to(self, targets: Iterable[int], what: str) -> None:
@@ -476,7 +478,7 @@ class PadtuneApp(FileActions, App[int]):
             if b.action in seen or (b.id or "").startswith("demo.key"):
                 continue
             seen.add(b.action)
-            yield SystemCommand(b.tooltip or b.description, f"key: {b.key.split(',')[0]}",
+            yield SystemCommand(b.tooltip or b.description, f"key: {key_display(b.key)}",
                                 lambda action=b.action: self.run_action(action))
         yield SystemCommand("Change the colour theme", "light, dark and others", self.action_change_theme)
 

@@ -45,7 +45,7 @@ BINDINGS: list[Binding] = [
     B("B", "rebaseline(True)", "Re-baseline all channels", id="chan.rebase_all", show=False),
     B("d", "toggle_detail", "detail", id="chan.detail", tooltip="Detail panel: plot, settings, events"),
     B("f", "toggle_spectrum", "Noise spectrum in the detail panel", id="chan.spectrum", show=False),
-    B("space", "toggle_pause", "pause", id="chan.pause", key_display="space",
+    B("space", "toggle_pause", "pause", id="chan.pause", key_display="Space",
       tooltip="Pause / resume the display (detection keeps running)"),
     B("r", "toggle_recording", "rec", id="rec.toggle", tooltip="Start / stop recording to a CSV file"),
     B("m", "mark", "Mark this moment in the recording", id="rec.mark", show=False),
@@ -76,7 +76,8 @@ def help_rows(bindings: Iterable[Binding] = BINDINGS) -> list[tuple[str, str, st
     for b in bindings:
         if b.id and b.id.startswith("demo.key"):
             if b.id == "demo.key1":
-                rows.append((SECTIONS["demo"], "1 … 9, 0", "Hold / let go of key 1 … 10 on the sim board"))
+                rows.append((SECTIONS["demo"], "1 … 9,0",
+                             "Hold / let go of key 1 … 9, or key 10 (0), on the simulated board"))
             continue
         section = SECTIONS.get((b.id or "app").split(".")[0], "App")
         rows.append((section, b.key, b.tooltip or b.description))

@@ -15,23 +15,25 @@ from processing.settings import ChannelSettings
 @dataclass(frozen=True, slots=True)
 class Field:
     key: str
-    label: str
-    short: str
+    label: str  # the full name: prompts, the detail panel, the selected field in the edit bar
+    short: str  # its name inside its group on the edit bar ("touch" under "debounce")
     unit: str
     fine: int
     coarse: int
     doubling: bool = False  # steps multiply or divide by two (powers of two only)
+    group: str = ""  # the edit bar's heading for related fields ("debounce", "baseline")
 
 
 FIELDS: tuple[Field, ...] = (
-    Field("threshold_counts", "threshold", "thr", "counts", 1, 10),
-    Field("hysteresis_counts", "hysteresis", "hyst", "counts", 1, 10),
-    Field("touch_debounce_frames", "touch debounce", "t-deb", "frames", 1, 5),
-    Field("release_debounce_frames", "release debounce", "r-deb", "frames", 1, 5),
-    Field("baseline_slow_shift", "follow toward touch", "slow", "shift", 1, 2),
-    Field("baseline_fast_shift", "follow away", "fast", "shift", 1, 2),
-    Field("baseline_period_frames", "baseline period", "period", "frames", 1, 1, doubling=True),
-    Field("stuck_timeout_frames", "stuck timeout", "stuck", "frames", 100, 1000),
+    Field("threshold_counts", "threshold", "threshold", "counts", 1, 10),
+    Field("hysteresis_counts", "hysteresis", "hysteresis", "counts", 1, 10),
+    Field("touch_debounce_frames", "touch debounce", "touch", "frames", 1, 5, group="debounce"),
+    Field("release_debounce_frames", "release debounce", "release", "frames", 1, 5, group="debounce"),
+    Field("baseline_slow_shift", "follow toward touch", "slow", "shift", 1, 2, group="baseline"),
+    Field("baseline_fast_shift", "follow away", "fast", "shift", 1, 2, group="baseline"),
+    Field("baseline_period_frames", "baseline period", "every", "frames", 1, 1, doubling=True,
+          group="baseline"),
+    Field("stuck_timeout_frames", "stuck timeout", "stuck after", "frames", 100, 1000),
 )
 _BY_KEY = {f.key: f for f in FIELDS}
 

@@ -3,7 +3,7 @@
 Runs entirely on the UI thread: `poll()` takes what the link's reader thread queued, hands it to the
 session, writes it to the recording when one is open, and counts frames for the fps figure. The
 snapshots for drawing come from the session's engine and measures; the noise figures are refreshed
-twice a second (see `tui.quality`), the rest every frame.
+twice a second (`Measures.qualities()`, all channels in one pass), the rest every frame.
 """
 
 from __future__ import annotations
@@ -25,7 +25,6 @@ from processing.session import Session
 from processing.settings import ChannelSettings
 from protocol.errors import UserError
 from protocol.events import Event, FrameBlock, LinkState, LinkStats, LinkStatus
-from tui.quality import all_quality
 from tui.render.views import ChannelView, GroupView, LinkView, SliderView
 from tui.source import Tick
 from tui.widgets.detail_panel import Series, Spectrum
@@ -98,7 +97,7 @@ class SessionSource:
         while self._frame_times and now - self._frame_times[0][0] > 2.0:
             self._frame_times.popleft()
         if now - self._quality_t_s >= QUALITY_EVERY_S and self.session.measures is not None:
-            self._quality = all_quality(self.session.measures)
+            self._quality = self.session.measures.qualities()
             self._quality_t_s = now
         return tick
 

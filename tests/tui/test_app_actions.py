@@ -550,7 +550,7 @@ async def test_a_full_disk_stops_the_recording_says_why_and_the_app_runs_on(tmp_
         run(app, feed, 1.0)  # the writer flushes every 0.25 s: the failure comes inside a screen tick
         await pilot.pause()
         shown = screen_text(app)
-        assert "REC FAILED" in shown and "No space left on device" in shown
+        assert "✗ REC FAILED (disk full)" in shown
         assert "recording stopped" in log_text(app) and "No space left on device" in log_text(app)
         assert any("No space left" in n.message for n in app._notifications)
         assert app.source.link_view().recording is None

@@ -7,8 +7,6 @@ import pytest
 from rich.console import Console
 
 from processing.detections import KeyState
-from processing.measure import Measures
-from tui.quality import all_quality
 from tui.render.bar import RELEASE_MARK, THRESHOLD_MARK, delta_bar
 from tui.render.glyphs import state_label, verdict_label
 from tui.render.groups import slider_track
@@ -106,34 +104,6 @@ def test_slider_track_marker_moves() -> None:
     assert slider_track(0, 99, 10).index("◆") == 0
     assert slider_track(99, 99, 10).index("◆") == 9
     assert slider_track(50, 99, 11).index("◆") == 5
-
-
-def test_all_quality_matches_measures_quality_per_channel() -> None:
-    # processing.measure.Measures.quality is the definition; all_quality computes all channels at once.
-    rng = np.random.default_rng(5)
-    m = Measures(channels=6, rate_hz=100.0, window_s=1.0, history_frames=512)
-    for block in range(8):
-        n = 97
-        deltas = rng.normal(0, 3 + np.arange(6), size=(n, 6)).round().astype(np.int64)
-        states = np.zeros((n, 6), np.int8)
-        if block in (3, 4):
-            states[:, 2] = KeyState.TOUCHED
-            deltas[:, 2] += 80
-        states[10:20, 4] = KeyState.CONFIRMING
-        m.ingest(np.arange(n) / 100.0 + block, 1000 + deltas, deltas, states)
-    fast = all_quality(m)
-    for c in range(6):
-        ref = m.quality(c)
-        assert ref.noise is not None and fast[c].noise is not None
-        assert fast[c].noise.samples == ref.noise.samples
-        assert fast[c].noise.pp_counts == ref.noise.pp_counts
-        assert fast[c].noise.rms_counts == pytest.approx(ref.noise.rms_counts, rel=1e-12)
-        assert fast[c].verdict == ref.verdict
-        assert (fast[c].snr_pp is None) == (ref.snr_pp is None)
-    # and against numpy directly: population std of the newest window of released frames (numpy.std)
-    _, _, d, s = m.history.last(len(m.history))
-    released = d[s[:, 0] == KeyState.RELEASED, 0][-m.window_frames:]
-    assert fast[0].noise.rms_counts == pytest.approx(float(np.std(released)), rel=1e-12)
 
 
 def test_spectrum_peak_matches_measures_and_finds_an_injected_tone() -> None:

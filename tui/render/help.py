@@ -18,12 +18,34 @@ SAFETY_CAUTIONS: tuple[str, ...] = (
 )
 
 
+# Textual's key names -> what is printed on the key (or the symbol typed).
+_KEY_LABELS = {
+    "plus": "+", "minus": "-", "question_mark": "?", "greater_than_sign": ">", "less_than_sign": "<",
+    "equals_sign": "=", "full_stop": ".", "comma": ",", "slash": "/", "left_square_bracket": "[",
+    "right_square_bracket": "]", "space": "Space", "enter": "Enter", "escape": "Esc", "tab": "Tab",
+    "backspace": "Backspace", "delete": "Del", "insert": "Ins", "home": "Home", "end": "End",
+    "pageup": "PgUp", "pagedown": "PgDn", "up": "↑", "down": "↓", "left": "←", "right": "→",
+}
+_MODIFIERS = {"ctrl": "Ctrl", "shift": "Shift", "alt": "Alt", "meta": "Meta", "super": "Super"}
+
+
+def key_label(key: str) -> str:
+    """One Textual key name as a user reads it: `pagedown` -> `PgDn`, `shift+tab` -> `Shift+Tab`."""
+    *mods, name = key.strip().split("+") if key.strip() != "+" else ["+"]
+    if name in _KEY_LABELS:
+        label = _KEY_LABELS[name]
+    elif len(name) == 1:
+        label = name.upper() if mods else name  # Ctrl+S is the key; a bare S is a capital
+    elif name[:1] == "f" and name[1:].isdigit():
+        label = name.upper()
+    else:
+        label = name.replace("_", " ").title()
+    return "+".join([*(_MODIFIERS.get(m, m.title()) for m in mods), label])
+
+
 def key_display(keys: str) -> str:
-    """`ctrl+s,f2` -> `ctrl+s / f2`, with the few symbol names spelt as their symbols."""
-    names = {"plus": "+", "minus": "-", "question_mark": "?", "greater_than_sign": ">",
-             "less_than_sign": "<", "equals_sign": "=", "space": "space", "full_stop": ".",
-             "left_square_bracket": "[", "right_square_bracket": "]"}
-    return " / ".join(names.get(k.strip(), k.strip()) for k in keys.split(","))
+    """`ctrl+s,pagedown` -> `Ctrl+S / PgDn`: every key of a binding, as the user reads it."""
+    return " / ".join(key_label(k) for k in keys.split(","))
 
 
 def help_tables(rows: Iterable[tuple[str, str, str]]) -> list[Table]:

@@ -18,7 +18,7 @@ _STATE_WORDS = {
 
 
 def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
-    """One line; with `compact`, two: the connection and counters, then recording and profile."""
+    """One line; with `compact`, two: the connection, then the counters, the profile and the recording."""
     glyph, word, role = _STATE_WORDS.get(view.state, ("?", view.state, "warn"))
     sep = Text(" │ ", style=pick(styles, "dim"))
     text = Text(no_wrap=True, overflow="ellipsis", end="")
@@ -38,19 +38,15 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
         text.append(f" {view.board}", pick(styles, "dim"))
     text.append_text(sep)
     text.append(f"{view.fps:.0f} fps")
-    if compact:
-        text.append("\n")
-    counters = (
-        ("lost", view.lost),
-        ("garbled", view.garbled),
-        ("cksum", view.bad_checksum),
-        ("resets", view.resets),
-    )
-    if view.overflow:
-        counters += (("overflow", view.overflow),)
-    for i, (name, count) in enumerate(counters):
-        text.append(f"{' ' if i or not compact else ''}{name} ")
-        text.append(str(count), pick(styles, "warn" if count else "dim"))
+    text.append("\n" if compact else " ")
+    _counters(text, view, styles, compact)
+    text.append_text(sep)
+    # The profile before the recording: at 80 cells a long recording name is what gets cut, never
+    # the unsaved mark.
+    text.append("profile ")
+    text.append(view.profile_name, pick(styles, "name"))
+    if view.unsaved:
+        text.append(" *unsaved", pick(styles, "warn"))
     text.append_text(sep)
     if view.recording:
         text.append("⏺ REC ", pick(styles, "bad"))
@@ -60,16 +56,33 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
         text.append(f" ({_why(view.recording_error)})", pick(styles, "bad"))
     else:
         text.append("rec off", pick(styles, "dim"))
-    text.append_text(sep)
-    text.append("profile ")
-    text.append(view.profile_name, pick(styles, "name"))
-    if view.unsaved:
-        text.append(" *unsaved", pick(styles, "warn"))
     return text
+
+
+_SHORT_CAUSES = {"No space left on device": "disk full", "Disk quota exceeded": "over quota",
+                 "Read-only file system": "read-only disk", "Input/output error": "disk error"}
 
 
 def _why(error: str) -> str:
     """The cause in a failed recording's message (`... failed (No space left on device); ...`)."""
     start, end = error.find("("), error.find(")")
     reason = error[start + 1:end] if 0 <= start < end else error
+    reason = _SHORT_CAUSES.get(reason, reason)  # the log and the notification keep the whole message
     return reason if len(reason) <= 30 else reason[:29] + "…"
+
+
+def _counters(text: Text, view: LinkView, styles: Styles, compact: bool) -> None:
+    """Every counter when there is room; in the compact strip only those above zero (or a word that
+    says there were none), so the profile and the recording keep their room at 80 cells."""
+    counters = [("lost", view.lost), ("garbled", view.garbled), ("bad checksum", view.bad_checksum),
+                ("resets", view.resets)]
+    if view.overflow:
+        counters.append(("overflow", view.overflow))
+    if compact:
+        counters = [(name, count) for name, count in counters if count]
+        if not counters:
+            text.append("no link errors", pick(styles, "dim"))
+            return
+    for i, (name, count) in enumerate(counters):
+        text.append(f"{' ' if i else ''}{name} ")
+        text.append(str(count), pick(styles, "warn" if count else "dim"))

@@ -46,7 +46,7 @@ def row_layout(width: int, name_width: int = 8) -> RowLayout:
     if room < 8:
         name = max(4, name - (8 - room))
         room = 8
-    spark = 0 if room < 18 else min(48, room * 2 // 5)
+    spark = 0 if room < 18 else min(48, (room - 1) * 2 // 5)  # 80 cells: the bar keeps 15, its title fits
     bar = max(4, room - spark - (1 if spark else 0))
     return RowLayout(width, name, number, baseline, bar, spark, noise, snr, state)
 
@@ -61,7 +61,8 @@ def _num(value: float | None, width: int, digits: int = 0) -> str:
 
 
 def _bar_title(width: int) -> str:
-    for title in ("delta bar: ┃ threshold  ╎ release", "delta ┃thresh ╎release", "┃thr ╎rel", "bar"):
+    for title in ("delta bar: ┃ threshold  ╎ release", "┃ threshold  ╎ release", "┃threshold ╎release",
+                  "┃touch ╎release", "┃touch ╎off", "bar"):
         if len(title) <= width:
             return title.ljust(width)
     return " " * width

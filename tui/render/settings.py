@@ -5,7 +5,7 @@ from __future__ import annotations
 from rich.text import Text
 
 from processing.settings import ChannelSettings
-from tui.fields import FIELDS
+from tui.fields import FIELDS, Field
 from tui.render import Styles, pick
 
 
@@ -23,6 +23,8 @@ def settings_text(settings: ChannelSettings, selected_key: str | None, styles: S
             text.append(f"{value:>6} {f.unit}", pick(styles, role))
         if rate_hz and f.unit == "frames" and value:
             text.append(f" {_duration(value / rate_hz)}", pick(styles, "dim"))
+        if f.unit == "shift" and 0 <= value < 31:  # what the shift stands for: the fraction a step
+            text.append(f" 1/{2 ** value}", pick(styles, "dim"))
         text.append("\n")
     text.append(f"  {'release level':<19} {settings.release_level_counts:>6} counts", pick(styles, "dim"))
     return text
@@ -34,18 +36,92 @@ def _duration(seconds: float) -> str:
 
 def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: Styles, width: int,
              position: str = "") -> Text:
-    """One line: the selected channel and its main settings, the field under edit marked with `▸`."""
-    text = Text(no_wrap=True, end="")
-    text.append(f"{name} ", pick(styles, "header"))
+    """One line: the selected channel and its settings in their groups, the field under edit marked `▸`
+    and named in full with its unit.
+
+    Groups that do not fit in `width` give way, farthest from the one being edited first, and show as
+    `…`: the bar never wraps and the field being edited is always on it.
+    """
+    groups = _field_groups()
+    chosen = next(i for i, g in enumerate(groups) if any(f.key == selected_key for f in g))
+    pieces = [_group_pieces(g, settings, selected_key, styles) for g in groups]
+    head = Text(no_wrap=True, end="")
+    head.append(f"{name} ", pick(styles, "header"))
     if position:
-        text.append(f"{position} ", pick(styles, "dim"))
-    for f in FIELDS:
-        value = getattr(settings, f.key)
-        chosen = f.key == selected_key
-        label = f.label if chosen else f.short
-        piece = f"{'▸' if chosen else ' '}{label} {value}"
-        if text.cell_len + len(piece) + 1 > width and not chosen:
+        head.append(f"{position} ", pick(styles, "dim"))
+    sep = Text("│ ", style=pick(styles, "dim"))
+    shown = _fitting(chosen, [p.cell_len + sep.cell_len for p in pieces], width - head.cell_len)
+    text = head
+    for i, piece in enumerate(pieces):
+        if i not in shown:
+            if i == 0 or i - 1 in shown:
+                text.append("… ", pick(styles, "dim"))
             continue
-        text.append(piece, pick(styles, "cursor" if chosen else "dim"))
+        if i and i - 1 in shown:
+            text.append_text(sep)
+        text.append_text(piece)
+    return text
+
+
+def _fitting(chosen: int, widths: list[int], room: int) -> set[int]:
+    """The groups that fit in `room`: the chosen one, then its neighbours outward, one side at a time,
+    keeping two cells for each `…` that stands for the groups left out."""
+    lo = hi = chosen
+    used = widths[chosen]
+
+    def fits(extra: int, new_lo: int, new_hi: int) -> bool:
+        marks = (new_lo > 0) + (new_hi < len(widths) - 1)
+        return used + extra + 2 * marks <= room
+
+    grew = True
+    while grew:
+        grew = False
+        if hi + 1 < len(widths) and fits(widths[hi + 1], lo, hi + 1):
+            hi += 1
+            used += widths[hi]
+            grew = True
+        if lo > 0 and fits(widths[lo - 1], lo - 1, hi):
+            lo -= 1
+            used += widths[lo]
+            grew = True
+    return set(range(lo, hi + 1))
+
+
+def _field_groups() -> list[list[Field]]:
+    """The edit bar's groups: each ungrouped field alone, grouped ones together, in FIELDS order."""
+    groups: list[list[Field]] = []
+    for f in FIELDS:
+        if f.group and groups and groups[-1][0].group == f.group:
+            groups[-1].append(f)
+        else:
+            groups.append([f])
+    # threshold and hysteresis read as one pair: the touch level and how far below it a touch ends
+    if len(groups) > 1 and not groups[0][0].group and not groups[1][0].group:
+        groups[0:2] = [groups[0] + groups[1]]
+    return groups
+
+
+def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: str, styles: Styles) -> Text:
+    text = Text(no_wrap=True, end="")
+    if group[0].group:
+        text.append(f"{group[0].group} ", pick(styles, "header"))
+    for f in group:
+        value = getattr(settings, f.key)
+        shown = "never" if f.key == "stuck_timeout_frames" and value == 0 else str(value)
+        if f.key == selected_key:
+            text.append(f"▸{f.short} {shown}{_meaning(f, value)}", pick(styles, "cursor"))
+        else:
+            text.append(f"{f.short} {shown}", pick(styles, "dim"))
         text.append(" ")
     return text
+
+
+def _meaning(f: Field, value: int) -> str:
+    """What the value under edit stands for, after it: its unit, or for the baseline follow shifts
+    the fraction of the way the baseline moves a step (a shift of 6 moves it 1/64 of the way)."""
+    if f.key == "stuck_timeout_frames" and value == 0:
+        return ""
+    if f.unit == "shift":
+        toward = "toward a touch" if f.key == "baseline_slow_shift" else "away from a touch"
+        return f" (1/{2 ** value} a step {toward})" if 0 <= value < 31 else ""
+    return f" {f.unit}"

@@ -45,6 +45,18 @@ def _thin(x: np.ndarray, points: int) -> np.ndarray:
     return x[idx]
 
 
+def detail_title(name: str, spectrum: Spectrum | None, width: int) -> str:
+    """The panel's title line: the plot's legend, or the spectrum's finding, whole at any width (the
+    finding is what matters: the explanations give way first)."""
+    if spectrum is None:
+        choices = [f"{name}: reading ⣿  baseline ·  threshold =  release -  (f: noise spectrum)",
+                   f"{name}: reading ⣿ baseline · threshold = release -"]
+    else:
+        choices = [f"{name}: noise spectrum of the untouched delta: {spectrum.summary} (f: back to the plot)",
+                   f"{name} noise: {spectrum.summary} (f: plot)", f"{name} noise: {spectrum.summary}"]
+    return next((c for c in choices if len(c) <= width), choices[-1])
+
+
 class DetailPanel(Vertical):
     ROLES = ("cursor", "name", "dim")
     COMPONENT_CLASSES: ClassVar[set[str]] = {f"detail-panel--{r}" for r in ROLES}
@@ -60,11 +72,8 @@ class DetailPanel(Vertical):
     def show(self, name: str, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
              selected_key: str, events: Sequence[str], rate_hz: float | None) -> None:
         styles = {r: self.get_component_rich_style(f"detail-panel--{r}", partial=True) for r in self.ROLES}
-        if spectrum is not None:
-            mode = f"noise spectrum of the untouched delta: {spectrum.summary} (f: back to the plot)"
-        else:
-            mode = "reading ⣿  baseline ·  threshold =  release -  (f: noise spectrum)"
-        self.query_one("#detail-title", Static).update(Text(f"{name}: {mode}", no_wrap=True))
+        self.query_one("#detail-title", Static).update(
+            Text(detail_title(name, spectrum, max(20, self.size.width - 2)), no_wrap=True))
         settings_lines = settings_text(settings, selected_key, styles, rate_hz)
         self.query_one("#detail-settings", Static).update(settings_lines)
         lines = Text("recent events, newest first\n", style=styles["dim"], no_wrap=True)
