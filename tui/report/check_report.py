@@ -37,7 +37,7 @@ def build_check_report(report: dict[str, Any], probe: UnitProbe, session: Sessio
         figures = [
             html.figure(delta_plot(t_s, d, float(s.threshold_counts), float(s.release_level_counts),
                                    title=f"{name}: hands-off delta",
-                                   limit_band=limits.get("max_noise_pp_counts")),
+                                   noise_limit_pp_counts=limits.get("max_noise_pp_counts")),
                         name, "delta", f"{name}: delta with hands off, threshold and release level"),
             # Hands off is not "untouched": a stuck key or a stray touch shows in it.
             html.figure(histogram_plot(d, touched, float(s.threshold_counts), title=f"{name}: deltas",

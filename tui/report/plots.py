@@ -59,23 +59,27 @@ def envelope(t_s: np.ndarray, values: np.ndarray, points: int = MAX_POINTS) -> t
     return np.array(ts), np.array(vs)
 
 
-def delta_plot(t_s: np.ndarray, delta: np.ndarray, threshold: float | None, release: float | None,
-               stretches: Sequence[tuple[int, int]] = (), title: str = "",
-               limit_band: float | None = None) -> str:
+def delta_plot(t_s: np.ndarray, delta_counts: np.ndarray, threshold_counts: float | None,
+               release_counts: float | None, stretches: Sequence[tuple[int, int]] = (), title: str = "",
+               noise_limit_pp_counts: float | None = None) -> str:
+    """Delta over time, touched stretches shaded, threshold and release lines, the noise limit band."""
     fig, ax = _figure()
-    t, v = envelope(np.asarray(t_s, float), np.asarray(delta, float))
+    t, v = envelope(np.asarray(t_s, float), np.asarray(delta_counts, float))
     for i, (a, b) in enumerate(stretches):
         end_s = float(t_s[min(b, len(t_s)) - 1])
         ax.axvspan(float(t_s[a]), end_s, color=COLOURS["touched"], alpha=0.35, lw=0,
                    label="touched" if i == 0 else None)
     ax.plot(t, v, color=COLOURS["delta"], lw=0.8, label="delta")
-    if threshold is not None:
-        ax.axhline(threshold, color=COLOURS["threshold"], lw=1, ls="--", label=f"threshold {threshold:g}")
-    if release is not None:
-        ax.axhline(release, color=COLOURS["release"], lw=1, ls=":", label=f"release {release:g}")
-    if limit_band is not None:
-        ax.axhspan(-limit_band / 2, limit_band / 2, color=COLOURS["limit"], alpha=0.12, lw=0,
-                   label=f"noise limit pp {limit_band:g}")
+    if threshold_counts is not None:
+        ax.axhline(threshold_counts, color=COLOURS["threshold"], lw=1, ls="--",
+                   label=f"threshold {threshold_counts:g}")
+    if release_counts is not None:
+        ax.axhline(release_counts, color=COLOURS["release"], lw=1, ls=":",
+                   label=f"release {release_counts:g}")
+    if noise_limit_pp_counts is not None:  # a pp limit drawn as a band centred on zero delta
+        half = noise_limit_pp_counts / 2
+        ax.axhspan(-half, half, color=COLOURS["limit"], alpha=0.12, lw=0,
+                   label=f"noise limit pp {noise_limit_pp_counts:g}")
     ax.set_xlabel("time (s)")
     ax.set_ylabel("delta (counts)")
     if title:
@@ -85,8 +89,10 @@ def delta_plot(t_s: np.ndarray, delta: np.ndarray, threshold: float | None, rele
     return _svg(fig)
 
 
-def histogram_plot(untouched: np.ndarray, touched: np.ndarray, threshold: float | None,
+def histogram_plot(untouched_counts: np.ndarray, touched_counts: np.ndarray, threshold_counts: float | None,
                    title: str = "", labels: tuple[str, str] = ("untouched", "touched")) -> str:
+    """Histograms (log frame counts) of untouched and touched deltas, with the threshold line."""
+    untouched, touched, threshold = untouched_counts, touched_counts, threshold_counts
     fig, ax = _figure(4.2, 2.4)
     values = [np.asarray(v, float) for v in (untouched, touched) if len(v)]
     lo = min((float(v.min()) for v in values), default=0.0)
