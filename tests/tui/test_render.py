@@ -97,6 +97,21 @@ def test_link_strip_says_disconnected_and_unsaved() -> None:
     text = link_strip(v, {}, compact=True).plain
     assert "RECONNECTING" in text and "lost 3" in text and "keys.toml *unsaved" in text
     assert "REC r.csv" in text and text.count("\n") == 1
+    assert text.index("*unsaved") < text.index("⏺ REC")  # a long recording name is cut before the mark
+
+
+def test_link_strip_counters_in_words_and_only_the_nonzero_ones_when_compact() -> None:
+    quiet = LinkView(port="sim://greenhouse", baud=115200, state="connected", fps=100.0)
+    assert "no link errors" in link_strip(quiet, {}, compact=True).plain
+    wide = link_strip(quiet, {}, compact=False).plain
+    assert "lost 0 garbled 0 bad checksum 0 resets 0" in wide and " cksum" not in wide
+    noisy = LinkView(port="sim://greenhouse", baud=115200, state="connected", fps=100.0, bad_checksum=4,
+                     resets=1)
+    line2 = link_strip(noisy, {}, compact=True).plain.split("\n")[1]
+    assert line2.startswith("bad checksum 4 resets 1 │ profile") and "lost" not in line2
+    failed = LinkView(port="p", baud=9600, state="connected", fps=0.0, recording_error=(
+        "writing the recording /tmp/x.csv failed (No space left on device); the rows written ..."))
+    assert "✗ REC FAILED (disk full)" in link_strip(failed, {}).plain
 
 
 def test_slider_track_marker_moves() -> None:
@@ -128,3 +143,45 @@ def test_spectrum_peak_matches_measures_and_finds_an_injected_tone() -> None:
     assert spec.freq_hz[int(np.argmax(spec.amplitude_counts))] == pytest.approx(ref.freq_hz, abs=0.01)
     assert ref.freq_hz == pytest.approx(12.0, abs=0.5)
     assert f"{ref.freq_hz:.1f} Hz" in spec.summary
+
+
+def test_help_shows_keys_as_printed_on_the_keyboard() -> None:
+    from tui.bindings import help_rows
+    from tui.render.help import key_display, key_label
+
+    assert key_display("pagedown") == "PgDn"
+    assert key_display("pageup") == "PgUp"
+    assert key_display("left,shift+tab") == "← / Shift+Tab"
+    assert key_display("enter,e") == "Enter / e"
+    assert key_display("escape,q,question_mark,f1") == "Esc / q / ? / F1"
+    assert key_display("U,ctrl+y") == "U / Ctrl+Y"
+    assert key_display("plus,equals_sign") == "+ / ="
+    assert [key_label(k) for k in ("home", "end", "space", "ctrl+p", "right_square_bracket")] == [
+        "Home", "End", "Space", "Ctrl+P", "]"]
+    # Every key the live screen binds gets a label without Textual's underscores or lower-case names.
+    for _, keys, _ in help_rows():
+        shown = key_display(keys)
+        assert "_" not in shown and "pagedown" not in shown and "shift+" not in shown, shown
+
+
+def test_edit_bar_names_every_setting_in_words_and_keeps_the_edited_one_on_screen() -> None:
+    from processing.settings import ChannelSettings
+    from tui.fields import FIELDS
+    from tui.render.settings import edit_bar
+
+    s = ChannelSettings(threshold_counts=30, hysteresis_counts=8)
+    for width in (80, 120, 200):
+        for f in FIELDS:
+            bar = edit_bar("zone1", s, f.key, {}, width, "1/9").plain
+            assert len(bar) <= width, (width, bar)
+            assert f"▸{f.short} " in bar  # the field under edit is always shown, in words
+            for cryptic in ("t-deb", "r-deb", "thr ", "hyst "):
+                assert cryptic not in bar, bar
+    wide = edit_bar("zone1", s, "threshold_counts", {}, 200, "").plain
+    assert wide.startswith("zone1 ▸threshold 30 counts hysteresis 8 │ debounce touch 3 release 3 │ "
+                           "baseline slow 6 fast 2 every 16 │ stuck after never")
+    narrow = edit_bar("zone1", s, "baseline_slow_shift", {}, 80, "1/9").plain
+    # 1/2**6 of the way a step: the shift read as the fraction it stands for
+    assert "baseline ▸slow 6 (1/64 a step toward a touch)" in narrow and narrow.startswith("zone1 1/9 … ")
+    last = edit_bar("zone1", s, "stuck_timeout_frames", {}, 80, "").plain
+    assert last.endswith("▸stuck after never ") and "…" in last
