@@ -11,6 +11,7 @@ def test_choices_list_ports_then_simulated_boards() -> None:
     got = choices([("/dev/ttyACM0", "touch dev board"), ("/dev/ttyUSB1", "")], ["greenhouse", "grid64"])
     assert [c.target for c in got] == ["/dev/ttyACM0", "/dev/ttyUSB1", "sim://greenhouse", "sim://grid64"]
     assert got[0].label == "/dev/ttyACM0  touch dev board" and not got[0].simulated and got[2].simulated
+    assert got[1].label == "/dev/ttyUSB1  serial port"  # no description: still says what it is
 
 
 async def test_enter_opens_the_highlighted_choice() -> None:

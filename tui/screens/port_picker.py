@@ -24,7 +24,7 @@ class Choice:
 
 def choices(ports: Sequence[tuple[str, str]], boards: Sequence[str]) -> list[Choice]:
     """Ports first (`(device, description)`), then one `sim://` entry per simulated board."""
-    out = [Choice(dev, f"{dev}  {desc}".rstrip(), False) for dev, desc in ports]
+    out = [Choice(dev, f"{dev}  {desc or 'serial port'}", False) for dev, desc in ports]
     out += [Choice(f"sim://{name}", f"sim://{name}  simulated board", True) for name in boards]
     return out
 
@@ -38,7 +38,7 @@ class PortPickerApp(App[str | None]):
     OptionList { height: 1fr; margin: 0 1; }
     """
     BINDINGS: ClassVar = [
-        Binding("escape,q", "leave", "Leave", id="picker.leave"),
+        Binding("escape,q", "leave", "Leave", id="picker.leave", key_display="Esc"),
         Binding("r", "rescan", "Look for ports again", id="picker.rescan"),
     ]
 

@@ -16,7 +16,7 @@ Check = Callable[[str], str | None]
 
 
 class PromptScreen(ModalScreen[str | None]):
-    BINDINGS: ClassVar = [Binding("escape", "cancel", "Cancel", id="prompt.cancel")]
+    BINDINGS: ClassVar = [Binding("escape", "cancel", "Cancel", id="prompt.cancel", key_display="Esc")]
 
     def __init__(self, question: str, value: str = "", check: Check | None = None, hint: str = "") -> None:
         super().__init__()
