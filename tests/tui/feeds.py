@@ -119,4 +119,15 @@ def log_text(app: object) -> str:
     from tui.widgets.event_log import EventLog
 
     log = app.query_one(EventLog)  # type: ignore[attr-defined]
-    return "\n".join(strip.text.rstrip() for strip in log.lines)
+    width = log.scrollable_content_region.width
+    lines: list[str] = []
+    full = False
+    for strip in log.lines:  # a long line goes on below, indented past the time: join it back
+        text = strip.text.rstrip()
+        if lines and text.startswith(" " * 9) and text.strip():
+            # a line cut inside a word (folded) filled the width; one broken at a space did not
+            lines[-1] += ("" if full else " ") + text.strip()
+        else:
+            lines.append(text)
+        full = len(text) >= width
+    return "\n".join(lines)

@@ -617,3 +617,18 @@ def test_source_mark_writes_typed_marks_and_reports_a_failed_write(tmp_path: Pat
     assert any("recording stopped" in e for e in source.poll().errors)
     source.close()
     assert source.exit_problems == []
+
+
+async def test_a_long_log_line_wraps_under_itself_at_80_columns() -> None:
+    app, feed = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        run(app, feed, 0.5)
+        feed.disconnect()
+        run(app, feed, 0.2)
+        await pilot.pause()
+        lines = screen_text(app).splitlines()
+        at = next(i for i, line in enumerate(lines) if "link disconnected" in line)
+        # the reason is on the screen whole, on the next line, indented past the time column
+        assert "device went away" in lines[at] + lines[at + 1]
+        start = lines[at].index("0.50") + 5
+        assert lines[at + 1][start:].strip() and not lines[at + 1][start - 5:start].strip()

@@ -185,3 +185,12 @@ def test_edit_bar_names_every_setting_in_words_and_keeps_the_edited_one_on_scree
     assert "baseline ▸slow 6 (1/64 a step toward a touch)" in narrow and narrow.startswith("zone1 1/9 … ")
     last = edit_bar("zone1", s, "stuck_timeout_frames", {}, 80, "").plain
     assert last.endswith("▸stuck after never ") and "…" in last
+
+
+def test_link_strip_cuts_a_long_reason_so_the_first_line_keeps_the_rate_at_80_cells() -> None:
+    v = LinkView(port="/dev/pts/1", baud=115200, state="reconnecting", fps=14.0,
+                 detail="read failed: device reports readiness to read but returned no data (device "
+                 "disconnected or multiple access on port?)")
+    first = link_strip(v, {}, compact=True, width=78).plain.split("\n")[0]
+    assert len(first) <= 78 and first.endswith("115200 Bd │ 14 fps") and "RECONNECTING (read failed" in first
+    assert "…" in first

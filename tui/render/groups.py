@@ -26,7 +26,7 @@ def groups_text(
 ) -> Text:
     text = Text(no_wrap=True, end="")
     if not groups and not sliders:
-        text.append("no groups or sliders in this profile", pick(styles, "dim"))
+        text.append("no key groups or sliders", pick(styles, "dim"))
         return text
     for group in groups:
         text.append(f"group {group.name}: ", pick(styles, "header"))

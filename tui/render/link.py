@@ -17,8 +17,12 @@ _STATE_WORDS = {
 }
 
 
-def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
-    """One line; with `compact`, two: the connection, then the counters, the profile and the recording."""
+def link_strip(view: LinkView, styles: Styles, compact: bool = False, width: int | None = None) -> Text:
+    """One line; with `compact`, two: the connection, then the counters, the profile and the recording.
+
+    With `width`, the link's reason for being down is cut to what fits beside the port and rate on
+    the first line (the log has it whole), so the line never runs over.
+    """
     glyph, word, role = _STATE_WORDS.get(view.state, ("?", view.state, "warn"))
     sep = Text(" │ ", style=pick(styles, "dim"))
     text = Text(no_wrap=True, overflow="ellipsis", end="")
@@ -29,8 +33,11 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False) -> Text:
         glyph, word, role = "●", f"connected, NO FRAMES for {view.silent_s} s", "warn"
     text.append(f"{glyph} {word}", pick(styles, role))
     if view.detail and role == "bad":
-        detail = view.detail if len(view.detail) <= 40 else view.detail[:39] + "…"
-        text.append(f" ({detail})", pick(styles, role))
+        rest = len(f" │ {view.port} {view.baud} Bd │ {view.fps:.0f} fps") + 3
+        room = 40 if width is None else min(40, width - text.cell_len - rest)
+        if room >= 8:
+            detail = view.detail if len(view.detail) <= room else view.detail[:room - 1] + "…"
+            text.append(f" ({detail})", pick(styles, role))
     text.append_text(sep)
     text.append(view.port, pick(styles, "name"))
     text.append(f" {view.baud} Bd")

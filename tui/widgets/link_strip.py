@@ -20,7 +20,7 @@ class LinkStrip(Static):
         super().__init__("", id=id)
         self._last_plain: str | None = None
         self._last_view: LinkView | None = None
-        self._last_compact = False
+        self._last_compact: tuple[bool, int] | None = None
         self._styles: dict[str, Style] | None = None
         self._last_state: str | None = None
 
@@ -30,15 +30,16 @@ class LinkStrip(Static):
         self._last_view = None
 
     def show(self, view: LinkView) -> None:
-        compact = self.app.size.width < 140
-        if view == self._last_view and compact == self._last_compact:
+        width = self.app.size.width
+        compact = width < 140
+        if view == self._last_view and (compact, width) == self._last_compact:
             return
-        self._last_view, self._last_compact = view, compact
+        self._last_view, self._last_compact = view, (compact, width)
         if self._styles is None:
             self._styles = {
                 role: self.get_component_rich_style(f"link-strip--{role}", partial=True) for role in ROLES
             }
-        text = link_strip(view, self._styles, compact=compact)
+        text = link_strip(view, self._styles, compact=compact, width=width - 2)
         if text.plain == self._last_plain and view.state == self._last_state:
             return  # the same words: no update, so no layout pass
         self._last_plain, self._last_state = text.plain, view.state
