@@ -18,14 +18,14 @@ from rich.text import Text
 from textual.app import App, ComposeResult, SystemCommand
 from textual.containers import Horizontal
 from textual.reactive import reactive
-from textual.screen import Screen
+from textual.screen import ModalScreen, Screen
 from textual.widgets import Footer, Static
 
 from processing.detections import Rebaselined
 from protocol.errors import UserError
 from protocol.events import BoardChanged
 from tui.app_files import FileActions
-from tui.bindings import _COVERED_OFF, BINDINGS, help_rows
+from tui.bindings import _COVERED_OFF, _PRESS_THROUGH, BINDINGS, help_rows
 from tui.describe import describe_detection, describe_event
 from tui.edits import Change, Edit, EditHistory
 from tui.fields import FIELDS, parse_value, stepped, with_value
@@ -470,7 +470,10 @@ class PadtuneApp(FileActions, App[int]):
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
         """Keys of the live screen do nothing while another screen (help, a prompt, the capture) is on top."""
         covered = bool(self.screen_stack) and self.screen is not self.screen_stack[0]
-        return not (covered and action.split("(")[0] in _COVERED_OFF)
+        name = action.split("(")[0]
+        if covered and name in _PRESS_THROUGH and not isinstance(self.screen, ModalScreen):
+            return True
+        return not (covered and name in _COVERED_OFF)
 
     def get_system_commands(self, screen: Screen) -> Iterable[SystemCommand]:
         seen = set()

@@ -68,6 +68,9 @@ BINDINGS: list[Binding] = [
 # Actions that are off while a dialog or another screen is on top: all but quit (help's own keys
 # then show in the footer instead of the live screen's).
 _COVERED_OFF = {b.action.split("(")[0] for b in BINDINGS} - {"quit"}
+# ... except that a full screen over the live one (the guided capture, which asks to touch each key)
+# still lets the simulated board's keys be pressed: in the demo that is the only way to touch them.
+_PRESS_THROUGH = {"hold_number", "hold", "tap"}
 
 
 def help_rows(bindings: Iterable[Binding] = BINDINGS) -> list[tuple[str, str, str]]:

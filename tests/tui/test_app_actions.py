@@ -632,3 +632,25 @@ async def test_a_long_log_line_wraps_under_itself_at_80_columns() -> None:
         assert "device went away" in lines[at] + lines[at + 1]
         start = lines[at].index("0.50") + 5
         assert lines[at + 1][start:].strip() and not lines[at + 1][start - 5:start].strip()
+
+
+async def test_demo_keys_press_the_board_during_the_guided_capture_but_not_under_a_dialog() -> None:
+    feed = SimFeed(script=False)
+    source = SessionSource(feed, port="sim://greenhouse", profile=demo_profile("greenhouse"),
+                           clock=lambda: feed.t_s)
+    app = PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s, demo=True)
+    async with app.run_test() as pilot:
+        run(app, feed, 1.0)
+        await pilot.press("w")
+        await pilot.pause()
+        assert app.screen.__class__.__name__ == "CaptureScreen"
+        await pilot.press("1")  # "touch and hold zone1": in the demo the keyboard is the finger
+        assert feed.board.held() == ["zone1"]
+        await pilot.press("1")
+        assert feed.board.held() == []
+        await pilot.press("escape")
+        await pilot.pause()
+        await pilot.press("question_mark")
+        assert isinstance(app.screen, HelpScreen)
+        await pilot.press("1")  # under help (a dialog) the live keys stay off
+        assert feed.board.held() == []
