@@ -24,17 +24,17 @@ from textual.widgets import Footer, Static
 from processing.detections import Rebaselined
 from protocol.errors import UserError
 from protocol.events import BoardChanged
+from tui.app_edits import EditActions, PressActions
 from tui.app_files import FileActions
 from tui.bindings import _COVERED_OFF, _PRESS_THROUGH, BINDINGS, help_rows
 from tui.describe import describe_detection, describe_event
-from tui.edits import Change, Edit, EditHistory
-from tui.fields import FIELDS, parse_value, stepped, with_value
+from tui.edits import EditHistory
+from tui.fields import FIELDS
 from tui.render.help import key_display
 from tui.render.settings import edit_bar
 from tui.render.views import LinkView
 from tui.screens.confirm import ConfirmScreen
 from tui.screens.help import HelpScreen
-from tui.screens.prompt import PromptScreen
 from tui.source import LiveSource, Tick
 from tui.widgets.channel_table import ChannelTable
 from tui.widgets.detail_panel import DetailPanel, Spectrum
@@ -47,7 +47,7 @@ SPARK_POINTS = 48
 SPECTRUM_EVERY_S = 1.0
 DETAIL_EVERY_S = 0.5
 
-class PadtuneApp(FileActions, App[int]):
+class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
     """The live screen over one `LiveSource`. `ui_hz=0` disables the timer (tests call `refresh_now`)."""
 
     CSS_PATH = "app.tcss"
@@ -266,6 +266,12 @@ class PadtuneApp(FileActions, App[int]):
             if self.detail:
                 self._draw_detail()
 
+    def refresh_now_if_idle(self) -> None:
+        """Show the effect of an action at once (the timer would, within a frame; tests run without it)."""
+        self._main(LinkStrip).show(self._link_view())
+        if self.ui_hz == 0:
+            self.refresh_now()
+
     def _log(self, line: str) -> None:
         self._main(EventLog).add(self._since_start(self.clock()), Text(line))
 
@@ -292,110 +298,6 @@ class PadtuneApp(FileActions, App[int]):
     def action_field(self, step: int) -> None:
         self.field_index += step
 
-    # -- editing ----------------------------------------------------------------------------------
-    def _apply_changes(self, description: str, changes: list[Change]) -> None:
-        done: list[Change] = []
-        for change in changes:
-            try:
-                self.source.apply(change.channel, change.after)  # type: ignore[arg-type]
-            except ValueError as exc:
-                for undo in reversed(done):
-                    self.source.apply(undo.channel, undo.before)  # type: ignore[arg-type]
-                self.notify(f"Refused: {exc}", severity="warning")
-                return
-            done.append(change)
-        if self.history.record(description, done):
-            self._log(description)
-        self._redraw_soon()
-        self.refresh_now_if_idle()
-
-    def refresh_now_if_idle(self) -> None:
-        """Show the effect of an action at once (the timer would, within a frame; tests run without it)."""
-        self._main(LinkStrip).show(self._link_view())
-        if self.ui_hz == 0:
-            self.refresh_now()
-
-    def _set_value(self, value: int) -> None:
-        ch, key = self.cursor, self.field_key
-        old = self.source.settings(ch)
-        new, reason = with_value(old, key, value)
-        if reason:
-            self.bell()
-            self.notify(f"Refused: {reason}. It stays {getattr(old, key)}.", severity="warning")
-            return
-        label = FIELDS[self.field_index].label
-        name = self.source.channel_names()[ch]
-        self._apply_changes(f"{name}: {label} {getattr(old, key)} → {value}", [Change(ch, old, new)])
-
-    def action_step(self, steps: int, coarse: bool) -> None:
-        if self._has_channels():
-            self._set_value(stepped(self.source.settings(self.cursor), self.field_key, steps, coarse))
-
-    def action_type_value(self) -> None:
-        if not self._has_channels():
-            return
-        ch, key, f = self.cursor, self.field_key, FIELDS[self.field_index]
-        current = self.source.settings(ch)
-
-        def check(text: str) -> str | None:
-            try:
-                return with_value(current, key, parse_value(text, key))[1]
-            except ValueError as exc:
-                return str(exc)
-
-        def done(text: str | None) -> None:
-            if text is not None:
-                self._set_value(parse_value(text, key))
-
-        name = self.source.channel_names()[ch]
-        unit = "a shift n: the baseline moves 1/2ⁿ of the way a step" if f.unit == "shift" else f.unit
-        self.push_screen(PromptScreen(f"{name}: new {f.label} ({unit})", str(getattr(current, key)), check),
-                         done)
-
-    def _copy_to(self, targets: Iterable[int], what: str) -> None:
-        ch = self.cursor
-        settings = self.source.settings(ch)
-        changes = [Change(t, self.source.settings(t), settings) for t in targets if t != ch]
-        if not changes or all(c.before == c.after for c in changes):
-            self.notify(f"{what}: already the same settings.")
-            return
-        name = self.source.channel_names()[ch]
-        self._apply_changes(f"copied {name}'s settings to {what} ({len(changes)} channels)", changes)
-
-    def action_apply_all(self) -> None:
-        if self._has_channels():
-            self._copy_to(range(len(self.source.channel_names())), "all channels")
-
-    def action_apply_group(self) -> None:
-        if not self._has_channels():
-            return
-        members = self.source.group_of(self.cursor)
-        if len(members) < 2:
-            self.notify("This channel is in no group (groups come from the profile).", severity="warning")
-            return
-        self._copy_to(members, "its group")
-
-    def _replay(self, edit: Edit | None, verb: str) -> None:
-        if edit is None:
-            self.notify(f"Nothing to {verb}.")
-            return
-        try:
-            for change in edit.changes:
-                self.source.apply(change.channel, change.after)  # type: ignore[arg-type]
-        except ValueError as exc:  # the channels changed under the edit (no board, another width)
-            self.history.clear()
-            self.notify(f"Cannot {verb}: {exc}. The edit history was cleared.", severity="warning")
-            return
-        self._log(f"{verb}: {edit.description.removeprefix('undo ')}")
-        self._redraw_soon()
-        self.refresh_now_if_idle()
-
-    def action_undo(self) -> None:
-        self._replay(self.history.undo(), "undo")
-
-    def action_redo(self) -> None:
-        self._replay(self.history.redo(), "redo")
-
     # -- channel and display ----------------------------------------------------------------------
     def action_rebaseline(self, every: bool) -> None:
         if not self._has_channels():
@@ -413,34 +315,6 @@ class PadtuneApp(FileActions, App[int]):
 
     def action_toggle_pause(self) -> None:
         self.paused = not self.paused
-
-    # -- simulated board --------------------------------------------------------------------------
-    def _press(self, ch: int, pressed: bool) -> None:
-        if not self.source.can_press():
-            self.notify("Key presses from the keyboard work only on a simulated board (padtune demo).",
-                        severity="warning")
-            return
-        names = self.source.channel_names()
-        if not 0 <= ch < len(names):
-            return
-        if not self.source.press(ch, pressed):
-            self.notify("The board is not connected: the key press was not sent.", severity="warning")
-            return
-        (self.held.add if pressed else self.held.discard)(ch)
-
-    def action_tap(self) -> None:
-        if self._has_channels() and self.source.can_press():
-            ch = self.cursor
-            self._press(ch, True)
-            self.set_timer(0.4, lambda: self._press(ch, False))
-        else:
-            self._press(self.cursor, True)
-
-    def action_hold(self) -> None:
-        self.action_hold_number(self.cursor)
-
-    def action_hold_number(self, ch: int) -> None:
-        self._press(ch, ch not in self.held)
 
     # -- the rest ---------------------------------------------------------------------------------
     def action_wizard(self) -> None:
