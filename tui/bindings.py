@@ -47,7 +47,7 @@ BINDINGS: list[Binding] = [
     B("f", "toggle_spectrum", "Noise spectrum in the detail panel", id="chan.spectrum", show=False),
     B("space", "toggle_pause", "pause", id="chan.pause", key_display="Space",
       tooltip="Pause / resume the display (detection keeps running)"),
-    B("r", "toggle_recording", "rec", id="rec.toggle", tooltip="Start / stop recording to a CSV file"),
+    B("r", "toggle_recording", "record", id="rec.toggle", tooltip="Start / stop recording to a CSV file"),
     B("m", "mark", "Mark this moment in the recording", id="rec.mark", show=False),
     B("s,ctrl+s", "save", "save", id="prof.save", tooltip="Save the profile"),
     B("S", "save_as", "Save the profile as another file", id="prof.save_as", show=False),
