@@ -194,3 +194,17 @@ def test_link_strip_cuts_a_long_reason_so_the_first_line_keeps_the_rate_at_80_ce
     first = link_strip(v, {}, compact=True, width=78).plain.split("\n")[0]
     assert len(first) <= 78 and first.endswith("115200 Bd │ 14 fps") and "RECONNECTING (read failed" in first
     assert "…" in first
+
+
+def test_detail_title_keeps_the_spectrum_finding_whole_at_80_columns() -> None:
+    import numpy as np
+
+    from tui.widgets.detail_panel import Spectrum, detail_title
+
+    finding = "strongest noise at 17.5 Hz: alias of 100 Hz (mains harmonic 2, 50 Hz)"
+    spectrum = Spectrum(np.zeros(1), np.zeros(1), finding)
+    for width in (78, 118, 200):
+        title = detail_title("zone1", spectrum, width)
+        assert finding in title and len(title) <= width
+    assert "(f: back to the plot)" in detail_title("zone1", spectrum, 200)
+    assert detail_title("zone1", None, 78).startswith("zone1: reading ⣿")
