@@ -53,7 +53,8 @@ def detail_title(name: str, spectrum: Spectrum | None, width: int) -> str:
                    f"{name}: reading ⣿ baseline · threshold = release -"]
     else:
         choices = [f"{name}: noise spectrum of the untouched delta: {spectrum.summary} (f: back to the plot)",
-                   f"{name} noise: {spectrum.summary} (f: plot)", f"{name} noise: {spectrum.summary}"]
+                   f"{name} noise: {spectrum.summary} (f: plot)", f"{name} noise: {spectrum.summary}",
+                   f"{name}: {spectrum.summary}", spectrum.summary]
     return next((c for c in choices if len(c) <= width), choices[-1])
 
 
