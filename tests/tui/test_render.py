@@ -208,3 +208,14 @@ def test_detail_title_keeps_the_spectrum_finding_whole_at_80_columns() -> None:
         assert finding in title and len(title) <= width
     assert "(f: back to the plot)" in detail_title("zone1", spectrum, 200)
     assert detail_title("zone1", None, 78).startswith("zone1: reading ⣿")
+
+
+def test_edit_bar_uses_the_last_cell_it_has() -> None:
+    from processing.settings import ChannelSettings
+    from tui.render.settings import edit_bar
+
+    s = ChannelSettings(threshold_counts=100, hysteresis_counts=15, touch_debounce_frames=3,
+                        release_debounce_frames=3)
+    line = "zone1 1/9 ▸threshold 100 counts hysteresis 15 │ debounce touch 3 release 3 … "
+    assert edit_bar("zone1", s, "threshold_counts", {}, len(line), "1/9").plain == line  # exactly fits
+    assert "debounce" not in edit_bar("zone1", s, "threshold_counts", {}, len(line) - 1, "1/9").plain

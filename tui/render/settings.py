@@ -50,7 +50,7 @@ def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: St
     if position:
         head.append(f"{position} ", pick(styles, "dim"))
     sep = Text("│ ", style=pick(styles, "dim"))
-    shown = _fitting(chosen, [p.cell_len + sep.cell_len for p in pieces], width - head.cell_len)
+    shown = _fitting(chosen, [p.cell_len for p in pieces], width - head.cell_len, sep.cell_len)
     text = head
     for i, piece in enumerate(pieces):
         if i not in shown:
@@ -63,15 +63,15 @@ def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: St
     return text
 
 
-def _fitting(chosen: int, widths: list[int], room: int) -> set[int]:
+def _fitting(chosen: int, widths: list[int], room: int, sep_cells: int) -> set[int]:
     """The groups that fit in `room`: the chosen one, then its neighbours outward, one side at a time,
-    keeping two cells for each `…` that stands for the groups left out."""
+    with a separator between shown groups and two cells for each `…` that stands for those left out."""
     lo = hi = chosen
     used = widths[chosen]
 
     def fits(extra: int, new_lo: int, new_hi: int) -> bool:
         marks = (new_lo > 0) + (new_hi < len(widths) - 1)
-        return used + extra + 2 * marks <= room
+        return used + extra + sep_cells * (new_hi - new_lo) + 2 * marks <= room
 
     grew = True
     while grew:
