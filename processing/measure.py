@@ -127,14 +127,21 @@ class SpectrumPeak:
     mains_hz: float | None  # the mains frequency this peak is an alias of, if any
     harmonic: int | None  # 1 = the mains fundamental, 2 = second harmonic, ...
     alias_hz: float | None
+    near_dc: bool = False  # in the lowest bins, where drift and a slow baseline walk land
 
     def describe(self) -> str:
+        if self.near_dc:
+            return (f"strongest noise at {self.freq_hz:.1f} Hz: slow drift near DC (mains aliases here "
+                    "only when the frame rate divides it, and then cannot be told apart)")
         if self.mains_hz is None:
             return f"strongest noise at {self.freq_hz:.1f} Hz, not a mains alias"
         which = "mains" if self.harmonic == 1 else f"mains harmonic {self.harmonic}"
         tone_hz = self.mains_hz * (self.harmonic or 1)
         return (f"strongest noise at {self.freq_hz:.1f} Hz: alias of {tone_hz:g} Hz "
                 f"({which}, {self.mains_hz:g} Hz)")
+
+
+NEAR_DC_BINS = 2  # FFT bins above DC that count as drift rather than a tone
 
 
 def alias_hz(f_hz: float, fs_hz: float) -> float:
@@ -166,9 +173,12 @@ def spectrum_peak(samples: np.ndarray, fs_hz: float) -> SpectrumPeak | None:
         return None
     freq = k * fs_hz / len(x)
     amplitude = 2.0 * spec[k] / window.sum()
-    match = explain_peak(freq, fs_hz, tolerance_hz=fs_hz / len(x))
+    # A Hann window spreads drift (a ramp over the window) into bins 1-2; a peak there is drift,
+    # not a tone, even where a mains alias falls near 0 Hz (frame rate 50 or 60 Hz).
+    near_dc = k <= NEAR_DC_BINS
+    match = None if near_dc else explain_peak(freq, fs_hz, tolerance_hz=fs_hz / len(x))
     m, h, a = match if match else (None, None, None)
-    return SpectrumPeak(freq, float(amplitude), len(x), m, h, a)
+    return SpectrumPeak(freq, float(amplitude), len(x), m, h, a, near_dc)
 
 
 class ColumnRing:

@@ -153,3 +153,18 @@ def test_definition_text_states_the_forms_window_and_bounds():
     text = Measures(1, rate_hz=100.0, window_s=3.0, bounds=VerdictBounds(4, 12)).definition()
     assert "median delta while touched" in text and "last 3 s" in text and "RMS" in text
     assert "below 4 weak" in text and "above 12 solid" in text
+
+
+def test_slow_drift_on_a_60_hz_board_is_drift_not_mains():
+    # At a 60 Hz frame rate 60 Hz mains aliases to 0 Hz (alias formula as above), so a drift peak in the
+    # first bins sits "within tolerance" of it; a ramp is drift, and the check must say so.
+    fs, n = 60.0, 120
+    rng = np.random.default_rng(3)
+    x = np.linspace(0.0, 12.0, n) + rng.normal(0, 0.3, n)  # 12 counts of drift over the 2 s window
+    peak = spectrum_peak(x, fs)
+    assert peak.near_dc and peak.mains_hz is None
+    assert "drift" in peak.describe() and "alias of" not in peak.describe()
+    # A real tone at the same board is still named: 50 Hz mains at fs 60 Hz shows at 10 Hz.
+    t = np.arange(n) / fs
+    peak = spectrum_peak(4 * np.sin(2 * np.pi * 50 * t) + rng.normal(0, 0.3, n), fs)
+    assert not peak.near_dc and peak.mains_hz == 50.0 and peak.freq_hz == pytest.approx(10.0)
