@@ -107,6 +107,12 @@ def histogram_plot(untouched_counts: np.ndarray, touched_counts: np.ndarray, thr
     if threshold is not None:
         ax.axvline(threshold, color=COLOURS["threshold"], lw=1, ls="--", label="threshold")
     ax.set_yscale("log")
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
+    # Plain frame counts at 1-2-5 steps (20, 50, 100, 200), never crowded labels such as 6x10^1.
+    ax.yaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    ax.yaxis.set_minor_formatter(NullFormatter())
     ax.set_xlabel("delta (counts)")
     ax.set_ylabel("frames")
     if title:
