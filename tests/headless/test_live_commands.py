@@ -493,3 +493,38 @@ def test_monitor_reports_an_unplug_and_the_replug(tmp_path):
     assert summary["type"] == "summary" and summary["frames"] == 80 and summary["lost"] == 0
     states = [e["event"] for e in events if e["type"] == "link"]
     assert states.index("disconnected") < states.index("reconnected")
+
+
+def test_check_measures_its_duration_from_the_first_frame(tmp_path):
+    """A board that says nothing for the first 2 s after the port opens (many reset on open) is
+    measured for the whole --duration once it speaks, not failed as dead or cut short."""
+    import numpy as np
+
+    from processing.profile import profile_for
+    from protocol.encoder import encode_frames, encode_info
+    from tests.protocol.ptyboard import PtyBoard
+
+    save_profile(profile_for(2, names=("a", "b")), tmp_path / "two.toml")
+    board = PtyBoard(tmp_path)
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "check", str(board.path), "--profile",
+                             str(tmp_path / "two.toml"), "--duration", "1", "--json"], cwd=ROOT,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        time.sleep(2.0)  # the silence under test (the check must wait through it)
+        board.send(encode_info({"proto": 1, "board": "late", "channels": 2, "rate": 100, "names": "a,b"}))
+        spoke_at = time.monotonic()
+        first = 0
+        while proc.poll() is None and first < 100 * 60:  # 100 Hz until the check ends (at most a minute)
+            board.send(encode_frames(1000 + np.zeros((5, 2), np.int64), first, checksum=True))
+            first += 5
+            time.sleep(0.05)
+        listened_s = time.monotonic() - spoke_at
+        out, err = proc.communicate(timeout=WAIT_S)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+        board.close()
+    assert proc.returncode == 0, err
+    report = json_lines(out)[0]
+    assert report["passed"] and [c["name"] for c in report["channels"]] == ["a", "b"]
+    assert listened_s >= 1.0  # it measured for the whole duration after the first frame
