@@ -495,6 +495,14 @@ def test_monitor_reports_an_unplug_and_the_replug(tmp_path):
     assert states.index("disconnected") < states.index("reconnected")
 
 
+def _holds_open(pid: int, path: str) -> bool:
+    folder = Path(f"/proc/{pid}/fd")
+    try:
+        return any(os.path.realpath(fd) == path for fd in folder.iterdir())
+    except OSError:  # the process (or one descriptor) went away while we looked: not open
+        return False
+
+
 def test_check_measures_its_duration_from_the_first_frame(tmp_path):
     """A board that says nothing for the first 2 s after the port opens (many reset on open) is
     measured for the whole --duration once it speaks, not failed as dead or cut short."""
@@ -510,6 +518,12 @@ def test_check_measures_its_duration_from_the_first_frame(tmp_path):
                              str(tmp_path / "two.toml"), "--duration", "1", "--json"], cwd=ROOT,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     try:
+        # Bytes sent before the port is open would be flushed: wait until the check holds it open.
+        tty_path = os.path.realpath(board.path)
+        deadline = time.monotonic() + WAIT_S
+        while not _holds_open(proc.pid, tty_path):
+            assert proc.poll() is None and time.monotonic() < deadline, "the check never opened the port"
+            time.sleep(0.02)
         time.sleep(2.0)  # the silence under test (the check must wait through it)
         board.send(encode_info({"proto": 1, "board": "late", "channels": 2, "rate": 100, "names": "a,b"}))
         spoke_at = time.monotonic()
