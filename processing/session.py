@@ -228,6 +228,13 @@ class Session:
         else:
             profile = profile_for(channels, names or (self._profile.names if self._profile
                                                       and self._profile.channels == channels else ()), board)
+            if wanted is None and self._profile is None:
+                # Untuned defaults rarely fit a real overlay: a key that never reaches the default
+                # threshold looks like a dead board unless the user is told why.
+                d = profile.defaults
+                self.notices.append(f"no profile given: every channel starts at the default settings "
+                                    f"(threshold {d.threshold_counts} counts, hysteresis "
+                                    f"{d.hysteresis_counts}); measure the keys and save a profile")
             if wanted is not None:
                 self.notices.append(f"profile is for {wanted.channels} channels, the board has {channels}: "
                                     "using the profile's defaults for every channel")

@@ -5,7 +5,7 @@ import pytest
 
 from processing.detections import GroupChange, Rebaselined, Release, SliderChange, StuckRelease, Touch
 from processing.groups import GroupSpec
-from processing.profile import Profile
+from processing.profile import Profile, profile_for
 from processing.session import Session
 from processing.settings import ChannelSettings
 from processing.slider import SliderSpec
@@ -213,3 +213,14 @@ def test_noise_after_a_stuck_release_counts_only_frames_after_it():
     assert first == 10 + 41
     assert d[10 + 50:10 + 60, 0].tolist() == s.measures.released_deltas(0).tolist()
     assert (st[10 + 40:, 0] == 0).all() and (st[10 + 39, 0] != 0)  # released from row 40 on
+
+
+def test_without_a_profile_the_user_is_told_the_defaults_once():
+    s = Session()
+    s.handle([info(), quiet(20)])
+    s.handle([quiet(20, first_index=20)])
+    told = [n for n in s.notices if n.startswith("no profile given")]
+    assert len(told) == 1 and f"threshold {ChannelSettings().threshold_counts} counts" in told[0]
+    given = Session(profile_for(4, NAMES))
+    given.handle([info(), quiet(20)])
+    assert not [n for n in given.notices if n.startswith("no profile given")]
