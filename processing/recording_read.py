@@ -231,6 +231,9 @@ def parse_raw_capture(data: bytes, where: str = "<capture>", rate_hz: float | No
 def read_recording(path: str | os.PathLike[str], rate_hz: float | None = None) -> Recording:
     """Read a padtune recording or a raw capture of protocol lines (UserError for anything unreadable)."""
     p = Path(path)
+    if p.exists() and not p.is_dir() and not p.is_file():
+        # A device or a pipe (/dev/zero, a FIFO) may never end: a recording is a file on disk.
+        raise UserError(f"{p}: not a regular file; record the board to a file first (padtune record)")
     try:
         data = p.read_bytes()
     except FileNotFoundError:

@@ -67,6 +67,8 @@ def _open_message(port: str, exc: BaseException) -> str:
         if sys.platform == "win32":
             return f"cannot open {port}: access denied, usually another program has it open; close it"
         return f"no permission to open {port}: ask for access to the serial device"
+    if code == errno.EISDIR or "is a directory" in lowered:
+        return f"{port} is a folder, not a serial port: name a device such as /dev/ttyACM0, or a URL"
     if code == errno.ECONNREFUSED or "connection refused" in lowered:
         return f"cannot connect to {port}: connection refused; is the server running?"
     detail = text.splitlines()[0] if text else type(exc).__name__

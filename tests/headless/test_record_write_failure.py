@@ -1,4 +1,4 @@
-"""A recording that cannot be written (a full disk) ends with one clear line, not a traceback.
+"""A recording that cannot be written (a full disk) or read (a device) ends in one clear line.
 
 `/dev/full` is the Linux device whose every write fails with ENOSPC (documented in full(4)), the
 standard stand-in for a full disk.
@@ -56,3 +56,9 @@ def test_record_command_on_a_full_disk_exits_2_with_one_line():
     lines = out.stderr.strip().splitlines()
     assert len(lines) == 1 and "No space left on device" in lines[0], out.stderr
     assert "Traceback" not in out.stderr
+
+
+def test_replay_refuses_a_device_that_never_ends():
+    out = subprocess.run([sys.executable, "-m", "tui.cli", "replay", "/dev/zero"],
+                         capture_output=True, text=True, timeout=60)
+    assert out.returncode == 2 and "not a regular file" in out.stderr and out.stderr.count("\n") == 1

@@ -91,3 +91,14 @@ def test_suggestions_always_apply_cleanly(quiet, held, rate_hz):
     if isinstance(s, Suggestion):
         assert s.apply(ChannelSettings()).problems() == []
         assert s.threshold_counts - s.hysteresis_counts > max(quiet)  # the release level clears the noise
+
+
+def test_reasons_read_well_when_nothing_was_seen_to_span():
+    # A steady key: no noise burst and no dip while held; the reasons must not say "up to 0 frames".
+    quiet = np.zeros(400, dtype=np.int64)
+    quiet[::2] = 2
+    held = np.full(200, 300)
+    s = suggest(quiet, held, rate_hz=100.0)
+    assert isinstance(s, Suggestion)
+    assert "up to 0 frames" not in " ".join(s.reasons.values())
+    assert "never dipped" in s.reasons["release_debounce_frames"]
