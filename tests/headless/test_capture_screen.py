@@ -97,7 +97,8 @@ async def test_wizard_runs_every_step_and_applies_all():
         console = Console(record=True, width=100, color_system=None)
         console.print(outcome_detail(screen.outcomes[0]))
         detail = console.export_text()
-        assert "threshold_counts" in detail and "untouched" in detail and "^ threshold" in detail
+        assert "  threshold: " in detail and "threshold_counts" not in detail  # reasons use the labels
+        assert "untouched" in detail and "^ threshold" in detail
         shot = app.export_screenshot()
         assert "zone1" in shot and "threshold" in shot
         await pilot.press("A")

@@ -3,8 +3,9 @@
 The step logic is `processing.capture.CaptureWizard` (pure); this screen only shows it and feeds it.
 It reads the frames the session has taken since the last tick from the session's bounded history, so it
 works while the app's own timer keeps polling the link (pass `poll` to drive the source yourself, as
-tests do). At the end a table lists per key noise pp and RMS, touch delta, SNR and verdict and the
-suggested threshold, hysteresis and debounce; the selected key's reasons and histogram show below it.
+tests do). At the end a table lists per key noise pp, touch delta, SNR pp and verdict and the
+suggested threshold, hysteresis and debounce; the selected key's RMS figures, reasons and histogram
+show below it.
 `a` applies the selected key's suggestion, `A` all of them, Esc discards. The screen dismisses with
 `{channel: ChannelSettings}` of what to apply (empty when discarded).
 
@@ -31,12 +32,29 @@ from processing.recording import Mark
 from processing.session import Session
 from processing.settings import ChannelSettings
 from protocol.events import FrameBlock
+from tui.fields import FIELDS
 from tui.headless.histogram import DeltaHistogram
+from tui.render.help import key_display
 
 TICK_S = 0.1
-# Short headings so the whole table fits 80 columns: noise and SNR in pp and RMS form, threshold,
-# hysteresis, touch/release debounce (frames), and whether the suggestion has been applied.
-COLUMNS = ("key", "noise pp", "rms", "touch", "SNR pp", "rms", "verdict", "thr", "hyst", "db", "set")
+# Two-line heads (the quantity over its form or unit) in plain words. Eleven columns with full words
+# cannot fit 80 cells, so the RMS forms of noise and SNR moved to the selected key's detail lines,
+# and the columns are one cell apart (each cell carries its own leading space) instead of two.
+COLUMNS: tuple[tuple[str, str], ...] = (
+    ("key", ""), ("noise", "pp"), ("touch", "delta"), ("SNR", "pp"), ("verdict", ""),
+    ("threshold", "counts"), ("hysteresis", "counts"), ("debounce", "frames"), ("applied", ""),
+)
+# Setting keys (as the suggestion's reasons carry them) -> the words the editor shows for them.
+_LABELS = {f.key: f.label for f in FIELDS}
+
+
+def setting_label(key: str) -> str:
+    """`threshold_counts` -> `threshold`: a setting key as the user reads it (unknown keys unchanged)."""
+    return _LABELS.get(key, key.replace("_", " "))
+
+
+def _cell(value: str) -> Text:
+    return Text(f" {value}")
 
 
 def _num(value: float | None, digits: int = 1) -> str:
@@ -48,16 +66,20 @@ def outcome_row(o: CaptureOutcome, applied: bool) -> tuple[str, ...]:
     settings = (str(s.threshold_counts), str(s.hysteresis_counts),
                 f"{s.touch_debounce_frames}/{s.release_debounce_frames}") if o.suggested else ("-", "-", "-")
     mark = "yes" if applied else ("-" if o.suggested else "none")
-    return (o.name, _num(f.noise_pp_counts), _num(f.noise_rms_counts), _num(f.signal_counts),
-            _num(f.snr_pp), _num(f.snr_rms), o.verdict, *settings, mark)
+    return (o.name, _num(f.noise_pp_counts), _num(f.signal_counts), _num(f.snr_pp), o.verdict, *settings,
+            mark)
 
 
 def outcome_detail(o: CaptureOutcome) -> Group:
     """The selected key's reasons and its histogram of untouched and touched deltas."""
-    lines = [Text(f"{o.name}", style="bold")]
+    f = o.figures
+    lines = [Text(f"{o.name}", style="bold"),
+             Text(f"  noise {_num(f.noise_pp_counts)} pp, {_num(f.noise_rms_counts)} RMS counts; "
+                  f"touch delta {_num(f.signal_counts)} counts"),
+             Text(f"  SNR {_num(f.snr_pp)} pp, {_num(f.snr_rms)} RMS: {o.verdict}")]
     if o.suggested:
         for key, reason in o.suggestion.reasons.items():  # type: ignore[union-attr]
-            lines.append(Text(f"  {key}: {reason}"))
+            lines.append(Text(f"  {setting_label(key)}: {reason}"))
     else:
         lines.append(Text(f"  no suggestion: {o.suggestion.reason}"))  # type: ignore[union-attr]
     if o.stray_frames:
@@ -73,7 +95,8 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
 
     CSS_PATH = "capture.tcss"
     BINDINGS: ClassVar = [
-        Binding("escape", "discard", "discard", id="capture.discard", tooltip="Close without applying"),
+        Binding("escape", "discard", "discard", id="capture.discard", key_display=key_display("escape"),
+                tooltip="Close without applying"),
         Binding("s", "skip", "skip key", id="capture.skip", tooltip="Skip the key asked for now"),
         Binding("a", "apply_one", "apply key", id="capture.apply_one",
                 tooltip="Apply the selected key's suggestion"),
@@ -102,13 +125,14 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
             yield Static("", id="capture-notice")
             yield Static("", id="capture-overall")
         with VerticalScroll(id="capture-results"):
-            yield DataTable(id="capture-table", cursor_type="row", zebra_stripes=True)
+            yield DataTable(id="capture-table", cursor_type="row", zebra_stripes=True, header_height=2,
+                            cell_padding=0)
             yield Static("", id="capture-detail")
         yield Footer()
 
     def on_mount(self) -> None:
         self.query_one("#capture-results").display = False
-        self.query_one(DataTable).add_columns(*COLUMNS)
+        self.query_one(DataTable).add_columns(*(_cell(f"{top}\n {unit}") for top, unit in COLUMNS))
         if self.tick_s > 0:
             self.set_interval(self.tick_s, self.tick)
         self.tick()
@@ -175,7 +199,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         self.query_one(ProgressBar).update(progress=round(100 * w.progress))
         number = min(w.step_index + 1, len(w.steps))
         self.query_one("#capture-overall", Static).update(
-            Text(f"step {number} of {len(w.steps)}   s: skip this key   Esc: discard"))
+            Text(f"step {number} of {len(w.steps)}   s: skip this key   {key_display('escape')}: discard"))
 
     def _finish(self) -> None:
         assert self.wizard is not None
@@ -192,7 +216,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         row = table.cursor_row
         table.clear()
         for o in self.outcomes:
-            table.add_row(*outcome_row(o, o.channel in self.applied), key=str(o.channel))
+            table.add_row(*map(_cell, outcome_row(o, o.channel in self.applied)), key=str(o.channel))
         if self.outcomes:
             table.move_cursor(row=min(max(row, 0), len(self.outcomes) - 1))
 
