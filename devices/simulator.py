@@ -262,6 +262,15 @@ class SimBoard:
         if text == "?":
             self._emit_info(announce=False)
             return
+        if text in ("script off", "script on"):
+            # The demo's guided capture asks the panel to keep still: no scripted or random touches.
+            now = max(self.generated_s, min(self.sim_time_s, self.generated_s + 1.0 / self.spec.rate_hz))
+            if text == "script off":
+                self.touches.pause_automatic(now)
+            else:
+                self.touches.resume_automatic(now)
+            self._note(f"scripted and random touches {'paused' if self.touches.paused else 'resumed'}")
+            return
         if text[0] in "+-" and len(text) > 1:
             target, _, amount = text[1:].partition("=")
             try:
@@ -277,7 +286,7 @@ class SimBoard:
                 self._note(f"error: {_clip(text)!r}: {exc}")
             return
         self._note(f"error: unknown command {_clip(text)!r}; commands: ?, +PAD, +PAD=STRENGTH, -PAD, "
-                   "-* (lift all)")
+                   "-* (lift all), script off, script on")
 
     def press(self, channel: str | int, pressed: bool = True, strength: float = 1.0) -> None:
         """Put a finger on a pad (or lift it) from the next frame on."""

@@ -62,6 +62,9 @@ def _from_script(spec: BoardSpec, t: ScriptTouch, offset_s: float) -> Contact:
                    t.wet_area_m2, t.body_f)
 
 
+MAX_PAUSES = 64  # hands-off spans remembered (bounded memory; older ones are long past)
+
+
 class TouchPlan:
     """The contacts of one run: expands the looped script and draws random touches lazily, seeded."""
 
@@ -75,6 +78,9 @@ class TouchPlan:
         self._random_until_s = 0.0
         self._next_random_s = self._gap_s()
         self.presses: list[Contact] = []
+        # Spans of simulated time (end inf while it lasts) in which a host asked for hands off
+        # (`script off`): scripted and random contacts starting there do not happen; presses still do.
+        self._paused: list[list[float]] = []
         slider_pads = {p for s in spec.sliders for p in s.pads}
         self._random_pads = spec.random.pads or tuple(n for n in spec.names if n not in slider_pads)
 
@@ -116,13 +122,31 @@ class TouchPlan:
         self._extend_random(end_s + RAMP_S)
         lo, hi = start_s - RAMP_S, end_s + RAMP_S
         recent = self._random[bisect.bisect_left(self._random_ends, lo):]
-        pool = self.scripted(start_s, end_s) + recent + self.presses
+        pool = self._unpaused(self.scripted(start_s, end_s) + recent) + self.presses
         return [c for c in pool if c.start_s <= hi and c.end_s >= lo]
+
+    @property
+    def paused(self) -> bool:
+        return bool(self._paused) and self._paused[-1][1] == math.inf
+
+    def pause_automatic(self, t_s: float) -> None:
+        if not self.paused:
+            self._paused.append([t_s, math.inf])
+            del self._paused[:-MAX_PAUSES]
+
+    def resume_automatic(self, t_s: float) -> None:
+        if self.paused:
+            self._paused[-1][1] = t_s
+
+    def _unpaused(self, contacts: list[Contact]) -> list[Contact]:
+        if not self._paused:
+            return contacts
+        return [c for c in contacts if not any(a <= c.start_s < b for a, b in self._paused)]
 
     def truth(self, until_s: float) -> list[Contact]:
         """Ground truth: every contact that started by `until_s`, in start order."""
         self._extend_random(until_s)
-        pool = self.scripted(0.0, until_s) + self._random + self.presses
+        pool = self._unpaused(self.scripted(0.0, until_s) + self._random) + self.presses
         return sorted((c for c in pool if c.start_s <= until_s), key=lambda c: (c.start_s, c.channels))
 
     def press(self, channel: int, t_s: float, strength: float) -> None:

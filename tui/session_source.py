@@ -263,6 +263,12 @@ class SessionSource:
         sent = self.producer.write(f"{'+' if pressed else '-'}{name}\n".encode("ascii", "replace"))
         return sent is not False
 
+    def keep_still(self, still: bool) -> bool:
+        """Ask a simulated board to pause (or resume) its scripted touches; False when not sent."""
+        if not self.simulated:
+            return False
+        return self.producer.write(b"script off\n" if still else b"script on\n") is not False
+
     # -- profile ----------------------------------------------------------------------------------
     def profile_path(self) -> Path | None:
         return self._path

@@ -281,3 +281,28 @@ def test_fault_items_say_what_is_wrong(item, words):
     with pytest.raises(UserError) as err:
         FaultPlan.parse([item])
     assert words in str(err.value) and "\n" not in str(err.value), str(err.value)
+
+
+def test_script_off_keeps_the_panel_still_until_script_on():
+    from protocol.decoder import Decoder
+
+    def zone_spread(board: SimBoard, seconds: float) -> int:
+        decoder = Decoder()
+        blocks = [e for e in decoder.feed(board.run_for(seconds), 0.0) if isinstance(e, FrameBlock)]
+        readings = np.concatenate([b.readings for b in blocks])
+        return int(np.ptp(readings[:, :4], axis=0).max())
+
+    board = SimBoard("greenhouse", seed=4)  # its script touches a zone key every couple of seconds
+    moving = zone_spread(board, 8.0)
+    board.write(b"script off\n")
+    board.run_for(2.0)  # a touch already under way ends as it would (the finger lifts in its own time)
+    still = zone_spread(board, 8.0)
+    assert still * 3 < moving  # only noise is left
+    paused_at = board.generated_s - 10.0
+    truth = board.scripted_touches()
+    assert [c for c in truth if c.start_s < paused_at]  # what did happen before the pause stays true
+    assert not [c for c in truth if c.start_s >= paused_at and c.source != "press"]
+    board.write(b"+zone1\n")  # presses still work while the script is paused
+    assert zone_spread(board, 1.0) > still * 3
+    board.write(b"-zone1\nscript on\n")
+    assert zone_spread(board, 8.0) > still * 3

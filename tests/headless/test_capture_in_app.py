@@ -103,3 +103,35 @@ async def test_capture_while_recording_leaves_marks_that_tune_uses(tmp_path):
     by_name = {o.name: o for o in screen.outcomes}
     for row in result["channels"]:  # the same stretches give about the same touch figure
         assert abs(row["signal"] - by_name[row["name"]].figures.signal_counts) <= 3
+
+
+async def test_on_a_simulated_board_the_capture_pauses_its_script_and_resumes_it():
+    feed = SyntheticFeed(noise_counts=2)
+    clock = Clock()
+    source = SessionSource(feed, port="sim://greenhouse", clock=clock)
+    app = PadtuneApp(source, ui_hz=0, clock=clock)
+    async with app.run_test(size=(100, 32)) as pilot:
+        feed.advance(0.5)
+        app.refresh_now()
+        await pilot.press("w")
+        await pilot.pause()
+        assert isinstance(app.screen, CaptureScreen)
+        assert feed.written[-1:] == [b"script off\n"]
+        await pilot.press("escape")
+        await pilot.pause()
+        assert not isinstance(app.screen, CaptureScreen)
+        assert feed.written[-1:] == [b"script on\n"]
+
+
+async def test_a_real_board_gets_no_simulator_commands():
+    feed = SyntheticFeed(noise_counts=2)
+    source = SessionSource(feed, port="/dev/ttyACM0", clock=Clock())
+    app = PadtuneApp(source, ui_hz=0, clock=source.clock)
+    async with app.run_test(size=(100, 32)) as pilot:
+        feed.advance(0.5)
+        app.refresh_now()
+        await pilot.press("w")
+        await pilot.pause()
+        await pilot.press("escape")
+        await pilot.pause()
+        assert not any(b"script" in w for w in feed.written)

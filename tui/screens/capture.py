@@ -276,7 +276,15 @@ def open_capture(app: Any) -> None:
         app.notify("The guided capture needs a live session.", severity="warning")
         return
 
+    # On a simulated board the demo's scripted touches would land on the wrong keys mid-capture:
+    # ask the board to keep still until the capture closes (a real board ignores the request).
+    keep_still = getattr(source, "keep_still", None)
+    if keep_still is not None and keep_still(True):
+        app.notify("The simulated board's scripted touches are paused during the capture.")
+
     def done(result: dict[int, ChannelSettings] | None) -> None:
+        if keep_still is not None:
+            keep_still(False)
         if not result:
             app.notify("Guided capture closed: nothing applied.")
             return
