@@ -34,7 +34,7 @@ lint: $(TEST_STAMP)
 	$(BIN)/ruff check .
 
 snapshots-update: $(TEST_STAMP)
-	$(BIN)/python -m pytest -q tests/tui --snapshot-update
+	$(BIN)/python -m pytest -q tests/tui tests/headless --snapshot-update
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache .ruff_cache .hypothesis
