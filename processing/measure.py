@@ -396,10 +396,14 @@ class Measures:
             snr_rms = signal / noise.rms_counts if noise.rms_counts > 0 else math.inf
         return ChannelQuality(noise, signal, snr_pp, snr_rms, self.bounds.verdict(snr_pp))
 
-    def spectrum(self, channel: int) -> SpectrumPeak | None:
-        """FFT of the newest unbroken run of released frames within the window (on demand)."""
+    def spectrum_samples(self, channel: int) -> np.ndarray:
+        """The deltas a spectrum is taken of: the newest unbroken run of released frames in the window,
+        less the settle guard after the last touch (a finger lifting is not noise here either)."""
         _, _, deltas, states = self.history.last(self.window_frames)
-        released = states[:, channel] == KeyState.RELEASED
-        broken = np.flatnonzero(~released)
-        start = int(broken[-1]) + 1 if len(broken) else 0
-        return spectrum_peak(deltas[start:, channel], self.rate_hz)
+        broken = np.flatnonzero(states[:, channel] != KeyState.RELEASED)
+        start = int(broken[-1]) + 1 + self.guard_frames if len(broken) else 0
+        return deltas[start:, channel].astype(np.float64)
+
+    def spectrum(self, channel: int) -> SpectrumPeak | None:
+        """FFT of `spectrum_samples(channel)` (on demand): the strongest peak and its mains check."""
+        return spectrum_peak(self.spectrum_samples(channel), self.rate_hz)

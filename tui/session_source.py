@@ -16,7 +16,6 @@ from typing import Protocol
 
 import numpy as np
 
-from processing.detections import KeyState
 from processing.fixed import to_counts
 from processing.measure import MIN_SPECTRUM_SAMPLES, ChannelQuality, spectrum_peak
 from processing.profile import Profile, load_profile, save_profile
@@ -219,14 +218,12 @@ class SessionSource:
         return Series(t.copy(), reading.astype(np.float64), (reading - pol * delta).astype(np.float64), pol)
 
     def spectrum(self, channel: int) -> Spectrum | None:
-        """Amplitude spectrum of the same frames `Measures.spectrum` uses (the newest unbroken run of
-        untouched frames in the noise window), with its peak and mains-alias check as the summary."""
+        """Amplitude spectrum of the frames `Measures.spectrum` uses (`spectrum_samples`: the newest
+        unbroken run of untouched frames in the window, settled), with its peak and mains check."""
         m = self.session.measures
         if m is None:
             return None
-        _, _, deltas, states = m.history.last(m.window_frames)
-        broken = np.flatnonzero(states[:, channel] != KeyState.RELEASED)
-        samples = deltas[int(broken[-1]) + 1 if len(broken) else 0:, channel].astype(np.float64)
+        samples = m.spectrum_samples(channel)
         if len(samples) < MIN_SPECTRUM_SAMPLES:
             return Spectrum(np.zeros(1), np.zeros(1), "not enough untouched frames yet: hands off a moment")
         peak = spectrum_peak(samples, m.rate_hz)

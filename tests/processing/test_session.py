@@ -224,3 +224,18 @@ def test_without_a_profile_the_user_is_told_the_defaults_once():
     given = Session(profile_for(4, NAMES))
     given.handle([info(), quiet(20)])
     assert not [n for n in given.notices if n.startswith("no profile given")]
+
+
+def test_spectrum_leaves_out_the_settle_guard_after_a_touch():
+    # 100 Hz: quiet, a touch of 300 counts for 0.5 s, then 1 s quiet. The spectrum's samples start one
+    # settle guard (0.1 s = 10 frames) after the last frame that was not released.
+    s = Session()
+    rows = [[1000] * 4] * 100 + [[1300, 1000, 1000, 1000]] * 50 + [[1000] * 4] * 100
+    s.handle([info(), frames(np.asarray(rows) + np.random.default_rng(2).integers(-2, 3, (250, 4)))])
+    m = s.measures
+    _, _, _, states = m.history.last(m.window_frames)
+    last_active = int(np.flatnonzero(states[:, 0] != 0)[-1])
+    samples = m.spectrum_samples(0)
+    assert m.guard_frames == 10
+    assert len(samples) == len(states) - (last_active + 1) - m.guard_frames
+    assert len(m.spectrum_samples(1)) == len(states)  # an untouched key keeps the whole window
