@@ -6,6 +6,7 @@ The plot is textual-plotext's PlotextPlot; it is redrawn at a few hertz, not at 
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import ClassVar
@@ -43,6 +44,21 @@ def _thin(x: np.ndarray, points: int) -> np.ndarray:
         return x
     idx = np.linspace(0, len(x) - 1, points).astype(int)
     return x[idx]
+
+
+def envelope(t: np.ndarray, x: np.ndarray, points: int) -> tuple[np.ndarray, np.ndarray]:
+    """Min/max decimation to about `points` points: each bucket keeps its lowest and highest sample, in
+    time order, so a one-frame spike at 1 kHz still shows on a plot a hundred cells wide."""
+    n = len(x)
+    if n <= points:
+        return t, x
+    edges = np.linspace(0, n, max(1, points // 2) + 1).astype(int)
+    keep: list[int] = []
+    for a, b in itertools.pairwise(edges):  # a few hundred buckets, twice a second
+        lo, hi = a + int(np.argmin(x[a:b])), a + int(np.argmax(x[a:b]))
+        keep.extend((lo, hi) if lo < hi else (hi, lo) if hi < lo else (lo,))
+    idx = np.asarray(keep)
+    return t[idx], x[idx]
 
 
 def detail_title(name: str, spectrum: Spectrum | None, width: int) -> str:
@@ -92,20 +108,22 @@ class DetailPanel(Vertical):
         plt.clear_figure()
         points = max(10, widget.size.width * 2)
         if spectrum is not None:
-            freq, amp = _thin(spectrum.freq_hz, points), _thin(spectrum.amplitude_counts, points)
+            freq, amp = envelope(spectrum.freq_hz, spectrum.amplitude_counts, points)
             plt.plot(freq.tolist(), amp.tolist(), label="amplitude (counts)", marker="braille")
             plt.xlabel("Hz")
         elif series is not None and len(series.t_s) > 1:
-            t = _thin(series.t_s - series.t_s[-1], points)
-            reading = _thin(series.reading, points)
+            t_all = series.t_s - series.t_s[-1]
+            t_reading, reading = envelope(t_all, series.reading, points)
+            t = _thin(t_all, points)
             baseline = _thin(series.baseline, points)
             thr = baseline + series.polarity * settings.threshold_counts
             rel = baseline + series.polarity * settings.release_level_counts
             # Each line has its own marker so the plot reads without colour; the legend only where it fits.
             legend = widget.size.width >= 70
-            for values, label, marker in ((thr, "threshold", "="), (rel, "release", "-"),
-                                          (baseline, "baseline", "·"), (reading, "reading", "braille")):
-                plt.plot(t.tolist(), values.tolist(), label=label if legend else None, marker=marker)
+            for times, values, label, marker in ((t, thr, "threshold", "="), (t, rel, "release", "-"),
+                                                 (t, baseline, "baseline", "·"),
+                                                 (t_reading, reading, "reading", "braille")):
+                plt.plot(times.tolist(), values.tolist(), label=label if legend else None, marker=marker)
             plt.xlabel("seconds (0 = now)")
         else:
             plt.title("waiting for frames")
