@@ -128,8 +128,16 @@ class SpectrumPeak:
     harmonic: int | None  # 1 = the mains fundamental, 2 = second harmonic, ...
     alias_hz: float | None
     near_dc: bool = False  # in the lowest bins, where drift and a slow baseline walk land
+    prominence: float = math.inf  # the peak bin over the median bin: a tone stands out, white noise does not
+
+    @property
+    def distinct(self) -> bool:
+        return self.prominence >= TONE_PROMINENCE
 
     def describe(self) -> str:
+        if not self.distinct:
+            return (f"no distinct tone: broadband noise (peak at {self.freq_hz:.1f} Hz only "
+                    f"{self.prominence:.1f}x the median)")
         if self.near_dc:
             return (f"strongest noise at {self.freq_hz:.1f} Hz: slow drift near DC (mains aliases here "
                     "only when the frame rate divides it, and then cannot be told apart)")
@@ -142,6 +150,9 @@ class SpectrumPeak:
 
 
 NEAR_DC_BINS = 2  # FFT bins above DC that count as drift rather than a tone
+# A peak this many times the median bin is a tone; white noise of a 2 s window rarely reaches it
+# (common practice, no source: the exact factor is a judgement, 4-6 is usual for a glance at a spectrum).
+TONE_PROMINENCE = 5.0
 
 
 def alias_hz(f_hz: float, fs_hz: float) -> float:
@@ -176,9 +187,13 @@ def spectrum_peak(samples: np.ndarray, fs_hz: float) -> SpectrumPeak | None:
     # A Hann window spreads drift (a ramp over the window) into bins 1-2; a peak there is drift,
     # not a tone, even where a mains alias falls near 0 Hz (frame rate 50 or 60 Hz).
     near_dc = k <= NEAR_DC_BINS
-    match = None if near_dc else explain_peak(freq, fs_hz, tolerance_hz=fs_hz / len(x))
+    median = float(np.median(spec[1:]))
+    prominence = float(spec[k] / median) if median > 0 else math.inf
+    # Only a peak that stands out of the noise floor is a tone worth naming a source for.
+    tone = not near_dc and prominence >= TONE_PROMINENCE
+    match = explain_peak(freq, fs_hz, tolerance_hz=fs_hz / len(x)) if tone else None
     m, h, a = match if match else (None, None, None)
-    return SpectrumPeak(freq, float(amplitude), len(x), m, h, a, near_dc)
+    return SpectrumPeak(freq, float(amplitude), len(x), m, h, a, near_dc, prominence)
 
 
 class ColumnRing:

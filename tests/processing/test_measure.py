@@ -168,3 +168,21 @@ def test_slow_drift_on_a_60_hz_board_is_drift_not_mains():
     t = np.arange(n) / fs
     peak = spectrum_peak(4 * np.sin(2 * np.pi * 50 * t) + rng.normal(0, 0.3, n), fs)
     assert not peak.near_dc and peak.mains_hz == 50.0 and peak.freq_hz == pytest.approx(10.0)
+
+
+def test_white_noise_is_not_named_as_a_mains_alias():
+    # Gaussian white noise has a flat expected spectrum (numpy's generator as the reference source):
+    # its strongest bin is a fluke, not a tone, and must not be blamed on mains.
+    fs, n = 60.0, 120
+    flukes = 0
+    for seed in range(40):
+        peak = spectrum_peak(np.random.default_rng(seed).normal(0, 2.0, n), fs)
+        flukes += peak.distinct
+        if not peak.distinct:
+            assert peak.mains_hz is None and "no distinct tone" in peak.describe()
+    assert flukes <= 4  # a tone threshold that white noise seldom reaches
+    # The same noise with a real 50 Hz hum (aliased to 10 Hz at fs 60 Hz) is named.
+    t = np.arange(n) / fs
+    rng = np.random.default_rng(7)
+    peak = spectrum_peak(rng.normal(0, 2.0, n) + 3.0 * np.sin(2 * np.pi * 50 * t), fs)
+    assert peak.distinct and peak.mains_hz == 50.0 and peak.freq_hz == pytest.approx(10.0)
