@@ -22,49 +22,39 @@ from protocol.errors import UserError
 DEFAULT_BAUD = 115200
 
 
-def seconds(text: str) -> float:
-    """argparse type: a positive, finite number of seconds."""
+def _number(text: str, not_a_number: str, in_range: Callable[[float], bool], out_of_range: str) -> float:
+    """Parse an argparse float; the messages say what was expected (NaN and infinities are refused)."""
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
-    if not math.isfinite(value) or value <= 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
+        raise argparse.ArgumentTypeError(f"{text!r} {not_a_number}") from None
+    if not math.isfinite(value) or not in_range(value):
+        raise argparse.ArgumentTypeError(f"{text!r} {out_of_range}")
     return value
+
+
+def seconds(text: str) -> float:
+    """argparse type: a positive, finite number of seconds."""
+    return _number(text, "is not a number of seconds", lambda v: v > 0,
+                   "must be a positive number of seconds")
 
 
 def speed_factor(text: str) -> float:
     """argparse type: 0 (as fast as possible) or a positive speed factor."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a speed factor (1 = real time, 0 = flat out)") \
-            from None
-    if not math.isfinite(value) or value < 0:
-        raise argparse.ArgumentTypeError(f"{text!r} must be 0 (as fast as possible) or a positive factor")
-    return value
+    return _number(text, "is not a speed factor (1 = real time, 0 = flat out)", lambda v: v >= 0,
+                   "must be 0 (as fast as possible) or a positive factor")
 
 
 def frame_rate(text: str) -> float:
     """argparse type: a frame rate in Hz (positive, finite, at most 1 MHz)."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a frame rate in Hz (such as 100)") from None
-    if not math.isfinite(value) or not 0 < value <= 1e6:
-        raise argparse.ArgumentTypeError(f"{text!r} must be a frame rate above 0 and at most 1e6 Hz")
-    return value
+    return _number(text, "is not a frame rate in Hz (such as 100)", lambda v: 0 < v <= 1e6,
+                   "must be a frame rate above 0 and at most 1e6 Hz")
 
 
 def percentage(text: str) -> float:
     """argparse type: a percentage from 0 up to (not including) 100."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a percentage (such as 20)") from None
-    if not 0 <= value < 100:  # also refuses nan
-        raise argparse.ArgumentTypeError(f"{text!r} must be a percentage from 0 to 99")
-    return value
+    return _number(text, "is not a percentage (such as 20)", lambda v: 0 <= v < 100,
+                   "must be a percentage from 0 to 99")
 
 
 def baud_rate(text: str) -> int:
