@@ -26,6 +26,10 @@ class FaultKind(StrEnum):
     BOARD_CHANGED = "board_changed"  # three frames in a row of one new width: the board changed
     OVERFLOW = "overflow"  # events the consumer was too slow to take (bounded queue), count = dropped
     BAUD_SUSPECT = "baud_suspect"  # most bytes of the first 2 s after opening were garbage: wrong baud?
+    SILENT = "silent"  # no bytes for 2 s after opening, or a stall of 2 s later (count = seconds so far)
+    UNREADABLE = "unreadable"  # a printable stream in no form padtune reads (detail quotes a line)
+    REPEATED = "repeated"  # frames repeating the previous sequence number (count = how many since the
+    #                        last report; reported at a bounded rate, never once per line)
 
 
 class LinkState(StrEnum):
@@ -51,6 +55,9 @@ class FrameBlock:
     seq: np.ndarray
     readings: np.ndarray
     first_index: int
+    # The board's own time per frame from a leading time column (raw integer ticks, unit as printed),
+    # or None when the board sent none. Never a channel.
+    board_time: np.ndarray | None = None
 
     def __len__(self) -> int:
         return int(self.readings.shape[0])
@@ -86,6 +93,26 @@ class BoardInfo:
         """Keys this version of the protocol does not define: kept and shown, never an error."""
         known = {"proto", "board", "channels", "rate", "names", "method", "polarity", "fw"}
         return {k: v for k, v in self.fields.items() if k not in known}
+
+
+@dataclass(frozen=True, slots=True)
+class StreamForm:
+    """How a board without the v1 frame forms prints its data, as the decoder recognised it.
+
+    Emitted once when the form is first recognised (and again if it changes), before the frames read
+    in it. `form` is `columns` (bare numbers), `pairs` (`name:value` or `name=value`) or `brackets`
+    (`name:[ value]`); `names` are the channel names the board printed (empty for bare columns);
+    `scale` is the fixed power of ten decimal values are multiplied by (1 for whole numbers);
+    `time_column` is true when a leading, strictly increasing column is read as the board's time
+    (carried in `FrameBlock.board_time`, never a channel). An info line's names and polarity win.
+    """
+
+    t_s: float
+    form: str
+    names: tuple[str, ...] = ()
+    scale: int = 1
+    time_column: bool = False
+    detail: str = ""
 
 
 @dataclass(frozen=True, slots=True)
@@ -125,7 +152,7 @@ class LinkStatus:
     detail: str = ""
 
 
-Event = FrameBlock | BoardInfo | Note | LinkFault | BoardChanged | LinkStatus
+Event = FrameBlock | BoardInfo | StreamForm | Note | LinkFault | BoardChanged | LinkStatus
 
 
 @dataclass(slots=True)
