@@ -36,6 +36,14 @@ class PlainDecoder:
         """Bytes of an unfinished line held for the next feed (never more than max_line_bytes)."""
         return self._framer.buffered_bytes
 
+    @property
+    def first_unreadable(self) -> bytes | None:
+        """The first line since `clear_unreadable()` that could not be read as data, or None."""
+        return self._rules.first_unreadable
+
+    def clear_unreadable(self) -> None:
+        self._rules.first_unreadable = None
+
     def drop_partial(self) -> int:
         """Forget an unfinished line, so bytes from before a reconnect never join bytes after it."""
         return self._framer.drop_partial()

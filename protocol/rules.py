@@ -95,6 +95,9 @@ class LineRules:
         self._rows: list[np.ndarray] = []
         self._pending_first = 0
         self._t_s = 0.0
+        # The first line since `clear_unreadable()` that was not read as data (garbled, or text that is
+        # not a comment): the link quotes it when a readable stream yields no frame.
+        self.first_unreadable: bytes | None = None
 
     # -- event collection -------------------------------------------------------------------------
     def begin(self, t_s: float) -> None:
@@ -138,6 +141,8 @@ class LineRules:
 
     def garbled(self, line: bytes, why: str) -> None:
         self.stats.garbled += 1
+        if self.first_unreadable is None:
+            self.first_unreadable = line[: self.max_line_bytes]
         self._fault(FaultKind.GARBLED, detail=f"{why}: {preview(line)}")
 
     def bad_checksum(self, line: bytes, why: str) -> None:
