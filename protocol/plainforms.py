@@ -48,11 +48,11 @@ class PlainLine:
     """One data line of a plain form, its numbers still as text (`tokens`, time column included)."""
 
     kind: str  # "columns", "pairs" or "brackets"
-    names: tuple[str, ...]  # as printed, one per token; () for columns
+    names: tuple[bytes, ...]  # as printed, one per token; () for columns
     tokens: tuple[bytes, ...]
 
     @property
-    def shape(self) -> tuple[str, tuple[str, ...], int]:
+    def shape(self) -> tuple[str, tuple[bytes, ...], int]:
         return self.kind, self.names, len(self.tokens)
 
 
@@ -71,7 +71,8 @@ def parse_plain(body: bytes) -> PlainLine | None:
         kind = "brackets"
     else:
         return None
-    return PlainLine(kind, tuple(n.decode("ascii") for n, _ in found), tuple(v for _, v in found))
+    names, values = zip(*found, strict=True)
+    return PlainLine(kind, names, values)
 
 
 def is_text(body: bytes) -> bool:
@@ -109,14 +110,14 @@ class Form:
     """A board's decided plain form: the shape of its lines, the time column and the fixed scales."""
 
     kind: str
-    names: tuple[str, ...]  # as printed, the time column's name included
+    names: tuple[bytes, ...]  # as printed, the time column's name included
     width: int  # numbers per line, the time column included
     time_column: bool = False
     decimals: int = 0  # readings are value x 10**decimals
     time_decimals: int = 0  # board time is value x 10**time_decimals
 
     @property
-    def shape(self) -> tuple[str, tuple[str, ...], int]:
+    def shape(self) -> tuple[str, tuple[bytes, ...], int]:
         return self.kind, self.names, self.width
 
     @property
@@ -125,7 +126,9 @@ class Form:
 
     @property
     def key_names(self) -> tuple[str, ...]:
-        return self.names[1:] if self.time_column and self.names else self.names
+        """The channels' names as printed (the time column's left out)."""
+        names = self.names[1:] if self.time_column and self.names else self.names
+        return tuple(n.decode("ascii") for n in names)
 
     @property
     def scale(self) -> int:
@@ -145,7 +148,7 @@ class Form:
         parts = [f"{self.kind} read from {lines} data line{'s' if lines != 1 else ''}"]
         if self.time_column:
             unit = f" x{10 ** self.time_decimals}" if self.time_decimals else ""
-            name = f" ({self.names[0]})" if self.names else ""
+            name = f" ({self.names[0].decode('ascii')})" if self.names else ""
             parts.append(f"first column{name} is the board's time{unit}, not a key")
         if self.decimals:
             parts.append(f"values have {self.decimals} decimals: readings are value x{self.scale}")
@@ -160,13 +163,41 @@ class Form:
             if board_time is None:
                 return _why(tokens[0], self.time_decimals, "time", "64-bit")
             tokens = tokens[1:]
-        values = []
-        for token in tokens:
-            value = fixed(token, self.decimals, INT32_MIN, INT32_MAX)
-            if value is None:
-                return _why(token, self.decimals, "value", "32-bit")
-            values.append(value)
+        values = _quick(tokens, self.decimals)
+        if values is None:  # something to explain: find the first value that cannot be read
+            values = []
+            for token in tokens:
+                value = fixed(token, self.decimals, INT32_MIN, INT32_MAX)
+                if value is None:
+                    return _why(token, self.decimals, "value", "32-bit")
+                values.append(value)
         return board_time, values
+
+
+def _quick(tokens: tuple[bytes, ...], decimals: int) -> list[int] | None:
+    """The readings when every token reads plainly within 32 bits, else None (`fixed` then says why).
+
+    int() refuses a decimal point and a token of thousands of digits, so neither slips through.
+    """
+    try:
+        if not decimals:
+            values = [int(t) for t in tokens]
+        else:
+            values = []
+            for t in tokens:
+                point = t.find(b".")
+                if point < 0:
+                    values.append(int(t) * 10**decimals)
+                    continue
+                have = len(t) - point - 1
+                if have > decimals:
+                    return None
+                values.append(int(t[:point] + t[point + 1 :]) * 10 ** (decimals - have))
+    except ValueError:
+        return None
+    if min(values) < INT32_MIN or max(values) > INT32_MAX:
+        return None
+    return values
 
 
 def _why(token: bytes, decimals: int, what: str, bits: str) -> str:
@@ -179,7 +210,7 @@ def _why(token: bytes, decimals: int, what: str, bits: str) -> str:
     return f"{what} {shown} is outside the {bits} range{scale}"
 
 
-def _choose_shape(lines: list[PlainLine]) -> tuple[str, tuple[str, ...], int]:
+def _choose_shape(lines: list[PlainLine]) -> tuple[str, tuple[bytes, ...], int]:
     """The shape most lines have; on a tie the one seen last (what the board prints now)."""
     counts = Counter(line.shape for line in lines)
     last = {line.shape: k for k, line in enumerate(lines)}

@@ -142,6 +142,11 @@ class LineRules:
         self._seqs: list[np.ndarray] = []
         self._rows: list[np.ndarray] = []
         self._times: list[np.ndarray] = []
+        self._single_rows: list[list[int]] = []  # frames taken one at a time, not yet an array
+        self._single_seqs: list[int] = []
+        self._single_times: list[int] = []
+        self._rows_width = -1  # the pending block's width (-1: no block pending)
+        self._rows_timed = False
         self._rows_t_s = 0.0
         self._pending_first = 0
         self._t_s = 0.0
@@ -172,6 +177,7 @@ class LineRules:
         return form.plain_v1 and form.width == self.channels if form is not None else self._v1
 
     def _flush(self) -> None:
+        self._seal_singles()
         if not self._rows:
             return
         readings = self._rows[0] if len(self._rows) == 1 else np.concatenate(self._rows)
@@ -184,6 +190,17 @@ class LineRules:
         self._events.append(FrameBlock(t_s=t_s, seq=seq, readings=readings, first_index=self._pending_first,
                                        board_time=board_time))
         self._rows, self._seqs, self._times = [], [], []
+        self._rows_width = -1
+
+    def _seal_singles(self) -> None:
+        """Frames taken one by one wait as lists; one conversion makes them a block part."""
+        if not self._single_rows:
+            return
+        self._rows.append(np.array(self._single_rows, dtype=np.int64))
+        self._seqs.append(np.array(self._single_seqs, dtype=np.int64))
+        if self._single_times:
+            self._times.append(np.array(self._single_times, dtype=np.int64))
+        self._single_rows, self._single_seqs, self._single_times = [], [], []
 
     def _emit(self, event: Event) -> None:
         self._flush()
@@ -192,19 +209,29 @@ class LineRules:
     def _fault(self, kind: FaultKind, count: int = 1, detail: str = "") -> None:
         self._emit(LinkFault(t_s=self._t_s, kind=kind, count=count, detail=detail))
 
-    def _add_frames(self, seq: np.ndarray, readings: np.ndarray,
-                    board_time: np.ndarray | None = None) -> None:
-        if self._rows and (self._rows[-1].shape[1] != readings.shape[1] or self._rows_t_s != self._t_s
-                           or bool(self._times) != (board_time is not None)):
+    def _start_rows(self, width: int, timed: bool) -> None:
+        """Frames join the pending block only with its width, host time and time column (or none)."""
+        if self._rows_width >= 0 and (self._rows_width != width or self._rows_t_s != self._t_s
+                                      or self._rows_timed != timed):
             self._flush()
-        if not self._rows:
+        if self._rows_width < 0:
             self._pending_first = self.stats.frames
-            self._rows_t_s = self._t_s
+            self._rows_t_s, self._rows_width, self._rows_timed = self._t_s, width, timed
+
+    def _add_frames(self, seq: np.ndarray, readings: np.ndarray) -> None:
+        self._start_rows(readings.shape[1], False)
+        self._seal_singles()
         self._rows.append(readings)
         self._seqs.append(seq)
-        if board_time is not None:
-            self._times.append(board_time)
         self.stats.frames += readings.shape[0]
+
+    def _add_frame(self, seq: int, values: list[int], board_time: int | None) -> None:
+        self._start_rows(len(values), board_time is not None)
+        self._single_rows.append(values)
+        self._single_seqs.append(seq)
+        if board_time is not None:
+            self._single_times.append(board_time)
+        self.stats.frames += 1
 
     # -- lines ------------------------------------------------------------------------------------
     def overlong(self) -> None:
@@ -512,8 +539,7 @@ class LineRules:
             self.stats.board_changes += 1
             self._emit(BoardChanged(t_s=self._t_s, old_channels=old, channels=width))
         self._streak_width, self._streak = None, 0
-        times = None if board_time is None else np.array([board_time], dtype=np.int64)
-        self._add_frames(np.array([seq], dtype=np.int64), np.array([values], dtype=np.int64), times)
+        self._add_frame(seq, values, board_time)
 
     def accept_run(self, seq: np.ndarray, readings: np.ndarray, checked: bool) -> None:
         """Frames of the known width that passed every line rule in bulk, in order.
@@ -560,9 +586,9 @@ def _info_or_none(text: bytes, t_s: float) -> BoardInfo | None:
         return None
 
 
-def _shape_text(shape: tuple[str, tuple[str, ...], int]) -> str:
+def _shape_text(shape: tuple[str, tuple[bytes, ...], int]) -> str:
     kind, names, width = shape
     if not names:
         return f"{width} values"
-    shown = ",".join(names)
+    shown = b",".join(names).decode("ascii")
     return f"{kind} {shown[:40]}{'...' if len(shown) > 40 else ''}"
