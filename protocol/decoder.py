@@ -72,13 +72,13 @@ class Decoder(PlainDecoder):
         changes = np.flatnonzero(key[1:] != key[:-1]) + 1
         unchecked_at = np.flatnonzero(ok & ~checked)
         checked_at = np.flatnonzero(ok & checked)
-        ok_list, width_list, seq_list = ok.tolist(), width.tolist(), sc.sequenced.tolist()
+        ok_list, width_list, sequenced = ok.tolist(), width.tolist(), sc.sequenced
         i = 0
         while i < n:
             # Plain (unsequenced) frames go in bulk only once their form is known to be v1 columns;
             # while a plain form's first lines are held, every line keeps its place in the hold.
             if not ok_list[i] or rules.channels != width_list[i] or rules.holding or \
-                    not (seq_list[i] or rules.bulk_plain):
+                    not (sequenced[i] or rules.bulk_plain):
                 rules.line(sc.line(i))
                 i += 1
                 continue

@@ -276,27 +276,30 @@ class LineRules:
             self.stats.notes += 1
             self._emit(Note(t_s=self._t_s, text=body[1:].strip(_BLANK).decode("ascii", "replace")))
             return
-        lead = first if first not in (b" ", b"\t") else body.lstrip(_BLANK)[:1]
-        if first == b"@" or lead == b"-" or lead.isdigit():
+        if first == b"@":
             if given is None and self.strict:
                 self.bad_checksum(line, "no checksum after checksummed lines")
                 return
-            if first == b"@":
-                parsed = parse_frame(body)
-                if parsed is None:
-                    self.garbled(line, "malformed frame")
-                    return
-                self.frame(parsed[0], parsed[1])
+            parsed = parse_frame(body)
+            if parsed is None:
+                self.garbled(line, "malformed frame")
                 return
-        plain = parse_plain(body) if first != b"@" else None
+            self.frame(parsed[0], parsed[1])
+            return
+        lead = first if first not in (b" ", b"\t") else body.lstrip(_BLANK)[:1]
+        looks_like_data = lead == b"-" or lead.isdigit()
+        if looks_like_data and given is None and self.strict:  # checked before parsing, as in v1
+            self.bad_checksum(line, "no checksum after checksummed lines")
+            return
+        plain = parse_plain(body)
         if plain is None:
-            if is_text(body):
+            if looks_like_data:
+                self.garbled(line, "malformed frame")
+            elif is_text(body):
                 self.stats.notes += 1
                 if self.first_unreadable is None:
                     self.first_unreadable = line
                 self._emit(Note(t_s=self._t_s, text=body.strip(_BLANK).decode("ascii")))
-            elif lead == b"-" or lead.isdigit() or first == b"@":
-                self.garbled(line, "malformed frame")
             else:
                 self.garbled(line, "not a frame, info, comment or text line")
             return
