@@ -14,12 +14,16 @@ A recording is a text file, one line per row, LF endings:
 
 - The first line names the format and its version. Metadata rows (`# key=value`) follow until the first
   header row. Unknown metadata keys are kept, never an error.
-- The header row is `t_s,seq,` and one column per channel, named after the board's names (`ch0`... when it
-  gave none). Data rows: host time in seconds since the recording's origin (6 decimals), the frame's
-  sequence number (-1 when it had none), then the integer readings.
+- The header row is `t_s,seq,` and one column per channel, named after the board's names: its info line's,
+  else those of its plain form (`# form` row), and `chN` for a channel whose name is missing, unusable
+  (`protocol.info.name_problem`) or repeated. Data rows: host time in seconds since the recording's origin
+  (6 decimals), the frame's sequence number (-1 when it had none), then the integer readings. A plain
+  form's board time is not kept.
 - Stream rows (`# <kind> key=value ... [text=free text to the end of the line]`) keep what happened between
   frames, in stream order, so a replay feeds detection exactly what the live run saw:
-  `info` (an info line, its fields verbatim), `note` (a board comment), `fault` (a link fault: kind, count),
+  `info` (an info line, its fields verbatim), `form` (how a board without v1 frames prints: form, scale,
+  time_column 0/1, names; PROTOCOL.md section 6), `note` (a board comment or text line),
+  `fault` (a link fault: kind, count),
   `link` (connection state), `board-changed` (followed by a new header row), `index` (the next frame's
   running index when frames were skipped), and `mark` (a user mark, see `Mark`).
   Values are percent-encoded where they hold whitespace or `%`; `text=` always comes last and takes the
@@ -55,7 +59,9 @@ from protocol.events import (
     LinkFault,
     LinkStatus,
     Note,
+    StreamForm,
 )
+from protocol.info import name_problem
 
 FORMAT_LINE = "# padtune recording v1"
 FORMAT_PREFIX = "# padtune recording v"
@@ -182,7 +188,23 @@ def format_event(event: Event, origin_t_s: float) -> str:
     if isinstance(event, BoardChanged):
         old = "" if event.old_channels is None else event.old_channels
         return format_stream_row("board-changed", [("t_s", t), ("old", old), ("channels", event.channels)])
+    if isinstance(event, StreamForm):
+        pairs: list[tuple[str, object]] = [("t_s", t), ("form", event.form), ("scale", event.scale),
+                                           ("time_column", int(event.time_column))]
+        if event.names:
+            pairs.append(("names", ",".join(event.names)))
+        return format_stream_row("form", pairs, event.detail)
     raise TypeError(f"not an event: {event!r}")
+
+
+def header_names(names: tuple[str, ...], channels: int) -> tuple[str, ...]:
+    """Column names for `channels` readings: the board's where usable and unique, else `chN`."""
+    if len(names) != channels:
+        return tuple(f"ch{i}" for i in range(channels))
+    out = [n if name_problem(n) is None and names.index(n) == i else f"ch{i}" for i, n in enumerate(names)]
+    if len(set(out)) != channels:  # a board name such as "ch1" met a fallback
+        return tuple(f"ch{i}" for i in range(channels))
+    return tuple(out)
 
 
 def format_mark(mark: Mark, origin_t_s: float = 0.0) -> str:
@@ -230,6 +252,7 @@ class RecordingWriter:
         self.frames_written = 0
         self.marks_written = 0
         self._names: tuple[str, ...] = ()
+        self._names_from_info = False  # an info line's names win over a plain form's
         self._width: int | None = None
         self._header_written = False
         self._next_index: int | None = None
@@ -271,10 +294,13 @@ class RecordingWriter:
                 self._write_block(event)
             else:
                 if isinstance(event, BoardInfo) and event.names and not self._header_written:
+                    self._names, self._names_from_info = event.names, True
+                elif isinstance(event, StreamForm) and event.names and not self._header_written \
+                        and not self._names_from_info:
                     self._names = event.names
                 if isinstance(event, BoardChanged):
                     self._header_written = False
-                    self._names = ()
+                    self._names, self._names_from_info = (), False
                 self._buffer.append(format_event(event, self.origin_t_s))
         self.maybe_flush()
 
@@ -286,9 +312,7 @@ class RecordingWriter:
         elif block.first_index != self._next_index:
             self._buffer.append(format_stream_row("index", [("value", block.first_index)]))
         if not self._header_written or block.channels != self._width:
-            names = self._names if len(self._names) == block.channels else ()
-            names = names or tuple(f"ch{i}" for i in range(block.channels))
-            self._buffer.append(format_header(names))
+            self._buffer.append(format_header(header_names(self._names, block.channels)))
             self._header_written, self._width = True, block.channels
         self._buffer.append(format_frames(block, self.origin_t_s))
         self._next_index = block.first_index + len(block)

@@ -6,6 +6,7 @@ function here that touches the file system. Damaged files raise `UserError` as `
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 from pathlib import Path
@@ -24,6 +25,7 @@ from protocol.events import (
     LinkState,
     LinkStatus,
     Note,
+    StreamForm,
 )
 from protocol.rules import INT32_MAX, INT32_MIN
 
@@ -123,6 +125,10 @@ def _stream_row(b: _Builder, kind: str, pairs: dict[str, str], text: str) -> Non
     elif kind == "board-changed":
         old = pairs.get("old", "")
         rec.events.append(BoardChanged(t_s, int(old) if old else None, int(pairs["channels"])))
+    elif kind == "form":
+        names = pairs.get("names", "")
+        rec.events.append(StreamForm(t_s, pairs["form"], tuple(names.split(",")) if names else (),
+                                     int(pairs.get("scale", 1)), pairs.get("time_column", "0") == "1", text))
     elif kind == "index":
         b.next_index = int(pairs["value"])
     elif kind == "mark":
@@ -196,33 +202,32 @@ def _parse_line(b: _Builder, lineno: int, line: str, in_meta: bool) -> bool:
 
 
 def parse_raw_capture(data: bytes, where: str = "<capture>", rate_hz: float | None = None) -> Recording:
-    """A raw capture of protocol v1 lines through the protocol's decoder.
+    """A raw capture of protocol lines (v1, or a plain form) through the protocol's decoder.
 
-    Times are made up: frame n arrives at n / rate (the info line's rate, else `rate_hz`, else 100 Hz).
+    Times are made up: frame n arrives at n / rate (`rate_hz`, else the info line's rate, else 100 Hz);
+    other events at the time of the frame that follows them. A partial last line is dropped.
     """
     from protocol.decoder import Decoder  # the decoder owns the wire format
 
     decoder = Decoder()
-    rec = Recording(path=where, version=None, truncated=not data.endswith(b"\n") and bool(data))
-    rate = rate_hz
-    frames = 0
-
-    def feed(chunk: bytes) -> None:
-        nonlocal frames, rate
+    rec = Recording(path=where, version=None, truncated=bool(data) and not data.endswith((b"\n", b"\r")))
+    # The end of the capture lets go of lines held while a plain form is decided.
+    decoded = decoder.feed(data, 0.0) + decoder.flush_hold(0.0)
+    rate, frames = rate_hz, 0
+    names: tuple[str, ...] = ()
+    for event in decoded:
         t_s = frames / (rate or 100.0)
-        for event in decoder.feed(chunk, t_s):
-            if isinstance(event, FrameBlock):
-                frames += len(event)
-            elif isinstance(event, BoardInfo) and event.rate_hz and rate_hz is None:
-                rate = event.rate_hz
-            rec.events.append(event)
-
-    # Fed line by line so that each frame gets its own made-up time.
-    for line in data.splitlines(keepends=True):
-        if not line.endswith(b"\n"):
-            break  # a partial last line: dropped like the CSV reader does
-        feed(line)
-    rec.names = decoder.info.names if decoder.info and decoder.info.names else ()
+        if isinstance(event, FrameBlock):
+            made_up_t_s = (frames + np.arange(len(event))) / (rate or 100.0)
+            rec.events.append(dataclasses.replace(event, t_s=made_up_t_s))
+            frames += len(event)
+            continue
+        if isinstance(event, BoardInfo) and event.rate_hz and rate_hz is None:
+            rate = event.rate_hz
+        elif isinstance(event, StreamForm):
+            names = event.names
+        rec.events.append(dataclasses.replace(event, t_s=t_s))
+    rec.names = decoder.info.names if decoder.info and decoder.info.names else names
     if rec.frames == 0:
         raise UserError(f"{where}: no frames found: not a padtune recording nor a capture of protocol lines")
     return rec

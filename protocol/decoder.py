@@ -14,6 +14,7 @@ import numpy as np
 from protocol.decoder_plain import PlainDecoder
 from protocol.events import Event
 from protocol.fastscan import Scan, ScanMismatch, scan
+from protocol.framing import MAX_LINE_BYTES
 from protocol.smallbatch import decode_lines
 
 BATCH_BYTES = 1 << 18  # bounds the scan's temporary arrays (about 10 bytes per input byte)
@@ -26,7 +27,7 @@ class Decoder(PlainDecoder):
     The same state and rules as `PlainDecoder`; only `feed` differs, taking frames in bulk.
     """
 
-    def __init__(self, max_line_bytes: int = 1024) -> None:
+    def __init__(self, max_line_bytes: int = MAX_LINE_BYTES) -> None:
         super().__init__(max_line_bytes)
         self.last_fallback = ""  # why the bulk scan last gave up on a batch (it should never)
 
@@ -71,10 +72,13 @@ class Decoder(PlainDecoder):
         changes = np.flatnonzero(key[1:] != key[:-1]) + 1
         unchecked_at = np.flatnonzero(ok & ~checked)
         checked_at = np.flatnonzero(ok & checked)
-        ok_list, width_list = ok.tolist(), width.tolist()
+        ok_list, width_list, sequenced = ok.tolist(), width.tolist(), sc.sequenced
         i = 0
         while i < n:
-            if not ok_list[i] or rules.channels != width_list[i]:
+            # Plain (unsequenced) frames go in bulk only once their form is known to be v1 columns;
+            # while a plain form's first lines are held, every line keeps its place in the hold.
+            if not ok_list[i] or rules.channels != width_list[i] or rules.holding or \
+                    not (sequenced[i] or rules.bulk_plain):
                 rules.line(sc.line(i))
                 i += 1
                 continue

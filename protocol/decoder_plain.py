@@ -7,14 +7,15 @@ statistics, for any input and any cuts), and the simplest reading of PROTOCOL.md
 from __future__ import annotations
 
 from protocol.events import BoardInfo, Event, LinkStats
-from protocol.framing import Framer
+from protocol.framing import MAX_LINE_BYTES, Framer
+from protocol.plainforms import Form
 from protocol.rules import LineRules
 
 
 class PlainDecoder:
     """One line at a time; the state (framer, rules, statistics) the fast decoder shares."""
 
-    def __init__(self, max_line_bytes: int = 1024) -> None:
+    def __init__(self, max_line_bytes: int = MAX_LINE_BYTES) -> None:
         self.max_line_bytes = max_line_bytes
         self._framer = Framer(max_line_bytes)
         self._rules = LineRules(max_line_bytes)
@@ -30,6 +31,28 @@ class PlainDecoder:
     @property
     def channels(self) -> int | None:
         return self._rules.channels
+
+    @property
+    def form(self) -> Form | None:
+        """The plain form unsequenced data lines are read in (None until one is decided)."""
+        return self._rules.form
+
+    @property
+    def holding(self) -> int:
+        """Data lines held back while a plain form is decided (0 when none are)."""
+        return self._rules.holding
+
+    def flush_hold(self, t_s: float) -> list[Event]:
+        """Decide the plain form on the data lines held so far and return every held line's events.
+
+        For the end of a capture (fewer than 8 data lines would otherwise stay held), or a caller that
+        will not wait longer for a slow board. The form is then decided on fewer lines than usual.
+        """
+        rules = self._rules
+        rules.begin(t_s)
+        while rules.holding:
+            rules.end_hold()
+        return rules.take_events()
 
     @property
     def buffered_bytes(self) -> int:

@@ -13,10 +13,11 @@ from collections.abc import Iterable, Mapping, Sequence
 import numpy as np
 
 from protocol.crc import CRC_INIT, checksum_suffix, split_checksum
+from protocol.framing import MAX_LINE_BYTES
 from protocol.rules import INT32_MAX, INT32_MIN, SEQ_MODULUS
 
 REQUEST_INFO = b"?\n"  # host to board: please send your info line again
-MAX_LINE_BYTES = 1024
+__all__ = ["MAX_LINE_BYTES", "REQUEST_INFO", "encode_frame", "encode_frames", "encode_info", "encode_note"]
 
 
 def _finish(body: bytes, checksum: bool) -> bytes:

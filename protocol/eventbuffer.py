@@ -61,9 +61,9 @@ class EventBuffer:
             self._frames += n
             return 0
         if room > 0:
-            self._items.append(
-                FrameBlock(block.t_s[:room], block.seq[:room], block.readings[:room], block.first_index)
-            )
+            times = None if block.board_time is None else block.board_time[:room]
+            self._items.append(FrameBlock(block.t_s[:room], block.seq[:room], block.readings[:room],
+                                          block.first_index, times))
             self._frames += room
         dropped = n - max(room, 0)
         last = self._items[-1] if self._items else None

@@ -1,15 +1,21 @@
 """Cutting a byte stream into complete lines with bounded memory (shared by both decoders).
 
+LF, CRLF and a lone CR all end a line: a CR is turned into an LF on the way in, so a CRLF becomes a
+line and an empty one (empty lines are ignored), and the rest of the decoder only ever sees LF.
 The framer holds at most `max_line_bytes` of an unfinished line. A line that grows past the limit
-before its LF is reported once as overlong and everything up to the next LF is skipped, so memory
-stays bounded whatever arrives, and the result never depends on where the stream was cut.
+before its end is reported once as overlong and everything up to the next line end is skipped, so
+memory stays bounded whatever arrives, and the result never depends on where the stream was cut.
 """
 
 from __future__ import annotations
 
+# The longest line, its line end not counted: 512 channels of 32-bit values fit with room to spare
+# ("@65535 " + 512 x "-2147483648 " + "*HHHH" + CRLF is 6157 bytes; PROTOCOL.md, section 1).
+MAX_LINE_BYTES = 8192
+
 
 class Framer:
-    def __init__(self, max_line_bytes: int = 1024) -> None:
+    def __init__(self, max_line_bytes: int = MAX_LINE_BYTES) -> None:
         self.max_line_bytes = max_line_bytes
         self._partial = b""
         self._skipping = False
@@ -23,6 +29,10 @@ class Framer:
 
         The caller handles the complete lines first, then reports the overlong tail if there is one.
         """
+        if b"\r" in data:
+            # CRLF first, so a CRLF stream costs no empty lines; a lone CR (or a CRLF cut between two
+            # chunks) becomes an LF, at worst leaving an empty line behind.
+            data = data.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
         if self._skipping:
             lf = data.find(b"\n")
             if lf < 0:

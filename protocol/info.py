@@ -2,21 +2,43 @@
 
 Every key is kept as text in `BoardInfo.fields`; the keys v1 defines are also parsed and checked.
 A bad value of a defined key makes the whole line unusable (a half-understood line could set a
-wrong channel count), so `parse_info` reports why instead of guessing.
+wrong channel count), so `parse_info` reports why instead of guessing. One bad channel name does not:
+the names are passed up as given, and whoever takes them as channel names checks each with
+`name_problem` and replaces only the bad one.
 """
 
 from __future__ import annotations
 
 import math
+import re
 
 from protocol.events import BoardInfo
 
-MAX_CHANNELS = 512  # the most values a 1024-byte line can carry ("0 0 0 ...")
+# 512 values of 32-bit readings fit one line (protocol.framing.MAX_LINE_BYTES; PROTOCOL.md section 1).
+MAX_CHANNELS = 512
+MAX_NAME_CHARS = 32
+_NAME_CHARS = re.compile(r"[A-Za-z0-9_.\-]+")
 KNOWN_KEYS = ("proto", "board", "channels", "rate", "names", "method", "polarity", "fw")
 
 
 class InfoError(ValueError):
     """Why an info line cannot be used; the message is shown in the link log."""
+
+
+def name_problem(name: str) -> str | None:
+    """Why `name` cannot be a channel name, or None when it can (PROTOCOL.md, section 4).
+
+    A name is 1 to 32 characters of A-Z a-z 0-9 `_` `-` `.`. Uniqueness is checked where names are
+    taken as a set (a board's list, a profile), not here.
+    """
+    if not name:
+        return "it is empty"
+    if len(name) > MAX_NAME_CHARS:
+        return f"it is {len(name)} characters long, at most {MAX_NAME_CHARS} are allowed"
+    if not _NAME_CHARS.fullmatch(name):
+        bad = next(c for c in name if not _NAME_CHARS.fullmatch(c))
+        return f"{bad!r} is not allowed: use letters, digits, '_', '-' and '.'"
+    return None
 
 
 def split_fields(text: str) -> dict[str, str]:
@@ -77,9 +99,9 @@ def parse_info(fields: dict[str, str], t_s: float, *, cross_check: bool = True) 
     rate_hz = _rate(get("rate", "")) if "rate" in fields else None
     names: tuple[str, ...] = ()
     if "names" in fields:
+        # Kept as given, an empty or otherwise bad name included: only that channel's name is replaced
+        # where the names are used (name_problem); the rest of the line stays good.
         names = tuple(_text("names", get("names", "")).split(","))
-        if not all(names):
-            raise InfoError(f"info names={get('names', '')[:24]!r} has an empty name")
     polarity = _polarity(get("polarity", "")) if "polarity" in fields else ()
     if cross_check and channels is not None:
         if names and len(names) != channels:

@@ -25,6 +25,7 @@ from protocol.encoder import REQUEST_INFO
 from protocol.errors import UserError
 from protocol.eventbuffer import EventBuffer
 from protocol.events import BoardInfo, Event, FaultKind, LinkFault, LinkState, LinkStats, LinkStatus
+from protocol.framing import MAX_LINE_BYTES
 from protocol.opening import is_url, open_port
 from protocol.ports import UsbIdentity, find_usb, usb_identity
 
@@ -53,7 +54,7 @@ class Link:
         opener: Opener = open_port,
         read_timeout_s: float = 0.05,
         backoff_s: tuple[float, float] = (0.1, 2.0),
-        max_line_bytes: int = 1024,
+        max_line_bytes: int = MAX_LINE_BYTES,
     ) -> None:
         self.port = port
         self.baud = baud

@@ -21,7 +21,7 @@ _SEP = rb"(?>[ \t]*+,[ \t]*+|[ \t]++)"
 _VALUE = rb"-?[0-9]{1,10}"
 _FRAME = re.compile(
     rb"(?:@([0-9]{1,5})" + _SEP + rb")?(" + _VALUE + rb"(?:" + _SEP + _VALUE + rb")*" + _SEP + rb"?)"
-    rb"(?:\*([0-9A-Fa-f]{4}))?\r?"
+    rb"(?:\*([0-9A-Fa-f]{4}))?"
 )
 _TO_SPACE = bytes.maketrans(b",\t", b"  ")
 
@@ -63,6 +63,8 @@ def decode_lines(lines: list[bytes], rules: LineRules) -> None:
     match = _FRAME.fullmatch
     crc = binascii.crc_hqx
     limit = rules.max_line_bytes
+    # What the rules let through in bulk changes only when a line goes through them: read it again then.
+    take_seq, take_plain = rules.holding == 0, rules.bulk_plain
     for line in lines:
         m = match(line)
         ok = m is not None and len(line) <= limit
@@ -79,9 +81,12 @@ def decode_lines(lines: list[bytes], rules: LineRules) -> None:
             if ok and sequenced:
                 seq = int(seq_text)
                 ok = seq < SEQ_MODULUS
+            # Plain frames only once their form is v1 columns; nothing while a form's lines are held.
+            ok = ok and (take_seq if sequenced else take_plain)
         if not ok:
             run.flush(rules, rules.channels or 0)
             rules.line(line)
+            take_seq, take_plain = rules.holding == 0, rules.bulk_plain
             continue
         if run.lines and sequenced != run.sequenced:
             run.flush(rules, rules.channels)

@@ -23,7 +23,7 @@ from processing.recording import RecordingWriter
 from processing.session import Session
 from processing.settings import ChannelSettings
 from protocol.errors import UserError
-from protocol.events import Event, FrameBlock, LinkState, LinkStats, LinkStatus
+from protocol.events import BoardInfo, Event, FrameBlock, LinkState, LinkStats, LinkStatus, StreamForm
 from tui.render.views import ChannelView, GroupView, LinkView, SliderView
 from tui.source import Tick
 from tui.widgets.detail_panel import Series, Spectrum
@@ -60,6 +60,7 @@ class SessionSource:
         self._quality: list[ChannelQuality] = []
         self._quality_t_s = -1e9
         self._status_detail = ""
+        self._scale = 1  # of the board's plain form, for the link strip
         self._fps, self._fps_t_s = 0.0, -1e9
         self._last_frame_t_s: float | None = None
         self._recorder: RecordingWriter | None = None
@@ -83,6 +84,10 @@ class SessionSource:
                 tick.events.append(ev)
                 if isinstance(ev, LinkStatus):
                     self._status_detail = ev.detail
+                elif isinstance(ev, StreamForm):
+                    self._scale = ev.scale
+                elif isinstance(ev, BoardInfo) and ev.new_session:
+                    self._scale = 1  # a restarted board's form is recognised again
         tick.detections = list(self.session.handle(events))
         if self._saved is None and self.session.profile is not None:
             self._saved = self.session.profile  # the defaults the board came up with: nothing to save yet
@@ -197,7 +202,7 @@ class SessionSource:
             recording=str(self._recorder.path) if self._recorder else None,
             recording_error=self._recording_error,
             profile_name=path.name if path else "(not saved yet)", unsaved=self.unsaved(),
-            silent_s=self._silent_s(),
+            silent_s=self._silent_s(), scale=self._scale,
         )
 
     def _silent_s(self) -> int | None:

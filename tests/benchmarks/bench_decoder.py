@@ -1,13 +1,17 @@
-"""Decoder throughput: protocol v1 frames with sequence numbers and checksums, 16 and 64 channels.
+"""Decoder throughput: protocol v1 frames with sequence numbers and checksums, 16 and 64 channels, and
+every plain form of PROTOCOL.md section 6.
 
 Prints MB/s and frames/s of the fast decoder (`protocol.decoder.Decoder`, fed 64 KiB chunks) as
 ratios, measured in this one run, to
 - the byte rate of USB full-speed bulk transfers: 19 packets of 64 bytes per 1 ms frame, 1,216,000 B/s
   (USB 2.0 specification, full-speed bulk bandwidth), and
-- a plain per-line split()/int() loop with the CRC check, run in the same process on the same bytes.
+- a plain per-line loop, run in the same process on the same bytes: split()/int() with the CRC check
+  for v1 frames, a regex findall() and float() for the plain forms (what one writes first).
 It also checks that the fast decoder gives exactly the same events and statistics as the plain
-reference decoder (`protocol.decoder_plain`), and the same frames and counts as the plain loop.
+reference decoder (`protocol.decoder_plain`), and the same frames as the plain loop.
 Least CPU time of several interleaved repeats. Never a pass/fail on time: the numbers are for reading.
+The sequenced-frame figures are the ones to compare between versions (run an older checkout's copy of
+this file in the same session): the plain forms go through the per-line rules by design.
 
     python tests/benchmarks/bench_decoder.py [--quick]
 """
@@ -17,6 +21,7 @@ from __future__ import annotations
 import argparse
 import binascii
 import pathlib
+import re
 import sys
 import time
 
@@ -100,7 +105,67 @@ def run_decoder(decoder_cls: type, data: bytes, chunk_bytes: int = CHUNK_BYTES) 
     events = []
     for k in range(0, len(data), chunk_bytes):
         events += dec.feed(data[k : k + chunk_bytes], 0.0)
+    events += dec.flush_hold(0.0)
     return events, dec.stats
+
+
+# -- plain forms ------------------------------------------------------------------------------------
+FORMS = {
+    # name: (one line's format from (time_ms, readings as counts), scale, time column, line end)
+    "pairs": (lambda t, r: ", ".join(f"zone{i}:{v}" for i, v in enumerate(r)), 1, False, "\n"),
+    "brackets": (lambda t, r: "".join(f"T{i}:[{v:5d}] " for i, v in enumerate(r)), 1, False, "\r\n"),
+    "padded columns": (lambda t, r: "".join(f"{v:6d}" for v in r), 1, False, "\r\n"),
+    "time column": (lambda t, r: f"{t} " + " ".join(map(str, r)), 1, True, "\n"),
+    "decimals": (lambda t, r: " ".join(f"{v / 100:.2f}" for v in r), 100, False, "\n"),
+    "CR line ends": (lambda t, r: ",".join(map(str, r)), 1, False, "\r"),
+}
+
+
+def make_form_stream(form: str, frames: int, channels: int, seed: int = 7) -> bytes:
+    """A board printing `form`: the same kind of readings as make_stream, a text line now and then."""
+    fmt, _, _, end = FORMS[form]
+    rng = np.random.default_rng(seed)
+    baseline = rng.integers(900, 32000, size=channels)
+    readings = baseline + np.rint(rng.normal(0.0, 5.0, size=(frames, channels))).astype(np.int64)
+    out = []
+    for k, row in enumerate(readings.tolist()):
+        if k % 2000 == 1000:
+            out.append("Calibrating zone 3, keep hands off" + end)
+        out.append(fmt(1000 + 10 * k, row) + end)
+    return "".join(out).encode()
+
+
+_PLAIN_NUMBER = re.compile(rb"(?:[A-Za-z_][A-Za-z0-9_]*[:=]\s*\[?\s*)?(-?\d+(?:\.\d+)?)")
+
+
+def plain_form_loop(data: bytes, scale: int, time_column: bool) -> np.ndarray:
+    """What one writes first for such a board: split the lines, skip text, findall() the numbers."""
+    rows = []
+    for line in re.split(rb"\r\n|\r|\n", data):
+        if not line.strip() or (line[:1].isalpha() and b"[" not in line and b":" not in line):
+            continue
+        values = [round(float(v) * scale) for v in _PLAIN_NUMBER.findall(line)]
+        rows.append(values[1:] if time_column else values)
+    return np.array(rows, dtype=np.int64)
+
+
+def bench_forms(frames: int, repeats: int, channels: int = 16) -> None:
+    print(f"plain forms, {channels} channels, {frames} frames (the per-line rules; a text line every 2000):")
+    for form, (_, scale, timed, _) in FORMS.items():
+        data = make_form_stream(form, frames, channels)
+        fast_events, fast_stats = run_decoder(Decoder, data)
+        plain_events, plain_stats = run_decoder(PlainDecoder, data)
+        fr, _, fi, fo = summary(fast_events)
+        pr, _, pi, po = summary(plain_events)
+        assert fast_stats.as_dict() == plain_stats.as_dict() and fi == pi and fo == po
+        assert np.array_equal(fr, pr) and np.array_equal(fr, plain_form_loop(data, scale, timed)), form
+        best = best_of(repeats, {"fast": lambda d=data: run_decoder(Decoder, d),
+                                 "loop": lambda d=data, s=scale, t=timed: plain_form_loop(d, s, t)})
+        mb_s = len(data) / best["fast"] / 1e6
+        print(f"  {form:15s} ({len(data) / len(fr):.0f} B/frame): {mb_s:5.1f} MB/s, "
+              f"{len(fr) / best['fast']:8.0f} frames/s | {best['loop'] / best['fast']:.2f}x the plain loop, "
+              f"{len(data) / best['fast'] / USB_FULL_SPEED_BULK_BPS:.1f}x USB full-speed bulk | same events "
+              "as the plain decoder: yes")
 
 
 def summary(events: list) -> tuple[np.ndarray, np.ndarray, list, list]:
@@ -171,6 +236,15 @@ def main() -> int:
             f"{len(data) / best['small'] / USB_FULL_SPEED_BULK_BPS:.1f}x USB full-speed bulk "
             "(a reader that falls behind gets bigger chunks)"
         )
+        crlf = data.replace(b"\n", b"\r\n")
+        check_same(crlf)
+        best = best_of(repeats, {"crlf": lambda d=crlf: run_decoder(Decoder, d),
+                                 "loop": lambda d=crlf: plain_loop(d)})
+        print(
+            f"    with CRLF line ends: {len(crlf) / best['crlf'] / 1e6:6.1f} MB/s, "
+            f"{best['loop'] / best['crlf']:.2f}x the plain loop"
+        )
+    bench_forms(frames // 2, max(2, repeats // 3))
     return 0
 
 

@@ -1,5 +1,7 @@
 """Properties: the fast decoder equals the plain one; any cuts give the same events; nothing raises;
-memory stays bounded; what the encoder writes decodes back."""
+memory stays bounded; what the encoder writes decodes back. For v1 lines and for every plain form
+(columns, pairs, brackets, leading blanks, a time column, decimals, text lines), any mix of LF, CR and
+CRLF line ends, and repeated sequence numbers."""
 
 from unittest import mock
 
@@ -67,7 +69,7 @@ _other = st.one_of(
     st.just(b"   "),
     st.binary(max_size=12),
     st.text(alphabet="0123456789 ,-@*\t\rABCDEFabcdef", max_size=20).map(str.encode),
-    st.just(b"7 " * 520),
+    st.just(b"7 " * 4100),  # 8200 bytes: overlong
 )
 
 
@@ -86,12 +88,113 @@ def lines(draw):
     return line
 
 
+_ends = st.sampled_from([b"\n", b"\n", b"\r\n", b"\r"])
+
+
+def joined(draw, items: list[bytes]) -> bytes:
+    """Lines with a line end each, LF, CRLF or a lone CR, drawn per line."""
+    return b"".join(line + draw(_ends) for line in items)
+
+
 @st.composite
 def streams(draw):
-    body = b"".join(line + b"\n" for line in draw(st.lists(lines(), max_size=60)))
+    body = joined(draw, draw(st.lists(st.one_of(lines(), lines(), plain_lines()), max_size=60)))
     if draw(st.booleans()):
         body += draw(st.binary(max_size=30))
     return body
+
+
+# -- plain forms ---------------------------------------------------------------------------------------
+_names = st.sampled_from(["a", "b", "zone1", "T0", "T1", "t", "ms", "x.y", "ch-2", "k_3", "0", "Zz"])
+_number = st.one_of(
+    st.integers(-300, 300).map(str),
+    st.integers(900, 40000).map(str),
+    st.decimals(-5000, 5000, places=2, allow_nan=False, allow_infinity=False).map(str),
+    st.decimals(-50, 50, places=3, allow_nan=False, allow_infinity=False).map(str),
+    st.sampled_from(["2147483647", "-2147483648", "2147483648", "21474836.48", "0.5", "-0.25", "007",
+                     "1.", ".5", "1.2.3", "4294967295", "99999999999999999999"]),
+)
+
+
+@st.composite
+def plain_lines(draw):
+    """One line of a plain form, well-formed or a little off."""
+    kind = draw(st.sampled_from(["columns", "pairs", "brackets", "text", "mixed"]))
+    values = draw(st.lists(_number, min_size=1, max_size=4))
+    lead = draw(st.sampled_from(["", "", " ", "   ", "\t"]))
+    if kind == "text":
+        return draw(st.sampled_from([b"Hello from the board", b"calibrating...", b"Status: 5 errors",
+                                     b"ets Jun  8 2016 rst:0x1", b"boot ok", b"x"]))
+    if kind == "columns":
+        width = draw(st.sampled_from([0, 0, 6, 8]))
+        sep = draw(st.sampled_from([" ", ", ", ",", "\t", " ,"]))
+        text = sep.join(v.rjust(width) for v in values)
+    else:
+        eq = draw(st.sampled_from([":", ":", "=", ": "]))
+        sep = draw(st.sampled_from([" ", ", ", ",", "  ", ""]))
+        named = list(zip([draw(_names) for _ in values], values, strict=True))
+        if kind == "brackets":
+            items = [f"{n}:[{draw(st.sampled_from(['', ' ', '  ']))}{v}]" for n, v in named]
+        elif kind == "pairs":
+            items = [f"{n}{eq}{v}" for n, v in named]
+        else:
+            items = [f"{n}{eq}{v}" if k % 2 else f"{n}:[{v}]" for k, (n, v) in enumerate(named)]
+        text = sep.join(items)
+    if draw(st.booleans()):
+        text += draw(st.sampled_from([" ", ",", ", "]))
+    return (lead + text).encode()
+
+
+@st.composite
+def board_streams(draw):
+    """What one board prints: a plain form (a time column, decimals, names) with notes, comments,
+    strays, info lines and sequenced frames now and then, and line ends of every kind."""
+    kind = draw(st.sampled_from(["columns", "pairs", "brackets"]))
+    width = draw(st.integers(1, 4))
+    names = [draw(_names) for _ in range(width)]
+    decimals = draw(st.sampled_from([0, 0, 1, 2]))
+    timed = draw(st.booleans())
+    t = draw(st.integers(0, 10**6))
+    base = draw(st.sampled_from([1, 10, 1000]))
+    lead = draw(st.sampled_from(["", "  "]))
+    out = []
+    for _ in range(draw(st.integers(0, 40))):
+        roll = draw(st.integers(0, 29))
+        if roll == 0:
+            out.append(draw(st.one_of(_info, st.just(b"# comment"), st.just(b"Calibrating, please wait"),
+                                      plain_lines(), frame_lines(), st.just(b""))))
+            continue
+        if roll == 1:
+            out.append(b"@%d 5 6" % draw(st.sampled_from([0, 1, 7, 7, 65535])))
+            continue
+        if roll == 2:
+            t -= draw(st.integers(1, 500))  # the board restarted (or a wild value)
+        else:
+            t += base + draw(st.integers(0, base // 4)) if roll != 4 else 6 * base  # mostly steady
+        cells = [draw(st.integers(-2000, 40000)) for _ in range(width)]
+        places = decimals + (1 if roll == 3 else 0)  # now and then one decimal more than the rest
+        texts = [f"{c / 10**places:.{places}f}" if places else str(c) for c in cells]
+        if kind == "columns":
+            body = " ".join(texts)
+        elif kind == "pairs":
+            body = ", ".join(f"{n}:{v}" for n, v in zip(names, texts, strict=True))
+        else:
+            body = " ".join(f"{n}:[ {v}]" for n, v in zip(names, texts, strict=True)) + " "
+        if timed:
+            body = (f"{t} " if kind == "columns" else f"ms={t} ") + body
+        out.append((lead + body).encode())
+    return joined(draw, out)
+
+
+@st.composite
+def repeated_seq_streams(draw):
+    """Sequenced frames whose numbers repeat in runs (a flood of one frame), step on, jump and wrap."""
+    seq, out = draw(st.integers(0, 65535)), []
+    for _ in range(draw(st.integers(0, 12))):
+        for _ in range(draw(st.sampled_from([1, 1, 2, 3, 9, 40]))):
+            out.append(b"@%d 1 2" % seq)
+        seq = (seq + draw(st.sampled_from([1, 1, 1, 2, 0, 300, 65000]))) % 65536
+    return b"".join(line + b"\n" for line in out)
 
 
 @st.composite
@@ -108,19 +211,49 @@ def run(decoder, pieces, t_s=1.0):
     events = []
     for piece in pieces:
         events += decoder.feed(piece, t_s)
+    events += decoder.flush_hold(t_s)  # the end of the stream: lines held for a form are let go
     return flat(events), decoder.stats.as_dict()
+
+
+def assert_all_ways_agree(pieces):
+    expected = run(PlainDecoder(), pieces)
+    with mock.patch.object(fast_module, "SCAN_MIN_BYTES", 0):  # force the bulk scan even for one line
+        assert run(Decoder(), pieces) == expected
+    with mock.patch.object(fast_module, "SCAN_MIN_BYTES", 10**9):  # and the small-batch way
+        assert run(Decoder(), pieces) == expected
+    return expected
 
 
 @SETTINGS
 @given(st.data())
 def test_fast_equals_plain_for_any_stream_and_cuts(data):
     raw = data.draw(streams())
+    assert_all_ways_agree(data.draw(cuts(raw)))
+
+
+@SETTINGS
+@given(st.data())
+def test_fast_equals_plain_and_cuts_do_not_matter_for_plain_forms(data):
+    raw = data.draw(board_streams())
+    whole = assert_all_ways_agree([raw])
     pieces = data.draw(cuts(raw))
-    expected = run(PlainDecoder(), pieces)
-    with mock.patch.object(fast_module, "SCAN_MIN_BYTES", 0):  # force the bulk scan even for one line
-        assert run(Decoder(), pieces) == expected
-    with mock.patch.object(fast_module, "SCAN_MIN_BYTES", 10**9):  # and the small-batch way
-        assert run(Decoder(), pieces) == expected
+    assert assert_all_ways_agree(pieces) == whole
+    assert run(PlainDecoder(), [raw[i : i + 1] for i in range(len(raw))]) == whole
+
+
+@SETTINGS
+@given(st.data())
+def test_repeated_sequence_numbers_are_reported_the_same_for_any_cuts(data):
+    raw = data.draw(repeated_seq_streams())
+    whole = assert_all_ways_agree([raw])
+    assert assert_all_ways_agree(data.draw(cuts(raw))) == whole
+    events, stats = whole
+    faults = [dict(e[1]) for e in events if e[0] == "LinkFault"]
+    repeats = [f["count"] for f in faults if "REPEATED" in f["kind"]]
+    total = stats.get("repeated", 0)
+    # Reported at the 1st, 2nd, 4th, 8th... repeat, each report counting the repeats since the last one.
+    assert len(repeats) == (total.bit_length() if total else 0)
+    assert sum(int(c) for c in repeats) == (1 << (total.bit_length() - 1) if total else 0)
 
 
 @SETTINGS
@@ -138,7 +271,9 @@ def test_arbitrary_bytes_never_raise_and_memory_stays_bounded(chunks):
     for dec in (Decoder(), PlainDecoder()):
         for chunk in chunks:
             dec.feed(chunk, 0.0)
-            assert dec._framer.buffered_bytes <= 1024
+            assert dec._framer.buffered_bytes <= 8192
+            hold = dec._rules._hold
+            assert hold is None or (len(hold.data) < 8 and len(hold.lines) < 64)
         assert dec.stats.bytes_in == sum(map(len, chunks))
         assert dec.stats.extra.get("scan_fallbacks", 0) == 0
 
@@ -160,7 +295,9 @@ def test_block_encoder_round_trip(n, channels, first_seq, checksum, seed):
         for i, row in enumerate(block)
     )
     dec = Decoder()
-    events = dec.feed(data, 0.0)
+    # Plain frames as a v1 board sends them: after an info line with the channel count (read at once).
+    head = encode_info({"channels": channels}, checksum) if first_seq is None else b""
+    events = dec.feed(head + data, 0.0)
     rows = [f for f in flat(events) if f[0] == "frame"]
     assert [r[3] for r in rows] == [tuple(r) for r in block.tolist()]
     if first_seq is not None:

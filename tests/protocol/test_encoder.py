@@ -33,8 +33,8 @@ def test_block_encoder_wraps_and_extremes():
     (lambda: encode_frames(np.array([[2**31]])), "32-bit"),
     (lambda: encode_frames(np.zeros(3)), "shape"),
     (lambda: encode_frames(np.zeros((2, 0))), "shape"),
-    (lambda: encode_frames(np.zeros((1, 200)) - 2**31), "line limit"),
-    (lambda: encode_frame([-(2**31)] * 200), "limit"),
+    (lambda: encode_frames(np.zeros((1, 700)) - 2**31), "line limit"),  # 8400 bytes: over 8192
+    (lambda: encode_frame([-(2**31)] * 700), "limit"),
     (lambda: encode_info({}), "at least one"),
     (lambda: encode_info({"board": "two words"}), "spaces"),
     (lambda: encode_info({"a b": 1}), "key"),

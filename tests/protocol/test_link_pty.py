@@ -110,7 +110,7 @@ def test_garbage_and_lost_frames(board, link_of):
     link, got = link_of()
     got.wait_state(LinkState.CONNECTED)
     garbage = b"\x00\x13 noise\n@@@\n"
-    board.send(frames(0, 10) + garbage + frames(15, 10) + b"9" * 3000 + b"\n" + frames(25, 5))
+    board.send(frames(0, 10) + garbage + frames(15, 10) + b"9" * 9000 + b"\n" + frames(25, 5))
     got.wait(lambda: len(got.frames()) == 25, "frames between garbage")
     stats = link.stats
     # "@@@" looks like a frame without a checksum after checksummed ones: bad_checksum

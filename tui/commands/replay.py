@@ -54,8 +54,9 @@ def paced(events: list[Event], slice_s: float | None) -> Iterator[tuple[list[Eve
             start = 0
             while start < len(event):
                 stop = int(start + max(1, (t[start:] < t[start] + slice_s).sum()))
+                times = None if event.board_time is None else event.board_time[start:stop]
                 yield [FrameBlock(t[start:stop], event.seq[start:stop], event.readings[start:stop],
-                                  event.first_index + start)], float(t[stop - 1])
+                                  event.first_index + start, times)], float(t[stop - 1])
                 start = stop
         elif isinstance(event, FrameBlock):
             yield [event], float(event.t_s[-1]) if len(event) else 0.0

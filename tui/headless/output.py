@@ -161,8 +161,18 @@ class HumanOutput:
         names = ", ".join(info.get("names") or [])
         board = info.get("board") or "unnamed board"
         rate = info.get("rate_hz")
-        rest = f"{board}: {info.get('channels', '?')} channels" + (f" at {rate:g} Hz" if rate else "")
-        self._line(t_s, "board", "bold", rest + (f" ({names})" if names else ""))
+        channels = info.get("channels")
+        rest = f"{board}: {'?' if channels is None else channels} channels"
+        rest += f" at {rate:g} Hz" if rate else ""
+        rest += f" ({names})" if names else ""
+        form = info.get("form")
+        if form and form != "v1":  # a plain form: say how it is read
+            rest += f"; read as {form}"
+            if info.get("scale", 1) != 1:
+                rest += f", readings x{info['scale']} (decimals kept)"
+            if info.get("time_column"):
+                rest += ", first column is the board's time"
+        self._line(t_s, "board", "bold", rest)
 
     def touch(self, t_s: float, channel: str, index: int, delta_counts: int) -> None:
         self._line(t_s, "touch", "bold green", f"{channel}  delta {delta_counts}  (frame {index})")

@@ -17,7 +17,17 @@ from typing import Any
 from processing.detections import GroupChange, Release, SliderChange, StuckRelease, Touch
 from processing.recording import Mark
 from processing.session import Session
-from protocol.events import BoardChanged, BoardInfo, Event, FaultKind, FrameBlock, LinkFault, LinkStatus, Note
+from protocol.events import (
+    BoardChanged,
+    BoardInfo,
+    Event,
+    FaultKind,
+    FrameBlock,
+    LinkFault,
+    LinkStatus,
+    Note,
+    StreamForm,
+)
 from tui.headless.output import Output
 
 # The link events named in the JSON format; faults not listed pass under their own kind names.
@@ -34,11 +44,25 @@ def _num(value: float | None) -> float | None:
     return round(float(value), 3)
 
 
-def info_dict(info: BoardInfo) -> dict[str, Any]:
+def info_dict(info: BoardInfo, form: StreamForm | None = None) -> dict[str, Any]:
+    """An info line's `hello`: its keys, and the form the data comes in (v1 unless a plain form was
+    recognised in this session)."""
     return {"board": info.board, "channels": info.channels, "rate_hz": info.rate_hz,
             "names": list(info.names), "method": info.method,
             "polarity": ["+" if p > 0 else "-" for p in info.polarity], "fw": info.fw,
-            "proto": info.proto, "fields": dict(info.fields)}
+            "proto": info.proto, "fields": dict(info.fields), **form_dict(form)}
+
+
+def form_dict(form: StreamForm | None) -> dict[str, Any]:
+    if form is None:
+        return {"form": "v1", "scale": 1, "time_column": False}
+    return {"form": form.form, "scale": form.scale, "time_column": form.time_column}
+
+
+def stream_form_dict(form: StreamForm, info: BoardInfo | None, channels: int | None) -> dict[str, Any]:
+    """A plain form's `hello`: the form, and the board and channel count known so far (else None)."""
+    return {"board": info.board if info else None, "channels": channels, **form_dict(form),
+            "names": list(form.names), "detail": form.detail}
 
 
 def warn_on_stderr(text: str) -> None:
@@ -74,6 +98,8 @@ class DetectionRun:
     touches: list[FoundTouch] = field(default_factory=list)
     _next_status_t: float | None = None
     _board_changed_seen: bool = False
+    _form: StreamForm | None = None  # the plain form of this session, if one was recognised
+    _form_hello: StreamForm | None = None  # its hello waits for the first frame (to give the width)
 
     def name(self, channel: int) -> str:
         names = self.session.names
@@ -92,6 +118,7 @@ class DetectionRun:
 
     def _event(self, event: Event) -> None:
         if isinstance(event, FrameBlock):
+            self._say_form(len(event) and event.channels)
             self.frames += len(event)
             for det in self.session.handle([event]):
                 self._detection(det)
@@ -99,7 +126,13 @@ class DetectionRun:
         self.session.handle([event])
         t = self._rel(event.t_s)
         if isinstance(event, BoardInfo):
-            self.output.hello(t, info_dict(event))
+            self._say_form(None)
+            if event.new_session:
+                self._form = None  # a restarted board's form is recognised afresh
+            self.output.hello(t, info_dict(event, self._form))
+        elif isinstance(event, StreamForm):
+            self._say_form(None)
+            self._form = self._form_hello = event
         elif isinstance(event, Note):
             self.output.note(t, event.text)
         elif isinstance(event, LinkFault):
@@ -114,6 +147,16 @@ class DetectionRun:
             self.output.link(t, "board changed", 1, f"{event.old_channels} -> {event.channels} channels")
         elif isinstance(event, LinkStatus):
             self.output.link(t, event.state.value, 1, event.detail)
+
+    def _say_form(self, channels: int | None) -> None:
+        """The waiting plain form's hello, with the width of the frames read in it when known."""
+        form, self._form_hello = self._form_hello, None
+        if form is None:
+            return
+        info = self.session.info
+        if not channels:
+            channels = len(form.names) or (info.channels if info else None)
+        self.output.hello(self._rel(form.t_s), stream_form_dict(form, info, channels or None))
 
     def _detection(self, det: object) -> None:
         if isinstance(det, Touch):
@@ -190,6 +233,7 @@ class DetectionRun:
         return {"frames": self.frames, **self.counts, "channels": channels}
 
     def finish(self, now_t_s: float) -> dict[str, Any]:
+        self._say_form(None)
         summary = self.summary()
         self.output.summary(self._rel(now_t_s), summary)
         self.output.close()

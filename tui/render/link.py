@@ -32,8 +32,9 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False, width: int
     if view.silent_s is not None and role == "good":
         glyph, word, role = "●", f"connected, NO FRAMES for {view.silent_s} s", "warn"
     text.append(f"{glyph} {word}", pick(styles, role))
+    scale = f" │ readings x{view.scale}" if view.scale != 1 else ""
     if view.detail and role == "bad":
-        rest = len(f" │ {view.port} {view.baud} Bd │ {view.fps:.0f} fps") + 3
+        rest = len(f" │ {view.port} {view.baud} Bd │ {view.fps:.0f} fps{scale}") + 3
         room = 40 if width is None else min(40, width - text.cell_len - rest)
         if room >= 8:
             detail = view.detail if len(view.detail) <= room else view.detail[:room - 1] + "…"
@@ -45,6 +46,9 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False, width: int
         text.append(f" {view.board}", pick(styles, "dim"))
     text.append_text(sep)
     text.append(f"{view.fps:.0f} fps")
+    if scale:  # the board prints decimals: what is shown is the printed value times the scale
+        text.append_text(sep)
+        text.append(f"readings x{view.scale}", pick(styles, "name"))
     text.append("\n" if compact else " ")
     _counters(text, view, styles, compact)
     text.append_text(sep)

@@ -63,4 +63,5 @@ class LinkView:
     unsaved: bool = False
     paused: bool = False
     silent_s: int | None = None  # whole seconds without a frame while connected (None: frames arrive)
+    scale: int = 1  # a plain form's fixed scale: readings are the printed values x scale (PROTOCOL.md 6)
     extra: dict[str, int] = field(default_factory=dict)
