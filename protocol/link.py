@@ -227,8 +227,8 @@ class Link:
         if not data and self._vanished(now):
             self._lost(f"{self.device} vanished")
             return
-        for fault in step.faults:
-            log.warning("%s: %s", self.port, fault.detail)
+        for fault in step.faults:  # delivered as events: the front end tells the user, not the log
+            log.info("%s: %s", self.port, fault.detail)
         events += step.faults
         if events:
             self._deliver(events)

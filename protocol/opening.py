@@ -89,7 +89,8 @@ def _value_message(port: str, baud: int, exc: ValueError) -> str:
     if "protocol" in text and "not known" in text:
         scheme = port.split("://", 1)[0]
         return (
-            f"unknown port URL scheme {scheme}://: use a device path (/dev/ttyACM0, COM3) or {KNOWN_SCHEMES}"
+            f"unknown port URL scheme {scheme}:// in {port}: use a device path (/dev/ttyACM0, COM3) or "
+            f"{KNOWN_SCHEMES}"
         )
     if "baud" in text.lower():
         return f"baud rate {baud} is not supported by {port}: try 115200"
