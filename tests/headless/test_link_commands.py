@@ -192,7 +192,7 @@ def flood(tmp_path_factory):
 
 
 def test_a_flood_of_one_repeated_frame_gives_a_few_stderr_lines_that_count_it_all(flood):
-    lines, events, err = flood
+    _, events, err = flood
     told = err.splitlines()
     assert 1 <= len(told) <= 12, told  # not one line per frame
     assert all(line.startswith("padtune: ") for line in told), told

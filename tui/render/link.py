@@ -30,7 +30,7 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False, width: int
         text.append("⏸ DISPLAY PAUSED", pick(styles, "warn"))
         text.append_text(sep)
     if view.silent_s is not None and role == "good":
-        glyph, word, role = "●", f"connected, NO FRAMES for {view.silent_s} s", "warn"
+        glyph, word, role = "●", f"connected, {view.silence} for {view.silent_s} s", "warn"
     text.append(f"{glyph} {word}", pick(styles, role))
     if view.detail and role == "bad":
         rest = len(f" │ {view.port} {view.baud} Bd │ {view.fps:.0f} fps") + 3

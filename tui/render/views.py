@@ -63,4 +63,5 @@ class LinkView:
     unsaved: bool = False
     paused: bool = False
     silent_s: int | None = None  # whole seconds without a frame while connected (None: frames arrive)
+    silence: str = "NO FRAMES"  # "SILENT" while the link reports no bytes at all (its `silent` event)
     extra: dict[str, int] = field(default_factory=dict)
