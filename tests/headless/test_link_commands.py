@@ -236,3 +236,21 @@ def test_a_port_that_cannot_open_is_one_stderr_line_and_exit_2(url, message):
     assert out.returncode == 2 and out.stdout == ""
     assert out.stderr.count("\n") == 1 and out.stderr.startswith("padtune: ") and url in out.stderr
     assert message in out.stderr and "Traceback" not in out.stderr
+
+
+def test_replay_of_a_board_resetting_all_the_time_gives_a_few_counted_stderr_lines(tmp_path):
+    """A raw capture of a board restarting every 10 frames (299 resets in 3 s at 1 kHz): stderr has
+    one line a second of recorded time, and their counts add up to every reset in the JSON."""
+    from protocol.encoder import encode_frames
+
+    rows = 30000 + np.zeros((10, 2), dtype=np.int64)
+    capture = tmp_path / "restarts.txt"
+    capture.write_bytes(b"".join(encode_frames(rows, 0) for _ in range(300)))
+    out = padtune("replay", str(capture), "--json", "--rate", "1000")
+    assert out.returncode == 0, out.stderr
+    resets = sum(e["count"] for e in links(json_lines(out.stdout), "reset"))
+    told = [line for line in out.stderr.splitlines() if "board reset: baselines taken again" in line]
+    assert resets == 299 and 2 <= len(told) <= 6, told
+    shown = sum(int(m.group(1)) if (m := re.search(r"\(x(\d+) in \d+\.\d s\)$", line)) else 1
+                for line in told)
+    assert shown == resets
