@@ -254,3 +254,26 @@ def test_replay_of_a_board_resetting_all_the_time_gives_a_few_counted_stderr_lin
     shown = sum(int(m.group(1)) if (m := re.search(r"\(x(\d+) in \d+\.\d s\)$", line)) else 1
                 for line in told)
     assert shown == resets
+
+
+def test_record_on_a_silent_board_says_so_while_recording(tmp_path):
+    pty = PtyBoard(tmp_path)
+    try:
+        out = padtune("record", str(pty.path), "-o", str(tmp_path / "quiet.csv"), "--duration", "2.5")
+    finally:
+        pty.close()
+    assert out.returncode == 0, out.stderr
+    assert "padtune: " in out.stderr and "never spoke" in out.stderr and "recorded 0 frames" in out.stderr
+
+
+def test_check_on_a_silent_socket_blames_no_baud_rate(tmp_path):
+    from processing.profile import profile_for, save_profile
+
+    save_profile(profile_for(2, names=("a", "b")), tmp_path / "two.toml")
+    bridge = TcpBridge()
+    try:
+        out = padtune("check", bridge.url, "--profile", str(tmp_path / "two.toml"), "--duration", "0.5")
+    finally:
+        bridge.close()
+    assert out.returncode == 1, out.stderr
+    assert "check the bridge and the URL" in out.stdout and "baud" not in out.stdout + out.stderr

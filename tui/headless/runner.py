@@ -92,8 +92,10 @@ class DetectionRun:
     def feed(self, events: Iterable[Event], now_t_s: float) -> None:
         for event in events:
             self._event(event)
-            if self.link_warnings and isinstance(event, LinkFault) and event.kind in _TOLD_FAULTS:
-                self._tell(_fault_text(event), now_t_s, kind=event.kind.value)
+            if self.link_warnings and isinstance(event, LinkFault):
+                told = link_fault_text(event)
+                if told is not None:
+                    self._tell(told, now_t_s, kind=event.kind.value)
             notices = self.session.notices
             while notices:
                 self._tell(notices.popleft(), now_t_s)
@@ -214,6 +216,14 @@ class DetectionRun:
         self.output.summary(self._rel(now_t_s), summary)
         self.output.close()
         return summary
+
+
+def link_fault_text(event: Event) -> str | None:
+    """The stderr sentence for a link diagnosis a person must be told (silent, unreadable, wrong baud
+    rate, repeated sequence numbers); None for every other event."""
+    if not isinstance(event, LinkFault) or event.kind not in _TOLD_FAULTS:
+        return None
+    return _fault_text(event)
 
 
 def _fault_text(fault: LinkFault) -> str:
