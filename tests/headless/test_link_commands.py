@@ -213,8 +213,9 @@ def test_a_flood_of_one_repeated_frame_gives_a_few_stderr_lines_that_count_it_al
 def test_a_flood_of_one_repeated_frame_gives_a_few_json_events(flood):
     lines, events, _ = flood
     assert len([e for e in events if e["type"] == "link"]) <= 40
-    assert sum(e["count"] for e in links(events, "repeated")) == lines - 1
-    assert events[-1]["frames"] == lines
+    # Reported as the count reaches powers of two: at least half of the repeats are in the events.
+    assert (lines - 1) / 2 <= sum(e["count"] for e in links(events, "repeated")) <= lines - 1
+    assert events[-1]["frames"] == lines and events[-1]["resets"] == 0
 
 
 def closed_port() -> int:

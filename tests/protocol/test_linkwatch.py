@@ -136,7 +136,7 @@ def test_one_banner_line_of_a_slow_board_is_not_a_diagnosis():
 
 def test_lines_that_never_end_get_their_own_advice():
     o = Opening()
-    o.read(b"1234 1250 " * 200, 0.3)  # over 1024 bytes without a line end
+    o.read(b"1234 1250 " * 1000, 0.3)  # 10,000 bytes without a line end: over any line limit
     o.idle(2.2, 0.35)
     (fault,) = o.faults(FaultKind.UNREADABLE)
     assert "end its lines" in fault.detail
