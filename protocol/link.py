@@ -1,7 +1,8 @@
 """The serial link: opens a port or URL, reads it on its own thread, decodes, hands events over.
 
 Thin shell around the pure parts: `protocol.opening` (open with one-line errors), the decoder,
-`protocol.eventbuffer` (bounded hand-over) and `protocol.baudcheck`. The reader thread never
+`protocol.eventbuffer` (bounded hand-over) and `protocol.linkwatch` (after each opening: ask the
+board with `?`, wrong baud rate, unreadable stream, silence and stalls). The reader thread never
 touches a UI: consumers call `drain()` from a timer, or pass `on_events` to be called on the
 reader thread. On a read error the port is closed at once, `disconnected` is reported, and the
 link retries with backoff until the same port is back (a device path that reappears, or the same
@@ -19,14 +20,14 @@ from collections.abc import Callable
 
 import serial
 
-from protocol.baudcheck import BaudCheck
 from protocol.decoder import Decoder
 from protocol.encoder import REQUEST_INFO
 from protocol.errors import UserError
 from protocol.eventbuffer import EventBuffer
-from protocol.events import BoardInfo, Event, FaultKind, LinkFault, LinkState, LinkStats, LinkStatus
+from protocol.events import BoardInfo, Event, LinkState, LinkStats, LinkStatus
 from protocol.framing import MAX_LINE_BYTES
-from protocol.opening import is_url, open_port
+from protocol.linkwatch import LinkWatch
+from protocol.opening import has_baud_rate, is_url, open_port, scheme_of
 from protocol.ports import UsbIdentity, find_usb, usb_identity
 
 __all__ = ["Link", "open_port"]
@@ -75,10 +76,10 @@ class Link:
         self._serial: serial.SerialBase | None = None
         self._state = LinkState.CONNECTING
         self._identity: UsbIdentity | None = None
-        self._baud_check: BaudCheck | None = None
-        self._baud_suspect = False
+        # loop:// only echoes what is written: asking it for an info line would read back a stray `?`.
+        self._watch = LinkWatch(port, baud, has_baud=has_baud_rate(port), ask=scheme_of(port) != "loop")
         self._callback_errors = 0
-        self._greedy = port.lower().startswith("socket://")
+        self._greedy = scheme_of(port) == "socket"
         # A POSIX device path can be watched for disappearing; COM3 and URLs are simply reopened.
         self._is_path = os.name == "posix" and not is_url(port)
 
@@ -93,13 +94,14 @@ class Link:
 
     @property
     def baud_suspect(self) -> bool:
-        """True when most bytes in the first 2 s after (re)opening were garbage: wrong baud rate?"""
-        return self._baud_suspect
+        """True when most bytes in the first 2 s after (re)opening were not text: wrong baud rate?
+        (Never on socket:// or loop://, which have no baud rate: they get an `unreadable` fault.)"""
+        return self._watch.baud_suspect
 
     @property
     def baud_checked(self) -> bool:
         """True once the wrong-baud check of the current opening has reached its verdict."""
-        return self._baud_check is None
+        return self._watch.baud_checked
 
     @property
     def running(self) -> bool:
@@ -129,6 +131,9 @@ class Link:
             snap.extra["overflow_events"] = self._buffer.dropped_events
         if self._callback_errors:
             snap.extra["callback_errors"] = self._callback_errors
+        snap.extra["stalls"] = self._watch.stalls  # silences of 2 s or more (never spoke, or stalled)
+        if self._watch.asked:
+            snap.extra["info_requests"] = self._watch.asked  # `?` sent because no info line came
         return snap
 
     def start(self) -> None:
@@ -215,21 +220,21 @@ class Link:
                 self._lost(f"read failed: {exc}")
             return
         now = self.clock()
-        if data:
-            with self._lock:
+        events: list[Event] = []
+        with self._lock:
+            if data:
                 events = self._decoder.feed(data, now)
-                stats = self._decoder.stats
-                verdict = self._baud_check.feed(data, now, stats) if self._baud_check else None
-        else:
-            verdict = self._baud_check.feed(b"", now, self._decoder.stats) if self._baud_check else None
-            events = []
-            if self._vanished(now):
-                self._lost(f"{self.device} vanished")
-                return
-        if verdict is not None:
-            events = events + self._baud_verdict(verdict, now)
+            step = self._watch.feed(data, now, self._decoder.stats, self._decoder.first_unreadable)
+        if not data and self._vanished(now):
+            self._lost(f"{self.device} vanished")
+            return
+        for fault in step.faults:  # delivered as events: the front end tells the user, not the log
+            log.info("%s: %s", self.port, fault.detail)
+        events += step.faults
         if events:
             self._deliver(events)
+        if step.ask and not self.request_info():
+            log.info("asking %s for its info line failed: %s", self.port, self.last_error)
 
     def _read_more(self, ser: serial.SerialBase) -> bytes:
         """For socket://, whose in_waiting only says "something": take what is there without waiting."""
@@ -239,15 +244,6 @@ class Link:
             return ser.read(BULK_READ_BYTES)
         finally:
             ser.timeout = old
-
-    def _baud_verdict(self, suspect: bool, now: float) -> list[Event]:
-        check, self._baud_check = self._baud_check, None
-        if not suspect or check is None:
-            return []
-        self._baud_suspect = True
-        detail = check.describe(self.baud)
-        log.warning("%s: %s", self.port, detail)
-        return [LinkFault(now, FaultKind.BAUD_SUSPECT, 1, detail)]
 
     _last_vanish_check = 0.0
 
@@ -313,7 +309,8 @@ class Link:
         self._state = state
         self._last_vanish_check = now
         with self._lock:
-            self._baud_check = BaudCheck(now, self._decoder.stats)
+            self._decoder.clear_unreadable()  # the diagnosis quotes a line of this opening
+            self._watch.opened(now, self._decoder.stats)
         self._deliver([LinkStatus(now, state, self.port, detail)])
 
     def _close(self) -> None:

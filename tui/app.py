@@ -23,13 +23,14 @@ from textual.widgets import Footer, Static
 
 from processing.detections import Rebaselined
 from protocol.errors import UserError
-from protocol.events import BoardChanged
+from protocol.events import BoardChanged, LinkFault
 from tui.app_edits import EditActions, PressActions
 from tui.app_files import FileActions
 from tui.bindings import _COVERED_OFF, _PRESS_THROUGH, BINDINGS, help_rows
 from tui.describe import describe_detection, describe_event
 from tui.edits import EditHistory
 from tui.fields import FIELDS
+from tui.headless.notices import NoticeGate
 from tui.render.help import key_display
 from tui.render.settings import edit_bar
 from tui.render.views import LinkView
@@ -77,6 +78,7 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
         self._table: ChannelTable | None = None
         self._widgets: dict[tuple[object, object], Any] = {}
         self._spectrum_cache: tuple[int, float, Spectrum | None] | None = None
+        self._gate = NoticeGate()  # link faults and notices: one log line a second per kind, counted
 
     # -- layout -----------------------------------------------------------------------------------
     def compose(self) -> ComposeResult:
@@ -134,9 +136,13 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
     def _log_tick(self, tick: Tick) -> None:
         log = self._main(EventLog)
         names = self.source.channel_names()
+        now = self.clock()
         for ev in tick.events:
             line = describe_event(ev)
-            if line is not None:
+            if line is not None and isinstance(ev, LinkFault):  # a flood of one fault: a few lines
+                for text in self._gate.add(line.plain, now, kind=f"link {ev.kind.value}"):
+                    log.add(self._since_start(ev.t_s), Text(text))
+            elif line is not None:
                 log.add(self._since_start(ev.t_s), line)
             if isinstance(ev, BoardChanged) and self.history.can_undo:
                 # Edits were for channels that no longer line up: they cannot be undone on this board.
@@ -146,7 +152,8 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
         if rebased:  # a new session re-baselines every channel at once: one line, not one per channel
             which = sorted({d.channel for d in rebased})
             what = "all channels" if len(which) == len(names) > 1 else " ".join(names[c] for c in which)
-            log.add(self._since_start(rebased[0].t_s), Text(f"~ re-baselined {what}"))
+            for text in self._gate.add(f"~ re-baselined {what}", now):  # a board resetting every line
+                log.add(self._since_start(rebased[0].t_s), Text(text))
         for det in tick.detections:
             line = None if isinstance(det, Rebaselined) else describe_detection(det, names)
             if line is None:
@@ -158,7 +165,10 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
                 self.recent.setdefault(channel, deque(maxlen=8)).append(f"{t_s:7.2f} {line.plain}")
         notices = getattr(self.source, "notices", None)
         while notices:
-            self._log(f"ⓘ {notices.popleft()}")
+            for text in self._gate.add(f"ⓘ {notices.popleft()}", now):
+                self._log(text)
+        for text in self._gate.due(now):
+            self._log(text)
 
     def _link_view(self) -> LinkView:
         view = self.source.link_view()

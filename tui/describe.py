@@ -7,7 +7,7 @@ from collections.abc import Sequence
 from rich.text import Text
 
 from processing.detections import GroupChange, Rebaselined, Release, SliderChange, StuckRelease, Touch
-from protocol.events import BoardChanged, BoardInfo, LinkFault, LinkStatus, Note
+from protocol.events import BoardChanged, BoardInfo, FaultKind, LinkFault, LinkStatus, Note
 
 
 def _name(names: Sequence[str], channel: int | None) -> str:
@@ -42,6 +42,8 @@ def describe_event(ev: object) -> Text | None:
         return Text(f"# board: {ev.text}")
     if isinstance(ev, LinkFault):
         detail = f" ({ev.detail})" if ev.detail else ""
+        if ev.kind == FaultKind.SILENT:  # its count is seconds, which the detail says
+            return Text(f"⚠ link: silent{detail}")
         return Text(f"⚠ link: {ev.kind.value} ×{ev.count}{detail}")
     if isinstance(ev, LinkStatus):
         detail = f": {ev.detail}" if ev.detail else ""

@@ -8,6 +8,7 @@ line; once the screen is up, the link reconnects by itself and the screen shows 
 from __future__ import annotations
 
 import sys
+from collections.abc import Sequence
 from pathlib import Path
 
 from processing.profile import Profile, load_profile
@@ -15,8 +16,9 @@ from protocol.errors import UserError
 
 
 def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = False,
-             start_profile: Profile | None = None) -> int:
-    """Open `target`, run the screen until the user quits; `start_profile` is used when no file is given."""
+             start_profile: Profile | None = None, notices: Sequence[str] = ()) -> int:
+    """Open `target`, run the screen until the user quits; `start_profile` is used when no file is given.
+    `notices` are lines for the screen's log (stderr belongs to the screen while it runs)."""
     from protocol.link import Link
     from tui.app import PadtuneApp
     from tui.session_source import SessionSource
@@ -27,6 +29,7 @@ def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = Fal
     try:
         source = SessionSource(link, profile=profile, profile_path=profile_path, port=target, baud=baud,
                                simulated=demo or target.startswith("sim://"))
+        source.notices.extend(notices)
         app = PadtuneApp(source, demo=demo)
         app.run()
     finally:

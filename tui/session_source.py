@@ -23,7 +23,18 @@ from processing.recording import RecordingWriter
 from processing.session import Session
 from processing.settings import ChannelSettings
 from protocol.errors import UserError
-from protocol.events import BoardInfo, Event, FrameBlock, LinkState, LinkStats, LinkStatus, StreamForm
+from protocol.events import (
+    BoardInfo,
+    Event,
+    FaultKind,
+    FrameBlock,
+    LinkFault,
+    LinkState,
+    LinkStats,
+    LinkStatus,
+    StreamForm,
+)
+from protocol.linkwatch import SILENT_AFTER_S
 from tui.render.views import ChannelView, GroupView, LinkView, SliderView
 from tui.source import Tick
 from tui.widgets.detail_panel import Series, Spectrum
@@ -62,7 +73,11 @@ class SessionSource:
         self._status_detail = ""
         self._scale = 1  # of the board's plain form, for the link strip
         self._fps, self._fps_t_s = 0.0, -1e9
-        self._last_frame_t_s: float | None = None
+        # Since when no frame has come: the last frame, or the port's (re)opening (a board that never
+        # sends one is flagged too). `_silent_bytes`: the link said `silent` (no bytes at all) when it
+        # had read this many bytes; None once bytes or frames flow again.
+        self._last_frame_t_s: float = clock()
+        self._silent_bytes: int | None = None
         self._recorder: RecordingWriter | None = None
         self._recording_error: str | None = None  # why the last recording stopped by itself
         self._errors: deque[str] = deque()  # for the next tick: things that went wrong between polls
@@ -84,6 +99,10 @@ class SessionSource:
                 tick.events.append(ev)
                 if isinstance(ev, LinkStatus):
                     self._status_detail = ev.detail
+                    if ev.state in (LinkState.CONNECTED, LinkState.RECONNECTED):
+                        self._last_frame_t_s, self._silent_bytes = self.clock(), None
+                elif isinstance(ev, LinkFault) and ev.kind == FaultKind.SILENT:
+                    self._silent_bytes = self.producer.stats.bytes_in
                 elif isinstance(ev, StreamForm):
                     self._scale = ev.scale
                 elif isinstance(ev, BoardInfo) and ev.new_session:
@@ -96,7 +115,7 @@ class SessionSource:
             tick.errors.append(self._errors.popleft())
         now = self.clock()
         if tick.frames:
-            self._last_frame_t_s = now
+            self._last_frame_t_s, self._silent_bytes = now, None
         self._frame_times.append((now, tick.frames))
         while self._frame_times and now - self._frame_times[0][0] > 2.0:
             self._frame_times.popleft()
@@ -202,15 +221,20 @@ class SessionSource:
             recording=str(self._recorder.path) if self._recorder else None,
             recording_error=self._recording_error,
             profile_name=path.name if path else "(not saved yet)", unsaved=self.unsaved(),
-            silent_s=self._silent_s(), scale=self._scale,
+            silent_s=self._silent_s(), silence=self._silence(stats), scale=self._scale,
         )
 
     def _silent_s(self) -> int | None:
-        """Whole seconds since the last frame, once that is over two seconds (a stalled board)."""
-        if self._last_frame_t_s is None:
-            return None
+        """Whole seconds since the last frame (or the opening), once that is 2 s: the link's own rule
+        for `silent` (protocol.linkwatch.SILENT_AFTER_S)."""
         gap = self.clock() - self._last_frame_t_s
-        return int(gap) if gap >= 2.0 else None
+        return int(gap) if gap >= SILENT_AFTER_S else None
+
+    def _silence(self, stats: LinkStats) -> str:
+        """`SILENT` while the link reports no bytes at all, else `NO FRAMES` (bytes, but none read)."""
+        if self._silent_bytes is not None and stats.bytes_in > self._silent_bytes:
+            self._silent_bytes = None  # bytes again: the board talks, if not in frames
+        return "SILENT" if self._silent_bytes is not None else "NO FRAMES"
 
     def series(self, channel: int) -> Series | None:
         m, e = self.session.measures, self.session.engine

@@ -14,7 +14,7 @@ import protocol.ports as ports_module
 from protocol.baudcheck import BaudCheck
 from protocol.encoder import encode_frames
 from protocol.eventbuffer import EventBuffer
-from protocol.events import FaultKind, FrameBlock, LinkFault, LinkState, LinkStats, LinkStatus, Note
+from protocol.events import FaultKind, FrameBlock, LinkFault, LinkState, LinkStatus, Note
 from protocol.link import Link
 from protocol.ports import UsbIdentity, find_usb, list_ports, usb_identity
 
@@ -65,29 +65,26 @@ def test_buffer_drain_limit():
 
 # -- baud check ------------------------------------------------------------------------------------
 def test_baud_check_bytes_and_window():
-    stats = LinkStats()
-    check = BaudCheck(10.0, stats)
-    assert check.feed(b"\xf8\x00\x80" * 20, 10.5, stats) is None  # still inside the 2 s window
-    assert check.feed(b"", 12.1, stats) is True
-    assert "probably wrong" in check.describe(9600)
+    check = BaudCheck(10.0)
+    assert check.feed(b"\xf8\x00\x80" * 20, 10.5) is None  # still inside the 2 s window
+    assert check.feed(b"", 12.1) is True
+    assert "probably wrong" in check.describe(9600) and "60 of 60 bytes" in check.describe(9600)
 
 
 def test_baud_check_clean_and_too_little_data():
-    stats = LinkStats()
-    check = BaudCheck(0.0, stats)
-    check.feed(b"@1 100 200*ABCD\n" * 10, 1.0, stats)
-    assert check.feed(b"", 2.5, stats) is False
-    quiet = BaudCheck(0.0, stats)
-    quiet.feed(b"\x00\xff", 1.0, stats)
-    assert quiet.feed(b"", 3.0, stats) is False  # two bytes say nothing
+    check = BaudCheck(0.0)
+    check.feed(b"@1 100 200*ABCD\n" * 10, 1.0)
+    assert check.feed(b"", 2.5) is False
+    quiet = BaudCheck(0.0)
+    quiet.feed(b"\x00\xff", 1.0)
+    assert quiet.feed(b"", 3.0) is False  # two bytes say nothing
 
 
-def test_baud_check_lines():
-    stats = LinkStats()
-    check = BaudCheck(0.0, stats)
-    stats.garbled, stats.frames = 7, 2  # printable bytes, but the lines do not parse
-    check.feed(b"x" * 100, 1.0, stats)
-    assert check.feed(b"", 2.1, stats) is True
+def test_baud_check_readable_text_is_not_a_baud_problem():
+    """Only the bytes decide: printable lines that do not parse are another diagnosis (linkwatch)."""
+    check = BaudCheck(0.0)
+    check.feed(b"Sensor ok, reading 1234 (filtered)\r\n" * 20, 1.0)
+    assert check.feed(b"", 2.1) is False
 
 
 # -- ports -----------------------------------------------------------------------------------------
@@ -201,7 +198,8 @@ def test_usb_board_comes_back_under_a_new_name(tmp_path, comports):
         opened[1].feed(encode_frames(np.ones((5, 2)), 5))
         got.wait(lambda: len(got.frames()) == 10, "frames after")
         assert link.stats.lost == 0
-        assert link.request_info() and bytes(opened[1].written) == b"?\n"
+        # (the link may have asked by itself already: no info line came within 0.5 s of reopening)
+        assert link.request_info() and bytes(opened[1].written).endswith(b"?\n")
     finally:
         link.stop()
 

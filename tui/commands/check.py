@@ -154,8 +154,10 @@ def _show(args: argparse.Namespace, report: dict[str, Any], verdicts: list, cons
 
 def _dead_unit(args: argparse.Namespace, elapsed_s: float) -> int:
     """Not one frame: a failed unit (or the wrong port or baud rate), reported like any failure."""
-    reason = (f"no frames from {args.port} in {elapsed_s:.1f} s: a dead unit, or check the cable, the "
-              "port and the baud rate")
+    from protocol.opening import has_baud_rate
+
+    check = "the cable, the port and the baud rate" if has_baud_rate(args.port) else "the bridge and the URL"
+    reason = f"no frames from {args.port} in {elapsed_s:.1f} s: a dead unit, or check {check}"
     if args.json:
         sys.stdout.write(json.dumps({"type": "check", "t": round(elapsed_s, 3), "passed": False,
                                      "port": args.port, "profile": args.profile, "reason": reason,

@@ -55,7 +55,8 @@ def _run(args: argparse.Namespace) -> int:
     except BaseException:
         link.stop()
         raise
-    run_ = DetectionRun(Session(profile), make_output(args.json), origin_t_s=origin, every_s=args.every)
+    run_ = DetectionRun(Session(profile), make_output(args.json), origin_t_s=origin, every_s=args.every,
+                        link_warnings=True)
 
     def consume(events: list, now: float) -> None:
         if recorder is not None:

@@ -14,8 +14,10 @@ import threading
 import time
 
 from processing.recording import RecordingWriter
+from tui.headless.notices import NoticeGate
 from tui.headless.output import make_console
 from tui.headless.ports import StopFlag, add_port_args, open_link, pump, seconds
+from tui.headless.runner import link_fault_text
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -54,8 +56,16 @@ def run(args: argparse.Namespace) -> int:
         threading.Thread(target=_read_marks, args=(marks,), daemon=True).start()
         console.print(f"recording to {args.output}; Enter marks a moment, Ctrl-C stops")
 
+    gate = NoticeGate()
+
     def consume(events: list, now: float) -> None:
         writer.write_events(events)
+        for ev in events:  # a silent or unreadable board: say so while recording, not only at the end
+            told = link_fault_text(ev)
+            for line in gate.add(told, now, kind=ev.kind.value) if told else ():
+                console.print(f"padtune: {line}")
+        for line in gate.due(now):
+            console.print(f"padtune: {line}")
         while not marks.empty():
             text = marks.get_nowait()
             writer.mark(now, "note", text=text)
@@ -67,6 +77,8 @@ def run(args: argparse.Namespace) -> int:
                        start_t_s=writer.origin_t_s)
     finally:
         writer.close()
+    for line in gate.flush():
+        console.print(f"padtune: {line}")
     console.print(f"recorded {writer.frames_written} frames in {end - writer.origin_t_s:.1f} s "
                   f"({writer.marks_written} marks) to {args.output}")
     return 0

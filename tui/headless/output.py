@@ -182,7 +182,9 @@ class HumanOutput:
         self._line(t_s, word, style, f"{channel}  held {held_s:.2f} s  (frame {index})")
 
     def link(self, t_s: float, event: str, count: int = 1, detail: str = "") -> None:
-        rest = event + (f" x{count}" if count != 1 else "") + (f": {detail}" if detail else "")
+        # A silence's count is its seconds, which the detail already says ("for 4 s").
+        times = f" x{count}" if count != 1 and event != "silent" else ""
+        rest = event + times + (f": {detail}" if detail else "")
         self._line(t_s, "link", "yellow", rest)
 
     def note(self, t_s: float, text: str) -> None:

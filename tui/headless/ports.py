@@ -67,7 +67,8 @@ def add_port_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("port", metavar="PORT_OR_URL",
                    help="serial device (/dev/ttyACM0, COM3) or pyserial URL (sim://greenhouse?speed=4, "
                         "socket://host:port)")
-    p.add_argument("--baud", type=baud_rate, default=DEFAULT_BAUD, help="baud rate (default %(default)s)")
+    p.add_argument("--baud", type=baud_rate, default=None,
+                   help=f"baud rate (default {DEFAULT_BAUD}; no effect on socket:// URLs)")
 
 
 def load_profile_arg(text: str | None) -> Any:
@@ -84,12 +85,30 @@ def load_profile_arg(text: str | None) -> Any:
     return load_profile(path)
 
 
-def open_link(target: str, baud: int, clock: Callable[[], float] = time.monotonic) -> Any:
-    """Start a `protocol.link.Link` on `target` (a missing, busy or forbidden port is a UserError)."""
+def baud_note(port: str, baud: int | None) -> str | None:
+    """What to tell a user who gave `--baud` where it means nothing (a TCP link has no baud rate)."""
+    from protocol.opening import scheme_of
+
+    if baud is None or scheme_of(port) != "socket":
+        return None
+    return (f"--baud {baud} has no effect on {port}: a TCP link has no baud rate; set the rate on the "
+            "bridge's serial side (an rfc2217:// URL sets it from here)")
+
+
+def open_link(target: str, baud: int | None, clock: Callable[[], float] = time.monotonic) -> Any:
+    """Start a `protocol.link.Link` on `target` (a missing, busy or forbidden port is a UserError).
+
+    `baud` None means the option was not given (DEFAULT_BAUD is used); given with a socket:// URL, one
+    stderr line says it has no effect there.
+    """
     from protocol.link import Link
 
-    link = Link(target, baud, clock=clock)
+    link = Link(target, DEFAULT_BAUD if baud is None else baud, clock=clock)
     link.start()
+    note = baud_note(target, baud)
+    if note:
+        sys.stderr.write(f"padtune: {note}\n")
+        sys.stderr.flush()
     return link
 
 

@@ -4,6 +4,11 @@
 link events into `Output` calls (times in seconds since the run's origin), emits a status every
 `every_s` and counts what the summary needs. Counting from the events themselves (not from the link's
 statistics) makes a replay's summary match the live run's.
+
+Notices for people go to `warn` (stderr by default) through a `NoticeGate`: at most one line per second
+per kind, repeats counted, so a board that resets on every line cannot flood stderr. With
+`link_warnings` (a live run: `monitor`), the link's diagnoses (silent, unreadable, wrong baud rate,
+repeated sequence numbers) are told there too, as well as in the output's link events.
 """
 
 from __future__ import annotations
@@ -28,6 +33,7 @@ from protocol.events import (
     Note,
     StreamForm,
 )
+from tui.headless.notices import NoticeGate
 from tui.headless.output import Output
 
 # The link events named in the JSON format; faults not listed pass under their own kind names.
@@ -36,6 +42,8 @@ _FAULT_EVENTS = {FaultKind.LOST: "lost", FaultKind.RESET: "reset", FaultKind.GAR
 _SUMMARY_FAULTS = {FaultKind.LOST: "lost", FaultKind.GARBLED: "garbled",
                    FaultKind.BAD_CHECKSUM: "bad_checksum", FaultKind.OVERLONG: "overlong",
                    FaultKind.RESET: "resets"}
+# Link faults a person running `monitor` is told on stderr (their details are whole sentences).
+_TOLD_FAULTS = (FaultKind.SILENT, FaultKind.UNREADABLE, FaultKind.BAUD_SUSPECT, FaultKind.REPEATED)
 
 
 def _num(value: float | None) -> float | None:
@@ -93,6 +101,8 @@ class DetectionRun:
     marks: Sequence[Mark] = ()
     mark_tolerance_s: float = 1.0
     warn: Callable[[str], None] = warn_on_stderr
+    link_warnings: bool = False
+    gate: NoticeGate = field(default_factory=NoticeGate)
     frames: int = 0
     counts: dict[str, int] = field(default_factory=lambda: dict.fromkeys(_SUMMARY_FAULTS.values(), 0))
     touches: list[FoundTouch] = field(default_factory=list)
@@ -108,10 +118,20 @@ class DetectionRun:
     def feed(self, events: Iterable[Event], now_t_s: float) -> None:
         for event in events:
             self._event(event)
+            if self.link_warnings and isinstance(event, LinkFault):
+                told = link_fault_text(event)
+                if told is not None:
+                    self._tell(told, now_t_s, kind=event.kind.value)
             notices = self.session.notices
             while notices:
-                self.warn(notices.popleft())
+                self._tell(notices.popleft(), now_t_s)
+        for line in self.gate.due(now_t_s):
+            self.warn(line)
         self.maybe_status(now_t_s)
+
+    def _tell(self, text: str, now_t_s: float, kind: str | None = None) -> None:
+        for line in self.gate.add(text, now_t_s, kind):
+            self.warn(line)
 
     def _rel(self, t_s: float) -> float:
         return t_s - self.origin_t_s
@@ -234,7 +254,25 @@ class DetectionRun:
 
     def finish(self, now_t_s: float) -> dict[str, Any]:
         self._say_form(None)
+        for line in self.gate.flush(now_t_s):  # repeats still held: their count is not lost
+            self.warn(line)
         summary = self.summary()
         self.output.summary(self._rel(now_t_s), summary)
         self.output.close()
         return summary
+
+
+def link_fault_text(event: Event) -> str | None:
+    """The stderr sentence for a link diagnosis a person must be told (silent, unreadable, wrong baud
+    rate, repeated sequence numbers); None for every other event."""
+    if not isinstance(event, LinkFault) or event.kind not in _TOLD_FAULTS:
+        return None
+    return _fault_text(event)
+
+
+def _fault_text(fault: LinkFault) -> str:
+    if fault.kind == FaultKind.REPEATED:
+        frames = "frame" if fault.count == 1 else "frames"
+        return (f"{fault.count} {frames} repeated the previous sequence number"
+                + (f" ({fault.detail})" if fault.detail else ""))
+    return fault.detail or fault.kind.value

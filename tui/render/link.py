@@ -30,7 +30,7 @@ def link_strip(view: LinkView, styles: Styles, compact: bool = False, width: int
         text.append("⏸ DISPLAY PAUSED", pick(styles, "warn"))
         text.append_text(sep)
     if view.silent_s is not None and role == "good":
-        glyph, word, role = "●", f"connected, NO FRAMES for {view.silent_s} s", "warn"
+        glyph, word, role = "●", f"connected, {view.silence} for {view.silent_s} s", "warn"
     text.append(f"{glyph} {word}", pick(styles, role))
     scale = f" │ readings x{view.scale}" if view.scale != 1 else ""
     if view.detail and role == "bad":

@@ -64,4 +64,5 @@ class LinkView:
     paused: bool = False
     silent_s: int | None = None  # whole seconds without a frame while connected (None: frames arrive)
     scale: int = 1  # a plain form's fixed scale: readings are the printed values x scale (PROTOCOL.md 6)
+    silence: str = "NO FRAMES"  # "SILENT" while the link reports no bytes at all (its `silent` event)
     extra: dict[str, int] = field(default_factory=dict)
