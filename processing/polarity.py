@@ -58,6 +58,8 @@ class PolarityLearner:
         self._up = self._down = self._back = 0  # run lengths carried across blocks
         self._out = 0  # frames since the excursion began
         self.swing = 0
+        self._chunk = max(1, self.follow_frames // 8)  # the level follows drift once per chunk
+        self._in_chunk, self._quiet_sum, self._quiet_n = 0, 0.0, 0
 
     def feed(self, readings: np.ndarray) -> Verdict | None:
         """Take the next readings (one channel, oldest first); stop at the first verdict."""
@@ -73,33 +75,42 @@ class PolarityLearner:
         return self._away(r, start)
 
     def _wait(self, r: np.ndarray) -> int:
-        """Look for a clear excursion; returns the row after it is confirmed, or -1 (and follows drift)."""
-        dev = r - self.level
-        up = run_lengths(dev >= self.threshold, self._up)
-        down = run_lengths(dev <= -self.threshold, self._down)
-        first_up, first_down = first_reaching(up, self.touch_frames), first_reaching(down, self.touch_frames)
-        hits = [h for h in (first_up, first_down) if h >= 0]
-        if not hits:
+        """Look for a clear excursion; returns the row after it is confirmed, or -1. Meanwhile the quiet
+        level follows drift, updated at fixed frame counts so the result does not depend on how the
+        readings were cut into blocks."""
+        pos = 0
+        while pos < len(r):
+            seg = r[pos:pos + self._chunk - self._in_chunk]
+            dev = seg - self.level
+            up = run_lengths(dev >= self.threshold, self._up)
+            down = run_lengths(dev <= -self.threshold, self._down)
+            first_up = first_reaching(up, self.touch_frames)
+            first_down = first_reaching(down, self.touch_frames)
+            hits = [h for h in (first_up, first_down) if h >= 0]
+            if hits:
+                row = min(hits)
+                self.sign = 1 if row == first_up else -1
+                begun = row - self.touch_frames + 1  # may be negative: it began in an earlier segment
+                self._out = self.touch_frames
+                self.swing = int(np.abs(dev[max(0, begun):row + 1]).max())
+                return pos + row + 1
             self._up, self._down = int(up[-1]), int(down[-1])
-            self._follow(r, dev)
-            return -1
-        row = min(hits)
-        self.sign = 1 if row == first_up else -1
-        begun = row - self.touch_frames + 1  # may be negative: it began in an earlier block
-        self._follow(r[:max(0, begun)], dev[:max(0, begun)])
-        self._out = row + 1 - begun
-        self._back = 0
-        self.swing = int(np.abs(dev[max(0, begun):row + 1]).max())
-        self._up = self._down = 0
-        return row + 1
+            quiet = np.abs(dev) < self.release
+            self._quiet_sum += float(seg[quiet].sum())
+            self._quiet_n += int(quiet.sum())
+            self._in_chunk += len(seg)
+            pos += len(seg)
+            if self._in_chunk == self._chunk:
+                self._follow()
+        return -1
 
-    def _follow(self, r: np.ndarray, dev: np.ndarray) -> None:
-        """Let the quiet level follow slow drift: quiet readings pull it toward their mean."""
-        quiet = np.abs(dev) < self.release
-        n = int(quiet.sum())
+    def _follow(self) -> None:
+        """Pull the quiet level toward the mean of the chunk's quiet readings (a first-order filter with
+        a time constant of about follow_frames)."""
+        n = self._quiet_n
         if n:
-            weight = n / (n + self.follow_frames)
-            self.level += (float(r[quiet].mean()) - self.level) * weight
+            self.level += (self._quiet_sum / n - self.level) * n / (n + self.follow_frames)
+        self._quiet_sum, self._quiet_n, self._in_chunk = 0.0, 0, 0
 
     def _away(self, r: np.ndarray, start: int) -> Verdict | None:
         """During an excursion: wait for the return (learned) or give up after max_out_frames (lost)."""

@@ -187,23 +187,31 @@ class Startup:
                                follow_frames=max(1, round(FOLLOW_S * rate)))
 
     def _quiet(self, c: int, upto: int) -> tuple[int, QuietStats, bool] | None:
-        """The channel's first quiet window ending before frame `upto`: (its last frame, stats, quietest)."""
+        """The channel's first quiet window ending before frame `upto`: (its last frame, stats, quietest).
+
+        Windows slide on by a quarter while they are not quiet; GIVE_UP_S after the channel began
+        measuring, the quietest window seen so far is taken (at that frame, whatever the blocks)."""
         first = self._buf_first
         t, r = self._buf_t, self._buf_r
+        end = upto - first
         if c not in self._since_t and self._start[c] - first < len(t):
             self._since_t[c] = float(t[self._start[c] - first])
+        since = self._since_t.get(c)
+        give_up = None
+        if since is not None:
+            late = np.flatnonzero(t[:end] - since >= GIVE_UP_S)
+            give_up = int(late[0]) if len(late) else None
         while True:
             s = self._start[c] - first
-            if s >= len(t):
-                return None
-            # the first frame at least QUIET_MIN_FRAMES in and QUIET_S after the window's first
-            lo = s + QUIET_MIN_FRAMES - 1
-            if lo >= upto - first:
+            lo = s + QUIET_MIN_FRAMES - 1  # the window's last frame: at least QUIET_MIN_FRAMES in ...
+            if s >= len(t) or lo >= end:
                 break
-            later = np.flatnonzero(t[lo:upto - first] - t[s] >= QUIET_S)
+            later = np.flatnonzero(t[lo:end] - t[s] >= QUIET_S)  # ... and QUIET_S after its first
             if len(later) == 0:
                 break
             e = lo + int(later[0])
+            if give_up is not None and e > give_up:
+                break
             window = r[s:e + 1, c]
             stats = QuietStats.of(window, t[s:e + 1])
             if is_quiet(window):
@@ -213,10 +221,9 @@ class Startup:
                 self._best[c] = stats
             self._start[c] += max(1, (e - s + 1) // 4)  # slide on by a quarter
         best = self._best.get(c)
-        since = self._since_t.get(c)
-        if best is not None and since is not None and float(t[upto - first - 1]) - since >= GIVE_UP_S:
-            recent = r[max(0, upto - first - best.frames):upto - first, c]
-            return upto - 1, replace(best, level_counts=float(recent.mean())), True
+        if give_up is not None and best is not None:
+            recent = r[max(0, give_up + 1 - best.frames):give_up + 1, c]  # the level it idles at now
+            return first + give_up, replace(best, level_counts=float(recent.mean())), True
         return None
 
     def _trim(self) -> None:
