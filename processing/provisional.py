@@ -15,9 +15,13 @@ from processing.settings import MAX_COUNTS, MAX_DEBOUNCE_FRAMES, ChannelSettings
 
 QUIET_S = 1.0  # the quiet stretch a channel's noise is measured over ...
 QUIET_MIN_FRAMES = 32  # ... and at least this many frames (a slow board needs longer than 1 s)
-# T = ceil(1.5 x noise pp): about 8 x RMS for Gaussian noise over ~100 frames (pp ~ 5 RMS there), so
-# noise alone never reaches it; a touch of 10 x pp clears it more than six times over.
-THRESHOLD_PP_NUM, THRESHOLD_PP_DEN = 3, 2
+# T = max(2 x noise pp, 8 x noise RMS): twice the quiet span keeps a neighbour's crosstalk (a tenth of
+# a touch on the demo panel) and the slow part of the noise a short window misses below it; 8 RMS is
+# what 2 pp comes to for Gaussian noise over 60-100 frames (pp about 4.5-5 RMS), so it only decides
+# when the window's pp came out low by chance or the noise is coarse. Since RMS <= pp / 2 for any
+# numbers (Popoviciu's inequality), T <= 4 pp: a touch of 10 pp clears it with room for the noise.
+THRESHOLD_PER_PP = 2
+THRESHOLD_PER_RMS = 8
 MIN_THRESHOLD_COUNTS = 3  # a quantised channel (pp 0 or 1) must not fire on one count of flicker
 # Nor on a change too small to be a touch at its count scale: 1/400 = 0.25 % of the idle reading.
 FLOOR_DIVISOR = 400
@@ -69,23 +73,23 @@ def debounce_frames(rate_hz: float | None, default: int = ChannelSettings().touc
     return max(1, min(MAX_DEBOUNCE_FRAMES, math.ceil(rate_hz * DEBOUNCE_S - 1e-9)))
 
 
-def provisional_threshold(pp_counts: int, level_counts: float) -> int:
-    """T = max(ceil(1.5 pp), ceil(|level| / 400), 3), at most MAX_COUNTS (integers only)."""
-    noise = (THRESHOLD_PP_NUM * int(pp_counts) + THRESHOLD_PP_DEN - 1) // THRESHOLD_PP_DEN
-    level = abs(round(level_counts))
-    floor = -(-level // FLOOR_DIVISOR)
-    return min(MAX_COUNTS, max(noise, floor, MIN_THRESHOLD_COUNTS))
+def provisional_threshold(pp_counts: int, level_counts: float, rms_counts: float = 0.0) -> int:
+    """T = max(2 pp, ceil(8 RMS), ceil(|level| / 400), 3), at most MAX_COUNTS."""
+    by_pp = THRESHOLD_PER_PP * int(pp_counts)
+    by_rms = math.ceil(THRESHOLD_PER_RMS * rms_counts - 1e-9) if math.isfinite(rms_counts) else 0
+    floor = -(-abs(round(level_counts)) // FLOOR_DIVISOR)
+    return min(MAX_COUNTS, max(by_pp, by_rms, floor, MIN_THRESHOLD_COUNTS))
 
 
 def provisional_settings(stats: QuietStats, rate_hz: float | None = None,
                          base: ChannelSettings | None = None) -> ChannelSettings:
     """Threshold, hysteresis and debounce for a channel from its quiet stretch; the rest from `base`.
 
-    Hysteresis is a third of the threshold (at least 1), so the release level sits at the noise pp
-    above the quiet mean when the noise decides. `rate_hz` (the board's declared or measured rate)
+    Hysteresis is a third of the threshold (at least 1): the release level, two thirds of it, stays
+    above the quiet noise (4/3 pp when the pp decides). `rate_hz` (the board's declared or measured rate)
     wins over the stretch's own estimate for the debounce.
     """
-    threshold = provisional_threshold(stats.pp_counts, stats.level_counts)
+    threshold = provisional_threshold(stats.pp_counts, stats.level_counts, stats.rms_counts)
     debounce = debounce_frames(rate_hz or stats.rate_hz)
     return replace(base or ChannelSettings(), threshold_counts=threshold,
                    hysteresis_counts=max(1, threshold // 3), touch_debounce_frames=debounce,

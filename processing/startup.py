@@ -82,7 +82,8 @@ class Startup:
         self._buf_t = np.zeros(0, np.float64)
         self._buf_first = 0  # absolute frame number of the buffer's first row
         self._start = {c: 0 for c in range(channels) if self.phase[c] == MEASURING}  # window starts
-        self._since_t: dict[int, float] = {}  # host time each measuring channel began measuring
+        self._since = dict(self._start)  # the frame each measuring channel began measuring at ...
+        self._since_t: dict[int, float] = {}  # ... and its host time
         self._best: dict[int, QuietStats] = {}  # its quietest window so far (for GIVE_UP_S)
 
     @property
@@ -118,7 +119,7 @@ class Startup:
 
     def _measure_from(self, channel: int, frame: int) -> None:
         self.phase[channel] = MEASURING
-        self._start[channel] = frame
+        self._start[channel] = self._since[channel] = frame
         self._since_t.pop(channel, None)
         self._best.pop(channel, None)
 
@@ -189,28 +190,18 @@ class Startup:
     def _quiet(self, c: int, upto: int) -> tuple[int, QuietStats, bool] | None:
         """The channel's first quiet window ending before frame `upto`: (its last frame, stats, quietest).
 
-        Windows slide on by a quarter while they are not quiet; GIVE_UP_S after the channel began
-        measuring, the quietest window seen so far is taken (at that frame, whatever the blocks)."""
+        A window is QUIET_S of frames (at least QUIET_MIN_FRAMES): counted in frames at the board's rate
+        when that is known (a replay or a sped-up simulation delivers seconds of frames in less), else
+        in host time. Windows slide on by a quarter while they are not quiet; GIVE_UP_S after the channel
+        began measuring, the quietest window seen so far is taken (at that frame, whatever the blocks)."""
         first = self._buf_first
         t, r = self._buf_t, self._buf_r
         end = upto - first
-        if c not in self._since_t and self._start[c] - first < len(t):
-            self._since_t[c] = float(t[self._start[c] - first])
-        since = self._since_t.get(c)
-        give_up = None
-        if since is not None:
-            late = np.flatnonzero(t[:end] - since >= GIVE_UP_S)
-            give_up = int(late[0]) if len(late) else None
+        give_up = self._give_up_row(c, end)
         while True:
             s = self._start[c] - first
-            lo = s + QUIET_MIN_FRAMES - 1  # the window's last frame: at least QUIET_MIN_FRAMES in ...
-            if s >= len(t) or lo >= end:
-                break
-            later = np.flatnonzero(t[lo:end] - t[s] >= QUIET_S)  # ... and QUIET_S after its first
-            if len(later) == 0:
-                break
-            e = lo + int(later[0])
-            if give_up is not None and e > give_up:
+            e = self._frame_after(s, QUIET_S, end, QUIET_MIN_FRAMES)
+            if e is None or (give_up is not None and e > give_up):
                 break
             window = r[s:e + 1, c]
             stats = QuietStats.of(window, t[s:e + 1])
@@ -225,6 +216,33 @@ class Startup:
             recent = r[max(0, give_up + 1 - best.frames):give_up + 1, c]  # the level it idles at now
             return first + give_up, replace(best, level_counts=float(recent.mean())), True
         return None
+
+    def _give_up_row(self, c: int, end: int) -> int | None:
+        """The buffer row GIVE_UP_S after the channel began measuring, if before row `end`."""
+        first = self._buf_first
+        if self.rate_hz:
+            row = max(0, self._since[c] + round(GIVE_UP_S * self.rate_hz) - first)
+            return row if row < end else None
+        if c not in self._since_t and 0 <= self._since[c] - first < len(self._buf_t):
+            self._since_t[c] = float(self._buf_t[self._since[c] - first])
+        if c not in self._since_t:
+            return None
+        late = np.flatnonzero(self._buf_t[:end] - self._since_t[c] >= GIVE_UP_S)
+        return int(late[0]) if len(late) else None
+
+    def _frame_after(self, s: int, seconds: float, end: int, min_frames: int = 1) -> int | None:
+        """The buffer row `seconds` after row `s` (and at least `min_frames` frames from it, counting
+        both), if it lies before row `end`: by the board's rate when known, else by host time."""
+        if s < 0 or s >= end:
+            return None
+        if self.rate_hz:
+            e = s + max(min_frames, round(seconds * self.rate_hz) + 1) - 1
+            return e if e < end else None
+        lo = s + min_frames - 1
+        if lo >= end:
+            return None
+        later = np.flatnonzero(self._buf_t[lo:end] - self._buf_t[s] >= seconds)
+        return lo + int(later[0]) if len(later) else None
 
     def _trim(self) -> None:
         """Keep only the frames a measuring channel's window still starts at or after."""

@@ -39,9 +39,10 @@ def test_run_lengths_match_a_plain_loop(bits, carried):
 
 
 def test_the_threshold_rule_by_hand():
-    # T = max(ceil(1.5 pp), ceil(|level| / 400), 3): worked by hand for each term winning.
-    assert provisional_threshold(6, 1366.0) == 9  # noise: 1.5 x 6 = 9 (floor 1366/400 = 3.4 -> 4)
-    assert provisional_threshold(7, 1366.0) == 11  # 10.5 rounds up
+    # T = max(2 pp, ceil(8 RMS), ceil(|level| / 400), 3): worked by hand for each term winning.
+    assert provisional_threshold(6, 1366.0, 1.2) == 12  # 2 x 6 = 12 (8 x 1.2 = 9.6 -> 10; 1366/400 -> 4)
+    assert provisional_threshold(6, 1366.0, 2.0) == 16  # uniform noise of 7 levels: RMS 2, 8 x 2 = 16
+    assert provisional_threshold(3, 1366.0, 1.01) == 9  # 8.08 rounds up
     assert provisional_threshold(0, 30000.0) == 75  # a perfectly quiet 30000-count key: 0.25 % of it
     assert provisional_threshold(1, 72.0) == 3  # a quantised 72-count key: the 3-count minimum
     assert provisional_threshold(0, 0.0) == 3
@@ -52,7 +53,7 @@ def test_the_threshold_rule_by_hand():
 def test_provisional_settings_by_hand():
     stats = QuietStats(101, 1.0, 1366.0, 6, 1.0, 100.0)
     s = provisional_settings(stats)
-    assert (s.threshold_counts, s.hysteresis_counts) == (9, 3)  # release level 6 = the noise pp
+    assert (s.threshold_counts, s.hysteresis_counts) == (12, 4)  # release level 8: 4/3 of the noise pp
     assert s.touch_debounce_frames == s.release_debounce_frames == 3  # 25 ms at 100 Hz: 2.5 -> 3
     assert provisional_settings(stats, rate_hz=1000.0).touch_debounce_frames == 25
     assert not s.problems()
@@ -66,6 +67,8 @@ def test_provisional_settings_are_always_valid(pp, level, rate):
     s = provisional_settings(QuietStats(101, 1.0, level, pp, pp / 5, rate))
     assert not s.problems(), s
     assert s.threshold_counts >= 3 and 1 <= s.hysteresis_counts < s.threshold_counts
+    # never above 4 pp (RMS <= pp / 2, Popoviciu) unless the floor or the minimum decides
+    assert s.threshold_counts <= max(4 * pp, -(-abs(round(level)) // 400), 3)
 
 
 def test_quiet_check_takes_noise_and_hum_and_refuses_steps_and_taps():
