@@ -22,9 +22,10 @@ async def test_w_opens_the_capture_and_apply_all_is_one_undoable_edit():
     source = SessionSource(feed, port="test://feed", clock=clock)
     app = PadtuneApp(source, ui_hz=0, clock=clock)
     async with app.run_test(size=(100, 32)) as pilot:
-        feed.advance(0.5)
+        feed.advance(1.5)  # past the quiet second: the provisional settings are in
         app.refresh_now()
         before = [source.settings(c) for c in range(5)]
+        assert all(source.session.provisional(c) for c in range(5))
         await pilot.press("w")
         await pilot.pause()
         screen = app.screen
@@ -53,9 +54,11 @@ async def test_w_opens_the_capture_and_apply_all_is_one_undoable_edit():
         assert all(a.threshold_counts == o.suggestion.threshold_counts
                    for a, o in zip(after, screen.outcomes, strict=True))
         assert after != before
+        assert not any(source.session.provisional(c) for c in range(5))  # captured: tuned now
         await pilot.press("u")
         await pilot.pause()
         assert [source.settings(c) for c in range(5)] == before
+        assert all(source.session.provisional(c) for c in range(5))  # undone: provisional again
 
 
 async def test_capture_while_recording_leaves_marks_that_tune_uses(tmp_path):

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 
 from tui.live import check_baud, check_profile_arg, run_live
+from tui.polarity_arg import add_polarity_arg
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -14,6 +15,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("port", metavar="PORT_OR_URL", help="serial device path or URL")
     p.add_argument("--baud", type=int, default=115200, help="baud rate (default 115200)")
     p.add_argument("--profile", help="profile TOML file to load settings from")
+    add_polarity_arg(p)
     p.add_argument("--press-keys", action="store_true",
                    help="the board takes +KEY / -KEY lines (a simulated board on a pseudo-terminal): let "
                    "keys 1-9, 0, p and t press its keys")
@@ -22,4 +24,4 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     return run_live(args.port, check_baud(args.baud), check_profile_arg(args.profile),
-                    demo=args.press_keys or args.port.startswith("sim://"))
+                    demo=args.press_keys or args.port.startswith("sim://"), polarity=args.polarity)
