@@ -19,6 +19,8 @@ from collections import deque
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, replace
 
+import numpy as np
+
 from processing.boardtime import BoardClock
 from processing.detections import DetectionEvent, KeyState, Rebaselined, StuckRelease
 from processing.engine import Engine
@@ -57,7 +59,8 @@ DEFAULT_RATE_HZ = 100.0  # assumed until the board states its rate or enough fra
 # line, the profile, learned from the first touch.
 EDITED, COMMAND_LINE, BOARD, PROFILE, LEARNED = "edited", "command line", "board", "profile", "learned"
 _RANK = {EDITED: 0, COMMAND_LINE: 1, BOARD: 2, PROFILE: 3, LEARNED: 4}
-LIST_NOTICE_CHANNELS = 8  # a notice names the channels one by one up to this many
+LIST_NOTICE_CHANNELS = 8  # a notice names the channels one by one up to this many ...
+LIST_EACH = 3  # ... and gives each one's provisional settings up to this many
 
 
 def sign_text(sign: int | None) -> str:
@@ -286,16 +289,22 @@ class Session:
         if self.startup is not None and self.startup.busy:
             steps = self.startup.advance(block.readings, block.t_s)
         found: list[DetectionEvent] = []
+        parts: list[tuple[np.ndarray, np.ndarray]] = []
         start = i = 0
         while i < len(steps):  # run the engine up to each transition's frame, apply it, go on
             stop = steps[i].row + 1
             found.extend(self._run(_slice(block, start, stop)))
+            parts.append((self.engine.last_deltas, self.engine.last_states))
             while i < len(steps) and steps[i].row + 1 == stop:
                 self._transition(steps[i])
                 i += 1
             start = stop
         if start < len(block):
             found.extend(self._run(_slice(block, start, len(block))))
+            parts.append((self.engine.last_deltas, self.engine.last_states))
+        if len(parts) > 1:  # the engine's last_* cover the whole block, as when it ran it in one go
+            self.engine.last_deltas = np.concatenate([d for d, _ in parts])
+            self.engine.last_states = np.concatenate([st for _, st in parts])
         self._estimate_rate()
         return found
 
@@ -387,19 +396,19 @@ class Session:
         self._profile = replace(self._profile, polarity=tuple(int(p) for p in self.polarity) if known else ())
 
     def _tell_provisional(self) -> None:
-        """One notice for the provisional settings taken in this call (one line for many channels)."""
+        """One notice for the provisional settings taken in this call (a summary for many channels)."""
         if not self._measured or self._profile is None:
             return
         taken, self._measured = self._measured, []
         names = self._profile.names
-        if len(taken) <= LIST_NOTICE_CHANNELS:
+        if len(taken) <= LIST_EACH:
             each = ", ".join(f"{names[m.channel]} threshold {m.settings.threshold_counts} hysteresis "
                              f"{m.settings.hysteresis_counts} (noise {m.stats.pp_counts} pp)" for m in taken)
         else:
-            thr = [m.settings.threshold_counts for m in taken]
-            pp = [m.stats.pp_counts for m in taken]
-            each = (f"{len(taken)} channels, thresholds {min(thr)}..{max(thr)} counts "
-                    f"(noise {min(pp)}..{max(pp)} counts pp)")
+            thr = _span([m.settings.threshold_counts for m in taken])
+            hys = _span([m.settings.hysteresis_counts for m in taken])
+            pp = _span([m.stats.pp_counts for m in taken])
+            each = f"{len(taken)} channels, threshold {thr} counts, hysteresis {hys} (noise {pp} counts pp)"
         debounce = taken[0].settings.touch_debounce_frames
         self.notices.append(f"provisional settings from the quiet noise: {each}; debounce {debounce} frames. "
                             "Edit a key, run the guided capture or load a profile to replace them")
@@ -601,9 +610,15 @@ class Session:
         if not unknown or key in self._said:
             return
         self._said.add(key)
-        self.notices.append(f"no polarity given for {_listed(unknown)} (no info line, profile or "
+        which = "" if len(unknown) == len(names) else f" for {_listed(unknown)}"
+        self.notices.append(f"no polarity given{which} (no info line, profile or "
                             "--polarity): touch each key once and let go, so padtune learns which way its "
                             "counts move; it reports no touch until then")
+
+
+def _span(values: Sequence[int]) -> str:
+    lo, hi = min(values), max(values)
+    return f"{lo}" if lo == hi else f"{lo}..{hi}"
 
 
 def _listed(names: Sequence[str]) -> str:

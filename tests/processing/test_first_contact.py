@@ -310,3 +310,13 @@ def test_the_frame_rate_from_a_millisecond_time_column():
     assert s.rate_hz == pytest.approx(60.0, rel=1e-3)
     told = "frame rate 60 Hz, from the board's time column (ticks of 1 ms)"
     assert any(n.startswith(told) for n in s.notices)
+
+
+def test_the_engines_last_arrays_cover_the_whole_block_even_when_split_at_a_transition():
+    # Code reading engine.last_deltas / last_states after handle() (the production check) gets every
+    # frame of the block, though the session ran it in parts around the end of the quiet second.
+    r = stream(2, 3.0, 1000)
+    s = Session(polarity=(1,))
+    s.handle([FrameBlock(np.arange(len(r)) / RATE_HZ, np.full(len(r), -1), r, 0)])
+    assert s.engine.last_deltas.shape == s.engine.last_states.shape == (len(r), 2)
+    assert s.measures.history.written == len(r)
