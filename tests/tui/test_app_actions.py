@@ -346,7 +346,7 @@ async def test_detail_panel_and_spectrum() -> None:
         app.refresh_now()
         await pilot.pause()
         text = screen_text(app)
-        assert "reading ⣿" in text and "release level" in text and "▸ threshold" in text
+        assert "reading ⣿" in text and "release at" in text and "▸ threshold" in text
         await pilot.press("f")
         run(app, feed, 0.2)
         await pilot.pause()
