@@ -122,12 +122,12 @@ def test_rising_counts_learned_too_and_the_engine_rebaselines_at_the_lesson():
 def test_a_touch_of_ten_times_the_quiet_pp_is_detected_at_any_count_scale(level, sigma, sign, stated, seed):
     # The promise of issue 9: a touch that moves the counts by ten times the quiet noise pp is detected,
     # whatever the count scale. Gaussian noise rounded to counts; the pp is numpy's over the first second
-    # (the frames the rule measures). The floor of the rule (0.25 % of the level) is above 10 x pp only
-    # for a key quieter than 1/4000 of its level: those are left to the floor test below.
+    # (the frames the rule measures). Where the rule's floor (0.25 % of the level) decides, the promise
+    # holds while 8.5 pp reaches it (ALGORITHM.md): quieter keys are the floor test's, below.
     rng = np.random.default_rng(seed)
     r = (level + np.round(rng.normal(0, sigma, (900, 2)))).astype(np.int64)
     pp = int(np.ptp(r[:QUIET_FRAMES, 0]))
-    assume(pp > 0 and 10 * pp >= 1.6 * level / 400)
+    assume(pp > 0 and 17 * pp >= 2 * -(-level // 400))
     lesson, touched = (150, 250), (550, 650)
     if not stated:
         r[lesson[0]:lesson[1], 0] += sign * 10 * pp
