@@ -182,3 +182,28 @@ def test_watch_and_demo_hand_polarity_to_the_session(monkeypatch):
     assert cli.main(["demo", "--polarity", "-"]) == 0
     assert cli.main(["watch", "/dev/ttyACM9", "--polarity", "-,+,-"]) == 0  # a list starting with -
     assert seen == {"sim://greenhouse": (-1,), "/dev/ttyACM9": (-1, 1, -1)}
+
+
+def test_tune_learns_the_polarity_of_a_recording_that_does_not_say(tmp_path):
+    # A raw capture of a board whose counts fall, no info line: tune finds each key's direction from its
+    # first touch (as the live session does), suggests from touches the right way up and saves the
+    # polarity, so the profile needs no lesson when it is used.
+    rng = np.random.default_rng(5)
+    rows = 2000 + rng.integers(-3, 4, (1400, 2))
+    for start in (300, 700, 1100):
+        rows[start:start + 80, 0] -= 250
+        rows[start + 40:start + 120, 1] -= 180
+    capture = tmp_path / "falling.txt"
+    capture.write_text("".join(f"{a} {b}\n" for a, b in rows))
+    out = padtune("tune", str(capture), "--rate", "100", "-o", str(tmp_path / "p.toml"), "--json")
+    assert out.returncode == 0, out.stderr
+    from processing.profile import load_profile
+
+    profile = load_profile(tmp_path / "p.toml")
+    assert profile.polarity == (-1, -1)
+    assert 3 < profile.settings_for(0).threshold_counts < 250
+    assert 3 < profile.settings_for(1).threshold_counts < 180
+    replayed = padtune("replay", str(capture), "--rate", "100", "--profile", str(tmp_path / "p.toml"),
+                       "--json")
+    counts = {c["name"]: c["touches"] for c in json_lines(replayed.stdout)[-1]["channels"]}
+    assert counts == {"ch0": 3, "ch1": 3}  # the first touch is a touch too: nothing left to learn
