@@ -76,11 +76,14 @@ class FallingBoard:
         for a, b in touches:
             self.rows[a:b, 1] -= 300
         self.done = threading.Event()
+        self.stop = threading.Event()  # set before closing the pty: the player ends between batches
 
     def play(self) -> None:
         start = time.monotonic()
         batch = 5
         for pos in range(0, len(self.rows), batch):
+            if self.stop.is_set():
+                break
             delay = start + pos / self.rate_hz - time.monotonic()
             if delay > 0:
                 time.sleep(delay)
@@ -207,3 +210,37 @@ def test_tune_learns_the_polarity_of_a_recording_that_does_not_say(tmp_path):
                        "--json")
     counts = {c["name"]: c["touches"] for c in json_lines(replayed.stdout)[-1]["channels"]}
     assert counts == {"ch0": 3, "ch1": 3}  # the first touch is a touch too: nothing left to learn
+
+
+@pytest.mark.parametrize("given", [(), ("--polarity", "-")])
+def test_check_does_not_learn_it_says_what_it_assumes(tmp_path, given):
+    # A production check never spends a touch on a lesson: with no polarity from the profile, the board
+    # or --polarity, it checks with + and says so on stderr; --polarity is taken as given.
+    import os
+
+    from processing.profile import profile_for, save_profile
+    from tests.headless.test_live_commands import _holds_open
+
+    save_profile(profile_for(3), tmp_path / "three.toml")
+    board = FallingBoard(tmp_path, lines=400, touches=())
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "check", str(board.pty.path), "--profile",
+                             str(tmp_path / "three.toml"), "--duration", "1", "--json", *given],
+                            cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        deadline = time.monotonic() + WAIT_S
+        while not _holds_open(proc.pid, os.path.realpath(board.pty.path)):
+            assert proc.poll() is None and time.monotonic() < deadline, "the check never opened the port"
+            time.sleep(0.02)
+        player = threading.Thread(target=board.play, daemon=True)
+        player.start()
+        out, err = proc.communicate(timeout=WAIT_S)
+        board.stop.set()
+        player.join(WAIT_S)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+        board.pty.close()
+    assert proc.returncode == 0, err
+    told = "no polarity for ch0, ch1, ch2 (the profile and the board do not say): checking with +"
+    assert (told in err) == (not given), err
+    assert json_lines(out)[0]["passed"]
