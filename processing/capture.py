@@ -99,7 +99,9 @@ class CaptureWizard:
                  hold_s: float = 2.0, settle_s: float = 0.2, release_s: float = 0.5, timeout_s: float = 8.0,
                  max_attempts: int = 3, min_rise_counts: float = 3.0, channels: Sequence[int] | None = None):
         self.names = list(names)
+        # 0 for a key whose direction is not known yet: the touch asked for teaches it (`learned`)
         self.polarity = expand_polarity(polarity, len(names))
+        self.learned: dict[int, int] = {}
         self.rate_hz = rate_hz
         self.quiet_frames = max(8, round(quiet_s * rate_hz))
         self.hold_frames = max(4, round(hold_s * rate_hz))
@@ -185,6 +187,12 @@ class CaptureWizard:
     def _deltas(self, row: np.ndarray) -> np.ndarray:
         return self.polarity * (row - self._baseline)
 
+    def _learn(self, c: int, row: np.ndarray) -> None:
+        """A key of unknown direction, asked for: the first clear move either way is its touch."""
+        moved = float(row[c] - self._baseline[c])
+        if abs(moved) > self._levels[c]:
+            self.polarity[c] = self.learned[c] = 1 if moved > 0 else -1
+
     def _frame(self, row: np.ndarray, now_s: float) -> None:
         step = self.step
         assert step is not None
@@ -198,6 +206,8 @@ class CaptureWizard:
             return
         c = step.channel
         assert c is not None
+        if step.kind == TOUCH and self.polarity[c] == 0:
+            self._learn(c, row)
         deltas = self._deltas(row)
         self._track_baseline(row, deltas, c)
         others = [k for k in range(len(self.names)) if k != c]
@@ -209,7 +219,8 @@ class CaptureWizard:
     def _finish_quiet(self, now_s: float, force: bool = False) -> None:
         rows = np.array(self._rows, np.int64)
         self._baseline = rows.mean(axis=0)
-        quiet = (self.polarity * (rows - self._baseline)).round().astype(np.int64)
+        sign = np.where(self.polarity == 0, 1, self.polarity)  # the spread is the same either way
+        quiet = (sign * (rows - self._baseline)).round().astype(np.int64)
         moved = [c for c in range(len(self.names)) if disturbed(quiet[:, c], self.min_rise_counts)]
         if moved and not force and self._quiet_tries + 1 < self.max_attempts:
             self._quiet_tries += 1

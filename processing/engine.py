@@ -80,6 +80,14 @@ class Engine:
         else:
             self.pending[channel] = True
 
+    def set_polarity(self, channel: int, polarity: int) -> None:
+        """Turn a channel's direction around (or confirm it): it re-baselines on its next frame."""
+        if polarity not in (1, -1):
+            raise ValueError(f"polarity must be +1 or -1, not {polarity!r}")
+        self.pol[channel] = polarity
+        self.clean[channel] = False
+        self.pending[channel] = True
+
     def process(self, block: FrameBlock) -> list[DetectionEvent]:
         if block.channels != self.channels:
             raise ValueError(f"block has {block.channels} channels, engine {self.channels}")

@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import difflib
 import os
-import re
 import tomllib
 from collections.abc import Mapping
 from dataclasses import asdict, dataclass, field, replace
@@ -19,6 +18,7 @@ import tomli_w
 
 from processing.atomic import atomic_write_bytes
 from processing.groups import GroupSpec
+from processing.names import NAME_HINT, NAME_RE, channel_names, name_problem
 from processing.settings import (
     LIMIT_KEYS,
     MAX_COUNTS,
@@ -32,11 +32,9 @@ from protocol.errors import UserError
 
 FORMAT_VERSION = 1
 MAX_CHANNELS = 1024
-NAME_RE = re.compile(r"^[A-Za-z0-9_.-]{1,32}$")
 TOP_KEYS = ("format_version", "board", "channels", "names", "polarity", "rate_hz", "defaults", "channel",
             "group", "slider", "limits")
 Problems = list[tuple[str, str]]
-NAME_HINT = "1-32 letters, digits, '_', '-', '.'"
 GROUP_KEYS = ("name", "members", "switch_margin_counts")
 SLIDER_KEYS = ("name", "pads", "wheel", "resolution")
 
@@ -89,11 +87,10 @@ def default_names(channels: int) -> tuple[str, ...]:
 
 def profile_for(channels: int, names: tuple[str, ...] = (), board: str = "", polarity: tuple[int, ...] = (),
                 rate_hz: float | None = None) -> Profile:
-    """A default profile for a board (names that are not valid profile names fall back to chN)."""
-    ok = len(names) == channels and len(set(names)) == channels and all(NAME_RE.match(n) for n in names)
+    """A default profile for a board. Names are taken per channel (`processing.names.channel_names`): an
+    invalid or repeated one falls back to chN for that channel alone."""
     pol = polarity if len(polarity) == channels else ()
-    return Profile(names=tuple(names) if ok else default_names(channels), board=board, polarity=pol,
-                   rate_hz=rate_hz)
+    return Profile(names=channel_names(names, channels)[0], board=board, polarity=pol, rate_hz=rate_hz)
 
 
 def profile_from_board(info: Any) -> Profile:
@@ -151,8 +148,9 @@ def _names(raw: dict[str, Any], out: Problems) -> tuple[str, ...] | None:
         out.append(("names", f"lists {len(names)} names but channels = {channels}"))
         return None
     for n in names:
-        if not NAME_RE.match(n):
-            out.append(("names", f"'{n}' is not a valid name ({NAME_HINT})"))
+        why = name_problem(n)
+        if why is not None:
+            out.append(("names", f"'{n}' is not a valid name ({why}; {NAME_HINT})"))
     dupes = sorted({n for n in names if names.count(n) > 1})
     if dupes:
         out.append(("names", f"duplicate names: {', '.join(dupes)}"))

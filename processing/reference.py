@@ -146,6 +146,14 @@ class PlainEngine:
         self.settings[channel] = s
         self.chans[channel].clean = False  # a changed period must not use a half-counted one
 
+    def set_polarity(self, channel: int, polarity: int) -> None:
+        """Turn a channel's direction around (or confirm it): it re-baselines on its next frame."""
+        if polarity not in (1, -1):
+            raise ValueError(f"polarity must be +1 or -1, not {polarity!r}")
+        self.polarity[channel] = polarity
+        self.chans[channel].clean = False
+        self.chans[channel].pending = True
+
     @property
     def readings(self) -> list[int]:
         return [ch.reading for ch in self.chans]

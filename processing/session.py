@@ -1,34 +1,65 @@
 """The glue every front end uses: protocol events in, detection events and measures out.
 
 `Session.handle(events)` feeds FrameBlocks to the engine, takes names, polarity and frame rate from
-BoardInfo, re-baselines on a new session (an info line carrying `proto`) or a board reset, rebuilds for
-a new width on BoardChanged, runs groups and sliders, and keeps the measures. Live edits go through
-`set_channel_settings`; `profile` always reflects them, ready to save.
+BoardInfo (names also from a plain form's StreamForm), re-baselines on a new session (an info line
+carrying `proto`) or a board reset, rebuilds for a new width on BoardChanged, runs groups and sliders,
+and keeps the measures. Live edits go through `set_channel_settings` and `set_polarity`; `profile`
+always reflects them, ready to save.
+
+Before a channel detects it may have to go through its first contact (`processing.startup`): without
+a profile its threshold and hysteresis are provisional, from its noise over its first quiet second;
+without a stated direction (info line, profile, `--polarity`) it learns it from its first touch. Until
+then it reports no touch. ALGORITHM.md, "Provisional settings" and "Polarity learned from the first
+touch".
 """
 
 from __future__ import annotations
 
 from collections import deque
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, replace
 
+import numpy as np
+
+from processing.boardtime import BoardClock
+from processing.contact import EDITED, FirstContact
 from processing.detections import DetectionEvent, KeyState, Rebaselined, StuckRelease
 from processing.engine import Engine
 from processing.fixed import to_counts
 from processing.groups import ExclusiveGroup
 from processing.measure import SETTLE_S, ChannelQuality, Measures, VerdictBounds
-from processing.profile import NAME_RE, Profile, profile_for
+from processing.names import NameProblem, channel_names
+from processing.profile import Profile, default_names, profile_for
+from processing.provisional import QUIET_MIN_FRAMES, QUIET_S
 from processing.reference import PlainEngine
 from processing.settings import ChannelSettings
 from processing.slider import Slider
-from protocol.events import BoardChanged, BoardInfo, Event, FaultKind, FrameBlock, LinkFault
+from processing.startup import (
+    READY,
+    Measured,
+    Startup,
+    Transition,
+    settings_for_engine,
+)
+from protocol.events import (
+    BoardChanged,
+    BoardInfo,
+    Event,
+    FaultKind,
+    FrameBlock,
+    LinkFault,
+    StreamForm,
+)
 
 DEFAULT_RATE_HZ = 100.0  # assumed until the board states its rate or enough frames have arrived to tell
 
 
+
 @dataclass(frozen=True, slots=True)
 class ChannelRow:
-    """One channel as a front end shows it: latest values, settings and quality."""
+    """One channel as a front end shows it: latest values, settings and quality, and its first contact:
+    `polarity` (+1, -1, None while unknown), `provisional` (settings from its noise, not tuned) and
+    `phase` ("measuring" its quiet second, "learning" its direction, or "ready")."""
 
     channel: int
     name: str
@@ -38,6 +69,9 @@ class ChannelRow:
     state: KeyState
     settings: ChannelSettings
     quality: ChannelQuality
+    polarity: int | None = 1
+    provisional: bool = False
+    phase: str = READY
 
 
 _INFO_KEYS = ("proto", "board", "channels", "rate_hz", "names", "method", "polarity", "fw")
@@ -51,24 +85,45 @@ def _merged_info(session: BoardInfo | None, line: BoardInfo) -> BoardInfo:
     return replace(session, t_s=line.t_s, fields={**session.fields, **line.fields}, **given)
 
 
-class Session:
-    """Owns one board's engine, measures, groups and sliders. Not thread-safe: call from one thread."""
+def _slice(block: FrameBlock, a: int, b: int) -> FrameBlock:
+    if a == 0 and b == len(block):
+        return block
+    bt = block.board_time[a:b] if block.board_time is not None else None
+    return FrameBlock(block.t_s[a:b], block.seq[a:b], block.readings[a:b], block.first_index + a, bt)
+
+
+class Session(FirstContact):
+    """Owns one board's engine, measures, groups and sliders. Not thread-safe: call from one thread.
+
+    `polarity` is the command line's `--polarity` (one sign for all channels or one per channel)."""
 
     def __init__(self, profile: Profile | None = None, *, window_s: float = 2.0, history_frames: int = 8192,
                  bounds: VerdictBounds | None = None, plain: bool = False,
-                 settle_s: float = SETTLE_S) -> None:
+                 settle_s: float = SETTLE_S, polarity: Sequence[int] = ()) -> None:
         self.requested_profile = profile
         self.window_s, self.history_frames, self.bounds, self.plain = window_s, history_frames, bounds, plain
         self.settle_s = settle_s  # the noise window's guard around touch activity (processing.measure)
+        self.forced_polarity = tuple(int(p) for p in polarity)
         self.info: BoardInfo | None = None
+        self.form: StreamForm | None = None
         self.engine: Engine | PlainEngine | None = None
         self.measures: Measures | None = None
+        self.startup: Startup | None = None
         self.groups: list[ExclusiveGroup] = []
         self.sliders: list[Slider] = []
-        self.notices: deque[str] = deque(maxlen=50)  # things the user should know (mismatched profile, ...)
+        self.notices: deque[str] = deque(maxlen=200)  # things the user should know (mismatched profile, ...)
+        self.polarity: list[int | None] = []  # per channel; None while it is being learned
+        self.polarity_source: list[str | None] = []
         self._profile: Profile | None = profile
         self._edited: dict[int, Profile] = {}  # by width: the profile with live edits, kept across rebuilds
+        self._provisional: dict[int, dict[int, ChannelSettings]] = {}  # by width: measured provisional ones
+        self._user_set: dict[int, set[int]] = {}  # by width: channels whose settings the user chose
+        self._known_polarity: dict[int, dict[int, tuple[int, str]]] = {}  # by width: edited or learned
         self._rate_declared = False
+        self._rate_from_info = False
+        self._clock = BoardClock()
+        self._said: set[object] = set()  # notices given once per session
+        self._measured: list[Measured] = []  # provisional settings taken in this handle() call
 
     # ------------------------------------------------------------ state for front ends
     @property
@@ -93,6 +148,13 @@ class Session:
             raise IndexError("no board yet")
         return self._profile.settings_for(channel)
 
+    def provisional(self, channel: int) -> bool:
+        """True while the channel's settings come (or will come) from its noise, not from a person."""
+        return self.requested_profile is None and channel not in self._user_set.get(self.channels, set())
+
+    def phase(self, channel: int) -> str:
+        return self.startup.phase[channel] if self.startup is not None else READY
+
     def rows(self) -> list[ChannelRow]:
         if self.engine is None or self.measures is None or self._profile is None:
             return []
@@ -100,29 +162,80 @@ class Session:
         readings, baselines, deltas, states = e.readings, e.baselines_fp, e.deltas, e.states
         quality = m.qualities()
         return [ChannelRow(c, p.names[c], readings[c], to_counts(baselines[c]), deltas[c], states[c],
-                           p.settings_for(c), quality[c]) for c in range(e.channels)]
+                           p.settings_for(c), quality[c], self.polarity[c], self.provisional(c),
+                           self.phase(c)) for c in range(e.channels)]
 
     # ------------------------------------------------------------ commands
     def set_channel_settings(self, channel: int, settings: ChannelSettings) -> None:
-        """Apply new settings to one channel now (ValueError names the problem; nothing changes then)."""
-        if self.engine is None or self._profile is None:
-            raise ValueError("no board yet: settings can be changed once frames arrive")
-        if not 0 <= channel < self.engine.channels:
-            raise ValueError(f"no channel {channel}: the board has {self.engine.channels}")
-        self.engine.set_settings(channel, settings)
+        """Apply new settings to one channel now (ValueError names the problem; nothing changes then).
+
+        The channel stops being provisional, unless these are exactly its measured provisional
+        settings again (an undo back to them)."""
+        self._check_channel(channel)
+        assert self.engine is not None and self._profile is not None
+        settings.check()
+        width = self.engine.channels
+        chosen = self._user_set.setdefault(width, set())
+        if self._provisional.get(width, {}).get(channel) == settings and self.requested_profile is None:
+            chosen.discard(channel)
+        else:
+            chosen.add(channel)
+        if self.startup is not None and self.startup.settings_given(channel):
+            self.engine.rebaseline(channel)
+        self.engine.set_settings(channel, settings_for_engine(settings, self.phase(channel) == READY))
         self._profile = self._profile.with_settings(channel, settings)
-        self._edited[self._profile.channels] = self._profile
+        self._edited[width] = self._profile
+
+    def set_polarity(self, channel: int, sign: int | None) -> None:
+        """Set a channel's direction now (+1 counts rise on touch, -1 fall; None: learn it again from
+        the next touch). It re-baselines. ValueError names the problem."""
+        self._check_channel(channel)
+        assert self.engine is not None
+        if sign is None:
+            self._forget_polarity(channel)
+            return
+        if sign not in (1, -1):
+            raise ValueError(f"polarity must be + or -, not {sign!r}")
+        self._apply_polarity(channel, sign, EDITED)
+        assert self._profile is not None
+        self._edited[self.engine.channels] = self._profile
 
     def apply_profile(self, profile: Profile) -> None:
         """Use a (newly loaded) profile: rebuilds now when the width is known, else on the first frames."""
         self.requested_profile = self._profile = profile
         self._edited.clear()
+        self._provisional.clear()
+        self._user_set.clear()
+        for known in self._known_polarity.values():  # a profile's polarity beats this session's edits
+            for c in [c for c, (_, source) in known.items() if source == EDITED]:
+                del known[c]
         if self.engine is not None:
             self._build(self.engine.channels)
 
     def rebaseline(self, channel: int | None = None) -> None:
         if self.engine is not None:
             self.engine.rebaseline(channel)
+
+    def automatic(self, saved: Profile) -> Profile:
+        """`saved` with what this session did by itself applied: the board's names, rate and polarity,
+        learned polarities and the provisional settings of channels still provisional. Front ends
+        compare the current profile with this to tell the user's unsaved edits from the automatic."""
+        p = self._profile
+        if p is None or saved.channels != p.channels:
+            return saved
+        out = replace(saved, names=p.names, board=p.board, rate_hz=p.rate_hz)
+        if EDITED not in self.polarity_source:
+            out = replace(out, polarity=p.polarity)
+        for c, s in self._provisional.get(p.channels, {}).items():
+            if self.provisional(c):
+                out = out.with_settings(c, s)
+        return out
+
+    def _check_channel(self, channel: int) -> None:
+        if self.engine is None or self._profile is None:
+            raise ValueError("no board yet: settings can be changed once frames arrive")
+        if not 0 <= channel < self.engine.channels:
+            raise ValueError(f"no channel {channel}: the board has {self.engine.channels}")
 
     # ------------------------------------------------------------ events
     def handle(self, events: Iterable[Event]) -> list[DetectionEvent]:
@@ -132,12 +245,15 @@ class Session:
                 out.extend(self._frames(ev))
             elif isinstance(ev, BoardInfo):
                 self._info(ev)
+            elif isinstance(ev, StreamForm):
+                self._form(ev)
             elif isinstance(ev, LinkFault) and ev.kind == FaultKind.RESET:
                 self.notices.append("board reset: baselines taken again")
                 self.rebaseline()
             elif isinstance(ev, BoardChanged):
                 self.notices.append(f"board now has {ev.channels} channels (was {ev.old_channels})")
                 self._build(ev.channels)
+        self._tell_provisional()
         return out
 
     def _frames(self, block: FrameBlock) -> list[DetectionEvent]:
@@ -148,6 +264,33 @@ class Session:
                 self.notices.append(f"frames now have {block.channels} channels (was {self.engine.channels})")
             self._build(block.channels)
         assert self.engine is not None and self.measures is not None
+        if block.board_time is not None:
+            self._board_time(block)
+        steps: list[Transition] = []
+        if self.startup is not None and self.startup.busy:
+            steps = self.startup.advance(block.readings, block.t_s)
+        found: list[DetectionEvent] = []
+        parts: list[tuple[np.ndarray, np.ndarray]] = []
+        start = i = 0
+        while i < len(steps):  # run the engine up to each transition's frame, apply it, go on
+            stop = steps[i].row + 1
+            found.extend(self._run(_slice(block, start, stop)))
+            parts.append((self.engine.last_deltas, self.engine.last_states))
+            while i < len(steps) and steps[i].row + 1 == stop:
+                self._transition(steps[i])
+                i += 1
+            start = stop
+        if start < len(block):
+            found.extend(self._run(_slice(block, start, len(block))))
+            parts.append((self.engine.last_deltas, self.engine.last_states))
+        if len(parts) > 1:  # the engine's last_* cover the whole block, as when it ran it in one go
+            self.engine.last_deltas = np.concatenate([d for d, _ in parts])
+            self.engine.last_states = np.concatenate([st for _, st in parts])
+        self._estimate_rate()
+        return found
+
+    def _run(self, block: FrameBlock) -> list[DetectionEvent]:
+        assert self.engine is not None and self.measures is not None
         found: list[DetectionEvent] = list(self.engine.process(block))
         deltas, states = self.engine.last_deltas, self.engine.last_states
         self.measures.ingest(block.t_s, block.readings, deltas, states,
@@ -156,7 +299,6 @@ class Session:
             found.extend(tracker.update(block.first_index, block.t_s, deltas, states))
         if len(self.groups) + len(self.sliders):
             found.sort(key=lambda e: e.index)
-        self._estimate_rate()
         return found
 
     @staticmethod
@@ -171,34 +313,83 @@ class Session:
                 rows[ev.channel] = ev.index - first_index + 1
         return rows
 
+    # ------------------------------------------------------------ board info, names, rate
     def _info(self, line: BoardInfo) -> None:
         """A line with `proto` starts a new session; one without updates the session's info key by key."""
         old = self.info
         self.info = info = _merged_info(old, line)
         width = info.channels or (len(info.names) or None)
-        rebuild = self.engine is None or self.engine.channels != width or self._polarity_changed(old, info)
-        if width and rebuild:
+        if width and (self.engine is None or self.engine.channels != width):
             self._build(width)
             return
-        self._rename(info)
+        self._rename()
         if info.rate_hz and self.measures is not None:
-            self.measures.rate_hz, self._rate_declared = float(info.rate_hz), True
+            self.measures.rate_hz, self._rate_declared, self._rate_from_info = float(info.rate_hz), True, True
+            if self.startup is not None:
+                self.startup.rate_hz = float(info.rate_hz)
+        if info.polarity and self.engine is not None and (old is None or old.polarity != info.polarity):
+            self._board_polarity(info)
         if line.new_session and self.engine is not None:
             self.notices.append("new session: baselines taken again")
             self.engine.rebaseline()
 
-    def _rename(self, info: BoardInfo) -> None:
-        """Take the board's channel names when they are usable (display only: groups keep indices)."""
-        names = tuple(info.names)
+    def _form(self, form: StreamForm) -> None:
+        """A plain form's names become channel names (an info line's win)."""
+        self.form = form
+        if self.engine is not None and len(form.names) == self.engine.channels:
+            self._rename()
+
+    def _board_names(self, channels: int) -> tuple[str, ...]:
+        """The names the board gives for `channels` channels: its info line's, else its plain form's."""
+        if self.info is not None and len(self.info.names) == channels:
+            return tuple(self.info.names)
+        if self.form is not None and len(self.form.names) == channels:
+            return tuple(self.form.names)
+        return ()
+
+    def _names(self, channels: int, fallback: Sequence[str]) -> tuple[str, ...]:
+        """Names per channel: the board's where valid and unique, else `fallback` (or chN); each problem
+        is told once."""
+        given = self._board_names(channels)
+        if not given:
+            return tuple(fallback) if len(fallback) == channels else default_names(channels)
+        names, problems = channel_names(given, channels, fallback)
+        self._tell_names(problems)
+        return names
+
+    def _tell_names(self, problems: list[NameProblem]) -> None:
+        for problem in problems:
+            key = ("name", problem.channel, problem.given, problem.reason)
+            if key not in self._said:
+                self._said.add(key)
+                self.notices.append(problem.describe())
+
+    def _rename(self) -> None:
+        """Take the board's channel names, each where usable (display only: groups keep indices)."""
         p = self._profile
-        if p is None or len(names) != p.channels or names == p.names or len(set(names)) != len(names):
+        if p is None or self.engine is None or not self._board_names(p.channels):
             return
-        if all(NAME_RE.match(n) for n in names):
+        names = self._names(p.channels, p.names)
+        if names != p.names:
             self._profile = replace(p, names=names)
 
-    @staticmethod
-    def _polarity_changed(old: BoardInfo | None, new: BoardInfo) -> bool:
-        return bool(new.polarity) and (old is None or tuple(old.polarity) != tuple(new.polarity))
+    def _board_time(self, block: FrameBlock) -> None:
+        """The frame rate from the board's own time column, unless its info line states one."""
+        assert block.board_time is not None and self.measures is not None
+        if self._rate_from_info or not self._clock.observe(block.board_time, block.t_s):
+            return
+        if self._clock.rate_hz is not None:
+            self.measures.rate_hz, self._rate_declared = self._clock.rate_hz, True
+            if self.startup is not None:
+                self.startup.rate_hz = self._clock.rate_hz
+            self.notices.append(f"frame rate {self._clock.rate_hz:.4g} Hz, from the board's time column "
+                                f"(ticks of 1 {self._clock.unit})")
+        else:
+            self.notices.append(f"the board's time column does not give the frame rate "
+                                f"({self._clock.refused}): measuring it from arrival times")
+
+    def _declared_rate(self) -> float | None:
+        return self.measures.rate_hz if self.measures is not None and self._rate_declared else None
 
     def _estimate_rate(self) -> None:
         """Without a declared rate, measure it from host times once a few seconds of frames are in."""
@@ -211,51 +402,55 @@ class Session:
             if span >= 2.0:
                 self.measures.rate_hz, self._rate_declared = (len(t_s) - 1) / span, True
 
+    # ------------------------------------------------------------ building
     def _build(self, channels: int) -> None:
         """A fresh engine (baselines from the next frame) and measures for `channels` channels."""
         info, wanted = self.info, self._edited.get(channels, self.requested_profile)
-        names = tuple(info.names) if info and len(info.names) == channels else ()
+        fallback = wanted.names if wanted is not None and wanted.channels == channels else \
+            self._profile.names if self._profile is not None and self._profile.channels == channels else ()
+        names = self._names(channels, fallback)
         board = (info.board if info else None) or (wanted.board if wanted else "")
         rate = (info.rate_hz if info else None) or (wanted.rate_hz if wanted else None)
         if wanted is not None and wanted.board and info is not None and info.board \
                 and info.board != wanted.board:
             self.notices.append(f"profile is for board '{wanted.board}', this board says '{info.board}'")
         if wanted is not None and wanted.channels == channels:
-            profile = wanted
-            if names and names != wanted.names and all(NAME_RE.match(n) for n in names) \
-                    and len(set(names)) == channels:
-                profile = replace(wanted, names=names)
+            profile = replace(wanted, names=names)
         else:
-            profile = profile_for(channels, names or (self._profile.names if self._profile
-                                                      and self._profile.channels == channels else ()), board)
+            profile = profile_for(channels, names, board)
             if wanted is None and self._profile is None:
-                # Untuned defaults rarely fit a real overlay: a key that never reaches the default
-                # threshold looks like a dead board unless the user is told why.
-                d = profile.defaults
-                self.notices.append(f"no profile given: every channel starts at the default settings "
-                                    f"(threshold {d.threshold_counts} counts, hysteresis "
-                                    f"{d.hysteresis_counts}); measure the keys and save a profile")
+                # Untuned defaults rarely fit a real overlay (a key that never reaches the default
+                # threshold looks like a dead board): each channel's own noise sets provisional ones.
+                self.notices.append(
+                    "no profile given: each channel's threshold and hysteresis are provisional, set "
+                    f"from its own noise over its first {QUIET_S:g} s of quiet frames (at least "
+                    f"{QUIET_MIN_FRAMES}); keep hands off the keys until then, no touch is reported before. "
+                    "Tune them and save a profile")
             if wanted is not None:
                 self.notices.append(f"profile is for {wanted.channels} channels, the board has {channels}: "
                                     "using the profile's defaults for every channel")
                 profile = replace(profile, defaults=wanted.defaults, limits=wanted.limits)
-        polarity = self._polarity(channels, info, profile)
         profile = replace(profile, rate_hz=rate, board=board or profile.board)
+        self.polarity, self.polarity_source = self._resolve_polarity(channels, info, profile)
+        self._profile = profile
+        self._sync_polarity()
+        profile = self._profile
+        measured = self._provisional.get(channels, {})
+        need_noise = [self.provisional(c) and c not in measured for c in range(channels)]
+        need_polarity = [p is None for p in self.polarity]
+        self.startup = Startup(channels, need_noise, need_polarity, rate) \
+            if any(need_noise) or any(need_polarity) else None
+        self._tell_learning(profile.names)
+        ready = [self.startup is None or self.startup.phase[c] == READY for c in range(channels)]
         cls = PlainEngine if self.plain else Engine
-        self.engine = cls(channels, profile.all_settings(), polarity)
+        self.engine = cls(channels, [settings_for_engine(profile.settings_for(c), ready[c])
+                                     for c in range(channels)], [p or 1 for p in self.polarity])
         self.measures = Measures(channels, rate or DEFAULT_RATE_HZ, self.window_s, self.history_frames,
                                  bounds=self.bounds, settle_s=self.settle_s)
-        self._rate_declared = rate is not None
+        self._rate_declared = self._rate_from_info = rate is not None
+        if self.startup is not None and not self._rate_declared and self._clock.rate_hz is not None:
+            self.measures.rate_hz, self._rate_declared = self._clock.rate_hz, True
+            self.startup.rate_hz = self._clock.rate_hz
         self.groups = [ExclusiveGroup(g) for g in profile.groups]
         self.sliders = [Slider(s) for s in profile.sliders]
-        self._profile = profile
 
-    @staticmethod
-    def _polarity(channels: int, info: BoardInfo | None, profile: Profile) -> list[int]:
-        if info and info.polarity:
-            pol = list(info.polarity) * channels if len(info.polarity) == 1 else list(info.polarity)
-            if len(pol) == channels:
-                return pol
-        if len(profile.polarity) == channels:
-            return list(profile.polarity)
-        return [1] * channels

@@ -29,7 +29,7 @@ from tui.app_files import FileActions
 from tui.bindings import _COVERED_OFF, _PRESS_THROUGH, BINDINGS, help_rows
 from tui.describe import describe_detection, describe_event
 from tui.edits import EditHistory
-from tui.fields import FIELDS
+from tui.fields import EDIT_FIELDS
 from tui.headless.notices import NoticeGate
 from tui.render.help import key_display
 from tui.render.settings import edit_bar
@@ -197,10 +197,18 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
         styles = self._main(ChannelTable).styles_map()
         width = bar.size.width or max(20, self.size.width - 2)  # before its first layout: the screen's
         position = f"{ch + 1}/{len(names)}" if len(names) > 1 else ""
-        key = (names[ch], self.source.settings(ch), self.field_key, width, position)
+        polarity, status = self.source.polarity(ch), self._status_word(ch)
+        key = (names[ch], self.source.settings(ch), self.field_key, width, position, polarity, status)
         if key != self._edit_bar_key:  # an unchanged bar costs no layout pass
             self._edit_bar_key = key
-            bar.update(edit_bar(names[ch], key[1], self.field_key, styles, width, position))
+            bar.update(edit_bar(names[ch], key[1], self.field_key, styles, width, position, polarity, status))
+
+    def _status_word(self, channel: int) -> str:
+        """What the edit bar says after the name when the settings are not tuned (yet)."""
+        provisional, phase = self.source.first_contact(channel)
+        if phase == "measuring" and provisional:
+            return "measuring noise"
+        return "provisional" if provisional else ""
 
     def _draw_detail(self) -> None:
         names = self.source.channel_names()
@@ -210,7 +218,8 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
         spectrum = self._spectrum_for(ch) if self.spectrum else None
         self._main(DetailPanel).show(
             names[ch], self.source.series(ch), spectrum, self.source.settings(ch), self.field_key,
-            list(self.recent.get(ch, ())), self.source.rate_hz,
+            list(self.recent.get(ch, ())), self.source.rate_hz, self.source.polarity(ch),
+            self._status_word(ch),
         )
 
     def _spectrum_for(self, ch: int) -> Spectrum | None:
@@ -249,10 +258,10 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
 
     @property
     def field_key(self) -> str:
-        return FIELDS[self.field_index].key
+        return EDIT_FIELDS[self.field_index].key
 
     def validate_field_index(self, value: int) -> int:
-        return value % len(FIELDS)
+        return value % len(EDIT_FIELDS)
 
     def watch_field_index(self) -> None:
         self._redraw_soon()

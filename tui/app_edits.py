@@ -11,8 +11,19 @@ from __future__ import annotations
 from collections.abc import Callable, Iterable
 from typing import TYPE_CHECKING
 
+from processing.settings import ChannelSettings
 from tui.edits import Change, Edit, EditHistory
-from tui.fields import FIELDS, parse_value, stepped, with_value
+from tui.fields import (
+    POLARITY_KEY,
+    PolarityChoice,
+    field,
+    parse_polarity,
+    parse_value,
+    polarity_meaning,
+    polarity_word,
+    stepped,
+    with_value,
+)
 from tui.screens.prompt import PromptScreen
 
 if TYPE_CHECKING:
@@ -40,14 +51,23 @@ class EditActions:
         def _redraw_soon(self) -> None: ...
         def refresh_now_if_idle(self) -> None: ...
 
+    def _apply_value(self, channel: int, value: object) -> None:
+        """Apply one side of a change: new settings, or a channel's polarity (ValueError if refused)."""
+        if isinstance(value, PolarityChoice):
+            self.source.set_polarity(channel, value.sign)
+        elif isinstance(value, ChannelSettings):
+            self.source.apply(channel, value)
+        else:
+            raise TypeError(f"not an edit of a channel: {value!r}")
+
     def _apply_changes(self, description: str, changes: list[Change]) -> None:
         done: list[Change] = []
         for change in changes:
             try:
-                self.source.apply(change.channel, change.after)  # type: ignore[arg-type]
+                self._apply_value(change.channel, change.after)
             except ValueError as exc:
                 for undo in reversed(done):
-                    self.source.apply(undo.channel, undo.before)  # type: ignore[arg-type]
+                    self._apply_value(undo.channel, undo.before)
                 self.notify(f"Refused: {exc}", severity="warning")
                 return
             done.append(change)
@@ -64,18 +84,36 @@ class EditActions:
             self.bell()
             self.notify(f"Refused: {reason}. It stays {getattr(old, key)}.", severity="warning")
             return
-        label = FIELDS[self.field_index].label
+        label = field(key).label
         name = self.source.channel_names()[ch]
         self._apply_changes(f"{name}: {label} {getattr(old, key)} → {value}", [Change(ch, old, new)])
 
+    def _set_polarity(self, sign: int | None) -> None:
+        """The polarity field: + counts rise on touch, - they fall, None learns it from the next touch."""
+        ch = self.cursor
+        old = self.source.polarity(ch)
+        name = self.source.channel_names()[ch]
+        if old == sign:
+            self.notify(f"{name}: polarity is {polarity_word(sign)} already ({polarity_meaning(sign)}).")
+            return
+        self._apply_changes(f"{name}: polarity {polarity_word(old)} → {polarity_word(sign)}",
+                            [Change(ch, PolarityChoice(old), PolarityChoice(sign))])
+
     def action_step(self, steps: int, coarse: bool) -> None:
-        if self._has_channels():
-            self._set_value(stepped(self.source.settings(self.cursor), self.field_key, steps, coarse))
+        if not self._has_channels():
+            return
+        if self.field_key == POLARITY_KEY:  # + and ] make it +, - and [ make it -
+            self._set_polarity(1 if steps > 0 else -1)
+            return
+        self._set_value(stepped(self.source.settings(self.cursor), self.field_key, steps, coarse))
 
     def action_type_value(self) -> None:
         if not self._has_channels():
             return
-        ch, key, f = self.cursor, self.field_key, FIELDS[self.field_index]
+        if self.field_key == POLARITY_KEY:
+            self._type_polarity()
+            return
+        ch, key, f = self.cursor, self.field_key, field(self.field_key)
         current = self.source.settings(ch)
 
         def check(text: str) -> str | None:
@@ -91,6 +129,25 @@ class EditActions:
         name = self.source.channel_names()[ch]
         unit = "a shift n: the baseline moves 1/2ⁿ of the way a step" if f.unit == "shift" else f.unit
         self.push_screen(PromptScreen(f"{name}: new {f.label} ({unit})", str(getattr(current, key)), check),
+                         done)
+
+    def _type_polarity(self) -> None:
+        ch = self.cursor
+
+        def check(text: str) -> str | None:
+            try:
+                parse_polarity(text)
+            except ValueError as exc:
+                return str(exc)
+            return None
+
+        def done(text: str | None) -> None:
+            if text is not None:
+                self._set_polarity(parse_polarity(text))
+
+        name = self.source.channel_names()[ch]
+        self.push_screen(PromptScreen(f"{name}: polarity (+ counts rise on touch, - they fall, ? learn it "
+                                      "from the next touch)", polarity_word(self.source.polarity(ch)), check),
                          done)
 
     def _copy_to(self, targets: Iterable[int], what: str) -> None:
@@ -122,7 +179,7 @@ class EditActions:
             return
         try:
             for change in edit.changes:
-                self.source.apply(change.channel, change.after)  # type: ignore[arg-type]
+                self._apply_value(change.channel, change.after)
         except ValueError as exc:  # the channels changed under the edit (no board, another width)
             self.history.clear()
             self.notify(f"Cannot {verb}: {exc}. The edit history was cleared.", severity="warning")

@@ -84,5 +84,14 @@ def help_rows(bindings: Iterable[Binding] = BINDINGS) -> list[tuple[str, str, st
             continue
         section = SECTIONS.get((b.id or "app").split(".")[0], "App")
         rows.append((section, b.key, b.tooltip or b.description))
+        if b.id == "edit.down":  # the same keys on the edit bar's last field
+            rows.append((section, "plus,minus", "On the polarity field (the edit bar's last: ← from "
+                         "threshold): + when counts rise on touch, - when they fall; Enter, then ?, to learn "
+                         "it again from the next touch"))
+        if b.id == "chan.rebase_all":  # what the table shows before a key is tuned
+            rows.append((section, "≈", "In the table: provisional threshold and hysteresis, from the key's "
+                         "own noise (edit it, run the guided capture w, or load a profile). The state "
+                         "reads '~ noise' while its quiet second is measured (hands off), '? learn' until "
+                         "a first touch shows which way its counts move"))
     rows.append((SECTIONS["app"], "ctrl+p", "Command palette: every action by name"))
     return rows

@@ -19,6 +19,7 @@ from typing import NoReturn
 import devices
 from tui import commands
 from tui.errors import UserError
+from tui.polarity_arg import glue_polarity
 
 
 class OneLineParser(argparse.ArgumentParser):
@@ -45,7 +46,7 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     devices.register_url_handlers()
     parser = build_parser()
-    args = parser.parse_args(argv)
+    args = parser.parse_args(glue_polarity(sys.argv[1:] if argv is None else argv))
     func = getattr(args, "func", None)
     if func is None:
         # `padtune` alone opens the port picker when the TUI provides one, else shows the help.

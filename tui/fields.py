@@ -1,7 +1,9 @@
 """The editable settings of a channel: their labels, units and step sizes; pure.
 
 Stepping and typed values go through `ChannelSettings.problems()`, so the screen refuses exactly what
-the engine and the profile loader would refuse, with the same reason.
+the engine and the profile loader would refuse, with the same reason. The channel's polarity is one
+more field of the edit bar (`EDIT_FIELDS`), though not a `ChannelSettings` value: its edits carry a
+`PolarityChoice` through the same undo history.
 """
 
 from __future__ import annotations
@@ -36,10 +38,43 @@ FIELDS: tuple[Field, ...] = (
     Field("stuck_timeout_frames", "stuck timeout", "stuck after", "frames", 100, 1000),
 )
 _BY_KEY = {f.key: f for f in FIELDS}
+POLARITY_KEY = "polarity"
+POLARITY_FIELD = Field(POLARITY_KEY, "polarity", "polarity", "", 1, 1)
+EDIT_FIELDS: tuple[Field, ...] = (*FIELDS, POLARITY_FIELD)  # the edit bar's fields, left to right
+
+
+@dataclass(frozen=True, slots=True)
+class PolarityChoice:
+    """A channel's direction as an edit holds it: +1 counts rise on touch, -1 they fall, None learn it."""
+
+    sign: int | None
+
+
+def polarity_word(sign: int | None) -> str:
+    return "?" if sign is None else "+" if sign > 0 else "-"
+
+
+def polarity_meaning(sign: int | None) -> str:
+    if sign is None:
+        return "learning: touch the key once"
+    return "counts rise on touch" if sign > 0 else "counts fall on touch"
+
+
+def parse_polarity(text: str) -> int | None:
+    """`+` or `-` (or rise / fall), `?` to learn it again; ValueError with a one-line reason."""
+    word = text.strip().lower()
+    if word in ("+", "rise", "up"):
+        return 1
+    if word in ("-", "fall", "down"):
+        return -1
+    if word in ("?", "learn"):
+        return None
+    raise ValueError(f"polarity must be + (counts rise on touch), - (they fall) or ? (learn it from the "
+                     f"next touch), not {text.strip()!r}")
 
 
 def field(key: str) -> Field:
-    return _BY_KEY[key]
+    return POLARITY_FIELD if key == POLARITY_KEY else _BY_KEY[key]
 
 
 def refusal(settings: ChannelSettings) -> str | None:

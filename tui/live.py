@@ -16,9 +16,12 @@ from protocol.errors import UserError
 
 
 def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = False,
-             start_profile: Profile | None = None, notices: Sequence[str] = ()) -> int:
+             start_profile: Profile | None = None, notices: Sequence[str] = (),
+             polarity: tuple[int, ...] = ()) -> int:
     """Open `target`, run the screen until the user quits; `start_profile` is used when no file is given.
-    `notices` are lines for the screen's log (stderr belongs to the screen while it runs)."""
+    `notices` are lines for the screen's log (stderr belongs to the screen while it runs); `polarity` is
+    `--polarity` (empty: the board's, the profile's, or learned)."""
+    from processing.session import Session
     from protocol.link import Link
     from tui.app import PadtuneApp
     from tui.session_source import SessionSource
@@ -28,7 +31,8 @@ def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = Fal
     link.start()  # UserError (one line) when the port cannot be opened
     try:
         source = SessionSource(link, profile=profile, profile_path=profile_path, port=target, baud=baud,
-                               simulated=demo or target.startswith("sim://"))
+                               simulated=demo or target.startswith("sim://"),
+                               session=Session(profile, polarity=polarity))
         source.notices.extend(notices)
         app = PadtuneApp(source, demo=demo)
         app.run()

@@ -175,8 +175,9 @@ class SessionSource:
             return []
         readings, baselines, deltas, states = e.readings, e.baselines_fp, e.deltas, e.states
         sparks = self._sparks(spark_points)
-        saved = self._saved
+        saved = self.session.automatic(self._saved) if self._saved is not None else None
         group_of = {m: g.name for g in p.groups for m in g.members}
+        s = self.session
         out = []
         for c in range(e.channels):
             st = p.settings_for(c)
@@ -191,6 +192,8 @@ class SessionSource:
                 spark=tuple(sparks[c].tolist()) if sparks is not None else (),
                 group=group_of.get(c),
                 edited=saved is not None and saved.channels == p.channels and saved.settings_for(c) != st,
+                polarity=s.polarity[c] if c < len(s.polarity) else 1, provisional=s.provisional(c),
+                phase=s.phase(c),
             ))
         return out
 
@@ -269,6 +272,19 @@ class SessionSource:
     def apply(self, channel: int, settings: ChannelSettings) -> None:
         self.session.set_channel_settings(channel, settings)
 
+    def polarity(self, channel: int) -> int | None:
+        """+1 (counts rise on touch), -1 (fall), or None while the channel learns it."""
+        pol = self.session.polarity
+        return pol[channel] if 0 <= channel < len(pol) else None
+
+    def set_polarity(self, channel: int, sign: int | None) -> None:
+        """Set a channel's direction (None: learn it again from its next touch); ValueError if refused."""
+        self.session.set_polarity(channel, sign)
+
+    def first_contact(self, channel: int) -> tuple[bool, str]:
+        """(provisional, phase) of a channel: see `processing.session.ChannelRow`."""
+        return self.session.provisional(channel), self.session.phase(channel)
+
     def group_of(self, channel: int) -> Sequence[int]:
         p = self.session.profile
         for g in p.groups if p else ():
@@ -300,8 +316,11 @@ class SessionSource:
         return self._path
 
     def unsaved(self) -> bool:
+        """Edits the user made since the profile was loaded or saved; what the session did by itself
+        (the board's names and polarity, provisional settings, a learned polarity) does not count."""
         current = self.session.profile
-        return current is not None and self._saved is not None and current != self._saved
+        return current is not None and self._saved is not None and \
+            current != self.session.automatic(self._saved)
 
     def save(self, path: Path | None = None) -> Path:
         target = path or self._path

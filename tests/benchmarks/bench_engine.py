@@ -19,6 +19,7 @@ import numpy as np
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
 
 from processing.engine import Engine
+from processing.profile import profile_for
 from processing.reference import PlainEngine
 from processing.session import Session
 from processing.settings import ChannelSettings
@@ -82,25 +83,36 @@ def one_hour(frames: int) -> None:
           f"{t_fast / hours:.2f} s per hour; identical: {ev_plain == ev_fast})")
 
 
-def cpu_share(seconds: float) -> None:
+def _session_share(seconds: float, plain: bool, tuned: bool) -> float:
+    """CPU share of a 64-channel 1 kHz board through Session. `tuned`: a profile and a stated polarity
+    (the steady state); else none of either (each channel measures its quiet second and learns its
+    polarity from its first touch: the first contact, ALGORITHM.md)."""
     rate_hz, channels, per_block = 1000.0, 64, 50  # a UI drains the link 20 times a second
     frames = int(seconds * rate_hz)
     readings = synthetic(frames, channels, seed=3)
     t_s = np.arange(frames) / rate_hz
     seq = np.arange(frames)
-    shares = {}
-    for plain in (True, False):
-        s = Session(plain=plain)
-        s.handle([BoardInfo(0.0, {}, proto=1, channels=channels, rate_hz=rate_hz, new_session=True)])
-        start = time.perf_counter()
-        for pos in range(0, frames, per_block):
-            stop = pos + per_block
-            s.handle([FrameBlock(t_s[pos:stop], seq[pos:stop], readings[pos:stop], pos)])
-            if pos % 100 == 0:  # the UI asks for rows at 20 Hz
-                s.rows()
-        shares[plain] = (time.perf_counter() - start) / seconds
+    s = Session(profile_for(channels) if tuned else None, plain=plain)
+    s.handle([BoardInfo(0.0, {}, proto=1, channels=channels, rate_hz=rate_hz, new_session=True,
+                        polarity=(1,) if tuned else ())])
+    start = time.perf_counter()
+    for pos in range(0, frames, per_block):
+        stop = pos + per_block
+        s.handle([FrameBlock(t_s[pos:stop], seq[pos:stop], readings[pos:stop], pos)])
+        if pos % 100 == 0:  # the UI asks for rows at 20 Hz
+            s.rows()
+    return (time.perf_counter() - start) / seconds
+
+
+def cpu_share(seconds: float) -> None:
+    shares = {plain: _session_share(seconds, plain, tuned=True) for plain in (True, False)}
     print(f"64 channels at 1 kHz through Session: {100 * shares[False]:.2f} % of a core (plain engine "
           f"{100 * shares[True]:.1f} %): {shares[True] / shares[False]:.1f}x plain (target < 5 %)")
+    first = min(seconds, 4.0)  # the quiet second and the lessons happen at the start
+    untuned = _session_share(first, False, tuned=False)
+    steady = _session_share(first, False, tuned=True)
+    print(f"the same board's first {first:g} s with no profile and no polarity (quiet second, lessons): "
+          f"{100 * untuned:.2f} % of a core, {untuned / steady:.1f}x the tuned session's first {first:g} s")
 
 
 def link_headroom() -> None:

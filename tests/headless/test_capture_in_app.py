@@ -22,9 +22,10 @@ async def test_w_opens_the_capture_and_apply_all_is_one_undoable_edit():
     source = SessionSource(feed, port="test://feed", clock=clock)
     app = PadtuneApp(source, ui_hz=0, clock=clock)
     async with app.run_test(size=(100, 32)) as pilot:
-        feed.advance(0.5)
+        feed.advance(1.5)  # past the quiet second: the provisional settings are in
         app.refresh_now()
         before = [source.settings(c) for c in range(5)]
+        assert all(source.session.provisional(c) for c in range(5))
         await pilot.press("w")
         await pilot.pause()
         screen = app.screen
@@ -53,9 +54,11 @@ async def test_w_opens_the_capture_and_apply_all_is_one_undoable_edit():
         assert all(a.threshold_counts == o.suggestion.threshold_counts
                    for a, o in zip(after, screen.outcomes, strict=True))
         assert after != before
+        assert not any(source.session.provisional(c) for c in range(5))  # captured: tuned now
         await pilot.press("u")
         await pilot.pause()
         assert [source.settings(c) for c in range(5)] == before
+        assert all(source.session.provisional(c) for c in range(5))  # undone: provisional again
 
 
 async def test_capture_while_recording_leaves_marks_that_tune_uses(tmp_path):
@@ -135,3 +138,45 @@ async def test_a_real_board_gets_no_simulator_commands():
         await pilot.press("escape")
         await pilot.pause()
         assert not any(b"script" in w for w in feed.written)
+
+
+async def test_the_capture_teaches_an_unknown_polarity_and_undo_takes_it_back_too():
+    # No profile and a board that does not say which way its counts move (they fall): the capture's
+    # touches teach each key's direction; applying is one undoable edit of settings and polarity.
+    feed = SyntheticFeed(noise_counts=2, polarity=())
+    clock = Clock()
+    source = SessionSource(feed, port="test://feed", clock=clock)
+    app = PadtuneApp(source, ui_hz=0, clock=clock)
+    async with app.run_test(size=(100, 32)) as pilot:
+        feed.advance(1.5)
+        app.refresh_now()
+        before = [source.settings(c) for c in range(5)]
+        await pilot.press("w")
+        await pilot.pause()
+        screen = app.screen
+        screen.tick_s = 0
+        for _ in range(600):
+            w = screen.wizard
+            step = w.step if w else None
+            for c in range(5):
+                feed.set_touch(c, 0)
+            if step is not None and step.kind == "touch":
+                feed.set_touch(step.channel, -120)
+            feed.advance(0.05)
+            clock.t_s += 0.05
+            app.refresh_now()
+            screen.tick()
+            if screen.outcomes:
+                break
+        await pilot.pause()
+        assert len(screen.outcomes) == 5 and all(o.suggested for o in screen.outcomes)
+        assert screen.wizard.learned == dict.fromkeys(range(5), -1)
+        await pilot.press("A")
+        await pilot.pause()
+        assert source.session.polarity == [-1] * 5
+        assert [source.settings(c) for c in range(5)] != before
+        await pilot.press("u")
+        await pilot.pause()
+        assert [source.settings(c) for c in range(5)] == before
+        # the session had learned them from the same touches: undo leaves them, as learned
+        assert source.session.polarity == [-1] * 5

@@ -83,6 +83,17 @@ def test_a_cooperative_user_completes_the_capture(polarity):
         assert len(key.untouched) > len(key.quiet)  # crosstalk frames while other keys were held
 
 
+def test_keys_of_unknown_direction_learn_it_from_the_touch_asked_for():
+    # Polarity 0 (not known yet): the first clear move of the key asked for, either way, is its touch;
+    # the figures then come out as for a board that stated it.
+    w = CaptureWizard(NAMES, (0, 0, 0), RATE_HZ, quiet_s=2.0, hold_s=1.0)
+    user = User(w, np.random.default_rng(3), polarity=-1)
+    user.run()
+    assert w.done and w.learned == {0: -1, 1: -1, 2: -1} and w.polarity.tolist() == [-1, -1, -1]
+    for key in w.keys.values():
+        assert key.seen and key_figures(key.quiet, key.touched).signal_counts == pytest.approx(200, abs=6)
+
+
 def test_nothing_happened_asks_again_then_skips():
     w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=0.5, timeout_s=2.0, max_attempts=3)
     user = User(w, np.random.default_rng(4), ignore={"zone2"})

@@ -112,7 +112,8 @@ def test_monitor_json_matches_the_simulated_touch_script(profiles):
     assert hello["board"] == "greenhouse" and hello["channels"] == 9 and hello["rate_hz"] == RATE_HZ
     statuses = [e for e in events if e["type"] == "status"]
     assert len(statuses) >= 2 and len(statuses[-1]["channels"]) == 9  # the first may precede the board
-    fields = {"name", "reading", "baseline", "delta", "state", "noise", "snr"}
+    fields = {"name", "reading", "baseline", "delta", "state", "noise", "snr", "provisional", "polarity",
+              "phase"}
     assert set(statuses[-1]["channels"][0]) == fields
     summary = events[-1]
     assert summary["type"] == "summary" and summary["lost"] == 0 and summary["garbled"] == 0

@@ -15,8 +15,9 @@ NAMES = ("zone1", "zone2", "zone3", "stop")
 
 
 def info(**kw):
+    # A board that states its polarity: these tests are not about learning it (test_first_contact.py is).
     base = dict(t_s=0.0, fields={}, proto=1, board="greenhouse-panel", channels=4, rate_hz=100.0, names=NAMES,
-                new_session=True)
+                polarity=(1,), new_session=True)
     base.update(kw)
     return BoardInfo(**base)
 
@@ -31,8 +32,13 @@ def quiet(n, width=4, level=1000, first_index=0, seed=0):
     return frames(level + rng.integers(-3, 4, (n, width)), first_index)
 
 
+def tuned():
+    """Default settings given as a profile: these tests are not about provisional ones."""
+    return profile_for(4, NAMES)
+
+
 def test_info_then_frames_detects_and_names():
-    s = Session()
+    s = Session(tuned())
     assert s.handle([info()]) == [] and s.channels == 4 and s.names == NAMES
     out = s.handle([quiet(100)])
     assert sorted(ev.channel for ev in out if isinstance(ev, Rebaselined)) == [0, 1, 2, 3]
@@ -77,7 +83,7 @@ def test_board_changed_rebuilds_for_new_width():
 
 
 def test_polarity_from_info():
-    s = Session()
+    s = Session(tuned())
     s.handle([info(polarity=(-1,)), quiet(20)])
     rows = np.full((5, 4), 1000)
     rows[:, 1] -= 300
@@ -104,7 +110,7 @@ def test_profile_settings_groups_and_sliders():
 
 
 def test_live_edit_goes_to_engine_and_profile():
-    s = Session()
+    s = Session(tuned())
     with pytest.raises(ValueError, match="no board"):
         s.set_channel_settings(0, ChannelSettings())
     s.handle([info(), quiet(20)])
@@ -137,7 +143,7 @@ def test_profile_for_another_board_id_is_used_with_a_notice():
 def test_info_without_proto_updates_keys_and_keeps_the_rest():
     # PROTOCOL.md: "Info lines without proto update the session's info key by key." A later rate-only
     # line must not make the session forget the board's polarity and names (nor start a new session).
-    s = Session()
+    s = Session(tuned())
     s.handle([info(polarity=(-1,)), quiet(20)])
     s.handle([BoardInfo(t_s=1.0, fields={"rate": "200"}, rate_hz=200.0)])
     assert not s.engine.pending.any() and s.rate_hz == 200.0 and s.info.names == NAMES
@@ -160,7 +166,7 @@ def test_live_edits_survive_a_rebuild_for_the_same_width():
     assert s.settings(5).threshold_counts == 80
     s.handle([BoardChanged(2.0, 6, 4), quiet(10, first_index=30)])
     assert s.settings(3) == edited and s.engine.settings[3] == edited
-    s.handle([info(t_s=3.0, polarity=(-1,)), quiet(10, first_index=40)])  # polarity now given: rebuilt
+    s.handle([info(t_s=3.0, polarity=(-1,)), quiet(10, first_index=40)])  # the board turns polarity round
     assert s.engine.polarity == [-1] * 4 and s.settings(3) == edited
 
 
@@ -168,7 +174,7 @@ def test_noise_window_starts_again_at_a_rebaseline():
     # Deltas before a re-baseline are measured against the old baseline: mixing them into the window
     # would show the step as noise. Hand-worked: 100 frames at delta +40 (the baseline lagged a rise),
     # re-baseline, then +-1 noise: pp 2 counts from the new frames only, not 41.
-    s = Session()
+    s = Session(tuned())
     s.handle([info(), quiet(20)])
     rows = np.full((100, 4), 1000)
     rows[:, 0] += 40
@@ -215,12 +221,12 @@ def test_noise_after_a_stuck_release_counts_only_frames_after_it():
     assert (st[10 + 40:, 0] == 0).all() and (st[10 + 39, 0] != 0)  # released from row 40 on
 
 
-def test_without_a_profile_the_user_is_told_the_defaults_once():
+def test_without_a_profile_the_user_is_told_once_that_settings_are_provisional():
     s = Session()
     s.handle([info(), quiet(20)])
     s.handle([quiet(20, first_index=20)])
     told = [n for n in s.notices if n.startswith("no profile given")]
-    assert len(told) == 1 and f"threshold {ChannelSettings().threshold_counts} counts" in told[0]
+    assert len(told) == 1 and "provisional" in told[0] and "first 1 s of quiet frames" in told[0]
     given = Session(profile_for(4, NAMES))
     given.handle([info(), quiet(20)])
     assert not [n for n in given.notices if n.startswith("no profile given")]
@@ -229,7 +235,7 @@ def test_without_a_profile_the_user_is_told_the_defaults_once():
 def test_spectrum_leaves_out_the_settle_guard_after_a_touch():
     # 100 Hz: quiet, a touch of 300 counts for 0.5 s, then 1 s quiet. The spectrum's samples start one
     # settle guard (0.1 s = 10 frames) after the last frame that was not released.
-    s = Session()
+    s = Session(tuned())
     rows = [[1000] * 4] * 100 + [[1300, 1000, 1000, 1000]] * 50 + [[1000] * 4] * 100
     s.handle([info(), frames(np.asarray(rows) + np.random.default_rng(2).integers(-2, 3, (250, 4)))])
     m = s.measures

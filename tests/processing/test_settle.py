@@ -14,6 +14,7 @@ from hypothesis import strategies as st
 
 from processing.detections import KeyState
 from processing.measure import Measures
+from processing.profile import profile_for
 from processing.session import Session
 from protocol.events import BoardInfo, FrameBlock
 
@@ -93,10 +94,10 @@ def test_a_lift_no_longer_turns_a_solid_key_weak():
     rng = np.random.default_rng(4)
     deltas, _, quiet = ramp_trace(rng, ramp=30)
     readings = (2000 + deltas).reshape(-1, 1).repeat(2, axis=1)
-    info = BoardInfo(0.0, {}, proto=1, channels=2, rate_hz=1000.0, new_session=True)
+    info = BoardInfo(0.0, {}, proto=1, channels=2, rate_hz=1000.0, polarity=(1,), new_session=True)
     results = {}
     for settle_s in (0.1, 0.0):
-        s = Session(settle_s=settle_s, window_s=4.0)
+        s = Session(profile_for(2), settle_s=settle_s, window_s=4.0)
         s.handle([info])
         for pos in range(0, len(readings), 50):
             rows = readings[pos:pos + 50]

@@ -15,7 +15,7 @@ from protocol.events import BoardInfo, Event, FrameBlock, LinkState, LinkStats, 
 class SyntheticFeed:
     def __init__(self, names: tuple[str, ...] = ("zone1", "zone2", "zone3", "zone4", "stop"),
                  rate_hz: float = 100.0, base_counts: int = 1000, noise_counts: int = 2,
-                 seed: int = 3) -> None:
+                 seed: int = 3, polarity: tuple[int, ...] = (1,)) -> None:
         self.names, self.rate_hz, self.base, self.noise = names, rate_hz, base_counts, noise_counts
         self.rng = np.random.default_rng(seed)
         self.t_s = 0.0
@@ -25,8 +25,11 @@ class SyntheticFeed:
         self.written: list[bytes] = []
         self._stats = LinkStats()
         self._state = LinkState.CONNECTED
+        # The board states its polarity (touches raise its counts) unless `polarity=()`: then the
+        # session learns it from each key's first touch.
         self.queue.append(BoardInfo(0.0, {"board": "synthetic"}, proto=1, board="synthetic",
-                                    channels=len(names), rate_hz=rate_hz, names=names, new_session=True))
+                                    channels=len(names), rate_hz=rate_hz, names=names, polarity=polarity,
+                                    new_session=True))
 
     def advance(self, seconds: float) -> None:
         n = max(1, round(seconds * self.rate_hz))

@@ -14,7 +14,7 @@ import pytest
 from textual.pilot import Pilot
 
 from processing.detections import KeyState
-from processing.profile import load_profile
+from processing.profile import load_profile, profile_for
 from processing.recording import read_recording
 from processing.session import Session
 from protocol.errors import UserError
@@ -29,7 +29,10 @@ from tui.session_source import SessionSource
 
 
 def make_app(feed: SyntheticFeed | None = None, **source_args: object) -> tuple[PadtuneApp, SyntheticFeed]:
+    """The app on a synthetic feed, with the default settings given as a profile (these tests are about
+    the screen's actions; test_first_contact_screen.py has the board met with no profile)."""
     feed = feed or SyntheticFeed()
+    source_args.setdefault("profile", profile_for(len(feed.names)))
     source = SessionSource(feed, port="test://feed", clock=lambda: feed.t_s, **source_args)
     return PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s), feed
 
@@ -343,7 +346,7 @@ async def test_detail_panel_and_spectrum() -> None:
         app.refresh_now()
         await pilot.pause()
         text = screen_text(app)
-        assert "reading ⣿" in text and "release level" in text and "▸ threshold" in text
+        assert "reading ⣿" in text and "release at" in text and "▸ threshold" in text
         await pilot.press("f")
         run(app, feed, 0.2)
         await pilot.pause()
@@ -498,7 +501,7 @@ async def test_no_color_keeps_every_state_readable(monkeypatch: pytest.MonkeyPat
 
 
 async def test_before_the_first_frame_keys_say_why_they_wait() -> None:
-    app, feed = make_app()
+    app, feed = make_app(profile=None)
     feed.queue.clear()  # not even the info line yet
     async with app.run_test() as pilot:
         app.refresh_now()

@@ -166,12 +166,12 @@ def test_help_shows_keys_as_printed_on_the_keyboard() -> None:
 
 def test_edit_bar_names_every_setting_in_words_and_keeps_the_edited_one_on_screen() -> None:
     from processing.settings import ChannelSettings
-    from tui.fields import FIELDS
+    from tui.fields import EDIT_FIELDS
     from tui.render.settings import edit_bar
 
     s = ChannelSettings(threshold_counts=30, hysteresis_counts=8)
     for width in (80, 120, 200):
-        for f in FIELDS:
+        for f in EDIT_FIELDS:
             bar = edit_bar("zone1", s, f.key, {}, width, "1/9").plain
             assert len(bar) <= width, (width, bar)
             assert f"▸{f.short} " in bar  # the field under edit is always shown, in words
@@ -184,7 +184,14 @@ def test_edit_bar_names_every_setting_in_words_and_keeps_the_edited_one_on_scree
     # 1/2**6 of the way a step: the shift read as the fraction it stands for
     assert "baseline ▸slow 6 (1/64 a step toward a touch)" in narrow and narrow.startswith("zone1 1/9 … ")
     last = edit_bar("zone1", s, "stuck_timeout_frames", {}, 80, "").plain
-    assert last.endswith("▸stuck after never ") and "…" in last
+    assert last.endswith("▸stuck after never │ polarity + ") and "…" in last
+    # the polarity, the edit bar's last field: its sign and, under edit, what it means
+    pol = edit_bar("zone1", s, "polarity", {}, 80, "1/9", polarity=-1).plain
+    assert pol.endswith("│ ▸polarity - (counts fall on touch) ") and len(pol) <= 80
+    learning = edit_bar("zone1", s, "threshold_counts", {}, 200, "", polarity=None,
+                        status="provisional").plain
+    assert learning.startswith("zone1 provisional ▸threshold 30")
+    assert learning.endswith("polarity ? learning ")
 
 
 def test_link_strip_cuts_a_long_reason_so_the_first_line_keeps_the_rate_at_80_cells() -> None:

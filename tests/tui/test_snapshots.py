@@ -65,3 +65,38 @@ def test_help_screen(snap_compare, size) -> None:
         await pilot.pause()
 
     assert snap_compare(demo_app(), terminal_size=size, run_before=before)
+
+
+def first_contact_app() -> PadtuneApp:
+    """No profile, a board that does not say which way its counts move: after its quiet second, zone2
+    has been touched once (its lesson: counts fall) and the others still wait for theirs."""
+    from tests.tui.feeds import SyntheticFeed
+
+    feed = SyntheticFeed(polarity=(), seed=5)
+    source = SessionSource(feed, port="/dev/ttyACM0", clock=lambda: feed.t_s)
+    app = PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s)
+
+    def advance(seconds: float) -> None:
+        for _ in range(round(seconds / 0.05)):
+            feed.advance(0.05)
+            app.refresh_now()
+
+    def lesson() -> None:
+        advance(1.5)
+        feed.set_touch(1, -150)
+        advance(0.4)
+        feed.set_touch(1, 0)
+        advance(0.5)
+
+    app.advance, app.lesson = advance, lesson  # type: ignore[attr-defined]
+    return app
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_first_contact_screen(snap_compare, size) -> None:
+    async def before(pilot) -> None:
+        pilot.app.lesson()
+        await pilot.press("down")
+        await pilot.pause()
+
+    assert snap_compare(first_contact_app(), terminal_size=size, run_before=before)

@@ -25,6 +25,7 @@ from tui.headless.ports import (
     seconds,
 )
 from tui.headless.production import UnitProbe, evaluate, touch_figures
+from tui.polarity_arg import add_polarity_arg
 
 TICK_S = 0.02
 # A board that resets when its port opens (many USB boards do) may take a couple of seconds to send
@@ -40,6 +41,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         "and its SNR checked. Exit 0 pass, 1 fail, 2 usage or input error.")
     add_port_args(p)
     p.add_argument("--profile", metavar="F", required=True, help="profile TOML with the [limits] to check")
+    add_polarity_arg(p)
     p.add_argument("--duration", metavar="S", type=seconds, default=3.0,
                    help="hands-off measuring time in seconds from the first frame (default %(default)s)")
     p.add_argument("--touch", action="store_true", help="then ask for each key in turn and check its SNR")
@@ -58,14 +60,30 @@ def _poll(link: Any, probe: UnitProbe, until_s: float, stop: StopFlag, done: Any
         time.sleep(TICK_S)
 
 
-def _quiet_phase(link: Any, probe: UnitProbe, duration_s: float, stop: StopFlag) -> bool:
+def _quiet_phase(link: Any, probe: UnitProbe, duration_s: float, stop: StopFlag,
+                 on_first_frame: Any = None) -> bool:
     """Wait for the first frame, then measure hands off for `duration_s`; False when no frame came."""
     wait_s = max(FIRST_FRAME_WAIT_S, duration_s)
     _poll(link, probe, time.monotonic() + wait_s, stop, lambda: probe.quiet_frames > 0)
     if probe.quiet_frames == 0:
         return False
+    if on_first_frame is not None:
+        on_first_frame()
     _poll(link, probe, time.monotonic() + duration_s, stop)
     return True
+
+
+def _assume_rising(session: Session, say: Any) -> None:
+    """A production check does not learn a polarity from touches (its touch step would go to the lesson):
+    where neither the profile, the board nor --polarity gives one, it checks with + and says so."""
+    unknown = [c for c, sign in enumerate(session.polarity) if sign is None]
+    if not unknown:
+        return
+    names = ", ".join(session.names[c] for c in unknown[:8]) + (", ..." if len(unknown) > 8 else "")
+    say(f"padtune: no polarity for {names} (the profile and the board do not say): checking with + "
+        "(counts rise on touch); give --polarity, or a profile saved with its polarity")
+    for c in unknown:
+        session.set_polarity(c, 1)
 
 
 def _touch_phase(link: Any, probe: UnitProbe, names: list[str], timeout_s: float, stop: StopFlag,
@@ -95,13 +113,14 @@ def run(args: argparse.Namespace) -> int:
         check_report_path(args.report)
     profile = load_profile_arg(args.profile)
     console = make_console(stderr=True)
-    session = Session(profile)
+    session = Session(profile, polarity=args.polarity)
     link = open_link(args.port, args.baud)
     origin = time.monotonic()
     probe = UnitProbe(session, origin)
     try:
         with StopFlag() as stop:
-            if not _quiet_phase(link, probe, args.duration, stop) and not stop.stopped:
+            rising = lambda: _assume_rising(session, lambda m: console.print(m))  # noqa: E731
+            if not _quiet_phase(link, probe, args.duration, stop, rising) and not stop.stopped:
                 elapsed_s = time.monotonic() - origin
                 return quiet_broken_pipe(lambda: _dead_unit(args, elapsed_s), code_on_pipe=1)
             names = list(session.names)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 
 from tui.live import check_baud, check_profile_arg, run_live
+from tui.polarity_arg import add_polarity_arg
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -19,6 +20,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--no-script", action="store_true",
                    help="no scripted touches: only the keys you press from the keyboard")
     p.add_argument("--profile", help="profile TOML file to load settings from")
+    add_polarity_arg(p)
     p.add_argument("--baud", type=int, default=115200, help="baud rate (default 115200)")
     p.set_defaults(func=run)
 
@@ -33,4 +35,5 @@ def run(args: argparse.Namespace) -> int:
         url += "&script=0"
     profile_path = check_profile_arg(args.profile)
     start = None if profile_path else demo_profile(args.board)
-    return run_live(url, check_baud(args.baud), profile_path, demo=True, start_profile=start)
+    return run_live(url, check_baud(args.baud), profile_path, demo=True, start_profile=start,
+                    polarity=args.polarity)

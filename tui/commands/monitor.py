@@ -18,6 +18,7 @@ from tui.headless.ports import (
     seconds,
 )
 from tui.headless.runner import DetectionRun
+from tui.polarity_arg import add_polarity_arg
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -28,6 +29,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         "'Headless use'). Ends after --duration, on Ctrl-C or SIGTERM, always with a summary.")
     add_port_args(p)
     p.add_argument("--profile", metavar="F", help="profile TOML with the detection settings")
+    add_polarity_arg(p)
     p.add_argument("--json", action="store_true", help="write JSON Lines (one object per line)")
     p.add_argument("--duration", metavar="S", type=seconds,
                    help="stop after S seconds (default: run until stopped)")
@@ -55,8 +57,8 @@ def _run(args: argparse.Namespace) -> int:
     except BaseException:
         link.stop()
         raise
-    run_ = DetectionRun(Session(profile), make_output(args.json), origin_t_s=origin, every_s=args.every,
-                        link_warnings=True)
+    run_ = DetectionRun(Session(profile, polarity=args.polarity), make_output(args.json), origin_t_s=origin,
+                        every_s=args.every, link_warnings=True)
 
     def consume(events: list, now: float) -> None:
         if recorder is not None:

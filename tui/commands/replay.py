@@ -24,6 +24,7 @@ from tui.headless.ports import (
     speed_factor,
 )
 from tui.headless.runner import DetectionRun
+from tui.polarity_arg import add_polarity_arg
 
 PACE_CHUNK_S = 0.05  # a paced replay hands frames over in slices of this much recorded time
 
@@ -36,6 +37,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         "recording, touches outside them are counted as false touches.")
     p.add_argument("file", metavar="FILE", help="recording (CSV) or raw capture of protocol lines")
     p.add_argument("--profile", metavar="F", help="profile TOML with the detection settings to try")
+    add_polarity_arg(p)
     p.add_argument("--speed", metavar="X", type=speed_factor, default=0.0,
                    help="replay speed: 1 = real time, 4 = four times faster, 0 = as fast as possible "
                         "(default)")
@@ -54,9 +56,9 @@ def paced(events: list[Event], slice_s: float | None) -> Iterator[tuple[list[Eve
             start = 0
             while start < len(event):
                 stop = int(start + max(1, (t[start:] < t[start] + slice_s).sum()))
-                times = None if event.board_time is None else event.board_time[start:stop]
+                board_time = None if event.board_time is None else event.board_time[start:stop]
                 yield [FrameBlock(t[start:stop], event.seq[start:stop], event.readings[start:stop],
-                                  event.first_index + start, times)], float(t[stop - 1])
+                                  event.first_index + start, board_time)], float(t[stop - 1])
                 start = stop
         elif isinstance(event, FrameBlock):
             yield [event], float(event.t_s[-1]) if len(event) else 0.0
@@ -71,8 +73,8 @@ def run(args: argparse.Namespace) -> int:
 def _run(args: argparse.Namespace) -> int:
     profile = load_profile_arg(args.profile)
     rec = read_recording(args.file, rate_hz=args.rate)
-    run_ = DetectionRun(Session(profile), make_output(args.json), origin_t_s=0.0, every_s=args.every,
-                        marks=rec.marks)
+    run_ = DetectionRun(Session(profile, polarity=args.polarity), make_output(args.json), origin_t_s=0.0,
+                        every_s=args.every, marks=rec.marks)
     if rec.truncated:
         run_.output.note(0.0, "the recording's last line was cut short (the writer was stopped mid-row)")
     wall0 = time.monotonic()

@@ -141,7 +141,22 @@ def channel_table(rows: Sequence[Mapping[str, Any]], columns: Sequence[tuple[str
 
 
 STATUS_COLUMNS = (("name", "key"), ("reading", "reading"), ("baseline", "baseline"), ("delta", "delta"),
-                  ("state", "state"), ("noise", "noise rms"), ("snr", "SNR"))
+                  ("state", "state"), ("noise", "noise rms"), ("snr", "SNR"), ("polarity", "polarity"),
+                  ("settings", "settings"))
+
+
+def _readable_status(row: Mapping[str, Any]) -> dict[str, Any]:
+    """A status row for people: an unknown polarity reads "learning" (a bare "-" would read as a
+    polarity), the state says when the key cannot report yet, provisional settings say so."""
+    out = dict(row)
+    phase = row.get("phase", "ready")
+    if phase != "ready":
+        out["state"] = "measuring noise" if phase == "measuring" else "learning polarity"
+    if "polarity" in row:
+        out["polarity"] = row["polarity"] or "learning"
+    if "provisional" in row:
+        out["settings"] = "provisional" if row["provisional"] else "tuned"
+    return out
 
 
 class HumanOutput:
@@ -198,8 +213,8 @@ class HumanOutput:
         self._line(t_s, "slider", "magenta", f"{slider} {where}  (frame {index})")
 
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
-        self.console.print(channel_table(channels, STATUS_COLUMNS, title=f"status at {t_s:.1f} s",
-                                         plain=self.plain))
+        self.console.print(channel_table([_readable_status(c) for c in channels], STATUS_COLUMNS,
+                                         title=f"status at {t_s:.1f} s", plain=self.plain))
 
     def summary(self, t_s: float, summary: Mapping[str, Any]) -> None:
         counts = ", ".join(f"{k} {summary[k]}" for k in ("frames", "lost", "garbled", "bad_checksum",

@@ -52,6 +52,10 @@ def _num(value: float | None) -> float | None:
     return round(float(value), 3)
 
 
+def _sign(polarity: int | None) -> str | None:
+    return None if polarity is None else "+" if polarity > 0 else "-"
+
+
 def info_dict(info: BoardInfo, form: StreamForm | None = None) -> dict[str, Any]:
     """An info line's `hello`: its keys, and the form the data comes in (v1 unless a plain form was
     recognised in this session)."""
@@ -228,12 +232,16 @@ class DetectionRun:
                 self._next_status_t += self.every_s
 
     def status_rows(self) -> list[dict[str, Any]]:
+        """Every channel now. `provisional`: its settings come from its noise, not a profile or an edit;
+        `polarity`: "+", "-", or None while it is learned; `phase`: "measuring" (its quiet second),
+        "learning" (its direction) or "ready" (it reports touches)."""
         rows = []
         for r in self.session.rows():
             q = r.quality
             rows.append({"name": r.name, "reading": r.reading, "baseline": r.baseline_counts,
                          "delta": r.delta_counts, "state": r.state.name.lower(),
-                         "noise": _num(q.noise.rms_counts) if q.noise else None, "snr": _num(q.snr_pp)})
+                         "noise": _num(q.noise.rms_counts) if q.noise else None, "snr": _num(q.snr_pp),
+                         "provisional": r.provisional, "polarity": _sign(r.polarity), "phase": r.phase})
         return rows
 
     def summary(self) -> dict[str, Any]:

@@ -16,6 +16,7 @@ from processing.measure import VerdictBounds
 from processing.profile import Profile, profile_for, profile_from_board
 from processing.recording import Recording
 from processing.settings import ChannelSettings, Limits
+from processing.startup import Learned, Startup
 from processing.stretches import KeyFigures, KeyTrace, find_touches, key_figures
 from processing.suggest import Refusal, Suggestion, suggest
 from protocol.errors import UserError
@@ -63,6 +64,14 @@ def base_profile(rec: Recording, base: Profile | None) -> Profile:
     return profile_for(width, rec.names if len(rec.names) == width else ())
 
 
+def learned_polarity(t_s: np.ndarray, readings: np.ndarray, rate_hz: float) -> dict[int, int]:
+    """Channel -> direction, from its first clear touch that comes back in the recording, as the live
+    session learns it (channels never touched are left out)."""
+    width = readings.shape[1]
+    steps = Startup(width, [False] * width, [True] * width, rate_hz).advance(readings, t_s)
+    return {step.channel: step.sign for step in steps if isinstance(step, Learned)}
+
+
 def tune_recording(rec: Recording, base: Profile | None = None,
                    bounds: VerdictBounds | None = None) -> TuneResult:
     t_s, _, readings = rec.arrays()
@@ -72,7 +81,12 @@ def tune_recording(rec: Recording, base: Profile | None = None,
     rate_hz = rec.rate_hz or 100.0
     profile = base_profile(rec, base)
     info = rec.info
-    polarity = tuple(info.polarity) if info and info.polarity else tuple(profile.polarity) or (1,)
+    polarity = tuple(info.polarity) if info and info.polarity else tuple(profile.polarity)
+    if not polarity:  # nobody says: each key's first touch that comes back (ALGORITHM.md, first contact)
+        learned = learned_polarity(t_s, readings, rate_hz)
+        polarity = tuple(learned.get(c, 1) for c in range(profile.channels))  # +1 for a key never touched
+        if len(learned) == profile.channels:  # a profile lists all or none
+            profile = replace(profile, polarity=polarity)
     traces = find_touches(t_s, readings, profile.names, polarity, rate_hz, rec.marks)
     bounds = bounds or VerdictBounds()
     keys = []

@@ -33,6 +33,9 @@ _STATES: dict[str, Label] = {
     "settling": Label("~", "settle", "dim"),
     "warmup": Label("~", "settle", "dim"),
     "disabled": Label("-", "off", "dim"),
+    # before a channel may report a touch (processing.startup): its quiet second, then its direction
+    "measuring": Label("~", "noise", "dim"),
+    "learning": Label("?", "learn", "pending"),
 }
 
 _VERDICTS: dict[str, Label] = {

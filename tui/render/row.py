@@ -80,16 +80,19 @@ def header_line(layout: RowLayout, styles: Styles) -> Text:
 
 
 def channel_line(view: ChannelView, layout: RowLayout, selected: bool, styles: Styles) -> Text:
-    """The row for one channel; `selected` puts a `▶` in front (so the cursor reads without colour)."""
+    """The row for one channel; `selected` puts a `▶` in front (so the cursor reads without colour), a
+    `≈` after it marks provisional settings, and the state reads `noise` / `learn` until the channel
+    may report touches (its quiet second, its direction)."""
     return to_text(row_pieces(view, layout, selected, styles))
 
 
 def row_pieces(view: ChannelView, layout: RowLayout, selected: bool, styles: Styles) -> list[Piece]:
     """The row as pieces, exactly `layout.width` cells or fewer; the table adds the selected background."""
-    st = state_label(view.state)
+    st = state_label(view.state if view.phase == "ready" else view.phase)
     verdict = verdict_label(view.verdict)
     plain = NULL
-    out: list[Piece] = [("▶ " if selected else "  ", pick(styles, "cursor")),
+    mark = ("▶" if selected else " ") + ("≈" if view.provisional else " ")
+    out: list[Piece] = [(mark, pick(styles, "cursor")),
                         (view.name[: layout.name].ljust(layout.name), pick(styles, "edited" if view.edited
                                                                               else "name")),
                         (" " + _num(view.reading, layout.number) + " ", plain)]

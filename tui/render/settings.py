@@ -5,12 +5,14 @@ from __future__ import annotations
 from rich.text import Text
 
 from processing.settings import ChannelSettings
-from tui.fields import FIELDS, Field
+from tui.fields import FIELDS, POLARITY_FIELD, POLARITY_KEY, Field, polarity_meaning, polarity_word
 from tui.render import Styles, pick
 
 
 def settings_text(settings: ChannelSettings, selected_key: str | None, styles: Styles,
-                  rate_hz: float | None = None) -> Text:
+                  rate_hz: float | None = None, polarity: int | None = 1, status: str = "") -> Text:
+    """The detail panel's settings: every field with its unit and what it means, then the release level
+    with the polarity, and `status` ("provisional", ...) when the settings are not tuned yet."""
     text = Text(no_wrap=True, end="")
     for f in FIELDS:
         value = getattr(settings, f.key)
@@ -26,7 +28,14 @@ def settings_text(settings: ChannelSettings, selected_key: str | None, styles: S
         if f.unit == "shift" and 0 <= value < 31:  # what the shift stands for: the fraction a step
             text.append(f" 1/{2 ** value}", pick(styles, "dim"))
         text.append("\n")
-    text.append(f"  {'release level':<19} {settings.release_level_counts:>6} counts", pick(styles, "dim"))
+    # The release level with the polarity on one line: the panel has no line to spare at 80x24 (the
+    # edit bar says more about both).
+    chosen = selected_key == POLARITY_KEY
+    text.append(f"  release at {settings.release_level_counts} counts · ", pick(styles, "dim"))
+    text.append(f"{'▸' if chosen else ''}polarity {polarity_word(polarity)}",
+                pick(styles, "cursor" if chosen else "dim"))
+    if status:
+        text.append(f" · {status}", pick(styles, "dim"))
     return text
 
 
@@ -35,20 +44,23 @@ def _duration(seconds: float) -> str:
 
 
 def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: Styles, width: int,
-             position: str = "") -> Text:
-    """One line: the selected channel and its settings in their groups, the field under edit marked `▸`
-    and named in full with its unit.
+             position: str = "", polarity: int | None = 1, status: str = "") -> Text:
+    """One line: the selected channel and its settings in their groups, then its polarity, the field
+    under edit marked `▸` and named in full with its unit. `status` ("provisional", "measuring noise")
+    follows the name when the settings are not tuned yet.
 
     Groups that do not fit in `width` give way, farthest from the one being edited first, and show as
     `…`: the bar never wraps and the field being edited is always on it.
     """
     groups = _field_groups()
     chosen = next(i for i, g in enumerate(groups) if any(f.key == selected_key for f in g))
-    pieces = [_group_pieces(g, settings, selected_key, styles) for g in groups]
+    pieces = [_group_pieces(g, settings, selected_key, styles, polarity) for g in groups]
     head = Text(no_wrap=True, end="")
     head.append(f"{name} ", pick(styles, "header"))
     if position:
         head.append(f"{position} ", pick(styles, "dim"))
+    if status:
+        head.append(f"{status} ", pick(styles, "pending"))
     sep = Text("│ ", style=pick(styles, "dim"))
     shown = _fitting(chosen, [p.cell_len for p in pieces], width - head.cell_len, sep.cell_len)
     text = head
@@ -98,14 +110,24 @@ def _field_groups() -> list[list[Field]]:
     # threshold and hysteresis read as one pair: the touch level and how far below it a touch ends
     if len(groups) > 1 and not groups[0][0].group and not groups[1][0].group:
         groups[0:2] = [groups[0] + groups[1]]
-    return groups
+    return [*groups, [POLARITY_FIELD]]
 
 
-def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: str, styles: Styles) -> Text:
+def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: str, styles: Styles,
+                  polarity: int | None = 1) -> Text:
     text = Text(no_wrap=True, end="")
     if group[0].group:
         text.append(f"{group[0].group} ", pick(styles, "header"))
     for f in group:
+        if f.key == POLARITY_KEY:
+            shown = polarity_word(polarity)
+            if f.key == selected_key:
+                text.append(f"▸{f.short} {shown} ({polarity_meaning(polarity)})", pick(styles, "cursor"))
+            else:
+                text.append(f"{f.short} {shown}" + (" learning" if polarity is None else ""),
+                            pick(styles, "pending" if polarity is None else "dim"))
+            text.append(" ")
+            continue
         value = getattr(settings, f.key)
         shown = "never" if f.key == "stuck_timeout_frames" and value == 0 else str(value)
         if f.key == selected_key:

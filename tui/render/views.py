@@ -26,6 +26,9 @@ class ChannelView:
     spark: tuple[float, ...] = ()
     group: str | None = None
     edited: bool = False  # differs from the profile on disk
+    polarity: int | None = 1  # +1 counts rise on touch, -1 fall, None while it is learned
+    provisional: bool = False  # settings from its noise (no profile, not edited)
+    phase: str = "ready"  # "measuring" its quiet second, "learning" its direction, or "ready"
 
 
 @dataclass(frozen=True, slots=True)

@@ -142,7 +142,8 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         s = self.session
         if s.engine is None or s.measures is None or not s.names:
             return False
-        self.wizard = CaptureWizard(list(s.names), s.engine.pol.tolist(), s.rate_hz, **self.wizard_options)
+        polarity = [p or 0 for p in s.polarity]  # 0: not known yet, the touch asked for teaches it
+        self.wizard = CaptureWizard(list(s.names), polarity, s.rate_hz, **self.wizard_options)
         self._history, self._seen = s.measures.history, s.measures.history.written
         return True
 
@@ -291,9 +292,13 @@ def open_capture(app: Any) -> None:
         apply_changes = getattr(app, "_apply_changes", None)
         if apply_changes is not None:
             from tui.edits import Change
+            from tui.fields import PolarityChoice
 
             names = session.names
-            changes = [Change(c, source.settings(c), s) for c, s in sorted(result.items())]
+            learned = screen.wizard.learned if screen.wizard is not None else {}
+            changes = [Change(c, PolarityChoice(source.polarity(c)), PolarityChoice(sign))
+                       for c, sign in sorted(learned.items()) if c in result and source.polarity(c) != sign]
+            changes += [Change(c, source.settings(c), s) for c, s in sorted(result.items())]
             what = ", ".join(names[c] for c in sorted(result)) if len(result) <= 3 else f"{len(result)} keys"
             apply_changes(f"guided capture: {what}", changes)
         else:
@@ -306,4 +311,5 @@ def open_capture(app: Any) -> None:
         # recording can be re-tuned (`padtune tune`) or replayed against its marks later.
         source.mark(mark.kind, mark.channel, mark.text, t_s=mark.t_s)
 
-    app.push_screen(CaptureScreen(session, clock=getattr(app, "clock", time.monotonic), marker=marker), done)
+    screen = CaptureScreen(session, clock=getattr(app, "clock", time.monotonic), marker=marker)
+    app.push_screen(screen, done)

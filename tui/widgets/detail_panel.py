@@ -87,11 +87,12 @@ class DetailPanel(Vertical):
                 yield Static("", id="detail-events")
 
     def show(self, name: str, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
-             selected_key: str, events: Sequence[str], rate_hz: float | None) -> None:
+             selected_key: str, events: Sequence[str], rate_hz: float | None, polarity: int | None = 1,
+             status: str = "") -> None:
         styles = {r: self.get_component_rich_style(f"detail-panel--{r}", partial=True) for r in self.ROLES}
         self.query_one("#detail-title", Static).update(
             Text(detail_title(name, spectrum, max(20, self.size.width - 2)), no_wrap=True))
-        settings_lines = settings_text(settings, selected_key, styles, rate_hz)
+        settings_lines = settings_text(settings, selected_key, styles, rate_hz, polarity, status)
         self.query_one("#detail-settings", Static).update(settings_lines)
         lines = Text("recent events, newest first\n", style=styles["dim"], no_wrap=True)
         for line in reversed(list(events)[-6:]):
