@@ -39,6 +39,12 @@ class Pool:
         return self.submit(name).result()
 
 
+def _length_s(sc) -> float:
+    if sc.duration_s is not None:
+        return sc.duration_s
+    return sc.board.frames / sc.board.rate_hz if sc.board is not None else 0.0
+
+
 @pytest.fixture(scope="session")
 def acceptance_pool(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory):
     wanted: list[str] = []
@@ -46,6 +52,7 @@ def acceptance_pool(request: pytest.FixtureRequest, tmp_path_factory: pytest.Tem
         marker = item.get_closest_marker("scenarios")
         if marker is not None:
             wanted += [n for n in marker.args if n not in wanted]
+    wanted.sort(key=lambda n: -_length_s(SCENARIOS[n]))  # the longest first: the pool ends sooner
     pool = Pool(wanted, tmp_path_factory.mktemp("acceptance"))
     yield pool
     pool.executor.shutdown(wait=True, cancel_futures=True)

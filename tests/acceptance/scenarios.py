@@ -145,6 +145,9 @@ SCENARIOS = {s.name: s for s in [
              duration_s=10.0, learns=False),
     Scenario("sim_pumphouse", wire="none", url="sim://pumphouse?speed=2&seed=3&backlog_s=60",
              duration_s=8.0, learns=False),
+    # Random touches only; seed 34's first one starts at 3.0 s (SimBoard truth; test_sims checks it).
+    Scenario("sim_grid64", wire="none", url="sim://grid64?seed=34&backlog_s=60", duration_s=6.5,
+             learns=False),
 ]}
 
 # What padtune should call each board's keys: printed names (pairs, brackets, info lines), else chN.

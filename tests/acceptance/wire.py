@@ -33,6 +33,10 @@ WRITE_DEADLINE_S = 30.0  # a host that stops reading this long is broken, not sl
 ASK_GIVE_UP_S = 4.0  # a running board whose host never asks `?` stops after this (the test then fails)
 
 
+class HostGone(Exception):
+    """The host closed its end (a socket reset): the board stops printing, as a bridge would."""
+
+
 class PtyWire:
     """A pseudo-terminal: the board writes its master side, the host opens `url` (the slave's path).
     The test keeps the slave open too, so `unread()` can see how many bytes the host has not read yet."""
@@ -40,6 +44,7 @@ class PtyWire:
     kind = "pty"
 
     def __init__(self) -> None:
+        self.halt = threading.Event()  # set when the board is stopped: no write waits any longer
         self.master, self.slave = os.openpty()
         tty.setraw(self.slave)
         os.set_blocking(self.master, False)
@@ -57,7 +62,7 @@ class PtyWire:
             try:
                 view = view[os.write(self.master, view):]
             except BlockingIOError:
-                if first and drop_if_full:
+                if (first and drop_if_full) or self.halt.is_set():
                     return False
                 if time.monotonic() > deadline:
                     if drop_if_full:
@@ -90,6 +95,7 @@ class SocketWire:
     kind = "socket"
 
     def __init__(self) -> None:
+        self.halt = threading.Event()
         self.server = socket.create_server(("127.0.0.1", 0))
         self.url = f"socket://127.0.0.1:{self.server.getsockname()[1]}"
         self.conn: socket.socket | None = None
@@ -112,7 +118,11 @@ class SocketWire:
         while view:
             try:
                 view = view[self.conn.send(view):]
+            except (BrokenPipeError, ConnectionResetError):
+                raise HostGone() from None
             except BlockingIOError:
+                if self.halt.is_set():
+                    return False
                 if time.monotonic() > deadline:
                     raise TimeoutError("the host stopped reading the socket") from None
                 select.select([], [self.conn], [], 0.01)
@@ -274,6 +284,7 @@ class Player(threading.Thread):
         self.anchor: int | None = None  # a running board's frame at the host's first `?`
         self.opened_at: float | None = None  # set by the test when the host reports the port open
         self.error: BaseException | None = None
+        self.host_gone = False
         self.next_frame = 0
         self._host = b""
 
@@ -289,6 +300,8 @@ class Player(threading.Thread):
                 while not self.halt.is_set():  # printed all it had: keeps listening (a `?` is news)
                     self._listen()
                     time.sleep(0.01)
+        except HostGone:
+            self.host_gone = True
         except BaseException as exc:  # shown by the test that reads this board, never swallowed
             self.error = exc
         finally:
@@ -361,4 +374,5 @@ class Player(threading.Thread):
 
     def stop(self) -> None:
         self.halt.set()
+        self.wire.halt.set()
         self.join(5)
