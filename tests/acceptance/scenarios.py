@@ -76,7 +76,9 @@ BOARDS = {
                           idle=(2210, 2305), eol=b"\r\n"),
     "cr_only": plain("cr_only", f.columns, eol=b"\r"),
     "chatty": plain("chatty", f.commas, eol=b"\r\n",
-                    boot=("ESP-ROM:esp32s3-20210327", "Build:Mar 27 2021", "Touch keypad demo v0.3",
+                    # What an ESP32-S3 prints at reset (its ROM's lines, from memory), then the sketch's.
+                    boot=("ESP-ROM:esp32s3-20210327", "Build:Mar 27 2021",
+                          "rst:0x1 (POWERON),boot:0x8 (SPI_FAST_FLASH_BOOT)", "Touch keypad demo v0.3",
                           "Calibrating 3 pads..."),
                     texts={150: ("calibrating...", "done, baseline 1234 1250 1198")}),
     "rc_falling": plain("rc_falling", f.tabs, keys=("p1", "p2", "p3", "p4"), polarity=(-1,) * 4,

@@ -173,7 +173,7 @@ def test_scripts_are_what_the_contract_asks_of_a_test_board(name):
 def test_text_lines_and_the_question_on_a_pty():
     data, player = play(BOARDS["chatty"], write=b"?\n")
     lines, others = split(BOARDS["chatty"], data)
-    assert others[:4] == list(BOARDS["chatty"].boot)
+    assert others[:5] == list(BOARDS["chatty"].boot)
     assert "calibrating..." in others and len(lines) == BOARDS["chatty"].frames
     assert player.host_lines == [b"?"] and len(player.asks) == 1  # heard; this board does not answer
 

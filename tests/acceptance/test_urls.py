@@ -8,6 +8,7 @@ open fails, each one `padtune: ...` line on stderr and exit 2, whatever the driv
 from __future__ import annotations
 
 import socket
+import threading
 
 import pytest
 
@@ -65,9 +66,37 @@ def _refused_port() -> int:
         return s.getsockname()[1]
 
 
+@pytest.fixture
+def mute_tcp_server():
+    """A TCP server that accepts and never says a word: what `rfc2217://` meets at a raw TCP bridge."""
+    server = socket.create_server(("127.0.0.1", 0))
+    held: list[socket.socket] = []
+    stop = threading.Event()
+
+    def serve() -> None:
+        server.settimeout(0.1)
+        while not stop.is_set():
+            try:
+                held.append(server.accept()[0])
+            except TimeoutError:
+                continue
+            except OSError:
+                return
+
+    thread = threading.Thread(target=serve, daemon=True)
+    thread.start()
+    yield server.getsockname()[1]
+    stop.set()
+    thread.join(5)
+    for s in [*held, server]:
+        s.close()
+
+
 @pytest.mark.parametrize("kind", ["refused socket", "refused rfc2217", "unknown scheme", "missing device",
-                                  "folder", "bad rfc2217 option"])
-def test_an_open_failure_is_one_line_and_exit_2(kind, tmp_path):
+                                  "folder", "bad rfc2217 option", "bad loop option",
+                                  "rfc2217 at a mute server"])
+def test_an_open_failure_is_one_line_and_exit_2(kind, tmp_path, mute_tcp_server):
+    """Today `loop://?logging=nope` ends in a KeyError traceback and `rfc2217://` in NotImplementedError."""
     port = {
         "refused socket": lambda: f"socket://127.0.0.1:{_refused_port()}",
         "refused rfc2217": lambda: f"rfc2217://127.0.0.1:{_refused_port()}",
@@ -75,6 +104,8 @@ def test_an_open_failure_is_one_line_and_exit_2(kind, tmp_path):
         "missing device": lambda: "/dev/ttyPADTUNE-not-here",
         "folder": lambda: str(tmp_path),
         "bad rfc2217 option": lambda: f"rfc2217://127.0.0.1:{_refused_port()}?nosuchoption",
+        "bad loop option": lambda: "loop://?logging=nope",
+        "rfc2217 at a mute server": lambda: f"rfc2217://127.0.0.1:{mute_tcp_server}",
     }[kind]()
     out = run_cli("monitor", port, "--json", "--duration", "2")
     assert out.returncode == 2, (out.returncode, out.stdout[-500:], out.stderr[-2000:])
