@@ -10,6 +10,8 @@ checked against what the contract asks of a test board (quiet first, depth again
 
 from __future__ import annotations
 
+import contextlib
+import decimal
 import itertools
 import re
 import time
@@ -87,14 +89,21 @@ def play(board: Board, kind: str = "pty", write: bytes = b"") -> tuple[bytes, Pl
 
 
 def split(board: Board, data: bytes) -> tuple[list[str], list[str]]:
-    """(data lines, other lines): every line must end exactly with the board's line end."""
+    """(data lines, text lines) of what arrived: every line ends exactly with the board's line end, and
+    the text lines are where the board's script puts them (boot lines first, then before frame k)."""
     assert data.endswith(board.eol) or not data, data[-20:]
-    parts = data.split(board.eol)[:-1]
-    assert all(b"\r" not in p and b"\n" not in p for p in parts), "a line end inside a line"
-    text = [p.decode() for p in parts]
-    others = [t for t in text if (t[:1].isalpha() and not re.match(r"[A-Za-z]\w*[:=]\[? *-?\d", t))
-              or t.startswith("!")]
-    return [t for t in text if t not in others], others
+    parts = [p.decode("ascii") for p in data.split(board.eol)[:-1]]
+    assert all("\r" not in p and "\n" not in p for p in parts), "a line end inside a line"
+    texts = parts[:len(board.boot)]
+    rest = parts[len(board.boot):]
+    lines = []
+    for frame in range(board.frames):
+        n = len(board.texts.get(frame, ()))
+        texts += rest[:n]
+        lines.append(rest[n])
+        rest = rest[n + 1:]
+    assert not rest
+    return lines, texts
 
 
 @pytest.mark.parametrize("name", sorted(FORM_OF))
@@ -103,6 +112,7 @@ def test_every_form_prints_the_model_values(name):
     if board.running:
         board = Board(**{**board.__dict__, "running": False})  # here: from frame 0, like the others
     data, player = play(board)
+    assert data == board.boot_bytes() + b"".join(board.lines(k) for k in range(board.frames))  # no loss
     lines, others = split(board, data)
     assert len(lines) == board.frames == player.sent
     parse = PARSERS[FORM_OF[name]]
@@ -120,9 +130,13 @@ def test_every_form_prints_the_model_values(name):
             assert got == [board.millis(frame), *want], (frame, line)
         else:
             assert got == want, (frame, line)
-    # Text lines: exactly the boot lines and those scripted before a data line, in order.
+    # Text lines: exactly the boot lines and those scripted before a data line, in order; none of them
+    # reads as a line of the board's own form.
     want_text = list(board.boot) + [t for k in sorted(board.texts) for t in board.texts[k]]
     assert others == want_text
+    for text in others:
+        with contextlib.suppress(ValueError, AttributeError, decimal.InvalidOperation):
+            assert not parse(text), text
 
 
 def test_forms_look_as_the_issue_shows_them():
