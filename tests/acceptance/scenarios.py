@@ -115,6 +115,9 @@ BOARDS = {
         line=f.sequenced, eol=b"\r\n", rate_hz=50.0, touches=(Touch(300, 125, 20),), frames=200,
         boot=("! proto=1 board=wall channels=512 rate=50 polarity=+ names="
               + ",".join(f"k{k:03d}" for k in range(512)),)),
+    # loop() { print the counts; delay(500); }: two lines a second, so the first 8 lines take 3.5 s.
+    "slow": Board(name="slow", keys=("a", "b"), idle=(1234, 1250), polarity=(1, 1), depth=0, noise=4,
+                  line=f.columns, frames=12, rate_hz=2.0),
     "mixed_polarity": plain("mixed_polarity", f.columns, polarity=(1, -1, 1), learn=False),
     "rc_known": plain("rc_known", f.tabs, keys=("p1", "p2", "p3"), polarity=(-1,) * 3, idle=RC_IDLE[:3],
                       depth=400, noise=6, eol=b"\r\n", learn=False),
@@ -131,6 +134,7 @@ SCENARIOS = {s.name: s for s in [
     Scenario("silent", BOARDS["silent"], duration_s=_SHORT),
     Scenario("stall", BOARDS["stall"]),
     Scenario("flood", BOARDS["flood"], learns=False),
+    Scenario("slow", BOARDS["slow"]),
     Scenario("unreadable", BOARDS["unreadable"], duration_s=_SHORT),
     Scenario("arrows", BOARDS["arrows"], duration_s=_SHORT),
     Scenario("binary", BOARDS["binary"], duration_s=_SHORT),

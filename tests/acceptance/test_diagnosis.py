@@ -79,6 +79,19 @@ def test_printable_lines_of_another_tools_form_get_the_same_message(outcome):
     _no_baud_advice(o)
 
 
+@pytest.mark.scenarios("slow")
+def test_a_slow_sketch_is_not_called_unreadable(outcome):
+    """`delay(500)` in loop(): 2 lines a second. The decoder holds the first 8 data lines of a plain form
+    (contract 2), which takes 3.5 s here, longer than the 2 s after which a stream with no frame is called
+    unreadable (contract 9). The contract does not say how the two meet; a user whose board is read fine
+    must not be told it cannot be: lines held as data are not unreadable. Every line is read."""
+    o = _run(outcome, "slow")
+    assert not o.links("unreadable") and not o.stderr_with("PROTOCOL.md"), o.describe()
+    _no_baud_advice(o)
+    assert o.summary["frames"] == BOARDS["slow"].frames == o.player.sent, o.describe()
+    assert o.hellos() and o.hellos()[0].get("form") == "columns", o.hellos()
+
+
 @pytest.mark.scenarios("binary")
 def test_high_bit_noise_still_gets_the_baud_rate_advice(outcome):
     """The other side of the same rule (contract 9): bytes that are mostly high-bit or non-printable do

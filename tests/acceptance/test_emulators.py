@@ -20,7 +20,7 @@ from decimal import Decimal
 import pytest
 import serial
 
-from tests.acceptance.boards import RAMP_FRAMES, Board
+from tests.acceptance.boards import RAMP_FRAMES, Board, crc_line
 from tests.acceptance.scenarios import BOARDS, SCENARIOS
 from tests.acceptance.wire import Player, PtyWire, make_wire
 
@@ -43,7 +43,7 @@ FORM_OF = {"columns": "columns", "fixed6": "columns", "cr_only": "columns", "com
            "plotter_pairs": "pairs", "spaced_pairs": "pairs", "equals_pairs": "pairs", "brackets": "pairs",
            "big": "pairs", "esp32_72": "columns", "millis": "columns", "millis_pairs": "pairs",
            "invalid_name": "columns", "mixed_polarity": "columns", "running": "sequenced",
-           "wide512": "sequenced"}
+           "wide512": "sequenced", "slow": "columns", "stall": "columns"}
 
 
 def read_all(port: serial.SerialBase, player: Player, lines: int | None = None) -> bytes:
@@ -156,6 +156,10 @@ def test_forms_look_as_the_issue_shows_them():
     line = wide.data_line(wide.frames - 1)
     assert len(wide.values(0)) == 512 and 1024 < len(line) <= 8192
     assert all(-(2**31) <= v < 2**31 for f in (0, 130) for v in wide.values(f))
+    # The emulators' checksum: CRC-16/IBM-3740's check value from the published catalogue of parametrised
+    # CRC algorithms (the CRC of "123456789" is 0x29B1), so a board's `*HHHH` is right by an outside measure.
+    assert crc_line("123456789") == "123456789*29B1"
+    assert BOARDS["flood"].data_line(5) == BOARDS["flood"].data_line(6) == b"@42 1000 1020 990*9E47\r\n"
     assert BOARDS["silent"].frames == 0 and BOARDS["binary"].data_line(0)[:24].count(b"\x00") < 24
 
 

@@ -73,6 +73,7 @@ def test_hello_names_the_plain_form(outcome, name):
     for key, want in HELLO[name].items():
         assert hello.get(key) == want, (key, hello)
     assert hello.get("channels") in (len(NAMES[name]), None), hello  # "from what is known, null otherwise"
+    assert hello.get("board") is None, hello  # a plain form does not name its board
     first_detection = min((i for i, e in enumerate(o.events) if e["type"] in ("touch", "release")),
                           default=len(o.events))
     assert o.events.index(hello) < first_detection
