@@ -23,8 +23,11 @@ QUIET_MIN_FRAMES = 32  # ... and at least this many frames (a slow board needs l
 THRESHOLD_PER_PP = 2
 THRESHOLD_PER_RMS = 8
 MIN_THRESHOLD_COUNTS = 3  # a quantised channel (pp 0 or 1) must not fire on one count of flicker
-# Nor on a change too small to be a touch at its count scale: 1/400 = 0.25 % of the idle reading.
+# Nor on a change too small to be a touch at its count scale: 1/400 = 0.25 % of the idle reading. Where
+# the key has measurable noise the floor is capped at FLOOR_CAP_PER_PP x pp, so a touch of ten times the
+# noise pp is detected whatever the reading's offset (a reading of 2e9 counts with a 1500-count touch).
 FLOOR_DIVISOR = 400
+FLOOR_CAP_PER_PP = 6
 DEBOUNCE_S = 0.025  # touch and release debounce: 25 ms, rounded up to whole frames
 # A stretch is quiet when its four quarters agree: their medians lie within the typical quarter's
 # pp (plus one count for quantisation), and no quarter's pp exceeds SPIKE_FACTOR times the typical one
@@ -74,10 +77,13 @@ def debounce_frames(rate_hz: float | None, default: int = ChannelSettings().touc
 
 
 def provisional_threshold(pp_counts: int, level_counts: float, rms_counts: float = 0.0) -> int:
-    """T = max(2 pp, ceil(8 RMS), ceil(|level| / 400), 3), at most MAX_COUNTS."""
+    """T = max(2 pp, ceil(8 RMS), F, 3), at most MAX_COUNTS, with the floor F = ceil(|level| / 400),
+    capped at 6 pp when pp >= 1 (only a key without a count of noise gets the whole floor)."""
     by_pp = THRESHOLD_PER_PP * int(pp_counts)
     by_rms = math.ceil(THRESHOLD_PER_RMS * rms_counts - 1e-9) if math.isfinite(rms_counts) else 0
     floor = -(-abs(round(level_counts)) // FLOOR_DIVISOR)
+    if pp_counts >= 1:
+        floor = min(floor, FLOOR_CAP_PER_PP * int(pp_counts))
     return min(MAX_COUNTS, max(by_pp, by_rms, floor, MIN_THRESHOLD_COUNTS))
 
 

@@ -88,7 +88,9 @@ def test_touch_and_release_on_the_right_key_at_the_right_frame(outcome, name):
     assert not check_keys(o, NAMES[name]), "\n".join(check_keys(o, NAMES[name])) + "\n" + o.describe()
     board = BOARDS[name]
     for touch in o.of("touch"):
-        assert board.depth / 3 - board.noise <= touch["delta"] <= board.depth + board.noise, touch
+        # The reading's noise is within +-noise, and a baseline taken at one noisy frame (after the teaching
+        # touch, or at the start) may be off by as much: the delta is within depth +- 2 noise.
+        assert board.depth / 3 - board.noise <= touch["delta"] <= board.depth + 2 * board.noise, touch
 
 
 @pytest.mark.scenarios(*FORMS)

@@ -57,7 +57,10 @@ def test_no_baud_rate_advice_for_a_socket(outcome):
     the issue's list of failures)."""
     o = _run(outcome, "socket_binary")
     assert not o.links("baud_suspect"), o.describe()
-    assert not o.stderr_with("baud"), o.stderr
+    # No advice to change a baud rate; a sentence saying the network link has none (and that the bridge's
+    # serial side may be set wrong) is true and allowed.
+    told = [line for line in o.stderr_with("baud") if "probably wrong" in line or "try the board" in line]
+    assert not told, o.stderr
 
 
 def _refused_port() -> int:

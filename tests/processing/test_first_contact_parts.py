@@ -47,6 +47,10 @@ def test_the_threshold_rule_by_hand():
     assert provisional_threshold(1, 72.0) == 3  # a quantised 72-count key: the 3-count minimum
     assert provisional_threshold(0, 0.0) == 3
     assert provisional_threshold(0, -30000.0) == 75  # a board printing negative readings
+    # With a count of noise the floor is capped at 6 pp: 30000 with pp 1 gets min(75, 6) = 6; a raw
+    # capture near -2^31 with pp 100 gets min(5368700, 600) = 600, not 0.25 % of its offset.
+    assert provisional_threshold(1, 30000.0) == 6
+    assert provisional_threshold(100, -2147480000.0, 25.0) == 600
     assert provisional_threshold(2**40, 0.0) == 2**24  # never above what the engine takes
 
 
@@ -69,6 +73,8 @@ def test_provisional_settings_are_always_valid(pp, level, rate):
     assert s.threshold_counts >= 3 and 1 <= s.hysteresis_counts < s.threshold_counts
     # never above 4 pp (RMS <= pp / 2, Popoviciu) unless the floor or the minimum decides
     assert s.threshold_counts <= max(4 * pp, -(-abs(round(level)) // 400), 3)
+    if pp >= 1:  # the floor is capped at 6 pp: the 10 x pp promise holds at any offset
+        assert s.threshold_counts <= max(6 * pp, 3)
 
 
 def test_quiet_check_takes_noise_and_hum_and_refuses_steps_and_taps():
