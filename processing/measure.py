@@ -262,6 +262,8 @@ class SettleGate:
         """Frames decided by this block (`first_frame` = frame number of its first row): the deltas of
         frames `first_frame - guard .. first_frame + n - guard` and the mask of those that count."""
         g, n = self.guard_frames, len(deltas)
+        if n == 0:  # nothing decided; the tail and the last activity stay as they are
+            return deltas[:0], np.zeros(deltas.shape, bool)
         frame = first_frame + np.arange(n, dtype=np.int64)[:, None]
         busy = states != KeyState.RELEASED
         last_busy = np.maximum.accumulate(np.where(busy, frame, self.NEVER), axis=0)

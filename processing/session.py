@@ -273,10 +273,13 @@ class Session(FirstContact):
         parts: list[tuple[np.ndarray, np.ndarray]] = []
         start = i = 0
         while i < len(steps):  # run the engine up to each transition's frame, apply it, go on
-            stop = steps[i].row + 1
-            found.extend(self._run(_slice(block, start, stop)))
-            parts.append((self.engine.last_deltas, self.engine.last_states))
-            while i < len(steps) and steps[i].row + 1 == stop:
+            # A transition found on frames of an earlier block (a quiet stretch chosen after the give-up
+            # time, say) has a negative row: it takes effect before this block's first frame.
+            stop = max(start, steps[i].row + 1)
+            if stop > start:
+                found.extend(self._run(_slice(block, start, stop)))
+                parts.append((self.engine.last_deltas, self.engine.last_states))
+            while i < len(steps) and max(start, steps[i].row + 1) == stop:
                 self._transition(steps[i])
                 i += 1
             start = stop

@@ -95,7 +95,7 @@ class Outcome:
         if self.player is not None:
             board = (f"; board wrote {self.player.sent} frames, host lines {self.player.host_lines[:5]}, "
                      f"board error {self.player.error!r}")
-        return (f"exit {self.returncode} {self.timed_out}; events {kinds}; stderr {self.stderr[:12]}{board}"
+        return (f"exit {self.returncode} {self.timed_out}; events {kinds}; stderr {self.stderr[-8:]}{board}"
                 f"; unparsed stdout {self.bad_lines[:3]}")
 
     # --- frames ---------------------------------------------------------------------------------

@@ -176,7 +176,7 @@ def test_watch_and_demo_hand_polarity_to_the_session(monkeypatch):
 
     seen = {}
 
-    def fake_run_live(target, baud, profile_path, demo=False, start_profile=None, polarity=()):
+    def fake_run_live(target, baud, profile_path, demo=False, start_profile=None, notices=(), polarity=()):
         seen[target.split("?")[0]] = polarity
         return 0
 
