@@ -54,7 +54,10 @@ class BoardClock:
             self._ticks.append(ticks[:MAX_TICKS - self._count])
             self._count += len(self._ticks[-1])
         if self._first is None:
-            self._first = (int(ticks[0]), float(t_s[0]))
+            # Frames that arrived in one read share the host time at which its last byte came (a first
+            # read may hold a backlog of many frames): only the last of them matches that time.
+            k = int(np.searchsorted(t_s, t_s[0], side="right")) - 1
+            self._first = (int(ticks[k]), float(t_s[k]))
         self._last = (int(ticks[-1]), float(t_s[-1]))
         return self._decide()
 

@@ -179,6 +179,18 @@ def test_board_clock_finds_millis_at_60_hz_despite_a_lost_frame():
     assert clock.unit == "ms" and clock.rate_hz == pytest.approx(60.0, rel=1e-3)
 
 
+def test_board_clock_after_a_backlog_read_in_one_go():
+    # A first read holds every frame the OS buffered since the port opened, all stamped with the time the
+    # read returned: only the last of them matches it. Taking the first frame's tick against that time made
+    # 37 frames of 10 ms look like no time at all, and a 100 Hz millis() board was refused (1324 ticks/s).
+    ms = 8123 + 10 * np.arange(600, dtype=np.int64)
+    clock = BoardClock()
+    for start in range(0, 600, 37):  # reads of 37 frames, each stamped when its last frame arrived
+        stop = min(600, start + 37)
+        clock.observe(ms[start:stop], np.full(stop - start, stop / 100.0 + 0.3))
+    assert clock.unit == "ms" and clock.rate_hz == pytest.approx(100.0, rel=1e-3)
+
+
 def test_board_clock_in_microseconds_and_a_unit_it_cannot_place():
     us = np.arange(0, 2_000_000, 1000, dtype=np.int64)  # micros() at 1 kHz
     clock = BoardClock()
