@@ -2,7 +2,7 @@
 
 Hands off for `--duration` seconds (alive, noise, stuck), then with `--touch` each key in turn. Prints
 a pass/fail table (or one JSON report with `--json`); exit 0 when every channel passes, 1 otherwise,
-2 for a usage or input error. See `tui.headless.production` for what each check means.
+2 for a usage or input error. See `processing.acceptance` for what each check means.
 """
 
 from __future__ import annotations
@@ -13,6 +13,7 @@ import sys
 import time
 from typing import Any
 
+from processing.acceptance import UnitProbe, evaluate, touch_figures
 from processing.session import Session
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
@@ -24,7 +25,6 @@ from tui.headless.ports import (
     quiet_broken_pipe,
     seconds,
 )
-from tui.headless.production import UnitProbe, evaluate, touch_figures
 from tui.polarity_arg import add_polarity_arg
 
 TICK_S = 0.02

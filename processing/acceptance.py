@@ -1,5 +1,9 @@
 """The production check of one unit against a profile's acceptance limits (pure: events in, verdicts out).
 
+`UnitProbe` collects what the check needs while a session runs (fed by `padtune check` through the
+front end's pipeline, or by a test with made-up frames); `evaluate` gives every channel's verdict with
+its reasons. No I/O, no clock: the front end (`tui.headless.production`) decides the phases' timing.
+
 Phase 1, hands off: every channel must be alive (its baseline inside `baseline_min_counts ..
 baseline_max_counts`; outside it in the direction of less capacitance is an open pad, of more capacitance
 a shorted pad), quiet (noise pp and RMS of the released deltas below `max_noise_pp_counts` and
@@ -12,26 +16,20 @@ detected with the profile's settings, and its SNR (median touched delta / hands-
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 
-from processing.detections import KeyState, Release, StuckRelease, Touch
+from processing.detections import DetectionEvent, KeyState, Release, StuckRelease, Touch
 from processing.session import Session
 from processing.settings import Limits
 from protocol.events import Event, FrameBlock
 
 PASS, FAIL, UNCHECKED = "pass", "fail", "not checked"
+Phase = Literal["quiet", "touch"]
 MIN_TOUCH_FRAMES = 3
-
-
-@dataclass
-class ChannelData:
-    readings: list[np.ndarray] = field(default_factory=list)
-    deltas: list[np.ndarray] = field(default_factory=list)
-    states: list[np.ndarray] = field(default_factory=list)
-    t_s: list[np.ndarray] = field(default_factory=list)
 
 
 @dataclass
@@ -67,7 +65,7 @@ class UnitProbe:
 
     def __init__(self, session: Session, origin_t_s: float) -> None:
         self.session, self.origin_t_s = session, origin_t_s
-        self.phase = "quiet"
+        self.phase: Phase = "quiet"  # hands off, then "touch": each key in turn
         self.quiet_frames = 0
         self.t_s: list[np.ndarray] = []
         self.readings: list[np.ndarray] = []
@@ -78,10 +76,10 @@ class UnitProbe:
         self.touch_samples: dict[int, list[int]] = {}  # phase 2: touched deltas per key
         self.touch_seen: set[int] = set()
         self.done_keys: set[int] = set()
-        self.events_seen: list[str] = []
 
-    def feed(self, events: list[Event]) -> list[object]:
-        detections: list[object] = []
+    def feed(self, events: Iterable[Event]) -> list[DetectionEvent]:
+        """Hand `events` to the session one by one (each block's deltas are read right after it ran)."""
+        detections: list[DetectionEvent] = []
         for ev in events:
             found = self.session.handle([ev])
             detections.extend(found)
@@ -106,7 +104,7 @@ class UnitProbe:
             if c in self.touch_seen:
                 self.touch_samples.setdefault(c, []).extend(eng.last_deltas[touched[:, c], c].tolist())
 
-    def _detection(self, det: object) -> None:
+    def _detection(self, det: DetectionEvent) -> None:
         if isinstance(det, Touch):
             if self.phase == "quiet":
                 self.touched_at.setdefault(det.channel, det.t_s - self.origin_t_s)
