@@ -163,6 +163,9 @@ def utc_stamp(epoch_s: float) -> str:
 class RecordingWriter:
     """Writes events to a recording file as they come; whole rows only, flushed every `flush_interval_s`.
 
+    It writes on the caller's thread: front ends use `tui.recorder.Recorder`, which runs one of these on
+    a writer thread of its own.
+
     `origin_t_s` is the event clock's value that becomes time 0 (default: `clock()` now). Call
     `write_events` with every batch the link hands over (frames, info, faults ...), `mark` for user marks,
     `maybe_flush` from a timer when no events come, and `close` at the end. Pass the board's latest
@@ -276,11 +279,8 @@ class RecordingWriter:
             return
         data = "".join(self._buffer).encode("utf-8")
         self._buffer.clear()
-        view = memoryview(data)
         try:
-            while view:
-                written = os.write(self._fd, view)
-                view = view[written:]
+            self._write_all(data)
         except OSError as exc:
             # A full disk or a vanished drive: stop writing, keep what reached the file, and say so in
             # one line (the reader drops a partial last row, so the file stays readable).
@@ -291,6 +291,14 @@ class RecordingWriter:
                 "this point are kept"
             ) from None
         self._last_flush_s = self._clock()
+
+    def _write_all(self, data: bytes) -> None:
+        """Every byte of `data` to the file (a short write is continued); OSError as the OS says."""
+        assert self._fd is not None
+        view = memoryview(data)
+        while view:
+            written = os.write(self._fd, view)
+            view = view[written:]
 
     def close(self) -> None:
         if self._fd is None:
