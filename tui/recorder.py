@@ -138,6 +138,11 @@ class Recorder:
                 self._cond.wait(left)
         return True
 
+    def wait(self, timeout_s: float) -> bool:
+        """Wait (at most `timeout_s`) for the thread to end after a close request; True when it has."""
+        self._thread.join(timeout_s)
+        return self.finished
+
     def close(self, timeout_s: float = CLOSE_TIMEOUT_S) -> None:
         """Finish the file (write what is queued, fsync, close), waiting at most `timeout_s`.
 
@@ -145,8 +150,7 @@ class Recorder:
         thread goes on in the background; a reader drops a partial last row, so the file stays readable).
         """
         self.request_close()
-        self._thread.join(timeout_s)
-        if self._thread.is_alive():
+        if not self.wait(timeout_s):
             raise UserError(f"the recording {self.path} was not finished within {timeout_s:g} s (a slow or "
                             "stuck disk): its last rows may be missing")
         if self._error is not None:

@@ -8,9 +8,7 @@ descriptor with `dup2`. Waits are on conditions with generous deadlines.
 from __future__ import annotations
 
 import os
-import threading
 import time
-from collections.abc import Callable
 from pathlib import Path
 
 import numpy as np
@@ -19,9 +17,9 @@ import pytest
 from processing.recording import read_recording
 from protocol.errors import UserError
 from protocol.events import BoardInfo, FrameBlock, Note
+from tests.headless.disks import DEADLINE_S, SlowDisk, put_dev_full_under, returns_soon
 from tui.recorder import Recorder
 
-DEADLINE_S = 30.0
 INFO = BoardInfo(0.0, {"proto": "1", "channels": "3", "names": "a,b,c"}, proto=1, channels=3,
                  names=("a", "b", "c"), new_session=True)
 
@@ -37,37 +35,6 @@ class Clock:
 def frames(first: int, n: int, channels: int = 3) -> FrameBlock:
     t = (first + np.arange(n)) / 100.0
     return FrameBlock(t, np.arange(first, first + n), np.full((n, channels), 1000 + first, np.int64), first)
-
-
-def returns_soon(call: Callable[[], object]) -> object:
-    """Run `call` on a helper thread; fail (instead of hanging the suite) if it waits for the disk."""
-    box: list[object] = []
-    helper = threading.Thread(target=lambda: box.append(call()), daemon=True)
-    helper.start()
-    helper.join(DEADLINE_S)
-    assert not helper.is_alive(), "the caller's side waited for the slow disk"
-    return box[0] if box else None
-
-
-class SlowDisk:
-    """Replaces the writer's low-level write: each write waits until the test lets it through."""
-
-    def __init__(self, recorder: Recorder) -> None:
-        self.entered = threading.Event()
-        self.go = threading.Event()
-        self._real = recorder.writer._write_all
-        recorder.writer._write_all = self._write  # type: ignore[method-assign]
-
-    def _write(self, data: bytes) -> None:
-        self.entered.set()
-        assert self.go.wait(DEADLINE_S), "the test never let the write through"
-        self._real(data)
-
-
-def put_dev_full_under(recorder: Recorder) -> None:
-    full = os.open("/dev/full", os.O_WRONLY)
-    os.dup2(full, recorder.writer._fd)  # type: ignore[arg-type]
-    os.close(full)
 
 
 def test_rows_and_marks_reach_the_file_in_stream_order(tmp_path: Path) -> None:
