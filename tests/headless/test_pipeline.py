@@ -11,6 +11,8 @@ from __future__ import annotations
 import ast
 import os
 import pathlib
+import subprocess
+import sys
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -337,3 +339,17 @@ def test_an_error_in_a_run_still_stops_the_link_and_closes_the_recording(tmp_pat
         pipe.run_to_end(until_s=None, stop=None, on_step=fail)
     assert feed.stopped >= 1 and not rec.accepting
     assert rec.wait(DEADLINE_S)
+
+
+def test_the_pipeline_and_the_headless_commands_never_load_textual() -> None:
+    # Headless over SSH never builds the App (a Textual import there would be a slip): checked in a
+    # fresh interpreter, so imports made by other tests do not count.
+    code = ("import sys\n"
+            "import tui.pipeline, tui.recorder, tui.headless.production, tui.headless.tuning\n"
+            "import tui.commands.monitor, tui.commands.record, tui.commands.check, tui.commands.replay\n"
+            "import tui.commands.tune, tui.cli\n"
+            "tui.cli.build_parser()\n"
+            "print(sorted(m for m in sys.modules if m.split('.')[0] == 'textual'))\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120, cwd=ROOT)
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.strip() == "[]"
