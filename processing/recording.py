@@ -34,7 +34,9 @@ A recording is a text file, one line per row, LF endings:
 
 A file that does not start with the format line is read as a raw capture of protocol v1 lines and fed
 through `protocol.decoder.Decoder`, with times made up from the frame count and the board's rate.
-This module owns the format; it has no Textual import and no knowledge of ports.
+This module owns the format and writes it; `processing.recording_format` holds the names and types the
+writer and the reader share, `processing.recording_read` reads. No Textual import, no threads, no ports:
+the front ends write through a writer thread of their own (`tui.recorder`).
 """
 
 from __future__ import annotations
@@ -44,12 +46,18 @@ import os
 import string
 import time
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass, field
 from pathlib import Path
 from urllib.parse import quote
 
-import numpy as np
-
+# The format's shared names and the reader are part of this module's API too (`read_recording` and
+# `Mark` are usually imported from here); the reader imports only `recording_format`, so no cycle.
+from processing.recording_format import FORMAT_LINE, FORMAT_PREFIX, HEADER_START, MARK_KINDS, Mark, Recording
+from processing.recording_read import (
+    info_from_fields,
+    parse_raw_capture,
+    parse_recording_text,
+    read_recording,
+)
 from protocol.errors import UserError
 from protocol.events import (
     BoardChanged,
@@ -63,82 +71,12 @@ from protocol.events import (
 )
 from protocol.info import name_problem
 
-FORMAT_LINE = "# padtune recording v1"
-FORMAT_PREFIX = "# padtune recording v"
-HEADER_START = "t_s,seq"
-MARK_KINDS = ("note", "touch-start", "touch-end", "quiet-start", "quiet-end")
+__all__ = ["FORMAT_LINE", "FORMAT_PREFIX", "HEADER_START", "MARK_KINDS", "Mark", "Recording",
+           "RecordingWriter", "format_event", "format_frames", "format_header", "format_mark",
+           "format_stream_row", "header_names", "info_from_fields", "parse_raw_capture",
+           "parse_recording_text", "read_recording", "utc_stamp"]
+
 _SAFE = "".join(c for c in string.punctuation if c != "%")
-
-
-@dataclass(frozen=True, slots=True)
-class Mark:
-    """A user's mark in a recording.
-
-    `kind` is `note` (a moment worth finding again), `touch-start`/`touch-end` (the named `channel` is
-    touched between the two), or `quiet-start`/`quiet-end` (hands off between the two).
-    """
-
-    t_s: float
-    kind: str = "note"
-    channel: str | None = None
-    text: str = ""
-
-
-@dataclass
-class Recording:
-    """A recording read back: metadata, events in stream order (ready for `Session.handle`), marks."""
-
-    path: str
-    version: int | None  # None for a raw capture
-    meta: dict[str, str] = field(default_factory=dict)
-    events: list[Event] = field(default_factory=list)
-    marks: list[Mark] = field(default_factory=list)
-    names: tuple[str, ...] = ()
-    truncated: bool = False  # the last line was partial and was dropped
-
-    @property
-    def info(self) -> BoardInfo | None:
-        return next((e for e in self.events if isinstance(e, BoardInfo)), None)
-
-    @property
-    def blocks(self) -> list[FrameBlock]:
-        return [e for e in self.events if isinstance(e, FrameBlock)]
-
-    @property
-    def frames(self) -> int:
-        return sum(len(b) for b in self.blocks)
-
-    @property
-    def channels(self) -> int | None:
-        blocks = self.blocks
-        if blocks:
-            return blocks[-1].channels
-        info = self.info
-        return info.channels if info else None
-
-    @property
-    def rate_hz(self) -> float | None:
-        """The board's nominal rate, else the rate measured from the host times."""
-        info = self.info
-        if info and info.rate_hz:
-            return info.rate_hz
-        t_s, _, _ = self.arrays()
-        if len(t_s) > 1 and t_s[-1] > t_s[0]:
-            return float((len(t_s) - 1) / (t_s[-1] - t_s[0]))
-        return None
-
-    def arrays(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """All frames of the last width: (t_s, seq, readings (n, channels))."""
-        blocks = self.blocks
-        if not blocks:
-            return np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 0), np.int64)
-        width = blocks[-1].channels
-        same = [b for b in blocks if b.channels == width]
-        return (
-            np.concatenate([b.t_s for b in same]),
-            np.concatenate([b.seq for b in same]),
-            np.concatenate([b.readings for b in same]),
-        )
 
 
 # ---------------------------------------------------------------- formatting (pure)
@@ -224,6 +162,9 @@ def utc_stamp(epoch_s: float) -> str:
 
 class RecordingWriter:
     """Writes events to a recording file as they come; whole rows only, flushed every `flush_interval_s`.
+
+    It writes on the caller's thread: front ends use `tui.recorder.Recorder`, which runs one of these on
+    a writer thread of its own.
 
     `origin_t_s` is the event clock's value that becomes time 0 (default: `clock()` now). Call
     `write_events` with every batch the link hands over (frames, info, faults ...), `mark` for user marks,
@@ -338,11 +279,8 @@ class RecordingWriter:
             return
         data = "".join(self._buffer).encode("utf-8")
         self._buffer.clear()
-        view = memoryview(data)
         try:
-            while view:
-                written = os.write(self._fd, view)
-                view = view[written:]
+            self._write_all(data)
         except OSError as exc:
             # A full disk or a vanished drive: stop writing, keep what reached the file, and say so in
             # one line (the reader drops a partial last row, so the file stays readable).
@@ -353,6 +291,14 @@ class RecordingWriter:
                 "this point are kept"
             ) from None
         self._last_flush_s = self._clock()
+
+    def _write_all(self, data: bytes) -> None:
+        """Every byte of `data` to the file (a short write is continued); OSError as the OS says."""
+        assert self._fd is not None
+        view = memoryview(data)
+        while view:
+            written = os.write(self._fd, view)
+            view = view[written:]
 
     def close(self) -> None:
         if self._fd is None:
@@ -373,16 +319,3 @@ class RecordingWriter:
 
     def __exit__(self, *exc: object) -> None:
         self.close()
-
-
-# Reading lives in processing.recording_read; its functions are part of this module's API too, looked
-# up on first use (PEP 562) because that module imports this one.
-_READERS = ("info_from_fields", "parse_raw_capture", "parse_recording_text", "read_recording")
-
-
-def __getattr__(name: str) -> object:
-    if name in _READERS:
-        from processing import recording_read
-
-        return getattr(recording_read, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -1,7 +1,8 @@
 """Reading padtune recordings (and raw captures of protocol lines) back into events, marks and metadata.
 
-The format is described in `processing.recording`. Parsing is pure; `read_recording` is the only
-function here that touches the file system. Damaged files raise `UserError` as `file:line: what`.
+The format is described in `processing.recording`; the names and types shared with the writer come from
+`processing.recording_format`. Parsing is pure; `read_recording` is the only function here that touches
+the file system. Damaged files raise `UserError` as `file:line: what`.
 """
 
 from __future__ import annotations
@@ -14,7 +15,7 @@ from urllib.parse import unquote
 
 import numpy as np
 
-from processing.recording import FORMAT_LINE, FORMAT_PREFIX, HEADER_START, MARK_KINDS, Mark, Recording
+from processing.recording_format import FORMAT_LINE, FORMAT_PREFIX, HEADER_START, MARK_KINDS, Mark, Recording
 from protocol.errors import UserError
 from protocol.events import (
     BoardChanged,

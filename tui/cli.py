@@ -20,6 +20,7 @@ import devices
 from tui import commands
 from tui.errors import UserError
 from tui.polarity_arg import glue_polarity
+from tui.version import padtune_version
 
 
 class OneLineParser(argparse.ArgumentParser):
@@ -34,6 +35,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog="padtune",
         description="Bring up and tune capacitive touch keys live over a serial port.",
     )
+    parser.add_argument("--version", action="version", version=f"padtune {padtune_version()}",
+                        help="print padtune's version and exit")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for info in sorted(pkgutil.iter_modules(commands.__path__), key=lambda m: m.name):
         if info.name.startswith("_"):

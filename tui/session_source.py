@@ -1,9 +1,12 @@
 """The `LiveSource` the app runs on: a link (anything with `drain()`) feeding a `processing.Session`.
 
-Runs entirely on the UI thread: `poll()` takes what the link's reader thread queued, hands it to the
-session, writes it to the recording when one is open, and counts frames for the fps figure. The
-snapshots for drawing come from the session's engine and measures; the noise figures are refreshed
-twice a second (`Measures.qualities()`, all channels in one pass), the rest every frame.
+`poll()` runs on the UI thread: one step of the front ends' shared `tui.pipeline.Pipeline` (take what
+the link's reader thread queued, hand it to the recording's writer thread, feed the session), then it
+counts frames for the fps figure and turns the step into a `Tick`. Recording never waits for the disk
+here: writes and the fsync run on the recorder's thread, and a recording that stopped by itself (a
+full disk) comes back in `Tick.errors` and `LinkView.recording_error`. The snapshots for drawing come
+from the session's engine and measures; the noise figures are refreshed twice a second
+(`Measures.qualities()`, all channels in one pass), the rest every frame.
 """
 
 from __future__ import annotations
@@ -12,20 +15,17 @@ import time
 from collections import deque
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Protocol
 
 import numpy as np
 
 from processing.fixed import to_counts
 from processing.measure import MIN_SPECTRUM_SAMPLES, ChannelQuality, spectrum_peak
 from processing.profile import Profile, load_profile, save_profile
-from processing.recording import RecordingWriter
 from processing.session import Session
 from processing.settings import ChannelSettings
 from protocol.errors import UserError
 from protocol.events import (
     BoardInfo,
-    Event,
     FaultKind,
     FrameBlock,
     LinkFault,
@@ -35,6 +35,7 @@ from protocol.events import (
     StreamForm,
 )
 from protocol.linkwatch import SILENT_AFTER_S
+from tui.pipeline import Pipeline, Producer
 from tui.render.views import ChannelView, GroupView, LinkView, SliderView
 from tui.source import Tick
 from tui.widgets.detail_panel import Series, Spectrum
@@ -44,17 +45,6 @@ PLOT_SECONDS = 8.0
 QUALITY_EVERY_S = 0.5
 
 
-class Producer(Protocol):
-    """What the source needs of a link: `protocol.link.Link` provides it, and so can a test feed."""
-
-    def drain(self, max_events: int | None = None) -> list[Event]: ...
-    def write(self, data: bytes) -> bool | None: ...
-    @property
-    def stats(self) -> LinkStats: ...
-    @property
-    def state(self) -> LinkState: ...
-
-
 class SessionSource:
     def __init__(self, producer: Producer, *, profile: Profile | None = None,
                  profile_path: Path | None = None, port: str = "", baud: int = 115200,
@@ -62,6 +52,7 @@ class SessionSource:
                  clock: Callable[[], float] = time.monotonic, session: Session | None = None) -> None:
         self.producer = producer
         self.session = session or Session(profile)
+        self.pipeline = Pipeline(producer, self.session, clock=clock, source=port)
         self._path = profile_path
         self._saved: Profile | None = profile
         self.port, self.baud = port, baud
@@ -78,9 +69,6 @@ class SessionSource:
         # had read this many bytes; None once bytes or frames flow again.
         self._last_frame_t_s: float = clock()
         self._silent_bytes: int | None = None
-        self._recorder: RecordingWriter | None = None
-        self._recording_error: str | None = None  # why the last recording stopped by itself
-        self._errors: deque[str] = deque()  # for the next tick: things that went wrong between polls
         self.exit_problems: list[str] = []
 
     # -- data in ----------------------------------------------------------------------------------
@@ -89,9 +77,9 @@ class SessionSource:
         return self.session.rate_hz if self.session.engine else None
 
     def poll(self) -> Tick:
-        events = self.producer.drain()
-        tick = Tick()
-        for ev in events:
+        step = self.pipeline.step()
+        tick = Tick(detections=step.detections)
+        for ev in step.events:
             if isinstance(ev, FrameBlock):
                 tick.blocks.append(ev)
                 tick.frames += len(ev)
@@ -107,12 +95,9 @@ class SessionSource:
                     self._scale = ev.scale
                 elif isinstance(ev, BoardInfo) and ev.new_session:
                     self._scale = 1  # a restarted board's form is recognised again
-        tick.detections = list(self.session.handle(events))
         if self._saved is None and self.session.profile is not None:
             self._saved = self.session.profile  # the defaults the board came up with: nothing to save yet
-        self._record(events)
-        while self._errors:
-            tick.errors.append(self._errors.popleft())
+        tick.errors.extend(f"recording stopped: {reason}" for reason in step.recording_errors)
         now = self.clock()
         if tick.frames:
             self._last_frame_t_s, self._silent_bytes = now, None
@@ -221,8 +206,8 @@ class SessionSource:
             frames=stats.frames, lost=stats.lost, garbled=stats.garbled + stats.overlong,
             bad_checksum=stats.bad_checksum, resets=stats.resets, overflow=stats.overflow,
             detail=self._status_detail, board=(info.board if info else None),
-            recording=str(self._recorder.path) if self._recorder else None,
-            recording_error=self._recording_error,
+            recording=str(self.pipeline.recording_path) if self.pipeline.recording_path else None,
+            recording_error=self.pipeline.recording_error,
             profile_name=path.name if path else "(not saved yet)", unsaved=self.unsaved(),
             silent_s=self._silent_s(), silence=self._silence(stats), scale=self._scale,
         )
@@ -357,62 +342,31 @@ class SessionSource:
 
     # -- recording --------------------------------------------------------------------------------
     def start_recording(self, path: Path) -> None:
-        if self._recorder is not None:
-            raise UserError(f"already recording to {self._recorder.path}")
-        self._recorder = RecordingWriter(path, source=self.port, clock=self.clock, info=self.session.info)
-        self._recording_error = None
+        """Open a recording (UserError at once: a bad name, an existing file, a full disk)."""
+        self.pipeline.start_recording(path)
 
     def stop_recording(self) -> Path | None:
-        """Close the recording; raises UserError when its last rows could not be written (disk full)."""
-        rec, self._recorder = self._recorder, None
-        if rec is None:
-            return None
-        try:
-            rec.close()
-        except UserError as exc:
-            self._recording_error = str(exc)
-            raise
-        return rec.path
+        """Stop the recording and return its path at once: its writer thread finishes the file. A failure
+        to write the last rows comes in a later tick's `errors` (and `LinkView.recording_error`); one
+        already known raises UserError here."""
+        return self.pipeline.stop_recording()
 
     def mark(self, kind: str = "note", channel: str | None = None, text: str = "",
              t_s: float | None = None) -> bool:
         """Write a mark (`processing.recording.MARK_KINDS`) at `t_s` (default now) into the recording.
 
         False when nothing is being recorded. A failed write stops the recording and is reported in
-        the next tick's `errors`, like a failure while frames are written: callers never see it raise.
+        a later tick's `errors`, like a failure while frames are written: callers never see it raise.
         A mark kind that does not exist is a programming error and raises UserError.
         """
-        rec = self._recorder
-        if rec is None:
-            return False
-        try:
-            rec.mark(self.clock() if t_s is None else t_s, kind, channel, text)
-        except UserError as exc:
-            if not rec.closed:
-                raise  # an unknown kind: nothing was written and the recording goes on
-            self._recording_failed(exc)
-            return False
-        return True
-
-    def _record(self, events: list[Event]) -> None:
-        """Hand a poll's events to the recording (the writer flushes on its own schedule, even with none)."""
-        if self._recorder is None:
-            return
-        try:
-            self._recorder.write_events(events)
-        except UserError as exc:  # a full disk, a vanished drive: the writer has closed its file
-            self._recording_failed(exc)
-
-    def _recording_failed(self, exc: UserError) -> None:
-        self._recorder = None
-        self._recording_error = str(exc)
-        self._errors.append(f"recording stopped: {exc}")
+        return self.pipeline.mark(self.clock() if t_s is None else t_s, kind, channel, text) is not None
 
     def close(self) -> None:
-        """Stop the recording at exit. A failure to write its last rows is kept in `exit_problems`
-        (the screen is closing: `tui.live.run_live` prints them once it is gone)."""
+        """Stop the recording at exit and wait (a few seconds at most) for its file to be finished. A
+        failure is kept in `exit_problems` (the screen is closing: `tui.live.run_live` prints them once
+        it is gone)."""
         try:
-            self.stop_recording()
+            self.pipeline.close_recording()
         except UserError as exc:
             self.exit_problems.append(str(exc))
 

@@ -1,7 +1,8 @@
 """What the live screen needs from a running session, and the one implementation that provides it.
 
-The app talks only to `LiveSource`: once per screen frame it calls `poll()` (which drains the link and
-feeds the session), then asks for snapshots to draw. Edits, re-baselines, recording and the profile go
+The app talks only to `LiveSource`: once per screen frame it calls `poll()` (one step of the front ends'
+shared `tui.pipeline.Pipeline`: drain the link, hand it to the recording's writer thread, feed the
+session), then asks for snapshots to draw. Edits, re-baselines, recording and the profile go
 through it too. Keeping this seam narrow lets tests drive the real app with recorded or synthetic
 events instead of a port, and keeps the app free of engine internals.
 """
@@ -13,6 +14,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Protocol
 
+from processing.detections import DetectionEvent
 from processing.settings import ChannelSettings
 from protocol.events import Event, FrameBlock
 from tui.render.views import ChannelView, GroupView, LinkView, SliderView
@@ -23,7 +25,7 @@ from tui.widgets.detail_panel import Series, Spectrum
 class Tick:
     """What one poll brought: detection events and the link's other events, in stream order."""
 
-    detections: list[object] = field(default_factory=list)
+    detections: list[DetectionEvent] = field(default_factory=list)
     events: list[Event] = field(default_factory=list)  # everything but FrameBlocks
     blocks: list[FrameBlock] = field(default_factory=list)  # for screens that watch raw frames (capture)
     frames: int = 0

@@ -58,6 +58,47 @@ def test_record_command_on_a_full_disk_exits_2_with_one_line():
     assert "Traceback" not in out.stderr
 
 
+def test_monitor_recording_to_a_full_disk_exits_2_with_one_line():
+    out = subprocess.run(
+        [sys.executable, "-m", "tui.cli", "monitor", "sim://greenhouse?speed=8&seed=3", "--duration", "3",
+         "--record", "/dev/full", "--force", "--json"],
+        capture_output=True, text=True, timeout=120,
+    )
+    assert out.returncode == 2, out.stderr
+    lines = out.stderr.strip().splitlines()
+    assert len(lines) == 1 and "No space left on device" in lines[0], out.stderr
+    assert "Traceback" not in out.stderr
+
+
+@pytest.mark.parametrize("command", ["monitor", "record"])
+def test_a_disk_that_fills_up_mid_run_ends_the_command_with_one_line(command, tmp_path, monkeypatch, capsys):
+    # In-process, so the disk can fill up after the head is written: every later write fails as a
+    # full disk's does (ENOSPC), on the recording's writer thread.
+    import errno
+
+    from tui import cli
+
+    real = RecordingWriter._write_all
+    writes = []
+
+    def filling(self, data):
+        writes.append(len(data))
+        if len(writes) > 1:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+        real(self, data)
+
+    monkeypatch.setattr(RecordingWriter, "_write_all", filling)
+    target = tmp_path / "run.csv"
+    port = "sim://greenhouse?speed=8&seed=3"
+    args = (["monitor", port, "--json", "--record", str(target)] if command == "monitor"
+            else ["record", port, "-o", str(target)])
+    assert cli.main([*args, "--duration", "30"]) == 2  # ends at the failure, long before 30 s
+    err = capsys.readouterr().err.strip().splitlines()  # monitor's notices come first, on stderr too
+    told = [line for line in err if "No space left on device" in line]
+    assert told == [err[-1]] and "rows written before" in err[-1] and "Traceback" not in "".join(err)
+    assert target.read_text().startswith("# padtune recording v1")  # the head stays readable
+
+
 def test_replay_refuses_a_device_that_never_ends():
     out = subprocess.run([sys.executable, "-m", "tui.cli", "replay", "/dev/zero"],
                          capture_output=True, text=True, timeout=60)

@@ -547,11 +547,13 @@ async def test_a_full_disk_stops_the_recording_says_why_and_the_app_runs_on(tmp_
         run(app, feed, 0.5)
         assert "⏺ REC" in screen_text(app)
         # The disk fills up: every write from now on fails as on a full disk (ENOSPC from /dev/full).
-        writer = app.source._recorder  # type: ignore[attr-defined]
+        pipeline = app.source.pipeline  # type: ignore[attr-defined]
         full = os.open("/dev/full", os.O_WRONLY)
-        os.dup2(full, writer._fd)
+        os.dup2(full, pipeline.recorder.writer._fd)
         os.close(full)
-        run(app, feed, 1.0)  # the writer flushes every 0.25 s: the failure comes inside a screen tick
+        run(app, feed, 1.0)  # the writer thread flushes every 0.25 s (the feed's clock) and fails
+        assert pipeline.settle(30.0)
+        run(app, feed, 0.05)  # the next screen tick tells it
         await pilot.pause()
         shown = screen_text(app)
         assert "✗ REC FAILED (disk full)" in shown
@@ -573,16 +575,18 @@ async def test_a_recording_to_dev_full_fails_on_stop_with_the_reason(tmp_path: P
         run(app, feed, 0.2)
         source = app.source
         source.start_recording(tmp_path / "r.csv")  # type: ignore[attr-defined]
-        writer = source._recorder  # type: ignore[attr-defined]
+        pipeline = source.pipeline  # type: ignore[attr-defined]
         full = os.open("/dev/full", os.O_WRONLY)
-        os.dup2(full, writer._fd)
+        os.dup2(full, pipeline.recorder.writer._fd)
         os.close(full)
         feed.advance(0.05)
         source.poll()  # buffered, not yet flushed (the flush comes every 0.25 s)
-        await pilot.press("r")  # stop: the last rows cannot be written
+        await pilot.press("r")  # stop: the writer thread cannot write the last rows
+        assert pipeline.settle(30.0)
+        run(app, feed, 0.05)  # the next screen tick tells it
         await pilot.pause()
         assert "REC FAILED" in screen_text(app)
-        assert "recording stopped" in log_text(app)
+        assert "recording stopped" in log_text(app) and "No space left on device" in log_text(app)
         assert not isinstance(app.screen, PromptScreen)
 
 
@@ -601,20 +605,21 @@ def test_source_mark_writes_typed_marks_and_reports_a_failed_write(tmp_path: Pat
         source.mark("touch-begin", "zone2")
     assert source.link_view().recording is not None  # a bad kind writes nothing and stops nothing
     path = source.stop_recording()
-    assert path is not None
+    assert path is not None and source.pipeline.settle(30.0)  # its writer thread finishes the file
     marks = read_recording(path).marks
     assert [(m.kind, m.channel, m.text) for m in marks] == [("touch-start", "zone2", "hold zone 2"),
                                                             ("touch-end", "zone2", "")]
     assert marks[1].t_s == pytest.approx(marks[0].t_s + 0.1)
 
     source.start_recording(tmp_path / "m2.csv")
-    writer = source._recorder
-    assert writer is not None
+    recorder = source.pipeline.recorder
+    assert recorder is not None
     full = os.open("/dev/full", os.O_WRONLY)
-    os.dup2(full, writer._fd)  # type: ignore[arg-type]
+    os.dup2(full, recorder.writer._fd)  # type: ignore[arg-type]
     os.close(full)
-    writer.flush_interval_s = 0.0  # the mark is handed to the disk at once, and fails
-    assert source.mark("note", text="lost") is False
+    recorder.writer.flush_interval_s = 0.0  # the writer thread hands the mark to the disk at once
+    assert source.mark("note", text="lost")  # handed over: the caller never waits for the disk
+    assert source.pipeline.settle(30.0)
     assert source.link_view().recording is None
     assert "No space left" in (source.link_view().recording_error or "")
     feed.advance(0.05)

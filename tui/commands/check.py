@@ -2,7 +2,7 @@
 
 Hands off for `--duration` seconds (alive, noise, stuck), then with `--touch` each key in turn. Prints
 a pass/fail table (or one JSON report with `--json`); exit 0 when every channel passes, 1 otherwise,
-2 for a usage or input error. See `tui.headless.production` for what each check means.
+2 for a usage or input error. See `processing.acceptance` for what each check means.
 """
 
 from __future__ import annotations
@@ -13,7 +13,11 @@ import sys
 import time
 from typing import Any
 
+from rich.console import Console
+
+from processing.acceptance import ChannelVerdict, UnitProbe, evaluate
 from processing.session import Session
+from processing.settings import Limits
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import (
@@ -24,13 +28,8 @@ from tui.headless.ports import (
     quiet_broken_pipe,
     seconds,
 )
-from tui.headless.production import UnitProbe, evaluate, touch_figures
+from tui.headless.production import assume_rising, probe_pipeline, quiet_phase, touch_phase
 from tui.polarity_arg import add_polarity_arg
-
-TICK_S = 0.02
-# A board that resets when its port opens (many USB boards do) may take a couple of seconds to send
-# its first frame; the hands-off time counts from that frame (common practice, no source).
-FIRST_FRAME_WAIT_S = 5.0
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -52,59 +51,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.set_defaults(func=run)
 
 
-def _poll(link: Any, probe: UnitProbe, until_s: float, stop: StopFlag, done: Any = None) -> None:
-    while not stop.stopped and time.monotonic() < until_s:
-        probe.feed(link.drain())
-        if done is not None and done():
-            return
-        time.sleep(TICK_S)
-
-
-def _quiet_phase(link: Any, probe: UnitProbe, duration_s: float, stop: StopFlag,
-                 on_first_frame: Any = None) -> bool:
-    """Wait for the first frame, then measure hands off for `duration_s`; False when no frame came."""
-    wait_s = max(FIRST_FRAME_WAIT_S, duration_s)
-    _poll(link, probe, time.monotonic() + wait_s, stop, lambda: probe.quiet_frames > 0)
-    if probe.quiet_frames == 0:
-        return False
-    if on_first_frame is not None:
-        on_first_frame()
-    _poll(link, probe, time.monotonic() + duration_s, stop)
-    return True
-
-
-def _assume_rising(session: Session, say: Any) -> None:
-    """A production check does not learn a polarity from touches (its touch step would go to the lesson):
-    where neither the profile, the board nor --polarity gives one, it checks with + and says so."""
-    unknown = [c for c, sign in enumerate(session.polarity) if sign is None]
-    if not unknown:
-        return
-    names = ", ".join(session.names[c] for c in unknown[:8]) + (", ..." if len(unknown) > 8 else "")
-    say(f"padtune: no polarity for {names} (the profile and the board do not say): checking with + "
-        "(counts rise on touch); give --polarity, or a profile saved with its polarity")
-    for c in unknown:
-        session.set_polarity(c, 1)
-
-
-def _touch_phase(link: Any, probe: UnitProbe, names: list[str], timeout_s: float, stop: StopFlag,
-                 say: Any) -> None:
-    probe.phase = "touch"
-    for c, name in enumerate(names):
-        if c in probe.done_keys:
-            continue
-        say(f"touch and hold {name}, then let go")
-        deadline = time.monotonic() + timeout_s
-        _poll(link, probe, deadline, stop, lambda c=c: c in probe.done_keys)
-        if c in probe.done_keys:
-            signal, snr = touch_figures(probe, c)
-            shown = f", SNR {snr:.1f}" if snr is not None else ""
-            say(f"  {name}: touch seen, delta {signal:.0f} counts{shown}")
-        else:
-            say(f"  {name}: no touch seen in {timeout_s:g} s")
-        if stop.stopped:
-            return
-
-
 def run(args: argparse.Namespace) -> int:
     if args.report:
         from tui.report import check_report_path, require_matplotlib
@@ -112,15 +58,17 @@ def run(args: argparse.Namespace) -> int:
         require_matplotlib()
         check_report_path(args.report)
     profile = load_profile_arg(args.profile)
+    assert profile is not None  # --profile is required
     console = make_console(stderr=True)
     session = Session(profile, polarity=args.polarity)
     link = open_link(args.port, args.baud)
     origin = time.monotonic()
     probe = UnitProbe(session, origin)
+    pipeline = probe_pipeline(link, probe, source=args.port)
     try:
         with StopFlag() as stop:
-            rising = lambda: _assume_rising(session, lambda m: console.print(m))  # noqa: E731
-            if not _quiet_phase(link, probe, args.duration, stop, rising) and not stop.stopped:
+            rising = lambda: assume_rising(session, console.print)  # noqa: E731
+            if not quiet_phase(pipeline, probe, args.duration, stop, rising) and not stop.stopped:
                 elapsed_s = time.monotonic() - origin
                 return quiet_broken_pipe(lambda: _dead_unit(args, elapsed_s), code_on_pipe=1)
             names = list(session.names)
@@ -128,7 +76,7 @@ def run(args: argparse.Namespace) -> int:
                 raise UserError(f"the board has {session.channels} channels, the profile "
                                 f"{profile.channels}: use the profile made for this board")
             if args.touch:
-                _touch_phase(link, probe, names, args.touch_timeout, stop, lambda m: console.print(m))
+                touch_phase(pipeline, probe, names, args.touch_timeout, stop, console.print)
             if stop.stopped:
                 raise UserError("check interrupted: no verdict")
     finally:
@@ -146,7 +94,7 @@ def run(args: argparse.Namespace) -> int:
     return code
 
 
-def _report(args: argparse.Namespace, session: Session, limits: Any, verdicts: list,
+def _report(args: argparse.Namespace, session: Session, limits: Limits, verdicts: list[ChannelVerdict],
             elapsed_s: float) -> dict[str, Any]:
     """The JSON report (also what the HTML report is drawn from)."""
     keys = list(limits.__dataclass_fields__)
@@ -159,7 +107,8 @@ def _report(args: argparse.Namespace, session: Session, limits: Any, verdicts: l
             "limits": {k: getattr(limits, k) for k in keys}, "channels": [v.as_dict() for v in verdicts]}
 
 
-def _show(args: argparse.Namespace, report: dict[str, Any], verdicts: list, console: Any) -> int:
+def _show(args: argparse.Namespace, report: dict[str, Any], verdicts: list[ChannelVerdict],
+          console: Console) -> int:
     if args.json:
         sys.stdout.write(json.dumps(report) + "\n")
         return 0
@@ -186,7 +135,7 @@ def _dead_unit(args: argparse.Namespace, elapsed_s: float) -> int:
     return 1
 
 
-def _print_table(verdicts: list, touch: bool) -> None:
+def _print_table(verdicts: list[ChannelVerdict], touch: bool) -> None:
     out = make_console()
     rows = []
     for v in verdicts:

@@ -16,7 +16,7 @@ from devices import physics
 from devices.boards import load_board
 from devices.estimate import DEFAULT_COMPONENTS, Estimate, EstimateInput, estimate
 from devices.materials import MATERIALS, get_material
-from devices.methods import FILE_KEYS, method_from_table
+from devices.methods import FILE_KEYS, Method, method_from_table
 from protocol.errors import UserError
 
 
@@ -131,11 +131,11 @@ def _from_board(args: argparse.Namespace) -> dict[str, object]:
             "hum_pf": spec.noise.hum_pf * (1 + spec.noise.hum_harmonic2)}
 
 
-def _method(args: argparse.Namespace, board_method: object | None) -> object:
-    if board_method is not None and args.method in (None, board_method.kind):  # type: ignore[attr-defined]
+def _method(args: argparse.Namespace, board_method: Method | None) -> Method:
+    if board_method is not None and args.method in (None, board_method.kind):
         if not args.set:
             return board_method
-        kind, base = board_method.kind, _file_units(board_method)  # type: ignore[attr-defined]
+        kind, base = board_method.kind, _file_units(board_method)
     else:
         kind = args.method or "charge_time"
         base = DEFAULT_COMPONENTS[kind]
@@ -157,7 +157,7 @@ def build_input(args: argparse.Namespace) -> EstimateInput:
     if args.pad_name and not args.board:
         raise UserError("--pad names a pad of a board file: give --board too")
     fields = _from_board(args) if args.board else {}
-    fields["method"] = _method(args, fields.get("method"))
+    fields["method"] = _method(args, fields.get("method"))  # type: ignore[arg-type]
     _pad_and_parasitic(args, fields)
     if args.material:
         fields["material"] = get_material(args.material)
@@ -183,10 +183,10 @@ def build_input(args: argparse.Namespace) -> EstimateInput:
     return EstimateInput(**fields)  # type: ignore[arg-type]
 
 
-def _file_units(method: object) -> dict[str, float]:
+def _file_units(method: Method) -> dict[str, float]:
     """The method's components back in file units (so --set can change one of a board's parts)."""
     out = {}
-    for key, (arg, factor) in FILE_KEYS[method.kind].items():  # type: ignore[attr-defined]
+    for key, (arg, factor) in FILE_KEYS[method.kind].items():
         out[key] = getattr(method, arg) / factor
     return out
 

@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 import time
 
-from processing.recording import RecordingWriter
 from processing.session import Session
 from tui.headless.output import make_output
 from tui.headless.ports import (
@@ -13,11 +12,12 @@ from tui.headless.ports import (
     add_port_args,
     load_profile_arg,
     open_link,
-    pump,
     quiet_broken_pipe,
     seconds,
+    stop_on_recording_error,
 )
 from tui.headless.runner import DetectionRun
+from tui.pipeline import Pipeline
 from tui.polarity_arg import add_polarity_arg
 
 
@@ -49,27 +49,17 @@ def _run(args: argparse.Namespace) -> int:
     clock = time.monotonic
     origin = clock()  # before the link starts, so its first events have t >= 0
     link = open_link(args.port, args.baud, clock)
-    recorder = None
+    run_ = DetectionRun(Session(profile, polarity=args.polarity), make_output(args.json), origin_t_s=origin,
+                        every_s=args.every, link_warnings=True)
+    pipeline = Pipeline(link, run_.session, feed=run_.feed, clock=clock, source=args.port)
     try:
         if args.record:
-            recorder = RecordingWriter(args.record, source=args.port, clock=clock, origin_t_s=origin,
-                                       overwrite=args.force)
+            pipeline.start_recording(args.record, origin_t_s=origin, overwrite=args.force)
     except BaseException:
         link.stop()
         raise
-    run_ = DetectionRun(Session(profile, polarity=args.polarity), make_output(args.json), origin_t_s=origin,
-                        every_s=args.every, link_warnings=True)
-
-    def consume(events: list, now: float) -> None:
-        if recorder is not None:
-            recorder.write_events(events)
-        run_.feed(events, now)
-
-    try:
-        with StopFlag() as stop:
-            end = pump(link, consume, duration_s=args.duration, clock=clock, stop=stop, start_t_s=origin)
-    finally:
-        if recorder is not None:
-            recorder.close()
-    run_.finish(end)
+    until = None if args.duration is None else origin + args.duration
+    with StopFlag() as stop:
+        last = pipeline.run_to_end(until_s=until, stop=stop, on_step=stop_on_recording_error)
+    run_.finish(last.t_s)
     return 0

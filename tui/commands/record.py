@@ -1,7 +1,8 @@
 """`padtune record PORT_OR_URL -o FILE`: write everything a board sends to a CSV recording.
 
-The file format is `processing.recording` (README, "Recordings"). Rows reach the disk at least every
-quarter second, so a crash or `kill -9` loses at most that and the file stays readable. On a terminal,
+The file format is `processing.recording` (README, "Recordings"). The link's events go through the
+front ends' `tui.pipeline.Pipeline` to a writer thread (`tui.recorder`): rows reach the disk at least
+every quarter second, so a crash or `kill -9` loses at most that and the file stays readable. On a terminal,
 Enter writes a mark (with the typed text, if any) at that moment.
 """
 
@@ -13,11 +14,12 @@ import sys
 import threading
 import time
 
-from processing.recording import RecordingWriter
+from protocol.events import LinkFault
 from tui.headless.notices import NoticeGate
 from tui.headless.output import make_console
-from tui.headless.ports import StopFlag, add_port_args, open_link, pump, seconds
+from tui.headless.ports import StopFlag, add_port_args, open_link, seconds, stop_on_recording_error
 from tui.headless.runner import link_fault_text
+from tui.pipeline import Pipeline, Step
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -44,9 +46,9 @@ def run(args: argparse.Namespace) -> int:
     console = make_console(stderr=True)
     origin = clock()  # before the link starts, so its first events have t_s >= 0
     link = open_link(args.port, args.baud, clock)
+    pipeline = Pipeline(link, None, clock=clock, source=args.port)  # no detection: frames go to the file
     try:
-        writer = RecordingWriter(args.output, source=args.port, clock=clock, origin_t_s=origin,
-                                 overwrite=args.force)
+        recorder = pipeline.start_recording(args.output, origin_t_s=origin, overwrite=args.force)
     except BaseException:
         link.stop()
         raise
@@ -58,27 +60,26 @@ def run(args: argparse.Namespace) -> int:
 
     gate = NoticeGate()
 
-    def consume(events: list, now: float) -> None:
-        writer.write_events(events)
-        for ev in events:  # a silent or unreadable board: say so while recording, not only at the end
+    def on_step(step: Step) -> None:
+        stop_on_recording_error(step)
+        now = step.t_s
+        for ev in step.events:  # a silent or unreadable board: say so while recording, not only at the end
             told = link_fault_text(ev)
-            for line in gate.add(told, now, kind=ev.kind.value) if told else ():
-                console.print(f"padtune: {line}")
+            if told is not None and isinstance(ev, LinkFault):
+                for line in gate.add(told, now, kind=ev.kind.value):
+                    console.print(f"padtune: {line}")
         for line in gate.due(now):
             console.print(f"padtune: {line}")
         while not marks.empty():
             text = marks.get_nowait()
-            writer.mark(now, "note", text=text)
-            console.print(f"mark at {now - writer.origin_t_s:.2f} s" + (f": {text}" if text else ""))
+            if pipeline.mark(now, "note", text=text) is not None:
+                console.print(f"mark at {now - origin:.2f} s" + (f": {text}" if text else ""))
 
-    try:
-        with StopFlag() as stop:
-            end = pump(link, consume, duration_s=args.duration, clock=clock, stop=stop,
-                       start_t_s=writer.origin_t_s)
-    finally:
-        writer.close()
+    until = None if args.duration is None else origin + args.duration
+    with StopFlag() as stop:
+        last = pipeline.run_to_end(until_s=until, stop=stop, on_step=on_step)
     for line in gate.flush():
         console.print(f"padtune: {line}")
-    console.print(f"recorded {writer.frames_written} frames in {end - writer.origin_t_s:.1f} s "
-                  f"({writer.marks_written} marks) to {args.output}")
+    console.print(f"recorded {recorder.frames_written} frames in {last.t_s - origin:.1f} s "
+                  f"({recorder.marks_written} marks) to {args.output}")
     return 0

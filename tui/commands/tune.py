@@ -16,10 +16,11 @@ from pathlib import Path
 from processing.profile import save_profile
 from processing.recording import read_recording
 from processing.settings import LIMIT_KEYS
+from processing.tuning import TuneResult, limits_from_result, tune_recording
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import frame_rate, load_profile_arg, percentage, quiet_broken_pipe
-from tui.headless.tuning import TuneResult, limits_from_result, result_rows, tune_recording
+from tui.headless.tuning import result_rows
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -100,7 +101,7 @@ def print_result(result: TuneResult, out: Path) -> None:
     for row in rows:
         if row["refusal"]:
             console.print(f"{row['name']}: no suggestion: {row['refusal']}")
-        for key, reason in row["reasons"].items():  # type: ignore[union-attr]
+        for key, reason in row["reasons"].items():
             console.print(f"{row['name']} {key}: {reason}")
     console.print("SNR = median touched delta / untouched noise (pp or RMS); verdict from SNR pp "
                   "(common practice: below 5 weak, 5-10 marginal, above 10 solid)")

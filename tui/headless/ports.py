@@ -2,6 +2,7 @@
 
 Everything a user can get wrong (a missing port, a busy one, a bad number) becomes a `UserError` or an
 argparse error with one clear line; a headless run stops cleanly on Ctrl-C, SIGTERM or a closed pipe.
+The run itself is the front ends' shared loop, `tui.pipeline.Pipeline`.
 """
 
 from __future__ import annotations
@@ -15,9 +16,14 @@ import time
 from collections.abc import Callable
 from pathlib import Path
 from types import FrameType
-from typing import Any
+from typing import TYPE_CHECKING
 
 from protocol.errors import UserError
+
+if TYPE_CHECKING:
+    from processing.profile import Profile
+    from protocol.link import Link
+    from tui.pipeline import Step
 
 DEFAULT_BAUD = 115200
 
@@ -71,7 +77,7 @@ def add_port_args(p: argparse.ArgumentParser) -> None:
                    help=f"baud rate (default {DEFAULT_BAUD}; no effect on socket:// URLs)")
 
 
-def load_profile_arg(text: str | None) -> Any:
+def load_profile_arg(text: str | None) -> Profile | None:
     """The profile named on the command line, or None (ProfileError/UserError say what is wrong)."""
     if text is None:
         return None
@@ -95,7 +101,7 @@ def baud_note(port: str, baud: int | None) -> str | None:
             "bridge's serial side (an rfc2217:// URL sets it from here)")
 
 
-def open_link(target: str, baud: int | None, clock: Callable[[], float] = time.monotonic) -> Any:
+def open_link(target: str, baud: int | None, clock: Callable[[], float] = time.monotonic) -> Link:
     """Start a `protocol.link.Link` on `target` (a missing, busy or forbidden port is a UserError).
 
     `baud` None means the option was not given (DEFAULT_BAUD is used); given with a socket:// URL, one
@@ -117,7 +123,7 @@ class StopFlag:
 
     def __init__(self) -> None:
         self.stopped = False
-        self._old: dict[int, Any] = {}
+        self._old: dict[int, Callable[[int, FrameType | None], object] | int | None] = {}
 
     def __enter__(self) -> StopFlag:
         for sig in (signal.SIGINT, signal.SIGTERM):
@@ -150,27 +156,8 @@ def quiet_broken_pipe(func: Callable[[], int], code_on_pipe: int = 0) -> int:
         return code_on_pipe
 
 
-def pump(link: Any, consume: Callable[[list[Any], float], None], *, duration_s: float | None,
-         clock: Callable[[], float] = time.monotonic, stop: StopFlag | None = None,
-         tick_s: float = 0.02, start_t_s: float | None = None) -> float:
-    """Drain `link` every `tick_s` into `consume(events, now)` until the duration is over or a stop.
-
-    Returns the time the run ended. The link is stopped and drained once more at the end, so what
-    arrived before the stop is not lost.
-    """
-    start = clock() if start_t_s is None else start_t_s
-    deadline = None if duration_s is None else start + duration_s
-    try:
-        while not (stop and stop.stopped):
-            consume(link.drain(), clock())
-            now = clock()
-            if deadline is not None and now >= deadline:
-                break
-            time.sleep(tick_s if deadline is None else max(0.0, min(tick_s, deadline - now)))
-    except KeyboardInterrupt:
-        pass
-    finally:
-        link.stop()
-    end = clock()
-    consume(link.drain(), end)
-    return end
+def stop_on_recording_error(step: Step) -> None:
+    """A headless run's recording that stopped by itself (a full disk) ends the command: UserError, one
+    line, exit 2 (the rows written before are kept)."""
+    if step.recording_errors:
+        raise UserError(step.recording_errors[0])

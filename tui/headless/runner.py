@@ -19,8 +19,8 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-from processing.detections import GroupChange, Release, SliderChange, StuckRelease, Touch
-from processing.recording import Mark
+from processing.detections import DetectionEvent, GroupChange, Release, SliderChange, StuckRelease, Touch
+from processing.recording_format import Mark
 from processing.session import Session
 from protocol.events import (
     BoardChanged,
@@ -119,9 +119,12 @@ class DetectionRun:
         names = self.session.names
         return names[channel] if channel < len(names) else f"ch{channel}"
 
-    def feed(self, events: Iterable[Event], now_t_s: float) -> None:
+    def feed(self, events: Iterable[Event], now_t_s: float) -> list[DetectionEvent]:
+        """Hand `events` to the session one by one and tell what happened; returns the detections (a
+        `tui.pipeline.Feed`: `monitor`'s pipeline calls this, `replay` calls it with recorded events)."""
+        found: list[DetectionEvent] = []
         for event in events:
-            self._event(event)
+            found.extend(self._event(event))
             if self.link_warnings and isinstance(event, LinkFault):
                 told = link_fault_text(event)
                 if told is not None:
@@ -132,6 +135,7 @@ class DetectionRun:
         for line in self.gate.due(now_t_s):
             self.warn(line)
         self.maybe_status(now_t_s)
+        return found
 
     def _tell(self, text: str, now_t_s: float, kind: str | None = None) -> None:
         for line in self.gate.add(text, now_t_s, kind):
@@ -140,14 +144,15 @@ class DetectionRun:
     def _rel(self, t_s: float) -> float:
         return t_s - self.origin_t_s
 
-    def _event(self, event: Event) -> None:
+    def _event(self, event: Event) -> list[DetectionEvent]:
         if isinstance(event, FrameBlock):
             self._say_form(len(event) and event.channels)
             self.frames += len(event)
-            for det in self.session.handle([event]):
+            found = self.session.handle([event])
+            for det in found:
                 self._detection(det)
-            return
-        self.session.handle([event])
+            return found
+        found = self.session.handle([event])  # detections come from frames: this is empty
         t = self._rel(event.t_s)
         if isinstance(event, BoardInfo):
             self._say_form(None)
@@ -164,13 +169,14 @@ class DetectionRun:
                 self.counts[_SUMMARY_FAULTS[event.kind]] += event.count
             if event.kind == FaultKind.BOARD_CHANGED and self._board_changed_seen:
                 self._board_changed_seen = False  # already told by the BoardChanged event
-                return
+                return found
             self.output.link(t, _FAULT_EVENTS.get(event.kind, event.kind.value), event.count, event.detail)
         elif isinstance(event, BoardChanged):
             self._board_changed_seen = True
             self.output.link(t, "board changed", 1, f"{event.old_channels} -> {event.channels} channels")
         elif isinstance(event, LinkStatus):
             self.output.link(t, event.state.value, 1, event.detail)
+        return found
 
     def _say_form(self, channels: int | None) -> None:
         """The waiting plain form's hello, with the width of the frames read in it when known."""
@@ -182,7 +188,7 @@ class DetectionRun:
             channels = len(form.names) or (info.channels if info else None)
         self.output.hello(self._rel(form.t_s), stream_form_dict(form, info, channels or None))
 
-    def _detection(self, det: object) -> None:
+    def _detection(self, det: DetectionEvent) -> None:
         if isinstance(det, Touch):
             t = self._rel(det.t_s)
             found = FoundTouch(det.channel, self.name(det.channel), det.index, t, det.delta_counts,

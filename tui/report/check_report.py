@@ -8,8 +8,8 @@ from typing import Any
 
 import numpy as np
 
+from processing.acceptance import UnitProbe
 from processing.session import Session
-from tui.headless.production import UnitProbe
 from tui.report import html
 from tui.report.plots import delta_plot, histogram_plot
 

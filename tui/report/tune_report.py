@@ -5,7 +5,8 @@ from __future__ import annotations
 
 from html import escape
 
-from tui.headless.tuning import TuneResult, result_rows
+from processing.tuning import TuneResult
+from tui.headless.tuning import result_rows
 from tui.report import html
 from tui.report.plots import delta_plot, histogram_plot
 

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from processing.acceptance import FAIL, PASS, UNCHECKED, UnitProbe, evaluate
 from processing.profile import profile_for
 from processing.session import Session
 from processing.settings import ChannelSettings, Limits
 from protocol.events import BoardInfo, FrameBlock
-from tui.headless.production import FAIL, PASS, UNCHECKED, UnitProbe, evaluate
 
 NAMES = ("a", "b", "c", "d")
 
