@@ -33,8 +33,8 @@ from processing.session import Session
 from processing.settings import ChannelSettings
 from protocol.events import FrameBlock
 from tui.fields import FIELDS
-from tui.headless.histogram import DeltaHistogram
 from tui.render.help import key_display
+from tui.render.histogram import DeltaHistogram
 
 TICK_S = 0.1
 # Two-line heads (the quantity over its form or unit) in plain words. Eleven columns with full words
