@@ -205,7 +205,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
     def compose(self) -> ComposeResult:
         with Vertical(id="capture-choose"):
             yield Static("Guided capture", classes="capture-title")
-            yield Static(CHOOSE_HELP, id="capture-choose-help")
+            yield Static("waiting for the board to say which keys it has…", id="capture-choose-help")
             yield OptionList(id="capture-choices")
             yield Input(placeholder="keys to capture", id="capture-keys")
             yield Static("", id="capture-choose-notice")
