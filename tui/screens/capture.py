@@ -1,9 +1,10 @@
 """The guided capture screen: choose the keys, hands off, then each key "touch and hold" and release;
 then suggestions.
 
-Three stages on one screen. First the user chooses which keys to capture: all of them, the key
-selected when the capture opened, an exclusive group or a slider's pads (from the profile), or keys
-typed as numbers, ranges and names (`processing.capture.choose_keys`: `3-10`, `stop, zone1-zone4`).
+Three stages on one screen. First the user chooses which keys to capture (`tui.widgets.key_choice`):
+all of them, the key selected when the capture opened, an exclusive group or a slider's pads (from the
+profile), or keys typed as numbers, ranges and names (`processing.capture.choose_keys`: `3-10`,
+`stop, zone1-zone4`).
 Then the steps: the step logic is `processing.capture.CaptureWizard` (pure); this screen only shows it
 and feeds it. It reads the frames the session has taken since the last tick from the session's bounded
 history, so it works while the app's own timer keeps polling the link (pass `poll` to drive the source
@@ -17,140 +18,49 @@ it still holds is let go when it closes. `a` applies the selected key's suggesti
 Esc closes. The screen dismisses with `{channel: ChannelSettings}` of what to apply (empty when
 nothing was).
 
-Open it with `open_capture(app)` (the app's `w` key does), or push `CaptureScreen(session, clock=...)`;
-given `channels=[...]` it skips the choice and captures those.
+What it draws is plain rich in `tui.render.capture`. Open it with `open_capture(app)` (the app's `w`
+key does), or push `CaptureScreen(session, clock=...)`; given `channels=[...]` it skips the choice and
+captures those.
 """
 
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable
 from typing import Any, ClassVar
 
 import numpy as np
-from rich.console import Group
-from rich.padding import Padding
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical, VerticalScroll
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Input, OptionList, ProgressBar, Static
-from textual.widgets.option_list import Option
+from textual.widgets import DataTable, Footer, ProgressBar, Static
 
 from processing.capture import (
     RELEASE,
     TOUCH,
     CaptureOutcome,
     CaptureWizard,
-    choose_keys,
     key_ranges,
-    steps_for,
     summarise,
 )
 from processing.recording import Mark
 from processing.session import Session
 from processing.settings import ChannelSettings
 from protocol.events import FrameBlock
-from tui.fields import FIELDS
-from tui.render import Styles
+from tui.render.capture import (  # noqa: F401  (setting_label, outcome_detail: what tests and callers read)
+    COLUMNS,
+    cell,
+    outcome_detail,
+    outcome_row,
+    setting_label,
+)
 from tui.render.help import key_display
 from tui.render.histogram import ROLES as HISTOGRAM_ROLES
-from tui.render.histogram import DeltaHistogram
+from tui.widgets.key_choice import KeyChoice
 
 TICK_S = 0.1
-# Two-line heads (the quantity over its form or unit) in plain words. Eleven columns with full words
-# cannot fit 80 cells, so the RMS forms of noise and SNR moved to the selected key's detail lines,
-# and the columns are one cell apart (each cell carries its own leading space) instead of two.
-COLUMNS: tuple[tuple[str, str], ...] = (
-    ("key", ""), ("noise", "pp"), ("touch", "delta"), ("SNR", "pp"), ("verdict", ""),
-    ("threshold", "counts"), ("hysteresis", "counts"), ("debounce", "frames"), ("applied", ""),
-)
-# Setting keys (as the suggestion's reasons carry them) -> the words the editor shows for them.
-_LABELS = {f.key: f.label for f in FIELDS}
-TYPE_KEYS = "type"  # the choice that moves to the field where keys are typed
-CHOOSE_HELP = "Which keys? ↑ ↓ and Enter; or type them (Tab): numbers, ranges, names"
-
-
-def typing_example(names: Sequence[str]) -> str:
-    """What typed keys look like on this board: a range of numbers, a range of names, one name."""
-    n = len(names)
-    numbers = "3-10" if n >= 10 else f"1-{n}"
-    if n < 3:
-        return numbers
-    return f"{numbers}, {names[0]}-{names[min(3, n - 2)]}, {names[-1]}"
-
-
-def setting_label(key: str) -> str:
-    """`threshold_counts` -> `threshold`: a setting key as the user reads it (unknown keys unchanged)."""
-    return _LABELS.get(key, key.replace("_", " "))
-
-
-def _cell(value: str) -> Text:
-    return Text(f" {value}")
-
-
-def _num(value: float | None, digits: int = 1) -> str:
-    return "-" if value is None else ("inf" if not np.isfinite(value) else f"{value:.{digits}f}")
-
-
-def outcome_row(o: CaptureOutcome, applied: bool) -> tuple[str, ...]:
-    f, s = o.figures, o.after
-    settings = (str(s.threshold_counts), str(s.hysteresis_counts),
-                f"{s.touch_debounce_frames}/{s.release_debounce_frames}") if o.suggested else ("-", "-", "-")
-    mark = "yes" if applied else ("-" if o.suggested else "none")
-    return (o.name, _num(f.noise_pp_counts), _num(f.signal_counts), _num(f.snr_pp), o.verdict, *settings,
-            mark)
-
-
-def _indented(text: str, left: int = 4) -> Padding:
-    """A detail line indented by `left` cells, its wrapped lines too."""
-    return Padding(Text(text), (0, 0, 0, left))
-
-
-def outcome_detail(o: CaptureOutcome, styles: Styles | None = None) -> Group:
-    """The selected key's figures, its histogram of untouched and touched deltas, then its reasons
-    (the histogram first: at 80x24 it is what fits; the reasons scroll)."""
-    f = o.figures
-    lines: list[Any] = [
-        Text(f"{o.name}", style="bold"),
-        _indented(f"noise {_num(f.noise_pp_counts)} pp, {_num(f.noise_rms_counts)} RMS counts; "
-                  f"touch delta {_num(f.signal_counts)} counts", 2),
-        _indented(f"SNR {_num(f.snr_pp)} pp, {_num(f.snr_rms)} RMS: {o.verdict}", 2)]
-    threshold = float(o.after.threshold_counts) if o.suggested else None
-    lines.append(Padding(DeltaHistogram(o.untouched, o.touched, threshold=threshold, width=48, styles=styles),
-                         (0, 0, 0, 2)))
-    if o.suggested:
-        for key, reason in o.suggestion.reasons.items():  # type: ignore[union-attr]
-            lines.append(_indented(f"{setting_label(key)}: {reason}", 2))
-    else:
-        lines.append(_indented(f"no suggestion: {o.suggestion.reason}", 2))  # type: ignore[union-attr]
-    if o.stray_frames:
-        lines.append(_indented(f"{o.stray_frames} frames rose beyond its noise while other keys were held "
-                               "(a stray finger or strong crosstalk): left out of its untouched deltas", 2))
-    return Group(*lines)
-
-
-def key_choices(names: Sequence[str], selected: int | None,
-                sets: Sequence[tuple[str, str, Sequence[int]]]) -> list[tuple[str, str, list[int]]]:
-    """(id, label, channels) of the ready-made choices: all keys, the selected one, each group and slider
-    (`sets`: (kind, name, channels)); the typed choice comes after these."""
-    out = [("all", f"all {len(names)} keys", list(range(len(names))))]
-    if selected is not None and 0 <= selected < len(names):
-        out.append(("selected", f"the selected key, {names[selected]}", [selected]))
-    for kind, name, channels in sets:
-        if channels:
-            out.append((f"{kind}:{name}", f"{kind} {name}", list(channels)))
-    return out
-
-
-def choice_prompt(label: str, channels: Sequence[int], names: Sequence[str], width: int) -> Text:
-    """One line of the key choice: what it is, how many steps, the keys in the words typing takes
-    (cut with … where the line ends)."""
-    steps = f"{steps_for(len(channels))} steps"
-    text = Text(f"{label:<24} {steps:>9}   {key_ranges(channels, names)}", no_wrap=True)
-    text.truncate(max(20, width), overflow="ellipsis")
-    return text
 
 
 class CaptureScreen(Screen[dict[int, ChannelSettings]]):
@@ -197,18 +107,11 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         self.applied: dict[int, ChannelSettings] = {}
         self.held: set[int] = set()  # simulated keys this screen holds down
         self._touching: int | None = None  # `t`: held until its touch step is done
-        self._choices: dict[str, list[int]] = {}
-        self._choices_for: tuple[tuple[str, ...], int] | None = None
         self._history: object | None = None
         self._seen = 0
 
     def compose(self) -> ComposeResult:
-        with Vertical(id="capture-choose"):
-            yield Static("Guided capture", classes="capture-title")
-            yield Static("waiting for the board to say which keys it has…", id="capture-choose-help")
-            yield OptionList(id="capture-choices")
-            yield Input(placeholder="keys to capture", id="capture-keys")
-            yield Static("", id="capture-choose-notice")
+        yield KeyChoice(id="capture-choose")
         with Vertical(id="capture-steps"):
             yield Static("Guided capture", classes="capture-title")
             yield Static("waiting for frames from the board…", id="capture-step")
@@ -227,7 +130,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         self.query_one("#capture-results").display = False
         self.query_one("#capture-choose").display = self.chosen is None
         self.query_one("#capture-steps").display = self.chosen is not None
-        self.query_one(DataTable).add_columns(*(_cell(f"{top}\n {unit}") for top, unit in COLUMNS))
+        self.query_one(DataTable).add_columns(*(cell(f"{top}\n {unit}") for top, unit in COLUMNS))
         if self.tick_s > 0:
             self.set_interval(self.tick_s, self.tick)
         self.tick()
@@ -245,43 +148,12 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         return ([("group", g.name, list(g.members)) for g in profile.groups]
                 + [("wheel" if s.wheel else "slider", s.name, list(s.pads)) for s in profile.sliders])
 
-    def _fill_choices(self) -> None:
-        names = self.session.names
-        width = (self.size.width or 80) - 10  # the list's padding, border and scrollbar
-        if not names or self._choices_for == (names, width):
-            return
-        self._choices_for = (names, width)
-        options = self.query_one(OptionList)
-        choices = key_choices(names, self.selected, self._sets())
-        self._choices = {cid: channels for cid, _, channels in choices}
-        options.clear_options()
-        options.add_options([Option(choice_prompt(label, channels, names, width), id=cid)
-                             for cid, label, channels in choices])
-        options.add_option(Option(Text("some keys: type them…"), id=TYPE_KEYS))
-        example = typing_example(names)
-        sets = ", a group's name" if self._sets() else ""
-        self.query_one("#capture-choose-help", Static).update(f"{CHOOSE_HELP}{sets}, such as {example}")
-        self.query_one(Input).placeholder = f"keys to capture, such as {example}"
-        options.highlighted = 0
-        if self.focused is None:
-            options.focus()
+    def _offer_choices(self) -> None:
+        self.query_one(KeyChoice).offer(self.session.names, self.selected, self._sets())
 
-    def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
+    def on_key_choice_chosen(self, event: KeyChoice.Chosen) -> None:
         event.stop()
-        if event.option_id == TYPE_KEYS:
-            self.query_one(Input).focus()
-        elif event.option_id in self._choices:
-            self._begin(self._choices[event.option_id])
-
-    def on_input_submitted(self, event: Input.Submitted) -> None:
-        event.stop()
-        sets = {name: channels for _, name, channels in self._sets()}
-        try:
-            keys = choose_keys(event.value, self.session.names, sets)
-        except ValueError as exc:
-            self.query_one("#capture-choose-notice", Static).update(Text(str(exc)))
-            return
-        self._begin(keys)
+        self._begin(event.channels)
 
     def _begin(self, keys: list[int]) -> None:
         self.chosen = keys
@@ -308,10 +180,10 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         return True
 
     def _choose_again(self) -> None:
-        self.chosen, self._choices_for = None, None
+        self.chosen = None
         self.query_one("#capture-steps").display = False
         self.query_one("#capture-choose").display = True
-        self._fill_choices()
+        self._offer_choices()
 
     def _new_block(self) -> FrameBlock | None:
         m = self.session.measures
@@ -341,7 +213,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         if self.poll is not None:
             self.poll()
         if self.choosing:
-            self._fill_choices()
+            self._offer_choices()
             return
         if self.wizard is None and not self._start():
             return
@@ -399,7 +271,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         row = table.cursor_row
         table.clear()
         for o in self.outcomes:
-            table.add_row(*map(_cell, outcome_row(o, o.channel in self.applied)), key=str(o.channel))
+            table.add_row(*map(cell, outcome_row(o, o.channel in self.applied)), key=str(o.channel))
         if self.outcomes:
             table.move_cursor(row=min(max(row, 0), len(self.outcomes) - 1))
 
@@ -429,8 +301,6 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
     def on_resize(self) -> None:
         if self.outcomes:
             self.call_after_refresh(self._show_more)
-        elif self.choosing:
-            self._fill_choices()
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         self._show_detail(event.cursor_row)
