@@ -8,12 +8,16 @@ Deltas here are measured against the wizard's own per-key baseline: the mean rea
 in which that key was not being touched (frozen from the moment its own step starts), so an untuned
 threshold that lets the engine's baseline creep under a finger cannot shrink the touch signal.
 
+`choose_keys` reads which keys to capture from what a user typed (numbers, ranges, names, a group's
+name); `key_ranges` writes a set of keys back in the same words.
+
 `processing.stretches.find_touches` does the same job on a recording.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+import re
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -26,6 +30,91 @@ from processing.suggest import Refusal, Suggestion, suggest
 from protocol.events import FrameBlock
 
 QUIET, TOUCH, RELEASE, DONE = "quiet", "touch", "release", "done"
+
+
+# ---------------------------------------------------------------- which keys
+
+
+def steps_for(keys: int) -> int:
+    """Steps of a capture of `keys` keys: hands off once, then touch and release each."""
+    return 1 + 2 * keys
+
+
+def _number(text: str, count: int) -> int | None:
+    """A key number as the table shows it (1 = the first key) to a channel, None when not a number."""
+    if not text.isdigit():
+        return None
+    n = int(text)
+    if not 1 <= n <= count:
+        raise ValueError(f"there is no key {n}: keys are numbered 1-{count}")
+    return n - 1
+
+
+def _item(item: str, names: Sequence[str], sets: Mapping[str, Sequence[int]]) -> list[int]:
+    """One comma- or space-separated item of `choose_keys`."""
+    index = {name: c for c, name in enumerate(names)}
+    folded = {name.casefold(): c for c, name in enumerate(names)}
+    if item in index:  # a key's own name wins over every other reading (names may hold digits and -)
+        return [index[item]]
+    if item.casefold() in folded:
+        return [folded[item.casefold()]]
+    if (chosen := _number(item, len(names))) is not None:
+        return [chosen]
+    named_sets = {k.casefold(): v for k, v in sets.items()}
+    if item.casefold() in named_sets:
+        return list(named_sets[item.casefold()])
+    for m in re.finditer("-", item):  # a range: numbers or names either side of one of its dashes
+        left, right = item[:m.start()], item[m.end():]
+        ends = []
+        for end in (left, right):
+            c = index.get(end, folded.get(end.casefold()))
+            if c is None and end.isdigit():
+                c = _number(end, len(names))
+            ends.append(c)
+        if None not in ends:
+            a, b = ends
+            assert a is not None and b is not None
+            return list(range(a, b + 1)) if a <= b else list(range(a, b - 1, -1))
+    example = f"1-{len(names)}" if len(names) > 1 else "1"
+    raise ValueError(f"no key {item!r}: give numbers ({example}), ranges such as 3-{max(3, len(names))}, "
+                     f"key names such as {names[0]}" + (", or a group's name" if sets else ""))
+
+
+def choose_keys(text: str, names: Sequence[str],
+                sets: Mapping[str, Sequence[int]] | None = None) -> list[int]:
+    """The channels a user asks to capture, in the order asked, each once.
+
+    `text` holds items separated by commas or spaces: a key number as the screen shows it (1 is the
+    first key), a range of numbers (`3-10`, or `10-3` for the other order), a key's name, a range of
+    names (`zone1-zone4`, in board order), or the name of a set (`sets`: exclusive groups, sliders).
+    A key's exact name wins over the other readings. Raises ValueError with one line saying what is
+    wrong and what would do.
+    """
+    if not names:
+        raise ValueError("no keys yet: the board has not said how many it has")
+    text = re.sub(r"\s*-\s*", "-", text.strip())  # "3 - 10" is one range, not three items
+    items = [i for i in re.split(r"[,\s]+", text) if i]
+    if not items:
+        raise ValueError(f"type the keys to capture: numbers 1-{len(names)}, ranges, or names")
+    chosen: dict[int, None] = {}
+    for item in items:
+        chosen.update(dict.fromkeys(_item(item, names, sets or {})))
+    return list(chosen)
+
+
+def key_ranges(channels: Sequence[int], names: Sequence[str]) -> str:
+    """Channels in the words `choose_keys` reads: runs of neighbours as `first-last`, others by name."""
+    parts: list[str] = []
+    run: list[int] = []
+    for c in [*channels, None]:
+        if run and c is not None and c == run[-1] + 1:
+            run.append(c)
+            continue
+        if run:
+            a, b = names[run[0]], names[run[-1]]
+            parts.append(a if len(run) == 1 else f"{a} {b}" if len(run) == 2 else f"{a}-{b}")
+        run = [] if c is None else [c]
+    return ", ".join(parts)
 
 
 @dataclass(frozen=True, slots=True)
@@ -68,20 +157,33 @@ class KeyCapture:
         return np.concatenate([self.quiet, cross])
 
 
-def disturbed(quiet: np.ndarray, min_rise_counts: float) -> bool:
-    """Did something touch the key during hands off? A run of 3+ frames beyond 8 robust sigmas.
+# Frames before a disturbance's first clear frame that still count as touched when a hands-off stretch
+# is cut short: a finger approaching moves the counts before it clears 8 sigmas. The same 0.3 s guard
+# `processing.stretches.find_touches` keeps around touches (common practice, no source).
+DISTURB_GUARD_S = 0.3
+
+
+def first_disturbed(quiet: np.ndarray, min_rise_counts: float) -> int | None:
+    """Where something first touched the key during hands off: the first frame of a run of 3+ frames
+    beyond 8 robust sigmas (None when nothing did).
 
     The robust sigma is 1.4826 x the median absolute deviation (the normal-distribution consistency
     factor, NIST/SEMATECH e-Handbook 1.3.5.6); 8 sigmas is far beyond any noise peak in a few seconds.
     """
     q = np.asarray(quiet, np.float64)
     if len(q) < 8:
-        return False
+        return None
     centre = np.median(q)
     sigma = max(1.4826 * float(np.median(np.abs(q - centre))), 0.5)
     beyond = np.abs(q - centre) > max(8.0 * sigma, 2.0 * min_rise_counts)
     run = np.convolve(beyond.astype(np.int8), np.ones(3, np.int8), mode="valid")
-    return bool((run >= 3).any())
+    starts = np.flatnonzero(run >= 3)
+    return int(starts[0]) if len(starts) else None
+
+
+def disturbed(quiet: np.ndarray, min_rise_counts: float) -> bool:
+    """Did something touch the key during hands off? (`first_disturbed` found a run.)"""
+    return first_disturbed(quiet, min_rise_counts) is not None
 
 
 def _level(quiet: np.ndarray, min_rise_counts: float) -> float:
@@ -117,6 +219,7 @@ class CaptureWizard:
         self.notice = ""
         self._quiet_tries = 0
         self.marks: list[Mark] = []  # quiet-start/-end, touch-start/-end at frame times, as they happen
+        self.closed = False  # `close()` was called: no more frames are taken
         self._t_s = 0.0
         self._baseline = np.zeros(len(names))
         self._follow = 1.0 / max(1.0, rate_hz)  # baselines follow drift with a one-second time constant
@@ -151,7 +254,7 @@ class CaptureWizard:
     # -- feeding
     def feed(self, block: FrameBlock, now_s: float) -> None:
         """Take new frames (readings) and the current time; advances steps as they complete."""
-        if len(block) == 0 or self.done:
+        if len(block) == 0 or self.done or self.closed:
             self._check_timeout(now_s)
             return
         readings = np.asarray(block.readings, np.int64)
@@ -166,10 +269,12 @@ class CaptureWizard:
             self._frame(row, now_s)
         self._check_timeout(now_s)
 
-    def _mark(self, kind: str, channel: int | None = None) -> None:
+    def _mark(self, kind: str, channel: int | None = None, t_s: float | None = None,
+              why: str = "") -> None:
         """Record where a stretch began or ended (frame time), for a recording made meanwhile."""
-        self.marks.append(Mark(self._t_s, kind, None if channel is None else self.names[channel],
-                               "guided capture"))
+        self.marks.append(Mark(self._t_s if t_s is None else t_s, kind,
+                               None if channel is None else self.names[channel],
+                               f"guided capture: {why}" if why else "guided capture"))
 
     def _reset_step(self, now_s: float | None) -> None:
         self._count = 0
@@ -177,6 +282,7 @@ class CaptureWizard:
         self._onset = False
         self._low_run = 0
         self._rows: list[np.ndarray] = []
+        self._row_t: list[float] = []  # the frame time of each of `_rows`
         self._started_s = now_s
 
     def _advance(self, now_s: float) -> None:
@@ -200,6 +306,7 @@ class CaptureWizard:
             if not self._rows:
                 self._mark("quiet-start")
             self._rows.append(row)
+            self._row_t.append(self._t_s)
             self._count += 1
             if self._count >= self.quiet_frames:
                 self._finish_quiet(now_s)
@@ -216,16 +323,35 @@ class CaptureWizard:
         else:
             self._release_frame(c, deltas, now_s)
 
-    def _finish_quiet(self, now_s: float, force: bool = False) -> None:
+    def _quiet(self) -> np.ndarray:
+        """The hands-off frames so far as deltas from their own mean (touch positive), and that mean."""
         rows = np.array(self._rows, np.int64)
         self._baseline = rows.mean(axis=0)
         sign = np.where(self.polarity == 0, 1, self.polarity)  # the spread is the same either way
-        quiet = (sign * (rows - self._baseline)).round().astype(np.int64)
-        moved = [c for c in range(len(self.names)) if disturbed(quiet[:, c], self.min_rise_counts)]
+        return (sign * (rows - self._baseline)).round().astype(np.int64)
+
+    def _moved(self, quiet: np.ndarray) -> dict[int, int]:
+        """Keys touched during hands off -> the first frame of their disturbance."""
+        firsts = {c: first_disturbed(quiet[:, c], self.min_rise_counts) for c in range(len(self.names))}
+        return {c: f for c, f in firsts.items() if f is not None}
+
+    def _end_quiet_early(self, moved: dict[int, int], why: str) -> None:
+        """`quiet-end` for a hands-off stretch that is given up: at its last frame clear of the first
+        disturbance (less the approach guard), so a recording's quiet stretches hold no touch."""
+        keep = len(self._rows)
+        if moved:
+            keep = max(0, min(moved.values()) - round(DISTURB_GUARD_S * self.rate_hz))
+        self._mark("quiet-end", t_s=self._row_t[max(0, keep - 1)], why=why)
+
+    def _finish_quiet(self, now_s: float, force: bool = False) -> None:
+        quiet = self._quiet()
+        moved = self._moved(quiet)
         if moved and not force and self._quiet_tries + 1 < self.max_attempts:
             self._quiet_tries += 1
+            first = self.names[min(moved, key=moved.__getitem__)]
+            self._end_quiet_early(moved, f"{first} moved, hands off measured again")
             self._reset_step(now_s)
-            self.notice = f"{self.names[moved[0]]} moved during hands off: measuring again, hands off please"
+            self.notice = f"{first} moved during hands off: measuring again, hands off please"
             return
         self._mark("quiet-end")
         for c, key in self.keys.items():
@@ -305,6 +431,19 @@ class CaptureWizard:
         elif step.kind == RELEASE:
             self.notice = f"Still touched? Lift your finger from {step.name}"
         self._started_s = now_s
+
+    def close(self) -> None:
+        """The capture is closed (or starts again) mid-step: end the stretch under way, so every
+        `quiet-start` has its `quiet-end` and every `touch-start` its `touch-end`; take no more frames."""
+        step = self.step
+        if self.closed or step is None:
+            self.closed = True
+            return
+        self.closed = True
+        if step.kind == QUIET and self._rows:
+            self._end_quiet_early(self._moved(self._quiet()), "closed during hands off")
+        elif step.kind == TOUCH and self._held:
+            self._mark("touch-end", step.channel, why="closed during the touch")
 
     def skip(self, now_s: float) -> None:
         """The user skips the current key (or the hands-off step)."""

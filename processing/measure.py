@@ -148,6 +148,16 @@ class SpectrumPeak:
         return (f"strongest noise at {self.freq_hz:.1f} Hz: alias of {tone_hz:g} Hz "
                 f"({which}, {self.mains_hz:g} Hz)")
 
+    def brief(self) -> str:
+        """`describe()` in a few words, for narrow screens."""
+        if not self.distinct:
+            return f"broadband, no tone ({self.freq_hz:.1f} Hz)"
+        if self.near_dc:
+            return f"slow drift near DC ({self.freq_hz:.1f} Hz)"
+        if self.mains_hz is None:
+            return f"tone at {self.freq_hz:.1f} Hz, not mains"
+        return f"{self.freq_hz:.1f} Hz: alias of {self.mains_hz * (self.harmonic or 1):g} Hz mains"
+
 
 NEAR_DC_BINS = 2  # FFT bins above DC that count as drift rather than a tone
 # A peak this many times the median bin is a tone; white noise of a 2 s window rarely reaches it
@@ -171,29 +181,115 @@ def explain_peak(freq_hz: float, fs_hz: float, tolerance_hz: float, harmonics: i
     return None
 
 
-def spectrum_peak(samples: np.ndarray, fs_hz: float) -> SpectrumPeak | None:
-    """Strongest non-DC peak of a Hann-windowed FFT of `samples` (mean removed), with its mains check."""
+def amplitude_spectrum(samples: np.ndarray, fs_hz: float) -> tuple[np.ndarray, np.ndarray]:
+    """Frequencies (Hz) and one-sided amplitudes (counts) of a Hann-windowed FFT of `samples`, mean removed.
+
+    Each bin reads as the amplitude of a sine centred on it: |X_k| / sum(w), doubled for every bin but
+    DC and (for an even length) Nyquist, whose energy has no mirror image. Dividing by sum(w) takes out
+    the window's coherent gain (sum(w) / N, 0.5 for Hann: F. J. Harris, "On the use of windows for
+    harmonic analysis with the discrete Fourier transform", Proc. IEEE 66(1), 1978, table 1). The DC bin
+    is 0 after the mean is removed. A tone between two bins reads low by up to Hann's scalloping loss
+    (1.42 dB, same table).
+    """
     x = np.asarray(samples, np.float64)
-    if len(x) < MIN_SPECTRUM_SAMPLES or fs_hz <= 0:
+    n = len(x)
+    window = np.hanning(n)
+    amp = np.abs(np.fft.rfft((x - x.mean()) * window)) / window.sum()
+    amp[1:(n + 1) // 2] *= 2.0  # bins below Nyquist carry their mirror's half too
+    amp[0] = 0.0
+    return np.fft.rfftfreq(n, 1.0 / fs_hz), amp
+
+
+def spectrum_peak(samples: np.ndarray, fs_hz: float) -> SpectrumPeak | None:
+    """Strongest non-DC peak of `amplitude_spectrum(samples)`, with its mains check."""
+    if len(samples) < MIN_SPECTRUM_SAMPLES or fs_hz <= 0:
         return None
-    window = np.hanning(len(x))
-    spec = np.abs(np.fft.rfft((x - x.mean()) * window))
-    spec[0] = 0.0
-    k = int(np.argmax(spec))
-    if spec[k] == 0.0:
+    return _peak(*amplitude_spectrum(samples, fs_hz), fs_hz, len(samples))
+
+
+def _peak(freq_hz: np.ndarray, amp: np.ndarray, fs_hz: float, n: int) -> SpectrumPeak | None:
+    """The strongest bin of a spectrum of `n` samples (`amplitude_spectrum`), named if it is a tone."""
+    k = int(np.argmax(amp))
+    if amp[k] == 0.0:
         return None
-    freq = k * fs_hz / len(x)
-    amplitude = 2.0 * spec[k] / window.sum()
     # A Hann window spreads drift (a ramp over the window) into bins 1-2; a peak there is drift,
     # not a tone, even where a mains alias falls near 0 Hz (frame rate 50 or 60 Hz).
     near_dc = k <= NEAR_DC_BINS
-    median = float(np.median(spec[1:]))
-    prominence = float(spec[k] / median) if median > 0 else math.inf
+    median = float(np.median(amp[1:]))
+    prominence = float(amp[k] / median) if median > 0 else math.inf
     # Only a peak that stands out of the noise floor is a tone worth naming a source for.
     tone = not near_dc and prominence >= TONE_PROMINENCE
-    match = explain_peak(freq, fs_hz, tolerance_hz=fs_hz / len(x)) if tone else None
+    freq = float(freq_hz[k])
+    match = explain_peak(freq, fs_hz, tolerance_hz=fs_hz / n) if tone else None
     m, h, a = match if match else (None, None, None)
-    return SpectrumPeak(freq, float(amplitude), len(x), m, h, a, near_dc, prominence)
+    return SpectrumPeak(freq, float(amp[k]), n, m, h, a, near_dc, prominence)
+
+
+def _seconds(t_s: float) -> str:
+    return f"{t_s:.2f} s" if t_s < 10 else f"{t_s:.0f} s"
+
+
+@dataclass(frozen=True, slots=True)
+class NoiseSpectrum:
+    """A channel's noise spectrum for the screen, or how far the frames for one have come.
+
+    `freq_hz` and `amplitude_counts` are the bins above DC (`amplitude_spectrum`), empty while
+    `collecting`: fewer than `needed` untouched frames in an unbroken run so far (`samples`), the most
+    a spectrum takes being `window_frames`.
+    """
+
+    freq_hz: np.ndarray
+    amplitude_counts: np.ndarray
+    samples: int
+    needed: int
+    window_frames: int
+    rate_hz: float
+    peak: SpectrumPeak | None = None
+    touched: bool = False  # the key is touched (or just let go, inside the settle guard) right now
+
+    @property
+    def collecting(self) -> bool:
+        return self.samples < self.needed
+
+    @property
+    def resolution_hz(self) -> float | None:
+        """Bin spacing: the frame rate over the frames taken (finer as the run grows to a full window)."""
+        return self.rate_hz / self.samples if self.samples and self.rate_hz > 0 else None
+
+    def seconds(self, frames: int) -> str:
+        """`frames` as time at this spectrum's frame rate ("" when the rate is unknown)."""
+        return _seconds(frames / self.rate_hz) if self.rate_hz > 0 else ""
+
+    def collected(self) -> str:
+        """How much is collected of what is needed: "9 of 16 untouched frames (0.15 of 0.27 s)"."""
+        frames = f"{self.samples} of {self.needed} untouched frames"
+        if self.rate_hz <= 0:
+            return frames
+        return f"{frames} ({self.seconds(self.samples)[:-2]} of {self.seconds(self.needed)})"
+
+    def coverage(self) -> str:
+        """What a drawn spectrum rests on: seconds of frames of the full window, and the bin spacing."""
+        if self.collecting or self.resolution_hz is None:
+            return self.collected()
+        return (f"{self.seconds(self.samples)} of {self.seconds(self.window_frames)} untouched, "
+                f"{self.resolution_hz:.2g} Hz per bin")
+
+    @property
+    def summary(self) -> str:
+        """One line: the peak and what it may be, or what the spectrum is waiting for."""
+        if self.collecting:
+            if self.touched:
+                return f"the key is touched: waiting for its release; {self.collected()}"
+            return f"collecting {self.collected()}: hands off"
+        return self.peak.describe() if self.peak is not None else "no noise peak found"
+
+    @property
+    def brief(self) -> str:
+        """`summary` in a few words, for narrow screens."""
+        if self.collecting:
+            return "touched: waiting for release" if self.touched else \
+                f"collecting: {self.samples} of {self.needed} frames"
+        return self.peak.brief() if self.peak is not None else "no noise peak"
 
 
 class ColumnRing:
@@ -413,14 +509,32 @@ class Measures:
             snr_rms = signal / noise.rms_counts if noise.rms_counts > 0 else math.inf
         return ChannelQuality(noise, signal, snr_pp, snr_rms, self.bounds.verdict(snr_pp))
 
-    def spectrum_samples(self, channel: int) -> np.ndarray:
-        """The deltas a spectrum is taken of: the newest unbroken run of released frames in the window,
-        less the settle guard after the last touch (a finger lifting is not noise here either)."""
+    def _spectrum_run(self, channel: int) -> tuple[np.ndarray, bool]:
+        """The newest unbroken run of released frames in the window, less the settle guard after the last
+        touch; and whether that guard (or a touch) is still running now."""
         _, _, deltas, states = self.history.last(self.window_frames)
         broken = np.flatnonzero(states[:, channel] != KeyState.RELEASED)
         start = int(broken[-1]) + 1 + self.guard_frames if len(broken) else 0
-        return deltas[start:, channel].astype(np.float64)
+        return deltas[start:, channel].astype(np.float64), bool(len(broken)) and start >= len(states)
+
+    def spectrum_samples(self, channel: int) -> np.ndarray:
+        """The deltas a spectrum is taken of: the newest unbroken run of released frames in the window,
+        less the settle guard after the last touch (a finger lifting is not noise here either)."""
+        return self._spectrum_run(channel)[0]
 
     def spectrum(self, channel: int) -> SpectrumPeak | None:
         """FFT of `spectrum_samples(channel)` (on demand): the strongest peak and its mains check."""
         return spectrum_peak(self.spectrum_samples(channel), self.rate_hz)
+
+    def noise_spectrum(self, channel: int) -> NoiseSpectrum:
+        """The spectrum of `spectrum_samples(channel)` for drawing (bins above DC, its peak), or, with
+        fewer than `MIN_SPECTRUM_SAMPLES` of them, how many there are so far."""
+        samples, waiting = self._spectrum_run(channel)
+        n, rate = len(samples), self.rate_hz
+        empty = np.zeros(0)
+        if n < MIN_SPECTRUM_SAMPLES or rate <= 0:
+            return NoiseSpectrum(empty, empty, n, MIN_SPECTRUM_SAMPLES, self.window_frames, rate, None,
+                                 waiting)
+        freq, amp = amplitude_spectrum(samples, rate)
+        return NoiseSpectrum(freq[1:], amp[1:], n, MIN_SPECTRUM_SAMPLES, self.window_frames, rate,
+                             _peak(freq, amp, rate, n), waiting)

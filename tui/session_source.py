@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from processing.fixed import to_counts
-from processing.measure import MIN_SPECTRUM_SAMPLES, ChannelQuality, spectrum_peak
+from processing.measure import ChannelQuality
 from processing.profile import Profile, load_profile, save_profile
 from processing.session import Session
 from processing.settings import ChannelSettings
@@ -235,20 +235,10 @@ class SessionSource:
         return Series(t.copy(), reading.astype(np.float64), (reading - pol * delta).astype(np.float64), pol)
 
     def spectrum(self, channel: int) -> Spectrum | None:
-        """Amplitude spectrum of the frames `Measures.spectrum` uses (`spectrum_samples`: the newest
-        unbroken run of untouched frames in the window, settled), with its peak and mains check."""
+        """The noise spectrum as processing computes it (`Measures.noise_spectrum`: bins, peak, or how
+        many untouched frames are collected so far)."""
         m = self.session.measures
-        if m is None:
-            return None
-        samples = m.spectrum_samples(channel)
-        if len(samples) < MIN_SPECTRUM_SAMPLES:
-            return Spectrum(np.zeros(1), np.zeros(1), "not enough untouched frames yet: hands off a moment")
-        peak = spectrum_peak(samples, m.rate_hz)
-        window = np.hanning(len(samples))
-        amp = 2.0 * np.abs(np.fft.rfft((samples - samples.mean()) * window)) / window.sum()
-        freq = np.fft.rfftfreq(len(samples), 1.0 / m.rate_hz)
-        summary = peak.describe() if peak else "no noise peak found"
-        return Spectrum(freq[1:], amp[1:], summary)
+        return None if m is None else m.noise_spectrum(channel)
 
     # -- settings ---------------------------------------------------------------------------------
     def settings(self, channel: int) -> ChannelSettings:

@@ -10,7 +10,7 @@ from processing.capture import QUIET, RELEASE, TOUCH, CaptureWizard
 from processing.recording import Mark
 from processing.stretches import estimate_baseline, find_touches, key_figures
 from protocol.events import FrameBlock
-from tui.headless.histogram import DeltaHistogram, bar_row, bin_counts
+from tui.render.histogram import DeltaHistogram, bar_row, bin_counts
 
 RATE_HZ = 100.0
 NAMES = ("zone1", "zone2", "stop")
@@ -227,3 +227,107 @@ def test_stray_touches_on_other_keys_are_not_taken_as_their_noise():
     stop = w.keys[2]
     assert stop.stray_frames >= 25
     assert stop.untouched.max() < 20  # the stray touch is not in stop's untouched deltas
+
+
+def balanced(marks: list[Mark]) -> bool:
+    """Every start mark has its end before the next start of the same stretch (channel), none left open."""
+    open_at: dict[tuple[str, str | None], float] = {}
+    for m in marks:
+        kind, _, edge = m.kind.rpartition("-")
+        key = (kind, m.channel)
+        if edge == "start":
+            if key in open_at:
+                return False
+            open_at[key] = m.t_s
+        elif edge == "end" and (key not in open_at or m.t_s < open_at.pop(key)):
+            return False
+    return not open_at
+
+
+def test_a_restarted_hands_off_step_ends_its_stretch_before_the_touch():
+    # The disturbed stretch gets its quiet-end at its last frame clear of the touch (less 0.3 s of
+    # approach), so the recording's quiet stretches hold no touch; then the new one starts.
+    rng = np.random.default_rng(11)
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=0.5)
+    rows = 1000 + rng.normal(0, 2, (100, 3))
+    rows[60:80, 1] += 150  # someone brushed zone2 from frame 60 (t = 0.60 s)
+    t = _feed_rows(w, rows.round(), 0.0)
+    _feed_rows(w, (1000 + rng.normal(0, 2, (100, 3))).round(), t)
+    kinds = [(m.kind, m.t_s) for m in w.marks]
+    assert [k for k, _ in kinds] == ["quiet-start", "quiet-end", "quiet-start", "quiet-end"]
+    assert kinds[0][1] == 0.0 and kinds[1][1] == pytest.approx(0.29)  # frame 29: 0.3 s before frame 60
+    assert "zone2 moved" in w.marks[1].text
+    assert kinds[2][1] == pytest.approx(1.0) and balanced(w.marks)
+
+
+def test_closing_mid_step_ends_the_stretch_under_way():
+    rng = np.random.default_rng(13)
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=1.0)
+    t = _feed_rows(w, (1000 + rng.normal(0, 2, (50, 3))).round(), 0.0)
+    w.close()  # half way through hands off
+    assert [m.kind for m in w.marks] == ["quiet-start", "quiet-end"] and balanced(w.marks)
+    _feed_rows(w, (1000 + rng.normal(0, 2, (100, 3))).round(), t)
+    assert len(w.marks) == 2  # closed: no more frames taken
+
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=1.0)
+    t = _feed_rows(w, (1000 + rng.normal(0, 2, (100, 3))).round(), 0.0)
+    rows = 1000 + rng.normal(0, 2, (60, 3))
+    rows[:, 0] += 200
+    _feed_rows(w, rows.round(), t)  # zone1 held, not long enough yet
+    assert w.marks[-1].kind == "touch-start"
+    w.close()
+    assert w.marks[-1].kind == "touch-end" and w.marks[-1].channel == "zone1" and balanced(w.marks)
+
+
+def test_a_user_who_brushes_keys_leaves_balanced_marks_whatever_happens():
+    # A seeded run with a brush during each hands-off try but the last, lifts too soon and skips.
+    for seed in range(6):
+        rng = np.random.default_rng(seed)
+        w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=0.5, hold_s=0.5, max_attempts=3)
+        t = 0.0
+        for _ in range(2):  # two disturbed tries
+            rows = 1000 + rng.normal(0, 2, (50, 3))
+            start = int(rng.integers(5, 40))
+            rows[start:start + 8, int(rng.integers(0, 3))] += 120
+            t = _feed_rows(w, rows.round(), t)
+        t = _feed_rows(w, (1000 + rng.normal(0, 2, (50, 3))).round(), t)
+        rows = 1000 + rng.normal(0, 2, (30, 3))
+        rows[:25, 0] += 200
+        t = _feed_rows(w, rows.round(), t)  # lifted too soon
+        w.skip(t)
+        if seed % 2:
+            w.close()
+        assert balanced(w.marks), [(m.kind, m.channel, m.t_s) for m in w.marks]
+        assert [m.kind for m in w.marks].count("quiet-start") == 3
+
+
+def test_choose_keys_reads_numbers_ranges_names_and_sets():
+    from processing.capture import choose_keys, key_ranges, steps_for
+
+    names = ("zone1", "zone2", "zone3", "zone4", "stop", "dur0", "dur1", "dur2", "dur3")
+    sets = {"zones": (0, 1, 2, 3), "duration": (5, 6, 7, 8)}
+    assert choose_keys("3-5", names) == [2, 3, 4]
+    assert choose_keys(" 3 - 5 , dur1 ", names) == [2, 3, 4, 6]
+    assert choose_keys("zone2-zone4 stop", names) == [1, 2, 3, 4]
+    assert choose_keys("9-7", names) == [8, 7, 6]  # as asked: the other way round
+    assert choose_keys("Duration, 1, dur0", names, sets) == [5, 6, 7, 8, 0]  # each key once
+    assert choose_keys("STOP", names) == [4]
+    for bad, says in (("10", "there is no key 10: keys are numbered 1-9"), ("zone9", "no key 'zone9'"),
+                      ("3-12", "no key 12"), ("", "type the keys"), ("zones", "key names such as zone1")):
+        with pytest.raises(ValueError, match=says):
+            choose_keys(bad, names)
+    # a key's own name wins, even one that reads as a number or a range
+    assert choose_keys("2", ("a", "b", "2")) == [2] and choose_keys("x-1", ("x-1", "x", "1")) == [0]
+    assert key_ranges([0, 1, 2, 3, 5, 6, 8], names) == "zone1-zone4, dur0 dur1, dur3"
+    for chosen in ([0, 1, 2, 3, 5, 6, 8], [4], list(range(9))):  # what it writes reads back the same
+        assert choose_keys(key_ranges(chosen, names), names) == chosen
+    assert steps_for(64) == 129 and steps_for(4) == 9
+
+
+def test_a_capture_of_some_keys_asks_only_for_them():
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=1.0, hold_s=0.5, channels=[2, 0])
+    user = User(w, np.random.default_rng(14))
+    user.run()
+    assert w.done and list(w.keys) == [2, 0] and len(w.steps) == 5
+    assert [s.name for s in w.steps[1:]] == ["stop", "stop", "zone1", "zone1"]
+    assert all(k.seen for k in w.keys.values()) and balanced(w.marks)

@@ -13,6 +13,8 @@ from processing.session import Session
 from protocol.decoder import Decoder
 from tui.screens.capture import CaptureScreen, outcome_detail
 
+ALL = list(range(9))  # the greenhouse board's keys, chosen beforehand: no choice step
+
 
 class Clock:
     def __init__(self) -> None:
@@ -75,7 +77,7 @@ async def run_capture(rig: Rig, pilot, max_steps: int = 900) -> None:
 
 async def test_wizard_runs_every_step_and_applies_all():
     rig = Rig()
-    rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, quiet_s=1.0, hold_s=0.6,
+    rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, channels=ALL, quiet_s=1.0, hold_s=0.6,
                                timeout_s=3.0)
     app = Host(rig.screen)
     async with app.run_test(size=(100, 36)) as pilot:
@@ -115,7 +117,7 @@ async def test_wizard_runs_every_step_and_applies_all():
 
 async def test_ignored_key_is_asked_again_then_skipped_and_apply_one():
     rig = Rig(ignore=("zone2",))
-    rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, quiet_s=1.0, hold_s=0.5,
+    rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, channels=ALL, quiet_s=1.0, hold_s=0.5,
                                timeout_s=1.5, max_attempts=2)
     app = Host(rig.screen)
     notices = set()
@@ -143,7 +145,7 @@ async def test_ignored_key_is_asked_again_then_skipped_and_apply_one():
 
 async def test_skip_key_moves_on_and_release_step_waits():
     rig = Rig()
-    rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, quiet_s=0.5, hold_s=0.5)
+    rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, channels=ALL, quiet_s=0.5, hold_s=0.5)
     app = Host(rig.screen)
     async with app.run_test(size=(80, 24)) as pilot:
         for _ in range(10):
@@ -163,3 +165,30 @@ async def test_skip_key_moves_on_and_release_step_waits():
             rig.screen.tick()
         assert w.step.kind == RELEASE
         np.testing.assert_array_less(0, len(w.keys[1].touched))
+
+
+async def test_at_80x24_the_histogram_shows_and_the_reasons_scroll_with_a_hint():
+    from tests.tui.feeds import screen_text
+
+    rig = Rig()
+    rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, channels=ALL, quiet_s=1.0,
+                               hold_s=0.5)
+    app = Host(rig.screen)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await run_capture(rig, pilot)
+        await pilot.pause()
+        assert len(rig.screen.outcomes) == 9
+        lines = screen_text(app).splitlines()
+        for part in ("untouched ", "touched ", "^ threshold"):  # the selected key's histogram
+            assert any(line.lstrip().startswith(part) for line in lines), (part, lines)
+        assert "↓ more reasons below: Tab, then ↓ / PgDn" in lines[-2]  # right above the footer
+        await pilot.press("tab", "pagedown")
+        await pilot.pause()
+        await pilot.pause()
+        text = screen_text(app)
+        assert "release debounce:" in text and "Tab: back to the table" in text
+        await pilot.press("tab", "down")  # back in the table: the next key's detail, from its top
+        await pilot.pause()
+        await pilot.pause()
+        text = screen_text(app)
+        assert "\n  zone2\n" in text and "more reasons below" in text, text

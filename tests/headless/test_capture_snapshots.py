@@ -1,4 +1,5 @@
-"""SVG snapshots of the guided capture at 80x24 and 120x40: a step in progress and the results.
+"""SVG snapshots of the guided capture at 80x24 and 120x40: the choice of keys, a step in progress and
+the results (the selected key's histogram on screen at both sizes).
 
 Frames come from seeded numpy noise with touches added by a simulated person (not from the board
 simulator, whose physics may change), and a test clock, so every run draws the same screen. Approve
@@ -11,9 +12,13 @@ import numpy as np
 import pytest
 
 from processing.capture import TOUCH
+from processing.groups import GroupSpec
+from processing.profile import Profile
 from processing.session import Session
+from processing.slider import SliderSpec
 from protocol.events import BoardInfo, FrameBlock
 from tests.headless.test_capture_screen import Clock, Host
+from tests.tui.feeds import screen_text
 from tui.screens.capture import CaptureScreen
 
 SIZES = [(80, 24), (120, 40)]
@@ -26,7 +31,9 @@ class SyntheticRig:
 
     def __init__(self) -> None:
         self.clock = Clock()
-        self.session = Session()
+        profile = Profile(names=NAMES, groups=(GroupSpec("zones", (0, 1, 2, 3)),),
+                          sliders=(SliderSpec("dial", (1, 2, 3)),))
+        self.session = Session(profile)
         self.rng = np.random.default_rng(21)
         self.index = 0
         self.touch = np.zeros(len(NAMES))
@@ -52,10 +59,11 @@ class SyntheticRig:
         self.clock.t_s = float(t[-1])
 
 
-def capture_app() -> Host:
+def capture_app(choose: bool = False) -> Host:
     rig = SyntheticRig()
+    chosen = {} if choose else {"channels": list(range(len(NAMES)))}
     rig.screen = CaptureScreen(rig.session, clock=rig.clock, tick_s=0, quiet_s=1.0, hold_s=0.6,
-                               timeout_s=3.0)
+                               timeout_s=3.0, selected=2, **chosen)
     app = Host(rig.screen)
     app.rig = rig  # type: ignore[attr-defined]
     return app
@@ -89,3 +97,30 @@ def test_capture_results(snap_compare, size) -> None:
         await pilot.pause()
 
     assert snap_compare(capture_app(), terminal_size=size, run_before=before)
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x40"])
+def test_capture_choice_of_keys(snap_compare, size) -> None:
+    async def before(pilot) -> None:
+        steps(pilot.app, 1)  # the board's names are known: the choices are filled
+        await pilot.pause()
+        await pilot.press("down", "down")  # group zones highlighted
+        await pilot.pause()
+
+    assert snap_compare(capture_app(choose=True), terminal_size=size, run_before=before)
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x40"])
+async def test_the_results_histogram_is_on_screen(size) -> None:
+    app = capture_app()
+    async with app.run_test(size=size) as pilot:
+        steps(app, 900)
+        await pilot.pause()
+        await pilot.pause()
+        text = screen_text(app)
+        lines = text.splitlines()
+        for part in ("untouched ", "touched ", "^ threshold"):  # the selected key's histogram
+            assert any(line.lstrip().startswith(part) for line in lines), (part, text)
+        # five keys: the reasons fit below the histogram at both sizes, so no hint is shown
+        # (nine keys at 80x24 scroll them: test_capture_screen.py)
+        assert "release debounce:" in text and "more reasons" not in text

@@ -186,3 +186,67 @@ def test_white_noise_is_not_named_as_a_mains_alias():
     rng = np.random.default_rng(7)
     peak = spectrum_peak(rng.normal(0, 2.0, n) + 3.0 * np.sin(2 * np.pi * 50 * t), fs)
     assert peak.distinct and peak.mains_hz == 50.0 and peak.freq_hz == pytest.approx(10.0)
+
+
+# ---------------------------------------------------------------- the spectrum the screen draws
+
+
+def test_amplitude_spectrum_reads_a_tone_s_amplitude_through_the_hann_coherent_gain():
+    # A sine of amplitude 5 counts on bin 40 of 400 frames at 100 Hz (10 Hz). Reference: F. J. Harris,
+    # "On the use of windows for harmonic analysis with the DFT", Proc. IEEE 66(1), 1978, table 1:
+    # Hann's coherent gain is 0.50 (taken out, the bin reads the tone's amplitude) and its worst-case
+    # scalloping loss, a tone half-way between two bins, is 1.42 dB.
+    from processing.measure import amplitude_spectrum
+
+    fs, n, a = 100.0, 400, 5.0
+    t = np.arange(n) / fs
+    freq, amp = amplitude_spectrum(a * np.sin(2 * np.pi * 10.0 * t + 0.3) + 7.0, fs)
+    k = int(np.argmax(amp))
+    assert freq[k] == pytest.approx(10.0) and amp[0] == 0.0
+    assert amp[k] == pytest.approx(a, rel=0.01)
+    np.testing.assert_allclose(freq, np.fft.rfftfreq(n, 1 / fs))  # numpy's own bin frequencies
+    _, amp = amplitude_spectrum(a * np.sin(2 * np.pi * 10.125 * t), fs)  # half a bin off
+    assert a * 10 ** (-1.42 / 20) * 0.99 <= amp.max() <= a
+    assert amp.max() == pytest.approx(a * 10 ** (-1.42 / 20), rel=0.02)
+
+
+def test_amplitude_spectrum_matches_scipy_periodogram_bin_by_bin():
+    # scipy.signal.periodogram(scaling="spectrum") gives each bin's power as |X_k|^2 / sum(w)^2, doubled
+    # for the one-sided bins below Nyquist: the amplitude of a sine is sqrt(2 P) there, sqrt(P) at
+    # Nyquist (an even length). Same window (numpy's symmetric Hann), mean removed by both.
+    from scipy.signal import periodogram
+
+    from processing.measure import amplitude_spectrum
+
+    rng = np.random.default_rng(5)
+    for n in (64, 65, 400):
+        x = rng.normal(0, 3.0, n) + 4 * np.cos(2 * np.pi * 0.5 * np.arange(n))  # a tone at Nyquist too
+        freq, amp = amplitude_spectrum(x, 60.0)
+        f_ref, p_ref = periodogram(x, 60.0, window=np.hanning(n), scaling="spectrum", detrend="constant")
+        np.testing.assert_allclose(freq, f_ref)
+        inner = slice(1, (n + 1) // 2)
+        np.testing.assert_allclose(amp[inner], np.sqrt(2 * p_ref[inner]), rtol=1e-9)
+        if n % 2 == 0:
+            assert amp[-1] == pytest.approx(np.sqrt(p_ref[-1]), rel=1e-9)
+
+
+def test_noise_spectrum_says_how_many_frames_it_has_of_how_many_it_needs():
+    from processing.measure import MIN_SPECTRUM_SAMPLES
+
+    m = Measures(1, rate_hz=100.0, window_s=2.0, settle_s=0.0)
+    feed(m, [1, -1, 2, 0, -2] * 2, [RELEASED] * 10)
+    s = m.noise_spectrum(0)
+    assert s.collecting and not s.touched and len(s.freq_hz) == 0
+    assert (s.samples, s.needed, s.window_frames) == (10, MIN_SPECTRUM_SAMPLES, 200)
+    assert s.summary == "collecting 10 of 16 untouched frames (0.10 of 0.16 s): hands off"
+    feed(m, [90] * 5, [TOUCHED] * 5, t0=0.1)
+    s = m.noise_spectrum(0)
+    assert s.collecting and s.touched and s.samples == 0 and "waiting for its release" in s.summary
+    t = np.arange(400) / 100
+    feed(m, np.round(6 * np.sin(2 * np.pi * 40 * t)).astype(int), [RELEASED] * 400, t0=0.15)
+    s = m.noise_spectrum(0)
+    assert not s.collecting and s.samples == 200 and s.freq_hz[0] > 0  # bins above DC only
+    assert s.freq_hz[int(np.argmax(s.amplitude_counts))] == pytest.approx(40.0)
+    assert s.peak == m.spectrum(0) and s.summary == s.peak.describe()
+    assert s.coverage() == "2.00 s of 2.00 s untouched, 0.5 Hz per bin"
+    assert s.brief == "40.0 Hz: alias of 60 Hz mains"

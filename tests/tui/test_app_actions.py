@@ -653,7 +653,10 @@ async def test_demo_keys_press_the_board_during_the_guided_capture_but_not_under
         await pilot.press("w")
         await pilot.pause()
         assert app.screen.__class__.__name__ == "CaptureScreen"
-        await pilot.press("1")  # "touch and hold zone1": in the demo the keyboard is the finger
+        await pilot.press("1")  # choosing the keys: the board's keys press nothing yet
+        assert feed.board.held() == []
+        await pilot.press("enter")  # all keys: the capture's own keys press the board from now on
+        await pilot.press("1")  # in the demo the keyboard is the finger
         assert feed.board.held() == ["zone1"]
         await pilot.press("1")
         assert feed.board.held() == []

@@ -206,10 +206,13 @@ def test_link_strip_cuts_a_long_reason_so_the_first_line_keeps_the_rate_at_80_ce
 def test_detail_title_keeps_the_spectrum_finding_whole_at_80_columns() -> None:
     import numpy as np
 
+    from processing.measure import SpectrumPeak
     from tui.widgets.detail_panel import Spectrum, detail_title
 
     finding = "strongest noise at 17.5 Hz: alias of 100 Hz (mains harmonic 2, 50 Hz)"
-    spectrum = Spectrum(np.zeros(1), np.zeros(1), finding)
+    peak = SpectrumPeak(17.5, 1.0, 200, 50.0, 2, 17.5, prominence=10.0)
+    spectrum = Spectrum(np.array([17.5]), np.array([1.0]), 200, 16, 200, 117.5, peak)
+    assert spectrum.summary == finding
     for width in (78, 118, 200):
         title = detail_title("zone1", spectrum, width)
         assert finding in title and len(title) <= width

@@ -1,15 +1,18 @@
 """The detail panel for the selected channel: a plot of reading and baseline with the threshold and
 release lines (or the noise spectrum), the channel's settings and its recent events.
 
-The plot is textual-plotext's PlotextPlot; it is redrawn at a few hertz, not at the table's rate.
+The plot is textual-plotext's PlotextPlot; it is redrawn at a few hertz, not at the table's rate. The
+spectrum is computed in processing (`processing.measure.NoiseSpectrum`); this panel only draws it, or,
+while its frames are still being collected, says how many there are of how many it needs.
 """
 
 from __future__ import annotations
 
 import itertools
+import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import ClassVar
+from typing import Any, ClassVar
 
 import numpy as np
 from rich.text import Text
@@ -18,6 +21,7 @@ from textual.containers import Horizontal, Vertical
 from textual.widgets import Static
 from textual_plotext import PlotextPlot
 
+from processing.measure import NoiseSpectrum
 from processing.settings import ChannelSettings
 from tui.render.settings import settings_text
 
@@ -32,11 +36,8 @@ class Series:
     polarity: int
 
 
-@dataclass(frozen=True, slots=True)
-class Spectrum:
-    freq_hz: np.ndarray
-    amplitude_counts: np.ndarray
-    summary: str  # one line: the peak and what it may be
+# What the panel draws for the spectrum: processing's own figures (kept under this name for the sources).
+Spectrum = NoiseSpectrum
 
 
 def _thin(x: np.ndarray, points: int) -> np.ndarray:
@@ -68,9 +69,10 @@ def detail_title(name: str, spectrum: Spectrum | None, width: int) -> str:
         choices = [f"{name}: reading ⣿  baseline ·  threshold =  release -  (f: noise spectrum)",
                    f"{name}: reading ⣿ baseline · threshold = release -"]
     else:
-        choices = [f"{name}: noise spectrum of the untouched delta: {spectrum.summary} (f: back to the plot)",
-                   f"{name} noise: {spectrum.summary} (f: plot)", f"{name} noise: {spectrum.summary}",
-                   f"{name}: {spectrum.summary}", spectrum.summary]
+        summary, brief = spectrum.summary, spectrum.brief
+        choices = [f"{name}: noise spectrum of the untouched delta: {summary} (f: back to the plot)",
+                   f"{name} noise: {summary} (f: plot)", f"{name} noise: {summary}", f"{name}: {summary}",
+                   f"{name} noise: {brief} (f: plot)", f"{name} noise: {brief}", f"{name}: {brief}", brief]
     return next((c for c in choices if len(c) <= width), choices[-1])
 
 
@@ -108,10 +110,12 @@ class DetailPanel(Vertical):
         plt.clear_data()
         plt.clear_figure()
         points = max(10, widget.size.width * 2)
-        if spectrum is not None:
+        if spectrum is not None and spectrum.collecting:
+            _say(plt, collecting_lines(spectrum), widget.size.width, widget.size.height)
+        elif spectrum is not None:
             freq, amp = envelope(spectrum.freq_hz, spectrum.amplitude_counts, points)
             plt.plot(freq.tolist(), amp.tolist(), label="amplitude (counts)", marker="braille")
-            plt.xlabel("Hz")
+            plt.xlabel(f"Hz ({spectrum.coverage()})")
         elif series is not None and len(series.t_s) > 1:
             t_all = series.t_s - series.t_s[-1]
             t_reading, reading = envelope(t_all, series.reading, points)
@@ -129,3 +133,25 @@ class DetailPanel(Vertical):
         else:
             plt.title("waiting for frames")
         widget.refresh()
+
+
+def collecting_lines(spectrum: Spectrum) -> list[str]:
+    """What the plot says while the spectrum's frames are collected: how many of how many, and why."""
+    lines = ["noise spectrum: collecting", f"untouched frames: {spectrum.samples} of {spectrum.needed}"]
+    if spectrum.rate_hz > 0:
+        lines.append(f"{spectrum.seconds(spectrum.samples)} of {spectrum.seconds(spectrum.needed)} needed")
+    lines.append("the key is touched: let go" if spectrum.touched else "hands off the key")
+    return lines
+
+
+def _say(plt: Any, lines: list[str], width: int, height: int) -> None:
+    """Lines of text in the plot's place (no axes: an empty plot would read as a flat spectrum)."""
+    lines = [part for line in lines for part in textwrap.wrap(line, max(10, width - 1))]
+    plt.frame(False)
+    plt.xticks([])
+    plt.yticks([])
+    plt.xlim(0.0, 1.0)
+    plt.ylim(0.0, 1.0)
+    row = 1.0 / max(1, height - 1)  # one text line per row, from the second row down
+    for i, line in enumerate(lines):
+        plt.text(line, 0.0, 1.0 - (i + 1) * row, alignment="left", color="default", background="default")

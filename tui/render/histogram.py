@@ -2,7 +2,9 @@
 
 Two rows of bar glyphs share one delta axis: the untouched deltas (noise, crosstalk) and the touched
 ones; an optional threshold is marked under the axis. It reads without colour (the rows are labelled and
-the bars are glyphs); colour is only a help. Used by the capture wizard and printed by `padtune tune`.
+the bars are glyphs); colour is only a help, from the `styles` roles "untouched", "touched" and
+"threshold" (none given: plain text). Drawn by the guided capture's results (the `tune` and `check`
+HTML reports draw their own histograms with matplotlib, `tui/report/plots.py`). Plain rich, no Textual.
 """
 
 from __future__ import annotations
@@ -13,6 +15,10 @@ import numpy as np
 from rich.console import Console, ConsoleOptions, RenderResult
 from rich.measure import Measurement
 from rich.text import Text
+
+from tui.render import Styles, pick
+
+ROLES = ("untouched", "touched", "threshold")
 
 BARS = " ▁▂▃▄▅▆▇█"
 PLAIN_BARS = " .:-=+*#%@"  # for consoles that cannot show block elements
@@ -40,12 +46,14 @@ class DeltaHistogram:
     """Untouched and touched deltas of one key on a shared axis, `threshold` marked with ^."""
 
     def __init__(self, untouched: Sequence[float] | np.ndarray, touched: Sequence[float] | np.ndarray,
-                 threshold: float | None = None, width: int = 40, label_width: int = 10) -> None:
+                 threshold: float | None = None, width: int = 40, label_width: int = 10,
+                 styles: Styles | None = None) -> None:
         self.untouched = np.asarray(untouched, np.float64)
         self.touched = np.asarray(touched, np.float64)
         self.threshold = threshold
         self.width = width
         self.label_width = label_width
+        self.styles: Styles = styles or {}
 
     def axis(self) -> tuple[float, float]:
         values = [v for v in (self.untouched, self.touched) if len(v)]
@@ -59,10 +67,9 @@ class DeltaHistogram:
         lo, hi = self.axis()
         glyphs = PLAIN_BARS if plain else BARS
         out = []
-        rows = (("untouched", self.untouched, "cyan"), ("touched", self.touched, "green"))
-        for label, values, style in rows:
+        for label, values in (("untouched", self.untouched), ("touched", self.touched)):
             line = Text(f"{label:<{self.label_width}}")
-            line.append(bar_row(bin_counts(values, lo, hi, bins), glyphs), style=style)
+            line.append(bar_row(bin_counts(values, lo, hi, bins), glyphs), style=pick(self.styles, label))
             out.append(line)
         left, right = f"{lo:.0f}", f"{hi:.0f}"
         axis = Text(" " * self.label_width + left + " " * max(1, bins - len(left) - len(right)) + right)
@@ -70,7 +77,7 @@ class DeltaHistogram:
         if self.threshold is not None:
             pos = min(bins - 1, int((self.threshold - lo) / (hi - lo) * bins))
             marker = " " * (self.label_width + pos) + f"^ threshold {self.threshold:.0f}"
-            out.append(Text(marker, style="bold"))
+            out.append(Text(marker, style=pick(self.styles, "threshold")))
         return out
 
     def __rich_console__(self, console: Console, options: ConsoleOptions) -> RenderResult:

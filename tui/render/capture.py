@@ -1,0 +1,111 @@
+"""What the guided capture screen draws, as plain rich renderables: the results table's heads and rows,
+the selected key's detail (figures, histogram of untouched and touched deltas, reasons), and the lines of
+the key choice. No Textual: `tui/screens/capture.py` lays these out.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
+
+import numpy as np
+from rich.console import Group
+from rich.padding import Padding
+from rich.text import Text
+
+from processing.capture import CaptureOutcome, key_ranges, steps_for
+from tui.fields import FIELDS
+from tui.render import Styles
+from tui.render.histogram import DeltaHistogram
+
+# Two-line heads (the quantity over its form or unit) in plain words. Eleven columns with full words
+# cannot fit 80 cells, so the RMS forms of noise and SNR moved to the selected key's detail lines,
+# and the columns are one cell apart (each cell carries its own leading space) instead of two.
+COLUMNS: tuple[tuple[str, str], ...] = (
+    ("key", ""), ("noise", "pp"), ("touch", "delta"), ("SNR", "pp"), ("verdict", ""),
+    ("threshold", "counts"), ("hysteresis", "counts"), ("debounce", "frames"), ("applied", ""),
+)
+# Setting keys (as the suggestion's reasons carry them) -> the words the editor shows for them.
+_LABELS = {f.key: f.label for f in FIELDS}
+
+
+def typing_example(names: Sequence[str]) -> str:
+    """What typed keys look like on this board: a range of numbers, a range of names, one name."""
+    n = len(names)
+    numbers = "3-10" if n >= 10 else f"1-{n}"
+    if n < 3:
+        return numbers
+    return f"{numbers}, {names[0]}-{names[min(3, n - 2)]}, {names[-1]}"
+
+
+def setting_label(key: str) -> str:
+    """`threshold_counts` -> `threshold`: a setting key as the user reads it (unknown keys unchanged)."""
+    return _LABELS.get(key, key.replace("_", " "))
+
+
+def cell(value: str) -> Text:
+    """A table cell with its own leading space (the columns are one cell apart)."""
+    return Text(f" {value}")
+
+
+def _num(value: float | None, digits: int = 1) -> str:
+    return "-" if value is None else ("inf" if not np.isfinite(value) else f"{value:.{digits}f}")
+
+
+def outcome_row(o: CaptureOutcome, applied: bool) -> tuple[str, ...]:
+    f, s = o.figures, o.after
+    settings = (str(s.threshold_counts), str(s.hysteresis_counts),
+                f"{s.touch_debounce_frames}/{s.release_debounce_frames}") if o.suggested else ("-", "-", "-")
+    mark = "yes" if applied else ("-" if o.suggested else "none")
+    return (o.name, _num(f.noise_pp_counts), _num(f.signal_counts), _num(f.snr_pp), o.verdict, *settings,
+            mark)
+
+
+def _indented(text: str, left: int = 4) -> Padding:
+    """A detail line indented by `left` cells, its wrapped lines too."""
+    return Padding(Text(text), (0, 0, 0, left))
+
+
+def outcome_detail(o: CaptureOutcome, styles: Styles | None = None) -> Group:
+    """The selected key's figures, its histogram of untouched and touched deltas, then its reasons
+    (the histogram first: at 80x24 it is what fits; the reasons scroll)."""
+    f = o.figures
+    lines: list[Any] = [
+        Text(f"{o.name}", style="bold"),
+        _indented(f"noise {_num(f.noise_pp_counts)} pp, {_num(f.noise_rms_counts)} RMS counts; "
+                  f"touch delta {_num(f.signal_counts)} counts", 2),
+        _indented(f"SNR {_num(f.snr_pp)} pp, {_num(f.snr_rms)} RMS: {o.verdict}", 2)]
+    threshold = float(o.after.threshold_counts) if o.suggested else None
+    lines.append(Padding(DeltaHistogram(o.untouched, o.touched, threshold=threshold, width=48, styles=styles),
+                         (0, 0, 0, 2)))
+    if o.suggested:
+        for key, reason in o.suggestion.reasons.items():  # type: ignore[union-attr]
+            lines.append(_indented(f"{setting_label(key)}: {reason}", 2))
+    else:
+        lines.append(_indented(f"no suggestion: {o.suggestion.reason}", 2))  # type: ignore[union-attr]
+    if o.stray_frames:
+        lines.append(_indented(f"{o.stray_frames} frames rose beyond its noise while other keys were held "
+                               "(a stray finger or strong crosstalk): left out of its untouched deltas", 2))
+    return Group(*lines)
+
+
+def key_choices(names: Sequence[str], selected: int | None,
+                sets: Sequence[tuple[str, str, Sequence[int]]]) -> list[tuple[str, str, list[int]]]:
+    """(id, label, channels) of the ready-made choices: all keys, the selected one, each group and slider
+    (`sets`: (kind, name, channels)); the typed choice comes after these."""
+    out = [("all", f"all {len(names)} keys", list(range(len(names))))]
+    if selected is not None and 0 <= selected < len(names):
+        out.append(("selected", f"the selected key, {names[selected]}", [selected]))
+    for kind, name, channels in sets:
+        if channels:
+            out.append((f"{kind}:{name}", f"{kind} {name}", list(channels)))
+    return out
+
+
+def choice_prompt(label: str, channels: Sequence[int], names: Sequence[str], width: int) -> Text:
+    """One line of the key choice: what it is, how many steps, the keys in the words typing takes
+    (cut with … where the line ends)."""
+    steps = f"{steps_for(len(channels))} steps"
+    text = Text(f"{label:<24} {steps:>9}   {key_ranges(channels, names)}", no_wrap=True)
+    text.truncate(max(20, width), overflow="ellipsis")
+    return text
