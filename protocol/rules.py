@@ -52,9 +52,9 @@ _SEPARATORS = b" \t,"
 
 
 def preview(line: bytes, limit: int = 40) -> str:
-    """A short printable rendering of a dropped line for fault details."""
-    text = line[:limit].decode("ascii", "backslashreplace")
-    return repr(text + ("..." if len(line) > limit else ""))
+    """A short printable rendering of a dropped line for fault details, quoted, every byte that is not
+    printable ASCII as one escape (`\\xff`, `\\t`): escaped once, never the escape escaped again."""
+    return repr(line[:limit] + (b"..." if len(line) > limit else b""))[1:]  # bytes' repr without its b
 
 
 def _int32(token: bytes) -> int | None:
