@@ -9,7 +9,8 @@ show below it.
 `a` applies the selected key's suggestion, `A` all of them, Esc discards. The screen dismisses with
 `{channel: ChannelSettings}` of what to apply (empty when discarded).
 
-Open it with `open_capture(app)` (the app's `w` key does), or push `CaptureScreen(session, clock=...)`.
+Open it with `open_capture(screen, source, apply)` (the live screen's `w` key does), or push
+`CaptureScreen(session, clock=...)`.
 """
 
 from __future__ import annotations
@@ -35,6 +36,7 @@ from protocol.events import FrameBlock
 from tui.fields import FIELDS
 from tui.headless.histogram import DeltaHistogram
 from tui.render.help import key_display
+from tui.source import LiveSource
 
 TICK_S = 0.1
 # Two-line heads (the quantity over its form or unit) in plain words. Eleven columns with full words
@@ -269,47 +271,35 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         self.dismiss(dict(self.applied))
 
 
-def open_capture(app: Any) -> None:
-    """Push the capture screen on the live app; apply what it returns as one undoable edit."""
-    source = app.source
+def open_capture(host: Screen[object], source: LiveSource,
+                 apply: Callable[[dict[int, ChannelSettings], dict[int, int]], None],
+                 *, clock: Callable[[], float] = time.monotonic) -> None:
+    """Push the capture screen over `host` (the live screen); what the user applied goes to `apply`
+    (settings per channel, and the polarities the capture learned for them) as one undoable edit."""
     session = getattr(source, "session", None)
     if session is None:
-        app.notify("The guided capture needs a live session.", severity="warning")
+        host.notify("The guided capture needs a live session.", severity="warning")
         return
 
     # On a simulated board the demo's scripted touches would land on the wrong keys mid-capture:
     # ask the board to keep still until the capture closes (a real board ignores the request).
     keep_still = getattr(source, "keep_still", None)
     if keep_still is not None and keep_still(True):
-        app.notify("The simulated board's scripted touches are paused during the capture.")
+        host.notify("The simulated board's scripted touches are paused during the capture.")
 
     def done(result: dict[int, ChannelSettings] | None) -> None:
         if keep_still is not None:
             keep_still(False)
         if not result:
-            app.notify("Guided capture closed: nothing applied.")
+            host.notify("Guided capture closed: nothing applied.")
             return
-        apply_changes = getattr(app, "_apply_changes", None)
-        if apply_changes is not None:
-            from tui.edits import Change
-            from tui.fields import PolarityChoice
-
-            names = session.names
-            learned = screen.wizard.learned if screen.wizard is not None else {}
-            changes = [Change(c, PolarityChoice(source.polarity(c)), PolarityChoice(sign))
-                       for c, sign in sorted(learned.items()) if c in result and source.polarity(c) != sign]
-            changes += [Change(c, source.settings(c), s) for c, s in sorted(result.items())]
-            what = ", ".join(names[c] for c in sorted(result)) if len(result) <= 3 else f"{len(result)} keys"
-            apply_changes(f"guided capture: {what}", changes)
-        else:
-            for c, s in result.items():
-                source.apply(c, s)
-        app.notify(f"Applied the suggestions for {len(result)} key(s).")
+        learned = screen.wizard.learned if screen.wizard is not None else {}
+        apply(result, {c: sign for c, sign in learned.items() if c in result})
 
     def marker(mark: Mark) -> None:
         # While the app records, the capture's stretches go into the file as marks, so the same
         # recording can be re-tuned (`padtune tune`) or replayed against its marks later.
         source.mark(mark.kind, mark.channel, mark.text, t_s=mark.t_s)
 
-    screen = CaptureScreen(session, clock=getattr(app, "clock", time.monotonic), marker=marker)
-    app.push_screen(screen, done)
+    screen = CaptureScreen(session, clock=clock, marker=marker)
+    host.app.push_screen(screen, done)

@@ -1,10 +1,17 @@
-"""Ask for one line of text (a value, a file name); a check may refuse it with a reason, the dialog stays."""
+"""Ask for one line of text (a value, a file name); a check may refuse it with a reason, the dialog stays.
+
+Keys typed in the same burst as the key that opened the dialog are the dialog's: they reach the app
+before the input can take them (Textual resolves a key's binding when it has bubbled up, by which time
+the dialog is on top but its input not focused yet). The app hands such keys to `take_key`; they are
+typed, in order, once the input has focus, so `Enter 5 0 Enter` sets 50 however fast it comes.
+"""
 
 from __future__ import annotations
 
 from collections.abc import Callable
 from typing import ClassVar
 
+from textual import events
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
@@ -23,18 +30,35 @@ class PromptScreen(ModalScreen[str | None]):
         self._question = question
         self._value = value
         self._check = check
-        self._hint = hint or "Enter accepts, Esc cancels"
+        self._hint = hint
+        self._early: list[events.Key] | None = []  # None once the input has focus and they were typed
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog"):
             yield Static(self._question, classes="dialog-question", markup=False)
+            if self._hint:
+                yield Static(self._hint, id="prompt-hint", classes="dialog-hint", markup=False)
             yield Input(value=self._value, id="prompt-input", select_on_focus=True)
             yield Static("", id="prompt-error", classes="dialog-error", markup=False)
-            yield Static(self._hint, classes="dialog-keys", markup=False)
+            yield Static("Enter accepts, Esc cancels", classes="dialog-keys", markup=False)
 
     def on_mount(self) -> None:
         self.query_one(Input).cursor_blink = False
         self.query_one(Input).focus()
+
+    def on_descendant_focus(self, event: events.DescendantFocus) -> None:
+        if self._early is not None and isinstance(event.widget, Input):
+            early, self._early = self._early, None
+            for key in early:  # typed now, through the app, so they take the same path as later keys
+                self.app.post_message(key)
+
+    def take_key(self, key: str, character: str | None) -> None:
+        """A key the user typed for this dialog that went the screen below's way."""
+        event = events.Key(key, character)
+        if self._early is not None:
+            self._early.append(event)
+        else:
+            self.app.post_message(event)
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()
