@@ -57,6 +57,11 @@ def preview(line: bytes, limit: int = 40) -> str:
     return repr(line[:limit] + (b"..." if len(line) > limit else b""))[1:]  # bytes' repr without its b
 
 
+def _count(count: int, noun: str) -> str:
+    """`1 value`, `3 values`: counts in messages agree in number."""
+    return f"{count} {noun}{'' if count == 1 else 's'}"
+
+
 def _int32(token: bytes) -> int | None:
     """A decimal integer token (`-?[0-9]+`) within 32 bits, or None; never converts a huge token."""
     magnitude = token.lstrip(b"-").lstrip(b"0")
@@ -534,9 +539,8 @@ class LineRules:
                 self._streak_width, self._streak = width, 1
             if self._streak < BOARD_CHANGE_FRAMES:
                 self.stats.width_mismatch += 1
-                self._fault(
-                    FaultKind.WIDTH_MISMATCH, detail=f"{width} values, {self.channels} channels expected"
-                )
+                self._fault(FaultKind.WIDTH_MISMATCH, detail=f"{_count(width, 'value')}, "
+                            f"{_count(self.channels, 'channel')} expected")
                 return
             old, self.channels = self.channels, width
             self.stats.board_changes += 1

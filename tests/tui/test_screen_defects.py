@@ -12,6 +12,7 @@ import threading
 import time
 from pathlib import Path
 
+import numpy as np
 from pytest import MonkeyPatch
 from textual import events
 from textual.pilot import Pilot
@@ -310,3 +311,19 @@ async def test_a_slow_save_runs_off_the_screen_thread_one_at_a_time(tmp_path: Pa
         shown = screen_text(app)
         assert "saving…" not in shown and "*unsaved" not in shown
         assert log_text(app).count(f"profile written to {target}") == 2
+
+
+async def test_counts_in_the_log_agree_in_number() -> None:
+    from protocol.events import BoardChanged, FrameBlock
+
+    feed = SyntheticFeed(names=("tap", "hold"), rate_hz=40.0, polarity=())  # 25 ms at 40 Hz: 1 frame
+    app = PadtuneApp(SessionSource(feed, port="test://feed", clock=lambda: feed.t_s), ui_hz=0,
+                     clock=lambda: feed.t_s)
+    async with app.run_test(size=(120, 30)):
+        run(app, feed, 2.0)
+        assert "debounce 1 frame." in log_text(app)
+        t = feed.t_s + (1 + np.arange(10)) / 40
+        feed.queue += [BoardChanged(float(t[0]), 2, 1), FrameBlock(t, np.arange(10), np.full((10, 1), 1000),
+                                                                   feed.index)]
+        app.refresh_now()
+        assert "board now has 1 channel (was 2)" in log_text(app)
