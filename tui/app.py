@@ -18,7 +18,7 @@ from typing import ClassVar
 from textual import events
 from textual.app import App, SystemCommand
 from textual.binding import Binding
-from textual.notifications import SeverityLevel
+from textual.notifications import Notify, SeverityLevel
 from textual.screen import Screen
 
 from tui.bindings import help_rows, key_actions, palette_entries
@@ -102,9 +102,13 @@ class PadtuneApp(App[int]):
         if self._notice is not None and self._notice[0] == key and now < self._notice[2]:
             count = self._notice[1] + 1
         self._notice = (key, count, now + timeout)
-        self.clear_notifications()
         shown = f"{message} (×{count})" if count > 1 else message
         super().notify(shown, title=title, severity=severity, timeout=timeout, markup=markup)
+
+    def on_notify(self, event: Notify) -> None:
+        """A notice is shown when its message is handled (Textual's own handler runs after this one):
+        those before it go then, so a burst of them leaves only the last."""
+        self.clear_notifications()
 
     # -- for tests and benchmarks (the live screen owns these) ------------------------------------
     def refresh_now(self) -> None:

@@ -327,3 +327,12 @@ async def test_counts_in_the_log_agree_in_number() -> None:
                                                                    feed.index)]
         app.refresh_now()
         assert "board now has 1 channel (was 2)" in log_text(app)
+
+
+async def test_a_burst_of_notices_leaves_one() -> None:
+    app, feed = make_app()
+    async with app.run_test(size=(80, 24), notifications=True) as pilot:
+        run(app, feed, 0.5)
+        await burst(pilot, "u", "u", "u", "u", "U")  # as fast as a terminal delivers a held key
+        assert [n.message for n in app._notifications] == ["Nothing to redo."]
+        assert screen_text(app).count("Nothing to") == 1
