@@ -16,7 +16,7 @@ from enum import Enum
 from typing import Protocol
 
 from processing.settings import ChannelSettings
-from tui.edits import Change, Edit, EditHistory
+from tui.edits import Change, Edit, EditHistory, EditValue
 from tui.fields import (
     POLARITY_KEY,
     PolarityChoice,
@@ -222,20 +222,18 @@ class Editor:
         is cleared and the reason returned."""
         try:
             for change in edit.changes if side == "after" else reversed(edit.changes):
-                self._set(change.channel, getattr(change, side))
+                self._set(change.channel, change.after if side == "after" else change.before)
         except ValueError as exc:
             self.history.clear()
             return str(exc)
         return None
 
-    def _set(self, channel: int, value: object) -> None:
+    def _set(self, channel: int, value: EditValue) -> None:
         """Apply one side of a change: new settings, or a channel's polarity (ValueError if refused)."""
         if isinstance(value, PolarityChoice):
             self.target.set_polarity(channel, value.sign)
-        elif isinstance(value, ChannelSettings):
-            self.target.apply(channel, value)
         else:
-            raise TypeError(f"not an edit of a channel: {value!r}")
+            self.target.apply(channel, value)
 
     def _has(self, channel: int) -> bool:
         return 0 <= channel < len(self.target.channel_names())

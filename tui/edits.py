@@ -11,12 +11,18 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from processing.settings import ChannelSettings
+from tui.fields import PolarityChoice
+
+# What one change sets on a channel: its settings, or its polarity.
+EditValue = ChannelSettings | PolarityChoice
+
 
 @dataclass(frozen=True, slots=True)
 class Change:
     channel: int
-    before: object
-    after: object
+    before: EditValue
+    after: EditValue
 
 
 @dataclass(frozen=True, slots=True)

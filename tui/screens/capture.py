@@ -36,6 +36,7 @@ from protocol.events import FrameBlock
 from tui.fields import FIELDS
 from tui.headless.histogram import DeltaHistogram
 from tui.render.help import key_display
+from tui.session_source import SessionSource
 from tui.source import LiveSource
 
 TICK_S = 0.1
@@ -276,20 +277,18 @@ def open_capture(host: Screen[object], source: LiveSource,
                  *, clock: Callable[[], float] = time.monotonic) -> None:
     """Push the capture screen over `host` (the live screen); what the user applied goes to `apply`
     (settings per channel, and the polarities the capture learned for them) as one undoable edit."""
-    session = getattr(source, "session", None)
-    if session is None:
+    if not isinstance(source, SessionSource):
         host.notify("The guided capture needs a live session.", severity="warning")
         return
+    session = source.session
 
     # On a simulated board the demo's scripted touches would land on the wrong keys mid-capture:
     # ask the board to keep still until the capture closes (a real board ignores the request).
-    keep_still = getattr(source, "keep_still", None)
-    if keep_still is not None and keep_still(True):
+    if source.keep_still(True):
         host.notify("The simulated board's scripted touches are paused during the capture.")
 
     def done(result: dict[int, ChannelSettings] | None) -> None:
-        if keep_still is not None:
-            keep_still(False)
+        source.keep_still(False)
         if not result:
             host.notify("Guided capture closed: nothing applied.")
             return

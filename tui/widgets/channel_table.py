@@ -15,6 +15,7 @@ from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
 from textual.binding import Binding
+from textual.geometry import Size
 from textual.message import Message
 from textual.reactive import reactive
 from textual.strip import Strip
@@ -113,7 +114,7 @@ class ChannelTable(Widget):
     def page_rows(self) -> int:
         return max(1, self.size.height - 2)
 
-    def get_content_height(self, container: object, viewport: object, width: int) -> int:
+    def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
         """One line per channel plus the header, so the table takes only the room it needs."""
         return len(self._views) + 1 if self._views else 2
 
