@@ -10,10 +10,10 @@ own system commands. Notices never pile up: one shows at a time, a repeat counts
 from __future__ import annotations
 
 import time
-from collections import deque
 from collections.abc import Callable, Iterable
 from functools import partial
 from typing import ClassVar
+from weakref import WeakKeyDictionary
 
 from textual import events
 from textual.app import App, SystemCommand
@@ -51,7 +51,8 @@ class PadtuneApp(App[int]):
         self.source, self.demo, self.clock = source, demo, clock
         self.live = LiveScreen(source, ui_hz=ui_hz, clock=clock)
         self._notice: tuple[tuple[str, str, str], int, float] | None = None  # the one showing
-        self._key_routes: deque[tuple[events.Key, Screen[object]]] = deque(maxlen=64)
+        # The screen each key was sent to, until it comes back to be bound (or is dropped: weak keys).
+        self._key_routes: WeakKeyDictionary[events.Key, Screen[object]] = WeakKeyDictionary()
 
     def get_default_screen(self) -> Screen[None]:
         return self.live
@@ -76,7 +77,7 @@ class PadtuneApp(App[int]):
     # -- keys typed for a dialog that opened on their way -----------------------------------------
     async def on_event(self, event: events.Event) -> None:
         if isinstance(event, events.Key) and not event.is_forwarded:
-            self._key_routes.append((event, self.screen))  # the screen it is sent to
+            self._key_routes[event] = self.screen
         await super().on_event(event)
 
     def on_key(self, event: events.Key) -> None:
@@ -84,7 +85,7 @@ class PadtuneApp(App[int]):
         went through the focused widget; one typed right after the key that opened a prompt went the
         way of the screen below, and would be looked up in the prompt's bindings and lost: it is the
         prompt's text (`Enter 5 0 Enter` sets 50 however fast it is typed)."""
-        routed = next((s for e, s in self._key_routes if e is event), None)
+        routed = self._key_routes.pop(event, None)
         top = self.screen
         if routed is not None and routed is not top and isinstance(top, PromptScreen):
             event.prevent_default()  # not looked up in the bindings: typed into the prompt instead

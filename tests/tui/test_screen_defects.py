@@ -37,7 +37,7 @@ async def burst(pilot: Pilot, *keys: str) -> None:
     for key in keys:
         char = {"enter": "\r", "escape": "\x1b"}.get(key, key if len(key) == 1 else None)
         app.post_message(events.Key(key, char))
-    for _ in range(6):
+    for _ in range(3 * len(keys) + 6):  # each key may go round once more (typed for a dialog that opened)
         await pilot.pause()
 
 
@@ -336,3 +336,16 @@ async def test_a_burst_of_notices_leaves_one() -> None:
         await burst(pilot, "u", "u", "u", "u", "U")  # as fast as a terminal delivers a held key
         assert [n.message for n in app._notifications] == ["Nothing to redo."]
         assert screen_text(app).count("Nothing to") == 1
+
+
+async def test_editing_keys_in_a_burst_act_in_their_turn(tmp_path: Path) -> None:
+    app, feed = make_app()
+    target = tmp_path / "burst.toml"
+    async with app.run_test() as pilot:
+        run(app, feed, 0.5)
+        typed = str(target)
+        await burst(pilot, "plus", "S", "ctrl+a", "ctrl+k", *typed[:-1], "x", "left", "right", "backspace",
+                    typed[-1], "enter")  # the proposed name cleared, the path typed with a slip mended
+        await files_written(pilot)
+        assert app.screen is app.live
+        assert load_profile(target).settings_for(0).threshold_counts == 101
