@@ -397,14 +397,22 @@ async def test_help_lists_every_binding_and_the_cautions() -> None:
 
 
 async def test_command_palette_lists_actions_by_name() -> None:
-    app, _ = make_app()
+    app, feed = make_app()
     async with app.run_test() as pilot:
-        titles = [c.title for c in app.get_system_commands(app.screen)]
-        assert "Save the profile" in titles and "Undo the last edit" in titles
-        assert "Re-baseline all channels" in titles
+        run(app, feed, 0.5)
+        commands = {c.title: c for c in app.get_system_commands(app.screen)}
+        assert {"Save the profile", "Undo the last edit", "Re-baseline all channels", "Next channel"} <= set(
+            commands)
+        assert {"Theme", "Keys", "Screenshot", "Quit"} <= set(commands)  # Textual's own stay
+        assert commands["Next channel"].help == "key: ↓ / j"
         await pilot.press("ctrl+p")
         await pilot.pause()
         assert app.screen.__class__.__name__ == "CommandPalette"
+        await pilot.press(*"raise the setting (fine", "enter")  # found by name, run on the live screen
+        await pilot.pause()
+        assert app.screen is app.live and app.source.settings(0).threshold_counts == 101
+        await commands["Next channel"].callback()  # a widget's key, run on the table
+        assert app.live.cursor == 1
 
 
 async def test_moving_through_64_channels_keeps_the_cursor_in_view() -> None:
