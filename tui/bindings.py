@@ -12,6 +12,7 @@ from __future__ import annotations
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 
+from textual.app import App
 from textual.binding import ActiveBinding, Binding
 from textual.dom import DOMNode
 
@@ -20,6 +21,7 @@ SECTIONS = {
     "move": "Move", "edit": "Edit the selected channel", "chan": "Channel and display",
     "rec": "Recording", "prof": "Profile", "demo": "Simulated board (demo)", "app": "App",
 }
+OTHER = "Other keys"
 # Rows the help adds after a binding: what the same keys do on a special field, what a mark means.
 NOTES = {
     "edit.down": ("plus,minus", "On the polarity field (the edit bar's last: ← from threshold): + when "
@@ -42,7 +44,12 @@ class KeyAction:
 
     @property
     def section(self) -> str:
-        return SECTIONS.get((self.binding.id or "app").split(".")[0], "App")
+        """The help section: from the id's prefix (another screen's prefix, capitalised, names its own);
+        bindings without an id are Textual's own: the app's, or a widget's ("Other keys")."""
+        if self.binding.id:
+            prefix = self.binding.id.split(".")[0]
+            return SECTIONS.get(prefix, prefix.capitalize())
+        return "App" if isinstance(self.node, App) else OTHER
 
     @property
     def sentence(self) -> str:
@@ -82,7 +89,7 @@ def help_rows(actions: Iterable[KeyAction]) -> list[tuple[str, str, str]]:
     """(section, keys, description) for every action, sections in the order of `SECTIONS`; the demo
     keys 1..0 collapse into one row."""
     rows: list[tuple[str, str, str]] = []
-    for a in sorted(actions, key=lambda a: list(SECTIONS.values()).index(a.section)):
+    for a in sorted(actions, key=_section_order):
         ident = a.binding.id or ""
         if ident.startswith("demo.key"):
             if ident == "demo.key1":
@@ -93,6 +100,14 @@ def help_rows(actions: Iterable[KeyAction]) -> list[tuple[str, str, str]]:
         if ident in NOTES:
             rows.append((a.section, *NOTES[ident]))
     return rows
+
+
+def _section_order(action: KeyAction) -> float:
+    """Sections in `SECTIONS` order, another screen's and the other keys just before App."""
+    order = list(SECTIONS.values())
+    if action.section in order:
+        return order.index(action.section)
+    return order.index("App") - (0.25 if action.section == OTHER else 0.5)
 
 
 def palette_entries(actions: Iterable[KeyAction]) -> list[KeyAction]:
