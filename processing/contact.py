@@ -162,7 +162,8 @@ class FirstContact:
             pp = _span([m.stats.pp_counts for m in taken])
             each = f"{len(taken)} channels, threshold {thr} counts, hysteresis {hys} (noise {pp} counts pp)"
         debounce = taken[0].settings.touch_debounce_frames
-        self.notices.append(f"provisional settings from the quiet noise: {each}; debounce {debounce} frames. "
+        frames = f"{debounce} frame" if debounce == 1 else f"{debounce} frames"
+        self.notices.append(f"provisional settings from the quiet noise: {each}; debounce {frames}. "
                             "Edit a key, run the guided capture or load a profile to replace them")
 
     def _board_polarity(self, info: BoardInfo) -> None:

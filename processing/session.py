@@ -251,7 +251,7 @@ class Session(FirstContact):
                 self.notices.append("board reset: baselines taken again")
                 self.rebaseline()
             elif isinstance(ev, BoardChanged):
-                self.notices.append(f"board now has {ev.channels} channels (was {ev.old_channels})")
+                self.notices.append(f"board now has {_channels(ev.channels)} (was {ev.old_channels})")
                 self._build(ev.channels)
         self._tell_provisional()
         return out
@@ -261,7 +261,8 @@ class Session(FirstContact):
             return []
         if self.engine is None or self.engine.channels != block.channels:
             if self.engine is not None:
-                self.notices.append(f"frames now have {block.channels} channels (was {self.engine.channels})")
+                was = self.engine.channels
+                self.notices.append(f"frames now have {_channels(block.channels)} (was {was})")
             self._build(block.channels)
         assert self.engine is not None and self.measures is not None
         if block.board_time is not None:
@@ -457,3 +458,6 @@ class Session(FirstContact):
         self.groups = [ExclusiveGroup(g) for g in profile.groups]
         self.sliders = [Slider(s) for s in profile.sliders]
 
+
+def _channels(count: int) -> str:
+    return f"{count} channel{'' if count == 1 else 's'}"

@@ -114,17 +114,21 @@ def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: flo
     touch_db, capped = _debounce(burst, rate_hz, max_debounce_s)
     span_ms = f"{1000 * touch_db / rate_hz:.0f} ms"
     reasons["touch_debounce_frames"] = (
-        f"noise bursts beyond 2 RMS lasted up to {burst} frames; {touch_db} frames ({span_ms}) span them"
-        if burst else f"no noise burst beyond 2 RMS was seen; {touch_db} frames ({span_ms}) still guard "
+        f"noise bursts beyond 2 RMS lasted up to {_frames(burst)}; {_frames(touch_db)} ({span_ms}) span them"
+        if burst else f"no noise burst beyond 2 RMS was seen; {_frames(touch_db)} ({span_ms}) still guard "
         "against a single stray frame")
     if capped:
-        reasons["touch_debounce_frames"] += f" (capped at {touch_db} frames, to stay quick)"
+        reasons["touch_debounce_frames"] += f" (capped at {_frames(touch_db)}, to stay quick)"
     dropout = longest_run(held < threshold - hyst)
     release_db, capped = _debounce(dropout, rate_hz, max_debounce_s)
     reasons["release_debounce_frames"] = (
-        f"the touched delta dipped below the release level for up to {dropout} frames; {release_db} frames "
-        "span that" if dropout else f"the touched delta never dipped below the release level; {release_db} "
-        "frames still hold a touch through a single stray frame")
+        f"the touched delta dipped below the release level for up to {_frames(dropout)}; "
+        f"{_frames(release_db)} span that" if dropout else "the touched delta never dipped below the release "
+        f"level; {_frames(release_db)} still hold a touch through a single stray frame")
     if capped:
-        reasons["release_debounce_frames"] += f" (capped at {release_db} frames)"
+        reasons["release_debounce_frames"] += f" (capped at {_frames(release_db)})"
     return Suggestion(threshold, hyst, touch_db, release_db, reasons, signal, float(pp), rms)
+
+
+def _frames(count: int) -> str:
+    return f"{count} frame{'' if count == 1 else 's'}"

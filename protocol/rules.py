@@ -52,9 +52,14 @@ _SEPARATORS = b" \t,"
 
 
 def preview(line: bytes, limit: int = 40) -> str:
-    """A short printable rendering of a dropped line for fault details."""
-    text = line[:limit].decode("ascii", "backslashreplace")
-    return repr(text + ("..." if len(line) > limit else ""))
+    """A short printable rendering of a dropped line for fault details, quoted, every byte that is not
+    printable ASCII as one escape (`\\xff`, `\\t`): escaped once, never the escape escaped again."""
+    return repr(line[:limit] + (b"..." if len(line) > limit else b""))[1:]  # bytes' repr without its b
+
+
+def _count(count: int, noun: str) -> str:
+    """`1 value`, `3 values`: counts in messages agree in number."""
+    return f"{count} {noun}{'' if count == 1 else 's'}"
 
 
 def _int32(token: bytes) -> int | None:
@@ -534,9 +539,8 @@ class LineRules:
                 self._streak_width, self._streak = width, 1
             if self._streak < BOARD_CHANGE_FRAMES:
                 self.stats.width_mismatch += 1
-                self._fault(
-                    FaultKind.WIDTH_MISMATCH, detail=f"{width} values, {self.channels} channels expected"
-                )
+                self._fault(FaultKind.WIDTH_MISMATCH, detail=f"{_count(width, 'value')}, "
+                            f"{_count(self.channels, 'channel')} expected")
                 return
             old, self.channels = self.channels, width
             self.stats.board_changes += 1

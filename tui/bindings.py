@@ -1,97 +1,116 @@
-"""Every key of the live screen, in one list: the app binds them, the help screen and the command
-palette are built from them, so the three cannot disagree.
+"""The help screen's rows and the command palette's commands, read from the bindings that are active.
 
-Each binding has an id `section.name` (the section heads its group in the help screen), a short
-description for the footer and a `tooltip` with the full sentence for help and the palette.
+Each key is bound where it acts (the channel table its cursor keys, the live screen its edit, display,
+recording and profile keys, the app quit, help and the palette), with an id `section.name` (the
+section heads its group in the help screen), a short description for the footer and a `tooltip` with
+the full sentence. Textual's `Screen.active_bindings` gathers them along the focused widget's chain;
+help and the palette are built from that, so neither can drift from what the keys do.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
 
-from textual.binding import Binding
+from textual.app import App
+from textual.binding import ActiveBinding, Binding
+from textual.dom import DOMNode
 
 # Binding id prefix -> the section it is listed under in the help screen.
 SECTIONS = {
     "move": "Move", "edit": "Edit the selected channel", "chan": "Channel and display",
     "rec": "Recording", "prof": "Profile", "demo": "Simulated board (demo)", "app": "App",
 }
-
-B = Binding
-BINDINGS: list[Binding] = [
-    B("down,j", "cursor(1)", "Next channel", id="move.down", show=False),
-    B("up,k", "cursor(-1)", "Previous channel", id="move.up", show=False),
-    B("pagedown", "cursor_page(1)", "Page down", id="move.pagedown", show=False),
-    B("pageup", "cursor_page(-1)", "Page up", id="move.pageup", show=False),
-    B("home", "cursor_to(0)", "First channel", id="move.first", show=False),
-    B("end", "cursor_to(-1)", "Last channel", id="move.last", show=False),
-    B("right,tab", "field(1)", "Next setting to edit", id="move.field_next", show=False),
-    B("left,shift+tab", "field(-1)", "Previous setting to edit", id="move.field_prev", show=False),
-    B("plus,equals_sign", "step(1, False)", "Raise the setting (fine step)", id="edit.up", key_display="+",
-      show=False),
-    B("minus", "step(-1, False)", "Lower the setting (fine step)", id="edit.down", key_display="-",
-      show=False),
-    B("right_square_bracket", "step(1, True)", "Raise the setting (coarse step)", id="edit.up_coarse",
-      show=False),
-    B("left_square_bracket", "step(-1, True)", "Lower the setting (coarse step)", id="edit.down_coarse",
-      show=False),
-    B("enter,e", "type_value", "Type a value for the setting", id="edit.type", key_display="⏎",
-      show=False),
-    B("a", "apply_all", "Copy this channel's settings to all channels", id="edit.all", show=False),
-    B("g", "apply_group", "Copy this channel's settings to its group", id="edit.group", show=False),
-    B("u", "undo", "Undo the last edit", id="edit.undo", show=False),
-    B("U,ctrl+y", "redo", "Redo", id="edit.redo", show=False),
-    B("b", "rebaseline(False)", "Re-baseline the selected channel", id="chan.rebase", show=False),
-    B("B", "rebaseline(True)", "Re-baseline all channels", id="chan.rebase_all", show=False),
-    B("d", "toggle_detail", "detail", id="chan.detail", tooltip="Detail panel: plot, settings, events"),
-    B("f", "toggle_spectrum", "Noise spectrum in the detail panel", id="chan.spectrum", show=False),
-    B("space", "toggle_pause", "pause", id="chan.pause", key_display="Space",
-      tooltip="Pause / resume the display (detection keeps running)"),
-    B("r", "toggle_recording", "record", id="rec.toggle", tooltip="Start / stop recording to a CSV file"),
-    B("m", "mark", "Mark this moment in the recording", id="rec.mark", show=False),
-    B("s,ctrl+s", "save", "save", id="prof.save", tooltip="Save the profile"),
-    B("S", "save_as", "Save the profile as another file", id="prof.save_as", show=False),
-    B("o", "load", "Load another profile", id="prof.load", show=False),
-    B("x", "export", "Export for firmware (C header or JSON)", id="prof.export", show=False),
-    B("t", "tap", "Tap the selected key on the simulated board", id="demo.tap", show=False),
-    B("p", "hold", "Hold / let go of the selected key on the simulated board", id="demo.hold", show=False),
-    *[B(str(n % 10), f"hold_number({n - 1})", f"Hold / let go of key {n} on the simulated board",
-        id=f"demo.key{n}", show=False) for n in range(1, 11)],
-    B("w", "wizard", "Guided capture: measure noise and touches, suggest settings", id="app.wizard",
-      show=False),
-    B("question_mark,f1", "help", "help", id="app.help", key_display="?",
-      tooltip="Help: every key and the safety cautions"),
-    B("q,ctrl+q", "quit", "quit", id="app.quit", tooltip="Quit (asks when edits are unsaved)"),
-]
+OTHER = "Other keys"
+# Rows the help adds after a binding: what the same keys do on a special field, what a mark means.
+NOTES = {
+    "edit.down": ("plus,minus", "On the polarity field (the edit bar's last: ← from threshold): + when "
+                  "counts rise on touch, - when they fall; Enter, then ?, to learn it again from the next "
+                  "touch"),
+    "chan.rebase_all": ("≈", "In the table: provisional threshold and hysteresis, from the key's own noise "
+                        "(edit it, run the guided capture w, or load a profile). The state reads '~ noise' "
+                        "while its quiet second is measured (hands off; the edit bar shows its threshold as "
+                        "--), '? learn' until a first touch shows which way its counts move"),
+}
 
 
-# Actions that are off while a dialog or another screen is on top: all but quit (help's own keys
-# then show in the footer instead of the live screen's).
-_COVERED_OFF = {b.action.split("(")[0] for b in BINDINGS} - {"quit"}
-# ... except that a full screen over the live one (the guided capture, which asks to touch each key)
-# still lets the simulated board's keys be pressed: in the demo that is the only way to touch them.
-_PRESS_THROUGH = {"hold_number", "hold", "tap"}
+@dataclass(frozen=True, slots=True)
+class KeyAction:
+    """One binding with all the keys that trigger it, and the node whose action it runs."""
+
+    node: DOMNode
+    binding: Binding
+    keys: str  # comma-separated, as Textual names them
+
+    @property
+    def section(self) -> str:
+        """The help section: from the id's prefix (another screen's prefix, capitalised, names its own);
+        bindings without an id are Textual's own: the app's, or a widget's ("Other keys")."""
+        if self.binding.id:
+            prefix = self.binding.id.split(".")[0]
+            return SECTIONS.get(prefix, prefix.capitalize())
+        return "App" if isinstance(self.node, App) else OTHER
+
+    @property
+    def sentence(self) -> str:
+        return self.binding.tooltip or self.binding.description
 
 
-def help_rows(bindings: Iterable[Binding] = BINDINGS) -> list[tuple[str, str, str]]:
-    """(section, keys, description) for every binding; the demo keys 1..0 collapse into one row."""
-    rows: list[tuple[str, str, str]] = []
-    for b in bindings:
-        if b.id and b.id.startswith("demo.key"):
-            if b.id == "demo.key1":
-                rows.append((SECTIONS["demo"], "1 … 9,0",
-                             "Hold / let go of key 1 … 9, or key 10 (0), on the simulated board"))
+def key_actions(active: Mapping[str, ActiveBinding]) -> list[KeyAction]:
+    """The active bindings once per action, their keys together in the order they were declared, in
+    the order Textual checks them (the focused widget, the screen, the app). System bindings are left
+    out."""
+    grouped: dict[tuple[int, str], list[tuple[str, ActiveBinding]]] = {}
+    for key, found in active.items():
+        b = found.binding
+        if b.system or not (b.description or b.tooltip):
             continue
-        section = SECTIONS.get((b.id or "app").split(".")[0], "App")
-        rows.append((section, b.key, b.tooltip or b.description))
-        if b.id == "edit.down":  # the same keys on the edit bar's last field
-            rows.append((section, "plus,minus", "On the polarity field (the edit bar's last: ← from "
-                         "threshold): + when counts rise on touch, - when they fall; Enter, then ?, to learn "
-                         "it again from the next touch"))
-        if b.id == "chan.rebase_all":  # what the table shows before a key is tuned
-            rows.append((section, "≈", "In the table: provisional threshold and hysteresis, from the key's "
-                         "own noise (edit it, run the guided capture w, or load a profile). The state "
-                         "reads '~ noise' while its quiet second is measured (hands off), '? learn' until "
-                         "a first touch shows which way its counts move"))
-    rows.append((SECTIONS["app"], "ctrl+p", "Command palette: every action by name"))
+        grouped.setdefault((id(found.node), b.id or b.action), []).append((key, found))
+    actions = []
+    for entries in grouped.values():
+        node, binding = entries[0][1].node, entries[0][1].binding
+        order = _declared_keys(node, binding)
+        keys = sorted((k for k, _ in entries), key=lambda k: order.index(k) if k in order else len(order))
+        actions.append(KeyAction(node, binding, ",".join(keys)))
+    return actions
+
+
+def _declared_keys(node: DOMNode, binding: Binding) -> list[str]:
+    """The keys of `binding` as its class declared them (`right,tab`), as Textual names them."""
+    for cls in type(node).__mro__:
+        for declared in vars(cls).get("BINDINGS", ()):
+            if isinstance(declared, Binding) and (declared.id or declared.action) == \
+                    (binding.id or binding.action):
+                return [b.key for b in Binding.make_bindings([declared])]
+    return []
+
+
+def help_rows(actions: Iterable[KeyAction]) -> list[tuple[str, str, str]]:
+    """(section, keys, description) for every action, sections in the order of `SECTIONS`; the demo
+    keys 1..0 collapse into one row."""
+    rows: list[tuple[str, str, str]] = []
+    for a in sorted(actions, key=_section_order):
+        ident = a.binding.id or ""
+        if ident.startswith("demo.key"):
+            if ident == "demo.key1":
+                rows.append((a.section, "1 … 9,0", "Hold / let go of key 1 … 9, or key 10 (0), on the "
+                             "simulated board"))
+            continue
+        rows.append((a.section, a.keys, a.sentence))
+        if ident in NOTES:
+            rows.append((a.section, *NOTES[ident]))
     return rows
+
+
+def _section_order(action: KeyAction) -> float:
+    """Sections in `SECTIONS` order, another screen's and the other keys just before App."""
+    order = list(SECTIONS.values())
+    if action.section in order:
+        return order.index(action.section)
+    return order.index("App") - (0.25 if action.section == OTHER else 0.5)
+
+
+def palette_entries(actions: Iterable[KeyAction]) -> list[KeyAction]:
+    """The actions the command palette lists by name: all but the numbered demo keys and the palette."""
+    return [a for a in actions if not (a.binding.id or "").startswith("demo.key")
+            and a.binding.action not in ("command_palette", "app.command_palette")]

@@ -6,8 +6,17 @@ from collections.abc import Sequence
 
 from rich.text import Text
 
-from processing.detections import GroupChange, Rebaselined, Release, SliderChange, StuckRelease, Touch
-from protocol.events import BoardChanged, BoardInfo, FaultKind, LinkFault, LinkStatus, Note
+from processing.detections import (
+    DetectionEvent,
+    GroupChange,
+    Rebaselined,
+    Release,
+    SliderChange,
+    StuckRelease,
+    Touch,
+)
+from protocol.events import BoardChanged, BoardInfo, Event, FaultKind, LinkFault, LinkStatus, Note
+from tui.words import plural
 
 
 def _name(names: Sequence[str], channel: int | None) -> str:
@@ -16,7 +25,7 @@ def _name(names: Sequence[str], channel: int | None) -> str:
     return names[channel] if 0 <= channel < len(names) else f"ch{channel}"
 
 
-def describe_detection(det: object, names: Sequence[str]) -> Text | None:
+def describe_detection(det: DetectionEvent, names: Sequence[str]) -> Text | None:
     """One line for a detection event; slider moves are not logged (only touch and release)."""
     if isinstance(det, Touch):
         return Text(f"● {_name(names, det.channel)} touch (delta {det.delta_counts})")
@@ -37,7 +46,7 @@ def describe_detection(det: object, names: Sequence[str]) -> Text | None:
     return None
 
 
-def describe_event(ev: object) -> Text | None:
+def describe_event(ev: Event) -> Text | None:
     if isinstance(ev, Note):
         return Text(f"# board: {ev.text}")
     if isinstance(ev, LinkFault):
@@ -53,7 +62,7 @@ def describe_event(ev: object) -> Text | None:
     if isinstance(ev, BoardInfo):
         parts = [f"board {ev.board or '?'}"]
         if ev.channels:
-            parts.append(f"{ev.channels} channels")
+            parts.append(plural(ev.channels, "channel"))
         if ev.rate_hz:
             parts.append(f"{ev.rate_hz:g} Hz")
         if ev.fw:

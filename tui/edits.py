@@ -1,8 +1,9 @@
 """Setting edits as steps that can be undone and redone; pure, no Textual, no engine.
 
 An edit is a batch (one key press may change one channel, a group or all channels) of
-`(channel, before, after)` changes of frozen settings objects. Applying is the caller's job: the
-history only says what to apply, so it can be tested without a board.
+`(channel, before, after)` changes of frozen values (settings, or a polarity choice). Applying is the
+caller's job (`tui.editor.Editor`): the history only says what to apply, so it is tested without a
+board.
 """
 
 from __future__ import annotations
@@ -10,24 +11,28 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from processing.settings import ChannelSettings
+from tui.fields import PolarityChoice
+
+# What one change sets on a channel: its settings, or its polarity.
+EditValue = ChannelSettings | PolarityChoice
+
 
 @dataclass(frozen=True, slots=True)
 class Change:
     channel: int
-    before: object
-    after: object
+    before: EditValue
+    after: EditValue
 
 
 @dataclass(frozen=True, slots=True)
 class Edit:
+    """What was done (`description`, as the log said it) and, for undo, what it comes back to
+    (`back`: "zone1 threshold 100 again"; empty for a batch, whose description says enough)."""
+
     description: str
     changes: tuple[Change, ...]
-
-    def inverse(self) -> Edit:
-        return Edit(
-            f"undo {self.description}",
-            tuple(Change(c.channel, c.after, c.before) for c in self.changes),
-        )
+    back: str = ""
 
 
 class EditHistory:
@@ -38,25 +43,26 @@ class EditHistory:
         self._redo: list[Edit] = []
         self._limit = limit
 
-    def record(self, description: str, changes: Sequence[Change]) -> Edit | None:
+    def record(self, description: str, changes: Sequence[Change], back: str = "") -> Edit | None:
         real = tuple(c for c in changes if c.before != c.after)
         if not real:
             return None
-        edit = Edit(description, real)
+        edit = Edit(description, real, back)
         self._undo.append(edit)
         del self._undo[: -self._limit]
         self._redo.clear()
         return edit
 
     def undo(self) -> Edit | None:
-        """The edit to apply to go back one step (its changes run after -> before), or None."""
+        """The edit to take back (apply each change's `before`), or None; it can be redone after."""
         if not self._undo:
             return None
         edit = self._undo.pop()
         self._redo.append(edit)
-        return edit.inverse()
+        return edit
 
     def redo(self) -> Edit | None:
+        """The edit to do again (apply each change's `after`), or None."""
         if not self._redo:
             return None
         edit = self._redo.pop()

@@ -12,6 +12,7 @@ import dataclasses
 from dataclasses import dataclass
 
 from processing.settings import ChannelSettings
+from tui.words import unit_word
 
 
 @dataclass(frozen=True, slots=True)
@@ -38,6 +39,11 @@ FIELDS: tuple[Field, ...] = (
     Field("stuck_timeout_frames", "stuck timeout", "stuck after", "frames", 100, 1000),
 )
 _BY_KEY = {f.key: f for f in FIELDS}
+# What a channel nobody has tuned gets from its first quiet second (processing.provisional): until that
+# is measured these are not in force, and the screen shows them as not known yet rather than the
+# defaults they will replace (tests/tui/test_editor.py checks this against `provisional_settings`).
+FROM_NOISE = frozenset({"threshold_counts", "hysteresis_counts", "touch_debounce_frames",
+                        "release_debounce_frames"})
 POLARITY_KEY = "polarity"
 POLARITY_FIELD = Field(POLARITY_KEY, "polarity", "polarity", "", 1, 1)
 EDIT_FIELDS: tuple[Field, ...] = (*FIELDS, POLARITY_FIELD)  # the edit bar's fields, left to right
@@ -112,3 +118,40 @@ def parse_value(text: str, key: str) -> int:
     except ValueError:
         raise ValueError(f"{_BY_KEY[key].label} must be a whole number of {_BY_KEY[key].unit}, "
                          f"not {text.strip()!r}") from None
+
+
+LARGEST = (1 << 31) - 1  # the search for a setting's range stops here (settings are C int32 values)
+
+
+def allowed_range(settings: ChannelSettings, key: str) -> str:
+    """The values `key` may take with the other settings as they are, in words: `16 … 16777216 counts`,
+    `1, 2, 4 … 256 frames (powers of two)`. Found by asking `ChannelSettings.problems()` (through
+    `with_value`), so it says exactly what a refusal would; empty when the settings are refused already.
+    """
+    f = _BY_KEY[key]
+
+    def fine(value: int) -> bool:
+        return with_value(settings, key, value)[1] is None
+
+    if f.doubling:
+        powers = [1 << n for n in range(31) if fine(1 << n)]
+        if not powers:
+            return ""
+        shown = ", ".join(map(str, powers[:3])) + (f" … {powers[-1]}" if len(powers) > 3 else "")
+        return f"{shown} {unit_word(powers[-1], f.unit)} (powers of two)"
+    now = int(getattr(settings, key))
+    if not fine(now):
+        return ""
+    # Every setting's accepted values are one interval around the current value: bisect both ends.
+    lo, hi = 0, now
+    while lo < hi:
+        mid = (lo + hi) // 2
+        lo, hi = (lo, mid) if fine(mid) else (mid + 1, hi)
+    low = lo
+    lo, hi = now, LARGEST
+    while lo < hi:
+        mid = (lo + hi + 1) // 2
+        lo, hi = (mid, hi) if fine(mid) else (lo, mid - 1)
+    low_text = "0 (never)" if key == "stuck_timeout_frames" and low == 0 else str(low)
+    unit = "" if f.unit == "shift" else f" {unit_word(lo, f.unit)}"  # (the prompt says what a shift is)
+    return f"{low_text} … {lo}{unit}"

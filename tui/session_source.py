@@ -36,9 +36,8 @@ from protocol.events import (
 )
 from protocol.linkwatch import SILENT_AFTER_S
 from tui.pipeline import Pipeline, Producer
-from tui.render.views import ChannelView, GroupView, LinkView, SliderView
-from tui.source import Tick
-from tui.widgets.detail_panel import Series, Spectrum
+from tui.render.views import ChannelView, GroupView, LinkView, Series, SliderView, Spectrum
+from tui.source import FileJob, Tick
 
 SPARK_SECONDS = 4.0
 PLOT_SECONDS = 8.0
@@ -298,15 +297,24 @@ class SessionSource:
             current != self.session.automatic(self._saved)
 
     def save(self, path: Path | None = None) -> Path:
+        job = self.save_job(path)
+        job.write()
+        job.done()
+        return job.path
+
+    def save_job(self, path: Path | None = None) -> FileJob:
+        """The profile as it is now, to write to `path` (default: where it came from) off the UI thread."""
         target = path or self._path
         profile = self.session.profile
         if target is None:
             raise UserError("no file name for the profile yet: use save as")
         if profile is None:
             raise UserError("nothing to save yet: the board has not sent any frames")
-        save_profile(profile, target)
-        self._path, self._saved = target, profile
-        return target
+
+        def done() -> None:
+            self._path, self._saved = target, profile
+
+        return FileJob("profile", target, lambda: save_profile(profile, target), done)
 
     def load(self, path: Path) -> None:
         profile = load_profile(path)
@@ -314,18 +322,22 @@ class SessionSource:
         self._path, self._saved = path, self.session.profile
 
     def export(self, path: Path) -> Path:
+        self.export_job(path).write()
+        return path
+
+    def export_job(self, path: Path) -> FileJob:
+        """The profile as it is now, as a C header (`.h`) or JSON (`.json`), to write off the UI thread."""
         from processing import export
 
         profile = self.session.profile
         if profile is None:
             raise UserError("nothing to export yet: the board has not sent any frames")
-        if path.suffix.lower() == ".json":
-            export.export_json(profile, path, source=self._source_name())
-        elif path.suffix.lower() in (".h", ".hpp"):
-            export.export_c_header(profile, path, source=self._source_name())
-        else:
+        suffix = path.suffix.lower()
+        if suffix not in (".json", ".h", ".hpp"):
             raise UserError(f"{path.name}: end the name in .h for a C header or .json for JSON")
-        return path
+        writer = export.export_json if suffix == ".json" else export.export_c_header
+        source = self._source_name()
+        return FileJob("firmware export", path, lambda: writer(profile, path, source=source))
 
     def _source_name(self) -> str:
         return str(self._path) if self._path and not self.unsaved() else ""

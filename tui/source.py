@@ -9,7 +9,8 @@ events instead of a port, and keeps the app free of engine internals.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections import deque
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Protocol
@@ -17,8 +18,7 @@ from typing import Protocol
 from processing.detections import DetectionEvent
 from processing.settings import ChannelSettings
 from protocol.events import Event, FrameBlock
-from tui.render.views import ChannelView, GroupView, LinkView, SliderView
-from tui.widgets.detail_panel import Series, Spectrum
+from tui.render.views import ChannelView, GroupView, LinkView, Series, SliderView, Spectrum
 
 
 @dataclass(slots=True)
@@ -32,8 +32,22 @@ class Tick:
     errors: list[str] = field(default_factory=list)  # one line each, for the log and a notification
 
 
+@dataclass(frozen=True, slots=True)
+class FileJob:
+    """A file to write, prepared on the UI thread (which reads the live session): `write()` does only
+    the writing and may run on any thread; `done()` runs back on the UI thread once it succeeded."""
+
+    what: str  # "profile", "firmware export": for the log line
+    path: Path
+    write: Callable[[], None]
+    done: Callable[[], None] = lambda: None
+
+
 class LiveSource(Protocol):
     rate_hz: float | None
+
+    @property
+    def notices(self) -> deque[str]: ...  # one-line things the session wants the user to know
 
     def poll(self) -> Tick: ...
     def channel_names(self) -> list[str]: ...
@@ -55,8 +69,10 @@ class LiveSource(Protocol):
     def profile_path(self) -> Path | None: ...
     def unsaved(self) -> bool: ...
     def save(self, path: Path | None = None) -> Path: ...
+    def save_job(self, path: Path | None = None) -> FileJob: ...  # UserError when there is nothing to save
     def load(self, path: Path) -> None: ...
     def export(self, path: Path) -> Path: ...
+    def export_job(self, path: Path) -> FileJob: ...
     def start_recording(self, path: Path) -> None: ...
     def stop_recording(self) -> Path | None: ...
     def mark(self, kind: str = "note", channel: str | None = None, text: str = "",

@@ -7,6 +7,7 @@ which is exactly what the timer does, so nothing depends on threads or wall time
 from __future__ import annotations
 
 import os
+import time
 from pathlib import Path
 
 import numpy as np
@@ -19,13 +20,16 @@ from processing.recording import read_recording
 from processing.session import Session
 from protocol.errors import UserError
 from tests.tui.feeds import SimFeed, SyntheticFeed, log_text, screen_text
-from tui.app import BINDINGS, PadtuneApp, help_rows
+from tui.app import PadtuneApp
+from tui.bindings import help_rows, key_actions
 from tui.demo_profile import demo_profile
 from tui.render.help import SAFETY_CAUTIONS
-from tui.screens.confirm import ConfirmScreen
+from tui.screens.confirm import ConfirmScreen, QuitScreen
 from tui.screens.help import HelpScreen
+from tui.screens.live import LiveScreen
 from tui.screens.prompt import PromptScreen
 from tui.session_source import SessionSource
+from tui.widgets.channel_table import ChannelTable
 
 
 def make_app(feed: SyntheticFeed | None = None, **source_args: object) -> tuple[PadtuneApp, SyntheticFeed]:
@@ -49,6 +53,20 @@ async def type_into_prompt(pilot: Pilot, text: str) -> None:
     await pilot.press(*list(text))
     await pilot.press("enter")
     await pilot.pause()
+    await files_written(pilot)
+
+
+async def files_written(pilot: Pilot, deadline_s: float = 20.0) -> None:
+    """Wait for the file writes the screen started (one at a time, in thread workers) and their results."""
+    app = pilot.app
+    assert isinstance(app, PadtuneApp)
+    end = time.monotonic() + deadline_s
+    while True:
+        await app.workers.wait_for_complete()
+        await pilot.pause()  # the result is handled on the screen's thread, which may start the next
+        if not app.live.files.busy:
+            return
+        assert time.monotonic() < end, "the file writes did not finish"
 
 
 def session_of(app: PadtuneApp) -> Session:
@@ -114,7 +132,7 @@ async def test_refused_values_keep_the_old_one_and_say_why() -> None:
         app.source.apply(0, app.source.settings(0).__class__(threshold_counts=5, hysteresis_counts=2))
         await pilot.press("left_square_bracket")
         assert app.source.settings(0).threshold_counts == 5
-        assert not app.history.can_undo or app.source.settings(0).threshold_counts == 5
+        assert not app.live.editor.history.can_undo or app.source.settings(0).threshold_counts == 5
 
 
 async def test_undo_and_redo_restore_the_engine() -> None:
@@ -171,6 +189,7 @@ async def test_save_writes_a_valid_profile_and_clears_unsaved(tmp_path: Path) ->
         text = screen_text(app)
         assert "keys.toml" in text and "*unsaved" not in text
         await pilot.press("plus", "s")  # a second save goes to the same file at once
+        await files_written(pilot)
         assert load_profile(target).settings_for(1).threshold_counts == 102
         assert (tmp_path / "keys.toml.bak").exists()
 
@@ -216,10 +235,10 @@ async def test_quit_asks_when_edits_are_unsaved() -> None:
     async with app.run_test() as pilot:
         run(app, feed, 0.5)
         await pilot.press("plus", "q")
-        assert isinstance(app.screen, ConfirmScreen)
+        assert isinstance(app.screen, QuitScreen)
         assert "unsaved" in screen_text(app)
         await pilot.press("n")
-        assert not isinstance(app.screen, ConfirmScreen)
+        assert not isinstance(app.screen, QuitScreen)
         assert app.is_running
         await pilot.press("q", "y")
         await pilot.pause()
@@ -365,9 +384,11 @@ async def test_help_lists_every_binding_and_the_cautions() -> None:
         await pilot.pause()
         shown = app.screen.query_one("#help-keys").render()
         assert shown is not None
-        rows = help_rows()
-        described = {b.tooltip or b.description for b in BINDINGS if not (b.id or "").startswith("demo.key")}
+        rows = help_rows(key_actions(app.live.active_bindings))
+        every = [*ChannelTable.BINDINGS, *LiveScreen.BINDINGS, *PadtuneApp.BINDINGS]
+        described = {b.tooltip or b.description for b in every if not (b.id or "").startswith("demo.key")}
         assert described <= {r[2] for r in rows}
+        assert "Next channel" in screen_text(app)  # the table's own keys come first
         safety = str(app.screen.query_one("#help-safety").render())
         assert "isolat" in safety and "not safety controls" in safety
         assert len(SAFETY_CAUTIONS) == 3
@@ -376,14 +397,22 @@ async def test_help_lists_every_binding_and_the_cautions() -> None:
 
 
 async def test_command_palette_lists_actions_by_name() -> None:
-    app, _ = make_app()
+    app, feed = make_app()
     async with app.run_test() as pilot:
-        titles = [c.title for c in app.get_system_commands(app.screen)]
-        assert "Save the profile" in titles and "Undo the last edit" in titles
-        assert "Re-baseline all channels" in titles
+        run(app, feed, 0.5)
+        commands = {c.title: c for c in app.get_system_commands(app.screen)}
+        assert {"Save the profile", "Undo the last edit", "Re-baseline all channels", "Next channel"} <= set(
+            commands)
+        assert {"Theme", "Keys", "Screenshot", "Quit"} <= set(commands)  # Textual's own stay
+        assert commands["Next channel"].help == "key: ↓ / j"
         await pilot.press("ctrl+p")
         await pilot.pause()
         assert app.screen.__class__.__name__ == "CommandPalette"
+        await pilot.press(*"raise the setting (fine", "enter")  # found by name, run on the live screen
+        await pilot.pause()
+        assert app.screen is app.live and app.source.settings(0).threshold_counts == 101
+        await commands["Next channel"].callback()  # a widget's key, run on the table
+        assert app.live.cursor == 1
 
 
 async def test_moving_through_64_channels_keeps_the_cursor_in_view() -> None:
@@ -406,7 +435,7 @@ async def test_touch_events_land_in_the_log_and_the_detail_history() -> None:
         run(app, feed, 0.5)
         feed.set_touch(0, 0)
         run(app, feed, 0.5)
-        lines = list(app.recent[0])
+        lines = list(app.live.feed.recent[0])
         assert any("touch" in line for line in lines) and any("release" in line for line in lines)
         await pilot.press("d")
         assert "zone1 release" in screen_text(app)
@@ -457,14 +486,14 @@ async def test_save_as_and_export_ask_before_replacing_a_file(tmp_path: Path) ->
         assert "press Enter again" in str(app.screen.query_one("#prompt-error").render())
         assert other.read_text() == "# someone else's file\n"
         await pilot.press("enter")
-        await pilot.pause()
+        await files_written(pilot)
         assert load_profile(other).settings_for(0).threshold_counts == 101
         assert (tmp_path / "other.toml.bak").read_text() == "# someone else's file\n"
         await pilot.press("x")
         await type_into_prompt(pilot, str(header))
         assert "press Enter again" in str(app.screen.query_one("#prompt-error").render())
         await pilot.press("enter")
-        await pilot.pause()
+        await files_written(pilot)
         assert "101" in header.read_text()
         await pilot.press("r")
         await type_into_prompt(pilot, str(header))
@@ -522,7 +551,7 @@ async def test_a_wider_board_rebuilds_the_table_and_drops_the_history() -> None:
     async with app.run_test() as pilot:
         run(app, feed, 0.5)
         await pilot.press("plus")
-        assert app.history.can_undo
+        assert app.live.editor.history.can_undo
         n = 10
         readings = 1000 + feed.rng.integers(-2, 3, size=(n, 8))
         t = feed.t_s + (1 + np.arange(n)) / 100
@@ -531,10 +560,10 @@ async def test_a_wider_board_rebuilds_the_table_and_drops_the_history() -> None:
         app.refresh_now()
         await pilot.pause()
         assert len(app.source.channel_names()) == 8
-        assert not app.history.can_undo
+        assert not app.live.editor.history.can_undo
         assert "edit history was cleared" in log_text(app)
         await pilot.press("end")
-        assert app.cursor == 7
+        assert app.live.cursor == 7
 
 
 async def test_a_full_disk_stops_the_recording_says_why_and_the_app_runs_on(tmp_path: Path) -> None:
@@ -643,7 +672,9 @@ async def test_a_long_log_line_wraps_under_itself_at_80_columns() -> None:
         assert lines[at + 1][start:].strip() and not lines[at + 1][start - 5:start].strip()
 
 
-async def test_demo_keys_press_the_board_during_the_guided_capture_but_not_under_a_dialog() -> None:
+async def test_live_keys_stay_under_the_capture_screen_and_a_dialog() -> None:
+    """A screen on top covers the live screen's keys by Textual's own rules (no `check_action` lists):
+    the capture screen binds what it needs itself (the simulated board's keys among them)."""
     feed = SimFeed(script=False)
     source = SessionSource(feed, port="sim://greenhouse", profile=demo_profile("greenhouse"),
                            clock=lambda: feed.t_s)
@@ -660,9 +691,13 @@ async def test_demo_keys_press_the_board_during_the_guided_capture_but_not_under
         assert feed.board.held() == ["zone1"]
         await pilot.press("1")
         assert feed.board.held() == []
+        await pilot.press("plus", "right_square_bracket", "u")  # live edit keys: not the capture's
+        assert source.settings(0) == demo_profile("greenhouse").settings_for(0)
         await pilot.press("escape")
         await pilot.pause()
         await pilot.press("question_mark")
         assert isinstance(app.screen, HelpScreen)
         await pilot.press("1")  # under help (a dialog) the live keys stay off
         assert feed.board.held() == []
+        await pilot.press("escape", "1")
+        assert feed.board.held() == ["zone1"]

@@ -14,9 +14,10 @@ def test_undo_redo_walks_back_and_forth() -> None:
     a, b, c = ChannelSettings(), ChannelSettings(threshold_counts=120), ChannelSettings(threshold_counts=140)
     h.record("one", [Change(0, a, b)])
     h.record("two", [Change(0, b, c), Change(1, a, c)])
-    undo = h.undo()
-    assert undo is not None and [(x.channel, x.after) for x in undo.changes] == [(0, b), (1, a)]
-    assert h.undo().changes[0].after == a
+    undone = h.undo()  # the edit taken back: its changes' `before` is what to apply
+    assert undone is not None and undone.description == "two"
+    assert [(x.channel, x.before) for x in undone.changes] == [(0, b), (1, a)]
+    assert h.undo().changes[0].before == a
     assert h.undo() is None
     assert h.redo().changes[0].after == b
     h.record("three", [Change(0, b, a)])  # a new edit drops what could have been redone

@@ -59,7 +59,7 @@ async def test_the_polarity_field_sets_it_and_undo_takes_it_back() -> None:
     async with app.run_test(size=(100, 30)) as pilot:
         run(app, feed, 1.5)
         await pilot.press("left")  # the polarity field, the last one
-        assert app.field_key == "polarity"
+        assert app.live.field_key == "polarity"
         await pilot.press("minus")
         session = app.source.session  # type: ignore[attr-defined]
         assert session.polarity[0] == -1 and session.phase(0) == "ready"
@@ -67,9 +67,10 @@ async def test_the_polarity_field_sets_it_and_undo_takes_it_back() -> None:
         assert "? learn" not in rows(app)[0]
         await pilot.press("u")
         assert session.polarity[0] is None and session.phase(0) == "measuring"  # learning it again
-        assert "undo: zone1: polarity ? → -" in log_text(app)
+        assert "undid zone1: polarity ? → - (polarity ? again)" in log_text(app)
         await pilot.press("U")
         assert session.polarity[0] == -1
+        assert "redid zone1: polarity ? → -" in log_text(app)
         await pilot.press("plus")  # the other way round: one more edit
         assert session.polarity[0] == 1 and "zone1: polarity - → +" in log_text(app)
         await pilot.press("enter")

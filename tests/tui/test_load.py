@@ -36,7 +36,7 @@ async def test_grid64_at_1khz_loses_nothing_and_answers_keys() -> None:
             assert source.settings(0).threshold_counts == before + 1  # answered at once, not queued
             await pilot.press("end")
             await asyncio.sleep(0.2)
-            cursor = app.cursor
+            cursor = app.live.cursor
             elapsed = time.monotonic() - t0
             stats = link.stats
             drawn = app.frames_drawn - drawn0

@@ -146,8 +146,12 @@ def test_spectrum_peak_matches_measures_and_finds_an_injected_tone() -> None:
 
 
 def test_help_shows_keys_as_printed_on_the_keyboard() -> None:
-    from tui.bindings import help_rows
+    from textual.binding import Binding
+
+    from tui.app import PadtuneApp
     from tui.render.help import key_display, key_label
+    from tui.screens.live import LiveScreen
+    from tui.widgets.channel_table import ChannelTable
 
     assert key_display("pagedown") == "PgDn"
     assert key_display("pageup") == "PgUp"
@@ -158,9 +162,10 @@ def test_help_shows_keys_as_printed_on_the_keyboard() -> None:
     assert key_display("plus,equals_sign") == "+ / ="
     assert [key_label(k) for k in ("home", "end", "space", "ctrl+p", "right_square_bracket")] == [
         "Home", "End", "Space", "Ctrl+P", "]"]
-    # Every key the live screen binds gets a label without Textual's underscores or lower-case names.
-    for _, keys, _ in help_rows():
-        shown = key_display(keys)
+    # Every key the live screen binds, as Textual names it once bound, gets a label without Textual's
+    # underscores or lower-case names.
+    for b in Binding.make_bindings([*ChannelTable.BINDINGS, *LiveScreen.BINDINGS, *PadtuneApp.BINDINGS]):
+        shown = key_display(b.key)
         assert "_" not in shown and "pagedown" not in shown and "shift+" not in shown, shown
 
 

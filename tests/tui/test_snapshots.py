@@ -100,3 +100,61 @@ def test_first_contact_screen(snap_compare, size) -> None:
         await pilot.pause()
 
     assert snap_compare(first_contact_app(), terminal_size=size, run_before=before)
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_value_dialog(snap_compare, size) -> None:
+    """The value dialog names the setting, its unit and the values it may take."""
+    async def before(pilot) -> None:
+        await settle(pilot)
+        await pilot.press("down", "enter")
+        await pilot.pause()
+
+    assert snap_compare(demo_app(), terminal_size=size, run_before=before)
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_quit_dialog(snap_compare, size) -> None:
+    async def before(pilot) -> None:
+        await settle(pilot)
+        await pilot.press("plus", "q")
+        await pilot.pause()
+
+    assert snap_compare(demo_app(), terminal_size=size, run_before=before)
+
+
+LONG_PORT = "/dev/serial/by-id/usb-Greenhouse_Controls_Irrigation_Touch_Bridge_0123456789ABCDEF-if00-port0"
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_long_port_path(snap_compare, size, tmp_path) -> None:
+    """A 90-character by-id path, an unsaved edit and a recording: the path gives way, in the middle."""
+    feed = SimFeed(seed=11)
+    source = SessionSource(feed, port=LONG_PORT, profile=demo_profile("greenhouse"), clock=lambda: feed.t_s,
+                           simulated=True)
+    app = PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s, demo=True)
+
+    async def before(pilot) -> None:
+        for _ in range(40):
+            feed.advance(feed.step_s)
+            app.refresh_now()
+        await pilot.press("plus")
+        source.start_recording(tmp_path / "pump-house-morning-run.csv")
+        for _ in range(40):
+            feed.advance(feed.step_s)
+            app.refresh_now()
+        await pilot.pause()
+
+    assert snap_compare(app, terminal_size=size, run_before=before)
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_measuring_noise(snap_compare, size) -> None:
+    """No profile, the first half second: no key has a threshold yet, and the screen says so."""
+    async def before(pilot) -> None:
+        pilot.app.advance(0.5)
+        await pilot.press("d")
+        pilot.app.advance(0.1)
+        await pilot.pause()
+
+    assert snap_compare(first_contact_app(), terminal_size=size, run_before=before)

@@ -1,16 +1,26 @@
-"""A channel's settings as lines, the one being edited marked, with release level worked out."""
+"""A channel's settings as lines, the one being edited marked, with release level worked out.
+
+`pending` names the settings that are not in force yet (a key still measuring its noise gets its
+threshold, hysteresis and debounce from it): they read `--`, never the defaults they will replace.
+"""
 
 from __future__ import annotations
+
+from collections.abc import Collection
 
 from rich.text import Text
 
 from processing.settings import ChannelSettings
 from tui.fields import FIELDS, POLARITY_FIELD, POLARITY_KEY, Field, polarity_meaning, polarity_word
 from tui.render import Styles, pick
+from tui.words import unit_word, with_unit
+
+NOT_YET = "--"
 
 
 def settings_text(settings: ChannelSettings, selected_key: str | None, styles: Styles,
-                  rate_hz: float | None = None, polarity: int | None = 1, status: str = "") -> Text:
+                  rate_hz: float | None = None, polarity: int | None = 1, status: str = "",
+                  pending: Collection[str] = ()) -> Text:
     """The detail panel's settings: every field with its unit and what it means, then the release level
     with the polarity, and `status` ("provisional", ...) when the settings are not tuned yet."""
     text = Text(no_wrap=True, end="")
@@ -19,10 +29,14 @@ def settings_text(settings: ChannelSettings, selected_key: str | None, styles: S
         mark = "▸" if f.key == selected_key else " "
         role = "cursor" if f.key == selected_key else "name"
         text.append(f"{mark} {f.label:<19} ", pick(styles, role))
+        if f.key in pending:
+            text.append(f"{NOT_YET:>6}", pick(styles, "dim"))
+            text.append("\n")
+            continue
         if f.key == "stuck_timeout_frames" and value == 0:
             text.append(f"{'never':>6}", pick(styles, role))
         else:
-            text.append(f"{value:>6} {f.unit}", pick(styles, role))
+            text.append(f"{value:>6} {unit_word(value, f.unit)}", pick(styles, role))
         if rate_hz and f.unit == "frames" and value:
             text.append(f" {_duration(value / rate_hz)}", pick(styles, "dim"))
         if f.unit == "shift" and 0 <= value < 31:  # what the shift stands for: the fraction a step
@@ -31,7 +45,9 @@ def settings_text(settings: ChannelSettings, selected_key: str | None, styles: S
     # The release level with the polarity on one line: the panel has no line to spare at 80x24 (the
     # edit bar says more about both).
     chosen = selected_key == POLARITY_KEY
-    text.append(f"  release at {settings.release_level_counts} counts · ", pick(styles, "dim"))
+    release = NOT_YET if {"threshold_counts", "hysteresis_counts"} & set(pending) else \
+        with_unit(settings.release_level_counts, "counts")
+    text.append(f"  release at {release} · ", pick(styles, "dim"))
     text.append(f"{'▸' if chosen else ''}polarity {polarity_word(polarity)}",
                 pick(styles, "cursor" if chosen else "dim"))
     if status:
@@ -44,17 +60,18 @@ def _duration(seconds: float) -> str:
 
 
 def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: Styles, width: int,
-             position: str = "", polarity: int | None = 1, status: str = "") -> Text:
+             position: str = "", polarity: int | None = 1, status: str = "",
+             pending: Collection[str] = ()) -> Text:
     """One line: the selected channel and its settings in their groups, then its polarity, the field
     under edit marked `▸` and named in full with its unit. `status` ("provisional", "measuring noise")
-    follows the name when the settings are not tuned yet.
+    follows the name when the settings are not tuned yet; `pending` settings read `--`.
 
     Groups that do not fit in `width` give way, farthest from the one being edited first, and show as
     `…`: the bar never wraps and the field being edited is always on it.
     """
     groups = _field_groups()
     chosen = next(i for i, g in enumerate(groups) if any(f.key == selected_key for f in g))
-    pieces = [_group_pieces(g, settings, selected_key, styles, polarity) for g in groups]
+    pieces = [_group_pieces(g, settings, selected_key, styles, polarity, pending) for g in groups]
     head = Text(no_wrap=True, end="")
     head.append(f"{name} ", pick(styles, "header"))
     if position:
@@ -114,7 +131,7 @@ def _field_groups() -> list[list[Field]]:
 
 
 def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: str, styles: Styles,
-                  polarity: int | None = 1) -> Text:
+                  polarity: int | None = 1, pending: Collection[str] = ()) -> Text:
     text = Text(no_wrap=True, end="")
     if group[0].group:
         text.append(f"{group[0].group} ", pick(styles, "header"))
@@ -129,21 +146,25 @@ def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: s
             text.append(" ")
             continue
         value = getattr(settings, f.key)
-        shown = "never" if f.key == "stuck_timeout_frames" and value == 0 else str(value)
-        if f.key == selected_key:
-            text.append(f"▸{f.short} {shown}{_meaning(f, value)}", pick(styles, "cursor"))
+        if f.key in pending:
+            chosen = f.key == selected_key
+            shown = f"▸{f.short} {NOT_YET} (set from its noise)" if chosen else f"{f.short} {NOT_YET}"
+            text.append(shown, pick(styles, "cursor" if chosen else "pending"))
+        elif f.key == selected_key:
+            text.append(f"▸{f.short} {_meaning(f, value)}", pick(styles, "cursor"))
         else:
+            shown = "never" if f.key == "stuck_timeout_frames" and value == 0 else str(value)
             text.append(f"{f.short} {shown}", pick(styles, "dim"))
         text.append(" ")
     return text
 
 
 def _meaning(f: Field, value: int) -> str:
-    """What the value under edit stands for, after it: its unit, or for the baseline follow shifts
+    """The value under edit and what it stands for: with its unit, or for the baseline follow shifts
     the fraction of the way the baseline moves a step (a shift of 6 moves it 1/64 of the way)."""
     if f.key == "stuck_timeout_frames" and value == 0:
-        return ""
+        return "never"
     if f.unit == "shift":
         toward = "toward a touch" if f.key == "baseline_slow_shift" else "away from a touch"
-        return f" (1/{2 ** value} a step {toward})" if 0 <= value < 31 else ""
-    return f" {f.unit}"
+        return f"{value} (1/{2 ** value} a step {toward})" if 0 <= value < 31 else str(value)
+    return with_unit(value, f.unit)

@@ -1,4 +1,5 @@
-"""The plain snapshots the screens draw: one per channel, group, slider and for the link.
+"""The plain snapshots the screens draw: one per channel, group, slider and for the link, and the
+selected channel's recent history and noise spectrum for the detail panel.
 
 They are built by `tui.source` from the live session once per screen frame, so drawing never reaches
 into the engine while it runs, and the same snapshots can be printed by the headless output.
@@ -7,6 +8,10 @@ into the engine while it runs, and the same snapshots can be printed by the head
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+
+import numpy as np
+
+from processing.measure import NoiseSpectrum
 
 
 @dataclass(frozen=True, slots=True)
@@ -65,7 +70,23 @@ class LinkView:
     profile_name: str = "(defaults)"
     unsaved: bool = False
     paused: bool = False
+    saving: bool = False  # a profile or export is being written (off the screen's thread)
     silent_s: int | None = None  # whole seconds without a frame while connected (None: frames arrive)
     scale: int = 1  # a plain form's fixed scale: readings are the printed values x scale (PROTOCOL.md 6)
     silence: str = "NO FRAMES"  # "SILENT" while the link reports no bytes at all (its `silent` event)
     extra: dict[str, int] = field(default_factory=dict)
+
+
+@dataclass(frozen=True, slots=True)
+class Series:
+    """Reading and baseline over time for one channel (counts; t in seconds, newest last)."""
+
+    t_s: np.ndarray
+    reading: np.ndarray
+    baseline: np.ndarray
+    polarity: int
+
+
+# What the detail panel draws for the spectrum: processing's own figures (its bins and finding, or how
+# many untouched frames are collected of how many it needs), under the name the sources use.
+Spectrum = NoiseSpectrum

@@ -18,9 +18,9 @@ it still holds is let go when it closes. `a` applies the selected key's suggesti
 Esc closes. The screen dismisses with `{channel: ChannelSettings}` of what to apply (empty when
 nothing was).
 
-What it draws is plain rich in `tui.render.capture`. Open it with `open_capture(app)` (the app's `w`
-key does), or push `CaptureScreen(session, clock=...)`; given `channels=[...]` it skips the choice and
-captures those.
+What it draws is plain rich in `tui.render.capture`. Open it with `open_capture(screen, source,
+apply)` (the live screen's `w` key does), or push `CaptureScreen(session, clock=...)`; given
+`channels=[...]` it skips the choice and captures those.
 """
 
 from __future__ import annotations
@@ -58,6 +58,8 @@ from tui.render.capture import (  # noqa: F401  (setting_label, outcome_detail: 
 )
 from tui.render.help import key_display
 from tui.render.histogram import ROLES as HISTOGRAM_ROLES
+from tui.session_source import SessionSource
+from tui.source import LiveSource
 from tui.widgets.key_choice import KeyChoice
 
 TICK_S = 0.1
@@ -420,42 +422,29 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         self.dismiss(dict(self.applied))
 
 
-def open_capture(app: Any) -> None:
-    """Push the capture screen on the live app; apply what it returns as one undoable edit."""
-    source = app.source
-    session = getattr(source, "session", None)
-    if session is None:
-        app.notify("The guided capture needs a live session.", severity="warning")
+def open_capture(host: Screen[object], source: LiveSource,
+                 apply: Callable[[dict[int, ChannelSettings], dict[int, int]], None],
+                 *, clock: Callable[[], float] = time.monotonic, selected: int | None = None) -> None:
+    """Push the capture screen over `host` (the live screen); what the user applied goes to `apply`
+    (settings per channel, and the polarities the capture learned for them) as one undoable edit.
+    `selected` is the channel selected in the table (one of the choices of keys to capture)."""
+    if not isinstance(source, SessionSource):
+        host.notify("The guided capture needs a live session.", severity="warning")
         return
+    session = source.session
 
     # On a simulated board the demo's scripted touches would land on the wrong keys mid-capture:
     # ask the board to keep still until the capture closes (a real board ignores the request).
-    keep_still = getattr(source, "keep_still", None)
-    if keep_still is not None and keep_still(True):
-        app.notify("The simulated board's scripted touches are paused during the capture.")
+    if source.keep_still(True):
+        host.notify("The simulated board's scripted touches are paused during the capture.")
 
     def done(result: dict[int, ChannelSettings] | None) -> None:
-        if keep_still is not None:
-            keep_still(False)
+        source.keep_still(False)
         if not result:
-            app.notify("Guided capture closed: nothing applied.")
+            host.notify("Guided capture closed: nothing applied.")
             return
-        apply_changes = getattr(app, "_apply_changes", None)
-        if apply_changes is not None:
-            from tui.edits import Change
-            from tui.fields import PolarityChoice
-
-            names = session.names
-            learned = screen.wizard.learned if screen.wizard is not None else {}
-            changes = [Change(c, PolarityChoice(source.polarity(c)), PolarityChoice(sign))
-                       for c, sign in sorted(learned.items()) if c in result and source.polarity(c) != sign]
-            changes += [Change(c, source.settings(c), s) for c, s in sorted(result.items())]
-            what = ", ".join(names[c] for c in sorted(result)) if len(result) <= 3 else f"{len(result)} keys"
-            apply_changes(f"guided capture: {what}", changes)
-        else:
-            for c, s in result.items():
-                source.apply(c, s)
-        app.notify(f"Applied the suggestions for {len(result)} key(s).")
+        learned = screen.wizard.learned if screen.wizard is not None else {}
+        apply(result, {c: sign for c, sign in learned.items() if c in result})
 
     def marker(mark: Mark) -> None:
         # While the app records, the capture's stretches go into the file as marks, so the same
@@ -464,8 +453,6 @@ def open_capture(app: Any) -> None:
 
     # The simulated board's keys are the capture screen's own (`p`, `t`, digits): they press what it
     # asks for. A real board's keys are pressed by a finger.
-    can_press = getattr(source, "can_press", None)
-    press = source.press if can_press is not None and can_press() else None
-    screen = CaptureScreen(session, clock=getattr(app, "clock", time.monotonic), marker=marker,
-                           selected=getattr(app, "cursor", None), press=press)
-    app.push_screen(screen, done)
+    press = source.press if source.can_press() else None
+    screen = CaptureScreen(session, clock=clock, marker=marker, selected=selected, press=press)
+    host.app.push_screen(screen, done)

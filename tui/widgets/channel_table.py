@@ -1,7 +1,9 @@
 """The channel table: every channel as one line, drawn by this single widget through the line API.
 
 One widget for all rows (not one per cell) is what keeps 64 channels at 1 kHz cheap: each screen
-frame builds only the visible lines, from the snapshots the app hands over with `show()`.
+frame builds only the visible lines, from the snapshots the screen hands over with `show()`. The table
+owns its cursor keys (up/down, j/k, PgUp/PgDn, Home/End) and tells the screen which channel is
+selected with a `Highlighted` message.
 """
 
 from __future__ import annotations
@@ -12,6 +14,9 @@ from typing import ClassVar
 from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
+from textual.binding import Binding
+from textual.geometry import Size
+from textual.message import Message
 from textual.reactive import reactive
 from textual.strip import Strip
 from textual.widget import Widget
@@ -31,8 +36,28 @@ class ChannelTable(Widget):
     """All channels, one line each, a header line on top; keeps the cursor row in view."""
 
     COMPONENT_CLASSES: ClassVar[set[str]] = {f"channel-table--{role}" for role in ROLES}
+    BINDINGS: ClassVar = [
+        Binding("down,j", "cursor(1)", "Next channel", id="move.down", show=False),
+        Binding("up,k", "cursor(-1)", "Previous channel", id="move.up", show=False),
+        Binding("pagedown", "cursor_page(1)", "Page down", id="move.pagedown", show=False),
+        Binding("pageup", "cursor_page(-1)", "Page up", id="move.pageup", show=False),
+        Binding("home", "cursor_to(0)", "First channel", id="move.first", show=False),
+        Binding("end", "cursor_to(-1)", "Last channel", id="move.last", show=False),
+    ]
+    can_focus = True
 
     cursor: reactive[int] = reactive(0, layout=False)
+
+    class Highlighted(Message):
+        """The selected channel changed (a key moved the cursor, or the rows changed under it)."""
+
+        def __init__(self, table: ChannelTable, channel: int) -> None:
+            super().__init__()
+            self.table, self.channel = table, channel
+
+        @property
+        def control(self) -> ChannelTable:
+            return self.table
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
@@ -62,9 +87,20 @@ class ChannelTable(Widget):
     def validate_cursor(self, cursor: int) -> int:
         return max(0, min(cursor, len(self._views) - 1)) if self._views else 0
 
-    def watch_cursor(self) -> None:
+    def watch_cursor(self, cursor: int) -> None:
         self._scroll_to_cursor()
         self.refresh()
+        self.post_message(self.Highlighted(self, cursor))
+
+    # -- keys -------------------------------------------------------------------------------------
+    def action_cursor(self, rows: int) -> None:
+        self.cursor = self.validate_cursor(self.cursor + rows)
+
+    def action_cursor_page(self, pages: int) -> None:
+        self.action_cursor(pages * self.page_rows)
+
+    def action_cursor_to(self, row: int) -> None:
+        self.cursor = self.validate_cursor(row if row >= 0 else self.rows - 1)
 
     def _scroll_to_cursor(self) -> None:
         visible = max(1, self.size.height - 1)
@@ -78,7 +114,7 @@ class ChannelTable(Widget):
     def page_rows(self) -> int:
         return max(1, self.size.height - 2)
 
-    def get_content_height(self, container: object, viewport: object, width: int) -> int:
+    def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
         """One line per channel plus the header, so the table takes only the room it needs."""
         return len(self._views) + 1 if self._views else 2
 

@@ -10,8 +10,7 @@ from __future__ import annotations
 
 import itertools
 import textwrap
-from collections.abc import Sequence
-from dataclasses import dataclass
+from collections.abc import Collection, Sequence
 from typing import Any, ClassVar
 
 import numpy as np
@@ -21,23 +20,11 @@ from textual.containers import Horizontal, Vertical
 from textual.widgets import Static
 from textual_plotext import PlotextPlot
 
-from processing.measure import NoiseSpectrum
 from processing.settings import ChannelSettings
 from tui.render.settings import settings_text
+from tui.render.views import Series, Spectrum
 
-
-@dataclass(frozen=True, slots=True)
-class Series:
-    """Reading and baseline over time for one channel (counts; t in seconds, newest last)."""
-
-    t_s: np.ndarray
-    reading: np.ndarray
-    baseline: np.ndarray
-    polarity: int
-
-
-# What the panel draws for the spectrum: processing's own figures (kept under this name for the sources).
-Spectrum = NoiseSpectrum
+__all__ = ["DetailPanel", "Series", "Spectrum", "detail_title", "envelope"]  # Series, Spectrum: old home
 
 
 def _thin(x: np.ndarray, points: int) -> np.ndarray:
@@ -90,11 +77,11 @@ class DetailPanel(Vertical):
 
     def show(self, name: str, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
              selected_key: str, events: Sequence[str], rate_hz: float | None, polarity: int | None = 1,
-             status: str = "") -> None:
+             status: str = "", pending: Collection[str] = ()) -> None:
         styles = {r: self.get_component_rich_style(f"detail-panel--{r}", partial=True) for r in self.ROLES}
         self.query_one("#detail-title", Static).update(
             Text(detail_title(name, spectrum, max(20, self.size.width - 2)), no_wrap=True))
-        settings_lines = settings_text(settings, selected_key, styles, rate_hz, polarity, status)
+        settings_lines = settings_text(settings, selected_key, styles, rate_hz, polarity, status, pending)
         self.query_one("#detail-settings", Static).update(settings_lines)
         lines = Text("recent events, newest first\n", style=styles["dim"], no_wrap=True)
         for line in reversed(list(events)[-6:]):
@@ -102,9 +89,12 @@ class DetailPanel(Vertical):
         if not events:
             lines.append("(none yet)", styles["dim"])
         self.query_one("#detail-events", Static).update(lines)
-        self._plot(series, spectrum, settings)
+        self._plot(series, spectrum, settings, levels="threshold_counts" not in pending)
 
-    def _plot(self, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings) -> None:
+    def _plot(self, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
+              levels: bool = True) -> None:
+        """The spectrum, or reading and baseline with the threshold and release levels (`levels`: they
+        are in force; a key still measuring its noise has none yet)."""
         widget = self.query_one("#detail-plot", PlotextPlot)
         plt = widget.plt
         plt.clear_data()
@@ -125,8 +115,8 @@ class DetailPanel(Vertical):
             rel = baseline + series.polarity * settings.release_level_counts
             # Each line has its own marker so the plot reads without colour; the legend only where it fits.
             legend = widget.size.width >= 70
-            for times, values, label, marker in ((t, thr, "threshold", "="), (t, rel, "release", "-"),
-                                                 (t, baseline, "baseline", "·"),
+            lines = [(t, thr, "threshold", "="), (t, rel, "release", "-")] if levels else []
+            for times, values, label, marker in (*lines, (t, baseline, "baseline", "·"),
                                                  (t_reading, reading, "reading", "braille")):
                 plt.plot(times.tolist(), values.tolist(), label=label if legend else None, marker=marker)
             plt.xlabel("seconds (0 = now)")

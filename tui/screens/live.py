@@ -1,0 +1,590 @@
+"""The live screen: every channel of a running session, and the keys that tune it.
+
+It composes the link strip, the channel table, the edit bar, the detail panel, the groups panel and the
+event log, and owns the keys that act on them; the table owns its cursor keys and says which channel
+is selected with a `ChannelTable.Highlighted` message. Data flows down: a timer (about 20 Hz) is the
+only place it comes in, polling the `LiveSource` and handing each widget its snapshot inside one
+`batch_update`; the link's reader thread never waits for the screen, and a slow frame only makes the
+timer skip a tick. Edits go through an `Editor` (tui/editor.py), whose results become log lines and
+notices; profiles and exports are written by a thread worker, one at a time (tui/files.py), and the
+screen says how it went when it is done.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import replace
+from pathlib import Path
+from typing import ClassVar
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal
+from textual.notifications import SeverityLevel
+from textual.reactive import reactive
+from textual.screen import Screen
+from textual.widgets import Footer
+from textual.worker import Worker, WorkerState
+
+from processing.settings import ChannelSettings
+from protocol.errors import UserError
+from protocol.events import BoardChanged
+from tui.editor import Editor, EditResult, Outcome
+from tui.fields import EDIT_FIELDS, FROM_NOISE, POLARITY_KEY, field, polarity_word
+from tui.files import FileQueue, ReplaceOnce, new_recording_path, writable_path
+from tui.log_feed import LogFeed
+from tui.render.views import LinkView, Spectrum
+from tui.screens.confirm import ConfirmScreen, QuitChoice, QuitScreen
+from tui.screens.prompt import PromptScreen
+from tui.source import FileJob, LiveSource, Tick
+from tui.widgets.channel_table import ChannelTable
+from tui.widgets.detail_panel import DetailPanel
+from tui.widgets.edit_bar import EditBar, EditBarView
+from tui.widgets.event_log import EventLog
+from tui.widgets.groups_panel import GroupsPanel
+from tui.widgets.link_strip import LinkStrip
+from tui.words import plural
+
+# Sparkline buckets handed to the table; it shrinks them to the width it has (48 cells at most).
+SPARK_POINTS = 48
+SPECTRUM_EVERY_S = 1.0
+DETAIL_EVERY_S = 0.5
+TAP_S = 0.4  # how long `t` holds the simulated key
+
+B = Binding
+BINDINGS: list[Binding] = [
+    B("right,tab", "field(1)", "Next setting to edit", id="move.field_next", show=False),
+    B("left,shift+tab", "field(-1)", "Previous setting to edit", id="move.field_prev", show=False),
+    B("plus,equals_sign", "step(1, False)", "Raise the setting (fine step)", id="edit.up", key_display="+",
+      show=False),
+    B("minus", "step(-1, False)", "Lower the setting (fine step)", id="edit.down", key_display="-",
+      show=False),
+    B("right_square_bracket", "step(1, True)", "Raise the setting (coarse step)", id="edit.up_coarse",
+      show=False),
+    B("left_square_bracket", "step(-1, True)", "Lower the setting (coarse step)", id="edit.down_coarse",
+      show=False),
+    B("enter,e", "type_value", "Type a value for the setting", id="edit.type", key_display="⏎",
+      show=False),
+    B("a", "apply_all", "Copy this channel's settings to all channels", id="edit.all", show=False),
+    B("g", "apply_group", "Copy this channel's settings to its group", id="edit.group", show=False),
+    B("u", "undo", "Undo the last edit", id="edit.undo", show=False),
+    B("U,ctrl+y", "redo", "Redo", id="edit.redo", show=False),
+    B("b", "rebaseline(False)", "Re-baseline the selected channel", id="chan.rebase", show=False),
+    B("B", "rebaseline(True)", "Re-baseline all channels", id="chan.rebase_all", show=False),
+    B("d", "toggle_detail", "detail", id="chan.detail", tooltip="Detail panel: plot, settings, events"),
+    B("f", "toggle_spectrum", "Noise spectrum in the detail panel", id="chan.spectrum", show=False),
+    B("space", "toggle_pause", "pause", id="chan.pause", key_display="Space",
+      tooltip="Pause / resume the display (detection keeps running)"),
+    B("r", "toggle_recording", "record", id="rec.toggle", tooltip="Start / stop recording to a CSV file"),
+    B("m", "mark", "Mark this moment in the recording", id="rec.mark", show=False),
+    B("s,ctrl+s", "save", "save", id="prof.save", tooltip="Save the profile"),
+    B("S", "save_as", "Save the profile as another file", id="prof.save_as", show=False),
+    B("o", "load", "Load another profile", id="prof.load", show=False),
+    B("x", "export", "Export for firmware (C header or JSON)", id="prof.export", show=False),
+    B("t", "tap", "Tap the selected key on the simulated board", id="demo.tap", show=False),
+    B("p", "hold", "Hold / let go of the selected key on the simulated board", id="demo.hold", show=False),
+    *[B(str(n % 10), f"hold_number({n - 1})", f"Hold / let go of key {n} on the simulated board",
+        id=f"demo.key{n}", show=False) for n in range(1, 11)],
+    B("w", "wizard", "Guided capture: measure noise and touches, suggest settings", id="app.wizard",
+      show=False),
+]
+
+
+class LiveScreen(Screen[None]):
+    """The live view of one `LiveSource`. `ui_hz=0` turns the timer off (tests call `refresh_now`)."""
+
+    BINDINGS: ClassVar = BINDINGS
+    AUTO_FOCUS = "ChannelTable"
+    HORIZONTAL_BREAKPOINTS: ClassVar = [(0, "-narrow"), (110, "-wide")]
+    VERTICAL_BREAKPOINTS: ClassVar = [(0, "-short"), (34, "-tall")]
+
+    field_index: reactive[int] = reactive(0)
+    paused: reactive[bool] = reactive(False)
+    detail: reactive[bool] = reactive(False)
+    spectrum: reactive[bool] = reactive(False)
+
+    def __init__(self, source: LiveSource, *, ui_hz: float = 20.0,
+                 clock: Callable[[], float] = time.monotonic) -> None:
+        super().__init__(id="live")
+        self.source, self.ui_hz, self.clock = source, ui_hz, clock
+        self.editor = Editor(source)
+        self.feed = LogFeed(clock)
+        self.files = FileQueue()
+        self.held: set[int] = set()  # simulated keys held down from the keyboard
+        self.frames_drawn = 0
+        self._ticks = 0
+        self._spectrum_cache: tuple[int, float, Spectrum | None] | None = None
+        self._quit_when_written = False
+        self._state = "new"  # "mounted" once its widgets are styled and can draw, then "closed"
+        self.link_strip = LinkStrip(id="link")
+        self.table = ChannelTable(id="table")
+        self.edit_bar = EditBar(id="edit-bar")
+        self.detail_panel = DetailPanel(id="detail")
+        self.groups = GroupsPanel(id="groups")
+        self.log_view = EventLog(id="log")
+        self.lower = Horizontal(self.groups, self.log_view, id="lower")
+
+    # -- layout -----------------------------------------------------------------------------------
+    def compose(self) -> ComposeResult:
+        yield self.link_strip
+        yield self.table
+        yield self.edit_bar
+        yield self.detail_panel
+        yield self.lower
+        yield Footer(compact=True, show_command_palette=False)
+
+    def on_mount(self) -> None:
+        self._state = "mounted"
+        self.detail_panel.display = False
+        if self.ui_hz > 0:
+            self.set_interval(1.0 / self.ui_hz, self.refresh_now, name="screen-timer")
+        self.refresh_now()
+
+    def on_unmount(self) -> None:
+        self._state = "closed"
+
+    # -- the screen timer -------------------------------------------------------------------------
+    def refresh_now(self) -> None:
+        """Poll the source, log what happened, and redraw (unless the display is paused). Before the
+        screen is mounted it only polls and logs (the log keeps its lines): it draws once mounted."""
+        if self._state == "closed":
+            return  # shutting down: the widgets are gone
+        try:
+            tick = self.source.poll()
+        except UserError as exc:
+            self.say(str(exc), severity="error")
+            return
+        self._ticks += 1
+        self._log_tick(tick)
+        if self._state != "mounted":
+            return
+        with self.app.batch_update():
+            view = self._link_view()
+            self.link_strip.show(view)
+            # Rows that stopped updating look it: the board is away or silent.
+            stale = view.state in ("disconnected", "reconnecting") or view.silent_s is not None
+            self.table.set_class(stale, "-stale")
+            if not self.paused:
+                self._draw()
+
+    def _log_tick(self, tick: Tick) -> None:
+        names = self.source.channel_names()
+        for t_s, line in self.feed.lines(tick.events, tick.detections, names, self.source.notices):
+            self.log_view.add(t_s, line)
+        if any(isinstance(ev, BoardChanged) for ev in tick.events) and self.editor.forget():
+            # Edits were for channels that no longer line up: they cannot be undone on this board.
+            self._log("ⓘ the board changed: the edit history was cleared")
+        for problem in tick.errors:  # a recording that could not be written (a full disk): say why
+            self._log(f"✗ {problem}")
+            self.say(problem, severity="error", timeout=10)
+
+    def _link_view(self) -> LinkView:
+        view = self.source.link_view()
+        saving = self.files.busy
+        if self.paused != view.paused or saving != view.saving:
+            view = replace(view, paused=self.paused, saving=saving)
+        return view
+
+    def _draw(self) -> None:
+        self.table.show(self.source.channel_views(SPARK_POINTS))
+        self.groups.show(self.source.group_views(), self.source.slider_views())
+        self._show_channel(detail=False)
+        # The plot is plotext (pure Python, tens of ms a build): twice a second is live enough for it.
+        every = max(1, round(self.ui_hz * DETAIL_EVERY_S))
+        if self.detail and (self.ui_hz == 0 or self._ticks % every == 1):
+            self._draw_detail()
+        self.frames_drawn += 1
+
+    def _show_channel(self, detail: bool = True) -> None:
+        """The edit bar (and the detail panel, if open) for the selected channel."""
+        names = self.source.channel_names()
+        if not names:
+            self.edit_bar.view = None
+            return
+        ch = self.cursor
+        status, pending = self._status(ch)
+        self.edit_bar.view = EditBarView(names[ch], self.source.settings(ch), self.field_key,
+                                         f"{ch + 1}/{len(names)}" if len(names) > 1 else "",
+                                         self.source.polarity(ch), status, pending)
+        if detail and self.detail:
+            self._draw_detail()
+
+    def _status(self, channel: int) -> tuple[str, frozenset[str]]:
+        """What the edit bar says after the name when the settings are not tuned (yet), and which
+        settings are not in force yet: a key measuring its noise gets them from it."""
+        provisional, phase = self.source.first_contact(channel)
+        if phase == "measuring" and provisional:
+            return "measuring noise", FROM_NOISE
+        return ("provisional" if provisional else ""), frozenset()
+
+    def _draw_detail(self) -> None:
+        names = self.source.channel_names()
+        if not names:
+            return
+        ch = self.cursor
+        spectrum = self._spectrum_for(ch) if self.spectrum else None
+        status, pending = self._status(ch)
+        self.detail_panel.show(
+            names[ch], self.source.series(ch), spectrum, self.source.settings(ch), self.field_key,
+            list(self.feed.recent.get(ch, ())), self.source.rate_hz, self.source.polarity(ch), status,
+            pending,
+        )
+
+    def _spectrum_for(self, ch: int) -> Spectrum | None:
+        """The noise spectrum, recomputed at most once a second (it covers seconds of frames anyway)."""
+        now = self.clock()
+        cached = self._spectrum_cache
+        if cached is not None and cached[0] == ch and now - cached[1] < SPECTRUM_EVERY_S:
+            return cached[2]
+        spectrum = self.source.spectrum(ch)
+        self._spectrum_cache = (ch, now, spectrum)
+        return spectrum
+
+    # -- state ------------------------------------------------------------------------------------
+    @property
+    def cursor(self) -> int:
+        return self.table.cursor
+
+    @property
+    def field_key(self) -> str:
+        return EDIT_FIELDS[self.field_index].key
+
+    def validate_field_index(self, value: int) -> int:
+        return value % len(EDIT_FIELDS)
+
+    def watch_field_index(self) -> None:
+        self._show_channel()
+
+    def watch_detail(self, shown: bool) -> None:
+        self.set_class(shown, "-detail")
+        self.detail_panel.display = shown
+        self.lower.display = not shown
+        self._show_channel()
+
+    def watch_spectrum(self) -> None:
+        self._show_channel()
+
+    def watch_paused(self, paused: bool) -> None:
+        self.table.set_class(paused, "-paused")
+        self.link_strip.show(self._link_view())
+
+    def on_channel_table_highlighted(self, message: ChannelTable.Highlighted) -> None:
+        self._show_channel()
+
+    def _after_change(self) -> None:
+        """Show the effect of an action at once (the timer would, within a frame; tests run without it)."""
+        self._show_channel()
+        self.link_strip.show(self._link_view())
+        if self.ui_hz == 0:
+            self.refresh_now()
+
+    def _log(self, line: str) -> None:
+        self.log_view.add(*self.feed.now(line))
+
+    def say(self, text: str, severity: SeverityLevel = "information", timeout: float | None = None) -> None:
+        """A notice, as plain text (file names and board lines may hold brackets)."""
+        self.notify(text, severity=severity, timeout=timeout, markup=False)
+
+    def _has_channels(self) -> bool:
+        if self.source.channel_names():
+            return True
+        self.say("No channels yet: waiting for the board's first frames.", severity="warning")
+        return False
+
+    def _report(self, result: EditResult) -> None:
+        """An edit's result as the user sees it: a log line when it was done, else a notice."""
+        if result.applied:
+            self._log(result.message)
+            self._after_change()
+        elif result.outcome is Outcome.REFUSED:
+            self.app.bell()
+            self.say(result.message, severity="warning")
+        else:
+            self.say(result.message, "warning" if result.outcome is Outcome.UNAVAILABLE else "information")
+
+    # -- editing ----------------------------------------------------------------------------------
+    def action_field(self, step: int) -> None:
+        self.field_index += step
+
+    def action_step(self, steps: int, coarse: bool) -> None:
+        self._report(self.editor.step(self.cursor, self.field_key, steps, coarse))
+
+    def action_type_value(self) -> None:
+        if not self._has_channels():
+            return
+        ch, key = self.cursor, self.field_key
+        f, name = field(key), self.source.channel_names()[ch]
+        if key == POLARITY_KEY:
+            question, now = f"{name}: polarity", polarity_word(self.source.polarity(ch))
+        else:
+            unit = "a shift n: the baseline moves 1/2ⁿ of the way a step" if f.unit == "shift" else f.unit
+            question, now = f"{name}: new {f.label} ({unit})", str(getattr(self.source.settings(ch), key))
+
+        def done(text: str | None) -> None:
+            if text is not None:
+                self._report(self.editor.type_value(ch, key, text))
+
+        self.app.push_screen(PromptScreen(question, now, lambda text: self.editor.check_text(ch, key, text),
+                                          hint=f"allowed: {self.editor.allowed(ch, key)}"), done)
+
+    def action_apply_all(self) -> None:
+        self._report(self.editor.copy_to_all(self.cursor))
+
+    def action_apply_group(self) -> None:
+        self._report(self.editor.copy_to_group(self.cursor))
+
+    def action_undo(self) -> None:
+        self._report(self.editor.undo())
+
+    def action_redo(self) -> None:
+        self._report(self.editor.redo())
+
+    def apply_capture(self, settings: dict[int, ChannelSettings], polarity: dict[int, int]) -> None:
+        """The guided capture's outcome: one undoable edit (its learned polarities with it)."""
+        names = self.source.channel_names()
+        which = sorted(settings)
+        what = ", ".join(names[c] for c in which if c < len(names)) if len(which) <= 3 else \
+            plural(len(which), "key")
+        result = self.editor.apply_batch(f"guided capture: {what}", settings, polarity)
+        self._report(result)
+        if result.applied:
+            self.say(f"Applied the suggestions for {plural(len(which), 'key')}.")
+
+    # -- channel and display ----------------------------------------------------------------------
+    def action_rebaseline(self, every: bool) -> None:
+        if self._has_channels():
+            # The engine takes the next frame as the baseline and reports it; the log shows that event.
+            self.source.rebaseline(None if every else self.cursor)
+
+    def action_toggle_detail(self) -> None:
+        self.detail = not self.detail
+
+    def action_toggle_spectrum(self) -> None:
+        self.spectrum = not self.spectrum
+        if self.spectrum and not self.detail:
+            self.detail = True
+
+    def action_toggle_pause(self) -> None:
+        self.paused = not self.paused
+
+    def action_wizard(self) -> None:
+        from tui.screens.capture import open_capture
+
+        open_capture(self, self.source, self.apply_capture, clock=self.clock, selected=self.cursor)
+
+    # -- the simulated board ----------------------------------------------------------------------
+    def _press(self, ch: int, pressed: bool) -> None:
+        if not self.source.can_press():
+            self.say("Key presses from the keyboard work only on a simulated board (padtune demo).",
+                        severity="warning")
+            return
+        if not 0 <= ch < len(self.source.channel_names()):
+            return
+        if not self.source.press(ch, pressed):
+            self.say("The board is not connected: the key press was not sent.", severity="warning")
+            return
+        (self.held.add if pressed else self.held.discard)(ch)
+
+    def action_tap(self) -> None:
+        ch = self.cursor
+        self._press(ch, True)
+        if ch in self.held:
+            self.set_timer(TAP_S, lambda: self._press(ch, False))
+
+    def action_hold(self) -> None:
+        self.action_hold_number(self.cursor)
+
+    def action_hold_number(self, ch: int) -> None:
+        self._press(ch, ch not in self.held)
+
+    # -- recording --------------------------------------------------------------------------------
+    def action_toggle_recording(self) -> None:
+        if self.source.link_view().recording:
+            try:
+                path = self.source.stop_recording()
+            except UserError as exc:  # its last rows could not be written (a full disk)
+                self.say(str(exc), severity="error", timeout=10)
+                self._log(f"✗ recording stopped: {exc}")
+            else:
+                self.say(f"Recording saved to {path}")
+                self._log(f"recording stopped: {path}")
+            self._after_change()
+            return
+
+        def done(text: str | None) -> None:
+            if not text:
+                return
+            path = Path(text).expanduser().resolve()
+            try:
+                self.source.start_recording(path)
+            except UserError as exc:
+                self.say(str(exc), severity="error")
+                return
+            self._log(f"recording to {path}")
+            self._after_change()
+
+        default = time.strftime("padtune-%Y%m%d-%H%M%S.csv")
+        self.app.push_screen(PromptScreen("Record to file:", default, new_recording_path), done)
+
+    def action_mark(self) -> None:
+        if not self.source.link_view().recording:
+            self.say("Not recording: press r to start a recording first.", severity="warning")
+            return
+        names = self.source.channel_names()
+        text = f"mark at {names[self.cursor]}" if names else "mark"
+        if self.source.mark("note", text=text):
+            self._log(text)
+
+    # -- profile and export -----------------------------------------------------------------------
+    def action_save(self) -> None:
+        self._save(then_quit=False)
+
+    def _save(self, then_quit: bool) -> None:
+        if self.source.profile_path() is None:
+            self._save_as(then_quit)
+            return
+        try:
+            job = self.source.save_job()
+        except UserError as exc:
+            self.say(str(exc), severity="error")
+            return
+        self._write(job, then_quit)
+
+    def action_save_as(self) -> None:
+        self._save_as(then_quit=False)
+
+    def _save_as(self, then_quit: bool) -> None:
+        current = self.source.profile_path()
+        default = str(current) if current else f"{self.source.link_view().board or 'board'}.toml"
+        replacing = ReplaceOnce("the old one is kept as .bak", current)
+        jobs: list[FileJob] = []
+
+        def check(text: str) -> str | None:
+            reason = writable_path(text) or replacing(text)
+            if reason is None:
+                try:
+                    jobs.append(self.source.save_job(Path(text).expanduser().resolve()))
+                except UserError as exc:
+                    reason = str(exc)
+            return reason
+
+        def done(text: str | None) -> None:
+            if text is not None and jobs:
+                self._write(jobs[-1], then_quit)
+
+        question = "Save the profile, then quit, as:" if then_quit else "Save the profile as:"
+        self.app.push_screen(PromptScreen(question, default, check), done)
+
+    def action_load(self) -> None:
+        def ask() -> None:
+            def check(text: str) -> str | None:
+                path = Path(text).expanduser().resolve()
+                try:
+                    self.source.load(path)
+                except (UserError, OSError) as exc:
+                    return str(exc)
+                self.editor.forget()
+                self._log(f"profile loaded from {path}")
+                self._after_change()
+                return None
+
+            current = str(self.source.profile_path() or "")
+            self.app.push_screen(PromptScreen("Load the profile from:", current, check))
+
+        if not self.source.unsaved():
+            ask()
+            return
+        self.app.push_screen(ConfirmScreen("Loading another profile drops your unsaved edits. Load anyway?"),
+                             lambda yes: ask() if yes else None)
+
+    def action_export(self) -> None:
+        current = self.source.profile_path()
+        default = str(current.with_suffix(".h")) if current else "padtune_keys.h"
+        replacing = ReplaceOnce("it will be replaced")
+        jobs: list[FileJob] = []
+
+        def check(text: str) -> str | None:
+            reason = writable_path(text) or replacing(text)
+            if reason is None:
+                try:
+                    jobs.append(self.source.export_job(Path(text).expanduser().resolve()))
+                except UserError as exc:
+                    reason = str(exc)
+            return reason
+
+        def done(text: str | None) -> None:
+            if text is not None and jobs:
+                self._write(jobs[-1])
+
+        self.app.push_screen(PromptScreen("Export for firmware to (.h for a C header, .json for JSON):",
+                                          default, check), done)
+
+    # -- writing files off the UI thread ----------------------------------------------------------
+    def _write(self, job: FileJob, then_quit: bool = False) -> None:
+        """Queue a file job; it runs in a thread worker once the one before it is done."""
+        self._quit_when_written = self._quit_when_written or then_quit
+        start = self.files.submit(job)
+        if start is not None:
+            self._start(start)
+        self.link_strip.show(self._link_view())
+
+    def _start(self, job: FileJob) -> None:
+        self.run_worker(job.write, name=job.what, group="files", thread=True, exit_on_error=False)
+
+    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
+        if event.worker.group != "files" or event.state not in (WorkerState.SUCCESS, WorkerState.ERROR,
+                                                                WorkerState.CANCELLED):
+            return
+        job = self.files.running
+        if job is not None and event.state is WorkerState.SUCCESS:
+            job.done()
+            self._log(f"{job.what} written to {job.path}")
+            self.say(f"{job.what[0].upper()}{job.what[1:]} written to {job.path}")
+        elif job is not None:
+            reason = not_written(job, event.worker.error)
+            self._log(f"✗ {reason}")
+            self.say(reason, severity="error", timeout=10)
+            self._quit_when_written = False  # stay: the edits are still here, and the old file too
+        following = self.files.finished()
+        if following is not None:
+            self._start(following)
+        elif self._quit_when_written:
+            self.app.exit()
+        self._after_change()
+
+    # -- quitting ---------------------------------------------------------------------------------
+    def request_quit(self) -> None:
+        """Quit, asking first when there are unsaved edits; a file being written is finished first."""
+        if isinstance(self.app.screen, QuitScreen):
+            return
+        if not self.source.unsaved():
+            self._exit_when_written()
+            return
+
+        def answer(choice: QuitChoice | None) -> None:
+            if choice == "save":
+                self._save(then_quit=True)
+            elif choice == "discard":
+                self._exit_when_written()
+
+        self.app.push_screen(QuitScreen("There are unsaved edits."), answer)
+
+    def _exit_when_written(self) -> None:
+        if self.files.busy:
+            self._quit_when_written = True
+            self.say("Quitting once the file being written is complete.")
+            return
+        self.app.exit()
+
+
+def not_written(job: FileJob, error: BaseException | None) -> str:
+    """Why a file job failed, in one line; the file it would have replaced is unchanged."""
+    if isinstance(error, UserError):
+        lines = str(error).splitlines() or [f"{job.path}: not written"]
+        more = f" (and {plural(len(lines) - 1, 'other problem')})" if len(lines) > 1 else ""
+        return f"{job.what} not written: {lines[0]}{more}"
+    if isinstance(error, OSError):
+        return (f"{job.what} not written to {job.path}: {error.strerror or error}; "
+                "the previous file is unchanged")
+    return f"{job.what} not written to {job.path}: {type(error).__name__}: {error}"
