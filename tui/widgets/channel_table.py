@@ -12,6 +12,7 @@ from typing import ClassVar
 from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
+from textual.geometry import Region, Size
 from textual.reactive import reactive
 from textual.strip import Strip
 from textual.widget import Widget
@@ -19,6 +20,9 @@ from textual.widget import Widget
 from tui.render import Piece
 from tui.render.row import RowLayout, header_line, row_layout, row_pieces
 from tui.render.views import ChannelView
+
+# A Segment (a named tuple) made without the named tuple's Python-level constructor: thousands a second.
+_segment = tuple.__new__
 
 # Roles the row renderer asks for; each is a component class styled in app.tcss.
 ROLES = (
@@ -40,7 +44,8 @@ class ChannelTable(Widget):
         self._top = 0
         self._styles: dict[str, Style] | None = None
         self._layout: RowLayout | None = None
-        self._combined: dict[tuple[Style, object], Style] = {}
+        self._combined: dict[Style, dict[int, tuple[Style, Style]]] = {}
+        self._pass_size: Size | None = None
 
     # -- data in ----------------------------------------------------------------------------------
     def show(self, views: Sequence[ChannelView]) -> None:
@@ -107,16 +112,25 @@ class ChannelTable(Widget):
             self._layout = row_layout(width, name_width=max(6, longest))
         return self._layout
 
+    def render_lines(self, crop: Region) -> list[Strip]:
+        """Textual's pass over the dirty lines: the size is looked up once for all of them, not per line."""
+        self._pass_size = self.size
+        try:
+            return super().render_lines(crop)
+        finally:
+            self._pass_size = None
+
     def render_line(self, y: int) -> Strip:
-        width = self.size.width
+        size = self._pass_size or self.size
+        width = size.width
         styles = self.styles_map()
         base = styles["base"]
         layout = self._row_layout(width - 1)
         if y == 0:
             text = header_line(layout, styles)
-            if len(self._views) > self.size.height - 1:
+            if len(self._views) > size.height - 1:
                 # More rows than fit: say so in the cursor column; the edit bar shows "n/N".
-                more_up, more_down = self._top > 0, self._top + self.size.height - 1 < len(self._views)
+                more_up, more_down = self._top > 0, self._top + size.height - 1 < len(self._views)
                 text = Text("↕" if more_up and more_down else "↑" if more_up else "↓", styles["dim"]) + \
                     text[1:]
             text.truncate(width, pad=True)
@@ -133,20 +147,24 @@ class ChannelTable(Widget):
         """Segments straight from the pieces (single-cell characters), each style on the row's base.
 
         Far cheaper than building a Text and rendering it, and this runs for every visible row on
-        every screen frame.
+        every screen frame. The combined styles are cached per base by the piece style's identity
+        (a rich Style hashes in Python, once per lookup); the styles are kept alive beside them, so
+        an identity is never reused while it is in the cache.
         """
-        cache = self._combined
+        combined = self._combined.get(base)
+        if combined is None or len(combined) > 256:
+            combined = self._combined[base] = {}
         segments = []
+        append = segments.append
         cells = 0
         for chunk, style in pieces:
-            key = (base, style)
-            combined = cache.get(key)
-            if combined is None:
-                combined = cache[key] = base + style
-            segments.append(Segment(chunk, combined))
+            found = combined.get(id(style))
+            if found is None or found[0] is not style:
+                found = combined[id(style)] = (style, base + style)
+            append(_segment(Segment, (chunk, found[1], None)))
             cells += len(chunk)
         if cells < width:
-            segments.append(Segment(" " * (width - cells), base))
+            append(_segment(Segment, (" " * (width - cells), base, None)))
             cells = width
         strip = Strip(segments, cells)
         return strip if cells == width else strip.crop(0, width)
