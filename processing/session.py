@@ -226,10 +226,18 @@ class Session(FirstContact):
         out = replace(saved, names=p.names, board=p.board, rate_hz=p.rate_hz)
         if EDITED not in self.polarity_source:
             out = replace(out, polarity=p.polarity)
+        # As `out = out.with_settings(c, s)` for each provisional channel, with one copy of the overrides:
+        # front ends ask every screen frame, and a copy per channel was 64 copies of 64 entries.
+        overrides: dict[int, ChannelSettings] | None = None
         for c, s in self._provisional.get(p.channels, {}).items():
             if self.provisional(c):
-                out = out.with_settings(c, s)
-        return out
+                if overrides is None:
+                    overrides = dict(out.overrides)
+                if s == out.defaults:
+                    overrides.pop(c, None)
+                else:
+                    overrides[c] = s
+        return out if overrides is None else replace(out, overrides=overrides)
 
     def _check_channel(self, channel: int) -> None:
         if self.engine is None or self._profile is None:

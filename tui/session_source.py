@@ -16,6 +16,7 @@ from typing import Protocol
 
 import numpy as np
 
+from processing.detections import KeyState
 from processing.fixed import to_counts
 from processing.measure import MIN_SPECTRUM_SAMPLES, ChannelQuality, spectrum_peak
 from processing.profile import Profile, load_profile, save_profile
@@ -39,6 +40,8 @@ from tui.render.views import ChannelView, GroupView, LinkView, SliderView
 from tui.source import Tick
 from tui.widgets.detail_panel import Series, Spectrum
 
+# The engine's states as the screen names them (lower case), looked up once, not per channel and frame.
+_STATE_WORDS = {state: state.name.lower() for state in KeyState}
 SPARK_SECONDS = 4.0
 PLOT_SECONDS = 8.0
 QUALITY_EVERY_S = 0.5
@@ -173,26 +176,31 @@ class SessionSource:
         e, p = self.session.engine, self.session.profile
         if e is None or p is None:
             return []
-        readings, baselines, deltas, states = e.readings, e.baselines_fp, e.deltas, e.states
+        # Whole columns as lists first: this runs every screen frame for every channel.
+        readings, baselines, deltas = e.readings, e.baselines_fp, e.deltas
+        states = [_STATE_WORDS.get(st) or st.name.lower() for st in e.states]
         sparks = self._sparks(spark_points)
+        spark_rows = [tuple(row) for row in sparks.tolist()] if sparks is not None else None
         saved = self.session.automatic(self._saved) if self._saved is not None else None
+        saved_settings = saved.settings_for if saved is not None and saved.channels == p.channels else None
         group_of = {m: g.name for g in p.groups for m in g.members}
         s = self.session
+        polarity, quality = s.polarity, self._quality
         out = []
         for c in range(e.channels):
             st = p.settings_for(c)
-            q = self._quality[c] if c < len(self._quality) else None
+            q = quality[c] if c < len(quality) else None
             noise = q.noise if q else None
             out.append(ChannelView(
                 index=c, name=p.names[c], reading=int(readings[c]), baseline=to_counts(baselines[c]),
-                delta=int(deltas[c]), state=states[c].name.lower(), threshold=st.threshold_counts,
+                delta=int(deltas[c]), state=states[c], threshold=st.threshold_counts,
                 release=st.release_level_counts,
                 noise_pp=noise.pp_counts if noise else None, noise_rms=noise.rms_counts if noise else None,
                 snr=_finite(q.snr_pp) if q else None, verdict=q.verdict if q else None,
-                spark=tuple(sparks[c].tolist()) if sparks is not None else (),
+                spark=spark_rows[c] if spark_rows is not None else (),
                 group=group_of.get(c),
-                edited=saved is not None and saved.channels == p.channels and saved.settings_for(c) != st,
-                polarity=s.polarity[c] if c < len(s.polarity) else 1, provisional=s.provisional(c),
+                edited=saved_settings is not None and saved_settings(c) != st,
+                polarity=polarity[c] if c < len(polarity) else 1, provisional=s.provisional(c),
                 phase=s.phase(c),
             ))
         return out
