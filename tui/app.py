@@ -31,6 +31,7 @@ from tui.describe import describe_detection, describe_event
 from tui.edits import EditHistory
 from tui.fields import EDIT_FIELDS
 from tui.headless.notices import NoticeGate
+from tui.pacing import FramePacer
 from tui.render.help import key_display
 from tui.render.settings import edit_bar
 from tui.render.views import LinkView
@@ -47,6 +48,11 @@ from tui.widgets.link_strip import LinkStrip
 SPARK_POINTS = 48
 SPECTRUM_EVERY_S = 1.0
 DETAIL_EVERY_S = 0.5
+# The screen timer polls the source this many times per screen frame and draws a frame once per frame
+# period, or at the first poll that brings a detection (tui/pacing.py): a touch shows within about a
+# poll of its frame's arrival, not up to a whole period (50 ms at 20 Hz). A poll that draws nothing
+# costs little.
+POLLS_PER_FRAME = 2
 
 class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
     """The live screen over one `LiveSource`. `ui_hz=0` disables the timer (tests call `refresh_now`)."""
@@ -73,6 +79,7 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
         self.recent: dict[int, deque[str]] = {}
         self.frames_drawn = 0
         self._tick_count = 0
+        self._pacer = FramePacer(ui_hz or 1.0, POLLS_PER_FRAME)
         self._t0_s = clock()
         self._edit_bar_key: tuple[object, ...] | None = None
         self._table: ChannelTable | None = None
@@ -96,7 +103,7 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
         self._main("#detail").display = False
         self._apply_size_classes()
         if self.ui_hz > 0:
-            self.set_interval(1.0 / self.ui_hz, self.refresh_now, name="screen-timer")
+            self.set_interval(1.0 / (self.ui_hz * POLLS_PER_FRAME), self._screen_timer, name="screen-timer")
         self.refresh_now()
 
     def on_resize(self) -> None:
@@ -109,18 +116,34 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
     # -- the screen timer -------------------------------------------------------------------------
     def refresh_now(self) -> None:
         """Drain the source, log what happened, and redraw (unless the display is paused)."""
+        if self._poll() is not None:
+            self._show()
+
+    def _screen_timer(self) -> None:
+        """Polls POLLS_PER_FRAME times a frame period; draws when the pacer says (see tui/pacing.py)."""
+        tick = self._poll()
+        if tick is not None and self._pacer.after_poll(self.clock(), bool(tick.detections)):
+            self._show()
+
+    def _poll(self) -> Tick | None:
+        """Drain the source and log what it brought; None when there is nothing to draw on (yet)."""
         if self._table is None or not self._table.is_attached:
-            return  # not mounted yet, or shutting down: the widgets are gone
+            return None  # not mounted yet, or shutting down: the widgets are gone
         try:
             tick = self.source.poll()
         except UserError as exc:
             self.notify(str(exc), severity="error")
-            return
-        self._tick_count += 1
+            return None
         self._log_tick(tick)
         for problem in tick.errors:  # a recording that could not be written (a full disk): say why
             self._log(f"✗ {problem}")
             self.notify(problem, severity="error", timeout=10)
+        return tick
+
+    def _show(self) -> None:
+        """One screen frame: the link strip, and the rows unless the display is paused."""
+        assert self._table is not None
+        self._tick_count += 1
         with self.batch_update():
             view = self._link_view()
             self._main(LinkStrip).show(view)
