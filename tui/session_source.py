@@ -8,6 +8,7 @@ twice a second (`Measures.qualities()`, all channels in one pass), the rest ever
 
 from __future__ import annotations
 
+import math
 import time
 from collections import deque
 from collections.abc import Callable, Sequence
@@ -17,7 +18,7 @@ from typing import Protocol
 import numpy as np
 
 from processing.detections import KeyState
-from processing.fixed import to_counts
+from processing.fixed import FRAC_BITS, tdiv_pow2_np
 from processing.measure import MIN_SPECTRUM_SAMPLES, ChannelQuality, spectrum_peak
 from processing.profile import Profile, load_profile, save_profile
 from processing.recording import RecordingWriter
@@ -176,30 +177,37 @@ class SessionSource:
         e, p = self.session.engine, self.session.profile
         if e is None or p is None:
             return []
-        # Whole columns as lists first: this runs every screen frame for every channel.
-        readings, baselines, deltas = e.readings, e.baselines_fp, e.deltas
+        # Whole columns as lists first, and per-channel work only where a value is per channel: this
+        # runs every screen frame for every channel.
+        n = e.channels
+        readings, deltas = e.readings, e.deltas
+        baselines = tdiv_pow2_np(np.asarray(e.baselines_fp, np.int64), FRAC_BITS).tolist()
         states = [_STATE_WORDS.get(st) or st.name.lower() for st in e.states]
         sparks = self._sparks(spark_points)
-        spark_rows = [tuple(row) for row in sparks.tolist()] if sparks is not None else None
+        spark_rows = [tuple(row) for row in sparks.tolist()] if sparks is not None else [()] * n
         saved = self.session.automatic(self._saved) if self._saved is not None else None
         saved_settings = saved.settings_for if saved is not None and saved.channels == p.channels else None
         group_of = {m: g.name for g in p.groups for m in g.members}
         s = self.session
-        polarity, quality = s.polarity, self._quality
+        polarity, names = s.polarity, p.names
+        quality = self._quality + [None] * (n - len(self._quality))
         out = []
-        for c in range(e.channels):
+        for c in range(n):
             st = p.settings_for(c)
-            q = quality[c] if c < len(quality) else None
+            q = quality[c]
             noise = q.noise if q else None
+            if saved_settings is None:
+                edited = False
+            else:
+                was = saved_settings(c)
+                edited = was is not st and was != st
             out.append(ChannelView(
-                index=c, name=p.names[c], reading=int(readings[c]), baseline=to_counts(baselines[c]),
+                index=c, name=names[c], reading=int(readings[c]), baseline=baselines[c],
                 delta=int(deltas[c]), state=states[c], threshold=st.threshold_counts,
                 release=st.release_level_counts,
                 noise_pp=noise.pp_counts if noise else None, noise_rms=noise.rms_counts if noise else None,
                 snr=_finite(q.snr_pp) if q else None, verdict=q.verdict if q else None,
-                spark=spark_rows[c] if spark_rows is not None else (),
-                group=group_of.get(c),
-                edited=saved_settings is not None and saved_settings(c) != st,
+                spark=spark_rows[c], group=group_of.get(c), edited=edited,
                 polarity=polarity[c] if c < len(polarity) else 1, provisional=s.provisional(c),
                 phase=s.phase(c),
             ))
@@ -426,6 +434,6 @@ class SessionSource:
 
 
 def _finite(value: float | None) -> float | None:
-    if value is None or not np.isfinite(value):
-        return None if value is None else 999.0
-    return float(value)
+    if value is None:
+        return None
+    return float(value) if math.isfinite(value) else 999.0
