@@ -17,7 +17,7 @@ from textual.reactive import reactive
 from textual.strip import Strip
 from textual.widget import Widget
 
-from tui.render import Piece
+from tui.render import NULL, Piece
 from tui.render.row import RowLayout, header_line, row_layout, row_pieces
 from tui.render.views import ChannelView
 
@@ -44,7 +44,7 @@ class ChannelTable(Widget):
         self._top = 0
         self._styles: dict[str, Style] | None = None
         self._layout: RowLayout | None = None
-        self._combined: dict[Style, dict[int, tuple[Style, Style]]] = {}
+        self._combined: dict[Style, dict[str, Style]] = {}
         self._pass_size: Size | None = None
 
     # -- data in ----------------------------------------------------------------------------------
@@ -141,30 +141,28 @@ class ChannelTable(Widget):
         selected = index == self.cursor
         if selected:
             base = base + styles["selected"]
-        return self._strip(row_pieces(self._views[index], layout, selected, styles), base, width)
+        pieces = row_pieces(self._views[index], layout, selected, self._on_base(base))
+        return self._strip(pieces, base, width)
+
+    def _on_base(self, base: Style) -> dict[str, Style]:
+        """Every role's style already on the row's base (one map per base, kept until the styles change):
+        the pieces come out in their final styles, and plain pieces (NULL) take the base itself."""
+        found = self._combined.get(base)
+        if found is None:
+            found = self._combined[base] = {role: base + style for role, style in self.styles_map().items()}
+        return found
 
     def _strip(self, pieces: list[Piece], base: Style, width: int) -> Strip:
-        """Segments straight from the pieces (single-cell characters), each style on the row's base.
+        """Segments straight from the pieces (single-cell characters, styles on the base already).
 
         Far cheaper than building a Text and rendering it, and this runs for every visible row on
-        every screen frame. The combined styles are cached per base by the piece style's identity
-        (a rich Style hashes in Python, once per lookup); the styles are kept alive beside them, so
-        an identity is never reused while it is in the cache.
+        every screen frame.
         """
-        combined = self._combined.get(base)
-        if combined is None or len(combined) > 256:
-            combined = self._combined[base] = {}
-        segments = []
-        append = segments.append
-        cells = 0
-        for chunk, style in pieces:
-            found = combined.get(id(style))
-            if found is None or found[0] is not style:
-                found = combined[id(style)] = (style, base + style)
-            append(_segment(Segment, (chunk, found[1], None)))
-            cells += len(chunk)
+        segments = [_segment(Segment, (chunk, base if style is NULL else style, None))
+                    for chunk, style in pieces]
+        cells = sum([len(chunk) for chunk, _ in pieces])
         if cells < width:
-            append(_segment(Segment, (" " * (width - cells), base, None)))
+            segments.append(_segment(Segment, (" " * (width - cells), base, None)))
             cells = width
         strip = Strip(segments, cells)
         return strip if cells == width else strip.crop(0, width)
