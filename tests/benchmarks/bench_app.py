@@ -67,6 +67,11 @@ def board_16ch(folder: Path) -> Path:
     return path
 
 
+# The run is also cut into windows this long: the quietest one shows the cost without another program's
+# burst on the machine (the whole run's figure is the one held against the goal).
+WINDOW_S = 2.0
+
+
 class Meter:
     """UI-thread and process CPU over a stretch of wall time."""
 
@@ -138,14 +143,19 @@ async def run_app(url: str, rate_hz: float, seconds: float, detail: bool = False
             app.detail = detail
             await asyncio.sleep(1.0)  # history rings fill, first noise figures computed
             frames0, drawn0 = link.stats.frames, app.frames_drawn
+            windows = max(1, round(seconds / WINDOW_S))
+            parts = []
             with Meter() as m:
-                await asyncio.sleep(seconds)
+                for _ in range(windows):
+                    with Meter() as part:
+                        await asyncio.sleep(seconds / windows)
+                    parts.append(part.ui)
             frames, drawn = link.stats.frames - frames0, app.frames_drawn - drawn0
             stats = link.stats
     finally:
         link.stop()
-    return {"ui": m.ui, "proc": m.proc, "fps": drawn / m.wall, "kept": frames / m.wall / rate_hz,
-            "lost": stats.lost + stats.overflow}
+    return {"ui": m.ui, "ui_least": min(parts), "window_s": seconds / windows, "proc": m.proc,
+            "fps": drawn / m.wall, "kept": frames / m.wall / rate_hz, "lost": stats.lost + stats.overflow}
 
 
 class PlainRow(Horizontal):
@@ -241,7 +251,8 @@ def main() -> int:
             fps_ok = r["fps"] >= 20 * 0.95
             verdict = "" if goal is None else \
                 f" (goal <= {goal * 100:.0f} %, {'within' if r['ui'] <= goal else 'OVER'})"
-            print(f"  {label:15} UI thread {r['ui'] * 100:5.1f} % of a core{verdict}; whole process incl. "
+            print(f"  {label:15} UI thread {r['ui'] * 100:5.1f} % of a core{verdict} (quietest "
+                  f"{r['window_s']:g} s: {r['ui_least'] * 100:4.1f} %); whole process incl. "
                   f"link and simulated board {r['proc'] * 100:5.1f} %; screen {r['fps']:4.1f} fps"
                   f"{'' if fps_ok else ' (short)'}; frames handled {r['kept']:.2f}x the board's rate; "
                   f"lost {r['lost']}")
