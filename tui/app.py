@@ -1,8 +1,9 @@
 """The live tuning screen: the Textual app that shows every channel and edits settings from the keyboard.
 
-A screen timer (about 20 Hz) is the only place data comes in: it polls the `LiveSource` (which drains
-the link thread's queue and feeds the session) and redraws inside `batch_update`. The reader thread
-never waits for the screen, and a slow frame only makes the timer skip a tick. Every key is a
+A screen timer is the only place data comes in: it polls the `LiveSource` (which drains the link
+thread's queue and feeds the session) twice a screen frame and redraws inside `batch_update` once a
+frame (about 20 Hz), or at once after a detection (`tui/pacing.py`). The reader thread never waits for
+the screen, and a slow frame only makes the timer skip a tick. Every key is a
 binding with an id and a description; the help screen and the command palette are built from them.
 """
 
