@@ -128,7 +128,8 @@ class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
     def _screen_timer(self) -> None:
         """Polls POLLS_PER_FRAME times a frame period; draws when the pacer says (see tui/pacing.py)."""
         tick = self._poll()
-        if tick is not None and self._pacer.after_poll(self.clock(), bool(tick.detections)):
+        # Wall time, as the timer's own: the injectable `clock` is the data's (tests move it by hand).
+        if tick is not None and self._pacer.after_poll(time.monotonic(), bool(tick.detections)):
             self._show()
 
     def _poll(self) -> Tick | None:
