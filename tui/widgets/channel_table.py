@@ -46,6 +46,7 @@ class ChannelTable(Widget):
         self._layout: RowLayout | None = None
         self._combined: dict[Style, dict[str, Style]] = {}
         self._pass_size: Size | None = None
+        self._header_strip: tuple[tuple[object, ...], Strip] | None = None
 
     # -- data in ----------------------------------------------------------------------------------
     def show(self, views: Sequence[ChannelView]) -> None:
@@ -92,6 +93,7 @@ class ChannelTable(Widget):
         super().notify_style_update()
         self._styles = None
         self._combined = {}
+        self._header_strip = None
 
     def on_resize(self) -> None:
         self._layout = None
@@ -127,14 +129,7 @@ class ChannelTable(Widget):
         base = styles["base"]
         layout = self._row_layout(width - 1)
         if y == 0:
-            text = header_line(layout, styles)
-            if len(self._views) > size.height - 1:
-                # More rows than fit: say so in the cursor column; the edit bar shows "n/N".
-                more_up, more_down = self._top > 0, self._top + size.height - 1 < len(self._views)
-                text = Text("↕" if more_up and more_down else "↑" if more_up else "↓", styles["dim"]) + \
-                    text[1:]
-            text.truncate(width, pad=True)
-            return Strip(text.render(self.app.console), width).apply_style(base)
+            return self._header(layout, width, size.height, styles)
         index = self._top + y - 1
         if index >= len(self._views):
             return Strip.blank(width, base)
@@ -143,6 +138,23 @@ class ChannelTable(Widget):
             base = base + styles["selected"]
         pieces = row_pieces(self._views[index], layout, selected, self._on_base(base))
         return self._strip(pieces, base, width)
+
+    def _header(self, layout: RowLayout, width: int, height: int, styles: dict[str, Style]) -> Strip:
+        """The header line, built again only when what it shows changes (not at every frame)."""
+        rows = len(self._views)
+        overflow = rows > height - 1
+        more_up, more_down = overflow and self._top > 0, overflow and self._top + height - 1 < rows
+        key = (layout, width, overflow, more_up, more_down)
+        if self._header_strip is not None and self._header_strip[0] == key:
+            return self._header_strip[1]
+        text = header_line(layout, styles)
+        if overflow:
+            # More rows than fit: say so in the cursor column; the edit bar shows "n/N".
+            text = Text("↕" if more_up and more_down else "↑" if more_up else "↓", styles["dim"]) + text[1:]
+        text.truncate(width, pad=True)
+        strip = Strip(text.render(self.app.console), width).apply_style(styles["base"])
+        self._header_strip = (key, strip)
+        return strip
 
     def _on_base(self, base: Style) -> dict[str, Style]:
         """Every role's style already on the row's base (one map per base, kept until the styles change):
