@@ -235,7 +235,7 @@ def main() -> int:
     args = parser.parse_args()
     parts = {args.only} if args.only else {"cpu", "latency", "table"}
     seconds = 1.0 if args.quick else 6.0
-    press_s = 2.0 if args.quick else 12.0
+    press_s = 1.0 if args.quick else 12.0
     devices.register_url_handlers()
     with tempfile.TemporaryDirectory() as tmp:
         grid16 = board_16ch(Path(tmp))
