@@ -51,9 +51,10 @@ SPARK_POINTS = 48
 SPECTRUM_EVERY_S = 1.0
 DETAIL_EVERY_S = 0.5
 # The screen timer polls the source this many times per screen frame and draws a frame once per frame
-# period, or at the first poll that brings a detection (tui/pacing.py): a touch shows within about a
-# poll of its frame's arrival, not up to a whole period (50 ms at 20 Hz). A poll that draws nothing
-# costs little.
+# period, or at the first poll that brings a detection (tui/pacing.py): a touch waits for about half a
+# period, not up to a whole one (50 ms at 20 Hz). The second poll costs about half a percent of a core
+# at 16 channels / 100 Hz on a quiet machine (more on a loaded one); 1 saves that and adds some 20 ms
+# to the 95th percentile of the touch-to-screen latency (`make bench` prints both).
 POLLS_PER_FRAME = 2
 
 class PadtuneApp(EditActions, PressActions, FileActions, App[int]):
