@@ -58,7 +58,8 @@ class History:
         pairs = ((self.t_s, t_s), (self.readings, readings), (self.deltas, deltas), (self.states, states))
         for dst, src in pairs:
             dst[pos:pos + first] = src[:first]
-            dst[:n - first] = src[first:]
+            if first < n:  # the block runs past the ring's end: the rest goes to its start
+                dst[:n - first] = src[first:]
         self.written += n
 
     def last(self, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -362,15 +363,19 @@ class SettleGate:
             return deltas[:0], np.zeros(deltas.shape, bool)
         frame = first_frame + np.arange(n, dtype=np.int64)[:, None]
         busy = states != KeyState.RELEASED
-        last_busy = np.maximum.accumulate(np.where(busy, frame, self.NEVER), axis=0)
-        np.maximum(last_busy, self.last_busy[None, :], out=last_busy)
+        if busy.any():
+            last_busy = np.maximum.accumulate(np.where(busy, frame, self.NEVER), axis=0)
+            np.maximum(last_busy, self.last_busy[None, :], out=last_busy)
+        else:  # the usual block, every key released: the last activity stays where it was, on every row
+            last_busy = self.last_busy[None, :]
         ext_deltas = np.concatenate((self.tail_deltas, deltas))
         ext_ok = np.concatenate((self.tail_ok, ~busy))
         decided_frame = frame - g  # frame decided at each row: the one `g` rows back
         mask = ext_ok[:n] & (decided_frame >= start_frame[None, :]) & (last_busy < decided_frame - g)
         values = ext_deltas[:n]
         self.tail_deltas, self.tail_ok = ext_deltas[n:].copy(), ext_ok[n:].copy()
-        self.last_busy = last_busy[-1].copy()
+        if last_busy.shape[0] == n:
+            self.last_busy = last_busy[-1].copy()
         return values, mask
 
 

@@ -16,7 +16,7 @@ touch".
 from __future__ import annotations
 
 from collections import deque
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -91,6 +91,41 @@ def _slice(block: FrameBlock, a: int, b: int) -> FrameBlock:
     bt = block.board_time[a:b] if block.board_time is not None else None
     return FrameBlock(block.t_s[a:b], block.seq[a:b], block.readings[a:b], block.first_index + a, bt)
 
+
+def _joined(events: Iterable[Event]) -> Iterator[Event]:
+    """The events in order, each run of frame blocks that continue one another as one block.
+
+    A link hands over a block per read (a few each screen frame, one per frame from a slow board);
+    the detector's results do not depend on the cuts, but each block costs its own pass through the
+    engine and measures: one pass per run is several times cheaper.
+    """
+    run: list[FrameBlock] = []
+    for ev in events:
+        if isinstance(ev, FrameBlock) and (not run or _continues(run[-1], ev)):
+            run.append(ev)
+            continue
+        if run:
+            yield _concat(run)
+            run = []
+        if isinstance(ev, FrameBlock):
+            run.append(ev)
+        else:
+            yield ev
+    if run:
+        yield _concat(run)
+
+
+def _continues(a: FrameBlock, b: FrameBlock) -> bool:
+    return b.first_index == a.first_index + len(a) and b.channels == a.channels and \
+        (a.board_time is None) == (b.board_time is None)
+
+
+def _concat(run: list[FrameBlock]) -> FrameBlock:
+    if len(run) == 1:
+        return run[0]
+    bt = None if run[0].board_time is None else np.concatenate([b.board_time for b in run])
+    return FrameBlock(np.concatenate([b.t_s for b in run]), np.concatenate([b.seq for b in run]),
+                      np.concatenate([b.readings for b in run]), run[0].first_index, bt)
 
 class Session(FirstContact):
     """Owns one board's engine, measures, groups and sliders. Not thread-safe: call from one thread.
@@ -226,10 +261,18 @@ class Session(FirstContact):
         out = replace(saved, names=p.names, board=p.board, rate_hz=p.rate_hz)
         if EDITED not in self.polarity_source:
             out = replace(out, polarity=p.polarity)
+        # As `out = out.with_settings(c, s)` for each provisional channel, with one copy of the overrides:
+        # front ends ask every screen frame, and a copy per channel was 64 copies of 64 entries.
+        overrides: dict[int, ChannelSettings] | None = None
         for c, s in self._provisional.get(p.channels, {}).items():
             if self.provisional(c):
-                out = out.with_settings(c, s)
-        return out
+                if overrides is None:
+                    overrides = dict(out.overrides)
+                if s == out.defaults:
+                    overrides.pop(c, None)
+                else:
+                    overrides[c] = s
+        return out if overrides is None else replace(out, overrides=overrides)
 
     def _check_channel(self, channel: int) -> None:
         if self.engine is None or self._profile is None:
@@ -240,7 +283,7 @@ class Session(FirstContact):
     # ------------------------------------------------------------ events
     def handle(self, events: Iterable[Event]) -> list[DetectionEvent]:
         out: list[DetectionEvent] = []
-        for ev in events:
+        for ev in _joined(events):
             if isinstance(ev, FrameBlock):
                 out.extend(self._frames(ev))
             elif isinstance(ev, BoardInfo):

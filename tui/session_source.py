@@ -11,6 +11,7 @@ from the session's engine and measures; the noise figures are refreshed twice a 
 
 from __future__ import annotations
 
+import math
 import time
 from collections import deque
 from collections.abc import Callable, Sequence
@@ -18,7 +19,8 @@ from pathlib import Path
 
 import numpy as np
 
-from processing.fixed import to_counts
+from processing.detections import KeyState
+from processing.fixed import FRAC_BITS, tdiv_pow2_np
 from processing.measure import ChannelQuality
 from processing.profile import Profile, load_profile, save_profile
 from processing.session import Session
@@ -39,6 +41,8 @@ from tui.pipeline import Pipeline, Producer
 from tui.render.views import ChannelView, GroupView, LinkView, Series, SliderView, Spectrum
 from tui.source import FileJob, Tick
 
+# The engine's states as the screen names them (lower case), looked up once, not per channel and frame.
+_STATE_WORDS = {state: state.name.lower() for state in KeyState}
 SPARK_SECONDS = 4.0
 PLOT_SECONDS = 8.0
 QUALITY_EVERY_S = 0.5
@@ -157,26 +161,38 @@ class SessionSource:
         e, p = self.session.engine, self.session.profile
         if e is None or p is None:
             return []
-        readings, baselines, deltas, states = e.readings, e.baselines_fp, e.deltas, e.states
+        # Whole columns as lists first, and per-channel work only where a value is per channel: this
+        # runs every screen frame for every channel.
+        n = e.channels
+        readings, deltas = e.readings, e.deltas
+        baselines = tdiv_pow2_np(np.asarray(e.baselines_fp, np.int64), FRAC_BITS).tolist()
+        states = [_STATE_WORDS.get(st) or st.name.lower() for st in e.states]
         sparks = self._sparks(spark_points)
+        spark_rows = [tuple(row) for row in sparks.tolist()] if sparks is not None else [()] * n
         saved = self.session.automatic(self._saved) if self._saved is not None else None
+        saved_settings = saved.settings_for if saved is not None and saved.channels == p.channels else None
         group_of = {m: g.name for g in p.groups for m in g.members}
         s = self.session
+        polarity, names = s.polarity, p.names
+        quality = self._quality + [None] * (n - len(self._quality))
         out = []
-        for c in range(e.channels):
+        for c in range(n):
             st = p.settings_for(c)
-            q = self._quality[c] if c < len(self._quality) else None
+            q = quality[c]
             noise = q.noise if q else None
+            if saved_settings is None:
+                edited = False
+            else:
+                was = saved_settings(c)
+                edited = was is not st and was != st
             out.append(ChannelView(
-                index=c, name=p.names[c], reading=int(readings[c]), baseline=to_counts(baselines[c]),
-                delta=int(deltas[c]), state=states[c].name.lower(), threshold=st.threshold_counts,
+                index=c, name=names[c], reading=int(readings[c]), baseline=baselines[c],
+                delta=int(deltas[c]), state=states[c], threshold=st.threshold_counts,
                 release=st.release_level_counts,
                 noise_pp=noise.pp_counts if noise else None, noise_rms=noise.rms_counts if noise else None,
                 snr=_finite(q.snr_pp) if q else None, verdict=q.verdict if q else None,
-                spark=tuple(sparks[c].tolist()) if sparks is not None else (),
-                group=group_of.get(c),
-                edited=saved is not None and saved.channels == p.channels and saved.settings_for(c) != st,
-                polarity=s.polarity[c] if c < len(s.polarity) else 1, provisional=s.provisional(c),
+                spark=spark_rows[c], group=group_of.get(c), edited=edited,
+                polarity=polarity[c] if c < len(polarity) else 1, provisional=s.provisional(c),
                 phase=s.phase(c),
             ))
         return out
@@ -374,6 +390,6 @@ class SessionSource:
 
 
 def _finite(value: float | None) -> float | None:
-    if value is None or not np.isfinite(value):
-        return None if value is None else 999.0
-    return float(value)
+    if value is None:
+        return None
+    return float(value) if math.isfinite(value) else 999.0

@@ -273,6 +273,23 @@ def test_automatic_changes_are_not_unsaved_edits():
     assert s.automatic(saved) != s.profile
 
 
+def test_automatic_differs_from_the_profile_exactly_in_the_user_edits():
+    # six keys of different noise: six different provisional settings, all applied by the session itself
+    r = np.concatenate([stream(1, 3.0, 1000 + 100 * c, noise_pp=pp, seed=c)
+                        for c, pp in enumerate((2, 6, 20, 3, 40, 8))], axis=1)
+    s = Session()
+    saved = None
+    for pos in range(0, len(r), 37):
+        feed(s, r[pos:pos + 37], first=pos)
+        saved = saved or s.profile
+    assert len({s.settings(c) for c in range(6)}) > 1 and s.automatic(saved) == s.profile
+    s.set_channel_settings(1, ChannelSettings(threshold_counts=33))
+    s.set_channel_settings(4, ChannelSettings(threshold_counts=77))
+    auto = s.automatic(saved)
+    assert [c for c in range(6) if auto.settings_for(c) != s.settings(c)] == [1, 4]
+    assert auto.with_settings(1, s.settings(1)).with_settings(4, s.settings(4)) == s.profile
+
+
 # ---------------------------------------------------------------- names
 def test_one_bad_name_costs_only_its_own_channel():
     s = Session(profile_for(3))

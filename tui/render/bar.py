@@ -9,7 +9,7 @@ from __future__ import annotations
 from rich.style import Style
 from rich.text import Text
 
-from tui.render import Piece, Styles, pick, to_text
+from tui.render import NULL, Piece, Styles, to_text
 
 _EIGHTHS = " ▏▎▍▌▋▊▉█"
 THRESHOLD_MARK = "┃"
@@ -44,22 +44,27 @@ def bar_pieces(delta_counts: float, threshold_counts: int, release_counts: int, 
     t_cell = min(width - 1, round(threshold_counts / per_cell))
     r_cell = min(width - 1, max(0, round(release_counts / per_cell)))
     eighths = int(max(0.0, delta_counts) / per_cell * 8)
-    fill_style = pick(styles, role)
-    empty_style = pick(styles, "bar-empty")
+    fill_style = styles.get(role, NULL)
+    empty_style = styles.get("bar-empty", NULL)
     full_cells, part = divmod(eighths, 8)
-    cells = ["█"] * min(full_cells, width)
     if full_cells < width:
-        cells.append(_EIGHTHS[part] if part else " ")
-        cells.extend(" " * (width - len(cells)))
+        cells = "█" * full_cells + (_EIGHTHS[part] if part else " ") + " " * (width - full_cells - 1)
+    else:
+        cells = "█" * width
     if delta_counts < 0:
-        cells[0] = "◂"
+        cells = "◂" + cells[1:]
     filled = min(width, full_cells + (1 if part else 0))
     # One run per stretch of one style (fill, empty, the two marks): a handful of spans per bar.
-    marks = sorted({t_cell: (THRESHOLD_MARK, "threshold"), r_cell: (RELEASE_MARK, "release")}.items())
+    if r_cell < t_cell:
+        marks = ((r_cell, RELEASE_MARK, "release"), (t_cell, THRESHOLD_MARK, "threshold"))
+    elif r_cell > t_cell:
+        marks = ((t_cell, THRESHOLD_MARK, "threshold"), (r_cell, RELEASE_MARK, "release"))
+    else:  # one cell for both: the release mark wins it, as it always has
+        marks = ((t_cell, RELEASE_MARK, "release"),)
     pos = 0
-    for cell, (glyph, mark_role) in marks:
+    for cell, glyph, mark_role in marks:
         _runs(text, cells, pos, cell, filled, fill_style, empty_style)
-        text.append((glyph, pick(styles, mark_role)))
+        text.append((glyph, styles.get(mark_role, NULL)))
         pos = cell + 1
     _runs(text, cells, pos, width, filled, fill_style, empty_style)
     if eighths > width * 8:
@@ -69,12 +74,12 @@ def bar_pieces(delta_counts: float, threshold_counts: int, release_counts: int, 
     return text
 
 
-def _runs(out: list[Piece], cells: list[str], start: int, stop: int, filled: int, fill: Style,
+def _runs(out: list[Piece], cells: str, start: int, stop: int, filled: int, fill: Style,
           empty: Style) -> None:
     if start >= stop:
         return
     split = max(start, min(stop, filled))
     if split > start:
-        out.append(("".join(cells[start:split]), fill))
+        out.append((cells[start:split], fill))
     if stop > split:
-        out.append(("".join(cells[split:stop]), empty))
+        out.append((cells[split:stop], empty))

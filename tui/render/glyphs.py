@@ -56,6 +56,9 @@ UNKNOWN_VERDICT = Label("?", "n/a", "dim")
 
 def state_label(state: object) -> Label:
     """The label of an engine state (enum or string); an unknown name is shown as its own word."""
+    found = _STATES.get(state) if type(state) is str else None  # the screen's case: a known lower-case name
+    if found is not None:
+        return found
     key = str(getattr(state, "name", state)).lower()
     found = _STATES.get(key)
     if found is not None:
@@ -66,5 +69,8 @@ def state_label(state: object) -> Label:
 def verdict_label(verdict: object | None) -> Label:
     if verdict is None:
         return UNKNOWN_VERDICT
+    found = _VERDICTS.get(verdict) if type(verdict) is str else None
+    if found is not None:
+        return found
     key = str(getattr(verdict, "name", verdict)).lower()
     return _VERDICTS.get(key, Label("?", key[:5], "dim"))

@@ -90,15 +90,18 @@ def row_pieces(view: ChannelView, layout: RowLayout, selected: bool, styles: Sty
     """The row as pieces, exactly `layout.width` cells or fewer; the table adds the selected background."""
     st = state_label(view.state if view.phase == "ready" else view.phase)
     verdict = verdict_label(view.verdict)
+    get = styles.get
     plain = NULL
+    number = layout.number
     mark = ("▶" if selected else " ") + ("≈" if view.provisional else " ")
-    out: list[Piece] = [(mark, pick(styles, "cursor")),
-                        (view.name[: layout.name].ljust(layout.name), pick(styles, "edited" if view.edited
-                                                                              else "name")),
-                        (" " + _num(view.reading, layout.number) + " ", plain)]
+    out: list[Piece] = [(mark, get("cursor", plain)),
+                        (view.name[: layout.name].ljust(layout.name), get("edited" if view.edited else "name",
+                                                                          plain)),
+                        (" " + _num(view.reading, number) + " ", plain)]
     if layout.baseline:
-        out += [(_num(view.baseline, layout.number), pick(styles, "dim")), (" ", plain)]
-    out += [(_num(view.delta, layout.number), pick(styles, st.role)), (" ", plain)]
+        out += [(_num(view.baseline, number), get("dim", plain)), (" ", plain)]
+    state_style = get(st.role, plain)
+    out += [(_num(view.delta, number), state_style), (" ", plain)]
     out += bar_pieces(view.delta, view.threshold, view.release, layout.bar, styles, st.role)
     if layout.spark:
         out.append((" ", plain))
@@ -106,7 +109,7 @@ def row_pieces(view: ChannelView, layout: RowLayout, selected: bool, styles: Sty
     noise = view.noise_pp
     out.append((" " + _num(noise, layout.noise, 1 if noise is not None and noise < 100 else 0) + " ", plain))
     snr = "--" if view.snr is None else f"{view.snr:.1f}" if view.snr < 100 else f"{view.snr:.0f}"
-    out += [(f"{snr:>4} {verdict.glyph}".ljust(layout.snr)[: layout.snr], pick(styles, verdict.role)),
+    out += [(f"{snr:>4} {verdict.glyph}".ljust(layout.snr)[: layout.snr], get(verdict.role, plain)),
             (" ", plain),
-            (f"{st.glyph} {st.word}".ljust(layout.state)[: layout.state], pick(styles, st.role))]
+            (f"{st.glyph} {st.word}".ljust(layout.state)[: layout.state], state_style)]
     return out

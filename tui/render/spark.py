@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
+from functools import lru_cache
 
 from rich.text import Text
 
@@ -21,12 +22,17 @@ def downsample_max(values: Sequence[float], width: int) -> list[float]:
         return []
     if n <= width:
         return list(values)
+    return [max(values[lo:hi]) for lo, hi in _buckets(n, width)]
+
+
+@lru_cache(maxsize=64)
+def _buckets(n: int, width: int) -> tuple[tuple[int, int], ...]:
+    """Bucket bounds of `downsample_max` (the same few sizes come every screen frame: kept)."""
     out = []
     for i in range(width):
         lo = i * n // width
-        hi = max(lo + 1, (i + 1) * n // width)
-        out.append(max(values[lo:hi]))
-    return out
+        out.append((lo, max(lo + 1, (i + 1) * n // width)))
+    return tuple(out)
 
 
 def sparkline(
@@ -42,21 +48,25 @@ def spark_pieces(values: Sequence[float], threshold_counts: int, width: int, sty
     if width <= 0:
         return text
     buckets = downsample_max(values, width)
-    top = max([float(threshold_counts) * 8 / 7, 1.0, *buckets])
+    peak = max(buckets) if buckets else 0.0
+    top = max(float(threshold_counts) * 8 / 7, 1.0, peak)
     style = pick(styles, role)
-    hot = pick(styles, "touched")
     if len(buckets) < width:
         text.append((" " * (width - len(buckets)), style))
     scale = (len(_LEVELS) - 1) / top
-    run: list[str] = []
-    run_hot = False
-    for value in buckets:  # one span per run of cells at or above the threshold, or below it
-        is_hot = value >= threshold_counts > 0
-        if is_hot != run_hot and run:
-            text.append(("".join(run), hot if run_hot else style))
-            run = []
-        run_hot = is_hot
-        run.append(_LEVELS[int(max(0.0, value) * scale + 0.5)])
-    if run:
-        text.append(("".join(run), hot if run_hot else style))
+    levels = _LEVELS
+    glyphs = [levels[int(value * scale + 0.5)] if value > 0.0 else levels[0] for value in buckets]
+    if not (threshold_counts > 0 and peak >= threshold_counts):  # nothing at the threshold: one span
+        if glyphs:
+            text.append(("".join(glyphs), style))
+        return text
+    hot = pick(styles, "touched")
+    start = 0
+    run_hot = buckets[0] >= threshold_counts
+    for i, value in enumerate(buckets):  # one span per run of cells at or above the threshold, or below it
+        is_hot = value >= threshold_counts
+        if is_hot != run_hot:
+            text.append(("".join(glyphs[start:i]), hot if run_hot else style))
+            start, run_hot = i, is_hot
+    text.append(("".join(glyphs[start:]), hot if run_hot else style))
     return text

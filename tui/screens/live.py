@@ -2,16 +2,18 @@
 
 It composes the link strip, the channel table, the edit bar, the detail panel, the groups panel and the
 event log, and owns the keys that act on them; the table owns its cursor keys and says which channel
-is selected with a `ChannelTable.Highlighted` message. Data flows down: a timer (about 20 Hz) is the
-only place it comes in, polling the `LiveSource` and handing each widget its snapshot inside one
-`batch_update`; the link's reader thread never waits for the screen, and a slow frame only makes the
-timer skip a tick. Edits go through an `Editor` (tui/editor.py), whose results become log lines and
-notices; profiles and exports are written by a thread worker, one at a time (tui/files.py), and the
-screen says how it went when it is done.
+is selected with a `ChannelTable.Highlighted` message. Data flows down: a timer is the only place it
+comes in, polling the `LiveSource` twice a screen frame and handing each widget its snapshot inside one
+`batch_update` once a frame (about 20 Hz), or at once after a detection (tui/pacing.py); the link's
+reader thread never waits for the screen, and a slow frame only makes the timer skip a tick. Edits go
+through an `Editor` (tui/editor.py), whose results become log lines and notices; profiles and exports
+are written by a thread worker, one at a time (tui/files.py), and the screen says how it went when it
+is done.
 """
 
 from __future__ import annotations
 
+import gc
 import time
 from collections.abc import Callable
 from dataclasses import replace
@@ -34,6 +36,7 @@ from tui.editor import Editor, EditResult, Outcome
 from tui.fields import EDIT_FIELDS, FROM_NOISE, POLARITY_KEY, field, polarity_word
 from tui.files import FileQueue, ReplaceOnce, new_recording_path, writable_path
 from tui.log_feed import LogFeed
+from tui.pacing import FramePacer
 from tui.render.views import LinkView, Spectrum
 from tui.screens.confirm import ConfirmScreen, QuitChoice, QuitScreen
 from tui.screens.prompt import PromptScreen
@@ -50,6 +53,12 @@ from tui.words import plural
 SPARK_POINTS = 48
 SPECTRUM_EVERY_S = 1.0
 DETAIL_EVERY_S = 0.5
+# The screen timer polls the source this many times per screen frame and draws a frame once per frame
+# period, or at the first poll that brings a detection (tui/pacing.py): a touch waits for about half a
+# period, not up to a whole one (50 ms at 20 Hz). The second poll costs about half a percent of a core
+# at 16 channels / 100 Hz on a quiet machine (more on a loaded one); 1 saves that and adds some 20 ms
+# to the 95th percentile of the touch-to-screen latency (`make bench` prints both).
+POLLS_PER_FRAME = 2
 TAP_S = 0.4  # how long `t` holds the simulated key
 
 B = Binding
@@ -113,7 +122,8 @@ class LiveScreen(Screen[None]):
         self.files = FileQueue()
         self.held: set[int] = set()  # simulated keys held down from the keyboard
         self.frames_drawn = 0
-        self._ticks = 0
+        self._ticks = 0  # screen frames drawn or skipped while paused
+        self._pacer = FramePacer(ui_hz or 1.0, POLLS_PER_FRAME)
         self._spectrum_cache: tuple[int, float, Spectrum | None] | None = None
         self._quit_when_written = False
         self._state = "new"  # "mounted" once its widgets are styled and can draw, then "closed"
@@ -138,27 +148,47 @@ class LiveScreen(Screen[None]):
         self._state = "mounted"
         self.detail_panel.display = False
         if self.ui_hz > 0:
-            self.set_interval(1.0 / self.ui_hz, self.refresh_now, name="screen-timer")
+            self.set_interval(1.0 / (self.ui_hz * POLLS_PER_FRAME), self._screen_timer, name="screen-timer")
         self.refresh_now()
+        # Everything alive now (modules, the widgets, their styles: some 70,000 objects) lives as long as
+        # the screen: set aside from the collector, whose full passes over them stalled every thread for
+        # 30-40 ms a few times a minute (a touch shown that late). Given back at unmount.
+        gc.freeze()
 
     def on_unmount(self) -> None:
         self._state = "closed"
+        gc.unfreeze()
 
     # -- the screen timer -------------------------------------------------------------------------
     def refresh_now(self) -> None:
         """Poll the source, log what happened, and redraw (unless the display is paused). Before the
         screen is mounted it only polls and logs (the log keeps its lines): it draws once mounted."""
+        if self._poll() is not None and self._state == "mounted":
+            self._show()
+
+    def _screen_timer(self) -> None:
+        """Polls POLLS_PER_FRAME times a frame period; draws when the pacer says (see tui/pacing.py)."""
+        tick = self._poll()
+        # Wall time, as the timer's own: the injectable `clock` is the data's (tests move it by hand).
+        if (tick is not None and self._state == "mounted"
+                and self._pacer.after_poll(time.monotonic(), bool(tick.detections))):
+            self._show()
+
+    def _poll(self) -> Tick | None:
+        """Poll the source and log what it brought; None when there is nothing to draw on."""
         if self._state == "closed":
-            return  # shutting down: the widgets are gone
+            return None  # shutting down: the widgets are gone
         try:
             tick = self.source.poll()
         except UserError as exc:
             self.say(str(exc), severity="error")
-            return
-        self._ticks += 1
+            return None
         self._log_tick(tick)
-        if self._state != "mounted":
-            return
+        return tick
+
+    def _show(self) -> None:
+        """One screen frame: the link strip, and the rows unless the display is paused."""
+        self._ticks += 1
         with self.app.batch_update():
             view = self._link_view()
             self.link_strip.show(view)

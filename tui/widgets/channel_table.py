@@ -15,15 +15,18 @@ from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
 from textual.binding import Binding
-from textual.geometry import Size
+from textual.geometry import Region, Size
 from textual.message import Message
 from textual.reactive import reactive
 from textual.strip import Strip
 from textual.widget import Widget
 
-from tui.render import Piece
+from tui.render import NULL, Piece
 from tui.render.row import RowLayout, header_line, row_layout, row_pieces
 from tui.render.views import ChannelView
+
+# A Segment (a named tuple) made without the named tuple's Python-level constructor: thousands a second.
+_segment = tuple.__new__
 
 # Roles the row renderer asks for; each is a component class styled in app.tcss.
 ROLES = (
@@ -65,7 +68,9 @@ class ChannelTable(Widget):
         self._top = 0
         self._styles: dict[str, Style] | None = None
         self._layout: RowLayout | None = None
-        self._combined: dict[tuple[Style, object], Style] = {}
+        self._combined: dict[Style, dict[str, Style]] = {}
+        self._pass_size: Size | None = None
+        self._header_strip: tuple[tuple[object, ...], Strip] | None = None
 
     # -- data in ----------------------------------------------------------------------------------
     def show(self, views: Sequence[ChannelView]) -> None:
@@ -123,6 +128,7 @@ class ChannelTable(Widget):
         super().notify_style_update()
         self._styles = None
         self._combined = {}
+        self._header_strip = None
 
     def on_resize(self) -> None:
         self._layout = None
@@ -143,46 +149,67 @@ class ChannelTable(Widget):
             self._layout = row_layout(width, name_width=max(6, longest))
         return self._layout
 
+    def render_lines(self, crop: Region) -> list[Strip]:
+        """Textual's pass over the dirty lines: the size is looked up once for all of them, not per line."""
+        self._pass_size = self.size
+        try:
+            return super().render_lines(crop)
+        finally:
+            self._pass_size = None
+
     def render_line(self, y: int) -> Strip:
-        width = self.size.width
+        size = self._pass_size or self.size
+        width = size.width
         styles = self.styles_map()
         base = styles["base"]
         layout = self._row_layout(width - 1)
         if y == 0:
-            text = header_line(layout, styles)
-            if len(self._views) > self.size.height - 1:
-                # More rows than fit: say so in the cursor column; the edit bar shows "n/N".
-                more_up, more_down = self._top > 0, self._top + self.size.height - 1 < len(self._views)
-                text = Text("↕" if more_up and more_down else "↑" if more_up else "↓", styles["dim"]) + \
-                    text[1:]
-            text.truncate(width, pad=True)
-            return Strip(text.render(self.app.console), width).apply_style(base)
+            return self._header(layout, width, size.height, styles)
         index = self._top + y - 1
         if index >= len(self._views):
             return Strip.blank(width, base)
         selected = index == self.cursor
         if selected:
             base = base + styles["selected"]
-        return self._strip(row_pieces(self._views[index], layout, selected, styles), base, width)
+        pieces = row_pieces(self._views[index], layout, selected, self._on_base(base))
+        return self._strip(pieces, base, width)
+
+    def _header(self, layout: RowLayout, width: int, height: int, styles: dict[str, Style]) -> Strip:
+        """The header line, built again only when what it shows changes (not at every frame)."""
+        rows = len(self._views)
+        overflow = rows > height - 1
+        more_up, more_down = overflow and self._top > 0, overflow and self._top + height - 1 < rows
+        key = (layout, width, overflow, more_up, more_down)
+        if self._header_strip is not None and self._header_strip[0] == key:
+            return self._header_strip[1]
+        text = header_line(layout, styles)
+        if overflow:
+            # More rows than fit: say so in the cursor column; the edit bar shows "n/N".
+            text = Text("↕" if more_up and more_down else "↑" if more_up else "↓", styles["dim"]) + text[1:]
+        text.truncate(width, pad=True)
+        strip = Strip(text.render(self.app.console), width).apply_style(styles["base"])
+        self._header_strip = (key, strip)
+        return strip
+
+    def _on_base(self, base: Style) -> dict[str, Style]:
+        """Every role's style already on the row's base (one map per base, kept until the styles change):
+        the pieces come out in their final styles, and plain pieces (NULL) take the base itself."""
+        found = self._combined.get(base)
+        if found is None:
+            found = self._combined[base] = {role: base + style for role, style in self.styles_map().items()}
+        return found
 
     def _strip(self, pieces: list[Piece], base: Style, width: int) -> Strip:
-        """Segments straight from the pieces (single-cell characters), each style on the row's base.
+        """Segments straight from the pieces (single-cell characters, styles on the base already).
 
         Far cheaper than building a Text and rendering it, and this runs for every visible row on
         every screen frame.
         """
-        cache = self._combined
-        segments = []
-        cells = 0
-        for chunk, style in pieces:
-            key = (base, style)
-            combined = cache.get(key)
-            if combined is None:
-                combined = cache[key] = base + style
-            segments.append(Segment(chunk, combined))
-            cells += len(chunk)
+        segments = [_segment(Segment, (chunk, base if style is NULL else style, None))
+                    for chunk, style in pieces]
+        cells = sum([len(chunk) for chunk, _ in pieces])
         if cells < width:
-            segments.append(Segment(" " * (width - cells), base))
+            segments.append(_segment(Segment, (" " * (width - cells), base, None)))
             cells = width
         strip = Strip(segments, cells)
         return strip if cells == width else strip.crop(0, width)
