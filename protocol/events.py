@@ -58,6 +58,10 @@ class FrameBlock:
     # The board's own time per frame from a leading time column (raw integer ticks, unit as printed),
     # or None when the board sent none. Never a channel.
     board_time: np.ndarray | None = None
+    # The board's own key state per frame and channel from a frame's optional state field (PROTOCOL.md
+    # section 3; int8 of shape (n, channels), processing.detections.KeyState's values), or None when
+    # the frames carried none.
+    board_states: np.ndarray | None = None
 
     def __len__(self) -> int:
         return int(self.readings.shape[0])
