@@ -58,6 +58,11 @@ class SessionSource:
         self.pipeline = Pipeline(producer, self.session, clock=clock, source=port)
         self._path = profile_path
         self._saved: Profile | None = profile
+        self._polls = 0
+        # `Session.automatic(saved)` for the screen frame (the link strip's unsaved mark and every row's
+        # edited mark ask for it): kept while no poll ran and neither profile was replaced (an edit
+        # replaces the session's profile), for (polls, profile, saved, result).
+        self._automatic_kept: tuple[int, Profile | None, Profile, Profile] | None = None
         self.port, self.baud = port, baud
         self.simulated = port.startswith("sim://") if simulated is None else simulated
         self.clock = clock
@@ -81,6 +86,7 @@ class SessionSource:
 
     def poll(self) -> Tick:
         step = self.pipeline.step()
+        self._polls += 1
         tick = Tick(detections=step.detections)
         for ev in step.events:
             if isinstance(ev, FrameBlock):
@@ -169,7 +175,7 @@ class SessionSource:
         states = [_STATE_WORDS.get(st) or st.name.lower() for st in e.states]
         sparks = self._sparks(spark_points)
         spark_rows = [tuple(row) for row in sparks.tolist()] if sparks is not None else [()] * n
-        saved = self.session.automatic(self._saved) if self._saved is not None else None
+        saved = self._automatic()
         saved_settings = saved.settings_for if saved is not None and saved.channels == p.channels else None
         group_of = {m: g.name for g in p.groups for m in g.members}
         s = self.session
@@ -309,8 +315,20 @@ class SessionSource:
         """Edits the user made since the profile was loaded or saved; what the session did by itself
         (the board's names and polarity, provisional settings, a learned polarity) does not count."""
         current = self.session.profile
-        return current is not None and self._saved is not None and \
-            current != self.session.automatic(self._saved)
+        return current is not None and self._saved is not None and current != self._automatic()
+
+    def _automatic(self) -> Profile | None:
+        """The saved profile with what the session did by itself applied (`Session.automatic`), worked
+        out once per poll and profile: it copies the profile, and a screen frame asks twice."""
+        saved, current = self._saved, self.session.profile
+        if saved is None:
+            return None
+        kept = self._automatic_kept
+        if kept is not None and kept[0] == self._polls and kept[1] is current and kept[2] is saved:
+            return kept[3]
+        out = self.session.automatic(saved)
+        self._automatic_kept = (self._polls, current, saved, out)
+        return out
 
     def save(self, path: Path | None = None) -> Path:
         job = self.save_job(path)
