@@ -110,8 +110,9 @@ def parse(lines: Iterable[str]) -> tuple[Scenario, list[str]]:
         elif word == "group":
             scn.groups.append(GroupSpec(f"g{len(scn.groups)}", tuple(map(int, rest[1:])), int(rest[0])))
         elif word == "slider":
-            scn.sliders.append(SliderSpec(f"s{len(scn.sliders)}", tuple(map(int, rest[2:])), rest[0] == "1",
-                                          int(rest[1])))
+            scn.sliders.append(
+                SliderSpec(f"s{len(scn.sliders)}", tuple(map(int, rest[2:])), rest[0] == "1", int(rest[1]))
+            )
         elif word == "frame":
             scn.ops.append(("frame", [int(v) for v in rest]))
         elif word == "rebaseline":
@@ -127,8 +128,13 @@ def parse(lines: Iterable[str]) -> tuple[Scenario, list[str]]:
 
 def fnv_frames(h: int, deltas: np.ndarray, states: np.ndarray) -> int:
     """Fold frames (rows) of deltas and states into an FNV-1a 64 hash, as vector_runner.c does."""
-    rows = np.concatenate([deltas.astype("<i8").view(np.uint8).reshape(len(deltas), -1, 8),
-                           states.astype(np.uint8).reshape(len(states), -1, 1)], axis=2)
+    rows = np.concatenate(
+        [
+            deltas.astype("<i8").view(np.uint8).reshape(len(deltas), -1, 8),
+            states.astype(np.uint8).reshape(len(states), -1, 1),
+        ],
+        axis=2,
+    )
     for byte in rows.reshape(-1).tolist():
         h = ((h ^ byte) * FNV_PRIME) & MASK64
     return h
@@ -174,7 +180,9 @@ def reference_lines(scn: Scenario) -> list[str]:
     for kind, item in _blocks(scn):
         if kind == "block":
             r = item
-            block = FrameBlock(np.arange(frame, frame + len(r), dtype=np.float64), np.arange(len(r)), r, frame)
+            block = FrameBlock(
+                np.arange(frame, frame + len(r), dtype=np.float64), np.arange(len(r)), r, frame
+            )
             found = list(eng.process(block))
             for t in trackers:
                 found.extend(t.update(frame, block.t_s, eng.last_deltas, eng.last_states))
@@ -188,16 +196,23 @@ def reference_lines(scn: Scenario) -> list[str]:
             eng.set_settings(item[1], item[2])
         else:
             eng.set_polarity(item[1], item[2])
-    return [*out, f"= end frames {frame} hash {h:016x}", "= end baseline_fp " + " ".join(map(str, eng.baselines_fp))]
+    return [
+        *out,
+        f"= end frames {frame} hash {h:016x}",
+        "= end baseline_fp " + " ".join(map(str, eng.baselines_fp)),
+    ]
 
 
 def firmware_lines(scn: Scenario) -> list[str]:
     """The same run through the compiled C library (devices.firmware.clib), printed the same way."""
     from devices.firmware import clib
 
-    det = clib.FirmwareDetector(scn.settings, scn.polarity,
-                                [(g.members, g.switch_margin_counts) for g in scn.groups],
-                                [(s.pads, s.wheel, s.resolution) for s in scn.sliders])
+    det = clib.FirmwareDetector(
+        scn.settings,
+        scn.polarity,
+        [(g.members, g.switch_margin_counts) for g in scn.groups],
+        [(s.pads, s.wheel, s.resolution) for s in scn.sliders],
+    )
     out: list[str] = []
     frame, h = 0, FNV_OFFSET
     for kind, item in _blocks(scn):
@@ -212,7 +227,11 @@ def firmware_lines(scn: Scenario) -> list[str]:
             det.set_settings(item[1], item[2])
         else:
             det.set_polarity(item[1], item[2])
-    return [*out, f"= end frames {frame} hash {h:016x}", "= end baseline_fp " + " ".join(map(str, det.baselines_fp))]
+    return [
+        *out,
+        f"= end frames {frame} hash {h:016x}",
+        "= end baseline_fp " + " ".join(map(str, det.baselines_fp)),
+    ]
 
 
 def _raw_line(ev: object, frame: int) -> str:
