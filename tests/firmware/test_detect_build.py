@@ -161,3 +161,32 @@ def test_library_refuses_settings_a_profile_refuses(firmware_lib):  # noqa: F811
         with pytest.raises(ValueError, match=key):
             det.set_settings(0, s)
     assert det.run([[5]]) and det.states == [0]  # refused changes left the channel as it was
+
+
+def test_firmware_size_without_the_cross_compiler_prints_the_install_command(tmp_path):
+    bin_dir = tmp_path / "bin"
+    bin_dir.mkdir()
+    (bin_dir / "python3").symlink_to(sys.executable)
+    out = subprocess.run(
+        [str(bin_dir / "python3"), str(FIRMWARE / "size.py")],
+        capture_output=True,
+        text=True,
+        env={**os.environ, "PATH": str(bin_dir)},
+        timeout=60,
+    )
+    assert out.returncode == 2
+    assert out.stdout.strip().endswith("apt-get install gcc-arm-none-eabi libnewlib-arm-none-eabi")
+    assert len(out.stdout.splitlines()) == 1
+
+
+@pytest.mark.skipif(shutil.which("arm-none-eabi-gcc") is None, reason="no arm-none-eabi-gcc here")
+def test_firmware_size_reports_every_part_and_the_ram_per_channel():
+    out = subprocess.run(
+        [sys.executable, str(FIRMWARE / "size.py")], capture_output=True, text=True, timeout=300
+    )
+    assert out.returncode == 0, out.stdout + out.stderr
+    assert "detector (pt_detect.c)" in out.stdout and "groups and sliders (pt_groups.c)" in out.stdout
+    assert "RAM per channel: 20 B of detector state (pt_chan_t), within the 24 B goal" in out.stdout
+    rows = {line[:34].strip(): line[34:].split() for line in out.stdout.splitlines()}
+    flash, ram = (int(v) for v in rows["detector (pt_detect.c)"][:2])
+    assert flash > 0 and ram == 0  # no static RAM: every byte of state is the caller's
