@@ -118,17 +118,14 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
     }
 }
 
-/* 256 / P for a period P = 2^p <= 256: the factor that turns the period sum into the mean in fixed
- * point, exactly (ALGORITHM.md step 5). A loop of at most 8 steps: the M0+ has no divide instruction. */
-static int64_t mean_factor(uint16_t period_frames)
+/* The period mean in fixed point, acc * 2^(8 - p) for a period P = 2^p <= 256 (ALGORITHM.md step 5),
+ * exactly: doubled by additions (defined for negative sums too), no multiply helper on a Cortex-M0+. */
+static int64_t mean_fp(int64_t acc, uint16_t period_frames)
 {
-    int64_t mul = ONE_FP;
-    uint16_t q = period_frames;
-    while (q > 1u) {
-        q = (uint16_t)(q >> 1);
-        mul /= 2;
-    }
-    return mul;
+    uint16_t q;
+    for (q = period_frames; q != 0 && q < (uint16_t)ONE_FP; q = (uint16_t)(q * 2u))
+        acc += acc;
+    return acc;
 }
 
 /* Steps 1-4 of ALGORITHM.md for one channel; returns the event kind (0 for none). */
@@ -212,7 +209,7 @@ static void period_end(pt_chan_t *ch, const pt_settings_t *s)
 {
     if (ch->flags & F_CLEAN) {
         int64_t bfp = get_base_fp(ch);
-        int64_t diff = get_acc(ch) * mean_factor(s->baseline_period_frames) - bfp;
+        int64_t diff = mean_fp(get_acc(ch), s->baseline_period_frames) - bfp;
         int toward = (ch->flags & F_NEG) ? diff < 0 : diff > 0;
         unsigned shift = toward ? s->baseline_slow_shift : s->baseline_fast_shift;
         set_base_fp(ch, bfp + tdiv_pow2(diff, shift));
