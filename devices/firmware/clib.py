@@ -229,8 +229,22 @@ class RawEvent(NamedTuple):
     value: int | None
 
 
+class Settings(NamedTuple):
+    """One channel's settings for code that may not import `processing` (simulated boards): the profile's
+    keys with `processing.settings.ChannelSettings`'s defaults (a test keeps the two equal)."""
+
+    threshold_counts: int = 100
+    hysteresis_counts: int = 15
+    touch_debounce_frames: int = 3
+    release_debounce_frames: int = 3
+    baseline_slow_shift: int = 6
+    baseline_fast_shift: int = 2
+    baseline_period_frames: int = 16
+    stuck_timeout_frames: int = 0
+
+
 def settings_struct(s: Any, polarity: int) -> PtSettings:
-    """`s` is anything with the profile's setting attributes (processing.settings.ChannelSettings)."""
+    """`s` is anything with the profile's setting attributes (`Settings`, processing's ChannelSettings)."""
     out = PtSettings(polarity=int(polarity))
     for key in SETTING_KEYS:
         setattr(out, key, int(getattr(s, key)))

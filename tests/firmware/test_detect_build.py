@@ -215,3 +215,13 @@ def test_the_readmes_example_compiles_against_an_exported_header(tmp_path):
         timeout=120,
     )
     assert built.returncode == 0, built.stderr
+
+
+def test_binding_settings_are_the_profile_keys_with_the_same_defaults():
+    from dataclasses import asdict
+
+    from devices.firmware import clib
+    from processing.settings import SETTING_KEYS
+
+    assert clib.SETTING_KEYS == SETTING_KEYS
+    assert clib.Settings()._asdict() == asdict(ChannelSettings())
