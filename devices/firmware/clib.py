@@ -147,10 +147,12 @@ def library_path(flags: Sequence[str] = CFLAGS) -> Path:
         return target
     try:
         out_dir.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=".building-", suffix=".so", dir=out_dir)
+        os.close(fd)
     except OSError as exc:
-        raise FirmwareUnavailable(f"cannot create the build cache {out_dir}: {exc.strerror}") from exc
-    fd, tmp = tempfile.mkstemp(prefix=".building-", suffix=".so", dir=out_dir)
-    os.close(fd)
+        why = exc.strerror or str(exc)
+        raise FirmwareUnavailable(f"cannot write the firmware library's build cache {out_dir}: {why} "
+                                  "(set PADTUNE_CACHE_DIR to a writable folder)") from exc
     sources = [str(HERE / s) for s in (*LIBRARY_SOURCES, GLUE_SOURCE)]
     try:
         done = subprocess.run([*cc, *flags, "-o", tmp, *sources], capture_output=True, text=True,

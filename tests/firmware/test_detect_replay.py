@@ -98,3 +98,11 @@ def test_a_compiler_that_fails_is_one_line_and_exit_2(recordings, tmp_path):
     assert out.returncode == 2 and out.stdout == ""
     assert len(out.stderr.splitlines()) == 1 and "could not build" in out.stderr, out.stderr
     assert not list((tmp_path / "cache").rglob("*.so"))  # nothing half-built left behind
+
+
+def test_an_unwritable_build_cache_is_one_line_and_exit_2(recordings, tmp_path):
+    (tmp_path / "file").write_text("not a folder")
+    out = padtune("replay", str(recordings / "greenhouse.csv"), "--engine", "firmware",
+                  env={"PADTUNE_CACHE_DIR": str(tmp_path / "file")})
+    assert out.returncode == 2 and out.stdout == ""
+    assert len(out.stderr.splitlines()) == 1 and "PADTUNE_CACHE_DIR" in out.stderr, out.stderr
