@@ -64,8 +64,8 @@ class PtSettings(ctypes.Structure):
 
 
 class PtChan(ctypes.Structure):
-    _fields_ = [("base", ctypes.c_int32), ("acc_lo", ctypes.c_uint32), ("held", ctypes.c_uint32),
-                ("delta_mag", ctypes.c_uint32), ("base_frac", ctypes.c_uint8), ("acc_hi", ctypes.c_uint8),
+    _fields_ = [("base_lo", ctypes.c_uint32), ("acc_lo", ctypes.c_uint32), ("held", ctypes.c_uint32),
+                ("delta_mag", ctypes.c_uint32), ("base_hi", ctypes.c_uint8), ("acc_hi", ctypes.c_uint8),
                 ("count", ctypes.c_uint8), ("flags", ctypes.c_uint8)]
 
 

@@ -30,32 +30,41 @@ static int64_t tdiv_pow2(int64_t a, unsigned k)
     return a < 0 ? -q : q;
 }
 
-static int64_t get_base_fp(const pt_chan_t *c)
+/* A 40-bit signed value kept as its low 32 bits and the next 8 (two's complement): joined by a
+ * multiplication, split through uint64_t (conversions to unsigned types are defined modulo 2^n). */
+static int64_t join40(uint32_t lo, uint8_t hi)
 {
-    return (int64_t)c->base * ONE_FP + (int64_t)c->base_frac;
+    int32_t h = hi >= 128u ? (int32_t)hi - 256 : (int32_t)hi;
+    return (int64_t)h * 4294967296LL + (int64_t)lo;
 }
 
-/* baseline_fp stays within 256 x the readings' range (each update moves it toward a period mean), so
- * floor(baseline_fp / 256) fits int32_t. (bfp - frac) is a multiple of 256: the division is exact. */
+static uint32_t split40(int64_t v, uint8_t *hi)
+{
+    uint64_t u = (uint64_t)v;
+    *hi = (uint8_t)((u >> 32) & 0xFFu);
+    return (uint32_t)(u & 0xFFFFFFFFu);
+}
+
+/* baseline_fp stays within 256 x the readings' range (each update moves it toward a period mean), and
+ * the period sum holds at most 256 readings: both fit 40 bits. */
+static int64_t get_base_fp(const pt_chan_t *c)
+{
+    return join40(c->base_lo, c->base_hi);
+}
+
 static void set_base_fp(pt_chan_t *c, int64_t bfp)
 {
-    uint8_t frac = (uint8_t)((uint64_t)bfp & 0xFFu);
-    c->base_frac = frac;
-    c->base = (int32_t)((bfp - (int64_t)frac) / ONE_FP);
+    c->base_lo = split40(bfp, &c->base_hi);
 }
 
 static int64_t get_acc(const pt_chan_t *c)
 {
-    int32_t hi = c->acc_hi >= 128u ? (int32_t)c->acc_hi - 256 : (int32_t)c->acc_hi;
-    return (int64_t)hi * 4294967296LL + (int64_t)c->acc_lo;
+    return join40(c->acc_lo, c->acc_hi);
 }
 
-/* The sum of at most 256 int32 readings fits 40 bits: keep the low 32 and the next 8. */
 static void set_acc(pt_chan_t *c, int64_t acc)
 {
-    uint64_t u = (uint64_t)acc;
-    c->acc_lo = (uint32_t)(u & 0xFFFFFFFFu);
-    c->acc_hi = (uint8_t)((u >> 32) & 0xFFu);
+    c->acc_lo = split40(acc, &c->acc_hi);
 }
 
 static void set_delta(pt_chan_t *c, int64_t delta, uint8_t *flags)
@@ -107,8 +116,8 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
     d->frame = 0;
     for (c = 0; c < channels; c++) {
         pt_chan_t *ch = &chans[c];
-        ch->base = 0;
-        ch->base_frac = 0;
+        ch->base_lo = 0;
+        ch->base_hi = 0;
         ch->acc_lo = 0;
         ch->acc_hi = 0;
         ch->held = 0;

@@ -133,22 +133,22 @@ def main() -> int:
             run([CC, *CFLAGS, f"-I{HERE}", "-c", str(src), "-o", str(objs[src.name])], work)
         version = run([CC, "--version"], work).splitlines()[0]
         print(f"padtune firmware library on a Cortex-M0+ ({version}; -Os -mcpu=cortex-m0plus -mthumb)")
-        print(f"{'part':<34}{'flash B':>9}{'static RAM B':>14}")
+        print(f"{'part':<46}{'flash B':>9}{'static RAM B':>14}")
         every = list(objs.values())
         parts = link(every, every, work, "all")
         for name, obj in objs.items():
             flash, ram = parts.get(obj.name, (0, 0))
             label = f"{PART_NAMES.get(name, name[:-2])} ({name})"
-            print(f"{label:<34}{flash:>9}{ram:>14}")
+            print(f"{label:<46}{flash:>9}{ram:>14}")
         helpers = [parts.get(k, (0, 0)) for k in ("libgcc", "libc")]
         flash, ram = sum(f for f, _ in helpers), sum(r for _, r in helpers)
-        print(f"{'helpers (libgcc, libc)':<34}{flash:>9}{ram:>14}")
+        print(f"{'helpers (libgcc, libc)':<46}{flash:>9}{ram:>14}")
         present = [n for n in TOGETHER if n in objs]
         flash, ram = total(link([objs[n] for n in present], every, work, "together"))
         missing = [n for n in TOGETHER if n not in objs]
         label = " + ".join(PART_NAMES[n] for n in present)
         verdict = "within" if flash <= FLASH_GOAL_BYTES else "OVER"
-        print(f"{label + ' together':<34}{flash:>9}{ram:>14}   {verdict} the {FLASH_GOAL_BYTES} B goal"
+        print(f"{label + ' together':<46}{flash:>9}{ram:>14}   {verdict} the {FLASH_GOAL_BYTES} B goal"
               + (f" (not built yet: {', '.join(missing)})" if missing else "") + ", helpers included")
         sizes = type_sizes(headers, work)
         print("types (caller-owned RAM): " + ", ".join(f"{n} {b} B" for n, b in sizes.items()))

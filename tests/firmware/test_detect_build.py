@@ -187,7 +187,7 @@ def test_firmware_size_reports_every_part_and_the_ram_per_channel():
     assert out.returncode == 0, out.stdout + out.stderr
     assert "detector (pt_detect.c)" in out.stdout and "groups and sliders (pt_groups.c)" in out.stdout
     assert "RAM per channel: 20 B of detector state (pt_chan_t), within the 24 B goal" in out.stdout
-    rows = {line[:34].strip(): line[34:].split() for line in out.stdout.splitlines()}
+    rows = {line[:46].strip(): line[46:].split() for line in out.stdout.splitlines()}
     flash, ram = (int(v) for v in rows["detector (pt_detect.c)"][:2])
     assert flash > 0 and ram == 0  # no static RAM: every byte of state is the caller's
 
