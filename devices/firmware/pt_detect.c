@@ -235,23 +235,22 @@ size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *ev
     for (c = 0; c < d->channels; c++) {
         const pt_settings_t *s = &d->settings[c];
         pt_chan_t *ch = &d->chans[c];
-        pt_event_t ev;
+        pt_event_t scratch;
+        pt_event_t *ev = events != NULL ? &events[n] : &scratch; /* filled in place; kept if kind != 0 */
         uint8_t kind;
         uint32_t mask = (uint32_t)s->baseline_period_frames - 1u;
-        ev.held_frames = 0;
-        ev.value = 0;
-        kind = step(ch, s, readings[c], &ev);
+        ev->held_frames = 0;
+        ev->value = 0;
+        kind = step(ch, s, readings[c], ev);
         if ((clock & mask) == mask)
             period_end(ch, s);
-        if (kind != 0 && events != NULL) {
-            ev.kind = kind;
-            ev.source = c;
+        if (kind != 0) {
+            ev->kind = kind;
+            ev->source = c;
             if (kind == PT_EV_REBASELINED)
-                ev.delta_counts = 0;
-            events[n] = ev;
-        }
-        if (kind != 0)
+                ev->delta_counts = 0;
             n++;
+        }
     }
     d->frame = clock + 1u;
     return n;

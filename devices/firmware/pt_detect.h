@@ -85,7 +85,8 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
 /* Process one frame: `readings[c]` for every channel c (signed 32-bit counts, as measured). Runs
  * ALGORITHM.md steps 1-5 for each channel, then advances the frame counter. Writes the frame's events,
  * in channel order, to `events` (room for `channels` entries: a channel reports at most one event per
- * frame) and returns how many it wrote; `events` may be NULL when the caller only reads states.
+ * frame; entries past the returned count are used as scratch) and returns how many it wrote; `events`
+ * may be NULL when the caller only reads states.
  * Neither array is kept. Cost: on a Cortex-M0+ roughly 100-200 cycles per channel and frame when
  * nothing happens (64-bit additions and compares, no division; an estimate from the compiled code, not
  * measured on silicon), a little more at a baseline period's end; 1.4 KB of flash with its helpers. */
