@@ -89,7 +89,7 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
  * may be NULL when the caller only reads states.
  * Neither array is kept. Cost: on a Cortex-M0+ roughly 100-200 cycles per channel and frame when
  * nothing happens (64-bit additions and compares, no division; an estimate from the compiled code, not
- * measured on silicon), a little more at a baseline period's end; 1.4 KB of flash with its helpers. */
+ * measured on silicon), a little more at a baseline period's end; 1.3 KB of flash with its helpers. */
 size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *events);
 
 /* Take channel `channel`'s next reading as its baseline (ALGORITHM.md, "Re-baseline triggers"), or every
