@@ -225,3 +225,23 @@ def test_binding_settings_are_the_profile_keys_with_the_same_defaults():
 
     assert clib.SETTING_KEYS == SETTING_KEYS
     assert clib.Settings()._asdict() == asdict(ChannelSettings())
+
+
+@needs_cc
+def test_detector_sources_are_clean_under_the_stricter_warnings_firmware_builds_use(tmp_path):
+    extra = [
+        "-Wconversion",
+        "-Wsign-conversion",
+        "-Wshadow",
+        "-Wcast-qual",
+        "-Wstrict-prototypes",
+        "-Wmissing-prototypes",
+    ]
+    for name in ("pt_detect.c", "pt_groups.c"):
+        built = subprocess.run(
+            ["cc", *STRICT, *extra, "-c", str(FIRMWARE / name), "-o", str(tmp_path / "x.o")],
+            capture_output=True,
+            text=True,
+            timeout=120,
+        )
+        assert built.returncode == 0, built.stderr
