@@ -53,7 +53,9 @@ def _read_flash(path: Path) -> list[dict[str, int]] | None:
         doc = json.loads(path.read_text("utf-8"))
     except (OSError, ValueError):
         return None  # an unreadable flash image reads as erased, as a board's would
-    if not isinstance(doc, dict) or doc.get("format") != FLASH_FORMAT or not isinstance(doc.get("channels"), list):
+    if not isinstance(doc, dict) or doc.get("format") != FLASH_FORMAT:
+        return None
+    if not isinstance(doc.get("channels"), list):
         return None
     out: list[dict[str, int]] = []
     for item in doc["channels"]:
