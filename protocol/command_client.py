@@ -159,8 +159,8 @@ class CommandClient:
         self._wire = None
         if reply.kind == "ok":
             return Result(wire.line, "applied", reply=reply, values=wire.values, tag=wire.tag)
-        return Result(wire.line, "refused", reply.reason or "no reason given", reply=reply, values=wire.values,
-                      tag=wire.tag)
+        return Result(wire.line, "refused", reply.reason or "no reason given", reply=reply,
+                      values=wire.values, tag=wire.tag)
 
     @staticmethod
     def _fail(pending: _Pending, reason: str) -> Result:

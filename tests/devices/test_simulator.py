@@ -126,7 +126,8 @@ def test_bad_commands_become_board_notes_not_crashes():
     old = SimBoard("greenhouse", seed=2, settings=False)
     old.take()
     old.write(b"hello\n")
-    assert [e.text for e in decode(old.take())[1] if isinstance(e, Note)][0].startswith("error: unknown command")
+    note = next(e.text for e in decode(old.take())[1] if isinstance(e, Note))
+    assert note.startswith("error: unknown command")
     with pytest.raises(UserError):
         board.press("zone9")
 

@@ -17,11 +17,12 @@ from protocol.decoder_plain import PlainDecoder
 from protocol.events import Answer, FrameBlock
 
 VAL = (">val 3 threshold_counts=30 hysteresis_counts=8 touch_debounce_frames=2 release_debounce_frames=2 "
-       "baseline_slow_shift=6 baseline_fast_shift=2 baseline_period_frames=16 stuck_timeout_frames=0 polarity=+")
+       "baseline_slow_shift=6 baseline_fast_shift=2 baseline_period_frames=16 stuck_timeout_frames=0 "
+       "polarity=+")
 
 
 def test_the_profile_keys_are_the_wire_keys_and_defaults_agree():
-    assert wire.SETTING_KEYS == tuple(ChannelSettings.__dataclass_fields__)
+    assert tuple(ChannelSettings.__dataclass_fields__) == wire.SETTING_KEYS
     assert ChannelSettings() == ChannelSettings(**wire.DEFAULTS)
 
 
@@ -56,7 +57,8 @@ def test_answers_name_their_command(text, kind, subject, reason):
 
 def test_command_lines_are_written_as_section_7_says():
     assert wire.get_line(None) == b"get *\n"
-    assert wire.set_line(4, {"threshold_counts": 30, "polarity": -1}) == b"set 4 threshold_counts=30 polarity=-\n"
+    line = wire.set_line(4, {"threshold_counts": 30, "polarity": -1})
+    assert line == b"set 4 threshold_counts=30 polarity=-\n"
     with pytest.raises(ValueError):
         wire.set_line(4, {"threshold": 30})
     with pytest.raises(wire.CommandError, match="given twice"):
