@@ -68,7 +68,7 @@ def board_from_url(url: str) -> tuple[SimBoard, float, float]:
         script=_flag("script", one.get("script", "1")),
         random_per_min=_number("random", one["random"]) if "random" in one else None,
         settings=_flag("settings", one.get("settings", "1")),
-        flash=_flash(one["flash"]) if "flash" in one else None,
+        flash=flash_at(one["flash"]) if "flash" in one else None,
     )
     backlog_s = _number("backlog_s", one.get("backlog_s", str(MAX_BACKLOG_S)))
     if not 0.0 < backlog_s <= 3600.0:  # also refuses nan
@@ -79,7 +79,7 @@ def board_from_url(url: str) -> tuple[SimBoard, float, float]:
     return board, backlog_s, packet_s
 
 
-def _flash(path: str) -> Flash:
+def flash_at(path: str) -> Flash:
     """The board's non-volatile memory in a file (created by the first `keep`)."""
     if not path:
         raise UserError("sim:// option flash=: give a file path for the board's kept settings")
