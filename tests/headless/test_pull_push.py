@@ -72,7 +72,8 @@ def test_a_keep_the_board_refuses_is_exit_1_with_its_reason(tmp_path):
     (["pull", GH], "-o"),
 ])
 def test_user_mistakes_are_one_line_and_exit_2(tmp_path, args, says):
-    (tmp_path / "bad.toml").write_text("format_version = 1\nchannels = 2\n[defaults]\nthreshold_counts = -4\n")
+    bad = "format_version = 1\nchannels = 2\n[defaults]\nthreshold_counts = -4\n"
+    (tmp_path / "bad.toml").write_text(bad)
     (tmp_path / "small.toml").write_text('format_version = 1\nchannels = 2\nnames = ["a", "b"]\n')
     r = padtune(*[a.replace("{tmp}", str(tmp_path)) for a in args])
     assert r.returncode == 2, r.stdout + r.stderr
@@ -93,7 +94,8 @@ def test_push_and_pull_through_a_sim_served_on_a_pseudo_terminal(tmp_path):
         profile = tmp_path / "pump.toml"
         r = padtune("pull", str(link), "-o", str(profile))
         assert r.returncode == 0, r.stdout + r.stderr
-        profile.write_text(profile.read_text().replace("touch_debounce_frames = 3", "touch_debounce_frames = 5"))
+        text = profile.read_text().replace("touch_debounce_frames = 3", "touch_debounce_frames = 5")
+        profile.write_text(text)
         r = padtune("push", str(profile), str(link), "--keep")
         assert r.returncode == 0, r.stdout + r.stderr
         back = tmp_path / "back.toml"
@@ -159,8 +161,9 @@ def test_push_reports_each_difference_when_the_board_does_not_hold_what_it_ackno
     try:
         profile = tmp_path / "two.toml"
         profile.write_text('format_version = 1\nchannels = 2\nnames = ["a", "b"]\n'
-                           '[defaults]\nthreshold_counts = 30\nhysteresis_counts = 8\ntouch_debounce_frames = 2\n'
-                           'release_debounce_frames = 2\n[channel.b]\nthreshold_counts = 55\n')
+                           '[defaults]\nthreshold_counts = 30\nhysteresis_counts = 8\n'
+                           'touch_debounce_frames = 2\nrelease_debounce_frames = 2\n'
+                           '[channel.b]\nthreshold_counts = 55\n')
         r = padtune("push", str(profile), str(board.path))
     finally:
         board.close()
