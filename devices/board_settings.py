@@ -20,6 +20,11 @@ from protocol import commands as wire
 from protocol.commands import Command, CommandError
 
 FLASH_FORMAT = 1
+# What a simulated board runs before anything was set or kept: a first guess of about half a typical
+# touch on the bundled boards, the same as `padtune demo`'s starting profile (tui/demo_profile.py; a
+# test keeps the two equal), so the demo starts with the board and the screen agreeing.
+SIM_FACTORY: dict[str, int] = {**wire.DEFAULTS, "threshold_counts": 30, "hysteresis_counts": 8,
+                               "touch_debounce_frames": 2, "release_debounce_frames": 2}
 MAX_FLASH_BYTES = 1 << 20
 
 
@@ -94,7 +99,7 @@ class BoardSettings:
 
     def __init__(self, channels: int, polarity: int, flash: Flash | None = None) -> None:
         self.flash = flash or Flash()
-        self.factory = {**wire.DEFAULTS, wire.POLARITY_KEY: 1 if polarity >= 0 else -1}
+        self.factory = {**SIM_FACTORY, wire.POLARITY_KEY: 1 if polarity >= 0 else -1}
         self.live: list[dict[str, int]] = []
         self.resize(channels)
         self.power_up()

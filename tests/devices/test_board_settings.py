@@ -35,11 +35,11 @@ def test_set_is_all_or_none_and_answers_with_the_values_in_force():
     board = SimBoard("pumphouse")
     assert answers(board, b"set * threshold_counts=50 hysteresis_counts=60\n") == [
         ">no set *: hysteresis_counts: 60 must be below the threshold (50), or the key could never release"]
-    assert threshold(board, 0) == 100  # nothing changed
+    assert threshold(board, 0) == 30  # nothing changed
     assert answers(board, b"set 1   hysteresis_counts=5\r\n") == [">ok set 1 hysteresis_counts=5"]
     assert answers(board, b"set 1 polarity=- threshold_counts=25\n") == [
         ">ok set 1 polarity=- threshold_counts=25"]
-    assert threshold(board, 1) == 25 and threshold(board, 0) == 100
+    assert threshold(board, 1) == 25 and threshold(board, 0) == 30
 
 
 def test_every_command_gets_exactly_one_final_answer_after_its_values():
@@ -59,7 +59,7 @@ def test_kept_settings_survive_a_watchdog_reset_and_a_power_cycle_unkept_ones_do
     assert board.injected.resets == 1 and threshold(board, 0) == 41
     answers(board, b"set 2 threshold_counts=66\n")
     board.power_cycle()
-    assert threshold(board, 0) == 41 and threshold(board, 2) == 100
+    assert threshold(board, 0) == 41 and threshold(board, 2) == 30
 
 
 def test_a_flash_file_carries_kept_settings_to_the_next_board(tmp_path):
@@ -69,7 +69,7 @@ def test_a_flash_file_carries_kept_settings_to_the_next_board(tmp_path):
     second = SimBoard("greenhouse", flash=Flash(image))
     assert "touch_debounce_frames=7" in answers(second, b"get 3\n")[0]
     image.write_text("{ not json")  # an unreadable image reads as erased, as a board's would
-    assert "touch_debounce_frames=3" in answers(SimBoard("greenhouse", flash=Flash(image)), b"get 3\n")[0]
+    assert "touch_debounce_frames=2" in answers(SimBoard("greenhouse", flash=Flash(image)), b"get 3\n")[0]
 
 
 def test_a_keep_that_cannot_be_stored_is_refused_with_the_reason(tmp_path):
@@ -84,3 +84,10 @@ def test_a_keep_that_cannot_be_stored_is_refused_with_the_reason(tmp_path):
     finally:
         os.chmod(folder, 0o700)
     assert got[0].startswith(">no keep: flash write failed: ")
+
+
+def test_the_sim_factory_settings_are_the_demo_profile_s():
+    from devices.board_settings import SIM_FACTORY
+    from tui.demo_profile import DEMO_SETTINGS
+
+    assert {k: getattr(DEMO_SETTINGS, k) for k in SIM_FACTORY} == SIM_FACTORY

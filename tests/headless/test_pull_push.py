@@ -27,8 +27,8 @@ def test_pull_then_push_with_keep_then_pull_again_across_processes(tmp_path):
     assert r.returncode == 0, r.stderr
     assert r.stdout.strip() == f"wrote {first}: 9 channels from greenhouse" and r.stderr == ""
     pulled = load_profile(first)
-    assert pulled.names[0] == "zone1" and pulled.defaults.threshold_counts == 100  # the factory settings
-    text = first.read_text().replace("threshold_counts = 100", "threshold_counts = 44")
+    assert pulled.names[0] == "zone1" and pulled.defaults.threshold_counts == 30  # the factory settings
+    text = first.read_text().replace("threshold_counts = 30", "threshold_counts = 44")
     text += '\n[channel.stop]\nthreshold_counts = 70\nhysteresis_counts = 9\n'
     tuned = tmp_path / "tuned.toml"
     tuned.write_text(text)
@@ -94,7 +94,7 @@ def test_push_and_pull_through_a_sim_served_on_a_pseudo_terminal(tmp_path):
         profile = tmp_path / "pump.toml"
         r = padtune("pull", str(link), "-o", str(profile))
         assert r.returncode == 0, r.stdout + r.stderr
-        text = profile.read_text().replace("touch_debounce_frames = 3", "touch_debounce_frames = 5")
+        text = profile.read_text().replace("touch_debounce_frames = 2", "touch_debounce_frames = 5")
         profile.write_text(text)
         r = padtune("push", str(profile), str(link), "--keep")
         assert r.returncode == 0, r.stdout + r.stderr
