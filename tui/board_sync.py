@@ -167,7 +167,8 @@ class BoardSync:
         if not result.applied:
             which = ", ".join(names[c] if c < len(names) else f"ch{c}" for c in sent.channels) or ALL
             verb = "refused" if status == REFUSED else "did not answer"
-            line = f"✗ board {verb} {which}: {' '.join(sent.keys)}: {result.reason}"
+            named = any(result.reason.startswith(f"{k}:") for k in sent.keys)  # the board named the key
+            line = f"✗ board {verb} {which}: {'' if named else ' '.join(sent.keys) + ': '}{result.reason}"
             out.lines.append(line)
             out.refusals.append(line)
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+from pathlib import Path
 
 from devices.board_settings import Flash
 from devices.faults import FaultPlan
@@ -91,3 +92,23 @@ def test_the_sim_factory_settings_are_the_demo_profile_s():
     from tui.demo_profile import DEMO_SETTINGS
 
     assert {k: getattr(DEMO_SETTINGS, k) for k in SIM_FACTORY} == SIM_FACTORY
+
+
+def test_the_exchange_in_protocol_md_section_7_is_what_a_simulated_board_answers():
+    from devices.board_settings import BoardSettings
+    from protocol.commands import parse_command
+
+    text = (Path(__file__).resolve().parents[2] / "protocol" / "PROTOCOL.md").read_text()
+    start = text.index("**An exchange**")
+    block = [line[4:] for line in text[start:text.index("**The rules of a setting**")].splitlines()
+             if line.startswith("    ")]
+    assert block[0].startswith("! proto=1") and "settings=1" in block[0]
+    board = BoardSettings(channels=2, polarity=1)
+    expected: list[str] = []
+    got: list[str] = []
+    for line in block[1:]:
+        if line.startswith("host: "):
+            got += board.answer(parse_command(line[len("host: "):]))
+        else:
+            expected.append(line)
+    assert got == expected

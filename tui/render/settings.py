@@ -160,7 +160,7 @@ def _mark(text: Text, key: str, selected: bool, board: Mapping[str, str], styles
     if state is None or state not in BOARD_MARKS:
         return
     glyph, word, role = BOARD_MARKS[state]
-    text.append(f"{glyph}{' ' + word if selected else ''}", pick(styles, role))
+    text.append(f" {glyph} {word}" if selected else glyph, pick(styles, role))
 
 
 def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: str, styles: Styles,
