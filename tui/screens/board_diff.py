@@ -36,9 +36,10 @@ class BoardDiffScreen(ModalScreen[DiffChoice | None]):
 
     def compose(self) -> ComposeResult:
         found = self._found
-        lines = [d.line() for d in found[:SHOWN_LINES]]
-        if len(found) > SHOWN_LINES:
-            lines.append(f"… and {plural(len(found) - SHOWN_LINES, 'more difference')}")
+        shown = found if len(found) <= SHOWN_LINES + 1 else found[:SHOWN_LINES]  # "1 more" takes a line too
+        lines = [d.line() for d in shown]
+        if len(found) > len(shown):
+            lines.append(f"… and {plural(len(found) - len(shown), 'more difference')}")
         with Vertical(classes="dialog"):
             yield Static(f"{self._board} holds other settings than {self._profile} "
                          f"({plural(len(found), 'difference')}):", classes="dialog-question", markup=False)
