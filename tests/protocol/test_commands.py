@@ -165,3 +165,25 @@ def test_a_board_that_is_not_connected_fails_each_command_at_once():
     client.submit(b"keep")
     client.poll(0.0)
     assert len(client.cancel("closed")) == 0 and not client.busy
+
+
+def test_link_post_sends_from_the_writer_thread_and_the_answer_comes_back_as_an_event():
+    import time
+
+    import devices
+    from protocol.link import Link
+
+    devices.register_url_handlers()
+    link = Link("sim://greenhouse?settings=1")
+    link.start()
+    try:
+        assert link.post(b"get 2\n")
+        answers: list[Answer] = []
+        deadline = time.monotonic() + 30  # generous: a loaded machine
+        while time.monotonic() < deadline and not any(a.kind == "ok" for a in answers):
+            answers += [e for e in link.drain() if isinstance(e, Answer)]
+            time.sleep(0.01)
+        assert [(a.kind, a.text.split()[0]) for a in answers] == [("val", "2"), ("ok", "get")]
+    finally:
+        link.stop()
+    assert not link.post(b"keep\n") and "not connected" in link.last_error
