@@ -11,7 +11,7 @@ an answer that does not follow section 7); `Result.line` says it in one line.
 An answer belongs to the command on the wire when it names it (`>ok get 3` for `get 3`, `>no set *:
 ...` for `set *`, `>no get: unknown command` for any `get`); anything else (a late answer to a command
 that already timed out, a board's stray line) is counted in `strays` and never taken for another.
-`run_commands` is the blocking loop for the command line (`padtune pull`, `push`) over a `Link`.
+`run_commands` is the blocking loop for the command line (`padtune pull`, `push`).
 """
 
 from __future__ import annotations
@@ -20,7 +20,6 @@ import time
 from collections import deque
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
-from typing import Protocol
 
 from protocol.commands import CommandError, Reply, parse_command, parse_reply
 from protocol.events import Answer, Event
@@ -167,20 +166,15 @@ class CommandClient:
         return Result(pending.line, "failed", reason, values=pending.values, tag=pending.tag)
 
 
-class _Linkish(Protocol):
-    def drain(self, max_events: int | None = None) -> list[Event]: ...
-    def write(self, data: bytes) -> bool: ...
-
-
-def run_commands(link: _Linkish, lines: Sequence[bytes], timeout_s: float = DEFAULT_TIMEOUT_S,
-                 clock: Callable[[], float] = time.monotonic, on_event: Callable[[Event], None] | None = None,
+def run_commands(send: Callable[[bytes], bool], take_events: Callable[[], list[Event]],
+                 lines: Sequence[bytes], timeout_s: float = DEFAULT_TIMEOUT_S, clock: Callable[[], float] = time.monotonic,
                  step_s: float = 0.01) -> list[Result]:
-    """Send `lines` one after another over a started link and wait for each answer (or its timeout).
-
-    For the command line, which has no UI thread to keep free. Events that are not answers go to
-    `on_event` (or are dropped). Returns one Result per line, in order.
+    """Send `lines` one after another and wait for each answer (or its timeout): the blocking loop for
+    the command line, which has no UI thread to keep free. `take_events` returns what the link decoded
+    since the last call (a front end's one drain, `tui.pipeline.Pipeline.step`); `send` writes a line
+    (`Link.write`). Returns one Result per line, in order.
     """
-    client = CommandClient(link.write, timeout_s)
+    client = CommandClient(send, timeout_s)
     for line in lines:
         early = client.submit(line)
         if early is not None:
@@ -190,11 +184,7 @@ def run_commands(link: _Linkish, lines: Sequence[bytes], timeout_s: float = DEFA
         results += client.poll(clock())
         if not client.busy:
             return results
-        events = link.drain()
-        if on_event is not None:
-            for ev in events:
-                if not isinstance(ev, Answer):
-                    on_event(ev)
+        events = take_events()
         results += client.feed(events)
         if not events and client.busy:
             time.sleep(step_s)

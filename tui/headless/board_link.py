@@ -19,6 +19,7 @@ from protocol.errors import UserError
 from protocol.events import BoardInfo, LinkState, LinkStatus
 from protocol.link import Link
 from tui.headless.ports import open_link
+from tui.pipeline import Pipeline
 
 COMMAND_SET = "1"
 INFO_WAIT_S = 3.0
@@ -28,6 +29,7 @@ ANSWER_TIMEOUT_S = 2.0
 @dataclass
 class BoardLink:
     link: Link
+    pipeline: Pipeline  # the one place a front end drains the link (nothing detected here)
     info: BoardInfo
     port: str
 
@@ -36,26 +38,28 @@ class BoardLink:
         return self.info.board or self.port
 
     def run(self, lines: list[bytes]) -> list[Result]:
-        return run_commands(self.link, lines, ANSWER_TIMEOUT_S)
+        return run_commands(self.link.write, lambda: self.pipeline.step().events, lines, ANSWER_TIMEOUT_S)
 
 
 def connect(port: str, baud: int | None, wait_s: float = INFO_WAIT_S,
             clock: Callable[[], float] = time.monotonic) -> BoardLink:
     """Open `port` and wait (at most `wait_s`) for an info line that says `settings=1`."""
     link = open_link(port, baud, clock)
+    pipeline = Pipeline(link, clock=clock, source=port)
     try:
-        return BoardLink(link, _wait_for_settings(link, port, wait_s, clock), port)
+        return BoardLink(link, pipeline, _wait_for_settings(link, pipeline, port, wait_s, clock), port)
     except BaseException:
         link.stop()
         raise
 
 
-def _wait_for_settings(link: Link, port: str, wait_s: float, clock: Callable[[], float]) -> BoardInfo:
+def _wait_for_settings(link: Link, pipeline: Pipeline, port: str, wait_s: float,
+                       clock: Callable[[], float]) -> BoardInfo:
     deadline = clock() + wait_s
     asked = False
     infos_seen = 0
     while clock() < deadline:
-        for ev in link.drain():
+        for ev in pipeline.step().events:
             if isinstance(ev, BoardInfo):
                 infos_seen += 1
             elif isinstance(ev, LinkStatus) and ev.state is LinkState.DISCONNECTED:
