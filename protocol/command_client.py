@@ -167,8 +167,8 @@ class CommandClient:
 
 
 def run_commands(send: Callable[[bytes], bool], take_events: Callable[[], list[Event]],
-                 lines: Sequence[bytes], timeout_s: float = DEFAULT_TIMEOUT_S, clock: Callable[[], float] = time.monotonic,
-                 step_s: float = 0.01) -> list[Result]:
+                 lines: Sequence[bytes], timeout_s: float = DEFAULT_TIMEOUT_S,
+                 clock: Callable[[], float] = time.monotonic, step_s: float = 0.01) -> list[Result]:
     """Send `lines` one after another and wait for each answer (or its timeout): the blocking loop for
     the command line, which has no UI thread to keep free. `take_events` returns what the link decoded
     since the last call (a front end's one drain, `tui.pipeline.Pipeline.step`); `send` writes a line
