@@ -136,7 +136,7 @@ class BoardSync:
         elif not takes and self.active:
             self.active = False
             out.lines.append("ⓘ the board no longer takes settings commands: edits stay on this computer")
-        elif said is not None and not takes:
+        elif said is not None and not takes and info.new_session:  # once a session, not per `?`
             out.lines.append(f"ⓘ the board speaks settings command set {said}; this padtune speaks "
                              f"{COMMAND_SET}: edits stay on this computer")
 
