@@ -5,24 +5,29 @@ The port reads the bytes a `devices.simulator.SimBoard` has sent by now (paced b
 the speed factor) and writes go to the board as host commands (`?`, `+PAD`, `-PAD`; see README.md).
 
 URL: `sim://BOARD?seed=7&speed=4&fault=drop:0.01&fault=reset@5&checksum=1&script=1&random=20`
-(BOARD is a bundled board name, or `sim:///path/to/board.toml`). The board object itself is
+(BOARD is a bundled board name, or `sim:///path/to/board.toml`); `settings=0` makes a board that does
+not take PROTOCOL.md section 7's commands, `flash=PATH` keeps the board's kept settings in a file
+(so `keep` survives this process too). The board object itself is
 `port.board`, so Python callers can also `port.press("zone1")`.
 """
 
 from __future__ import annotations
 
 import math
+import os
 import threading
 import time
 import urllib.parse
 
 from serial.serialutil import PortNotOpenError, SerialBase, SerialException
 
+from devices.board_settings import Flash
 from devices.faults import FaultPlan
 from devices.simulator import SimBoard
 from protocol.errors import UserError
 
-OPTIONS = ("seed", "speed", "fault", "checksum", "script", "random", "backlog_s", "packet_ms")
+OPTIONS = ("seed", "speed", "fault", "checksum", "script", "random", "backlog_s", "packet_ms", "settings",
+           "flash")
 MAX_BACKLOG_S = 2.0  # a host that stops reading longer than this loses frames, as with a full OS buffer
 PACKET_S = 0.01  # frames are released in 10 ms packets, as a board's USB buffer would send them
 
@@ -62,6 +67,8 @@ def board_from_url(url: str) -> tuple[SimBoard, float, float]:
         checksum=_flag("checksum", one.get("checksum", "1")),
         script=_flag("script", one.get("script", "1")),
         random_per_min=_number("random", one["random"]) if "random" in one else None,
+        settings=_flag("settings", one.get("settings", "1")),
+        flash=flash_at(one["flash"]) if "flash" in one else None,
     )
     backlog_s = _number("backlog_s", one.get("backlog_s", str(MAX_BACKLOG_S)))
     if not 0.0 < backlog_s <= 3600.0:  # also refuses nan
@@ -70,6 +77,19 @@ def board_from_url(url: str) -> tuple[SimBoard, float, float]:
     if not 0.0 <= packet_s <= 1.0:
         raise UserError(f"sim:// option packet_ms={packet_s * 1e3:g}: use 0 to 1000 ms")
     return board, backlog_s, packet_s
+
+
+def flash_at(path: str) -> Flash:
+    """The board's non-volatile memory in a file (created by the first `keep`)."""
+    if not path:
+        raise UserError("sim:// option flash=: give a file path for the board's kept settings")
+    target = os.path.expanduser(path)
+    if os.path.exists(target) and not os.path.isfile(target):
+        raise UserError(f"sim:// option flash={path}: not a regular file")
+    folder = os.path.dirname(os.path.abspath(target))
+    if not os.path.isdir(folder):
+        raise UserError(f"sim:// option flash={path}: the folder {folder} does not exist")
+    return Flash(target)
 
 
 class Serial(SerialBase):

@@ -6,6 +6,8 @@ format). Frames are generated in numpy blocks, so a 64-channel board at 1 kHz co
 
 Host commands (one per line, see devices/README.md): `?` sends the info line again; `+NAME` presses
 the key NAME (or a channel number), `+NAME=0.7` presses it lightly; `-NAME` releases it; `-*` releases all.
+With `settings=True` (the default) the board also takes section 7's `get`, `set` and `keep`
+(`devices.board_settings`) and says `settings=1` in its info line.
 """
 
 from __future__ import annotations
@@ -17,12 +19,14 @@ from collections.abc import Callable
 
 import numpy as np
 
+from devices.board_settings import BoardSettings, Flash
 from devices.boards import MAX_LINE_BYTES, frame_line_bytes, load_board
 from devices.faults import FaultPlan, Injected
 from devices.model import BoardModel, UnitFaults
 from devices.spec import MAX_RANDOM_PER_MIN, BoardSpec
 from devices.touches import Contact, TouchPlan
 from protocol import encoder
+from protocol.commands import parse_command
 from protocol.errors import UserError
 
 SEQ_MODULO = 65536
@@ -38,7 +42,8 @@ class SimBoard:
 
     def __init__(self, spec: BoardSpec | str, seed: int = 0, speed: float = 1.0,
                  faults: FaultPlan | None = None, clock: Callable[[], float] = time.monotonic,
-                 checksum: bool = True, script: bool = True, random_per_min: float | None = None) -> None:
+                 checksum: bool = True, script: bool = True, random_per_min: float | None = None,
+                 settings: bool = True, flash: Flash | None = None) -> None:
         self.spec = load_board(spec) if isinstance(spec, str) else spec
         _check_run_options(seed, speed, random_per_min)
         self.seed, self.speed, self.clock, self.checksum = seed, speed, clock, checksum
@@ -61,6 +66,10 @@ class SimBoard:
                 raise UserError(f"fault width:{width}: frames that wide would not fit in one protocol line; "
                                 "use a smaller width")
         self._events = self._timeline()
+        # Section 7: settings in force and kept (None: a board that does not take the commands).
+        self.settings: BoardSettings | None = None
+        if settings:
+            self.settings = BoardSettings(self._width, self.spec.method.polarity, flash)
         self._t0 = clock()
         self._emit_boot()
 
@@ -102,9 +111,12 @@ class SimBoard:
         names = self.spec.names[: self._width]
         names += tuple(f"ch{i}" for i in range(len(names), self._width))
         lead: dict[str, object] = {"proto": 1} if announce else {}
-        return {**lead, "board": self.spec.name, "channels": self._width,
-                "rate": f"{self.spec.rate_hz:g}", "names": ",".join(names), "method": self.spec.method.kind,
-                "polarity": "+" if self.spec.method.polarity > 0 else "-", "fw": self.spec.fw}
+        out = {**lead, "board": self.spec.name, "channels": self._width,
+               "rate": f"{self.spec.rate_hz:g}", "names": ",".join(names), "method": self.spec.method.kind,
+               "polarity": "+" if self.spec.method.polarity > 0 else "-", "fw": self.spec.fw}
+        if self.settings is not None:
+            out["settings"] = 1  # takes PROTOCOL.md section 7's commands
+        return out
 
     def info_line(self, announce: bool = True) -> bytes:
         return encoder.encode_info(self.info_fields(announce), checksum=self.checksum)
@@ -201,10 +213,14 @@ class SimBoard:
             # resend the info line unless asked, so the host sees the sequence jump back (a reset).
             self.injected.resets += 1
             self._seq = 0
+            if self.settings is not None:
+                self.settings.power_up()  # RAM is lost: the kept settings (or the factory's) again
             self._note(f"{self.spec.name} restarted (watchdog), fw {self.spec.fw}")
         elif kind == "width":
             self.injected.width_changes += 1
             self._width = int(value)
+            if self.settings is not None:
+                self.settings.resize(self._width)
         else:  # a stall: the board measures and sends nothing for a while
             self.injected.stalls += 1
             skipped = round(value * self.spec.rate_hz)
@@ -262,6 +278,14 @@ class SimBoard:
         if text == "?":
             self._emit_info(announce=False)
             return
+        word = text.split()[0]
+        if self.settings is not None and word in ("get", "set", "keep"):
+            command = parse_command(text)
+            assert command is not None
+            for line in self.settings.answer(command):
+                self._pending += encoder.encode_answer(line, checksum=self.checksum)
+            self.injected.extra["answers"] = self.injected.extra.get("answers", 0) + 1
+            return
         if text in ("script off", "script on"):
             # The demo's guided capture asks the panel to keep still: no scripted or random touches.
             now = max(self.generated_s, min(self.sim_time_s, self.generated_s + 1.0 / self.spec.rate_hz))
@@ -285,8 +309,22 @@ class SimBoard:
             except (UserError, ValueError) as exc:
                 self._note(f"error: {_clip(text)!r}: {exc}")
             return
+        if self.settings is not None:  # section 7: every command gets one final answer
+            shown = "".join(c if c.isascii() and c.isprintable() else "?" for c in word[:16])
+            self._pending += encoder.encode_answer(f">no {shown}: unknown command", self.checksum)
+            return
         self._note(f"error: unknown command {_clip(text)!r}; commands: ?, +PAD, +PAD=STRENGTH, -PAD, "
                    "-* (lift all), script off, script on")
+
+    def power_cycle(self) -> None:
+        """Switch the board off and on: settings in force are lost (the kept ones come back), the
+        sequence starts at 0 and the board greets and announces itself again."""
+        self._seq = 0
+        self._width = self.spec.channels
+        if self.settings is not None:
+            self.settings.resize(self._width)
+            self.settings.power_up()
+        self._emit_boot()
 
     def press(self, channel: str | int, pressed: bool = True, strength: float = 1.0) -> None:
         """Put a finger on a pad (or lift it) from the next frame on."""

@@ -60,6 +60,7 @@ from processing.recording_read import (
 )
 from protocol.errors import UserError
 from protocol.events import (
+    Answer,
     BoardChanged,
     BoardInfo,
     Event,
@@ -233,6 +234,8 @@ class RecordingWriter:
         for event in events:
             if isinstance(event, FrameBlock):
                 self._write_block(event)
+            elif isinstance(event, Answer):
+                continue  # command traffic (PROTOCOL.md section 7), not the board's measurements
             else:
                 if isinstance(event, BoardInfo) and event.names and not self._header_written:
                     self._names, self._names_from_info = event.names, True

@@ -9,11 +9,14 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, fields
 
-MAX_COUNTS = 1 << 24  # readings and thresholds are assumed to fit comfortably in 32 bits
-MAX_DEBOUNCE_FRAMES = 255
-MAX_SHIFT = 16
-MAX_PERIOD_FRAMES = 256  # must stay <= 2**FRAC_BITS so the period mean is exact
-MAX_STUCK_FRAMES = (1 << 31) - 1
+from protocol import commands as wire
+from protocol.commands import (  # noqa: F401  (re-exported: the ranges live in protocol/commands.py)
+    MAX_COUNTS,
+    MAX_DEBOUNCE_FRAMES,
+    MAX_PERIOD_FRAMES,
+    MAX_SHIFT,
+    MAX_STUCK_FRAMES,
+)
 
 
 @dataclass(frozen=True, slots=True)
@@ -27,14 +30,14 @@ class ChannelSettings:
     `stuck_timeout_frames` releases and re-baselines a key held that long (0 = never).
     """
 
-    threshold_counts: int = 100
-    hysteresis_counts: int = 15
-    touch_debounce_frames: int = 3
-    release_debounce_frames: int = 3
-    baseline_slow_shift: int = 6
-    baseline_fast_shift: int = 2
-    baseline_period_frames: int = 16
-    stuck_timeout_frames: int = 0
+    threshold_counts: int = wire.DEFAULTS["threshold_counts"]
+    hysteresis_counts: int = wire.DEFAULTS["hysteresis_counts"]
+    touch_debounce_frames: int = wire.DEFAULTS["touch_debounce_frames"]
+    release_debounce_frames: int = wire.DEFAULTS["release_debounce_frames"]
+    baseline_slow_shift: int = wire.DEFAULTS["baseline_slow_shift"]
+    baseline_fast_shift: int = wire.DEFAULTS["baseline_fast_shift"]
+    baseline_period_frames: int = wire.DEFAULTS["baseline_period_frames"]
+    stuck_timeout_frames: int = wire.DEFAULTS["stuck_timeout_frames"]
 
     @property
     def release_level_counts(self) -> int:
@@ -45,42 +48,9 @@ class ChannelSettings:
         return self.baseline_period_frames.bit_length() - 1
 
     def problems(self) -> list[tuple[str, str]]:
-        out: list[tuple[str, str]] = []
-        for f in fields(self):
-            value = getattr(self, f.name)
-            if not isinstance(value, int) or isinstance(value, bool):
-                out.append((f.name, f"must be a whole number, not {value!r}"))
-        if out:
-            return out
-        if not 1 <= self.threshold_counts <= MAX_COUNTS:
-            out.append(("threshold_counts",
-                        f"must be between 1 and {MAX_COUNTS}, not {self.threshold_counts}"))
-        if self.hysteresis_counts < 0:
-            out.append(("hysteresis_counts", f"must not be negative ({self.hysteresis_counts})"))
-        elif self.hysteresis_counts >= self.threshold_counts:
-            out.append(("hysteresis_counts", f"{self.hysteresis_counts} must be below the threshold "
-                        f"({self.threshold_counts}), or the key could never release"))
-        for key in ("touch_debounce_frames", "release_debounce_frames"):
-            value = getattr(self, key)
-            if not 1 <= value <= MAX_DEBOUNCE_FRAMES:
-                out.append((key, f"must be between 1 (react on the first frame) and {MAX_DEBOUNCE_FRAMES}, "
-                            f"not {value}"))
-        for key in ("baseline_slow_shift", "baseline_fast_shift"):
-            value = getattr(self, key)
-            if not 0 <= value <= MAX_SHIFT:
-                out.append((key, f"must be between 0 and {MAX_SHIFT}, not {value}"))
-        if self.baseline_fast_shift > self.baseline_slow_shift:
-            out.append(("baseline_fast_shift",
-                        f"{self.baseline_fast_shift} is slower than baseline_slow_shift "
-                        f"({self.baseline_slow_shift}); the baseline must recover faster than it drifts"))
-        p = self.baseline_period_frames
-        if not 1 <= p <= MAX_PERIOD_FRAMES or p & (p - 1):
-            out.append(("baseline_period_frames",
-                        f"must be a power of two from 1 to {MAX_PERIOD_FRAMES}, not {p}"))
-        if not 0 <= self.stuck_timeout_frames <= MAX_STUCK_FRAMES:
-            out.append(("stuck_timeout_frames", f"must be 0 (never) or a positive frame count, "
-                        f"not {self.stuck_timeout_frames}"))
-        return out
+        """Every problem as (key, message): the wire's rules (`protocol.commands.settings_problems`), so a
+        profile, the engine and a board refuse exactly the same values with the same words."""
+        return wire.settings_problems({f.name: getattr(self, f.name) for f in fields(self)})
 
     def check(self) -> None:
         """Raise ValueError naming the first problem (the engine calls this; profiles report all)."""
@@ -91,6 +61,8 @@ class ChannelSettings:
 
 
 SETTING_KEYS: tuple[str, ...] = tuple(f.name for f in fields(ChannelSettings))
+if SETTING_KEYS != wire.SETTING_KEYS:  # the profile's keys are the wire's (PROTOCOL.md section 7)
+    raise ImportError("processing.settings and protocol.commands disagree on the setting keys")
 
 
 def is_positive_number(value: object) -> bool:

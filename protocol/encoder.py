@@ -17,7 +17,8 @@ from protocol.framing import MAX_LINE_BYTES
 from protocol.rules import INT32_MAX, INT32_MIN, SEQ_MODULUS
 
 REQUEST_INFO = b"?\n"  # host to board: please send your info line again
-__all__ = ["MAX_LINE_BYTES", "REQUEST_INFO", "encode_frame", "encode_frames", "encode_info", "encode_note"]
+__all__ = ["MAX_LINE_BYTES", "REQUEST_INFO", "encode_answer", "encode_frame", "encode_frames", "encode_info",
+           "encode_note"]
 
 
 def _finish(body: bytes, checksum: bool) -> bytes:
@@ -117,3 +118,11 @@ def encode_note(text: str, checksum: bool = True) -> bytes:
     if not checksum and split_checksum(body)[1] is not None:
         raise ValueError("an unchecksummed note must not end in '*' and four hex digits")
     return _finish(body, checksum)
+
+
+def encode_answer(text: str, checksum: bool = True) -> bytes:
+    """One answer line of section 7 (`>val ...`, `>ok ...`, `>no ...`: `protocol.commands` writes the
+    text), as printable ASCII, optionally checksummed."""
+    if not text.startswith(">") or not text.isascii() or not text.isprintable():
+        raise ValueError(f"not a printable answer line: {text[:40]!r}")
+    return _finish(text.encode("ascii"), checksum)

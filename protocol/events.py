@@ -156,7 +156,22 @@ class LinkStatus:
     detail: str = ""
 
 
-Event = FrameBlock | BoardInfo | StreamForm | Note | LinkFault | BoardChanged | LinkStatus
+@dataclass(frozen=True, slots=True)
+class Answer:
+    """A board's answer to a host command (PROTOCOL.md section 7): `>val ...`, `>ok ...` or `>no ...`.
+
+    `kind` is `val`, `ok` or `no`; `text` is the rest of the line after the kind and one space (its
+    checksum removed). `protocol.commands.parse_reply(kind, text)` reads it. Never a frame, never a
+    session start, never garbage: the command client (`protocol.command_client`) matches it to its
+    command.
+    """
+
+    t_s: float
+    kind: str
+    text: str
+
+
+Event = FrameBlock | BoardInfo | StreamForm | Note | LinkFault | BoardChanged | LinkStatus | Answer
 
 
 @dataclass(slots=True)

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import logging
 import os
+import queue
 import threading
 import time
 from collections.abc import Callable
@@ -71,6 +72,8 @@ class Link:
         self._buffer = EventBuffer(max_queued_frames, max_queued_events)
         self._lock = threading.Lock()  # decoder and statistics
         self._write_lock = threading.Lock()
+        self._outbox: queue.SimpleQueue[bytes | None] = queue.SimpleQueue()
+        self._writer: threading.Thread | None = None
         self._stop = threading.Event()
         self._thread: threading.Thread | None = None
         self._serial: serial.SerialBase | None = None
@@ -157,6 +160,9 @@ class Link:
                 log.debug("cancel_read on %s: %s", self.port, exc)
         if self._thread is not None and self._thread is not threading.current_thread():
             self._thread.join(timeout_s)
+        if self._writer is not None:
+            self._outbox.put(None)
+            self._writer.join(timeout_s)
         self._close()
         if self._state is not LinkState.CLOSED:
             self._state = LinkState.CLOSED
@@ -187,6 +193,29 @@ class Link:
                 self.last_error = f"write to {self.port} failed: {exc}"
                 log.info("%s", self.last_error)
                 return False
+
+    def post(self, data: bytes) -> bool:
+        """Send bytes from the link's writer thread, never waiting for the port: for a UI thread.
+
+        False (reason in `last_error`) when the port is not open now; a write that fails later is
+        logged and kept in `last_error` (a command sent so gets no answer and times out).
+        """
+        if self._serial is None or self._stop.is_set():
+            self.last_error = f"{self.port} is not connected"
+            return False
+        if self._writer is None:
+            self._writer = threading.Thread(target=self._write_loop, name=f"padtune-writer {self.port}",
+                                            daemon=True)
+            self._writer.start()
+        self._outbox.put(data)
+        return True
+
+    def _write_loop(self) -> None:
+        while True:
+            data = self._outbox.get()
+            if data is None:
+                return
+            self.write(data)
 
     def request_info(self) -> bool:
         """Ask the board to send its info line again (`?`); boards may ignore it."""

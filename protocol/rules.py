@@ -15,8 +15,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from protocol.commands import ANSWER_KINDS
 from protocol.crc import crc16_ccitt_false, split_checksum
 from protocol.events import (
+    Answer,
     BoardChanged,
     BoardInfo,
     Event,
@@ -49,6 +51,7 @@ INT32_MIN, INT32_MAX = -(2**31), 2**31 - 1
 HOLD_MAX_LINES = 64
 _BLANK = b" \t"
 _SEPARATORS = b" \t,"
+_PRINTABLE = bytes([9, *range(32, 127)])  # what an answer line may hold (deleted by translate)
 
 
 def preview(line: bytes, limit: int = 40) -> str:
@@ -259,6 +262,9 @@ class LineRules:
 
     def line(self, line: bytes) -> None:
         """Apply every rule to one line (its line end removed)."""
+        if line[:1] == b">" and len(line) <= self.max_line_bytes:
+            self._answer(line)  # never held: a command's answer must not wait for a plain form
+            return
         if self._hold is not None:
             self._hold_line(line)
             return
@@ -312,6 +318,23 @@ class LineRules:
             self.bad_checksum(line, "no checksum after checksummed lines")
             return
         self._plain(line, plain)
+
+    def _answer(self, line: bytes) -> None:
+        """An answer line (`>val`, `>ok`, `>no`, section 7): its own event, checked like any line;
+        never a frame, never a session start. Another word after `>` is garbled."""
+        body, given = split_checksum(line)
+        if given is not None:
+            if crc16_ccitt_false(body) != given:
+                self.bad_checksum(line, "checksum mismatch")
+                return
+            self.strict = True
+        kind, _, text = body[1:].partition(b" ")
+        if body.translate(None, _PRINTABLE) or kind.decode("ascii") not in ANSWER_KINDS:
+            self.garbled(line, "not an answer line (>val, >ok or >no)")
+            return
+        extra = self.stats.extra
+        extra["answers"] = extra.get("answers", 0) + 1
+        self._emit(Answer(t_s=self._t_s, kind=kind.decode("ascii"), text=text.strip(_BLANK).decode("ascii")))
 
     def _info_line(self, line: bytes, text: bytes, checked: bool) -> None:
         try:

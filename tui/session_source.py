@@ -15,10 +15,12 @@ import math
 import time
 from collections import deque
 from collections.abc import Callable, Sequence
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 
+from processing.board_settings import BoardValues, Difference, differences
 from processing.detections import KeyState
 from processing.fixed import FRAC_BITS, tdiv_pow2_np
 from processing.measure import ChannelQuality
@@ -37,6 +39,7 @@ from protocol.events import (
     StreamForm,
 )
 from protocol.linkwatch import SILENT_AFTER_S
+from tui.board_sync import BoardSync
 from tui.pipeline import Pipeline, Producer
 from tui.render.views import ChannelView, GroupView, LinkView, Series, SliderView, Spectrum
 from tui.source import FileJob, Tick
@@ -78,6 +81,11 @@ class SessionSource:
         self._last_frame_t_s: float = clock()
         self._silent_bytes: int | None = None
         self.exit_problems: list[str] = []
+        # Settings travel to a board that says settings=1 (tui/board_sync.py); its values once read.
+        self.board_sync = BoardSync(self._send, self.channel_names)
+        self._board_read: BoardValues | None = None
+        self._profile_given = profile is not None  # else the board's own settings are the start
+        self.board_values: BoardValues | None = None
 
     # -- data in ----------------------------------------------------------------------------------
     @property
@@ -106,6 +114,7 @@ class SessionSource:
                     self._scale = 1  # a restarted board's form is recognised again
         if self._saved is None and self.session.profile is not None:
             self._saved = self.session.profile  # the defaults the board came up with: nothing to save yet
+        self._board_step(step.events, tick)
         tick.errors.extend(f"recording stopped: {reason}" for reason in step.recording_errors)
         now = self.clock()
         if tick.frames:
@@ -261,12 +270,84 @@ class SessionSource:
         m = self.session.measures
         return None if m is None else m.noise_spectrum(channel)
 
+    # -- settings travel --------------------------------------------------------------------------
+    def _send(self, data: bytes) -> bool:
+        """A command line out through the link's writer thread (`Link.post`) where it has one."""
+        post = getattr(self.producer, "post", None)
+        sent = post(data) if post is not None else self.producer.write(data)
+        return sent is not False
+
+    def _board_step(self, events: list, tick: Tick) -> None:
+        sync = self.board_sync.step(events, self.clock())
+        tick.board_lines.extend(sync.lines)
+        tick.board_refusals.extend(sync.refusals)
+        if sync.board is not None:
+            self._board_read = sync.board
+        read, profile = self._board_read, self.session.profile
+        if read is None or profile is None or self.session.engine is None:
+            return  # compared once the session has its channels
+        self._board_read = None
+        self.board_values = read
+        if len(read) != profile.channels:
+            tick.board_lines.append(f"✗ the board sent settings for {len(read)} channels; the session has "
+                                    f"{profile.channels}: nothing taken")
+            return
+        found = self.board_differences()
+        if not found:
+            tick.board_lines.append("✓ the board holds the session's settings")
+        elif not self._profile_given:
+            # No profile loaded: what the board runs is the starting point, not a guess of ours.
+            self.take_board_settings()
+            self._saved = self.session.profile
+            tick.board_lines.append(f"⇄ took the board's settings ({len(found)} differed from the defaults; "
+                                    "no profile loaded)")
+        else:
+            tick.board_diff = found
+
+    def board_differences(self) -> list[Difference]:
+        """Where the board's settings (as last read) and the session's differ, one line each."""
+        profile = self.session.profile
+        if profile is None or self.board_values is None:
+            return []
+        values = self.board_values
+        # A channel still learning its polarity has none to compare: the board's stands.
+        stated = tuple(p if p is not None else (values[c].polarity if c in values else 1)
+                       for c, p in ((c, self.polarity(c)) for c in range(profile.channels)))
+        return differences(replace(profile, polarity=stated), values)
+
+    def board_status(self, channel: int) -> tuple[tuple[str, str], ...]:
+        """(setting, applied / refused / sending / no answer) of what the board was sent for `channel`."""
+        return self.board_sync.channel_status(channel)
+
+    def take_board_settings(self) -> None:
+        """The session takes the settings the board holds (nothing is sent: the board has them)."""
+        values = self.board_values
+        if values is None:
+            return
+        with self.board_sync.quietly():
+            for c, held in sorted(values.items()):
+                if c >= len(self.session.names):
+                    continue
+                if self.session.settings(c) != held.settings:
+                    self.session.set_channel_settings(c, held.settings)
+                if self.polarity(c) != held.polarity:
+                    self.session.set_polarity(c, held.polarity)
+        self.board_sync.mark_board_values(values)
+
+    def send_profile_settings(self) -> None:
+        """Send the session's settings (the profile's, with its edits) to the board, every channel."""
+        n = len(self.session.names)
+        self.board_sync.send_all([self.session.settings(c) for c in range(n)],
+                                 [self.polarity(c) for c in range(n)])
+
     # -- settings ---------------------------------------------------------------------------------
     def settings(self, channel: int) -> ChannelSettings:
         return self.session.settings(channel)
 
     def apply(self, channel: int, settings: ChannelSettings) -> None:
+        old = self.session.settings(channel)
         self.session.set_channel_settings(channel, settings)
+        self.board_sync.settings_changed(channel, old, settings)
 
     def polarity(self, channel: int) -> int | None:
         """+1 (counts rise on touch), -1 (fall), or None while the channel learns it."""
@@ -276,6 +357,7 @@ class SessionSource:
     def set_polarity(self, channel: int, sign: int | None) -> None:
         """Set a channel's direction (None: learn it again from its next touch); ValueError if refused."""
         self.session.set_polarity(channel, sign)
+        self.board_sync.polarity_changed(channel, sign)
 
     def first_contact(self, channel: int) -> tuple[bool, str]:
         """(provisional, phase) of a channel: see `processing.session.ChannelRow`."""
@@ -354,6 +436,9 @@ class SessionSource:
         profile = load_profile(path)
         self.session.apply_profile(profile)
         self._path, self._saved = path, self.session.profile
+        self._profile_given = True
+        if self.board_sync.active:
+            self.board_sync.read()  # a new profile: compare it with what the board holds
 
     def export(self, path: Path) -> Path:
         self.export_job(path).write()

@@ -30,6 +30,11 @@ class Tick:
     blocks: list[FrameBlock] = field(default_factory=list)  # for screens that watch raw frames (capture)
     frames: int = 0
     errors: list[str] = field(default_factory=list)  # one line each, for the log and a notification
+    # Settings travel (tui/board_sync.py): log lines, refusals to notify, and the differences between
+    # the board's settings and the profile once they were read (None: nothing to ask about).
+    board_lines: list[str] = field(default_factory=list)
+    board_refusals: list[str] = field(default_factory=list)
+    board_diff: list | None = None
 
 
 @dataclass(frozen=True, slots=True)

@@ -7,7 +7,7 @@ from devices.faults import FaultPlan
 from devices.simulator import SimBoard
 from protocol.decoder import Decoder
 from protocol.errors import UserError
-from protocol.events import BoardInfo, FrameBlock, Note
+from protocol.events import Answer, BoardInfo, FrameBlock, Note
 
 
 class FakeClock:
@@ -117,9 +117,17 @@ def test_bad_commands_become_board_notes_not_crashes():
     board = SimBoard("greenhouse", seed=2)
     board.take()
     board.write(b"+nosuchpad\nhello\n+zone1=9\n")
-    notes = [e.text for e in decode(board.take())[1] if isinstance(e, Note)]
-    assert len(notes) == 3 and all(n.startswith("error:") for n in notes)
+    events = decode(board.take())[1]
+    notes = [e.text for e in events if isinstance(e, Note)]
+    assert len(notes) == 2 and all(n.startswith("error:") for n in notes)
     assert "no pad 'nosuchpad'" in notes[0]
+    # A board that takes section 7's commands answers an unknown word with a refusal, not a note.
+    assert [(e.kind, e.text) for e in events if isinstance(e, Answer)] == [("no", "hello: unknown command")]
+    old = SimBoard("greenhouse", seed=2, settings=False)
+    old.take()
+    old.write(b"hello\n")
+    note = next(e.text for e in decode(old.take())[1] if isinstance(e, Note))
+    assert note.startswith("error: unknown command")
     with pytest.raises(UserError):
         board.press("zone9")
 
@@ -254,7 +262,10 @@ def test_long_host_lines_are_answered_in_one_protocol_line():
     board.write(b"+" + b"x" * 3000 + b"\n" + b"hello" * 600 + b"\n")
     d, events, _ = decode(board.take() + board.run_for(0.5))
     notes = [e.text for e in events if isinstance(e, Note)]
-    assert len(notes) == 2 and all(n.startswith("error:") and len(n) < 500 for n in notes)
+    assert len(notes) == 1 and all(n.startswith("error:") and len(n) < 500 for n in notes)
+    # the unknown word is refused in one short answer (section 7 quotes at most 16 characters of it)
+    assert [(e.kind, e.text) for e in events if isinstance(e, Answer)] == [
+        ("no", "hellohellohelloh: unknown command")]
     assert d.stats.overlong == d.stats.garbled == 0 and d.stats.frames > 20
 
 

@@ -62,6 +62,21 @@ _info = st.sampled_from([
     b"! proto=1",
     b"!",
 ])
+# Answer lines of section 7 (and lines that only look like them): their own events on both paths.
+_answers = st.sampled_from([
+    b">val 0 threshold_counts=30 hysteresis_counts=8 touch_debounce_frames=2 "
+    b"release_debounce_frames=2 baseline_slow_shift=6 baseline_fast_shift=2 baseline_period_frames=16 "
+    b"stuck_timeout_frames=0 polarity=+",
+    b">ok get 0",
+    b">ok set 1 threshold_counts=40",
+    b">no set 1: hysteresis_counts: 50 must be below the threshold (40)",
+    b">ok keep",
+    b">no frob: unknown command",
+    b">ok keep*ABCD",
+    b">maybe",
+    b">",
+    b">no \xff",
+])
 _other = st.one_of(
     _info,
     st.just(b"# note"),
@@ -70,6 +85,7 @@ _other = st.one_of(
     st.binary(max_size=12),
     st.text(alphabet="0123456789 ,-@*\t\rABCDEFabcdef", max_size=20).map(str.encode),
     st.just(b"7 " * 4100),  # 8200 bytes: overlong
+    _answers,
 )
 
 

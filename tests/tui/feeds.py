@@ -80,16 +80,19 @@ class SimFeed:
     """A seeded simulated board decoded by the real decoder; `advance()` moves its clock forward.
 
     Frames are fed in steps of one screen frame (1/20 s by default) so arrival times look like a link's.
+    By default the board does not take settings commands (no settings=1: the screens of the tests
+    written before settings travelled); `settings=True` makes one that does (PROTOCOL.md section 7).
     """
 
     def __init__(self, board: str = "greenhouse", seed: int = 7, step_s: float = 0.05, script: bool = False,
-                 **sim_args: object) -> None:
+                 settings: bool = False, **sim_args: object) -> None:
         from devices.simulator import SimBoard
         from protocol.decoder import Decoder
 
         self.t_s = 0.0
         self.step_s = step_s
-        self.board = SimBoard(board, seed=seed, clock=lambda: self.t_s, script=script, **sim_args)
+        self.board = SimBoard(board, seed=seed, clock=lambda: self.t_s, script=script, settings=settings,
+                              **sim_args)
         self.decoder = Decoder()
         self.queue: list[Event] = []
         self._state = LinkState.CONNECTED

@@ -16,6 +16,7 @@ import time
 
 from devices.boards import list_boards, load_board
 from devices.faults import SYNTAX, FaultPlan
+from devices.protocol_sim import flash_at
 from devices.pty_server import PtyServer
 from devices.simulator import SimBoard
 from protocol.errors import UserError
@@ -36,6 +37,10 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--no-checksum", action="store_true", help="send lines without checksums")
     p.add_argument("--no-script", action="store_true", help="no scripted touches (only your key presses)")
     p.add_argument("--random", type=float, metavar="PER_MIN", help="random touches per minute")
+    p.add_argument("--flash", metavar="PATH", help="keep the board's kept settings (section 7's `keep`) in "
+                   "this file, so they survive this process too")
+    p.add_argument("--no-settings", action="store_true",
+                   help="a board that does not take settings commands (no settings=1 in its info line)")
     p.add_argument("--link", metavar="PATH", help="also make a symlink PATH to the device (removed on exit)")
     p.add_argument("--duration", type=float, metavar="S", help="stop after S seconds of wall time")
     p.set_defaults(func=run)
@@ -81,8 +86,10 @@ def run(args: argparse.Namespace) -> int:
         raise UserError("name a board to serve, e.g. `padtune sim greenhouse` (see `padtune sim --list`)")
     if args.duration is not None and not 0 < args.duration < math.inf:  # also refuses nan
         raise UserError(f"--duration must be a number of seconds above zero, got {args.duration:g}")
+    flash = flash_at(args.flash) if args.flash else None
     board = SimBoard(args.board, seed=args.seed, speed=args.speed, faults=FaultPlan.parse(args.fault),
-                     checksum=not args.no_checksum, script=not args.no_script, random_per_min=args.random)
+                     checksum=not args.no_checksum, script=not args.no_script, random_per_min=args.random,
+                     settings=not args.no_settings, flash=flash)
     server = PtyServer(board)
     if args.link:
         _make_link(server, args.link)

@@ -6,7 +6,7 @@ threshold, hysteresis and debounce from it): they read `--`, never the defaults 
 
 from __future__ import annotations
 
-from collections.abc import Collection
+from collections.abc import Collection, Mapping
 
 from rich.text import Text
 
@@ -16,6 +16,10 @@ from tui.render import Styles, pick
 from tui.words import unit_word, with_unit
 
 NOT_YET = "--"
+# What a board that takes settings did with a value it was sent (tui/board_sync.py): a glyph after the
+# value on every field, and glyph and word on the field under edit and in the bar's head.
+BOARD_MARKS = {"applied": ("✓", "on board", "applied"), "refused": ("✗", "refused", "refused"),
+               "sending": ("…", "sending", "dim"), "no answer": ("?", "no answer", "refused")}
 
 
 def settings_text(settings: ChannelSettings, selected_key: str | None, styles: Styles,
@@ -61,23 +65,30 @@ def _duration(seconds: float) -> str:
 
 def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: Styles, width: int,
              position: str = "", polarity: int | None = 1, status: str = "",
-             pending: Collection[str] = ()) -> Text:
+             pending: Collection[str] = (), board: Mapping[str, str] | None = None) -> Text:
     """One line: the selected channel and its settings in their groups, then its polarity, the field
     under edit marked `▸` and named in full with its unit. `status` ("provisional", "measuring noise")
     follows the name when the settings are not tuned yet; `pending` settings read `--`.
 
     Groups that do not fit in `width` give way, farthest from the one being edited first, and show as
     `…`: the bar never wraps and the field being edited is always on it.
+
+    `board` (a board that takes settings) maps each setting it was sent to `applied`, `refused`,
+    `sending` or `no answer`: a glyph follows that value, the field under edit says the word too, and
+    the head sums up the channel (`✗ 1 refused`, `✓ on board`).
     """
+    board = board or {}
     groups = _field_groups()
     chosen = next(i for i, g in enumerate(groups) if any(f.key == selected_key for f in g))
-    pieces = [_group_pieces(g, settings, selected_key, styles, polarity, pending) for g in groups]
+    pieces = [_group_pieces(g, settings, selected_key, styles, polarity, pending, board) for g in groups]
     head = Text(no_wrap=True, end="")
     head.append(f"{name} ", pick(styles, "header"))
     if position:
         head.append(f"{position} ", pick(styles, "dim"))
     if status:
         head.append(f"{status} ", pick(styles, "pending"))
+    if board:
+        head.append_text(_board_summary(board, styles))
     sep = Text("│ ", style=pick(styles, "dim"))
     shown = _fitting(chosen, [p.cell_len for p in pieces], width - head.cell_len, sep.cell_len)
     text = head
@@ -130,8 +141,32 @@ def _field_groups() -> list[list[Field]]:
     return [*groups, [POLARITY_FIELD]]
 
 
+def _board_summary(board: Mapping[str, str], styles: Styles) -> Text:
+    """The channel's settings on the board in a glyph and words: the worst news first."""
+    text = Text(no_wrap=True, end="")
+    for state in ("refused", "no answer", "sending"):
+        n = sum(1 for s in board.values() if s == state)
+        if n:
+            glyph, word, role = BOARD_MARKS[state]
+            text.append(f"{glyph} {n} {word} ", pick(styles, role))
+            return text
+    glyph, word, role = BOARD_MARKS["applied"]
+    text.append(f"{glyph} {word} ", pick(styles, role))
+    return text
+
+
+def _mark(text: Text, key: str, selected: bool, board: Mapping[str, str], styles: Styles) -> None:
+    state = board.get(key)
+    if state is None or state not in BOARD_MARKS:
+        return
+    glyph, word, role = BOARD_MARKS[state]
+    text.append(f" {glyph} {word}" if selected else glyph, pick(styles, role))
+
+
 def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: str, styles: Styles,
-                  polarity: int | None = 1, pending: Collection[str] = ()) -> Text:
+                  polarity: int | None = 1, pending: Collection[str] = (),
+                  board: Mapping[str, str] | None = None) -> Text:
+    board = board or {}
     text = Text(no_wrap=True, end="")
     if group[0].group:
         text.append(f"{group[0].group} ", pick(styles, "header"))
@@ -143,6 +178,7 @@ def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: s
             else:
                 text.append(f"{f.short} {shown}" + (" learning" if polarity is None else ""),
                             pick(styles, "pending" if polarity is None else "dim"))
+            _mark(text, f.key, f.key == selected_key, board, styles)
             text.append(" ")
             continue
         value = getattr(settings, f.key)
@@ -155,6 +191,7 @@ def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: s
         else:
             shown = "never" if f.key == "stuck_timeout_frames" and value == 0 else str(value)
             text.append(f"{f.short} {shown}", pick(styles, "dim"))
+        _mark(text, f.key, f.key == selected_key, board, styles)
         text.append(" ")
     return text
 

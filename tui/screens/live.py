@@ -38,6 +38,7 @@ from tui.files import FileQueue, ReplaceOnce, new_recording_path, writable_path
 from tui.log_feed import LogFeed
 from tui.pacing import FramePacer
 from tui.render.views import LinkView, Spectrum
+from tui.screens.board_diff import BoardDiffScreen
 from tui.screens.confirm import ConfirmScreen, QuitChoice, QuitScreen
 from tui.screens.prompt import PromptScreen
 from tui.source import FileJob, LiveSource, Tick
@@ -208,6 +209,33 @@ class LiveScreen(Screen[None]):
         for problem in tick.errors:  # a recording that could not be written (a full disk): say why
             self._log(f"✗ {problem}")
             self.say(problem, severity="error", timeout=10)
+        self._board_tick(tick)
+
+    # -- settings travel (a board that says settings=1; tui/board_sync.py) ------------------------
+    def _board_tick(self, tick: Tick) -> None:
+        for line in tick.board_lines:
+            self._log(line)
+        refusals = tick.board_refusals
+        if refusals:  # one notice a poll, however many channels a copy to all sent
+            more = f" (and {plural(len(refusals) - 1, 'more')})" if len(refusals) > 1 else ""
+            self.app.bell()
+            self.say(refusals[0].lstrip("✗ ") + more, severity="warning")
+        if tick.board_diff and not isinstance(self.app.screen, BoardDiffScreen):
+            board = self.source.link_view().board or "The board"
+            path = self.source.profile_path()
+            dialog = BoardDiffScreen(board, path.name if path else "the profile", tick.board_diff)
+            self.app.push_screen(dialog, self._board_choice)
+
+    def _board_choice(self, choice: str | None) -> None:
+        if choice == "board":
+            self.source.take_board_settings()  # type: ignore[attr-defined]
+            self._log("⇄ took the board's settings (save the profile to keep them)")
+        elif choice == "profile":
+            self.source.send_profile_settings()  # type: ignore[attr-defined]
+            self._log("⇄ sending the profile's settings to the board")
+        else:
+            self._log("ⓘ the board and the profile still differ; edits are sent as you make them")
+        self._after_change()
 
     def _link_view(self) -> LinkView:
         view = self.source.link_view()
@@ -234,9 +262,11 @@ class LiveScreen(Screen[None]):
             return
         ch = self.cursor
         status, pending = self._status(ch)
+        board_status = getattr(self.source, "board_status", None)
         self.edit_bar.view = EditBarView(names[ch], self.source.settings(ch), self.field_key,
                                          f"{ch + 1}/{len(names)}" if len(names) > 1 else "",
-                                         self.source.polarity(ch), status, pending)
+                                         self.source.polarity(ch), status, pending,
+                                         board_status(ch) if board_status is not None else ())
         if detail and self.detail:
             self._draw_detail()
 

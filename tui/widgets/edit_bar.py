@@ -15,7 +15,7 @@ from textual.widget import Widget
 from processing.settings import ChannelSettings
 from tui.render.settings import edit_bar
 
-ROLES = ("header", "cursor", "dim", "pending")
+ROLES = ("header", "cursor", "dim", "pending", "applied", "refused")
 
 
 @dataclass(frozen=True, slots=True)
@@ -27,6 +27,9 @@ class EditBarView:
     polarity: int | None = 1
     status: str = ""  # "provisional", "measuring noise", or "" when tuned
     pending: frozenset[str] = frozenset()  # settings not in force yet (shown as --)
+    # What a board that takes settings did with each one it was sent: (key, applied / refused /
+    # sending / no answer), empty for a board without settings=1 (the bar is then as before).
+    board: tuple[tuple[str, str], ...] = ()
 
 
 class EditBar(Widget):
@@ -40,4 +43,4 @@ class EditBar(Widget):
             return Text("waiting for the board to send its first frames…", no_wrap=True)
         styles = {r: self.get_component_rich_style(f"edit-bar--{r}", partial=True) for r in ROLES}
         return edit_bar(v.name, v.settings, v.field_key, styles, self.size.width, v.position, v.polarity,
-                        v.status, v.pending)
+                        v.status, v.pending, dict(v.board))
