@@ -4,7 +4,8 @@
 BoardInfo (names also from a plain form's StreamForm), re-baselines on a new session (an info line
 carrying `proto`) or a board reset, rebuilds for a new width on BoardChanged, runs groups and sliders,
 and keeps the measures. Live edits go through `set_channel_settings` and `set_polarity`; `profile`
-always reflects them, ready to save.
+always reflects them, ready to save. Frames that carry the board's own key states are compared with the
+engine's (`processing.twin`): reports go to `twin_reports` and, as a line, to `notices`.
 
 Before a channel detects it may have to go through its first contact (`processing.startup`): without
 a profile its threshold and hysteresis are provisional, from its noise over its first quiet second;
@@ -41,6 +42,7 @@ from processing.startup import (
     Transition,
     settings_for_engine,
 )
+from processing.twin import TwinCheck, TwinMismatch
 from protocol.events import (
     BoardChanged,
     BoardInfo,
@@ -89,7 +91,8 @@ def _slice(block: FrameBlock, a: int, b: int) -> FrameBlock:
     if a == 0 and b == len(block):
         return block
     bt = block.board_time[a:b] if block.board_time is not None else None
-    return FrameBlock(block.t_s[a:b], block.seq[a:b], block.readings[a:b], block.first_index + a, bt)
+    bs = block.board_states[a:b] if block.board_states is not None else None
+    return FrameBlock(block.t_s[a:b], block.seq[a:b], block.readings[a:b], block.first_index + a, bt, bs)
 
 
 def _joined(events: Iterable[Event]) -> Iterator[Event]:
@@ -117,15 +120,17 @@ def _joined(events: Iterable[Event]) -> Iterator[Event]:
 
 def _continues(a: FrameBlock, b: FrameBlock) -> bool:
     return b.first_index == a.first_index + len(a) and b.channels == a.channels and \
-        (a.board_time is None) == (b.board_time is None)
+        (a.board_time is None) == (b.board_time is None) and \
+        (a.board_states is None) == (b.board_states is None)
 
 
 def _concat(run: list[FrameBlock]) -> FrameBlock:
     if len(run) == 1:
         return run[0]
     bt = None if run[0].board_time is None else np.concatenate([b.board_time for b in run])
+    bs = None if run[0].board_states is None else np.concatenate([b.board_states for b in run])
     return FrameBlock(np.concatenate([b.t_s for b in run]), np.concatenate([b.seq for b in run]),
-                      np.concatenate([b.readings for b in run]), run[0].first_index, bt)
+                      np.concatenate([b.readings for b in run]), run[0].first_index, bt, bs)
 
 class Session(FirstContact):
     """Owns one board's engine, measures, groups and sliders. Not thread-safe: call from one thread.
@@ -159,6 +164,9 @@ class Session(FirstContact):
         self._clock = BoardClock()
         self._said: set[object] = set()  # notices given once per session
         self._measured: list[Measured] = []  # provisional settings taken in this handle() call
+        self.twin = TwinCheck()  # the board's own states against the engine's (frames with a state field)
+        self.twin_reports: deque[TwinMismatch] = deque(maxlen=200)  # for front ends to take, oldest first
+        self._twin_width = 0
 
     # ------------------------------------------------------------ state for front ends
     @property
@@ -218,6 +226,7 @@ class Session(FirstContact):
         if self.startup is not None and self.startup.settings_given(channel):
             self.engine.rebaseline(channel)
         self.engine.set_settings(channel, settings_for_engine(settings, self.phase(channel) == READY))
+        self.twin.rearm()  # padtune's settings changed under the board: a disagreement is news again
         self._profile = self._profile.with_settings(channel, settings)
         self._edited[width] = self._profile
 
@@ -232,6 +241,7 @@ class Session(FirstContact):
         if sign not in (1, -1):
             raise ValueError(f"polarity must be + or -, not {sign!r}")
         self._apply_polarity(channel, sign, EDITED)
+        self.twin.rearm()
         assert self._profile is not None
         self._edited[self.engine.channels] = self._profile
 
@@ -250,6 +260,7 @@ class Session(FirstContact):
     def rebaseline(self, channel: int | None = None) -> None:
         if self.engine is not None:
             self.engine.rebaseline(channel)
+            self.twin.rearm()
 
     def automatic(self, saved: Profile) -> Profile:
         """`saved` with what this session did by itself applied: the board's names, rate and polarity,
@@ -340,6 +351,8 @@ class Session(FirstContact):
         assert self.engine is not None and self.measures is not None
         found: list[DetectionEvent] = list(self.engine.process(block))
         deltas, states = self.engine.last_deltas, self.engine.last_states
+        if block.board_states is not None:
+            self._twin(block, states)
         self.measures.ingest(block.t_s, block.readings, deltas, states,
                              restart=self._new_zeros(block.first_index, found))
         for tracker in (*self.groups, *self.sliders):
@@ -347,6 +360,19 @@ class Session(FirstContact):
         if len(self.groups) + len(self.sliders):
             found.sort(key=lambda e: e.index)
         return found
+
+    def _twin(self, block: FrameBlock, states: np.ndarray) -> None:
+        """Compare the board's states with the engine's after each frame, on the keys that detect."""
+        assert block.board_states is not None
+        mask = None
+        if self.startup is not None:
+            mask = np.array([self.startup.phase[c] == READY for c in range(block.channels)])
+        names = self.names
+        for report in self.twin.compare(block.board_states, states, block.first_index, block.t_s,
+                                        self.rate_hz, mask):
+            self.twin_reports.append(report)
+            name = names[report.channel] if report.channel < len(names) else f"ch{report.channel}"
+            self.notices.append(report.describe(name))
 
     @staticmethod
     def _new_zeros(first_index: int, found: list[DetectionEvent]) -> dict[int, int]:
@@ -379,6 +405,7 @@ class Session(FirstContact):
         if line.new_session and self.engine is not None:
             self.notices.append("new session: baselines taken again")
             self.engine.rebaseline()
+            self.twin.rearm()
 
     def _form(self, form: StreamForm) -> None:
         """A plain form's names become channel names (an info line's win)."""
@@ -500,6 +527,10 @@ class Session(FirstContact):
             self.startup.rate_hz = self._clock.rate_hz
         self.groups = [ExclusiveGroup(g) for g in profile.groups]
         self.sliders = [Slider(s) for s in profile.sliders]
+        if channels != self._twin_width:  # another board (or the same one with another channel count)
+            self.twin.reset()
+            self._twin_width = channels
+        self.twin.rearm()
 
 
 def _channels(count: int) -> str:
