@@ -5,7 +5,8 @@ BoardInfo (names also from a plain form's StreamForm), re-baselines on a new ses
 carrying `proto`) or a board reset, rebuilds for a new width on BoardChanged, runs groups and sliders,
 and keeps the measures. Live edits go through `set_channel_settings` and `set_polarity`; `profile`
 always reflects them, ready to save. Frames that carry the board's own key states are compared with the
-engine's (`processing.twin`): reports go to `twin_reports` and, as a line, to `notices`.
+engine's (`processing.twin`): its reports (`TwinMismatch`) come out of `handle` among the detections, in
+frame order, so every front end gets them through its pipeline; `twin` has the running count.
 
 Before a channel detects it may have to go through its first contact (`processing.startup`): without
 a profile its threshold and hysteresis are provisional, from its noise over its first quiet second;
@@ -165,7 +166,6 @@ class Session(FirstContact):
         self._said: set[object] = set()  # notices given once per session
         self._measured: list[Measured] = []  # provisional settings taken in this handle() call
         self.twin = TwinCheck()  # the board's own states against the engine's (frames with a state field)
-        self.twin_reports: deque[TwinMismatch] = deque(maxlen=200)  # for front ends to take, oldest first
         self._twin_width = 0
 
     # ------------------------------------------------------------ state for front ends
@@ -292,8 +292,8 @@ class Session(FirstContact):
             raise ValueError(f"no channel {channel}: the board has {self.engine.channels}")
 
     # ------------------------------------------------------------ events
-    def handle(self, events: Iterable[Event]) -> list[DetectionEvent]:
-        out: list[DetectionEvent] = []
+    def handle(self, events: Iterable[Event]) -> list[DetectionEvent | TwinMismatch]:
+        out: list[DetectionEvent | TwinMismatch] = []
         for ev in _joined(events):
             if isinstance(ev, FrameBlock):
                 out.extend(self._frames(ev))
@@ -310,7 +310,7 @@ class Session(FirstContact):
         self._tell_provisional()
         return out
 
-    def _frames(self, block: FrameBlock) -> list[DetectionEvent]:
+    def _frames(self, block: FrameBlock) -> list[DetectionEvent | TwinMismatch]:
         if len(block) == 0:
             return []
         if self.engine is None or self.engine.channels != block.channels:
@@ -324,7 +324,7 @@ class Session(FirstContact):
         steps: list[Transition] = []
         if self.startup is not None and self.startup.busy:
             steps = self.startup.advance(block.readings, block.t_s)
-        found: list[DetectionEvent] = []
+        found: list[DetectionEvent | TwinMismatch] = []
         parts: list[tuple[np.ndarray, np.ndarray]] = []
         start = i = 0
         while i < len(steps):  # run the engine up to each transition's frame, apply it, go on
@@ -347,35 +347,31 @@ class Session(FirstContact):
         self._estimate_rate()
         return found
 
-    def _run(self, block: FrameBlock) -> list[DetectionEvent]:
+    def _run(self, block: FrameBlock) -> list[DetectionEvent | TwinMismatch]:
         assert self.engine is not None and self.measures is not None
-        found: list[DetectionEvent] = list(self.engine.process(block))
+        found: list[DetectionEvent | TwinMismatch] = list(self.engine.process(block))
         deltas, states = self.engine.last_deltas, self.engine.last_states
-        if block.board_states is not None:
-            self._twin(block, states)
         self.measures.ingest(block.t_s, block.readings, deltas, states,
                              restart=self._new_zeros(block.first_index, found))
         for tracker in (*self.groups, *self.sliders):
             found.extend(tracker.update(block.first_index, block.t_s, deltas, states))
-        if len(self.groups) + len(self.sliders):
+        twin = self._twin(block, states) if block.board_states is not None else []
+        found.extend(twin)
+        if len(self.groups) + len(self.sliders) or twin:
             found.sort(key=lambda e: e.index)
         return found
 
-    def _twin(self, block: FrameBlock, states: np.ndarray) -> None:
-        """Compare the board's states with the engine's after each frame, on the keys that detect."""
+    def _twin(self, block: FrameBlock, states: np.ndarray) -> list[TwinMismatch]:
+        """Compare the board's states with the engine's after each frame, on the keys that detect
+        (a key still in its first contact reports nothing yet: comparing it would only be noise)."""
         assert block.board_states is not None
         mask = None
         if self.startup is not None:
             mask = np.array([self.startup.phase[c] == READY for c in range(block.channels)])
-        names = self.names
-        for report in self.twin.compare(block.board_states, states, block.first_index, block.t_s,
-                                        self.rate_hz, mask):
-            self.twin_reports.append(report)
-            name = names[report.channel] if report.channel < len(names) else f"ch{report.channel}"
-            self.notices.append(report.describe(name))
+        return self.twin.compare(block.board_states, states, block.first_index, block.t_s, self.rate_hz, mask)
 
     @staticmethod
-    def _new_zeros(first_index: int, found: list[DetectionEvent]) -> dict[int, int]:
+    def _new_zeros(first_index: int, found: list[DetectionEvent | TwinMismatch]) -> dict[int, int]:
         """Per channel, the first row of the block measured against a new baseline: older deltas are not its
         noise. A re-baselined frame has delta 0 already; a stuck release's frame still the old delta."""
         rows: dict[int, int] = {}

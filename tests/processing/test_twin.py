@@ -3,6 +3,7 @@
 The board's states in the session tests come from `processing.reference.PlainEngine` (the plain
 reference detector, the one the C library is proven bit-exact against), fed the same readings: a
 faithful board agrees with padtune's fast engine on every frame; a board made to deviate is reported.
+The session hands the reports out with its detections, in frame order (`TwinMismatch`).
 The reporting rule is the contract's (ISSUE11-CONTRACT.md, "Events and output"): the first at once,
 then at counts that are powers of two, and at once again after a second of agreement.
 """
@@ -20,7 +21,7 @@ from processing.profile import profile_for
 from processing.reference import PlainEngine
 from processing.session import Session
 from processing.settings import ChannelSettings
-from processing.twin import TwinCheck
+from processing.twin import TwinCheck, TwinMismatch
 from protocol.events import BoardChanged, BoardInfo, FaultKind, FrameBlock, LinkFault
 
 RATE_HZ = 100.0
@@ -148,6 +149,10 @@ def _board_states(readings: np.ndarray) -> np.ndarray:
     return engine.last_states.astype(np.int8)
 
 
+def _reports(found) -> list[TwinMismatch]:
+    return [d for d in found if isinstance(d, TwinMismatch)]
+
+
 def _session(channels: int) -> Session:
     profile = profile_for(channels, tuple(f"zone{i + 1}" for i in range(channels)))
     return Session(replace(profile, defaults=SETTINGS), polarity=(1,))
@@ -169,29 +174,30 @@ def test_a_faithful_board_agrees_with_padtune_on_every_frame():
     states = _board_states(readings)
     assert (states == T).any()  # the stream has touches, or agreeing would prove little
     session = _session(3)
-    session.handle([INFO, *_blocks(readings, states)])
-    assert session.twin.compared == 1200 and session.twin.count == 0 and not session.twin_reports
+    found = session.handle([INFO, *_blocks(readings, states)])
+    assert session.twin.compared == 1200 and session.twin.count == 0 and not _reports(found)
 
 
 def test_frames_without_states_are_not_compared():
     session = _session(3)
-    session.handle([INFO, *_blocks(_readings(300, 3), None)])
-    assert not session.twin.active and not session.twin_reports
+    found = session.handle([INFO, *_blocks(_readings(300, 3), None)])
+    assert not session.twin.active and not _reports(found)
 
 
-def test_a_deviating_board_is_reported_with_its_key_and_frame_and_told_in_the_notices():
+def test_a_deviating_board_is_reported_with_its_key_and_frame_among_the_detections():
     readings = _readings(1200, 3)
     states = _board_states(readings)
     states[500:520, 2] = T  # the board says zone3 is touched where padtune sees it released
     assert (_board_states(readings)[500:520, 2] == R).all()
     session = _session(3)
-    session.handle([INFO, *_blocks(readings, states)])
-    first = session.twin_reports[0]
+    found = session.handle([INFO, *_blocks(readings, states)])
+    reports = _reports(found)
+    first = reports[0]
     assert (first.channel, first.index, first.first, first.count) == (2, 500, True, 1)
     assert first.board_state == KeyState.TOUCHED and first.padtune_state == KeyState.RELEASED
-    assert [r.count for r in session.twin_reports] == [1, 2, 4, 8, 16]
+    assert [r.count for r in reports] == [1, 2, 4, 8, 16]
     assert session.twin.count == 20
-    assert any("twin disagrees: zone3 at frame 500" in n for n in session.notices)
+    assert [d.index for d in found] == sorted(d.index for d in found)  # in frame order with touches
 
 
 def test_a_new_channel_count_starts_the_count_afresh():
@@ -204,8 +210,7 @@ def test_a_new_channel_count_starts_the_count_afresh():
     wide = _readings(400, 4, seed=9)
     wide_states = _board_states(wide)
     wide_states[50, 3] = T
-    session.handle([BoardChanged(6.0, 3, 4), *_blocks(wide, wide_states, first=600)])
-    last = session.twin_reports[-1]
+    last = _reports(session.handle([BoardChanged(6.0, 3, 4), *_blocks(wide, wide_states, first=600)]))[-1]
     assert (last.channel, last.index, last.count, last.first) == (3, 650, 1, True)
     assert session.twin.count == 1
 
@@ -215,13 +220,13 @@ def test_a_board_restart_rearms_the_first_report():
     states = _board_states(readings)
     states[180:183, 1] = T  # counts 1..3: reported at 1 and 2
     session = _session(3)
-    session.handle([INFO, *_blocks(readings[:200], states[:200])])
-    assert [r.count for r in session.twin_reports] == [1, 2]
+    found = session.handle([INFO, *_blocks(readings[:200], states[:200])])
+    assert [r.count for r in _reports(found)] == [1, 2]
     # The board restarts: padtune takes its baselines again, as the board does (so the board's states
     # for the frames after it come from a fresh reference detector too).
     after = _readings(200, 3, seed=4)
     after_states = _board_states(after)
     after_states[10, 0] = T  # 27 frames after the last disagreement: within a second, yet a first
-    session.handle([LinkFault(2.0, FaultKind.RESET), *_blocks(after, after_states, first=200)])
-    last = session.twin_reports[-1]
+    found = session.handle([LinkFault(2.0, FaultKind.RESET), *_blocks(after, after_states, first=200)])
+    last = _reports(found)[-1]
     assert (last.channel, last.index, last.count, last.first) == (0, 210, 4, True)
