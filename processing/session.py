@@ -377,11 +377,13 @@ class Session(FirstContact):
         be noise."""
         assert block.board_states is not None
         compared = [self.phase(c) == READY and not self.provisional(c) for c in range(block.channels)]
-        if not any(compared) and "twin" not in self._said:
-            self._said.add("twin")
-            self.notices.append("the board sends its own key states: padtune compares them with its own on "
-                                "keys whose settings come from a profile or an edit, none so far; load the "
-                                "profile the firmware was built with")
+        if not any(compared):
+            if "twin" not in self._said:
+                self._said.add("twin")
+                self.notices.append("the board sends its own key states: padtune compares them with its "
+                                    "own on keys whose settings come from a profile or an edit, none so far; "
+                                    "load the profile the firmware was built with")
+            return []
         mask = None if all(compared) else np.array(compared)
         return self.twin.compare(block.board_states, states, block.first_index, block.t_s, self.rate_hz, mask)
 

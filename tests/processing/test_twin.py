@@ -230,3 +230,13 @@ def test_a_board_restart_rearms_the_first_report():
     found = session.handle([LinkFault(2.0, FaultKind.RESET), *_blocks(after, after_states, first=200)])
     last = _reports(found)[-1]
     assert (last.channel, last.index, last.count, last.first) == (0, 210, 4, True)
+
+
+def test_without_a_profile_nothing_is_compared_and_the_user_is_told_why():
+    """Provisional settings are padtune's guess from the noise, not the board's: no comparison."""
+    readings = _readings(400, 3)
+    session = Session(polarity=(1,))
+    found = session.handle([INFO, *_blocks(readings, np.full((400, 3), T, dtype=np.int8))])
+    assert not _reports(found) and not session.twin.active
+    told = [n for n in session.notices if "its own key states" in n]
+    assert len(told) == 1 and "load the profile the firmware was built with" in told[0]

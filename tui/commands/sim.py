@@ -35,6 +35,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--fault", action="append", default=[], metavar="ITEM", help=f"inject a fault: {SYNTAX}")
     p.add_argument("--no-checksum", action="store_true", help="send lines without checksums")
     p.add_argument("--no-script", action="store_true", help="no scripted touches (only your key presses)")
+    p.add_argument("--states", action="store_true",
+                   help="send the board's own key states with every frame (its detector: the C library)")
     p.add_argument("--random", type=float, metavar="PER_MIN", help="random touches per minute")
     p.add_argument("--link", metavar="PATH", help="also make a symlink PATH to the device (removed on exit)")
     p.add_argument("--duration", type=float, metavar="S", help="stop after S seconds of wall time")
@@ -82,7 +84,8 @@ def run(args: argparse.Namespace) -> int:
     if args.duration is not None and not 0 < args.duration < math.inf:  # also refuses nan
         raise UserError(f"--duration must be a number of seconds above zero, got {args.duration:g}")
     board = SimBoard(args.board, seed=args.seed, speed=args.speed, faults=FaultPlan.parse(args.fault),
-                     checksum=not args.no_checksum, script=not args.no_script, random_per_min=args.random)
+                     checksum=not args.no_checksum, script=not args.no_script, random_per_min=args.random,
+                     states=args.states)
     server = PtyServer(board)
     if args.link:
         _make_link(server, args.link)
