@@ -47,10 +47,9 @@ class TwinMismatch:
         """One line for a person (the log, stderr)."""
         what = (f"{name} at frame {self.index}: board {self.board_state.name.lower()}, "
                 f"padtune {self.padtune_state.name.lower()}")
-        frames = f"{self.count} disagreeing frame{'' if self.count == 1 else 's'} so far"
-        if self.first:
-            return f"twin disagrees: {what} ({frames})"
-        return f"twin: {frames}; latest {what}"
+        if self.first:  # the count is worth saying only when this is not the very first
+            return f"twin disagrees: {what}" + (f" ({self.count} frames so far)" if self.count > 1 else "")
+        return f"twin: {self.count} frames disagree; latest {what}"
 
 
 class TwinCheck:

@@ -51,7 +51,7 @@ def test_the_first_disagreement_is_reported_at_once_with_key_frame_and_both_stat
     assert report.board_state == KeyState.TOUCHED and report.padtune_state == KeyState.RELEASED
     assert report.t_s == 1017 / RATE_HZ
     assert "zone2 at frame 1017: board touched, padtune released" in report.describe("zone2")
-    assert "1 disagreeing frame so far" in report.describe("zone2")
+    assert report.describe("zone2") == "twin disagrees: zone2 at frame 1017: board touched, padtune released"
 
 
 def test_a_lasting_disagreement_is_reported_at_powers_of_two_only():
@@ -78,6 +78,9 @@ def test_a_second_of_agreement_rearms_the_first_report():
     reports = _compare(check, board, padtune)
     assert [(r.index, r.count, r.first) for r in reports] == [(0, 1, True), (1, 2, False), (102, 4, False),
                                                               (204, 5, True)]
+    assert reports[1].describe("k") == \
+        "twin: 2 frames disagree; latest k at frame 1: board touched, padtune released"
+    assert reports[3].describe("k").endswith("padtune released (5 frames so far)")
 
 
 @settings(max_examples=60, deadline=None)
