@@ -177,10 +177,10 @@ def _state_fields(arr: np.ndarray, starts: np.ndarray, body_end: np.ndarray, is_
     bad[pos[~first]] = True  # a second `;` in a line
     pos, line = pos[first], line[first]
     semi[line] = pos
-    mark = np.zeros(len(arr) + 1, dtype=np.int32)
-    np.add.at(mark, pos, 1)
-    np.add.at(mark, body_end[line], -1)
-    field = np.cumsum(mark[:-1], dtype=np.int32) > 0
+    mark = np.zeros(len(arr) + 1, dtype=np.int8)  # +1 at each field's `;`, -1 at its end (all distinct)
+    mark[pos] = 1
+    mark[body_end[line]] = -1
+    field = np.cumsum(mark[:-1], dtype=np.int32).astype(bool)
     is_num &= ~field
     bad[field & ~((arr - np.uint8(0x30)) < 4)] = True
     bad[pos] = False  # the `;` itself opens the field
