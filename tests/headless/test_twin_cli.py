@@ -97,3 +97,20 @@ def test_a_deviating_board_on_a_pseudo_terminal(tmp_path, profile):
     assert twins[0]["channel"] == "zone2" and twins[0]["count"] == 1
     assert [e["count"] for e in twins][:3] == [1, 2, 4]
     assert twins[0]["board_state"] == "confirming" and twins[0]["padtune_state"] == "released"
+
+
+def test_the_readable_line_and_the_json_event_say_the_same():
+    """Both writers, fed one report: every field of the contract's event, and the words for people."""
+    import io
+
+    from tui.headless.output import make_output
+
+    text, lines = io.StringIO(), io.StringIO()
+    for out in (make_output(False, text), make_output(True, lines)):
+        out.twin_mismatch(1.5, "zone2", 90, "touched", "released", 4)
+        out.close()
+    event = {"type": "twin_mismatch", "t": 1.5, "channel": "zone2", "index": 90, "board_state": "touched",
+             "padtune_state": "released", "count": 4}
+    assert json_lines(lines.getvalue()) == [event]
+    assert " ".join(text.getvalue().split()) == \
+        "1.500 s twin zone2 board touched, padtune released (frame 90; 4 disagreeing frames so far)"
