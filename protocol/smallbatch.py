@@ -42,6 +42,7 @@ class _Run:
         self.values: list[bytes] = []
         self.seqs: list[int] = []
         self.states: list[bytes] = []  # the state fields, when the run's frames carry them
+        self.stated = False
         self.sequenced = False
         self.checked = False
 
@@ -75,16 +76,13 @@ def decode_lines(lines: list[bytes], rules: LineRules) -> None:
         m = match(line)
         ok = m is not None and len(line) <= limit
         if ok:
-            given = m.group(4)
+            seq_text, values, states, given = m.groups()
             if given is None:
                 ok = not (rules.strict or run.checked)
             else:
                 ok = crc(line[: m.start(4) - 1], 0xFFFF) == int(given, 16)
-            values = m.group(2)
-            seq_text = m.group(1)
             sequenced = seq_text is not None
             width = _width(values)
-            states = m.group(3)
             ok = ok and width == rules.channels and (states is None or len(states) == width)
             if ok and sequenced:
                 seq = int(seq_text)
@@ -96,15 +94,15 @@ def decode_lines(lines: list[bytes], rules: LineRules) -> None:
             rules.line(line)
             take_seq, take_plain = rules.holding == 0, rules.bulk_plain
             continue
-        stated = states is not None
-        if run.lines and (sequenced != run.sequenced or stated != bool(run.states)):
+        if run.lines and (sequenced != run.sequenced or (states is None) == run.stated):
             run.flush(rules, rules.channels)
         run.lines.append(line)
         run.values.append(values)
         run.sequenced = sequenced
         if sequenced:
             run.seqs.append(seq)
-        if stated:
+        if states is not None:
             run.states.append(states)
+            run.stated = True
         run.checked = run.checked or given is not None
     run.flush(rules, rules.channels or 0)
