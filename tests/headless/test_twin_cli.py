@@ -114,3 +114,12 @@ def test_the_readable_line_and_the_json_event_say_the_same():
     assert json_lines(lines.getvalue()) == [event]
     assert " ".join(text.getvalue().split()) == \
         "1.500 s twin zone2 board touched, padtune released (frame 90; 4 disagreeing frames so far)"
+
+
+def test_a_board_with_states_but_no_c_compiler_is_one_line_and_exit_2():
+    """The simulated board's detector is the C library: without a compiler it cannot run, and says so."""
+    out = padtune("monitor", "sim://greenhouse?states=1", "--json", "--duration", "1",
+                  env={"CC": "/nonexistent/cc", "PADTUNE_CACHE_DIR": "/nonexistent/cache"})
+    assert out.returncode == 2 and out.stdout == ""
+    (line,) = out.stderr.splitlines()
+    assert line.startswith("padtune: ") and "C compiler" in line and "install one" in line

@@ -243,3 +243,16 @@ def test_without_a_profile_nothing_is_compared_and_the_user_is_told_why():
     assert not _reports(found) and not session.twin.active
     told = [n for n in session.notices if "its own key states" in n]
     assert len(told) == 1 and "load the profile the firmware was built with" in told[0]
+
+
+def test_an_edit_on_padtunes_side_rearms_the_first_report():
+    """A settings edit changes padtune's detector under the board: the next disagreement is news."""
+    readings = _readings(300, 3)
+    states = _board_states(readings)
+    states[100:103, 0] = T
+    states[130, 0] = T  # 27 frames later: within a second of the last one
+    session = _session(3)
+    session.handle([INFO, *_blocks(readings[:120], states[:120])])
+    session.set_channel_settings(2, replace(SETTINGS, threshold_counts=41))
+    found = _reports(session.handle(list(_blocks(readings[120:], states[120:], first=120))))
+    assert [(r.index, r.count, r.first) for r in found] == [(130, 4, True)]
