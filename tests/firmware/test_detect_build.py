@@ -161,3 +161,87 @@ def test_library_refuses_settings_a_profile_refuses(firmware_lib):  # noqa: F811
         with pytest.raises(ValueError, match=key):
             det.set_settings(0, s)
     assert det.run([[5]]) and det.states == [0]  # refused changes left the channel as it was
+
+
+def test_firmware_size_without_the_cross_compiler_prints_the_install_command(tmp_path):
+    bin_dir = tmp_path / "bin"
+    bin_dir.mkdir()
+    (bin_dir / "python3").symlink_to(sys.executable)
+    out = subprocess.run(
+        [str(bin_dir / "python3"), str(FIRMWARE / "size.py")],
+        capture_output=True,
+        text=True,
+        env={**os.environ, "PATH": str(bin_dir)},
+        timeout=60,
+    )
+    assert out.returncode == 2
+    assert out.stdout.strip().endswith("apt-get install gcc-arm-none-eabi libnewlib-arm-none-eabi")
+    assert len(out.stdout.splitlines()) == 1
+
+
+@pytest.mark.skipif(shutil.which("arm-none-eabi-gcc") is None, reason="no arm-none-eabi-gcc here")
+def test_firmware_size_reports_every_part_and_the_ram_per_channel():
+    out = subprocess.run(
+        [sys.executable, str(FIRMWARE / "size.py")], capture_output=True, text=True, timeout=300
+    )
+    assert out.returncode == 0, out.stdout + out.stderr
+    assert "detector (pt_detect.c)" in out.stdout and "groups and sliders (pt_groups.c)" in out.stdout
+    assert "RAM per channel: 20 B of detector state (pt_chan_t), within the 24 B goal" in out.stdout
+    rows = {line[:46].strip(): line[46:].split() for line in out.stdout.splitlines()}
+    flash, ram = (int(v) for v in rows["detector (pt_detect.c)"][:2])
+    assert flash > 0 and ram == 0  # no static RAM: every byte of state is the caller's
+
+
+@needs_cc
+def test_the_readmes_example_compiles_against_an_exported_header(tmp_path):
+    text = (FIRMWARE / "README.md").read_text()
+    section = text.split("## The detector", 1)[1]
+    example = section.split("```c\n", 1)[1].split("```", 1)[0]
+    export_c_header(demo_profile("greenhouse"), tmp_path / "profile.h", "greenhouse.toml")
+    (tmp_path / "example.c").write_text(example)
+    built = subprocess.run(
+        [
+            "cc",
+            *STRICT,
+            f"-I{FIRMWARE}",
+            f"-I{tmp_path}",
+            "-c",
+            str(tmp_path / "example.c"),
+            "-o",
+            str(tmp_path / "e.o"),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert built.returncode == 0, built.stderr
+
+
+def test_binding_settings_are_the_profile_keys_with_the_same_defaults():
+    from dataclasses import asdict
+
+    from devices.firmware import clib
+    from processing.settings import SETTING_KEYS
+
+    assert clib.SETTING_KEYS == SETTING_KEYS
+    assert clib.Settings()._asdict() == asdict(ChannelSettings())
+
+
+@needs_cc
+def test_detector_sources_are_clean_under_the_stricter_warnings_firmware_builds_use(tmp_path):
+    extra = [
+        "-Wconversion",
+        "-Wsign-conversion",
+        "-Wshadow",
+        "-Wcast-qual",
+        "-Wstrict-prototypes",
+        "-Wmissing-prototypes",
+    ]
+    for name in ("pt_detect.c", "pt_groups.c"):
+        built = subprocess.run(
+            ["cc", *STRICT, *extra, "-c", str(FIRMWARE / name), "-o", str(tmp_path / "x.o")],
+            capture_output=True,
+            text=True,
+            timeout=120,
+        )
+        assert built.returncode == 0, built.stderr
