@@ -7,6 +7,7 @@ and CRLF line ends, and repeated sequence numbers."""
 from unittest import mock
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -397,3 +398,26 @@ def test_state_fields_decode_to_board_states(n, channels, first_seq, checksum, s
     assert [f[3] for f in frames] == [tuple(r) for r in block.tolist()]
     assert [f[5] for f in frames] == [tuple(r) for r in states.tolist()]
     assert stats["garbled"] == stats["bad_checksum"] == stats["lost"] == 0
+
+
+@pytest.mark.parametrize("field, why", [
+    (b";01", "state field of 2 digits for 3 values"),
+    (b";0123", "state field of 4 digits for 3 values"),
+    (b";", "state field of 0 digits for 3 values"),
+    (b";014", "other than 0, 1, 2, 3"),
+    (b"; 01", "other than 0, 1, 2, 3"),
+    (b";0;1", "other than 0, 1, 2, 3"),
+    (b"; 012", "state field of 4 digits for 3 values"),
+])
+@pytest.mark.parametrize("head", [b"@1 7 8 9", b"7 8 9"])
+def test_a_mangled_state_field_is_garbled_the_same_by_every_way(field, why, head):
+    first = b"@0 1 2 3;000" if head.startswith(b"@") else b"1 2 3;000"
+    last = b"@2 4 5 6;210" if head.startswith(b"@") else b"4 5 6;210"
+    lines = [b"! proto=1 channels=3 states=1", first, head + field, last]
+    for checked in (False, True):
+        data = b"".join((ck(line) if checked else line) + b"\n" for line in lines)
+        events, stats = assert_all_ways_agree([data])
+        assert stats["garbled"] == 1 and stats["frames"] == 2
+        faults = [dict(e[1]) for e in events if e[0] == "LinkFault"]
+        assert any(why in f["detail"] for f in faults), faults
+        assert [f[5] for f in events if f[0] == "frame"] == [(0, 0, 0), (2, 1, 0)]
