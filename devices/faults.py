@@ -13,6 +13,8 @@ A fault plan is written as short items, comma-separated or repeated (`--fault`, 
     short:stop       the pad is shorted to ground
     noisy:dur1[:20]  the pad's noise is 20x (default 10x)
     stuck:zone3[@2]  the key reads as touched from 2 s (default from the start)
+    deviate:zone2[@3] from 3 s on, the board's own detector sends zone2's state one step on (a firmware
+                     whose state table is off by one); the board sends its key states (states=1)
 
 Times are simulated seconds. `FaultPlan.parse` raises a one-line UserError for anything else.
 """
@@ -28,7 +30,7 @@ from protocol.errors import UserError
 
 _ITEM = re.compile(r"^(?P<kind>[a-z]+)(?::(?P<arg>[^@]+))?(?:@(?P<at>[0-9.]+))?$")
 SYNTAX = ("drop:RATE, garble:RATE, junk:RATE, reset@S, width:N@S, stall:SECONDS@S, open:PAD, short:PAD, "
-          "noisy:PAD[:FACTOR], stuck:PAD[@S]")
+          "noisy:PAD[:FACTOR], stuck:PAD[@S], deviate:PAD[@S]")
 
 
 @dataclass(frozen=True, slots=True)
@@ -43,6 +45,7 @@ class FaultPlan:
     shorted_pads: tuple[str, ...] = ()
     noisy_pads: tuple[tuple[str, float], ...] = ()
     stuck_keys: tuple[tuple[str, float], ...] = ()  # (pad, from_s)
+    deviating: tuple[tuple[str, float], ...] = ()  # (pad, from_s): the on-board detector's state is off
 
     @property
     def link_faults(self) -> bool:
@@ -50,12 +53,12 @@ class FaultPlan:
 
     def pads(self) -> set[str]:
         return ({*self.open_pads, *self.shorted_pads} | {p for p, _ in self.noisy_pads}
-                | {p for p, _ in self.stuck_keys})
+                | {p for p, _ in self.stuck_keys} | {p for p, _ in self.deviating})
 
     @classmethod
     def parse(cls, items: Iterable[str]) -> FaultPlan:
         acc: dict[str, list] = {k: [] for k in ("resets_at_s", "width_changes", "stalls", "open_pads",
-                                                "shorted_pads", "noisy_pads", "stuck_keys")}
+                                                "shorted_pads", "noisy_pads", "stuck_keys", "deviating")}
         rates: dict[str, float] = {}
         for raw in (part.strip() for item in items for part in item.split(",")):
             if raw:
@@ -82,7 +85,7 @@ def _parse_one(item: str, acc: dict[str, list], rates: dict[str, float]) -> None
     at_s = _number(at, item, "the time after @", 0.0, 1e7) if at is not None else None
     if kind in ("drop", "garble", "junk", "reset", "width", "stall"):
         _stream_fault(item, kind, arg, at_s, acc, rates)
-    elif kind in ("open", "short", "noisy", "stuck"):
+    elif kind in ("open", "short", "noisy", "stuck", "deviate"):
         _pad_fault(item, kind, arg, at_s, acc)
     else:
         raise UserError(f"fault {item!r}: unknown fault {kind!r}; fault items are {SYNTAX}")
@@ -116,7 +119,7 @@ def _pad_fault(item: str, kind: str, arg: str | None, at_s: float | None, acc: d
     """What a bad unit looks like: a pad open, shorted, noisy or stuck."""
     if not arg:
         raise UserError(f"fault {item!r}: name the pad, e.g. {kind}:zone1")
-    if kind != "stuck" and at_s is not None:
+    if kind not in ("stuck", "deviate") and at_s is not None:
         raise UserError(f"fault {item!r}: {kind} is there from the start; it takes no @time")
     pad, _, extra = arg.partition(":")
     if kind == "noisy":
@@ -126,6 +129,8 @@ def _pad_fault(item: str, kind: str, arg: str | None, at_s: float | None, acc: d
         raise UserError(f"fault {item!r}: {kind} takes only a pad name")
     elif kind == "stuck":
         acc["stuck_keys"].append((pad, at_s or 0.0))
+    elif kind == "deviate":
+        acc["deviating"].append((pad, at_s or 0.0))
     else:
         acc["open_pads" if kind == "open" else "shorted_pads"].append(pad)
 

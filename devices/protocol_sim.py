@@ -4,7 +4,7 @@ pyserial imports this module for the `sim` scheme once `devices.register_url_han
 The port reads the bytes a `devices.simulator.SimBoard` has sent by now (paced by the clock, times
 the speed factor) and writes go to the board as host commands (`?`, `+PAD`, `-PAD`; see README.md).
 
-URL: `sim://BOARD?seed=7&speed=4&fault=drop:0.01&fault=reset@5&checksum=1&script=1&random=20`
+URL: `sim://BOARD?seed=7&speed=4&fault=drop:0.01&fault=reset@5&checksum=1&script=1&random=20&states=1`
 (BOARD is a bundled board name, or `sim:///path/to/board.toml`); `settings=0` makes a board that does
 not take PROTOCOL.md section 7's commands, `flash=PATH` keeps the board's kept settings in a file
 (so `keep` survives this process too). The board object itself is
@@ -27,7 +27,7 @@ from devices.simulator import SimBoard
 from protocol.errors import UserError
 
 OPTIONS = ("seed", "speed", "fault", "checksum", "script", "random", "backlog_s", "packet_ms", "settings",
-           "flash")
+           "flash", "states")
 MAX_BACKLOG_S = 2.0  # a host that stops reading longer than this loses frames, as with a full OS buffer
 PACKET_S = 0.01  # frames are released in 10 ms packets, as a board's USB buffer would send them
 
@@ -69,6 +69,7 @@ def board_from_url(url: str) -> tuple[SimBoard, float, float]:
         random_per_min=_number("random", one["random"]) if "random" in one else None,
         settings=_flag("settings", one.get("settings", "1")),
         flash=flash_at(one["flash"]) if "flash" in one else None,
+        states=_flag("states", one.get("states", "0")),
     )
     backlog_s = _number("backlog_s", one.get("backlog_s", str(MAX_BACKLOG_S)))
     if not 0.0 < backlog_s <= 3600.0:  # also refuses nan

@@ -4,6 +4,10 @@
 `devices.model.BoardModel` and the bytes from `protocol.encoder` (the one implementation of the wire
 format). Frames are generated in numpy blocks, so a 64-channel board at 1 kHz costs little.
 
+With `states=True` (or a `deviate` fault) the board also sends its own key states with every frame (the
+state field, PROTOCOL.md section 3), from its on-board detector: the C firmware library
+(`devices.onboard`), fed the same readings.
+
 Host commands (one per line, see devices/README.md): `?` sends the info line again; `+NAME` presses
 the key NAME (or a channel number), `+NAME=0.7` presses it lightly; `-NAME` releases it; `-*` releases all.
 With `settings=True` (the default) the board also takes section 7's `get`, `set` and `keep`
@@ -23,6 +27,7 @@ from devices.board_settings import BoardSettings, Flash
 from devices.boards import MAX_LINE_BYTES, frame_line_bytes, load_board
 from devices.faults import FaultPlan, Injected
 from devices.model import BoardModel, UnitFaults
+from devices.onboard import OnBoardDetector
 from devices.spec import MAX_RANDOM_PER_MIN, BoardSpec
 from devices.touches import Contact, TouchPlan
 from protocol import encoder
@@ -43,7 +48,7 @@ class SimBoard:
     def __init__(self, spec: BoardSpec | str, seed: int = 0, speed: float = 1.0,
                  faults: FaultPlan | None = None, clock: Callable[[], float] = time.monotonic,
                  checksum: bool = True, script: bool = True, random_per_min: float | None = None,
-                 settings: bool = True, flash: Flash | None = None) -> None:
+                 settings: bool = True, flash: Flash | None = None, states: bool = False) -> None:
         self.spec = load_board(spec) if isinstance(spec, str) else spec
         _check_run_options(seed, speed, random_per_min)
         self.seed, self.speed, self.clock, self.checksum = seed, speed, clock, checksum
@@ -70,6 +75,7 @@ class SimBoard:
         self.settings: BoardSettings | None = None
         if settings:
             self.settings = BoardSettings(self._width, self.spec.method.polarity, flash)
+        self.onboard = self._onboard() if states or self.faults.deviating else None
         self._t0 = clock()
         self._emit_boot()
 
@@ -89,6 +95,12 @@ class SimBoard:
         f = self.faults
         return UnitFaults({self.channel(p) for p in f.open_pads}, {self.channel(p) for p in f.shorted_pads},
                           {self.channel(p): k for p, k in f.noisy_pads})
+
+    def _onboard(self) -> OnBoardDetector:
+        """The board's own detector (the C library: a UserError in one line when it cannot be built)."""
+        rate = self.spec.rate_hz
+        deviate = {self.channel(pad): math.ceil(from_s * rate) for pad, from_s in self.faults.deviating}
+        return OnBoardDetector(self._width, self.spec.method.polarity, deviate)
 
     def _timeline(self) -> list[tuple[int, str, float]]:
         """Stream events as (frame index, kind, value), in frame order."""
@@ -111,12 +123,15 @@ class SimBoard:
         names = self.spec.names[: self._width]
         names += tuple(f"ch{i}" for i in range(len(names), self._width))
         lead: dict[str, object] = {"proto": 1} if announce else {}
-        out = {**lead, "board": self.spec.name, "channels": self._width,
-               "rate": f"{self.spec.rate_hz:g}", "names": ",".join(names), "method": self.spec.method.kind,
-               "polarity": "+" if self.spec.method.polarity > 0 else "-", "fw": self.spec.fw}
+        fields: dict[str, object] = {
+            **lead, "board": self.spec.name, "channels": self._width, "rate": f"{self.spec.rate_hz:g}",
+            "names": ",".join(names), "method": self.spec.method.kind,
+            "polarity": "+" if self.spec.method.polarity > 0 else "-", "fw": self.spec.fw}
         if self.settings is not None:
-            out["settings"] = 1  # takes PROTOCOL.md section 7's commands
-        return out
+            fields["settings"] = 1  # takes PROTOCOL.md section 7's commands
+        if self.onboard is not None:
+            fields["states"] = 1  # the frames carry the state field (PROTOCOL.md section 3)
+        return fields
 
     def info_line(self, announce: bool = True) -> bytes:
         return encoder.encode_info(self.info_fields(announce), checksum=self.checksum)
@@ -186,6 +201,8 @@ class SimBoard:
                 continue
             stop = min(last + 1, self._events[0][0]) if self._events else last + 1
             n = stop - self._next_frame
+            if self.onboard is not None:  # the board measured them: its own detector saw them
+                self._board_states(self._width_readings(self._next_frame, n), self._next_frame)
             self._next_frame, self._seq = stop, (self._seq + n) % SEQ_MODULO
             self.injected.frames_made += n
             skipped += n
@@ -215,36 +232,48 @@ class SimBoard:
             self._seq = 0
             if self.settings is not None:
                 self.settings.power_up()  # RAM is lost: the kept settings (or the factory's) again
+            if self.onboard is not None:
+                self.onboard.restart()
             self._note(f"{self.spec.name} restarted (watchdog), fw {self.spec.fw}")
         elif kind == "width":
             self.injected.width_changes += 1
             self._width = int(value)
             if self.settings is not None:
                 self.settings.resize(self._width)
+            if self.onboard is not None:
+                self.onboard.restart(self._width)
         else:  # a stall: the board measures and sends nothing for a while
             self.injected.stalls += 1
             skipped = round(value * self.spec.rate_hz)
             self.injected.stalled_s += skipped / self.spec.rate_hz
             self._next_frame = max(self._next_frame, frame + skipped)
 
-    def _frames(self, first: int, n: int) -> None:
+    def _width_readings(self, first: int, n: int) -> np.ndarray:
         readings = self.model.readings(first, n)
         if self._width != readings.shape[1]:
             readings = _rewidth(readings, self._width)
+        return readings
+
+    def _board_states(self, readings: np.ndarray, first: int) -> np.ndarray | None:
+        return self.onboard.states(readings, first) if self.onboard is not None else None
+
+    def _frames(self, first: int, n: int) -> None:
+        readings = self._width_readings(first, n)
+        states = self._board_states(readings, first)
         self._next_frame = first + n
         self.injected.frames_made += n
         seq0 = self._seq
         self._seq = (self._seq + n) % SEQ_MODULO
         if not self.faults.link_faults:
-            self._pending += encoder.encode_frames(readings, seq0, self.checksum)
+            self._pending += encoder.encode_frames(readings, seq0, self.checksum, states)
             self.injected.frames_sent += n
             return
-        self._faulty_frames(readings, seq0)
+        self._faulty_frames(readings, seq0, states)
 
-    def _faulty_frames(self, readings: np.ndarray, seq0: int) -> None:
+    def _faulty_frames(self, readings: np.ndarray, seq0: int, states: np.ndarray | None = None) -> None:
         f = self.faults
         draws = self._link_rng.random((len(readings), 4))  # one row per frame: drop, garble, junk, pick
-        lines = encoder.encode_frames(readings, seq0, self.checksum).split(b"\n")[:-1]
+        lines = encoder.encode_frames(readings, seq0, self.checksum, states).split(b"\n")[:-1]
         for line, (u_drop, u_garble, u_junk, pick) in zip(lines, draws, strict=True):
             if u_drop < f.drop_rate:
                 self.injected.dropped += 1

@@ -4,7 +4,9 @@
 BoardInfo (names also from a plain form's StreamForm), re-baselines on a new session (an info line
 carrying `proto`) or a board reset, rebuilds for a new width on BoardChanged, runs groups and sliders,
 and keeps the measures. Live edits go through `set_channel_settings` and `set_polarity`; `profile`
-always reflects them, ready to save.
+always reflects them, ready to save. Frames that carry the board's own key states are compared with the
+engine's (`processing.twin`): its reports (`TwinMismatch`) come out of `handle` among the detections, in
+frame order, so every front end gets them through its pipeline; `twin` has the running count.
 
 Before a channel detects it may have to go through its first contact (`processing.startup`): without
 a profile its threshold and hysteresis are provisional, from its noise over its first quiet second;
@@ -42,6 +44,7 @@ from processing.startup import (
     Transition,
     settings_for_engine,
 )
+from processing.twin import TwinCheck, TwinMismatch
 from protocol.events import (
     BoardChanged,
     BoardInfo,
@@ -90,7 +93,8 @@ def _slice(block: FrameBlock, a: int, b: int) -> FrameBlock:
     if a == 0 and b == len(block):
         return block
     bt = block.board_time[a:b] if block.board_time is not None else None
-    return FrameBlock(block.t_s[a:b], block.seq[a:b], block.readings[a:b], block.first_index + a, bt)
+    bs = block.board_states[a:b] if block.board_states is not None else None
+    return FrameBlock(block.t_s[a:b], block.seq[a:b], block.readings[a:b], block.first_index + a, bt, bs)
 
 
 def _joined(events: Iterable[Event]) -> Iterator[Event]:
@@ -118,15 +122,17 @@ def _joined(events: Iterable[Event]) -> Iterator[Event]:
 
 def _continues(a: FrameBlock, b: FrameBlock) -> bool:
     return b.first_index == a.first_index + len(a) and b.channels == a.channels and \
-        (a.board_time is None) == (b.board_time is None)
+        (a.board_time is None) == (b.board_time is None) and \
+        (a.board_states is None) == (b.board_states is None)
 
 
 def _concat(run: list[FrameBlock]) -> FrameBlock:
     if len(run) == 1:
         return run[0]
     bt = None if run[0].board_time is None else np.concatenate([b.board_time for b in run])
+    bs = None if run[0].board_states is None else np.concatenate([b.board_states for b in run])
     return FrameBlock(np.concatenate([b.t_s for b in run]), np.concatenate([b.seq for b in run]),
-                      np.concatenate([b.readings for b in run]), run[0].first_index, bt)
+                      np.concatenate([b.readings for b in run]), run[0].first_index, bt, bs)
 
 # Builds the engine for (channels, settings, polarity, profile) in place of the Python one: an object with
 # Engine's API. One whose `runs_groups` is true also runs the profile's groups and sliders, returning their
@@ -168,6 +174,8 @@ class Session(FirstContact):
         self._clock = BoardClock()
         self._said: set[object] = set()  # notices given once per session
         self._measured: list[Measured] = []  # provisional settings taken in this handle() call
+        self.twin = TwinCheck()  # the board's own states against the engine's (frames with a state field)
+        self._twin_width = 0
 
     # ------------------------------------------------------------ state for front ends
     @property
@@ -227,6 +235,7 @@ class Session(FirstContact):
         if self.startup is not None and self.startup.settings_given(channel):
             self.engine.rebaseline(channel)
         self.engine.set_settings(channel, settings_for_engine(settings, self.phase(channel) == READY))
+        self.twin.rearm()  # padtune's settings changed under the board: a disagreement is news again
         self._profile = self._profile.with_settings(channel, settings)
         self._edited[width] = self._profile
 
@@ -241,6 +250,7 @@ class Session(FirstContact):
         if sign not in (1, -1):
             raise ValueError(f"polarity must be + or -, not {sign!r}")
         self._apply_polarity(channel, sign, EDITED)
+        self.twin.rearm()
         assert self._profile is not None
         self._edited[self.engine.channels] = self._profile
 
@@ -259,6 +269,7 @@ class Session(FirstContact):
     def rebaseline(self, channel: int | None = None) -> None:
         if self.engine is not None:
             self.engine.rebaseline(channel)
+            self.twin.rearm()
 
     def automatic(self, saved: Profile) -> Profile:
         """`saved` with what this session did by itself applied: the board's names, rate and polarity,
@@ -290,8 +301,8 @@ class Session(FirstContact):
             raise ValueError(f"no channel {channel}: the board has {self.engine.channels}")
 
     # ------------------------------------------------------------ events
-    def handle(self, events: Iterable[Event]) -> list[DetectionEvent]:
-        out: list[DetectionEvent] = []
+    def handle(self, events: Iterable[Event]) -> list[DetectionEvent | TwinMismatch]:
+        out: list[DetectionEvent | TwinMismatch] = []
         for ev in _joined(events):
             if isinstance(ev, FrameBlock):
                 out.extend(self._frames(ev))
@@ -308,7 +319,7 @@ class Session(FirstContact):
         self._tell_provisional()
         return out
 
-    def _frames(self, block: FrameBlock) -> list[DetectionEvent]:
+    def _frames(self, block: FrameBlock) -> list[DetectionEvent | TwinMismatch]:
         if len(block) == 0:
             return []
         if self.engine is None or self.engine.channels != block.channels:
@@ -322,7 +333,7 @@ class Session(FirstContact):
         steps: list[Transition] = []
         if self.startup is not None and self.startup.busy:
             steps = self.startup.advance(block.readings, block.t_s)
-        found: list[DetectionEvent] = []
+        found: list[DetectionEvent | TwinMismatch] = []
         parts: list[tuple[np.ndarray, np.ndarray]] = []
         start = i = 0
         while i < len(steps):  # run the engine up to each transition's frame, apply it, go on
@@ -345,20 +356,39 @@ class Session(FirstContact):
         self._estimate_rate()
         return found
 
-    def _run(self, block: FrameBlock) -> list[DetectionEvent]:
+    def _run(self, block: FrameBlock) -> list[DetectionEvent | TwinMismatch]:
         assert self.engine is not None and self.measures is not None
-        found: list[DetectionEvent] = list(self.engine.process(block))
+        found: list[DetectionEvent | TwinMismatch] = list(self.engine.process(block))
         deltas, states = self.engine.last_deltas, self.engine.last_states
         self.measures.ingest(block.t_s, block.readings, deltas, states,
                              restart=self._new_zeros(block.first_index, found))
         for tracker in (*self.groups, *self.sliders):
             found.extend(tracker.update(block.first_index, block.t_s, deltas, states))
-        if len(self.groups) + len(self.sliders):
+        twin = self._twin(block, states) if block.board_states is not None else []
+        found.extend(twin)
+        if len(self.groups) + len(self.sliders) or twin:
             found.sort(key=lambda e: e.index)
         return found
 
+    def _twin(self, block: FrameBlock, states: np.ndarray) -> list[TwinMismatch]:
+        """Compare the board's states with the engine's after each frame, on the keys whose settings a
+        person gave (a profile or an edit) and that detect: provisional settings are padtune's own guess,
+        not the board's, and a key in its first contact reports nothing yet; comparing those would only
+        be noise."""
+        assert block.board_states is not None
+        compared = [self.phase(c) == READY and not self.provisional(c) for c in range(block.channels)]
+        if not any(compared):
+            if "twin" not in self._said:
+                self._said.add("twin")
+                self.notices.append("the board sends its own key states: padtune compares them with its "
+                                    "own on keys whose settings come from a profile or an edit, none so far; "
+                                    "load the profile the firmware was built with")
+            return []
+        mask = None if all(compared) else np.array(compared)
+        return self.twin.compare(block.board_states, states, block.first_index, block.t_s, self.rate_hz, mask)
+
     @staticmethod
-    def _new_zeros(first_index: int, found: list[DetectionEvent]) -> dict[int, int]:
+    def _new_zeros(first_index: int, found: list[DetectionEvent | TwinMismatch]) -> dict[int, int]:
         """Per channel, the first row of the block measured against a new baseline: older deltas are not its
         noise. A re-baselined frame has delta 0 already; a stuck release's frame still the old delta."""
         rows: dict[int, int] = {}
@@ -388,6 +418,7 @@ class Session(FirstContact):
         if line.new_session and self.engine is not None:
             self.notices.append("new session: baselines taken again")
             self.engine.rebaseline()
+            self.twin.rearm()
 
     def _form(self, form: StreamForm) -> None:
         """A plain form's names become channel names (an info line's win)."""
@@ -513,6 +544,10 @@ class Session(FirstContact):
         inside = getattr(self.engine, "runs_groups", False)  # the engine reports them itself
         self.groups = [] if inside else [ExclusiveGroup(g) for g in profile.groups]
         self.sliders = [] if inside else [Slider(s) for s in profile.sliders]
+        if channels != self._twin_width:  # another board (or the same one with another channel count)
+            self.twin.reset()
+            self._twin_width = channels
+        self.twin.rearm()
 
 
 def _channels(count: int) -> str:

@@ -68,7 +68,8 @@ class Decoder(PlainDecoder):
         rules = self._rules
         ok, width, checked = sc.frame_ok, sc.width, sc.checked
         n = len(ok)
-        key = np.where(ok, width * 2 + sc.sequenced, -1)
+        stated = sc.semi >= 0 if sc.semi is not None else np.zeros(n, dtype=bool)
+        key = np.where(ok, width * 4 + sc.sequenced * 2 + stated, -1)
         changes = np.flatnonzero(key[1:] != key[:-1]) + 1
         unchecked_at = np.flatnonzero(ok & ~checked)
         checked_at = np.flatnonzero(ok & checked)
@@ -107,7 +108,12 @@ class Decoder(PlainDecoder):
         else:
             seq = np.full(j - i, -1, dtype=np.int64)
             readings = block.copy()
-        self._rules.accept_run(seq, readings, any_checked)
+        states = None
+        if sc.semi is not None and sc.semi[i] >= 0:  # the run's frames all carry a state field
+            width = int(sc.width[i])
+            at = sc.semi[i:j, None] + 1 + np.arange(width)
+            states = (np.frombuffer(sc.buf, dtype=np.uint8)[at] - 0x30).astype(np.int8)
+        self._rules.accept_run(seq, readings, any_checked, states)
 
 
 def _next(positions: np.ndarray, at: int, default: int) -> int:

@@ -33,10 +33,20 @@ def _check_seq(seq: int) -> None:
         raise ValueError(f"sequence number {seq} is outside 0..65535")
 
 
+def _state_field(states: Sequence[int] | np.ndarray, width: int) -> bytes:
+    """`;` and one digit 0-3 per channel (PROTOCOL.md section 3, the optional state field)."""
+    digits = [int(s) for s in states]
+    if len(digits) != width or not all(0 <= s <= 3 for s in digits):
+        raise ValueError(f"a state field is one state 0..3 per channel ({width}), not {digits!r}")
+    return b";" + bytes(48 + s for s in digits)
+
+
 def encode_frame(
-    readings: Sequence[int] | np.ndarray, seq: int | None = None, checksum: bool = True
+    readings: Sequence[int] | np.ndarray, seq: int | None = None, checksum: bool = True,
+    states: Sequence[int] | np.ndarray | None = None,
 ) -> bytes:
-    """One frame line: `@seq v0 v1 ...` (or plain `v0 v1 ...` without seq), optionally `*HHHH`."""
+    """One frame line: `@seq v0 v1 ...` (or plain `v0 v1 ...` without seq), then the state field
+    `;0120` when `states` are given, optionally `*HHHH`."""
     values = [int(v) for v in readings]
     if not values:
         raise ValueError("a frame needs at least one reading")
@@ -46,11 +56,15 @@ def encode_frame(
     if seq is not None:
         _check_seq(seq)
         body = b"@%d " % seq + body
+    if states is not None:
+        body += _state_field(states, len(values))
     return _finish(body, checksum)
 
 
-def encode_frames(readings_2d: np.ndarray, first_seq: int | None = 0, checksum: bool = True) -> bytes:
-    """Many frames at once; seq counts up from `first_seq` (wrapping at 65536), None for plain frames."""
+def encode_frames(readings_2d: np.ndarray, first_seq: int | None = 0, checksum: bool = True,
+                  states: np.ndarray | None = None) -> bytes:
+    """Many frames at once; seq counts up from `first_seq` (wrapping at 65536), None for plain frames;
+    `states` ((frames, channels), values 0..3) adds each frame's state field."""
     block = np.asarray(readings_2d, dtype=np.int64)
     if block.ndim != 2 or block.shape[1] == 0:
         raise ValueError("readings_2d must have shape (frames, channels) with at least one channel")
@@ -67,6 +81,8 @@ def encode_frames(readings_2d: np.ndarray, first_seq: int | None = 0, checksum: 
     text = _join_rows(numbers)
     if first_seq is not None:
         text = b"@" + text.replace(b"\n", b"\n@")[:-1]
+    if states is not None:
+        text = _with_states(text, block.shape, states)
     if not checksum:
         return text
     lines = text[:-1].split(b"\n")
@@ -75,6 +91,17 @@ def encode_frames(readings_2d: np.ndarray, first_seq: int | None = 0, checksum: 
     if max(map(len, lines)) + 5 > MAX_LINE_BYTES:
         raise ValueError(f"frames of {block.shape[1]} channels are over the {MAX_LINE_BYTES}-byte line limit")
     return out
+
+
+def _with_states(text: bytes, shape: tuple[int, int], states: np.ndarray) -> bytes:
+    """Each line of `text` with its frame's state field before the line end."""
+    digits = np.asarray(states)
+    if digits.shape != shape or (digits.size and (digits.min() < 0 or digits.max() > 3)):
+        raise ValueError(f"states must be {shape[0]} x {shape[1]} values from 0 to 3")
+    fields = np.full((shape[0], shape[1] + 1), 0x3B, dtype=np.uint8)
+    fields[:, 1:] = digits + 0x30
+    lines = text[:-1].split(b"\n")
+    return b"".join(line + field + b"\n" for line, field in zip(lines, map(bytes, fields), strict=True))
 
 
 def _join_rows(numbers: np.ndarray) -> bytes:

@@ -62,8 +62,9 @@ class EventBuffer:
             return 0
         if room > 0:
             times = None if block.board_time is None else block.board_time[:room]
+            states = None if block.board_states is None else block.board_states[:room]
             self._items.append(FrameBlock(block.t_s[:room], block.seq[:room], block.readings[:room],
-                                          block.first_index, times))
+                                          block.first_index, times, states))
             self._frames += room
         dropped = n - max(room, 0)
         last = self._items[-1] if self._items else None

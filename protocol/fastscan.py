@@ -6,6 +6,10 @@ converted by one `np.fromstring` call. The marks must agree exactly with `protoc
 and `LineRules.line`: every line the scan does not vouch for goes through those per-line rules, and
 tests/protocol prove with hypothesis that both paths give the same events and statistics.
 
+State fields (`;` and one digit 0-3 per value, PROTOCOL.md section 3): only looked for when the batch
+holds a `;` at all, so frames without them pay one byte search. A frame's field is masked out of the
+number conversion and its length checked against the frame's width; `Scan.semi` says where it starts.
+
 Checksums: `binascii.crc_hqx` runs over each whole line (its checksum suffix included) in one `map`,
 and CRC linearity turns "CRC(body) == carried value" into "CRC(line) == table[carried value]"
 (see `_whole_line_crc_table`), one look-up per line.
@@ -88,6 +92,7 @@ class Scan:
     width: np.ndarray  # int64 (n,) number of values (0 where not frame_ok)
     numbers: np.ndarray  # int64 all numbers of the candidate frame lines (seq first), in order
     offset: np.ndarray  # int64 (n,) where each line's numbers start in `numbers`
+    semi: np.ndarray | None  # int64 (n,) each line's state field's `;`, -1: none (None: no `;` at all)
 
     def line(self, i: int) -> bytes:
         return self.buf[int(self.starts[i]) : int(self.ends[i])]
@@ -129,6 +134,9 @@ def scan(buf: bytes, max_line_bytes: int) -> Scan:
     is_comma = arr == 0x2C
     is_at = arr == 0x40
     bad = ~(is_num | is_space | is_comma | is_at)
+    semi = None
+    if b";" in buf:
+        semi = _state_fields(arr, starts, body_end, is_num, bad)
     _mark_bad_minus(is_minus, is_digit, is_space, is_comma, is_lf, bad)
     _mark_bad_at(arr, is_at, bad)
     _mark_double_commas(is_space, is_comma, bad)
@@ -144,11 +152,39 @@ def scan(buf: bytes, max_line_bytes: int) -> Scan:
     frame_ok = candidate & (body_end > starts) & (bad_bytes == 0) & (tokens > sequenced)
     frame_ok &= ~sequenced | second
     width = np.where(frame_ok, tokens - sequenced, 0)
+    if semi is not None:  # a state field holds exactly one digit per value
+        stated = semi >= 0
+        frame_ok &= ~stated | (body_end - semi - 1 == width)
+        width = np.where(frame_ok, width, 0)
 
     numbers, offset = _convert(arr, is_num, frame_ok, tokens, starts, ends, stop, checked)
     frame_ok &= _in_range(numbers, offset, frame_ok, sequenced)
     _check_crcs(buf, frame_ok, checked, has_cr, raw, hexes)
-    return Scan(buf, starts, ends, frame_ok, checked, sequenced, width, numbers, offset)
+    return Scan(buf, starts, ends, frame_ok, checked, sequenced, width, numbers, offset, semi)
+
+
+def _state_fields(arr: np.ndarray, starts: np.ndarray, body_end: np.ndarray, is_num: np.ndarray,
+                  bad: np.ndarray) -> np.ndarray:
+    """Per line, where its state field's `;` is (-1: none). The field's bytes leave `is_num` (they are
+    not values); a byte in it other than 0-3, or a second `;`, is `bad`. Updates both in place."""
+    semi = np.full(len(starts), -1, dtype=np.int64)
+    pos = np.flatnonzero(arr == 0x3B)
+    line = np.searchsorted(starts, pos, side="right") - 1
+    inside = pos < body_end[line]  # a `;` at or past the checksum's `*` is bad anyway (not a field)
+    pos, line = pos[inside], line[inside]
+    first = np.ones(len(pos), dtype=bool)
+    first[1:] = line[1:] != line[:-1]
+    bad[pos[~first]] = True  # a second `;` in a line
+    pos, line = pos[first], line[first]
+    semi[line] = pos
+    mark = np.zeros(len(arr) + 1, dtype=np.int8)  # +1 at each field's `;`, -1 at its end (all distinct)
+    mark[pos] = 1
+    mark[body_end[line]] = -1
+    field = np.cumsum(mark[:-1], dtype=np.int32).astype(bool)
+    is_num &= ~field
+    bad[field & ~((arr - np.uint8(0x30)) < 4)] = True
+    bad[pos] = False  # the `;` itself opens the field
+    return semi
 
 
 def _mark_bad_minus(

@@ -76,6 +76,29 @@ def _int32(token: bytes) -> int | None:
     return value if INT32_MIN <= value <= INT32_MAX else None
 
 
+STATE_DIGITS = b"0123"  # a state field's characters (processing.detections.KeyState's values)
+_STATE_TO_INT = bytes.maketrans(STATE_DIGITS, bytes(range(4)))
+
+
+def split_states(body: bytes) -> tuple[bytes, bytes | None]:
+    """(frame body, state field or None): the field is what follows the frame's `;` (PROTOCOL.md 3)."""
+    head, semi, field = body.partition(b";")
+    return (head, field) if semi else (body, None)
+
+
+def state_problem(field: bytes, width: int) -> str | None:
+    """Why a state field cannot belong to a frame of `width` values, or None when it can."""
+    if len(field) != width:
+        return f"state field of {_count(len(field), 'digit')} for {_count(width, 'value')}"
+    if field.strip(STATE_DIGITS):
+        return "state field with a character other than 0, 1, 2, 3"
+    return None
+
+
+def state_values(field: bytes) -> list[int]:
+    return list(field.translate(_STATE_TO_INT))
+
+
 def parse_frame(body: bytes) -> tuple[int, list[int]] | None:
     """(seq or -1, values) of a v1 frame body (`@seq v0 v1 ...` or `v0 v1 ...`), None if malformed.
 
@@ -150,11 +173,14 @@ class LineRules:
         self._seqs: list[np.ndarray] = []
         self._rows: list[np.ndarray] = []
         self._times: list[np.ndarray] = []
+        self._states: list[np.ndarray] = []  # int8 (n, width) parts: the frames' state fields
+        self._single_states: list[list[int]] = []
         self._single_rows: list[list[int]] = []  # frames taken one at a time, not yet an array
         self._single_seqs: list[int] = []
         self._single_times: list[int] = []
         self._rows_width = -1  # the pending block's width (-1: no block pending)
         self._rows_timed = False
+        self._rows_stated = False
         self._rows_t_s = 0.0
         self._pending_first = 0
         self._t_s = 0.0
@@ -193,11 +219,14 @@ class LineRules:
         board_time = None
         if self._times:
             board_time = self._times[0] if len(self._times) == 1 else np.concatenate(self._times)
+        board_states = None
+        if self._states:
+            board_states = self._states[0] if len(self._states) == 1 else np.concatenate(self._states)
         n = readings.shape[0]
         t_s = np.full(n, self._rows_t_s, dtype=np.float64)
         self._events.append(FrameBlock(t_s=t_s, seq=seq, readings=readings, first_index=self._pending_first,
-                                       board_time=board_time))
-        self._rows, self._seqs, self._times = [], [], []
+                                       board_time=board_time, board_states=board_states))
+        self._rows, self._seqs, self._times, self._states = [], [], [], []
         self._rows_width = -1
 
     def _seal_singles(self) -> None:
@@ -208,7 +237,10 @@ class LineRules:
         self._seqs.append(np.array(self._single_seqs, dtype=np.int64))
         if self._single_times:
             self._times.append(np.array(self._single_times, dtype=np.int64))
+        if self._single_states:
+            self._states.append(np.array(self._single_states, dtype=np.int8))
         self._single_rows, self._single_seqs, self._single_times = [], [], []
+        self._single_states = []
 
     def _emit(self, event: Event) -> None:
         self._flush()
@@ -217,28 +249,35 @@ class LineRules:
     def _fault(self, kind: FaultKind, count: int = 1, detail: str = "") -> None:
         self._emit(LinkFault(t_s=self._t_s, kind=kind, count=count, detail=detail))
 
-    def _start_rows(self, width: int, timed: bool) -> None:
-        """Frames join the pending block only with its width, host time and time column (or none)."""
+    def _start_rows(self, width: int, timed: bool, stated: bool = False) -> None:
+        """Frames join the pending block only with its width, host time, time column (or none) and
+        state field (or none)."""
         if self._rows_width >= 0 and (self._rows_width != width or self._rows_t_s != self._t_s
-                                      or self._rows_timed != timed):
+                                      or self._rows_timed != timed or self._rows_stated != stated):
             self._flush()
         if self._rows_width < 0:
             self._pending_first = self.stats.frames
             self._rows_t_s, self._rows_width, self._rows_timed = self._t_s, width, timed
+            self._rows_stated = stated
 
-    def _add_frames(self, seq: np.ndarray, readings: np.ndarray) -> None:
-        self._start_rows(readings.shape[1], False)
+    def _add_frames(self, seq: np.ndarray, readings: np.ndarray, states: np.ndarray | None = None) -> None:
+        self._start_rows(readings.shape[1], False, states is not None)
         self._seal_singles()
         self._rows.append(readings)
         self._seqs.append(seq)
+        if states is not None:
+            self._states.append(states)
         self.stats.frames += readings.shape[0]
 
-    def _add_frame(self, seq: int, values: list[int], board_time: int | None) -> None:
-        self._start_rows(len(values), board_time is not None)
+    def _add_frame(self, seq: int, values: list[int], board_time: int | None,
+                   states: list[int] | None = None) -> None:
+        self._start_rows(len(values), board_time is not None, states is not None)
         self._single_rows.append(values)
         self._single_seqs.append(seq)
         if board_time is not None:
             self._single_times.append(board_time)
+        if states is not None:
+            self._single_states.append(states)
         self.stats.frames += 1
 
     # -- lines ------------------------------------------------------------------------------------
@@ -291,16 +330,16 @@ class LineRules:
             if given is None and self.strict:
                 self.bad_checksum(line, "no checksum after checksummed lines")
                 return
-            parsed = parse_frame(body)
-            if parsed is None:
-                self.garbled(line, "malformed frame")
-                return
-            self.frame(parsed[0], parsed[1])
+            self._stated_frame(line, body)
             return
         lead = first if first not in (b" ", b"\t") else body.lstrip(_BLANK)[:1]
         looks_like_data = lead == b"-" or lead.isdigit()
         if looks_like_data and given is None and self.strict:  # checked before parsing, as in v1
             self.bad_checksum(line, "no checksum after checksummed lines")
+            return
+        if looks_like_data and b";" in body:  # a v1 plain frame with a state field (never a plain form)
+            self._shape_streak, self._shape_count = None, 0
+            self._stated_frame(line, body)
             return
         plain = parse_plain(body)
         if plain is None:
@@ -335,6 +374,23 @@ class LineRules:
         extra = self.stats.extra
         extra["answers"] = extra.get("answers", 0) + 1
         self._emit(Answer(t_s=self._t_s, kind=kind.decode("ascii"), text=text.strip(_BLANK).decode("ascii")))
+
+    def _stated_frame(self, line: bytes, body: bytes) -> None:
+        """A v1 frame, `@seq` or not, with or without its state field (PROTOCOL.md section 3)."""
+        head, field = split_states(body)
+        parsed = parse_frame(head)
+        if parsed is None:
+            self.garbled(line, "malformed frame")
+            return
+        states = None
+        if field is not None:
+            problem = state_problem(field, len(parsed[1]))
+            if problem is not None:
+                self.garbled(line, problem)
+                return
+            states = state_values(field)
+            self._v1 = True  # only a v1 frame carries the field: later plain lines are v1 frames too
+        self.frame(parsed[0], parsed[1], states=states)
 
     def _info_line(self, line: bytes, text: bytes, checked: bool) -> None:
         try:
@@ -455,8 +511,8 @@ class LineRules:
                         return
                     if info is not None and info.channels is not None:
                         hold.channels = info.channels
-                elif body[:1] == b"@":
-                    parsed = parse_frame(body)
+                elif body[:1] == b"@" or (b";" in body and body.lstrip(_BLANK)[:1] in b"-0123456789"):
+                    parsed = _v1_frame(body)
                     if parsed is not None:
                         # A sequenced frame: the board speaks v1, the held lines were strays (say the
                         # tail of a line cut by the port opening). Read them as v1, decide no form,
@@ -547,8 +603,10 @@ class LineRules:
             self._fault(FaultKind.REPEATED, count=count,
                         detail=f"seq {seq} repeated ({total} repeated frame{plural} so far)")
 
-    def frame(self, seq: int, values: list[int], board_time: int | None = None) -> None:
-        """One well-formed frame (seq -1 when it had none; board_time from a time column, or None)."""
+    def frame(self, seq: int, values: list[int], board_time: int | None = None,
+              states: list[int] | None = None) -> None:
+        """One well-formed frame (seq -1 when it had none; board_time from a time column, or None;
+        states from its state field, or None)."""
         if seq >= 0:
             self._v1 = True
             self._step_seq(seq)
@@ -569,19 +627,21 @@ class LineRules:
             self.stats.board_changes += 1
             self._emit(BoardChanged(t_s=self._t_s, old_channels=old, channels=width))
         self._streak_width, self._streak = None, 0
-        self._add_frame(seq, values, board_time)
+        self._add_frame(seq, values, board_time, states)
 
-    def accept_run(self, seq: np.ndarray, readings: np.ndarray, checked: bool) -> None:
+    def accept_run(self, seq: np.ndarray, readings: np.ndarray, checked: bool,
+                   states: np.ndarray | None = None) -> None:
         """Frames of the known width that passed every line rule in bulk, in order.
 
-        `seq` is -1 for every row of a plain run; `checked` says some row carried a checksum.
+        `seq` is -1 for every row of a plain run; `checked` says some row carried a checksum; `states`
+        (int8, the shape of `readings`) their state fields when every row carried one, else None.
         """
         if checked:
             self.strict = True
         self._streak_width, self._streak = None, 0
         if seq[0] < 0:
             self._shape_streak, self._shape_count = None, 0
-            self._add_frames(seq, readings)
+            self._add_frames(seq, readings, states)
             return
         self._v1 = True
         prev = np.empty_like(seq)
@@ -591,12 +651,21 @@ class LineRules:
         start = 0
         for k in odd:
             if k > start:
-                self._add_frames(seq[start:k], readings[start:k])
+                self._add_frames(seq[start:k], readings[start:k], None if states is None else states[start:k])
                 self.last_seq = int(seq[k - 1])
             self._step_seq(int(seq[k]))
             start = k
-        self._add_frames(seq[start:], readings[start:])
+        self._add_frames(seq[start:], readings[start:], None if states is None else states[start:])
         self.last_seq = int(seq[-1])
+
+
+def _v1_frame(body: bytes) -> tuple[int, list[int]] | None:
+    """(seq, values) of a v1 frame whose state field, if any, is well-formed; else None."""
+    head, field = split_states(body)
+    parsed = parse_frame(head)
+    if parsed is None or (field is not None and state_problem(field, len(parsed[1])) is not None):
+        return None
+    return parsed
 
 
 def _integer_columns(plain: PlainLine) -> bool:

@@ -2,7 +2,8 @@
 
 A handful of lines (what a live link usually reads at once) costs less this way than the fixed
 price of `protocol.fastscan`'s vectorised passes. Frames are taken here when they are plain
-decimal values (at most ten digits) with the v1 separators, `@seq` or not, checksummed or not. Every other
+decimal values (at most ten digits) with the v1 separators, `@seq` or not, with a state field or not,
+checksummed or not. Every other
 line, or a run with a value out of range, goes through `LineRules.line`, so the results are the
 per-line rules' exactly (tests/protocol proves it with hypothesis, as for the scan).
 """
@@ -21,7 +22,7 @@ _SEP = rb"(?>[ \t]*+,[ \t]*+|[ \t]++)"
 _VALUE = rb"-?[0-9]{1,10}"
 _FRAME = re.compile(
     rb"(?:@([0-9]{1,5})" + _SEP + rb")?(" + _VALUE + rb"(?:" + _SEP + _VALUE + rb")*" + _SEP + rb"?)"
-    rb"(?:\*([0-9A-Fa-f]{4}))?"
+    rb"(?:;([0-3]++))?(?:\*([0-9A-Fa-f]{4}))?"
 )
 _TO_SPACE = bytes.maketrans(b",\t", b"  ")
 
@@ -40,6 +41,8 @@ class _Run:
         self.lines: list[bytes] = []
         self.values: list[bytes] = []
         self.seqs: list[int] = []
+        self.states: list[bytes] = []  # the state fields, when the run's frames carry them
+        self.stated = False
         self.sequenced = False
         self.checked = False
 
@@ -53,7 +56,11 @@ class _Run:
         else:
             n = len(self.lines)
             seq = np.array(self.seqs, dtype=np.int64) if self.sequenced else np.full(n, -1, dtype=np.int64)
-            rules.accept_run(seq, numbers.reshape(n, width), self.checked)
+            states = None
+            if self.states:
+                states = (np.frombuffer(b"".join(self.states), dtype=np.uint8) - 0x30).astype(np.int8)
+                states = states.reshape(n, width)
+            rules.accept_run(seq, numbers.reshape(n, width), self.checked, states)
         self.__init__()
 
 
@@ -69,15 +76,14 @@ def decode_lines(lines: list[bytes], rules: LineRules) -> None:
         m = match(line)
         ok = m is not None and len(line) <= limit
         if ok:
-            given = m.group(3)
+            seq_text, values, states, given = m.groups()
             if given is None:
                 ok = not (rules.strict or run.checked)
             else:
-                ok = crc(line[: m.start(3) - 1], 0xFFFF) == int(given, 16)
-            values = m.group(2)
-            seq_text = m.group(1)
+                ok = crc(line[: m.start(4) - 1], 0xFFFF) == int(given, 16)
             sequenced = seq_text is not None
-            ok = ok and _width(values) == rules.channels
+            width = _width(values)
+            ok = ok and width == rules.channels and (states is None or len(states) == width)
             if ok and sequenced:
                 seq = int(seq_text)
                 ok = seq < SEQ_MODULUS
@@ -88,12 +94,15 @@ def decode_lines(lines: list[bytes], rules: LineRules) -> None:
             rules.line(line)
             take_seq, take_plain = rules.holding == 0, rules.bulk_plain
             continue
-        if run.lines and sequenced != run.sequenced:
+        if run.lines and (sequenced != run.sequenced or (states is None) == run.stated):
             run.flush(rules, rules.channels)
         run.lines.append(line)
         run.values.append(values)
         run.sequenced = sequenced
         if sequenced:
             run.seqs.append(seq)
+        if states is not None:
+            run.states.append(states)
+            run.stated = True
         run.checked = run.checked or given is not None
     run.flush(rules, rules.channels or 0)

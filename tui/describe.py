@@ -15,6 +15,7 @@ from processing.detections import (
     StuckRelease,
     Touch,
 )
+from processing.twin import TwinMismatch
 from protocol.events import BoardChanged, BoardInfo, Event, FaultKind, LinkFault, LinkStatus, Note
 from tui.words import plural
 
@@ -25,8 +26,9 @@ def _name(names: Sequence[str], channel: int | None) -> str:
     return names[channel] if 0 <= channel < len(names) else f"ch{channel}"
 
 
-def describe_detection(det: DetectionEvent, names: Sequence[str]) -> Text | None:
-    """One line for a detection event; slider moves are not logged (only touch and release)."""
+def describe_detection(det: DetectionEvent | TwinMismatch, names: Sequence[str]) -> Text | None:
+    """One line for a detection event (or a twin check's report); slider moves are not logged (only
+    touch and release)."""
     if isinstance(det, Touch):
         return Text(f"● {_name(names, det.channel)} touch (delta {det.delta_counts})")
     if isinstance(det, StuckRelease):
@@ -43,6 +45,8 @@ def describe_detection(det: DetectionEvent, names: Sequence[str]) -> Text | None
         if det.position is None:
             return Text(f"slider {det.slider} released")
         return None
+    if isinstance(det, TwinMismatch):
+        return Text(f"≠ {det.describe(_name(names, det.channel))}")
     return None
 
 

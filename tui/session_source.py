@@ -240,6 +240,7 @@ class SessionSource:
             recording_error=self.pipeline.recording_error,
             profile_name=path.name if path else "(not saved yet)", unsaved=self.unsaved(),
             silent_s=self._silent_s(), silence=self._silence(stats), scale=self._scale,
+            twin=self.session.twin.count if self.session.twin.active else None,
         )
 
     def _silent_s(self) -> int | None:

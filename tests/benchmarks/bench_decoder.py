@@ -38,9 +38,10 @@ USB_FULL_SPEED_BULK_BPS = 19 * 64 * 1000  # 1,216,000 B/s
 CHUNK_BYTES = 64 * 1024
 
 
-def make_stream(frames: int, channels: int, seed: int = 7) -> bytes:
+def make_stream(frames: int, channels: int, seed: int = 7, states: bool = False) -> bytes:
     """Readings like a real board's: per-channel baselines, a little noise, a few touches; a note every
-    2000 frames and one frame missing every 5000, so the run logic is exercised too."""
+    2000 frames and one frame missing every 5000, so the run logic is exercised too. With `states`, each
+    frame carries the board's key states (PROTOCOL.md section 3: touched where the reading dipped)."""
     rng = np.random.default_rng(seed)
     baseline = rng.integers(900, 32000, size=channels)
     readings = baseline + np.rint(rng.normal(0.0, 5.0, size=(frames, channels))).astype(np.int64)
@@ -49,7 +50,8 @@ def make_stream(frames: int, channels: int, seed: int = 7) -> bytes:
     out, seq = [], 0
     for start in range(0, frames, 1000):
         block = readings[start : start + 1000]
-        out.append(encode_frames(block, seq % 65536, checksum=True))
+        field = (touched[start : start + 1000] * 2) if states else None
+        out.append(encode_frames(block, seq % 65536, checksum=True, states=field))
         seq += len(block) + (1 if start % 5000 == 4000 else 0)
         if start % 2000 == 1000:
             out.append(encode_note(f"frame {start}: zone check", checksum=True))
@@ -98,6 +100,22 @@ def plain_loop(data: bytes) -> tuple[np.ndarray, np.ndarray, dict[str, int]]:
         rows.append(values)
         seqs.append(seq)
     return np.array(rows, dtype=np.int64), np.array(seqs, dtype=np.int64), counts
+
+
+def plain_loop_states(data: bytes) -> tuple[np.ndarray, np.ndarray, dict[str, int]]:
+    """The plain loop for frames with a state field: the line's CRC checked, the field cut off (its
+    digits taken as they are), then the loop above."""
+    crc = binascii.crc_hqx
+    lines = []
+    for line in data.split(b"\n"):
+        head, semi, rest = line.partition(b";")
+        if semi:
+            digits, star, given = rest.partition(b"*")
+            if star and crc(head + semi + digits, 0xFFFF) != int(given, 16):
+                continue
+            line = head
+        lines.append(line)
+    return plain_loop(b"\n".join(lines))
 
 
 def run_decoder(decoder_cls: type, data: bytes, chunk_bytes: int = CHUNK_BYTES) -> tuple[list, object]:
@@ -177,15 +195,21 @@ def summary(events: list) -> tuple[np.ndarray, np.ndarray, list, list]:
     return readings, seqs, indices.tolist(), others
 
 
-def check_same(data: bytes) -> None:
+def check_same(data: bytes, loop=None) -> None:
+    loop = loop or plain_loop
     fast_events, fast_stats = run_decoder(Decoder, data)
     plain_events, plain_stats = run_decoder(PlainDecoder, data)
     fr, fs, fi, fo = summary(fast_events)
     pr, ps, pi, po = summary(plain_events)
     assert fast_stats.as_dict() == plain_stats.as_dict(), (fast_stats, plain_stats)
     assert np.array_equal(fr, pr) and np.array_equal(fs, ps) and fi == pi and fo == po
-    lr, ls, counts = plain_loop(data)
+    lr, ls, counts = loop(data)
     assert np.array_equal(fr, lr) and np.array_equal(fs, ls)
+    fast_states = [e.board_states for e in fast_events if isinstance(e, FrameBlock)]
+    plain_states = [e.board_states for e in plain_events if isinstance(e, FrameBlock)]
+    assert all(a is None for a in fast_states) == all(b is None for b in plain_states)
+    if fast_states and fast_states[0] is not None:
+        assert np.array_equal(np.concatenate(fast_states), np.concatenate(plain_states))
     for key, value in counts.items():
         assert getattr(fast_stats, key) == value, key
 
@@ -200,6 +224,22 @@ def best_of(repeats: int, fns: dict) -> dict[str, float]:
             fn()
             best[name] = min(best[name], time.process_time() - t0)
     return best
+
+
+def bench_states(frames: int, repeats: int) -> None:
+    """Frames with the optional state field, 16 channels: the same bulk ways take them."""
+    data = make_stream(frames, 16, states=True)
+    check_same(data, plain_loop_states)
+    n_frames = sum(len(e) for e in Decoder().feed(data, 0.0) if isinstance(e, FrameBlock))
+    best = best_of(repeats, {"fast": lambda: run_decoder(Decoder, data),
+                             "loop": lambda: plain_loop_states(data),
+                             "small": lambda: run_decoder(Decoder, data, 4096)})
+    print(
+        f"with the state field, 16 channels ({len(data) / n_frames:.0f} B/frame): fast "
+        f"{len(data) / best['fast'] / 1e6:6.1f} MB/s, {n_frames / best['fast']:9.0f} frames/s, "
+        f"{best['loop'] / best['fast']:.2f}x the plain loop; 4 KiB chunks "
+        f"{len(data) / best['small'] / 1e6:.1f} MB/s | same events, stats, states as the plain decoder: yes"
+    )
 
 
 def main() -> int:
@@ -244,6 +284,7 @@ def main() -> int:
             f"    with CRLF line ends: {len(crlf) / best['crlf'] / 1e6:6.1f} MB/s, "
             f"{best['loop'] / best['crlf']:.2f}x the plain loop"
         )
+    bench_states(frames, repeats)
     bench_forms(frames // 2, max(2, repeats // 3))
     return 0
 

@@ -24,7 +24,9 @@ def flat(events: Sequence[Event], with_time: bool = True) -> list[tuple]:
         if isinstance(ev, FrameBlock):
             for k in range(len(ev)):
                 t = float(ev.t_s[k]) if with_time else None
-                out.append(("frame", t, int(ev.seq[k]), tuple(ev.readings[k].tolist()), ev.first_index + k))
+                states = None if ev.board_states is None else tuple(ev.board_states[k].tolist())
+                out.append(("frame", t, int(ev.seq[k]), tuple(ev.readings[k].tolist()), ev.first_index + k,
+                            states))
         else:
             fields = {name: getattr(ev, name) for name in type(ev).__slots__}
             if not with_time:

@@ -1,11 +1,13 @@
 """Properties: the fast decoder equals the plain one; any cuts give the same events; nothing raises;
-memory stays bounded; what the encoder writes decodes back. For v1 lines and for every plain form
-(columns, pairs, brackets, leading blanks, a time column, decimals, text lines), any mix of LF, CR and
-CRLF line ends, and repeated sequence numbers."""
+memory stays bounded; what the encoder writes decodes back. For v1 lines (with and without a state
+field, well-formed or mangled: wrong length, wrong character, blanks, two fields) and for every plain
+form (columns, pairs, brackets, leading blanks, a time column, decimals, text lines), any mix of LF, CR
+and CRLF line ends, and repeated sequence numbers."""
 
 from unittest import mock
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -37,10 +39,49 @@ def frame_lines(draw):
         text += ("-" if v < 0 else "") + digits + s
     if not draw(st.booleans()):
         text = text.rstrip(" ,\t")
+    if values and draw(st.integers(0, 3)) == 0:
+        text += draw(state_field(len(values)))
     if draw(st.booleans()):
         seq = draw(st.one_of(st.integers(0, 65535), st.sampled_from([0, 1, 2, 65534, 65535, 65536, 99999])))
         text = f"@{seq}" + draw(st.sampled_from([" ", " ", ",", "\t", "", " , "])) + text
     return text.encode()
+
+
+@st.composite
+def state_field(draw, width: int) -> str:
+    """A frame's state field (PROTOCOL.md section 3): mostly right, sometimes mangled."""
+    digits = "".join(draw(st.sampled_from("0123")) for _ in range(width))
+    how = draw(st.sampled_from(["none", "good", "good", "good", "short", "long", "char", "blank", "two",
+                                "empty", "sep"]))
+    if how == "none":
+        return ""
+    if how == "short":
+        digits = digits[:-1]
+    elif how == "long":
+        digits += draw(st.sampled_from("0123"))
+    elif how == "char":
+        k = draw(st.integers(0, max(0, width - 1)))
+        digits = digits[:k] + draw(st.sampled_from(["4", "9", "x", "-", " ", ","])) + digits[k + 1:]
+    elif how == "blank":
+        digits = " " + digits
+    elif how == "two":
+        digits += ";" + digits
+    elif how == "empty":
+        digits = ""
+    elif how == "sep":
+        return draw(st.sampled_from([" ", ",", " , "])) + ";" + digits
+    return ";" + digits
+
+
+@st.composite
+def stated_frames(draw):
+    """Frames with a state field, the encoder's shape or with the other v1 separators, of a common width."""
+    width = draw(st.sampled_from([3, 3, 3, 2, 4]))
+    values = draw(st.lists(st.integers(-(2**31) - 2, 2**31 + 1), min_size=width, max_size=width))
+    seq = draw(st.one_of(st.none(), st.integers(0, 65535), st.integers(0, 65535), st.sampled_from([65536])))
+    sep = draw(st.sampled_from([" ", " ", " ", ", ", "\t"]))
+    text = sep.join(map(str, values)) + draw(state_field(width))
+    return (text if seq is None else f"@{seq} {text}").encode()
 
 
 @st.composite
@@ -55,6 +96,7 @@ def clean_frames(draw):
 
 _info = st.sampled_from([
     b"! proto=1 board=gh channels=3 rate=100 names=a,b,c polarity=-",
+    b"! proto=1 board=gh channels=3 states=1",
     b"! proto=1 channels=2",
     b"! channels=4 fw=1",
     b"! board=x",
@@ -84,6 +126,7 @@ _other = st.one_of(
     st.just(b"   "),
     st.binary(max_size=12),
     st.text(alphabet="0123456789 ,-@*\t\rABCDEFabcdef", max_size=20).map(str.encode),
+    st.text(alphabet="0123; ,-@*", max_size=16).map(str.encode),
     st.just(b"7 " * 4100),  # 8200 bytes: overlong
     _answers,
 )
@@ -91,7 +134,8 @@ _other = st.one_of(
 
 @st.composite
 def lines(draw):
-    line = draw(st.one_of(frame_lines(), frame_lines(), clean_frames(), clean_frames(), _other))
+    line = draw(st.one_of(frame_lines(), frame_lines(), clean_frames(), clean_frames(), stated_frames(),
+                          stated_frames(), _other))
     mode = draw(st.sampled_from(["none", "none", "good", "good", "good", "lower", "bad"]))
     if mode == "good":
         line = ck(line)
@@ -181,7 +225,8 @@ def board_streams(draw):
                                       plain_lines(), frame_lines(), st.just(b""))))
             continue
         if roll == 1:
-            out.append(b"@%d 5 6" % draw(st.sampled_from([0, 1, 7, 7, 65535])))
+            line = b"@%d 5 6" % draw(st.sampled_from([0, 1, 7, 7, 65535]))
+            out.append(draw(st.sampled_from([line, line, line + b";02", b"5 6;31", b"5 6;3"])))
             continue
         if roll == 2:
             t -= draw(st.integers(1, 500))  # the board restarted (or a wild value)
@@ -340,3 +385,55 @@ def test_info_and_note_round_trip(extra, note, checksum):
     info, note_ev = events
     assert info.fields == {k: (",".join(v) if isinstance(v, list) else str(v)) for k, v in fields.items()}
     assert info.names == ("zone1", "stop") and note_ev.text == note.strip(" \t")
+
+
+@SETTINGS
+@given(
+    st.integers(1, 40),
+    st.integers(1, 12),
+    st.one_of(st.none(), st.integers(0, 65535)),
+    st.booleans(),
+    st.integers(0, 2**32),
+)
+def test_state_fields_decode_to_board_states(n, channels, first_seq, checksum, seed):
+    """Frames with a state field as a board writes them (`;` and one digit 0-3 per channel, before the
+    checksum, the CRC written here with binascii.crc_hqx) come out as `board_states`, the same by every
+    way; frames without one carry None."""
+    rng = np.random.default_rng(seed)
+    block = rng.integers(-(2**31), 2**31, size=(n, channels))
+    states = rng.integers(0, 4, size=(n, channels))
+    lines = []
+    for i in range(n):
+        body = " ".join(map(str, block[i].tolist())) + ";" + "".join(map(str, states[i].tolist()))
+        if first_seq is not None:
+            body = f"@{(first_seq + i) % 65536} " + body
+        lines.append(ck(body.encode()) if checksum else body.encode())
+    head = encode_info({"proto": 1, "channels": channels, "states": 1}, checksum)
+    events, stats = assert_all_ways_agree([head + b"".join(line + b"\n" for line in lines)])
+    frames = [f for f in events if f[0] == "frame"]
+    assert [f[3] for f in frames] == [tuple(r) for r in block.tolist()]
+    assert [f[5] for f in frames] == [tuple(r) for r in states.tolist()]
+    assert stats["garbled"] == stats["bad_checksum"] == stats["lost"] == 0
+
+
+@pytest.mark.parametrize("field, why", [
+    (b";01", "state field of 2 digits for 3 values"),
+    (b";0123", "state field of 4 digits for 3 values"),
+    (b";", "state field of 0 digits for 3 values"),
+    (b";014", "other than 0, 1, 2, 3"),
+    (b"; 01", "other than 0, 1, 2, 3"),
+    (b";0;1", "other than 0, 1, 2, 3"),
+    (b"; 012", "state field of 4 digits for 3 values"),
+])
+@pytest.mark.parametrize("head", [b"@1 7 8 9", b"7 8 9"])
+def test_a_mangled_state_field_is_garbled_the_same_by_every_way(field, why, head):
+    first = b"@0 1 2 3;000" if head.startswith(b"@") else b"1 2 3;000"
+    last = b"@2 4 5 6;210" if head.startswith(b"@") else b"4 5 6;210"
+    lines = [b"! proto=1 channels=3 states=1", first, head + field, last]
+    for checked in (False, True):
+        data = b"".join((ck(line) if checked else line) + b"\n" for line in lines)
+        events, stats = assert_all_ways_agree([data])
+        assert stats["garbled"] == 1 and stats["frames"] == 2
+        faults = [dict(e[1]) for e in events if e[0] == "LinkFault"]
+        assert any(why in f["detail"] for f in faults), faults
+        assert [f[5] for f in events if f[0] == "frame"] == [(0, 0, 0), (2, 1, 0)]

@@ -277,7 +277,7 @@ def test_stream_order_and_timestamps(dec):
 def test_line_completed_in_a_later_chunk_takes_that_chunks_time(dec):
     assert dec.feed(b"@7 1 2", 1.0) == []
     ev = dec.feed(b" 3\n", 2.0)
-    assert flat(ev) == [("frame", 2.0, 7, (1, 2, 3), 0)]
+    assert flat(ev) == [("frame", 2.0, 7, (1, 2, 3), 0, None)]
 
 
 def test_stats_count_bytes(dec):

@@ -47,6 +47,16 @@ def test_buffer_drops_newest_frames_behind_one_growing_marker():
     assert len(buf.drain()[0]) == 2
 
 
+def test_a_cut_block_keeps_its_board_times_and_states():
+    buf = EventBuffer(max_frames=3, max_events=10)
+    states = np.array([[0, 1], [2, 3], [1, 0], [3, 2]], dtype=np.int8)
+    readings = np.zeros((4, 2), dtype=np.int64)
+    buf.put([FrameBlock(np.zeros(4), np.arange(4), readings, 0, np.arange(4), states)])
+    kept = buf.drain()[0]
+    assert len(kept) == 3 and kept.board_time.tolist() == [0, 1, 2]
+    assert np.array_equal(kept.board_states, states[:3])
+
+
 def test_buffer_bounds_other_events_but_keeps_status():
     buf = EventBuffer(max_frames=5, max_events=2)
     dropped = []

@@ -36,6 +36,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--fault", action="append", default=[], metavar="ITEM", help=f"inject a fault: {SYNTAX}")
     p.add_argument("--no-checksum", action="store_true", help="send lines without checksums")
     p.add_argument("--no-script", action="store_true", help="no scripted touches (only your key presses)")
+    p.add_argument("--states", action="store_true",
+                   help="send the board's own key states with every frame (its detector: the C library)")
     p.add_argument("--random", type=float, metavar="PER_MIN", help="random touches per minute")
     p.add_argument("--flash", metavar="PATH", help="keep the board's kept settings (section 7's `keep`) in "
                    "this file, so they survive this process too")
@@ -89,7 +91,7 @@ def run(args: argparse.Namespace) -> int:
     flash = flash_at(args.flash) if args.flash else None
     board = SimBoard(args.board, seed=args.seed, speed=args.speed, faults=FaultPlan.parse(args.fault),
                      checksum=not args.no_checksum, script=not args.no_script, random_per_min=args.random,
-                     settings=not args.no_settings, flash=flash)
+                     settings=not args.no_settings, flash=flash, states=args.states)
     server = PtyServer(board)
     if args.link:
         _make_link(server, args.link)

@@ -1,6 +1,7 @@
 """Where headless runs write what happened: JSON Lines for scripts, readable lines for people.
 
-Both writers take the same calls (`hello`, `touch`, `release`, `link`, `note`, `status`, `summary`) with
+Both writers take the same calls (`hello`, `touch`, `release`, `link`, `note`, `twin_mismatch`, `status`,
+`summary`) with
 plain values, so the run loop does not care which one it has. `t` is seconds since the run started.
 The human writer uses rich: colour on a terminal, plain text when piped, none at all under NO_COLOR.
 """
@@ -43,6 +44,8 @@ class Output(Protocol):
     def note(self, t_s: float, text: str) -> None: ...
     def group(self, t_s: float, group: str, channel: str | None, index: int) -> None: ...
     def slider(self, t_s: float, slider: str, position: int | None, touched: bool, index: int) -> None: ...
+    def twin_mismatch(self, t_s: float, channel: str, index: int, board_state: str, padtune_state: str,
+                      count: int) -> None: ...
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None: ...
     def summary(self, t_s: float, summary: Mapping[str, Any]) -> None: ...
     def close(self) -> None: ...
@@ -79,6 +82,11 @@ class JsonLinesOutput:
 
     def slider(self, t_s: float, slider: str, position: int | None, touched: bool, index: int) -> None:
         self._emit("slider", t_s, slider=slider, position=position, touched=touched, index=index)
+
+    def twin_mismatch(self, t_s: float, channel: str, index: int, board_state: str, padtune_state: str,
+                      count: int) -> None:
+        self._emit("twin_mismatch", t_s, channel=channel, index=index, board_state=board_state,
+                   padtune_state=padtune_state, count=count)
 
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
         self._emit("status", t_s, channels=list(channels))
@@ -212,6 +220,12 @@ class HumanOutput:
         where = f"at {position}" if touched and position is not None else "released"
         self._line(t_s, "slider", "magenta", f"{slider} {where}  (frame {index})")
 
+    def twin_mismatch(self, t_s: float, channel: str, index: int, board_state: str, padtune_state: str,
+                      count: int) -> None:
+        frames = f"{count} disagreeing frame{'' if count == 1 else 's'} so far"
+        self._line(t_s, "twin", "bold red", f"{channel}  board {board_state}, padtune {padtune_state}  "
+                   f"(frame {index}; {frames})")
+
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
         self.console.print(channel_table([_readable_status(c) for c in channels], STATUS_COLUMNS,
                                          title=f"status at {t_s:.1f} s", plain=self.plain))
@@ -220,6 +234,9 @@ class HumanOutput:
         counts = ", ".join(f"{k} {summary[k]}" for k in ("frames", "lost", "garbled", "bad_checksum",
                                                           "overlong", "resets") if k in summary)
         self.console.print(Text(f"summary after {t_s:.1f} s: {counts}"))
+        if "twin_compared" in summary:  # the board sent its own key states (PROTOCOL.md section 3)
+            self.console.print(Text(f"twin check: {summary['twin_mismatches']} of {summary['twin_compared']} "
+                                    "frames with the board's states disagreed with padtune"))
         columns = [("name", "key"), ("touches", "touches"), ("noise_rms", "noise rms"),
                    ("noise_pp", "noise pp"), ("snr", "SNR")]
         if any("false_touches" in c for c in summary.get("channels", [])):

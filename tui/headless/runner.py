@@ -22,6 +22,7 @@ from typing import Any
 from processing.detections import DetectionEvent, GroupChange, Release, SliderChange, StuckRelease, Touch
 from processing.recording_format import Mark
 from processing.session import Session
+from processing.twin import TwinMismatch
 from protocol.events import (
     BoardChanged,
     BoardInfo,
@@ -110,6 +111,7 @@ class DetectionRun:
     frames: int = 0
     counts: dict[str, int] = field(default_factory=lambda: dict.fromkeys(_SUMMARY_FAULTS.values(), 0))
     touches: list[FoundTouch] = field(default_factory=list)
+    twin_count: int = 0  # the last twin report's count of disagreeing frames
     _next_status_t: float | None = None
     _board_changed_seen: bool = False
     _form: StreamForm | None = None  # the plain form of this session, if one was recognised
@@ -119,10 +121,10 @@ class DetectionRun:
         names = self.session.names
         return names[channel] if channel < len(names) else f"ch{channel}"
 
-    def feed(self, events: Iterable[Event], now_t_s: float) -> list[DetectionEvent]:
+    def feed(self, events: Iterable[Event], now_t_s: float) -> list[DetectionEvent | TwinMismatch]:
         """Hand `events` to the session one by one and tell what happened; returns the detections (a
         `tui.pipeline.Feed`: `monitor`'s pipeline calls this, `replay` calls it with recorded events)."""
-        found: list[DetectionEvent] = []
+        found: list[DetectionEvent | TwinMismatch] = []
         for event in events:
             found.extend(self._event(event))
             if self.link_warnings and isinstance(event, LinkFault):
@@ -144,7 +146,7 @@ class DetectionRun:
     def _rel(self, t_s: float) -> float:
         return t_s - self.origin_t_s
 
-    def _event(self, event: Event) -> list[DetectionEvent]:
+    def _event(self, event: Event) -> list[DetectionEvent | TwinMismatch]:
         if isinstance(event, FrameBlock):
             self._say_form(len(event) and event.channels)
             self.frames += len(event)
@@ -188,7 +190,7 @@ class DetectionRun:
             channels = len(form.names) or (info.channels if info else None)
         self.output.hello(self._rel(form.t_s), stream_form_dict(form, info, channels or None))
 
-    def _detection(self, det: DetectionEvent) -> None:
+    def _detection(self, det: DetectionEvent | TwinMismatch) -> None:
         if isinstance(det, Touch):
             t = self._rel(det.t_s)
             found = FoundTouch(det.channel, self.name(det.channel), det.index, t, det.delta_counts,
@@ -203,6 +205,10 @@ class DetectionRun:
             self.output.group(self._rel(det.t_s), det.group, name, det.index)
         elif isinstance(det, SliderChange):
             self.output.slider(self._rel(det.t_s), det.slider, det.position, det.touched, det.index)
+        elif isinstance(det, TwinMismatch):
+            self.twin_count = det.count
+            self.output.twin_mismatch(self._rel(det.t_s), self.name(det.channel), det.index,
+                                      det.board_state.name.lower(), det.padtune_state.name.lower(), det.count)
 
     @property
     def judges_touches(self) -> bool:
@@ -264,7 +270,9 @@ class DetectionRun:
             if self.judges_touches:
                 row["false_touches"] = sum(1 for f in mine if f.expected is False)
             channels.append(row)
-        return {"frames": self.frames, **self.counts, "channels": channels}
+        twin = self.session.twin
+        extra = {"twin_compared": twin.compared, "twin_mismatches": twin.count} if twin.active else {}
+        return {"frames": self.frames, **self.counts, **extra, "channels": channels}
 
     def finish(self, now_t_s: float) -> dict[str, Any]:
         self._say_form(None)

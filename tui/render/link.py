@@ -1,9 +1,10 @@
 """The link strip: where the data comes from, how well it arrives, and what is being kept.
 
-Every line is fitted to the width it is given: the state, baud rate, frame rate, link errors, the
-unsaved mark and the recording state always stay whole; the names (port, board, profile, recording
-file) give way, cut in the middle (a by-id path's end says which adapter, a `sim://` URL's start which
-board), and a down link's reason is cut at its end (the log has it whole).
+Every line is fitted to the width it is given: the state, baud rate, frame rate, link errors, the twin
+check (when the board sends its own key states), the unsaved mark and the recording state always stay
+whole; the names (port, board, profile, recording file) give way, cut in the middle (a by-id path's end
+says which adapter, a `sim://` URL's start which board), and a down link's reason is cut at its end
+(the log has it whole).
 """
 
 from __future__ import annotations
@@ -15,7 +16,7 @@ from rich.text import Text
 
 from tui.render import Styles, pick
 from tui.render.views import LinkView
-from tui.words import ELLIPSIS, middle
+from tui.words import ELLIPSIS, middle, plural
 
 _STATE_WORDS = {
     "connecting": ("…", "connecting", "warn"),
@@ -124,6 +125,10 @@ def _connection(view: LinkView, compact: bool) -> list[_Part]:
 
 def _keeping(view: LinkView, compact: bool) -> list[_Part]:
     parts = _counters(view, compact)
+    if view.twin is not None:  # the board sends its own key states: does it agree with padtune?
+        parts.append(_Part(SEP, "dim"))
+        parts.append(_Part(f"twin ≠ {plural(view.twin, 'frame')}", "bad") if view.twin
+                     else _Part("twin agrees", "good"))
     # The profile before the recording; both names give way before the unsaved mark or the state.
     parts += [_Part(SEP, "dim"), _Part("profile "), _Part(view.profile_name, "name", NAME_MIN_CELLS)]
     if view.unsaved:

@@ -74,6 +74,8 @@ class LinkView:
     silent_s: int | None = None  # whole seconds without a frame while connected (None: frames arrive)
     scale: int = 1  # a plain form's fixed scale: readings are the printed values x scale (PROTOCOL.md 6)
     silence: str = "NO FRAMES"  # "SILENT" while the link reports no bytes at all (its `silent` event)
+    twin: int | None = None  # frames where the board's own key states disagreed with padtune's (None:
+    #                          the board sends no states, PROTOCOL.md section 3)
     extra: dict[str, int] = field(default_factory=dict)
 
 

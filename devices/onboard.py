@@ -1,0 +1,68 @@
+"""A simulated board's own detector: the C firmware library, run on the readings the board sends.
+
+A board that runs padtune's detector in its firmware (`devices/firmware/`) can send what it decided with
+every frame (the state field, PROTOCOL.md section 3). The simulated boards do the same through the
+library itself (`devices.firmware.clib`, compiled with the system C compiler on first use), never
+through padtune's Python engine: what they send is what a board running the library would send, so
+padtune's twin check compares two independent implementations.
+
+The board's detector starts from `DetectorSettings()` on every channel, the same values as a default
+profile (`processing.settings.ChannelSettings()`, checked by tests/devices/test_onboard.py): run padtune
+with a profile of those settings (`padtune monitor ... --profile`) and the two agree. The `deviate`
+fault (`devices.faults`) makes the board send one key's state one step on from a given frame, as a
+firmware whose state table is off by one would: the twin check must report it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+
+from devices.firmware.clib import FirmwareDetector
+
+STATES = 4  # released, confirming, touched, releasing (processing.detections.KeyState's values)
+
+
+@dataclass(frozen=True, slots=True)
+class DetectorSettings:
+    """One channel's settings in the board's firmware (the profile's setting keys and defaults)."""
+
+    threshold_counts: int = 100
+    hysteresis_counts: int = 15
+    touch_debounce_frames: int = 3
+    release_debounce_frames: int = 3
+    baseline_slow_shift: int = 6
+    baseline_fast_shift: int = 2
+    baseline_period_frames: int = 16
+    stuck_timeout_frames: int = 0
+
+
+class OnBoardDetector:
+    """The library's detector for `channels` channels of one `polarity` (+1 or -1); `deviate` maps a
+    channel to the first frame (board frame index) whose state it sends one step on."""
+
+    def __init__(self, channels: int, polarity: int, deviate: Mapping[int, int] | None = None) -> None:
+        self.channels, self.polarity = channels, polarity
+        self.deviate = {ch: frame for ch, frame in (deviate or {}).items() if ch < channels}
+        self._detector = FirmwareDetector([DetectorSettings()] * channels, [polarity] * channels)
+
+    def restart(self, channels: int | None = None) -> None:
+        """The board restarted (or now has `channels` channels): a fresh detector, whose baselines come
+        from the next frame."""
+        if channels is not None:
+            self.channels = channels
+        n = self.channels
+        self._detector = FirmwareDetector([DetectorSettings()] * n, [self.polarity] * n)
+
+    def states(self, readings: np.ndarray, first_frame: int) -> np.ndarray:
+        """Run the detector on frames `first_frame ...` (their readings, (n, channels)); the state each
+        channel is in after each frame, as the board sends it (int8 (n, channels))."""
+        self._detector.run(readings)
+        states = np.array(self._detector.last_states, dtype=np.int8)
+        for ch, from_frame in self.deviate.items():
+            start = max(0, from_frame - first_frame)
+            if start < len(states):
+                states[start:, ch] = (states[start:, ch] + 1) % STATES
+        return states
