@@ -11,20 +11,63 @@
 #define MAX_WORD 16u         /* a refused line's first word is quoted up to this many characters */
 #define ALL_CHANNELS 0xFFFFu /* `*` */
 
-static const char *const key_names[PT_KEY_COUNT] = {
+/* The settings as the wire lists them, index = enum pt_setting_key - 1. Commands work on int32
+ * copies: a value is checked before it is narrowed into pt_settings_t's small fields (300 must be
+ * refused as 300, not stored as 44), and a refusal quotes the value as it was given. */
+#define NKEYS 9
+#define K_THRESHOLD 0
+#define K_HYSTERESIS 1
+#define K_TOUCH_DEBOUNCE 2
+#define K_RELEASE_DEBOUNCE 3
+#define K_SLOW_SHIFT 4
+#define K_FAST_SHIFT 5
+#define K_PERIOD 6
+#define K_STUCK 7
+#define K_POLARITY 8
+#define NO_PROBLEM NKEYS
+
+static const char *const key_names[NKEYS] = {
     "threshold_counts", "hysteresis_counts", "touch_debounce_frames", "release_debounce_frames",
     "baseline_slow_shift", "baseline_fast_shift", "baseline_period_frames", "stuck_timeout_frames",
     "polarity",
 };
 
-const char *pt_cmd_key_name(pt_cmd_key_t key)
+const char *pt_cmd_key_name(int key)
 {
-    return (unsigned)key < PT_KEY_COUNT ? key_names[key] : NULL;
+    return key >= PT_KEY_THRESHOLD_COUNTS && key <= PT_KEY_POLARITY ? key_names[key - 1] : NULL;
+}
+
+static void to_values(const pt_settings_t *s, int32_t v[NKEYS])
+{
+    v[K_THRESHOLD] = s->threshold_counts;
+    v[K_HYSTERESIS] = s->hysteresis_counts;
+    v[K_TOUCH_DEBOUNCE] = s->touch_debounce_frames;
+    v[K_RELEASE_DEBOUNCE] = s->release_debounce_frames;
+    v[K_SLOW_SHIFT] = s->baseline_slow_shift;
+    v[K_FAST_SHIFT] = s->baseline_fast_shift;
+    v[K_PERIOD] = s->baseline_period_frames;
+    v[K_STUCK] = s->stuck_timeout_frames;
+    v[K_POLARITY] = s->polarity < 0 ? -1 : 1;
+}
+
+/* Only for values that passed check(): every one fits its field. */
+static void from_values(pt_settings_t *s, const int32_t v[NKEYS])
+{
+    s->threshold_counts = v[K_THRESHOLD];
+    s->hysteresis_counts = v[K_HYSTERESIS];
+    s->touch_debounce_frames = (uint8_t)v[K_TOUCH_DEBOUNCE];
+    s->release_debounce_frames = (uint8_t)v[K_RELEASE_DEBOUNCE];
+    s->baseline_slow_shift = (uint8_t)v[K_SLOW_SHIFT];
+    s->baseline_fast_shift = (uint8_t)v[K_FAST_SHIFT];
+    s->baseline_period_frames = (uint16_t)v[K_PERIOD];
+    s->stuck_timeout_frames = v[K_STUCK];
+    s->polarity = (int8_t)v[K_POLARITY];
 }
 
 void pt_cmd_init(pt_cmd_t *p, const pt_cmd_hooks_t *hooks, void *ctx, pt_emit_t *out,
-                 char *buf, uint16_t size, uint16_t channels)
+                 pt_settings_t *settings, uint16_t channels, char *buf, uint16_t size)
 {
+    p->settings = settings;
     p->hooks = hooks;
     p->ctx = ctx;
     p->out = out;
@@ -159,9 +202,9 @@ static void no_line(pt_emit_t *e, const char *command, word_t arg, const char *r
     pt_emit_end(e);
 }
 
-static void emit_value(pt_emit_t *e, pt_cmd_key_t key, int32_t v)
+static void emit_value(pt_emit_t *e, unsigned key, int32_t v)
 {
-    if (key == PT_KEY_POLARITY) {
+    if (key == K_POLARITY) {
         pt_emit_char(e, v < 0 ? '-' : '+');
     } else {
         pt_emit_int(e, v);
@@ -175,38 +218,40 @@ static int out_of(int32_t v, int32_t lo, int32_t hi)
     return v < lo || v > hi;
 }
 
-pt_cmd_key_t pt_cmd_problem(const int32_t v[PT_KEY_COUNT])
+/* The index of the first value that breaks a profile's rules (processing/settings.py, same order as
+ * pt_settings_problem), or NO_PROBLEM. */
+static unsigned problem(const int32_t v[NKEYS])
 {
-    int32_t period = v[PT_KEY_BASELINE_PERIOD_FRAMES];
-    if (out_of(v[PT_KEY_THRESHOLD_COUNTS], 1, MAX_COUNTS)) {
-        return PT_KEY_THRESHOLD_COUNTS;
+    int32_t period = v[K_PERIOD];
+    if (out_of(v[K_THRESHOLD], 1, MAX_COUNTS)) {
+        return K_THRESHOLD;
     }
-    if (v[PT_KEY_HYSTERESIS_COUNTS] < 0 || v[PT_KEY_HYSTERESIS_COUNTS] >= v[PT_KEY_THRESHOLD_COUNTS]) {
-        return PT_KEY_HYSTERESIS_COUNTS;
+    if (v[K_HYSTERESIS] < 0 || v[K_HYSTERESIS] >= v[K_THRESHOLD]) {
+        return K_HYSTERESIS;
     }
-    if (out_of(v[PT_KEY_TOUCH_DEBOUNCE_FRAMES], 1, MAX_DEBOUNCE_FRAMES)) {
-        return PT_KEY_TOUCH_DEBOUNCE_FRAMES;
+    if (out_of(v[K_TOUCH_DEBOUNCE], 1, MAX_DEBOUNCE_FRAMES)) {
+        return K_TOUCH_DEBOUNCE;
     }
-    if (out_of(v[PT_KEY_RELEASE_DEBOUNCE_FRAMES], 1, MAX_DEBOUNCE_FRAMES)) {
-        return PT_KEY_RELEASE_DEBOUNCE_FRAMES;
+    if (out_of(v[K_RELEASE_DEBOUNCE], 1, MAX_DEBOUNCE_FRAMES)) {
+        return K_RELEASE_DEBOUNCE;
     }
-    if (out_of(v[PT_KEY_BASELINE_SLOW_SHIFT], 0, MAX_SHIFT)) {
-        return PT_KEY_BASELINE_SLOW_SHIFT;
+    if (out_of(v[K_SLOW_SHIFT], 0, MAX_SHIFT)) {
+        return K_SLOW_SHIFT;
     }
-    if (out_of(v[PT_KEY_BASELINE_FAST_SHIFT], 0, MAX_SHIFT)
-        || v[PT_KEY_BASELINE_FAST_SHIFT] > v[PT_KEY_BASELINE_SLOW_SHIFT]) {
-        return PT_KEY_BASELINE_FAST_SHIFT;
+    if (out_of(v[K_FAST_SHIFT], 0, MAX_SHIFT)
+        || v[K_FAST_SHIFT] > v[K_SLOW_SHIFT]) {
+        return K_FAST_SHIFT;
     }
     if (out_of(period, 1, MAX_PERIOD_FRAMES) || (period & (period - 1)) != 0) {
-        return PT_KEY_BASELINE_PERIOD_FRAMES;
+        return K_PERIOD;
     }
-    if (v[PT_KEY_STUCK_TIMEOUT_FRAMES] < 0) {
-        return PT_KEY_STUCK_TIMEOUT_FRAMES;
+    if (v[K_STUCK] < 0) {
+        return K_STUCK;
     }
-    if (v[PT_KEY_POLARITY] != 1 && v[PT_KEY_POLARITY] != -1) {
-        return PT_KEY_POLARITY;
+    if (v[K_POLARITY] != 1 && v[K_POLARITY] != -1) {
+        return K_POLARITY;
     }
-    return PT_KEY_COUNT;
+    return NO_PROBLEM;
 }
 
 static void between(pt_emit_t *e, const char *lo, int32_t hi, int32_t v)
@@ -220,14 +265,14 @@ static void between(pt_emit_t *e, const char *lo, int32_t hi, int32_t v)
 }
 
 /* The reason, in processing/settings.py's words, why `key` of `v` is refused. */
-static void emit_reason(pt_emit_t *e, pt_cmd_key_t key, const int32_t v[PT_KEY_COUNT])
+static void emit_reason(pt_emit_t *e, unsigned key, const int32_t v[NKEYS])
 {
     int32_t x = v[key];
     switch (key) {
-    case PT_KEY_THRESHOLD_COUNTS:
+    case K_THRESHOLD:
         between(e, "1", MAX_COUNTS, x);
         break;
-    case PT_KEY_HYSTERESIS_COUNTS:
+    case K_HYSTERESIS:
         if (x < 0) {
             pt_emit_str(e, "must not be negative (");
             pt_emit_int(e, x);
@@ -235,32 +280,32 @@ static void emit_reason(pt_emit_t *e, pt_cmd_key_t key, const int32_t v[PT_KEY_C
         } else {
             pt_emit_int(e, x);
             pt_emit_str(e, " must be below the threshold (");
-            pt_emit_int(e, v[PT_KEY_THRESHOLD_COUNTS]);
+            pt_emit_int(e, v[K_THRESHOLD]);
             pt_emit_str(e, "), or the key could never release");
         }
         break;
-    case PT_KEY_TOUCH_DEBOUNCE_FRAMES:
-    case PT_KEY_RELEASE_DEBOUNCE_FRAMES:
+    case K_TOUCH_DEBOUNCE:
+    case K_RELEASE_DEBOUNCE:
         between(e, "1 (react on the first frame)", MAX_DEBOUNCE_FRAMES, x);
         break;
-    case PT_KEY_BASELINE_SLOW_SHIFT:
+    case K_SLOW_SHIFT:
         between(e, "0", MAX_SHIFT, x);
         break;
-    case PT_KEY_BASELINE_FAST_SHIFT:
+    case K_FAST_SHIFT:
         if (out_of(x, 0, MAX_SHIFT)) {
             between(e, "0", MAX_SHIFT, x);
         } else {
             pt_emit_int(e, x);
             pt_emit_str(e, " is slower than baseline_slow_shift (");
-            pt_emit_int(e, v[PT_KEY_BASELINE_SLOW_SHIFT]);
+            pt_emit_int(e, v[K_SLOW_SHIFT]);
             pt_emit_str(e, "); the baseline must recover faster than it drifts");
         }
         break;
-    case PT_KEY_BASELINE_PERIOD_FRAMES:
+    case K_PERIOD:
         pt_emit_str(e, "must be a power of two from 1 to 256, not ");
         pt_emit_int(e, x);
         break;
-    case PT_KEY_STUCK_TIMEOUT_FRAMES:
+    case K_STUCK:
         pt_emit_str(e, "must be 0 (never) or a positive frame count, not ");
         pt_emit_int(e, x);
         break;
@@ -302,7 +347,7 @@ static void run_get(pt_cmd_t *p, const char *line, size_t len, size_t pos)
     word_t arg = next_word(line, len, &pos);
     int32_t ch = channel_of(p, "get", arg);
     uint16_t first, last, c;
-    int32_t v[PT_KEY_COUNT];
+    int32_t v[NKEYS];
     unsigned k;
     if (ch < 0) {
         return;
@@ -316,15 +361,15 @@ static void run_get(pt_cmd_t *p, const char *line, size_t len, size_t pos)
     first = ch == (int32_t)ALL_CHANNELS ? 0u : (uint16_t)ch;
     last = ch == (int32_t)ALL_CHANNELS ? (uint16_t)(p->channels - 1u) : (uint16_t)ch;
     for (c = first; c <= last; c++) {
-        p->hooks->read(p->ctx, c, v);
+        to_values(&p->settings[c], v);
         pt_emit_begin(p->out);
         pt_emit_str(p->out, ">val ");
         pt_emit_uint(p->out, c);
-        for (k = 0; k < PT_KEY_COUNT; k++) {
+        for (k = 0; k < NKEYS; k++) {
             pt_emit_char(p->out, ' ');
             pt_emit_str(p->out, key_names[k]);
             pt_emit_char(p->out, '=');
-            emit_value(p->out, (pt_cmd_key_t)k, v[k]);
+            emit_value(p->out, k, v[k]);
         }
         pt_emit_end(p->out);
     }
@@ -344,7 +389,7 @@ static void set_no(pt_cmd_t *p, int32_t ch, word_t key)
 
 /* Reads the pairs into `given` (marking `have`); answers and returns 0 at the first that is wrong. */
 static int read_pairs(pt_cmd_t *p, int32_t ch, const char *line, size_t len, size_t pos,
-                      int32_t given[PT_KEY_COUNT], uint16_t *have)
+                      int32_t given[NKEYS], uint16_t *have)
 {
     word_t w;
     *have = 0;
@@ -362,9 +407,9 @@ static int read_pairs(pt_cmd_t *p, int32_t ch, const char *line, size_t len, siz
         name.len = (size_t)(eq - w.s);
         value.s = eq + 1;
         value.len = w.len - name.len - 1u;
-        for (k = 0; k < PT_KEY_COUNT && !word_is(name, key_names[k]); k++) {
+        for (k = 0; k < NKEYS && !word_is(name, key_names[k]); k++) {
         }
-        if (k == PT_KEY_COUNT) {
+        if (k == NKEYS) {
             set_no(p, ch, name);
             pt_emit_str(p->out, "unknown setting");
             pt_emit_end(p->out);
@@ -376,7 +421,7 @@ static int read_pairs(pt_cmd_t *p, int32_t ch, const char *line, size_t len, siz
             pt_emit_end(p->out);
             return 0;
         }
-        if (k == PT_KEY_POLARITY) {
+        if (k == K_POLARITY) {
             if (word_is(value, "+") || word_is(value, "-")) {
                 given[k] = value.s[0] == '-' ? -1 : 1;
             } else {
@@ -400,10 +445,10 @@ static int read_pairs(pt_cmd_t *p, int32_t ch, const char *line, size_t len, siz
     return 1;
 }
 
-static void merge(int32_t v[PT_KEY_COUNT], const int32_t given[PT_KEY_COUNT], uint16_t have)
+static void merge(int32_t v[NKEYS], const int32_t given[NKEYS], uint16_t have)
 {
     unsigned k;
-    for (k = 0; k < PT_KEY_COUNT; k++) {
+    for (k = 0; k < NKEYS; k++) {
         if (have & (1u << k)) {
             v[k] = given[k];
         }
@@ -414,8 +459,8 @@ static void run_set(pt_cmd_t *p, const char *line, size_t len, size_t pos)
 {
     word_t arg = next_word(line, len, &pos);
     int32_t ch = channel_of(p, "set", arg);
-    int32_t given[PT_KEY_COUNT];
-    int32_t v[PT_KEY_COUNT];
+    int32_t given[NKEYS];
+    int32_t v[NKEYS];
     uint16_t have, first, last, c;
     size_t pairs = pos;
     word_t w;
@@ -434,11 +479,11 @@ static void run_set(pt_cmd_t *p, const char *line, size_t len, size_t pos)
     first = ch == (int32_t)ALL_CHANNELS ? 0u : (uint16_t)ch;
     last = ch == (int32_t)ALL_CHANNELS ? (uint16_t)(p->channels - 1u) : (uint16_t)ch;
     for (c = first; c <= last; c++) { /* all checked before any is written: all or none */
-        pt_cmd_key_t bad;
-        p->hooks->read(p->ctx, c, v);
+        unsigned bad;
+        to_values(&p->settings[c], v);
         merge(v, given, have);
-        bad = pt_cmd_problem(v);
-        if (bad != PT_KEY_COUNT) {
+        bad = problem(v);
+        if (bad != NO_PROBLEM) {
             no_head_ch(p->out, "set", ch);
             pt_emit_str(p->out, key_names[bad]);
             pt_emit_str(p->out, ": ");
@@ -453,9 +498,12 @@ static void run_set(pt_cmd_t *p, const char *line, size_t len, size_t pos)
         }
     }
     for (c = first; c <= last; c++) {
-        p->hooks->read(p->ctx, c, v);
+        to_values(&p->settings[c], v);
         merge(v, given, have);
-        p->hooks->write(p->ctx, c, v);
+        from_values(&p->settings[c], v);
+        if (p->hooks->changed != NULL) {
+            p->hooks->changed(p->ctx, c);
+        }
     }
     pt_emit_begin(p->out);
     pt_emit_str(p->out, ">ok set ");
@@ -471,7 +519,7 @@ static void run_set(pt_cmd_t *p, const char *line, size_t len, size_t pos)
         pt_emit_char(p->out, ' ');
         pt_emit_str(p->out, key_names[k]);
         pt_emit_char(p->out, '=');
-        emit_value(p->out, (pt_cmd_key_t)k, given[k]);
+        emit_value(p->out, k, given[k]);
     }
     pt_emit_end(p->out);
 }

@@ -18,10 +18,11 @@
  * with one `>no` line; empty and blank lines are ignored. Every command gets exactly one final `>ok` or
  * `>no` line (`?` answers with the info line only, as it always has).
  *
- * The parser never owns the settings: it reads and writes them through hooks, as nine int32 values in
- * the order of `pt_cmd_key_t` (polarity +1 or -1), so the application keeps them wherever its detector
- * reads them (a RAM copy of the const profile). C99, no malloc, no floating point; state in a
- * caller-owned `pt_cmd_t`, the line buffer caller-owned too; hooks const (placeable in flash).
+ * The settings are the application's RAM copy (`pt_settings_t`, pt_types.h): the same array the
+ * detector reads, given to pt_cmd_init. `set` checks every value, writes the channel's entry only when
+ * all of them pass, and calls the `changed` hook so the detector treats it as a live change
+ * (pt_detect_settings_changed). C99, no malloc, no floating point; state in a caller-owned `pt_cmd_t`,
+ * the line buffer caller-owned too; hooks const (placeable in flash).
  */
 #ifndef PT_CMD_H
 #define PT_CMD_H
@@ -30,20 +31,7 @@
 #include <stdint.h>
 
 #include "pt_emit.h"
-
-/* The settings a host can read and write, in the wire's order (section 7's `>val` line). */
-typedef enum {
-    PT_KEY_THRESHOLD_COUNTS = 0,
-    PT_KEY_HYSTERESIS_COUNTS,
-    PT_KEY_TOUCH_DEBOUNCE_FRAMES,
-    PT_KEY_RELEASE_DEBOUNCE_FRAMES,
-    PT_KEY_BASELINE_SLOW_SHIFT,
-    PT_KEY_BASELINE_FAST_SHIFT,
-    PT_KEY_BASELINE_PERIOD_FRAMES,
-    PT_KEY_STUCK_TIMEOUT_FRAMES,
-    PT_KEY_POLARITY, /* +1 touch raises counts, -1 lowers them; on the wire `+` or `-` */
-    PT_KEY_COUNT
-} pt_cmd_key_t;
+#include "pt_types.h"
 
 /* A line buffer that holds the longest useful command (`set 511` with all nine keys at their widest
  * values is about 230 characters). Smaller buffers work; longer commands are then refused. */
@@ -51,11 +39,9 @@ typedef enum {
 
 /* What the parser asks of the application. All hooks get the `ctx` given to pt_cmd_init. */
 typedef struct {
-    /* Fill `values` with channel `channel`'s settings in force (channel < channels). Required. */
-    void (*read)(void *ctx, uint16_t channel, int32_t values[PT_KEY_COUNT]);
-    /* Put `values` in force for `channel`; they have been checked (see pt_cmd_problem). The detector
-     * must treat it as a live settings change (ALGORITHM.md). Required. */
-    void (*write)(void *ctx, uint16_t channel, const int32_t values[PT_KEY_COUNT]);
+    /* Channel `channel`'s entry of the live settings was just rewritten by `set` (its new values
+     * checked): call pt_detect_settings_changed(&detector, channel). NULL: nobody is told. */
+    void (*changed)(void *ctx, uint16_t channel);
     /* Store the settings in force so they survive a power cycle. Returns NULL when kept, else the
      * reason (printable ASCII, one line). NULL hook: `keep` is refused (cannot keep settings). */
     const char *(*keep)(void *ctx);
@@ -72,6 +58,7 @@ typedef struct {
     const pt_cmd_hooks_t *hooks;
     void *ctx;
     pt_emit_t *out;
+    pt_settings_t *settings; /* the live settings, `channels` entries (not owned) */
     char *buf;          /* the caller's line buffer */
     uint16_t size;      /* its size in bytes */
     uint16_t len;       /* characters of the current line held */
@@ -80,10 +67,12 @@ typedef struct {
     uint8_t binary;     /* the current line holds a byte outside printable ASCII */
 } pt_cmd_t;
 
-/* Start a parser for a board of `channels` channels (1..512). `buf` (`size` bytes, 8..65535;
- * PT_CMD_LINE_BYTES is a good size) holds one line; `out` is the emitter answers go through. */
+/* Start a parser for a board of `channels` channels (1..1024) whose live settings are `settings`
+ * (`channels` entries in RAM, the array the detector reads; `get` reads it, `set` writes it). `buf`
+ * (`size` bytes, 8..65535; PT_CMD_LINE_BYTES is a good size) holds one line; `out` is the emitter the
+ * answers go through. Nothing is copied: all four must outlive the parser. */
 void pt_cmd_init(pt_cmd_t *p, const pt_cmd_hooks_t *hooks, void *ctx, pt_emit_t *out,
-                 char *buf, uint16_t size, uint16_t channels);
+                 pt_settings_t *settings, uint16_t channels, char *buf, uint16_t size);
 
 /* One received byte. Runs the command (and answers it) when the byte ends a line. */
 void pt_cmd_feed(pt_cmd_t *p, uint8_t byte);
@@ -95,12 +84,8 @@ void pt_cmd_reset(pt_cmd_t *p);
  * lines themselves (USB packets). The buffer limit does not apply; the line is not modified. */
 void pt_cmd_line(pt_cmd_t *p, const char *line, size_t len);
 
-/* The first problem of a channel's settings, checked by the rules of a profile
- * (processing/settings.py): PT_KEY_COUNT when there is none, else the key to blame. The `set` command
- * checks with it; an application can check its stored settings at start-up with it too. */
-pt_cmd_key_t pt_cmd_problem(const int32_t values[PT_KEY_COUNT]);
-
-/* The wire name of a key (`threshold_counts`, ..., `polarity`); NULL past PT_KEY_COUNT. */
-const char *pt_cmd_key_name(pt_cmd_key_t key);
+/* The wire name of a setting (`threshold_counts`, ..., `polarity`: enum pt_setting_key of
+ * pt_types.h), or NULL for PT_KEY_NONE and anything past PT_KEY_POLARITY. */
+const char *pt_cmd_key_name(int key);
 
 #endif /* PT_CMD_H */
