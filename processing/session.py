@@ -16,8 +16,9 @@ touch".
 from __future__ import annotations
 
 from collections import deque
-from collections.abc import Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, replace
+from typing import Any
 
 import numpy as np
 
@@ -127,6 +128,12 @@ def _concat(run: list[FrameBlock]) -> FrameBlock:
     return FrameBlock(np.concatenate([b.t_s for b in run]), np.concatenate([b.seq for b in run]),
                       np.concatenate([b.readings for b in run]), run[0].first_index, bt)
 
+# Builds the engine for (channels, settings, polarity, profile) in place of the Python one: an object with
+# Engine's API. One whose `runs_groups` is true also runs the profile's groups and sliders, returning their
+# events after each frame's channel events (the C library through tui/firmware_engine.py does).
+EngineFactory = Callable[[int, list[ChannelSettings], list[int], Profile], Any]
+
+
 class Session(FirstContact):
     """Owns one board's engine, measures, groups and sliders. Not thread-safe: call from one thread.
 
@@ -134,11 +141,13 @@ class Session(FirstContact):
 
     def __init__(self, profile: Profile | None = None, *, window_s: float = 2.0, history_frames: int = 8192,
                  bounds: VerdictBounds | None = None, plain: bool = False,
-                 settle_s: float = SETTLE_S, polarity: Sequence[int] = ()) -> None:
+                 settle_s: float = SETTLE_S, polarity: Sequence[int] = (),
+                 engine_factory: EngineFactory | None = None) -> None:
         self.requested_profile = profile
         self.window_s, self.history_frames, self.bounds, self.plain = window_s, history_frames, bounds, plain
         self.settle_s = settle_s  # the noise window's guard around touch activity (processing.measure)
         self.forced_polarity = tuple(int(p) for p in polarity)
+        self.engine_factory = engine_factory
         self.info: BoardInfo | None = None
         self.form: StreamForm | None = None
         self.engine: Engine | PlainEngine | None = None
@@ -489,17 +498,21 @@ class Session(FirstContact):
             if any(need_noise) or any(need_polarity) else None
         self._tell_learning(profile.names)
         ready = [self.startup is None or self.startup.phase[c] == READY for c in range(channels)]
-        cls = PlainEngine if self.plain else Engine
-        self.engine = cls(channels, [settings_for_engine(profile.settings_for(c), ready[c])
-                                     for c in range(channels)], [p or 1 for p in self.polarity])
+        settings = [settings_for_engine(profile.settings_for(c), ready[c]) for c in range(channels)]
+        signs = [p or 1 for p in self.polarity]
+        if self.engine_factory is not None:
+            self.engine = self.engine_factory(channels, settings, signs, profile)
+        else:
+            self.engine = (PlainEngine if self.plain else Engine)(channels, settings, signs)
         self.measures = Measures(channels, rate or DEFAULT_RATE_HZ, self.window_s, self.history_frames,
                                  bounds=self.bounds, settle_s=self.settle_s)
         self._rate_declared = self._rate_from_info = rate is not None
         if self.startup is not None and not self._rate_declared and self._clock.rate_hz is not None:
             self.measures.rate_hz, self._rate_declared = self._clock.rate_hz, True
             self.startup.rate_hz = self._clock.rate_hz
-        self.groups = [ExclusiveGroup(g) for g in profile.groups]
-        self.sliders = [Slider(s) for s in profile.sliders]
+        inside = getattr(self.engine, "runs_groups", False)  # the engine reports them itself
+        self.groups = [] if inside else [ExclusiveGroup(g) for g in profile.groups]
+        self.sliders = [] if inside else [Slider(s) for s in profile.sliders]
 
 
 def _channels(count: int) -> str:

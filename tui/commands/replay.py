@@ -3,6 +3,10 @@
 With `--profile` the detection runs with other settings than the ones recorded, which shows what would
 have happened: every touch found, the count per key and, when the recording has marks, the touches
 that fall outside them (false touches). Output is `monitor`'s, lines or JSON Lines.
+
+`--engine firmware` runs the detection through the compiled C firmware library (devices/firmware,
+built with the system C compiler on first use) instead of the Python engine: the lines it prints are
+the same, byte for byte, which is how a firmware engineer sees the board will detect as padtune does.
 """
 
 from __future__ import annotations
@@ -27,6 +31,7 @@ from tui.headless.runner import DetectionRun
 from tui.polarity_arg import add_polarity_arg
 
 PACE_CHUNK_S = 0.05  # a paced replay hands frames over in slices of this much recorded time
+ENGINES = ("python", "firmware")
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -42,6 +47,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="replay speed: 1 = real time, 4 = four times faster, 0 = as fast as possible "
                         "(default)")
     p.add_argument("--json", action="store_true", help="write JSON Lines (the format of 'monitor --json')")
+    p.add_argument("--engine", choices=ENGINES, default="python",
+                   help="detect with padtune's Python engine (default) or the C firmware library "
+                        "(devices/firmware, compiled with $CC or cc on first use); both print the same lines")
     p.add_argument("--every", metavar="S", type=seconds, help="a status every S seconds of recorded time")
     p.add_argument("--rate", metavar="HZ", type=frame_rate,
                    help="frame rate of a raw capture without an info line (default 100)")
@@ -72,9 +80,15 @@ def run(args: argparse.Namespace) -> int:
 
 def _run(args: argparse.Namespace) -> int:
     profile = load_profile_arg(args.profile)
+    factory = None
+    if args.engine == "firmware":
+        from tui.firmware_engine import check_firmware, firmware_engine
+
+        check_firmware()  # no compiler: one line and exit 2 before any output
+        factory = firmware_engine
     rec = read_recording(args.file, rate_hz=args.rate)
-    run_ = DetectionRun(Session(profile, polarity=args.polarity), make_output(args.json), origin_t_s=0.0,
-                        every_s=args.every, marks=rec.marks)
+    session = Session(profile, polarity=args.polarity, engine_factory=factory)
+    run_ = DetectionRun(session, make_output(args.json), origin_t_s=0.0, every_s=args.every, marks=rec.marks)
     if rec.truncated:
         run_.output.note(0.0, "the recording's last line was cut short (the writer was stopped mid-row)")
     wall0 = time.monotonic()

@@ -1,0 +1,296 @@
+/* pt_detect.c: the per-channel detector of processing/ALGORITHM.md (version 1), bit for bit.
+ *
+ * Integer rules (ALGORITHM.md, "Integer rules"): arithmetic on int64_t; division truncates toward zero;
+ * no negative number is ever shifted (C leaves >> of a negative value implementation-defined): a
+ * division by 2^k is done on the magnitude in uint64_t and the sign put back.
+ *
+ * RAM per channel is 20 bytes: the 40-bit baseline and period sum are kept as a 32-bit and an 8-bit
+ * part and joined into int64_t only in registers. Splitting goes through uint64_t (conversions to
+ * unsigned types are defined modulo 2^n), and joining multiplies, so nothing depends on how a compiler
+ * shifts or converts negative values.
+ */
+#include "pt_detect.h"
+
+#include <stddef.h>
+#include <stdint.h>
+
+#define F_STATE 0x03u   /* enum pt_key_state */
+#define F_CLEAN 0x04u   /* every frame of the current baseline period so far ended released */
+#define F_PENDING 0x08u /* take the next reading as the baseline */
+#define F_NEG 0x10u     /* the channel runs with polarity -1 */
+#define F_DNEG 0x20u    /* the last delta was negative */
+
+#define ONE_FP 256 /* 1 << PT_FRAC_BITS */
+
+/* a / 2^k, truncated toward zero, for |a| < 2^63 (ALGORITHM.md's tdiv_pow2). */
+static int64_t tdiv_pow2(int64_t a, unsigned k)
+{
+    uint64_t mag = a < 0 ? (uint64_t)0 - (uint64_t)a : (uint64_t)a;
+    int64_t q = (int64_t)(mag >> k);
+    return a < 0 ? -q : q;
+}
+
+static int64_t get_base_fp(const pt_chan_t *c)
+{
+    return (int64_t)c->base * ONE_FP + (int64_t)c->base_frac;
+}
+
+/* baseline_fp stays within 256 x the readings' range (each update moves it toward a period mean), so
+ * floor(baseline_fp / 256) fits int32_t. (bfp - frac) is a multiple of 256: the division is exact. */
+static void set_base_fp(pt_chan_t *c, int64_t bfp)
+{
+    uint8_t frac = (uint8_t)((uint64_t)bfp & 0xFFu);
+    c->base_frac = frac;
+    c->base = (int32_t)((bfp - (int64_t)frac) / ONE_FP);
+}
+
+static int64_t get_acc(const pt_chan_t *c)
+{
+    int32_t hi = c->acc_hi >= 128u ? (int32_t)c->acc_hi - 256 : (int32_t)c->acc_hi;
+    return (int64_t)hi * 4294967296LL + (int64_t)c->acc_lo;
+}
+
+/* The sum of at most 256 int32 readings fits 40 bits: keep the low 32 and the next 8. */
+static void set_acc(pt_chan_t *c, int64_t acc)
+{
+    uint64_t u = (uint64_t)acc;
+    c->acc_lo = (uint32_t)(u & 0xFFFFFFFFu);
+    c->acc_hi = (uint8_t)((u >> 32) & 0xFFu);
+}
+
+static void set_delta(pt_chan_t *c, int64_t delta, uint8_t *flags)
+{
+    if (delta < 0) {
+        c->delta_mag = (uint32_t)((uint64_t)0 - (uint64_t)delta);
+        *flags = (uint8_t)(*flags | F_DNEG);
+    } else {
+        c->delta_mag = (uint32_t)delta;
+        *flags = (uint8_t)(*flags & ~F_DNEG);
+    }
+}
+
+static uint8_t polarity_flag(const pt_settings_t *s)
+{
+    return s->polarity < 0 ? (uint8_t)F_NEG : (uint8_t)0;
+}
+
+int pt_settings_problem(const pt_settings_t *s)
+{
+    uint16_t p = s->baseline_period_frames;
+    if (s->threshold_counts < 1 || s->threshold_counts > PT_MAX_COUNTS)
+        return PT_KEY_THRESHOLD_COUNTS;
+    if (s->hysteresis_counts < 0 || s->hysteresis_counts >= s->threshold_counts)
+        return PT_KEY_HYSTERESIS_COUNTS;
+    if (s->touch_debounce_frames < 1)
+        return PT_KEY_TOUCH_DEBOUNCE_FRAMES; /* at most 255 by its type */
+    if (s->release_debounce_frames < 1)
+        return PT_KEY_RELEASE_DEBOUNCE_FRAMES;
+    if (s->baseline_slow_shift > PT_MAX_SHIFT)
+        return PT_KEY_BASELINE_SLOW_SHIFT;
+    if (s->baseline_fast_shift > PT_MAX_SHIFT || s->baseline_fast_shift > s->baseline_slow_shift)
+        return PT_KEY_BASELINE_FAST_SHIFT;
+    if (p < 1 || p > PT_MAX_PERIOD_FRAMES || (p & (p - 1u)) != 0)
+        return PT_KEY_BASELINE_PERIOD_FRAMES;
+    if (s->stuck_timeout_frames < 0)
+        return PT_KEY_STUCK_TIMEOUT_FRAMES; /* at most 2^31-1 by its type */
+    if (s->polarity != 1 && s->polarity != -1)
+        return PT_KEY_POLARITY;
+    return PT_KEY_NONE;
+}
+
+void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *chans, uint16_t channels)
+{
+    uint16_t c;
+    d->settings = settings;
+    d->chans = chans;
+    d->channels = channels;
+    d->frame = 0;
+    for (c = 0; c < channels; c++) {
+        pt_chan_t *ch = &chans[c];
+        ch->base = 0;
+        ch->base_frac = 0;
+        ch->acc_lo = 0;
+        ch->acc_hi = 0;
+        ch->held = 0;
+        ch->delta_mag = 0;
+        ch->count = 0;
+        ch->flags = (uint8_t)(PT_RELEASED | F_PENDING | polarity_flag(&settings[c]));
+    }
+}
+
+/* 256 / P for a period P = 2^p <= 256: the factor that turns the period sum into the mean in fixed
+ * point, exactly (ALGORITHM.md step 5). A loop of at most 8 steps: the M0+ has no divide instruction. */
+static int64_t mean_factor(uint16_t period_frames)
+{
+    int64_t mul = ONE_FP;
+    uint16_t q = period_frames;
+    while (q > 1u) {
+        q = (uint16_t)(q >> 1);
+        mul /= 2;
+    }
+    return mul;
+}
+
+/* Steps 1-4 of ALGORITHM.md for one channel; returns the event kind (0 for none). */
+static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_event_t *ev)
+{
+    uint8_t kind = 0;
+    uint8_t f = ch->flags;
+    uint8_t st;
+    int64_t r = reading;
+    int64_t x;
+    int64_t delta;
+    if (f & F_PENDING) {
+        st = (uint8_t)(f & F_STATE);
+        ev->value = (st == PT_TOUCHED || st == PT_RELEASING) ? 1u : 0u;
+        set_base_fp(ch, r * ONE_FP);
+        f = (uint8_t)((f & ~(F_STATE | F_CLEAN | F_PENDING)) | PT_RELEASED);
+        ch->count = 0;
+        ch->held = 0;
+        set_acc(ch, 0);
+        kind = PT_EV_REBASELINED;
+    }
+    x = r * ONE_FP - get_base_fp(ch);
+    delta = tdiv_pow2((f & F_NEG) ? -x : x, PT_FRAC_BITS);
+    set_delta(ch, delta, &f);
+    st = (uint8_t)(f & F_STATE);
+    if (st == PT_RELEASED || st == PT_CONFIRMING) {
+        if (delta >= s->threshold_counts) {
+            uint8_t count = (st == PT_CONFIRMING) ? (uint8_t)(ch->count + 1u) : (uint8_t)1u;
+            if (count >= s->touch_debounce_frames) {
+                st = PT_TOUCHED;
+                ch->count = 0;
+                ch->held = 0;
+                kind = PT_EV_TOUCH;
+            } else {
+                st = PT_CONFIRMING;
+                ch->count = count;
+            }
+        } else {
+            st = PT_RELEASED;
+            ch->count = 0;
+        }
+    } else {
+        if (ch->held != UINT32_MAX)
+            ch->held++;
+        if (delta < (int64_t)s->threshold_counts - (int64_t)s->hysteresis_counts) {
+            uint8_t count = (st == PT_RELEASING) ? (uint8_t)(ch->count + 1u) : (uint8_t)1u;
+            if (count >= s->release_debounce_frames) {
+                st = PT_RELEASED;
+                ch->count = 0;
+                kind = PT_EV_RELEASE;
+            } else {
+                st = PT_RELEASING;
+                ch->count = count;
+            }
+        } else {
+            st = PT_TOUCHED;
+            ch->count = 0;
+        }
+        if (st != PT_RELEASED && s->stuck_timeout_frames > 0 && ch->held >= (uint32_t)s->stuck_timeout_frames) {
+            kind = PT_EV_STUCK;
+            set_base_fp(ch, r * ONE_FP);
+            st = PT_RELEASED;
+            ch->count = 0;
+            f = (uint8_t)(f & ~F_CLEAN);
+        }
+        if (kind == PT_EV_RELEASE || kind == PT_EV_STUCK)
+            ev->held_frames = ch->held;
+    }
+    f = (uint8_t)((f & ~F_STATE) | st);
+    if (st == PT_RELEASED)
+        set_acc(ch, get_acc(ch) + r);
+    else
+        f = (uint8_t)(f & ~F_CLEAN);
+    ch->flags = f;
+    ev->delta_counts = delta;
+    return kind;
+}
+
+/* Step 5: the end of a baseline period. */
+static void period_end(pt_chan_t *ch, const pt_settings_t *s)
+{
+    if (ch->flags & F_CLEAN) {
+        int64_t bfp = get_base_fp(ch);
+        int64_t diff = get_acc(ch) * mean_factor(s->baseline_period_frames) - bfp;
+        int toward = (ch->flags & F_NEG) ? diff < 0 : diff > 0;
+        unsigned shift = toward ? s->baseline_slow_shift : s->baseline_fast_shift;
+        set_base_fp(ch, bfp + tdiv_pow2(diff, shift));
+    }
+    set_acc(ch, 0);
+    ch->flags = (uint8_t)(ch->flags | F_CLEAN);
+}
+
+size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *events)
+{
+    size_t n = 0;
+    uint32_t clock = d->frame;
+    uint16_t c;
+    for (c = 0; c < d->channels; c++) {
+        const pt_settings_t *s = &d->settings[c];
+        pt_chan_t *ch = &d->chans[c];
+        pt_event_t ev;
+        uint8_t kind;
+        uint32_t mask = (uint32_t)s->baseline_period_frames - 1u;
+        ev.held_frames = 0;
+        ev.value = 0;
+        kind = step(ch, s, readings[c], &ev);
+        if ((clock & mask) == mask)
+            period_end(ch, s);
+        if (kind != 0 && events != NULL) {
+            ev.kind = kind;
+            ev.source = c;
+            if (kind == PT_EV_REBASELINED)
+                ev.delta_counts = 0;
+            events[n] = ev;
+        }
+        if (kind != 0)
+            n++;
+    }
+    d->frame = clock + 1u;
+    return n;
+}
+
+void pt_detect_rebaseline(pt_detector_t *d, uint16_t channel)
+{
+    uint16_t c;
+    for (c = 0; c < d->channels; c++)
+        if (channel == PT_NONE || channel == c)
+            d->chans[c].flags = (uint8_t)(d->chans[c].flags | F_PENDING);
+}
+
+void pt_detect_settings_changed(pt_detector_t *d, uint16_t channel)
+{
+    pt_chan_t *ch;
+    uint8_t pol;
+    if (channel >= d->channels)
+        return;
+    ch = &d->chans[channel];
+    pol = polarity_flag(&d->settings[channel]);
+    ch->flags = (uint8_t)(ch->flags & ~F_CLEAN);
+    if ((ch->flags & F_NEG) != pol)
+        ch->flags = (uint8_t)((ch->flags & ~F_NEG) | pol | F_PENDING);
+}
+
+uint8_t pt_detect_state(const pt_detector_t *d, uint16_t channel)
+{
+    return (uint8_t)(d->chans[channel].flags & F_STATE);
+}
+
+int pt_detect_touched(const pt_detector_t *d, uint16_t channel)
+{
+    uint8_t st = (uint8_t)(d->chans[channel].flags & F_STATE);
+    return st == PT_TOUCHED || st == PT_RELEASING;
+}
+
+int64_t pt_detect_delta(const pt_detector_t *d, uint16_t channel)
+{
+    const pt_chan_t *ch = &d->chans[channel];
+    int64_t mag = (int64_t)ch->delta_mag;
+    return (ch->flags & F_DNEG) ? -mag : mag;
+}
+
+int64_t pt_detect_baseline_fp(const pt_detector_t *d, uint16_t channel)
+{
+    return get_base_fp(&d->chans[channel]);
+}
