@@ -146,13 +146,16 @@ static void rate(pt_emit_t *e, uint32_t rate_mhz)
     pt_emit_uint(e, whole);
     if (milli != 0) {
         pt_emit_char(e, '.');
-        for (i = 6; i < 9 && milli != 0; i++) { /* 100, 10, 1: the fraction's digits, no trailing zeros */
+        for (i = 7; i < 9 && milli != 0; i++) { /* 100, 10: the fraction's digits, no trailing zeros */
             char digit = '0';
             while (milli >= ten_power[i]) {
                 milli -= ten_power[i];
                 digit++;
             }
             pt_emit_char(e, digit);
+        }
+        if (milli != 0) {
+            pt_emit_char(e, (char)('0' + milli));
         }
     }
 }
