@@ -11,15 +11,19 @@ from __future__ import annotations
 
 import binascii
 import dataclasses
+import os
 import re
+import subprocess
 
+import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from processing.reference import PlainEngine
 from processing.settings import SETTING_KEYS, ChannelSettings
 from protocol.decoder import Decoder
-from protocol.events import BoardInfo
+from protocol.events import BoardInfo, FrameBlock
 from tests.firmware import c_build
 
 DEFAULTS = ChannelSettings()  # the harness starts every channel from the profile defaults
@@ -218,3 +222,82 @@ def test_keep_survives_a_power_cycle(tmp_path):
 def test_keep_refused_when_storage_fails(tmp_path):
     answers = talk("keep\n", "--keep-file", str(tmp_path / "no-such-folder" / "flash.txt"))
     assert answers == [">no keep: storage cannot be written"]
+
+
+# ------------------------------------------------------------------ frames: the board's states and readings
+
+FRAME = re.compile(rb"@(\d+)((?: -?\d+)+);([0-3]+)\*([0-9A-F]{4})")
+
+
+def frames(*args: str, stdin: bytes = b"") -> tuple[list[int], list[list[int]], list[list[int]]]:
+    """Runs the harness for its frames; returns sequence numbers, readings and the board's states."""
+    out = c_build.run(c_build.harness(), ["--rate", "0", *args], stdin)
+    seqs, rows, states = [], [], []
+    for line in out.splitlines()[1:]:
+        m = FRAME.fullmatch(line)
+        assert m, line
+        assert int(m[4], 16) == binascii.crc_hqx(line[: line.rindex(b"*")], 0xFFFF)
+        seqs.append(int(m[1]))
+        rows.append([int(v) for v in m[2].split()])
+        states.append([int(d) for d in m[3].decode()])
+    return seqs, rows, states
+
+
+def reference_states(rows: list[list[int]], s: ChannelSettings, polarity: int) -> list[list[int]]:
+    """padtune's plain reference detector (processing/reference.py) over the same readings."""
+    n, channels = len(rows), len(rows[0])
+    engine = PlainEngine(channels, [s] * channels, [polarity] * channels)
+    engine.process(FrameBlock(t_s=np.zeros(n), seq=np.arange(n), readings=np.array(rows, np.int64),
+                              first_index=0))
+    return engine.last_states.tolist()
+
+
+def test_frames_carry_the_states_padtunes_reference_detector_decides():
+    s = dataclasses.replace(DEFAULTS, touch_debounce_frames=2, release_debounce_frames=4,
+                            threshold_counts=300, hysteresis_counts=120, baseline_period_frames=4)
+    args = ["--frames", "400", "--polarity", "-", "--noise", "150", "--signal", "420", "--touch", "1@40+60",
+            "--touch", "2@150+3", "--touch", "0@200+150"]
+    keys = ("touch_debounce_frames", "release_debounce_frames", "threshold_counts", "hysteresis_counts",
+            "baseline_period_frames")
+    sets = [a for k in keys for a in ("--set", f"{k}={getattr(s, k)}")]
+    seqs, rows, states = frames(*args, *sets)
+    assert seqs == list(range(400))
+    assert states == reference_states(rows, s, -1)
+    assert {st for row in states for st in row} == {0, 1, 2, 3}  # every state was reached
+
+
+def test_readings_fed_from_a_file_at_the_32_bit_limits(tmp_path):
+    rows = [[INT32_MIN, INT32_MAX, 0, -1]] * 5 + [[INT32_MAX, INT32_MIN, -7, 12]] * 7 + [[-5, 5, 0, 0]] * 3
+    feed = tmp_path / "readings.txt"
+    feed.write_text("# a comment, then frames\n\n" + "".join(", ".join(map(str, r)) + "\n" for r in rows))
+    s = dataclasses.replace(DEFAULTS, touch_debounce_frames=1, release_debounce_frames=1)
+    _, got, states = frames("--readings", str(feed), "--set", "touch_debounce_frames=1",
+                            "--set", "release_debounce_frames=1")
+    assert got == rows
+    assert states == reference_states(rows, s, 1)
+
+
+@pytest.mark.parametrize(("content", "message"), [
+    ("1 2 3\n", "readings line 1: 3 numbers, want 4"),
+    ("1 2 3 4 5\n", "readings line 1: want 4 whole numbers"),
+    ("1 2 x 4\n", "readings line 1: want 4 whole numbers"),
+    ("1 2 3 2147483648\n", "readings line 1: want 4 whole numbers"),
+])
+def test_a_bad_readings_file_is_one_line_and_exit_2(tmp_path, content, message):
+    feed = tmp_path / "bad.txt"
+    feed.write_text(content)
+    done = subprocess.run([str(c_build.harness()), "--rate", "0", "--readings", str(feed)],
+                          capture_output=True, text=True, timeout=60, env={**os.environ, **c_build.SAN_ENV},
+                          stdin=subprocess.DEVNULL)
+    assert done.returncode == 2 and message in done.stderr and len(done.stderr.splitlines()) == 1
+
+
+def test_deviate_changes_exactly_the_asked_channel_and_frames():
+    base = ["--frames", "60", "--touch", "1@10+30"]
+    _, rows, honest = frames(*base)
+    _, rows2, bent = frames(*base, "--deviate", "1@20+5")
+    assert rows == rows2
+    differ = [(i, c) for i, (a, b) in enumerate(zip(honest, bent, strict=True))
+              for c in range(4) if a[c] != b[c]]
+    assert differ == [(i, 1) for i in range(20, 25)]
+    assert all(bent[i][1] == honest[i][1] ^ 2 for i in range(20, 25))
