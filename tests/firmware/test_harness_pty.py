@@ -1,0 +1,114 @@
+"""The harness as a board on a real pseudo-terminal: `padtune monitor` (a subprocess) reads its frames,
+names and info keys and finds its touches; a host on pyserial drives its command parser between frames.
+"""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import time
+
+import pytest
+import serial
+
+from protocol.decoder import Decoder
+from protocol.events import FrameBlock
+from tests.firmware import c_build
+from tests.headless.test_link_commands import Monitor
+
+pytestmark = pytest.mark.e2e
+WAIT_S = 30.0
+NAMES = ("inlet", "valve2", "stop")
+
+
+def decoder_reads_state_field() -> bool:
+    """Whether padtune's decoder reads the frame's state field yet (branch i11-twin brings it)."""
+    events = Decoder().feed(b"! proto=1 channels=2\n@0 5 6;02\n", 0.0)
+    return any(isinstance(e, FrameBlock) for e in events)
+
+
+class HarnessPty:
+    """The harness serving on a new pseudo-terminal (its path is its first line on stdout)."""
+
+    def __init__(self, *args: str) -> None:
+        self.proc = subprocess.Popen([str(c_build.harness()), "--pty", *args], stdout=subprocess.PIPE,
+                                     stderr=subprocess.PIPE, env={**os.environ, **c_build.SAN_ENV})
+        assert self.proc.stdout is not None
+        self.path = self.proc.stdout.readline().decode().strip()
+        assert self.path.startswith("/dev/"), self.proc.stderr.read() if self.proc.stderr else ""
+
+    def stop(self) -> str:
+        self.proc.terminate()
+        try:
+            self.proc.wait(WAIT_S)
+        finally:
+            if self.proc.poll() is None:
+                self.proc.kill()
+        assert self.proc.stderr is not None
+        err = self.proc.stderr.read().decode()
+        assert "Sanitizer" not in err and "runtime error" not in err, err
+        assert self.proc.returncode == 0, err
+        return err
+
+
+def test_padtune_monitor_reads_the_c_board_and_finds_its_touches():
+    states = decoder_reads_state_field()
+    # 200 Hz: a 0.3 s touch every 3 s, so padtune finds its quiet second first (provisional settings)
+    touches = [a for k in range(30) for a in ("--touch", f"1@{400 + 600 * k}+60")]
+    board = HarnessPty("--channels", "3", "--names", ",".join(NAMES), "--rate", "200", "--board",
+                       "pump-house", *touches, *([] if states else ["--no-states"]))
+    mon = Monitor(board.path)
+    try:
+        mon.wait_text('"type":"release"')
+        events = mon.finish()
+    finally:
+        board.stop()
+    hello = [e for e in events if e["type"] == "hello"]
+    assert hello and hello[-1]["names"] == list(NAMES) and hello[-1]["board"] == "pump-house"
+    fields = hello[-1]["fields"]
+    assert fields["settings"] == "1" and fields.get("states") == ("1" if states else None)
+    assert hello[-1]["rate_hz"] == 200 and hello[-1]["polarity"] == ["+"]
+    detections = [e for e in events if e["type"] in ("touch", "release")]
+    assert detections and {e["channel"] for e in detections} == {"valve2"}
+    summary = events[-1]
+    assert summary["type"] == "summary" and summary["frames"] > 200
+    assert summary["garbled"] == summary["bad_checksum"] == summary["lost"] == 0, summary
+
+
+def read_until(port: serial.Serial, last: bytes) -> list[bytes]:
+    """Lines starting with `>` or `!` (frames go by meanwhile) up to and including one starting `last`."""
+    got: list[bytes] = []
+    buf = b""
+    deadline = time.monotonic() + WAIT_S
+    while True:
+        assert time.monotonic() < deadline, f"no {last!r}: {got[-3:]}"
+        buf += port.read(port.in_waiting or 1)
+        *lines, buf = buf.split(b"\n")
+        for line in lines:
+            body = line.rpartition(b"*")[0]
+            if body.startswith((b">", b"! ")):
+                got.append(body)
+                if body.startswith(last):
+                    return got
+
+
+def test_a_host_on_pyserial_sets_and_reads_settings_between_frames(tmp_path):
+    board = HarnessPty("--channels", "2", "--rate", "500", "--keep-file", str(tmp_path / "flash"))
+    try:
+        with serial.Serial(board.path, 115200, timeout=0.2) as port:
+            port.write(b"set 1 threshold_counts=64 hysteresis_counts=10 polarity=-\r")
+            ok = b">ok set 1 threshold_counts=64 hysteresis_counts=10 polarity=-"
+            assert read_until(port, b">")[-1] == ok
+            port.write(b"get *\r\n")
+            answer = read_until(port, b">ok get *")
+            assert answer[-3].startswith(b">val 0 threshold_counts=100 ")
+            assert answer[-2].startswith(b">val 1 threshold_counts=64 hysteresis_counts=10 ")
+            assert answer[-2].endswith(b" polarity=-")
+            port.write(b"?\nkeep\n")
+            answer = read_until(port, b">ok keep")
+            assert answer[0].startswith(b"! board=harness channels=2 rate=500 ")
+            assert b"polarity=+,-" in answer[0]
+    finally:
+        board.stop()
+    kept = (tmp_path / "flash").read_text().splitlines()[1]
+    assert kept == "64 10 3 3 6 2 16 0 -1"  # threshold .. stuck timeout, polarity
