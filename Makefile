@@ -6,7 +6,7 @@ BIN := $(VENV)/bin
 RUN_STAMP := $(VENV)/.stamp-run
 TEST_STAMP := $(VENV)/.stamp-test
 
-.PHONY: demo test bench lint snapshots-update clean firmware-harness
+.PHONY: demo test bench lint snapshots-update clean firmware firmware-size firmware-harness
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -36,22 +36,48 @@ lint: $(TEST_STAMP)
 snapshots-update: $(TEST_STAMP)
 	$(BIN)/python -m pytest -q tests/tui tests/headless --snapshot-update
 
-# The C library as a board on this computer (devices/firmware/harness/, see DEVELOPERS.md):
-# `make firmware-harness`, then `build/firmware/pt_harness --pty`. FW_SAN=1 builds it with AddressSanitizer and
-# UndefinedBehaviorSanitizer (the tests do); FW_BUILD picks the output folder.
-FW_DIR := devices/firmware
-FW_BUILD ?= build/firmware
-FW_CC ?= cc
-FW_WARN := -std=c99 -Wall -Wextra -Werror -pedantic
-FW_SANITIZE := -O1 -g -fsanitize=address -fsanitize=undefined -fno-omit-frame-pointer -fno-sanitize-recover=all
-FW_SANFLAGS := $(if $(filter 1,$(FW_SAN)),$(FW_SANITIZE),-O2)
-HARNESS_SRC := $(FW_DIR)/harness/pt_harness.c $(wildcard $(FW_DIR)/pt_*.c)
+clean:
+	rm -rf $(VENV) build *.egg-info .pytest_cache .ruff_cache .hypothesis
+
+# The C firmware library (devices/firmware): built with the system C compiler ($(CC), cc by default)
+# into build/firmware/libpadtune_fw.a, then its host test: the vector runner compiled with the strict
+# flags under AddressSanitizer and UndefinedBehaviorSanitizer prints exactly each vector's expected lines
+# (tests/vectors/*.vec, written by processing.reference.PlainEngine).
+FW := devices/firmware
+FW_BUILD := build/firmware
+FW_STRICT := -std=c99 -Wall -Wextra -Werror -pedantic
+FW_SANITIZE := -fsanitize=address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer -g -O1
+FW_SRC := $(wildcard $(FW)/pt_*.c)
+FW_HDR := $(wildcard $(FW)/pt_*.h)
+
+firmware: $(FW_BUILD)/libpadtune_fw.a $(FW_BUILD)/vector_runner
+	@for v in tests/vectors/*.vec; do \
+		$(FW_BUILD)/vector_runner $$v > $(FW_BUILD)/vector.out || exit 1; \
+		grep '^=' $$v | diff -u - $(FW_BUILD)/vector.out > $(FW_BUILD)/vector.diff \
+			|| { echo "$$v: the C library differs from the reference:"; head -20 $(FW_BUILD)/vector.diff; exit 1; }; \
+		echo "$$v: same as the reference"; \
+	done
+
+$(FW_BUILD)/libpadtune_fw.a: $(FW_SRC) $(FW_HDR)
+	@mkdir -p $(FW_BUILD)
+	cd $(FW_BUILD) && $(CC) $(FW_STRICT) -O2 -c $(addprefix $(CURDIR)/,$(FW_SRC))
+	$(AR) rcs $@ $(addprefix $(FW_BUILD)/,$(notdir $(FW_SRC:.c=.o)))
+
+$(FW_BUILD)/vector_runner: $(FW)/pt_detect.c $(FW)/pt_groups.c $(FW_HDR) tests/firmware/vector_runner.c
+	@mkdir -p $(FW_BUILD)
+	$(CC) $(FW_STRICT) $(FW_SANITIZE) -I$(FW) $(FW)/pt_detect.c $(FW)/pt_groups.c tests/firmware/vector_runner.c -o $@
+
+# Flash and RAM per part on a Cortex-M0+ (arm-none-eabi-gcc -Os); says how to install it when missing.
+firmware-size:
+	$(PYTHON) $(FW)/size.py
+
+# The C library as a board on this computer (devices/firmware/harness/, see DEVELOPERS.md): `make
+# firmware-harness`, then `build/firmware/pt_harness --pty`. FW_SAN=1 builds it under AddressSanitizer and
+# UndefinedBehaviorSanitizer (the tests do, with FW_BUILD set to a folder of their own).
+HARNESS_SRC := $(FW)/harness/pt_harness.c $(FW_SRC)
 
 firmware-harness: $(FW_BUILD)/pt_harness
 
-$(FW_BUILD)/pt_harness: $(HARNESS_SRC) $(wildcard $(FW_DIR)/*.h)
-	mkdir -p $(FW_BUILD)
-	$(FW_CC) $(FW_WARN) $(FW_SANFLAGS) -I$(FW_DIR) -o $@.tmp $(HARNESS_SRC) && mv $@.tmp $@
-
-clean:
-	rm -rf $(VENV) build *.egg-info .pytest_cache .ruff_cache .hypothesis
+$(FW_BUILD)/pt_harness: $(HARNESS_SRC) $(FW_HDR)
+	@mkdir -p $(FW_BUILD)
+	$(CC) $(FW_STRICT) $(if $(filter 1,$(FW_SAN)),$(FW_SANITIZE),-O2) -I$(FW) -o $@.tmp $(HARNESS_SRC) && mv $@.tmp $@

@@ -1,4 +1,5 @@
-"""Profile export for firmware: a C header (one struct initialiser per channel, groups, sliders) and JSON.
+"""Profile export for firmware: a C header (the firmware library's own types from devices/firmware/pt_types.h
+filled in: settings per channel, groups, sliders) and JSON.
 
 Both files are written atomically (no half-written header ever reaches a firmware build).
 """
@@ -33,17 +34,39 @@ def _polarity(profile: Profile, channel: int) -> int:
     return profile.polarity[channel] if profile.polarity else 1
 
 
+# The version of devices/firmware/pt_types.h the header is written for: its struct and field names are
+# what the header fills in, so a header and a library that disagree do not compile together.
+PT_TYPES_VERSION = 1
+
+
 def c_header_text(profile: Profile, source: str, now: dt.datetime | None = None) -> str:
-    """The header's text. `source` names the profile file in the comment."""
+    """The header's text. `source` names the profile file in the comment.
+
+    It fills the firmware library's own types (`pt_settings_t`, `pt_group_t`, `pt_slider_t` from
+    devices/firmware/pt_types.h) with designated initialisers, so a renamed or missing field stops the
+    firmware build, and it refuses another PT_TYPES_VERSION with #error."""
     board = profile.board or "unnamed board"
+    names = profile.names
     lines = [
         "/* padtune profile export: generated, do not edit; change the profile and export again.",
         f" * Profile: {_c_comment(source)} (board: {_c_comment(board)}), exported {_stamp(now)}.",
-        f" * Detection algorithm version {ALGORITHM_VERSION} (padtune processing/ALGORITHM.md). */",
+        f" * Detection algorithm version {ALGORITHM_VERSION} (processing/ALGORITHM.md), padtune firmware "
+        "library types (devices/firmware/pt_types.h). Include it in one .c file. */",
         "#ifndef PADTUNE_PROFILE_H",
         "#define PADTUNE_PROFILE_H",
         "",
         "#include <stdint.h>",
+        "",
+        '#include "pt_types.h"',
+        "",
+        f"#if !defined(PT_TYPES_VERSION) || PT_TYPES_VERSION != {PT_TYPES_VERSION}",
+        f'#error "exported for pt_types.h version {PT_TYPES_VERSION}: use the padtune firmware library '
+        'of the padtune that exported it"',
+        "#endif",
+        f"#if PT_ALGORITHM_VERSION != {ALGORITHM_VERSION} || PT_FRAC_BITS != {FRAC_BITS}",
+        f'#error "exported for detection algorithm version {ALGORITHM_VERSION} with {FRAC_BITS} fractional '
+        'bits"',
+        "#endif",
         "",
         f"#define PADTUNE_PROFILE_FORMAT {FORMAT_VERSION}",
         f"#define PADTUNE_ALGORITHM_VERSION {ALGORITHM_VERSION}",
@@ -52,49 +75,55 @@ def c_header_text(profile: Profile, source: str, now: dt.datetime | None = None)
         f"#define PADTUNE_GROUPS {len(profile.groups)}",
         f"#define PADTUNE_SLIDERS {len(profile.sliders)}",
         "",
-        "typedef struct {",
-        "    const char *name;",
-        "    int8_t polarity;",
-        *[f"    int32_t {key};" for key in SETTING_KEYS],
-        "} padtune_channel_t;",
-        "",
-        "static const padtune_channel_t padtune_channels[PADTUNE_CHANNELS] = {",
+        "/* Per channel, in flash. A board that takes live `set` commands copies this table to RAM at start",
+        " * and gives the detector the copy (pt_detect_init). */",
+        "static const pt_settings_t padtune_settings[PADTUNE_CHANNELS] = {",
     ]
     for c in range(profile.channels):
         s = asdict(profile.settings_for(c))
         fields = ", ".join(f".{k} = {s[k]}" for k in SETTING_KEYS)
-        head = f'.name = "{profile.names[c]}", .polarity = {_polarity(profile, c)}'
-        lines.append(f"    /* {c} */ {{ {head}, {fields} }},")
+        lines.append(f"    /* {c} {names[c]} */ {{ {fields}, .polarity = {_polarity(profile, c)} }},")
     lines.append("};")
+    quoted = ", ".join(f'"{n}"' for n in names)
+    lines += ["", f"static const char *const padtune_channel_names[PADTUNE_CHANNELS] = {{ {quoted} }};"]
     lines += _c_lists(profile)
     lines += ["", "#endif /* PADTUNE_PROFILE_H */", ""]
     return "\n".join(lines)
 
 
 def _c_lists(profile: Profile) -> list[str]:
-    out: list[str] = []
+    """Groups and sliders as pt_group_t / pt_slider_t tables (a null pointer when there are none: C99
+    has no empty arrays, and pt_groups_frame with a count of 0 never reads the table)."""
+    out: list[str] = [""]
     if profile.groups:
-        out += ["", "typedef struct { const char *name; const uint16_t *members; uint16_t count; "
-                "int32_t switch_margin_counts; } padtune_group_t;", ""]
         for i, g in enumerate(profile.groups):
             members = ", ".join(str(m) for m in g.members)
             out.append(f"static const uint16_t padtune_group{i}_members[] = {{ {members} }}; /* {g.name} */")
-        out.append("static const padtune_group_t padtune_groups[PADTUNE_GROUPS] = {")
+        out.append("static const pt_group_t padtune_groups[PADTUNE_GROUPS] = {")
         for i, g in enumerate(profile.groups):
-            row = f'"{g.name}", padtune_group{i}_members, {len(g.members)}, {g.switch_margin_counts}'
-            out.append(f"    {{ {row} }},")
+            out.append(f"    {{ .members = padtune_group{i}_members, .count = {len(g.members)}, "
+                       f".switch_margin_counts = {g.switch_margin_counts} }},")
         out.append("};")
+        quoted = ", ".join(f'"{g.name}"' for g in profile.groups)
+        out.append(f"static const char *const padtune_group_names[PADTUNE_GROUPS] = {{ {quoted} }};")
+    else:
+        out += ["#define padtune_groups ((const pt_group_t *)0)",
+                "#define padtune_group_names ((const char *const *)0)"]
+    out.append("")
     if profile.sliders:
-        out += ["", "typedef struct { const char *name; const uint16_t *pads; uint16_t count; uint8_t wheel; "
-                "int32_t resolution; } padtune_slider_t;", ""]
         for i, s in enumerate(profile.sliders):
             pads = ", ".join(str(p) for p in s.pads)
             out.append(f"static const uint16_t padtune_slider{i}_pads[] = {{ {pads} }}; /* {s.name} */")
-        out.append("static const padtune_slider_t padtune_sliders[PADTUNE_SLIDERS] = {")
+        out.append("static const pt_slider_t padtune_sliders[PADTUNE_SLIDERS] = {")
         for i, s in enumerate(profile.sliders):
-            row = f'"{s.name}", padtune_slider{i}_pads, {len(s.pads)}, {int(s.wheel)}, {s.resolution}'
-            out.append(f"    {{ {row} }},")
+            out.append(f"    {{ .pads = padtune_slider{i}_pads, .count = {len(s.pads)}, "
+                       f".resolution = {s.resolution}, .wheel = {int(s.wheel)} }},")
         out.append("};")
+        quoted = ", ".join(f'"{s.name}"' for s in profile.sliders)
+        out.append(f"static const char *const padtune_slider_names[PADTUNE_SLIDERS] = {{ {quoted} }};")
+    else:
+        out += ["#define padtune_sliders ((const pt_slider_t *)0)",
+                "#define padtune_slider_names ((const char *const *)0)"]
     return out
 
 

@@ -44,7 +44,7 @@ def harness() -> Path:
     """The harness, built by the Makefile with the sanitizers."""
     require_cc()
     out = build_dir()
-    subprocess.run(["make", "-s", "firmware-harness", "FW_SAN=1", f"FW_BUILD={out}", f"FW_CC={CC}"],
+    subprocess.run(["make", "-s", "firmware-harness", "FW_SAN=1", f"FW_BUILD={out}", f"CC={CC}"],
                    cwd=ROOT, check=True, capture_output=True, text=True)
     return out / "pt_harness"
 

@@ -250,10 +250,11 @@ def test_c_header_compiles_and_names_the_profile(tmp_path):
     if cc is None:
         pytest.skip("no C compiler here to check the header compiles")
     main = tmp_path / "main.c"
-    main.write_text('#include "p.h"\nint main(void) { return padtune_channels[4].threshold_counts == 200 '
+    main.write_text('#include "p.h"\nint main(void) { return padtune_settings[4].threshold_counts == 200 '
                     '&& padtune_groups[0].count == 4 && padtune_sliders[0].resolution == 60 ? 0 : 1; }\n')
-    subprocess.run([cc, "-std=c99", "-Wall", "-Wextra", "-pedantic", "-Werror", "-o", str(tmp_path / "m"),
-                    str(main)], check=True, cwd=tmp_path)
+    firmware = pathlib.Path(__file__).resolve().parents[2] / "devices" / "firmware"  # pt_types.h
+    subprocess.run([cc, "-std=c99", "-Wall", "-Wextra", "-pedantic", "-Werror", f"-I{firmware}", "-o",
+                    str(tmp_path / "m"), str(main)], check=True, cwd=tmp_path)
     assert subprocess.run([str(tmp_path / "m")]).returncode == 0
 
 
@@ -270,9 +271,10 @@ def test_c_header_comment_survives_any_board_id(tmp_path):
     if cc is None:
         pytest.skip("no C compiler here to check the header compiles")
     (tmp_path / "p.h").write_text(text)
-    (tmp_path / "main.c").write_text('#include "p.h"\nint main(void) { return padtune_channels[0].polarity - 1; }\n')
-    subprocess.run([cc, "-std=c99", "-Wall", "-Wextra", "-pedantic", "-Werror", "-o", str(tmp_path / "m"),
-                    str(tmp_path / "main.c")], check=True, cwd=tmp_path)
+    (tmp_path / "main.c").write_text('#include "p.h"\nint main(void) { return padtune_settings[0].polarity - 1; }\n')
+    firmware = pathlib.Path(__file__).resolve().parents[2] / "devices" / "firmware"  # pt_types.h
+    subprocess.run([cc, "-std=c99", "-Wall", "-Wextra", "-pedantic", "-Werror", f"-I{firmware}", "-o",
+                    str(tmp_path / "m"), str(tmp_path / "main.c")], check=True, cwd=tmp_path)
 
 
 def test_json_export(tmp_path):

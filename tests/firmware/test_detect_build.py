@@ -1,0 +1,192 @@
+"""Building the C library: the exported profile header and the library compile together (and refuse to
+when their types disagree), two processes building at once both get a whole library, and the binding's
+structs match the library's."""
+
+from __future__ import annotations
+
+import ctypes
+import os
+import shutil
+import subprocess
+import sys
+from dataclasses import replace
+from pathlib import Path
+
+import pytest
+
+from processing.export import export_c_header
+from processing.settings import ChannelSettings
+from tests.firmware.detect_fixtures import FIRMWARE, ROOT, STRICT, firmware_lib, needs_cc  # noqa: F401
+from tui.demo_profile import demo_profile
+
+MAIN = r"""
+#include <stdio.h>
+#include "pt_detect.h"
+#include "pt_groups.h"
+#include "profile.h"
+
+int main(void)
+{
+    static pt_settings_t live[PADTUNE_CHANNELS];  /* the RAM copy a board taking `set` keeps */
+    static pt_chan_t chans[PADTUNE_CHANNELS];
+    static pt_group_state_t gs[PADTUNE_GROUPS];
+    static pt_slider_state_t ss[PADTUNE_SLIDERS];
+    static pt_event_t ev[PADTUNE_CHANNELS + PADTUNE_GROUPS + PADTUNE_SLIDERS];
+    int32_t r[PADTUNE_CHANNELS];
+    pt_detector_t det;
+    int f, c;
+    size_t i, n;
+    memcpy(live, padtune_settings, sizeof live);
+    pt_detect_init(&det, live, chans, PADTUNE_CHANNELS);
+    pt_groups_init(gs, PADTUNE_GROUPS);
+    pt_sliders_init(ss, PADTUNE_SLIDERS);
+    for (f = 0; f < 40; f++) {
+        for (c = 0; c < PADTUNE_CHANNELS; c++)
+            r[c] = 1000;
+        if (f >= 10 && f < 30)
+            r[1] = 1100;  /* zone2 held for 20 frames */
+        n = pt_detect_frame(&det, r, ev);
+        n += pt_groups_frame(&det, padtune_groups, gs, PADTUNE_GROUPS, ev + n);
+        n += pt_sliders_frame(&det, padtune_sliders, ss, PADTUNE_SLIDERS, ev + n);
+        for (i = 0; i < n; i++)
+            if (ev[i].kind != PT_EV_REBASELINED)
+                printf("%d %d %s %u\n", f, ev[i].kind,
+                       ev[i].kind == PT_EV_GROUP ? padtune_group_names[ev[i].source]
+                                                 : padtune_channel_names[ev[i].source],
+                       (unsigned)ev[i].value);
+    }
+    return 0;
+}
+"""
+
+
+def compile_main(folder: Path, include: Path) -> subprocess.CompletedProcess:
+    (folder / "main.c").write_text("#include <string.h>\n" + MAIN)
+    sources = [str(include / "pt_detect.c"), str(include / "pt_groups.c"), str(folder / "main.c")]
+    return subprocess.run(
+        ["cc", *STRICT, f"-I{include}", f"-I{folder}", *sources, "-o", str(folder / "m")],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+
+
+@needs_cc
+def test_exported_header_configures_the_library(tmp_path):
+    export_c_header(demo_profile("greenhouse"), tmp_path / "profile.h", "greenhouse.toml")
+    built = compile_main(tmp_path, FIRMWARE)
+    assert built.returncode == 0, built.stderr
+    lines = subprocess.run(
+        [str(tmp_path / "m")], capture_output=True, text=True, check=True
+    ).stdout.splitlines()
+    # The demo's debounce is 2 frames each way (tui/demo_profile.py): touch on the 2nd frame held, release
+    # on the 2nd frame let go; the group "zones" follows zone2 both ways.
+    assert lines == ["11 1 zone2 0", "11 5 zones 1", "31 2 zone2 0", f"31 5 zones {0xFFFF}"]
+
+
+@needs_cc
+@pytest.mark.parametrize("change", ["field", "version"])
+def test_a_header_and_library_that_disagree_do_not_compile(tmp_path, change):
+    lib = tmp_path / "lib"
+    shutil.copytree(FIRMWARE, lib, ignore=shutil.ignore_patterns("*.py", "__pycache__", "binding", "harness"))
+    types = (lib / "pt_types.h").read_text()
+    if change == "field":
+        types = types.replace("int32_t threshold_counts;", "int32_t threshold;")
+    else:
+        types = types.replace("#define PT_TYPES_VERSION 1", "#define PT_TYPES_VERSION 2")
+    (lib / "pt_types.h").write_text(types)
+    (lib / "pt_detect.c").write_text(
+        (lib / "pt_detect.c").read_text().replace("threshold_counts", "threshold")
+    )
+    export_c_header(demo_profile("greenhouse"), tmp_path / "profile.h", "greenhouse.toml")
+    built = compile_main(tmp_path, lib)
+    assert built.returncode != 0
+    expected = "threshold_counts" if change == "field" else "exported for pt_types.h version 1"
+    assert expected in built.stderr
+
+
+@needs_cc
+def test_two_processes_building_at_once_both_load_a_whole_library(tmp_path):
+    env = {**os.environ, "PADTUNE_CACHE_DIR": str(tmp_path)}
+    code = "from devices.firmware import clib; print(clib.library_path()); clib.load()"
+    procs = [
+        subprocess.Popen(
+            [sys.executable, "-c", code],
+            cwd=ROOT,
+            env=env,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            text=True,
+        )
+        for _ in range(3)
+    ]
+    outs = [p.communicate(timeout=300) for p in procs]
+    assert all(p.returncode == 0 for p in procs), [err for _, err in outs]
+    assert len({out.strip() for out, _ in outs}) == 1
+    built = sorted(p.name for p in (tmp_path / "firmware").iterdir())
+    assert len(built) == 1 and built[0].endswith(".so"), built  # no temporary file left
+
+
+def test_binding_structs_match_the_library_and_a_channel_costs_20_bytes(firmware_lib):  # noqa: F811
+    from devices.firmware import clib
+
+    lib = clib.load()
+    sizes = (ctypes.c_uint32 * len(clib.MIRRORED))()
+    lib.pt_batch_sizes(sizes)
+    assert list(sizes) == [ctypes.sizeof(s) for s in clib.MIRRORED]
+    assert ctypes.sizeof(clib.PtChan) == 20 and ctypes.sizeof(clib.PtSettings) == 20
+
+
+def test_library_refuses_settings_a_profile_refuses(firmware_lib):  # noqa: F811
+    from devices.firmware import clib
+
+    det = clib.FirmwareDetector([ChannelSettings()], [1])
+    bad = [
+        {"threshold_counts": 0},
+        {"hysteresis_counts": 100},
+        {"baseline_fast_shift": 7},
+        {"baseline_period_frames": 48},
+        {"baseline_slow_shift": 17, "baseline_fast_shift": 0},
+    ]
+    keys = [
+        "threshold_counts",
+        "hysteresis_counts",
+        "baseline_fast_shift",
+        "baseline_period_frames",
+        "baseline_slow_shift",
+    ]
+    for fields, key in zip(bad, keys, strict=True):
+        s = replace(ChannelSettings(), **fields)  # a dataclass: replace() does not run its check
+        assert s.problems()[0][0] == key  # the profile's own rule names the same key first
+        with pytest.raises(ValueError, match=key):
+            det.set_settings(0, s)
+    assert det.run([[5]]) and det.states == [0]  # refused changes left the channel as it was
+
+
+def test_firmware_size_without_the_cross_compiler_prints_the_install_command(tmp_path):
+    bin_dir = tmp_path / "bin"
+    bin_dir.mkdir()
+    (bin_dir / "python3").symlink_to(sys.executable)
+    out = subprocess.run(
+        [str(bin_dir / "python3"), str(FIRMWARE / "size.py")],
+        capture_output=True,
+        text=True,
+        env={**os.environ, "PATH": str(bin_dir)},
+        timeout=60,
+    )
+    assert out.returncode == 2
+    assert out.stdout.strip().endswith("apt-get install gcc-arm-none-eabi libnewlib-arm-none-eabi")
+    assert len(out.stdout.splitlines()) == 1
+
+
+@pytest.mark.skipif(shutil.which("arm-none-eabi-gcc") is None, reason="no arm-none-eabi-gcc here")
+def test_firmware_size_reports_every_part_and_the_ram_per_channel():
+    out = subprocess.run(
+        [sys.executable, str(FIRMWARE / "size.py")], capture_output=True, text=True, timeout=300
+    )
+    assert out.returncode == 0, out.stdout + out.stderr
+    assert "detector (pt_detect.c)" in out.stdout and "groups and sliders (pt_groups.c)" in out.stdout
+    assert "RAM per channel: 20 B of detector state (pt_chan_t), within the 24 B goal" in out.stdout
+    rows = {line[:34].strip(): line[34:].split() for line in out.stdout.splitlines()}
+    flash, ram = (int(v) for v in rows["detector (pt_detect.c)"][:2])
+    assert flash > 0 and ram == 0  # no static RAM: every byte of state is the caller's
