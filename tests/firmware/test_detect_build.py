@@ -190,3 +190,28 @@ def test_firmware_size_reports_every_part_and_the_ram_per_channel():
     rows = {line[:34].strip(): line[34:].split() for line in out.stdout.splitlines()}
     flash, ram = (int(v) for v in rows["detector (pt_detect.c)"][:2])
     assert flash > 0 and ram == 0  # no static RAM: every byte of state is the caller's
+
+
+@needs_cc
+def test_the_readmes_example_compiles_against_an_exported_header(tmp_path):
+    text = (FIRMWARE / "README.md").read_text()
+    section = text.split("## The detector", 1)[1]
+    example = section.split("```c\n", 1)[1].split("```", 1)[0]
+    export_c_header(demo_profile("greenhouse"), tmp_path / "profile.h", "greenhouse.toml")
+    (tmp_path / "example.c").write_text(example)
+    built = subprocess.run(
+        [
+            "cc",
+            *STRICT,
+            f"-I{FIRMWARE}",
+            f"-I{tmp_path}",
+            "-c",
+            str(tmp_path / "example.c"),
+            "-o",
+            str(tmp_path / "e.o"),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert built.returncode == 0, built.stderr
