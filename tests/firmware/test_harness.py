@@ -20,11 +20,13 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from processing.export import export_c_header
 from processing.reference import PlainEngine
 from processing.settings import SETTING_KEYS, ChannelSettings
 from protocol.decoder import Decoder
 from protocol.events import BoardInfo, FrameBlock
 from tests.firmware import c_build
+from tui.demo_profile import demo_profile
 
 DEFAULTS = ChannelSettings()  # the harness starts every channel from the profile defaults
 INT32_MIN, INT32_MAX = -(1 << 31), (1 << 31) - 1
@@ -301,3 +303,52 @@ def test_deviate_changes_exactly_the_asked_channel_and_frames():
               for c in range(4) if a[c] != b[c]]
     assert differ == [(i, 1) for i in range(20, 25)]
     assert all(bent[i][1] == honest[i][1] ^ 2 for i in range(20, 25))
+
+
+# ------------------------------------------------------------------ the porting guide's main loop, run
+
+
+def readme_example() -> str:
+    text = (c_build.FIRMWARE / "README.md").read_text()
+    section = text.split("### A main loop for a generic microcontroller", 1)[1]
+    return section.split("```c\n", 1)[1].split("```", 1)[0]
+
+
+def test_the_porting_guides_main_loop_runs_as_a_board(tmp_path):
+    """The README's example, compiled as written with an exported profile and host stand-ins for its six
+    functions, under the sanitizers: padtune's decoder reads its info line (the profile's names,
+    settings=1, states=1), its frames and states, and its answers; `keep` survives a restart."""
+    c_build.require_cc()
+    profile = demo_profile("greenhouse")
+    export_c_header(profile, tmp_path / "profile.h", "greenhouse.toml")
+    (tmp_path / "example.c").write_text(readme_example())
+    program = tmp_path / "example"
+    fw = c_build.FIRMWARE
+    subprocess.run([c_build.CC, *c_build.WARN, *c_build.SANITIZE, f"-I{fw}", f"-I{tmp_path}",
+                    f"-DEXAMPLE_CHANNELS={profile.channels}", "-DEXAMPLE_FRAMES=80", "-o", str(program),
+                    str(tmp_path / "example.c"), str(fw / "harness" / "example_stubs.c"),
+                    *(str(fw / f) for f in ("pt_detect.c", "pt_emit.c", "pt_cmd.c"))],
+                   check=True, capture_output=True, text=True)
+
+    def board(commands: bytes) -> tuple[list, list[bytes], list[bytes]]:
+        done = subprocess.run([str(program)], input=commands, capture_output=True, timeout=60, cwd=tmp_path,
+                              env={**os.environ, **c_build.SAN_ENV})
+        assert done.returncode == 0 and not done.stderr, done.stderr
+        lines = done.stdout.splitlines()
+        good = [binascii.crc_hqx(x.rpartition(b"*")[0], 0xFFFF) == int(x[-4:], 16) for x in lines]
+        assert all(good)
+        answers = [line.rpartition(b"*")[0] for line in lines if line.startswith(b">")]
+        return Decoder().feed(lines[0] + b"\n", 0.0), answers, [x for x in lines if x.startswith(b"@")]
+
+    events, answers, frame_lines = board(b"set 2 threshold_counts=300 hysteresis_counts=40\nkeep\nget 2\n")
+    info = next(e for e in events if isinstance(e, BoardInfo))
+    assert info.names == profile.names and info.proto == 1 and info.rate_hz == 100
+    assert info.fields["settings"] == "1" and info.fields["states"] == "1"
+    assert answers[:2] == [b">ok set 2 threshold_counts=300 hysteresis_counts=40", b">ok keep"]
+    assert answers[2].startswith(b">val 2 threshold_counts=300 hysteresis_counts=40 ")
+    parsed = [FRAME.fullmatch(x) for x in frame_lines]
+    assert [int(m[1]) for m in parsed] == list(range(80))
+    states = [int(m[3][2:3]) for m in parsed]  # channel 2, touched by 500 counts from frame 20 to 59
+    assert states[:20] == [0] * 20 and states[30:60] == [2] * 30 and states[70:] == [0] * 10
+    _, again, _ = board(b"get 2\n")  # powered up again: the kept settings, not the profile's
+    assert again[0].startswith(b">val 2 threshold_counts=300 hysteresis_counts=40 ")
