@@ -1,15 +1,11 @@
-/* pt_cmd: section 7's host commands, parsed from a caller-owned line buffer (see pt_cmd.h). */
+/* pt_cmd: section 7's host commands, parsed from a caller-owned line buffer (see pt_cmd.h).
+ *
+ * Written for flash: every answer is one template string expanded by one function (`say`), whose
+ * control codes stand for the parts that vary (the channel, the word in question, a value, the reason),
+ * so each refusal costs its text and one call. No division anywhere (the M0+ has none). */
 #include "pt_cmd.h"
 
 #include <string.h>
-
-/* The profile's limits (processing/settings.py). */
-#define MAX_COUNTS 16777216L /* 1 << 24 */
-#define MAX_DEBOUNCE_FRAMES 255
-#define MAX_SHIFT 16
-#define MAX_PERIOD_FRAMES 256
-#define MAX_WORD 16u         /* a refused line's first word is quoted up to this many characters */
-#define ALL_CHANNELS 0xFFFFu /* `*` */
 
 /* The settings as the wire lists them, index = enum pt_setting_key - 1. Commands work on int32
  * copies: a value is checked before it is narrowed into pt_settings_t's small fields (300 must be
@@ -24,7 +20,26 @@
 #define K_PERIOD 6
 #define K_STUCK 7
 #define K_POLARITY 8
-#define NO_PROBLEM NKEYS
+
+#define ALL_CHANNELS (-1L) /* `*` */
+#define MAX_WORD 16u       /* a word is quoted up to this many characters */
+
+/* Template codes (see say()). */
+#define A_CMD "\001"   /* the command word */
+#define A_CH "\002"    /* the channel: its number, or * */
+#define A_WORD "\003"  /* the word in question, as given (at most 16 characters, unprintable ones as ?) */
+#define A_LAST "\004"  /* the last channel's number */
+#define A_KEY "\005"   /* the setting in question */
+#define A_WHY "\006"   /* the reason (a template itself) */
+#define A_SIZE "\007"  /* the line buffer's size */
+#define A_BAD "\010"   /* the channel `set *` failed on */
+#define V_T "\020"     /* \020 + k: the value of setting k */
+#define V_H "\021"
+#define V_SLOW "\024"
+#define V_FAST "\025"
+#define V_P "\026"
+#define V_X "\027"
+#define V_KEY "\030"   /* the value of the setting in question */
 
 static const char *const key_names[NKEYS] = {
     "threshold_counts", "hysteresis_counts", "touch_debounce_frames", "release_debounce_frames",
@@ -32,45 +47,35 @@ static const char *const key_names[NKEYS] = {
     "polarity",
 };
 
+typedef struct {
+    const char *s;
+    size_t len;
+} word_t;
+
+/* One command being answered. */
+typedef struct {
+    pt_cmd_t *p;
+    const char *cmd;  /* "get", "set" */
+    int32_t ch;       /* the channel, or ALL_CHANNELS */
+    int32_t bad;      /* `set *`: the channel whose settings broke the rules */
+    word_t word;      /* the word in question */
+    unsigned key;     /* the setting in question */
+    const char *why;  /* the reason's template */
+    int32_t v[NKEYS]; /* settings being checked, or the values given */
+} job_t;
+
 const char *pt_cmd_key_name(int key)
 {
     return key >= PT_KEY_THRESHOLD_COUNTS && key <= PT_KEY_POLARITY ? key_names[key - 1] : NULL;
 }
 
-static void to_values(const pt_settings_t *s, int32_t v[NKEYS])
-{
-    v[K_THRESHOLD] = s->threshold_counts;
-    v[K_HYSTERESIS] = s->hysteresis_counts;
-    v[K_TOUCH_DEBOUNCE] = s->touch_debounce_frames;
-    v[K_RELEASE_DEBOUNCE] = s->release_debounce_frames;
-    v[K_SLOW_SHIFT] = s->baseline_slow_shift;
-    v[K_FAST_SHIFT] = s->baseline_fast_shift;
-    v[K_PERIOD] = s->baseline_period_frames;
-    v[K_STUCK] = s->stuck_timeout_frames;
-    v[K_POLARITY] = s->polarity < 0 ? -1 : 1;
-}
-
-/* Only for values that passed check(): every one fits its field. */
-static void from_values(pt_settings_t *s, const int32_t v[NKEYS])
-{
-    s->threshold_counts = v[K_THRESHOLD];
-    s->hysteresis_counts = v[K_HYSTERESIS];
-    s->touch_debounce_frames = (uint8_t)v[K_TOUCH_DEBOUNCE];
-    s->release_debounce_frames = (uint8_t)v[K_RELEASE_DEBOUNCE];
-    s->baseline_slow_shift = (uint8_t)v[K_SLOW_SHIFT];
-    s->baseline_fast_shift = (uint8_t)v[K_FAST_SHIFT];
-    s->baseline_period_frames = (uint16_t)v[K_PERIOD];
-    s->stuck_timeout_frames = v[K_STUCK];
-    s->polarity = (int8_t)v[K_POLARITY];
-}
-
 void pt_cmd_init(pt_cmd_t *p, const pt_cmd_hooks_t *hooks, void *ctx, pt_emit_t *out,
                  pt_settings_t *settings, uint16_t channels, char *buf, uint16_t size)
 {
-    p->settings = settings;
     p->hooks = hooks;
     p->ctx = ctx;
     p->out = out;
+    p->settings = settings;
     p->buf = buf;
     p->size = size;
     p->channels = channels;
@@ -85,11 +90,6 @@ void pt_cmd_reset(pt_cmd_t *p)
 }
 
 /* --- words ------------------------------------------------------------------------------------- */
-
-typedef struct {
-    const char *s;
-    size_t len;
-} word_t;
 
 static int is_blank(char c)
 {
@@ -119,25 +119,24 @@ static int word_is(word_t w, const char *text)
     return w.len == n && memcmp(w.s, text, n) == 0;
 }
 
-/* A word quoted in an answer: at most MAX_WORD characters, anything unprintable as '?'. */
-static void emit_word(pt_emit_t *e, word_t w)
+/* The index of the setting named `w`, or NKEYS. */
+static unsigned key_of(word_t w)
 {
-    size_t i;
-    for (i = 0; i < w.len && i < MAX_WORD; i++) {
-        char c = w.s[i];
-        pt_emit_char(e, (c > 0x20 && c < 0x7F) ? c : '?');
+    unsigned k = 0;
+    while (k < NKEYS && !word_is(w, key_names[k])) {
+        k++;
     }
+    return k;
 }
 
-/* Decimal, optional leading '-' when `sign`; 0 when not a number or outside int32. */
+/* Decimal (a leading '-' when `sign`) into *out; 0 when not a number or outside int32. */
 static int parse_int(word_t w, int sign, int32_t *out)
 {
     size_t i = 0;
-    int negative = 0;
     uint32_t v = 0;
     uint32_t limit = 2147483647u;
-    if (sign && w.len > 0 && w.s[0] == '-') {
-        negative = 1;
+    int negative = sign && w.len > 0 && w.s[0] == '-';
+    if (negative) {
         limit = 2147483648u;
         i = 1;
     }
@@ -145,62 +144,20 @@ static int parse_int(word_t w, int sign, int32_t *out)
         return 0;
     }
     for (; i < w.len; i++) {
-        uint32_t digit;
-        if (w.s[i] < '0' || w.s[i] > '9') {
+        uint32_t digit = (uint32_t)(unsigned char)w.s[i] - (uint32_t)'0';
+        if (digit > 9u || v > 214748364u) {
             return 0;
         }
-        digit = (uint32_t)(w.s[i] - '0');
-        if (v > (limit - digit) / 10u) { /* v * 10 + digit > limit */
+        v = v * 10u + digit; /* at most 2147483649: no overflow */
+        if (v > limit) {
             return 0;
         }
-        v = v * 10u + digit;
     }
-    *out = negative ? (int32_t)(-(int32_t)(v - 1u) - 1) : (int32_t)v;
+    *out = !negative ? (int32_t)v : v == 0u ? 0 : -(int32_t)(v - 1u) - 1;
     return 1;
 }
 
 /* --- answers ----------------------------------------------------------------------------------- */
-
-/* `>no WORD ARG: ` (ARG left out when its len is 0); the caller writes the reason and ends. */
-static void no_head(pt_emit_t *e, const char *command, word_t arg)
-{
-    pt_emit_begin(e);
-    pt_emit_str(e, ">no ");
-    pt_emit_str(e, command);
-    if (arg.len > 0) {
-        pt_emit_char(e, ' ');
-        emit_word(e, arg);
-    }
-    pt_emit_str(e, ": ");
-}
-
-/* The channel as the answers name it: its number without leading zeros, or `*`. */
-static void emit_target(pt_emit_t *e, int32_t ch)
-{
-    if (ch == (int32_t)ALL_CHANNELS) {
-        pt_emit_char(e, '*');
-    } else {
-        pt_emit_int(e, ch);
-    }
-}
-
-/* `>no COMMAND CH: ` for a channel already understood. */
-static void no_head_ch(pt_emit_t *e, const char *command, int32_t ch)
-{
-    pt_emit_begin(e);
-    pt_emit_str(e, ">no ");
-    pt_emit_str(e, command);
-    pt_emit_char(e, ' ');
-    emit_target(e, ch);
-    pt_emit_str(e, ": ");
-}
-
-static void no_line(pt_emit_t *e, const char *command, word_t arg, const char *reason)
-{
-    no_head(e, command, arg);
-    pt_emit_str(e, reason);
-    pt_emit_end(e);
-}
 
 static void emit_value(pt_emit_t *e, unsigned key, int32_t v)
 {
@@ -211,405 +168,338 @@ static void emit_value(pt_emit_t *e, unsigned key, int32_t v)
     }
 }
 
-/* --- the rules of a profile -------------------------------------------------------------------- */
+static void expand(const job_t *j, const char *t)
+{
+    pt_emit_t *e = j->p->out;
+    char c;
+    size_t i;
+    while ((c = *t++) != '\0') {
+        if (c >= 0x10 && c <= 0x18) {
+            unsigned k = c == 0x18 ? j->key : (unsigned)(c - 0x10);
+            emit_value(e, k, j->v[k]);
+            continue;
+        }
+        switch (c) {
+        case 1:
+            pt_emit_str(e, j->cmd);
+            break;
+        case 2:
+            if (j->ch == ALL_CHANNELS) {
+                pt_emit_char(e, '*');
+            } else {
+                pt_emit_int(e, j->ch);
+            }
+            break;
+        case 3:
+            for (i = 0; i < j->word.len && i < MAX_WORD; i++) {
+                char w = j->word.s[i];
+                pt_emit_char(e, (w > 0x20 && w < 0x7F) ? w : '?');
+            }
+            break;
+        case 4:
+            pt_emit_uint(e, (uint32_t)j->p->channels - 1u);
+            break;
+        case 5:
+            pt_emit_str(e, key_names[j->key]);
+            break;
+        case 6:
+            expand(j, j->why);
+            break;
+        case 7:
+            pt_emit_uint(e, j->p->size);
+            break;
+        case 8:
+            pt_emit_int(e, j->bad);
+            break;
+        default:
+            pt_emit_char(e, c);
+            break;
+        }
+    }
+}
+
+/* One whole answer line from a template. */
+static void say(const job_t *j, const char *t)
+{
+    pt_emit_begin(j->p->out);
+    expand(j, t);
+    pt_emit_end(j->p->out);
+}
+
+/* --- the rules of a profile (processing/settings.py), in pt_settings_problem's order ------------- */
 
 static int out_of(int32_t v, int32_t lo, int32_t hi)
 {
     return v < lo || v > hi;
 }
 
-/* The index of the first value that breaks a profile's rules (processing/settings.py, same order as
- * pt_settings_problem), or NO_PROBLEM. */
-static unsigned problem(const int32_t v[NKEYS])
+/* Sets j->key and j->why to the first value of j->v that breaks the rules; 0 when none does. */
+static int problem(job_t *j)
 {
+    const int32_t *v = j->v;
     int32_t period = v[K_PERIOD];
-    if (out_of(v[K_THRESHOLD], 1, MAX_COUNTS)) {
-        return K_THRESHOLD;
+    unsigned k;
+    j->why = NULL;
+    if (out_of(v[K_THRESHOLD], 1, 16777216L)) {
+        j->key = K_THRESHOLD;
+        j->why = "must be between 1 and 16777216, not " V_T;
+    } else if (v[K_HYSTERESIS] < 0) {
+        j->key = K_HYSTERESIS;
+        j->why = "must not be negative (" V_H ")";
+    } else if (v[K_HYSTERESIS] >= v[K_THRESHOLD]) {
+        j->key = K_HYSTERESIS;
+        j->why = V_H " must be below the threshold (" V_T "), or the key could never release";
+    } else {
+        for (k = K_TOUCH_DEBOUNCE; k <= K_FAST_SHIFT && j->why == NULL; k++) {
+            int debounce = k <= K_RELEASE_DEBOUNCE;
+            if (out_of(v[k], debounce ? 1 : 0, debounce ? 255 : 16)) {
+                j->key = k;
+                j->why = debounce ? "must be between 1 (react on the first frame) and 255, not " V_KEY
+                                  : "must be between 0 and 16, not " V_KEY;
+            }
+        }
+        if (j->why != NULL) {
+            return 1;
+        }
+        if (v[K_FAST_SHIFT] > v[K_SLOW_SHIFT]) {
+            j->key = K_FAST_SHIFT;
+            j->why = V_FAST " is slower than baseline_slow_shift (" V_SLOW
+                     "); the baseline must recover faster than it drifts";
+        } else if (out_of(period, 1, 256) || (period & (period - 1)) != 0) {
+            j->key = K_PERIOD;
+            j->why = "must be a power of two from 1 to 256, not " V_P;
+        } else if (v[K_STUCK] < 0) {
+            j->key = K_STUCK;
+            j->why = "must be 0 (never) or a positive frame count, not " V_X;
+        }
     }
-    if (v[K_HYSTERESIS] < 0 || v[K_HYSTERESIS] >= v[K_THRESHOLD]) {
-        return K_HYSTERESIS;
-    }
-    if (out_of(v[K_TOUCH_DEBOUNCE], 1, MAX_DEBOUNCE_FRAMES)) {
-        return K_TOUCH_DEBOUNCE;
-    }
-    if (out_of(v[K_RELEASE_DEBOUNCE], 1, MAX_DEBOUNCE_FRAMES)) {
-        return K_RELEASE_DEBOUNCE;
-    }
-    if (out_of(v[K_SLOW_SHIFT], 0, MAX_SHIFT)) {
-        return K_SLOW_SHIFT;
-    }
-    if (out_of(v[K_FAST_SHIFT], 0, MAX_SHIFT)
-        || v[K_FAST_SHIFT] > v[K_SLOW_SHIFT]) {
-        return K_FAST_SHIFT;
-    }
-    if (out_of(period, 1, MAX_PERIOD_FRAMES) || (period & (period - 1)) != 0) {
-        return K_PERIOD;
-    }
-    if (v[K_STUCK] < 0) {
-        return K_STUCK;
-    }
-    if (v[K_POLARITY] != 1 && v[K_POLARITY] != -1) {
-        return K_POLARITY;
-    }
-    return NO_PROBLEM;
+    return j->why != NULL;
 }
 
-static void between(pt_emit_t *e, const char *lo, int32_t hi, int32_t v)
+static void to_values(const pt_settings_t *s, int32_t v[NKEYS])
 {
-    pt_emit_str(e, "must be between ");
-    pt_emit_str(e, lo);
-    pt_emit_str(e, " and ");
-    pt_emit_int(e, hi);
-    pt_emit_str(e, ", not ");
-    pt_emit_int(e, v);
+    v[K_THRESHOLD] = s->threshold_counts;
+    v[K_HYSTERESIS] = s->hysteresis_counts;
+    v[K_TOUCH_DEBOUNCE] = s->touch_debounce_frames;
+    v[K_RELEASE_DEBOUNCE] = s->release_debounce_frames;
+    v[K_SLOW_SHIFT] = s->baseline_slow_shift;
+    v[K_FAST_SHIFT] = s->baseline_fast_shift;
+    v[K_PERIOD] = s->baseline_period_frames;
+    v[K_STUCK] = s->stuck_timeout_frames;
+    v[K_POLARITY] = s->polarity < 0 ? -1 : 1;
 }
 
-/* The reason, in processing/settings.py's words, why `key` of `v` is refused. */
-static void emit_reason(pt_emit_t *e, unsigned key, const int32_t v[NKEYS])
+/* Only for values that passed problem(): every one fits its field. */
+static void from_values(pt_settings_t *s, const int32_t v[NKEYS])
 {
-    int32_t x = v[key];
-    switch (key) {
-    case K_THRESHOLD:
-        between(e, "1", MAX_COUNTS, x);
-        break;
-    case K_HYSTERESIS:
-        if (x < 0) {
-            pt_emit_str(e, "must not be negative (");
-            pt_emit_int(e, x);
-            pt_emit_char(e, ')');
-        } else {
-            pt_emit_int(e, x);
-            pt_emit_str(e, " must be below the threshold (");
-            pt_emit_int(e, v[K_THRESHOLD]);
-            pt_emit_str(e, "), or the key could never release");
-        }
-        break;
-    case K_TOUCH_DEBOUNCE:
-    case K_RELEASE_DEBOUNCE:
-        between(e, "1 (react on the first frame)", MAX_DEBOUNCE_FRAMES, x);
-        break;
-    case K_SLOW_SHIFT:
-        between(e, "0", MAX_SHIFT, x);
-        break;
-    case K_FAST_SHIFT:
-        if (out_of(x, 0, MAX_SHIFT)) {
-            between(e, "0", MAX_SHIFT, x);
-        } else {
-            pt_emit_int(e, x);
-            pt_emit_str(e, " is slower than baseline_slow_shift (");
-            pt_emit_int(e, v[K_SLOW_SHIFT]);
-            pt_emit_str(e, "); the baseline must recover faster than it drifts");
-        }
-        break;
-    case K_PERIOD:
-        pt_emit_str(e, "must be a power of two from 1 to 256, not ");
-        pt_emit_int(e, x);
-        break;
-    case K_STUCK:
-        pt_emit_str(e, "must be 0 (never) or a positive frame count, not ");
-        pt_emit_int(e, x);
-        break;
-    default:
-        pt_emit_str(e, "must be + or -, not ");
-        pt_emit_int(e, x);
-        break;
-    }
+    s->threshold_counts = v[K_THRESHOLD];
+    s->hysteresis_counts = v[K_HYSTERESIS];
+    s->touch_debounce_frames = (uint8_t)v[K_TOUCH_DEBOUNCE];
+    s->release_debounce_frames = (uint8_t)v[K_RELEASE_DEBOUNCE];
+    s->baseline_slow_shift = (uint8_t)v[K_SLOW_SHIFT];
+    s->baseline_fast_shift = (uint8_t)v[K_FAST_SHIFT];
+    s->baseline_period_frames = (uint16_t)v[K_PERIOD];
+    s->stuck_timeout_frames = v[K_STUCK];
+    s->polarity = (int8_t)v[K_POLARITY];
 }
 
 /* --- commands ---------------------------------------------------------------------------------- */
 
-/* The channel word: 0..channels-1, or ALL_CHANNELS for `*`; -1 (after answering) when unusable. */
-static int32_t channel_of(pt_cmd_t *p, const char *command, word_t arg)
+/* Reads the channel word into j->ch; answers and returns 0 when there is none or it is wrong. */
+static int channel_of(job_t *j, word_t arg)
 {
-    int32_t ch;
+    j->word = arg;
     if (arg.len == 0) {
-        no_line(p->out, command, arg, command[0] == 'g'
-                ? "which channel? (get N, or get * for all)"
-                : "which channel? (set N key=value ..., or set * key=value ...)");
-        return -1;
+        say(j, j->cmd[0] == 'g' ? ">no get: which channel? (get N, or get * for all)"
+                                : ">no set: which channel? (set N key=value ..., or set * key=value ...)");
+        return 0;
     }
     if (word_is(arg, "*")) {
-        return (int32_t)ALL_CHANNELS;
+        j->ch = ALL_CHANNELS;
+        return 1;
     }
-    if (!parse_int(arg, 0, &ch) || ch >= (int32_t)p->channels) {
-        no_head(p->out, command, arg);
-        pt_emit_str(p->out, "no such channel (0 to ");
-        pt_emit_uint(p->out, (uint32_t)p->channels - 1u);
-        pt_emit_str(p->out, ", or *)");
-        pt_emit_end(p->out);
-        return -1;
-    }
-    return ch;
-}
-
-static void run_get(pt_cmd_t *p, const char *line, size_t len, size_t pos)
-{
-    word_t arg = next_word(line, len, &pos);
-    int32_t ch = channel_of(p, "get", arg);
-    uint16_t first, last, c;
-    int32_t v[NKEYS];
-    unsigned k;
-    if (ch < 0) {
-        return;
-    }
-    if (next_word(line, len, &pos).len > 0) {
-        no_head_ch(p->out, "get", ch);
-        pt_emit_str(p->out, "one channel at a time (get N, or get * for all)");
-        pt_emit_end(p->out);
-        return;
-    }
-    first = ch == (int32_t)ALL_CHANNELS ? 0u : (uint16_t)ch;
-    last = ch == (int32_t)ALL_CHANNELS ? (uint16_t)(p->channels - 1u) : (uint16_t)ch;
-    for (c = first; c <= last; c++) {
-        to_values(&p->settings[c], v);
-        pt_emit_begin(p->out);
-        pt_emit_str(p->out, ">val ");
-        pt_emit_uint(p->out, c);
-        for (k = 0; k < NKEYS; k++) {
-            pt_emit_char(p->out, ' ');
-            pt_emit_str(p->out, key_names[k]);
-            pt_emit_char(p->out, '=');
-            emit_value(p->out, k, v[k]);
-        }
-        pt_emit_end(p->out);
-    }
-    pt_emit_begin(p->out);
-    pt_emit_str(p->out, ">ok get ");
-    emit_target(p->out, ch);
-    pt_emit_end(p->out);
-}
-
-/* `>no set CH: KEY: ` */
-static void set_no(pt_cmd_t *p, int32_t ch, word_t key)
-{
-    no_head_ch(p->out, "set", ch);
-    emit_word(p->out, key);
-    pt_emit_str(p->out, ": ");
-}
-
-/* Reads the pairs into `given` (marking `have`); answers and returns 0 at the first that is wrong. */
-static int read_pairs(pt_cmd_t *p, int32_t ch, const char *line, size_t len, size_t pos,
-                      int32_t given[NKEYS], uint16_t *have)
-{
-    word_t w;
-    *have = 0;
-    for (w = next_word(line, len, &pos); w.len > 0; w = next_word(line, len, &pos)) {
-        const char *eq = memchr(w.s, '=', w.len);
-        word_t name, value;
-        unsigned k;
-        if (eq == NULL) {
-            set_no(p, ch, w);
-            pt_emit_str(p->out, "not key=value");
-            pt_emit_end(p->out);
-            return 0;
-        }
-        name.s = w.s;
-        name.len = (size_t)(eq - w.s);
-        value.s = eq + 1;
-        value.len = w.len - name.len - 1u;
-        for (k = 0; k < NKEYS && !word_is(name, key_names[k]); k++) {
-        }
-        if (k == NKEYS) {
-            set_no(p, ch, name);
-            pt_emit_str(p->out, "unknown setting");
-            pt_emit_end(p->out);
-            return 0;
-        }
-        if (*have & (1u << k)) {
-            set_no(p, ch, name);
-            pt_emit_str(p->out, "given twice");
-            pt_emit_end(p->out);
-            return 0;
-        }
-        if (k == K_POLARITY) {
-            if (word_is(value, "+") || word_is(value, "-")) {
-                given[k] = value.s[0] == '-' ? -1 : 1;
-            } else {
-                set_no(p, ch, name);
-                pt_emit_str(p->out, "must be + or -, not '");
-                emit_word(p->out, value);
-                pt_emit_str(p->out, "'");
-                pt_emit_end(p->out);
-                return 0;
-            }
-        } else if (!parse_int(value, 1, &given[k])) {
-            set_no(p, ch, name);
-            pt_emit_str(p->out, "must be a whole number that fits in 32 bits, not '");
-            emit_word(p->out, value);
-            pt_emit_str(p->out, "'");
-            pt_emit_end(p->out);
-            return 0;
-        }
-        *have = (uint16_t)(*have | (1u << k));
+    if (!parse_int(arg, 0, &j->ch) || j->ch >= (int32_t)j->p->channels) {
+        say(j, ">no " A_CMD " " A_WORD ": no such channel (0 to " A_LAST ", or *)");
+        return 0;
     }
     return 1;
 }
 
-static void merge(int32_t v[NKEYS], const int32_t given[NKEYS], uint16_t have)
+static void run_get(job_t *j, const char *line, size_t len, size_t pos)
 {
+    pt_emit_t *e = j->p->out;
+    uint16_t c;
     unsigned k;
-    for (k = 0; k < NKEYS; k++) {
-        if (have & (1u << k)) {
-            v[k] = given[k];
-        }
+    if (!channel_of(j, next_word(line, len, &pos))) {
+        return;
     }
+    if (next_word(line, len, &pos).len > 0) {
+        say(j, ">no get " A_CH ": one channel at a time (get N, or get * for all)");
+        return;
+    }
+    for (c = 0; c < j->p->channels; c++) {
+        if (j->ch != ALL_CHANNELS && c != j->ch) {
+            continue;
+        }
+        to_values(&j->p->settings[c], j->v);
+        pt_emit_begin(e);
+        pt_emit_str(e, ">val ");
+        pt_emit_uint(e, c);
+        for (k = 0; k < NKEYS; k++) {
+            pt_emit_char(e, ' ');
+            pt_emit_str(e, key_names[k]);
+            pt_emit_char(e, '=');
+            emit_value(e, k, j->v[k]);
+        }
+        pt_emit_end(e);
+    }
+    say(j, ">ok get " A_CH);
 }
 
-static void run_set(pt_cmd_t *p, const char *line, size_t len, size_t pos)
+/* `set` from the pairs on: parse all, check all channels, then write. */
+static void run_set(job_t *j, const char *line, size_t len, size_t pos)
 {
-    word_t arg = next_word(line, len, &pos);
-    int32_t ch = channel_of(p, "set", arg);
+    pt_emit_t *e = j->p->out;
     int32_t given[NKEYS];
-    int32_t v[NKEYS];
-    uint16_t have, first, last, c;
-    size_t pairs = pos;
+    uint16_t have = 0;
+    uint16_t c;
+    size_t pairs;
     word_t w;
-    if (ch < 0) {
+    unsigned k;
+    if (!channel_of(j, next_word(line, len, &pos))) {
         return;
     }
-    if (!read_pairs(p, ch, line, len, pos, given, &have)) {
-        return;
-    }
-    if (have == 0) {
-        no_head_ch(p->out, "set", ch);
-        pt_emit_str(p->out, "nothing to set (key=value ...)");
-        pt_emit_end(p->out);
-        return;
-    }
-    first = ch == (int32_t)ALL_CHANNELS ? 0u : (uint16_t)ch;
-    last = ch == (int32_t)ALL_CHANNELS ? (uint16_t)(p->channels - 1u) : (uint16_t)ch;
-    for (c = first; c <= last; c++) { /* all checked before any is written: all or none */
-        unsigned bad;
-        to_values(&p->settings[c], v);
-        merge(v, given, have);
-        bad = problem(v);
-        if (bad != NO_PROBLEM) {
-            no_head_ch(p->out, "set", ch);
-            pt_emit_str(p->out, key_names[bad]);
-            pt_emit_str(p->out, ": ");
-            emit_reason(p->out, bad, v);
-            if (ch == (int32_t)ALL_CHANNELS) {
-                pt_emit_str(p->out, " (channel ");
-                pt_emit_uint(p->out, c);
-                pt_emit_char(p->out, ')');
-            }
-            pt_emit_end(p->out);
+    pairs = pos;
+    for (w = next_word(line, len, &pos); w.len > 0; w = next_word(line, len, &pos)) {
+        const char *eq = memchr(w.s, '=', w.len);
+        word_t value;
+        j->word = w;
+        if (eq == NULL) {
+            say(j, ">no set " A_CH ": " A_WORD ": not key=value");
             return;
         }
+        j->word.len = (size_t)(eq - w.s);
+        value.s = eq + 1;
+        value.len = w.len - j->word.len - 1u;
+        k = key_of(j->word);
+        if (k == NKEYS) {
+            say(j, ">no set " A_CH ": " A_WORD ": unknown setting");
+            return;
+        }
+        if (have & (1u << k)) {
+            say(j, ">no set " A_CH ": " A_WORD ": given twice");
+            return;
+        }
+        if (k == K_POLARITY && (word_is(value, "+") || word_is(value, "-"))) {
+            given[k] = value.s[0] == '-' ? -1 : 1;
+        } else if (k == K_POLARITY || !parse_int(value, 1, &given[k])) {
+            j->key = k;
+            j->word = value;
+            say(j, k == K_POLARITY ? ">no set " A_CH ": " A_KEY ": must be + or -, not '" A_WORD "'"
+                                   : ">no set " A_CH ": " A_KEY ": must be a whole number that fits in 32 bits, "
+                                     "not '" A_WORD "'");
+            return;
+        }
+        have = (uint16_t)(have | (1u << k));
     }
-    for (c = first; c <= last; c++) {
-        to_values(&p->settings[c], v);
-        merge(v, given, have);
-        from_values(&p->settings[c], v);
-        if (p->hooks->changed != NULL) {
-            p->hooks->changed(p->ctx, c);
+    if (have == 0) {
+        say(j, ">no set " A_CH ": nothing to set (key=value ...)");
+        return;
+    }
+    for (pos = 0; pos < 2; pos++) { /* first check every channel asked, then write them: all or none */
+        for (c = 0; c < j->p->channels; c++) {
+            if (j->ch != ALL_CHANNELS && c != j->ch) {
+                continue;
+            }
+            to_values(&j->p->settings[c], j->v);
+            for (k = 0; k < NKEYS; k++) {
+                if (have & (1u << k)) {
+                    j->v[k] = given[k];
+                }
+            }
+            if (pos == 1) {
+                from_values(&j->p->settings[c], j->v);
+                if (j->p->hooks->changed != NULL) {
+                    j->p->hooks->changed(j->p->ctx, c);
+                }
+            } else if (problem(j)) {
+                j->bad = c;
+                say(j, j->ch == ALL_CHANNELS ? ">no set *: " A_KEY ": " A_WHY " (channel " A_BAD ")"
+                                             : ">no set " A_CH ": " A_KEY ": " A_WHY);
+                return;
+            }
         }
     }
-    pt_emit_begin(p->out);
-    pt_emit_str(p->out, ">ok set ");
-    emit_target(p->out, ch);
+    pt_emit_begin(e);
+    expand(j, ">ok set " A_CH);
     for (w = next_word(line, len, &pairs); w.len > 0; w = next_word(line, len, &pairs)) {
-        const char *eq = memchr(w.s, '=', w.len);
-        word_t name;
-        unsigned k;
-        name.s = w.s;
-        name.len = (size_t)(eq - w.s);
-        for (k = 0; !word_is(name, key_names[k]); k++) {
-        }
-        pt_emit_char(p->out, ' ');
-        pt_emit_str(p->out, key_names[k]);
-        pt_emit_char(p->out, '=');
-        emit_value(p->out, k, given[k]);
+        w.len = (size_t)((const char *)memchr(w.s, '=', w.len) - w.s);
+        k = key_of(w);
+        pt_emit_char(e, ' ');
+        pt_emit_str(e, key_names[k]);
+        pt_emit_char(e, '=');
+        emit_value(e, k, given[k]);
     }
-    pt_emit_end(p->out);
+    pt_emit_end(e);
 }
 
-static void run_keep(pt_cmd_t *p, const char *line, size_t len, size_t pos)
+static void run_keep(job_t *j, const char *line, size_t len, size_t pos)
 {
-    word_t none = {NULL, 0};
-    const char *why;
+    const pt_cmd_hooks_t *h = j->p->hooks;
     if (next_word(line, len, &pos).len > 0) {
-        no_line(p->out, "keep", none, "takes no words after it");
-        return;
-    }
-    if (p->hooks->keep == NULL) {
-        no_line(p->out, "keep", none, "this board cannot keep settings");
-        return;
-    }
-    why = p->hooks->keep(p->ctx);
-    if (why != NULL) {
-        no_line(p->out, "keep", none, why);
-        return;
-    }
-    pt_emit_begin(p->out);
-    pt_emit_str(p->out, ">ok keep");
-    pt_emit_end(p->out);
-}
-
-static void refuse_word(pt_cmd_t *p, word_t first, const char *reason)
-{
-    pt_emit_begin(p->out);
-    pt_emit_str(p->out, ">no ");
-    if (first.len > 0) {
-        emit_word(p->out, first);
+        say(j, ">no keep: takes no words after it");
+    } else if (h->keep == NULL) {
+        say(j, ">no keep: this board cannot keep settings");
+    } else if ((j->why = h->keep(j->p->ctx)) != NULL) {
+        say(j, ">no keep: " A_WHY);
     } else {
-        pt_emit_char(p->out, '?');
+        say(j, ">ok keep");
     }
-    pt_emit_str(p->out, ": ");
-    pt_emit_str(p->out, reason);
 }
 
-static void run(pt_cmd_t *p, const char *line, size_t len)
+static void run(pt_cmd_t *p, const char *line, size_t len, const char *refusal)
 {
+    job_t j;
     size_t pos = 0;
-    word_t first = next_word(line, len, &pos);
-    if (first.len == 0) {
+    memset(&j, 0, sizeof j);
+    j.p = p;
+    j.word = next_word(line, len, &pos);
+    if (refusal != NULL) {
+        if (j.word.len == 0) {
+            j.word.s = "?";
+            j.word.len = 1;
+        }
+        say(&j, refusal);
+    } else if (j.word.len == 0) {
         return; /* a blank line: nothing asked */
-    }
-    if (word_is(first, "?") && p->hooks->info != NULL) {
+    } else if (word_is(j.word, "?") && p->hooks->info != NULL) {
         p->hooks->info(p->ctx);
-    } else if (word_is(first, "get")) {
-        run_get(p, line, len, pos);
-    } else if (word_is(first, "set")) {
-        run_set(p, line, len, pos);
-    } else if (word_is(first, "keep")) {
-        run_keep(p, line, len, pos);
+    } else if (word_is(j.word, "get") || word_is(j.word, "set")) {
+        j.cmd = j.word.s[0] == 'g' ? "get" : "set";
+        (j.cmd[0] == 'g' ? run_get : run_set)(&j, line, len, pos);
+    } else if (word_is(j.word, "keep")) {
+        run_keep(&j, line, len, pos);
     } else if (p->hooks->other == NULL || !p->hooks->other(p->ctx, line, len)) {
-        refuse_word(p, first, "unknown command");
-        pt_emit_end(p->out);
+        say(&j, ">no " A_WORD ": unknown command");
     }
 }
+
+static const char not_ascii[] = ">no " A_WORD ": not ASCII text";
 
 void pt_cmd_line(pt_cmd_t *p, const char *line, size_t len)
 {
     size_t i;
-    size_t pos = 0;
-    for (i = 0; i < len; i++) {
-        if (!is_blank(line[i]) && (line[i] < 0x20 || line[i] > 0x7E)) {
-            refuse_word(p, next_word(line, len, &pos), "not ASCII text");
-            pt_emit_end(p->out);
-            return;
-        }
+    for (i = 0; i < len && (is_blank(line[i]) || (line[i] >= 0x20 && line[i] < 0x7F)); i++) {
     }
-    run(p, line, len);
+    run(p, line, len, i < len ? not_ascii : NULL);
 }
 
 void pt_cmd_feed(pt_cmd_t *p, uint8_t byte)
 {
     if (byte == '\n' || byte == '\r') {
-        if (p->overlong) {
-            size_t pos = 0;
-            refuse_word(p, next_word(p->buf, p->len, &pos), "line too long (over ");
-            pt_emit_uint(p->out, p->size);
-            pt_emit_str(p->out, " characters)");
-            pt_emit_end(p->out);
-        } else if (p->binary) {
-            size_t pos = 0;
-            refuse_word(p, next_word(p->buf, p->len, &pos), "not ASCII text");
-            pt_emit_end(p->out);
-        } else {
-            run(p, p->buf, p->len);
-        }
+        run(p, p->buf, p->len,
+            p->overlong ? ">no " A_WORD ": line too long (over " A_SIZE " characters)"
+                        : p->binary ? not_ascii : NULL);
         pt_cmd_reset(p);
         return;
     }
