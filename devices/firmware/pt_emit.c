@@ -123,11 +123,13 @@ void pt_emit_end(pt_emit_t *e)
     e->tail = 0;
 }
 
-static void key(pt_emit_t *e, const char *name)
+/* ` key=text`, or nothing when there is no text. `key` holds the blank and the `=`. */
+static void text_key(pt_emit_t *e, const char *key, const char *text)
 {
-    pt_emit_char(e, ' ');
-    pt_emit_str(e, name);
-    pt_emit_char(e, '=');
+    if (text != NULL) {
+        pt_emit_str(e, key);
+        pt_emit_str(e, text);
+    }
 }
 
 static void rate(pt_emit_t *e, uint32_t rate_mhz)
@@ -169,7 +171,7 @@ static void polarity(pt_emit_t *e, const int8_t *pol, uint16_t channels)
             same = 0;
         }
     }
-    key(e, "polarity");
+    pt_emit_str(e, " polarity=");
     for (c = 0; c < (same ? 1u : channels); c++) {
         if (c > 0) {
             pt_emit_char(e, ',');
@@ -181,52 +183,34 @@ static void polarity(pt_emit_t *e, const int8_t *pol, uint16_t channels)
 void pt_emit_info(pt_emit_t *e, const pt_info_t *info, int announce)
 {
     uint16_t c;
+    uint16_t n = info->channels;
     pt_emit_begin(e);
-    pt_emit_char(e, '!');
-    if (announce) {
-        key(e, "proto");
-        pt_emit_char(e, '1');
-    }
-    if (info->board != NULL) {
-        key(e, "board");
-        pt_emit_str(e, info->board);
-    }
-    if (info->channels != 0) {
-        key(e, "channels");
-        pt_emit_uint(e, info->channels);
+    pt_emit_str(e, announce ? "! proto=1" : "!");
+    text_key(e, " board=", info->board);
+    if (n != 0) {
+        pt_emit_str(e, " channels=");
+        pt_emit_uint(e, n);
     }
     if (info->rate_mhz != 0) {
-        key(e, "rate");
+        pt_emit_str(e, " rate=");
         rate(e, info->rate_mhz);
     }
-    if (info->names != NULL && info->channels != 0) {
-        key(e, "names");
-        for (c = 0; c < info->channels; c++) {
+    if (info->names != NULL && n != 0) {
+        pt_emit_str(e, " names=");
+        for (c = 0; c < n; c++) {
             if (c > 0) {
                 pt_emit_char(e, ',');
             }
             pt_emit_str(e, info->names[c]);
         }
     }
-    if (info->method != NULL) {
-        key(e, "method");
-        pt_emit_str(e, info->method);
+    text_key(e, " method=", info->method);
+    if (info->polarity != NULL && n != 0) {
+        polarity(e, info->polarity, n);
     }
-    if (info->polarity != NULL && info->channels != 0) {
-        polarity(e, info->polarity, info->channels);
-    }
-    if (info->fw != NULL) {
-        key(e, "fw");
-        pt_emit_str(e, info->fw);
-    }
-    if (info->settings) {
-        key(e, "settings");
-        pt_emit_char(e, '1');
-    }
-    if (info->states) {
-        key(e, "states");
-        pt_emit_char(e, '1');
-    }
+    text_key(e, " fw=", info->fw);
+    text_key(e, " settings=", info->settings ? "1" : NULL);
+    text_key(e, " states=", info->states ? "1" : NULL);
     pt_emit_end(e);
 }
 
