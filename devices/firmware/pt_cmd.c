@@ -5,7 +5,8 @@
  * so each refusal costs its text and one call. No division anywhere (the M0+ has none). */
 #include "pt_cmd.h"
 
-#include <string.h>
+/* No <string.h> calls: the few loops below are smaller than newlib's optimised versions they would
+ * pull into the image. */
 
 /* The settings as the wire lists them, index = enum pt_setting_key - 1. Commands work on int32
  * copies: a value is checked before it is narrowed into pt_settings_t's small fields (300 must be
@@ -115,8 +116,21 @@ static word_t next_word(const char *line, size_t len, size_t *pos)
 
 static int word_is(word_t w, const char *text)
 {
-    size_t n = strlen(text);
-    return w.len == n && memcmp(w.s, text, n) == 0;
+    size_t i = 0;
+    while (i < w.len && text[i] == w.s[i]) {
+        i++;
+    }
+    return i == w.len && text[i] == '\0';
+}
+
+/* How many characters of `w` come before its '=' (w.len when it has none). */
+static size_t before_eq(word_t w)
+{
+    size_t i = 0;
+    while (i < w.len && w.s[i] != '=') {
+        i++;
+    }
+    return i;
 }
 
 /* The index of the setting named `w`, or NKEYS. */
@@ -371,16 +385,16 @@ static void run_set(job_t *j, const char *line, size_t len, size_t pos)
     }
     pairs = pos;
     for (w = next_word(line, len, &pos); w.len > 0; w = next_word(line, len, &pos)) {
-        const char *eq = memchr(w.s, '=', w.len);
+        size_t eq = before_eq(w);
         word_t value;
         j->word = w;
-        if (eq == NULL) {
+        if (eq == w.len) {
             say(j, ">no set " A_CH ": " A_WORD ": not key=value");
             return;
         }
-        j->word.len = (size_t)(eq - w.s);
-        value.s = eq + 1;
-        value.len = w.len - j->word.len - 1u;
+        j->word.len = eq;
+        value.s = w.s + eq + 1;
+        value.len = w.len - eq - 1u;
         k = key_of(j->word);
         if (k == NKEYS) {
             say(j, ">no set " A_CH ": " A_WORD ": unknown setting");
@@ -433,7 +447,7 @@ static void run_set(job_t *j, const char *line, size_t len, size_t pos)
     pt_emit_begin(e);
     expand(j, ">ok set " A_CH);
     for (w = next_word(line, len, &pairs); w.len > 0; w = next_word(line, len, &pairs)) {
-        w.len = (size_t)((const char *)memchr(w.s, '=', w.len) - w.s);
+        w.len = before_eq(w);
         k = key_of(w);
         pt_emit_char(e, ' ');
         pt_emit_str(e, key_names[k]);
@@ -459,10 +473,14 @@ static void run_keep(job_t *j, const char *line, size_t len, size_t pos)
 
 static void run(pt_cmd_t *p, const char *line, size_t len, const char *refusal)
 {
-    job_t j;
+    job_t j; /* fields set as they come into use (no memset: it would pull in newlib's) */
     size_t pos = 0;
-    memset(&j, 0, sizeof j);
     j.p = p;
+    j.cmd = "";
+    j.ch = 0;
+    j.bad = 0;
+    j.key = 0;
+    j.why = "";
     j.word = next_word(line, len, &pos);
     if (refusal != NULL) {
         if (j.word.len == 0) {
