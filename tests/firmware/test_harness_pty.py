@@ -11,6 +11,7 @@ import time
 import pytest
 import serial
 
+from processing.profile import profile_for, save_profile
 from protocol.decoder import Decoder
 from protocol.events import FrameBlock
 from tests.firmware import c_build
@@ -112,3 +113,33 @@ def test_a_host_on_pyserial_sets_and_reads_settings_between_frames(tmp_path):
         board.stop()
     kept = (tmp_path / "flash").read_text().splitlines()[1]
     assert kept == "64 10 3 3 6 2 16 0 -1"  # threshold .. stuck timeout, polarity
+
+
+def test_padtune_runs_its_twin_against_the_c_board_and_sees_it_deviate(tmp_path):
+    """With the profile the board was built with, padtune compares the board's states with its own
+    frame by frame: an honest run of touches agrees on every frame; a board told to deviate (channel 2
+    reports the wrong state for 20 frames) is reported at once, as a `twin_mismatch` on that key."""
+    if not decoder_reads_state_field():
+        pytest.skip("padtune's decoder does not read the frame's state field yet (branch i11-twin)")
+    profile = tmp_path / "board.toml"
+    save_profile(profile_for(3, NAMES, board="pump-house", polarity=(1, 1, 1), rate_hz=200.0), profile)
+    touches = [a for k in range(30) for a in ("--touch", f"{k % 3}@{400 + 300 * k}+60")]
+    for deviate in ((), ("--deviate", "2@1300+20")):
+        board = HarnessPty("--channels", "3", "--names", ",".join(NAMES), "--rate", "200", *touches, *deviate)
+        mon = Monitor(board.path, "--profile", str(profile))
+        try:
+            mon.wait_text('"type":"twin_mismatch"' if deviate else '"channel":"stop"')
+            if not deviate:
+                mon.wait_text('"type":"release","t"')
+            events = mon.finish()
+        finally:
+            board.stop()
+        summary = events[-1]
+        mismatches = [e for e in events if e["type"] == "twin_mismatch"]
+        assert summary["twin_compared"] > 200, summary
+        if deviate:
+            assert mismatches[0]["channel"] == "stop" and mismatches[0]["board_state"] == "touched"
+            assert mismatches[0]["padtune_state"] == "released" and mismatches[0]["count"] == 1
+        else:
+            assert mismatches == [] and summary["twin_mismatches"] == 0
+            assert {e["channel"] for e in events if e["type"] == "touch"} >= {"stop"}
