@@ -4,6 +4,7 @@ names and info keys and finds its touches; a host on pyserial drives its command
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import subprocess
 import time
@@ -11,10 +12,12 @@ import time
 import pytest
 import serial
 
-from processing.profile import profile_for, save_profile
+from processing.profile import load_profile, profile_for, save_profile
+from processing.settings import ChannelSettings
 from protocol.decoder import Decoder
 from protocol.events import FrameBlock
 from tests.firmware import c_build
+from tests.headless.helpers import ROOT, padtune
 from tests.headless.test_link_commands import Monitor
 
 pytestmark = pytest.mark.e2e
@@ -143,3 +146,26 @@ def test_padtune_runs_its_twin_against_the_c_board_and_sees_it_deviate(tmp_path)
         else:
             assert mismatches == [] and summary["twin_mismatches"] == 0
             assert {e["channel"] for e in events if e["type"] == "touch"} >= {"stop"}
+
+
+def test_padtune_pull_and_push_keep_against_the_c_board(tmp_path):
+    """Settings travel both ways with the C parser: `padtune pull` reads the board into a profile,
+    `padtune push --keep` writes an edited one, keeps it (the harness's flash file) and verifies it."""
+    if not (ROOT / "tui" / "commands" / "push.py").exists():
+        pytest.skip("padtune pull / push are not here yet (branch i11-travel)")
+    flash = tmp_path / "flash"
+    board = HarnessPty("--channels", "3", "--names", ",".join(NAMES), "--rate", "50",
+                       "--keep-file", str(flash))
+    try:
+        pulled = padtune("pull", board.path, "-o", str(tmp_path / "pulled.toml"), timeout=60)
+        assert pulled.returncode == 0, pulled.stderr
+        profile = load_profile(tmp_path / "pulled.toml")
+        assert profile.names == NAMES and profile.settings_for(1) == ChannelSettings()
+        seventy = dataclasses.replace(profile.defaults, threshold_counts=70)
+        edited = dataclasses.replace(profile, defaults=seventy)
+        save_profile(edited, tmp_path / "edited.toml")
+        pushed = padtune("push", str(tmp_path / "edited.toml"), board.path, "--keep", timeout=60)
+        assert pushed.returncode == 0, pushed.stdout + pushed.stderr
+    finally:
+        board.stop()
+    assert [line.split()[0] for line in flash.read_text().splitlines()] == ["70", "70", "70"]
