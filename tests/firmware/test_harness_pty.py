@@ -169,3 +169,31 @@ def test_padtune_pull_and_push_keep_against_the_c_board(tmp_path):
     finally:
         board.stop()
     assert [line.split()[0] for line in flash.read_text().splitlines()] == ["70", "70", "70"]
+
+
+def test_the_host_presses_a_simulated_key_by_name_or_number():
+    """`+NAME` / `-N`, as padtune's simulated boards take them: the board's own state for that key goes
+    to touched and back (its frames say so), and no answer line is sent for them."""
+    board = HarnessPty("--channels", "3", "--names", ",".join(NAMES), "--rate", "500")
+    seen: list[bytes] = []
+
+    def wait_state(port: serial.Serial, want: str) -> None:
+        buf = b""
+        deadline = time.monotonic() + WAIT_S
+        while True:
+            assert time.monotonic() < deadline, f"valve2 never {want}: {seen[-3:]}"
+            buf += port.read(port.in_waiting or 1)
+            *lines, buf = buf.split(b"\n")
+            seen.extend(lines)
+            if any(line.startswith(b"@") and line.split(b";")[1][1:2] == want.encode() for line in lines):
+                return
+
+    try:
+        with serial.Serial(board.path, 115200, timeout=0.2) as port:
+            port.write(b"+valve2\n")
+            wait_state(port, "2")
+            port.write(b"-1\r\n")
+            wait_state(port, "0")
+    finally:
+        board.stop()
+    assert not [line for line in seen if line.startswith(b">")]
