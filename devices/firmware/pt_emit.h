@@ -70,7 +70,9 @@ void pt_emit_comment(pt_emit_t *e, const char *text);
 
 /* One sequenced frame `@seq v0 v1 ...`, then the sequence number counts on. `states` (may be NULL)
  * adds the state field `;ddd` (one PT_STATE_* per channel, 0..3; anything above 3 is sent as 0 -
- * never garble a frame). `count` is 1..512 readings. */
+ * never garble a frame). `count` is 1..512 readings. Cost on a Cortex-M0+: about 30 cycles per
+ * character (the CRC by nibble table), about 10 more per digit printed, plus the put-char function:
+ * a 5-digit reading is 6 characters. */
 void pt_emit_frame(pt_emit_t *e, const int32_t *readings, uint16_t count, const uint8_t *states);
 
 /* Building a line of your own (the answer lines of section 7 are made so): begin, then any mix of
