@@ -64,8 +64,8 @@ class PtSettings(ctypes.Structure):
 
 
 class PtChan(ctypes.Structure):
-    _fields_ = [("base", ctypes.c_int32), ("acc_lo", ctypes.c_uint32), ("held", ctypes.c_uint32),
-                ("delta_mag", ctypes.c_uint32), ("base_frac", ctypes.c_uint8), ("acc_hi", ctypes.c_uint8),
+    _fields_ = [("base_lo", ctypes.c_uint32), ("acc_lo", ctypes.c_uint32), ("held", ctypes.c_uint32),
+                ("delta_mag", ctypes.c_uint32), ("base_hi", ctypes.c_uint8), ("acc_hi", ctypes.c_uint8),
                 ("count", ctypes.c_uint8), ("flags", ctypes.c_uint8)]
 
 
@@ -147,10 +147,12 @@ def library_path(flags: Sequence[str] = CFLAGS) -> Path:
         return target
     try:
         out_dir.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=".building-", suffix=".so", dir=out_dir)
+        os.close(fd)
     except OSError as exc:
-        raise FirmwareUnavailable(f"cannot create the build cache {out_dir}: {exc.strerror}") from exc
-    fd, tmp = tempfile.mkstemp(prefix=".building-", suffix=".so", dir=out_dir)
-    os.close(fd)
+        why = exc.strerror or str(exc)
+        raise FirmwareUnavailable(f"cannot write the firmware library's build cache {out_dir}: {why} "
+                                  "(set PADTUNE_CACHE_DIR to a writable folder)") from exc
     sources = [str(HERE / s) for s in (*LIBRARY_SOURCES, GLUE_SOURCE)]
     try:
         done = subprocess.run([*cc, *flags, "-o", tmp, *sources], capture_output=True, text=True,
@@ -229,8 +231,22 @@ class RawEvent(NamedTuple):
     value: int | None
 
 
+class Settings(NamedTuple):
+    """One channel's settings for code that may not import `processing` (simulated boards): the profile's
+    keys with `processing.settings.ChannelSettings`'s defaults (a test keeps the two equal)."""
+
+    threshold_counts: int = 100
+    hysteresis_counts: int = 15
+    touch_debounce_frames: int = 3
+    release_debounce_frames: int = 3
+    baseline_slow_shift: int = 6
+    baseline_fast_shift: int = 2
+    baseline_period_frames: int = 16
+    stuck_timeout_frames: int = 0
+
+
 def settings_struct(s: Any, polarity: int) -> PtSettings:
-    """`s` is anything with the profile's setting attributes (processing.settings.ChannelSettings)."""
+    """`s` is anything with the profile's setting attributes (`Settings`, processing's ChannelSettings)."""
     out = PtSettings(polarity=int(polarity))
     for key in SETTING_KEYS:
         setattr(out, key, int(getattr(s, key)))

@@ -30,32 +30,41 @@ static int64_t tdiv_pow2(int64_t a, unsigned k)
     return a < 0 ? -q : q;
 }
 
-static int64_t get_base_fp(const pt_chan_t *c)
+/* A 40-bit signed value kept as its low 32 bits and the next 8 (two's complement): joined by a
+ * multiplication, split through uint64_t (conversions to unsigned types are defined modulo 2^n). */
+static int64_t join40(uint32_t lo, uint8_t hi)
 {
-    return (int64_t)c->base * ONE_FP + (int64_t)c->base_frac;
+    int32_t h = hi >= 128u ? (int32_t)hi - 256 : (int32_t)hi;
+    return (int64_t)h * 4294967296LL + (int64_t)lo;
 }
 
-/* baseline_fp stays within 256 x the readings' range (each update moves it toward a period mean), so
- * floor(baseline_fp / 256) fits int32_t. (bfp - frac) is a multiple of 256: the division is exact. */
+static uint32_t split40(int64_t v, uint8_t *hi)
+{
+    uint64_t u = (uint64_t)v;
+    *hi = (uint8_t)((u >> 32) & 0xFFu);
+    return (uint32_t)(u & 0xFFFFFFFFu);
+}
+
+/* baseline_fp stays within 256 x the readings' range (each update moves it toward a period mean), and
+ * the period sum holds at most 256 readings: both fit 40 bits. */
+static int64_t get_base_fp(const pt_chan_t *c)
+{
+    return join40(c->base_lo, c->base_hi);
+}
+
 static void set_base_fp(pt_chan_t *c, int64_t bfp)
 {
-    uint8_t frac = (uint8_t)((uint64_t)bfp & 0xFFu);
-    c->base_frac = frac;
-    c->base = (int32_t)((bfp - (int64_t)frac) / ONE_FP);
+    c->base_lo = split40(bfp, &c->base_hi);
 }
 
 static int64_t get_acc(const pt_chan_t *c)
 {
-    int32_t hi = c->acc_hi >= 128u ? (int32_t)c->acc_hi - 256 : (int32_t)c->acc_hi;
-    return (int64_t)hi * 4294967296LL + (int64_t)c->acc_lo;
+    return join40(c->acc_lo, c->acc_hi);
 }
 
-/* The sum of at most 256 int32 readings fits 40 bits: keep the low 32 and the next 8. */
 static void set_acc(pt_chan_t *c, int64_t acc)
 {
-    uint64_t u = (uint64_t)acc;
-    c->acc_lo = (uint32_t)(u & 0xFFFFFFFFu);
-    c->acc_hi = (uint8_t)((u >> 32) & 0xFFu);
+    c->acc_lo = split40(acc, &c->acc_hi);
 }
 
 static void set_delta(pt_chan_t *c, int64_t delta, uint8_t *flags)
@@ -107,8 +116,8 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
     d->frame = 0;
     for (c = 0; c < channels; c++) {
         pt_chan_t *ch = &chans[c];
-        ch->base = 0;
-        ch->base_frac = 0;
+        ch->base_lo = 0;
+        ch->base_hi = 0;
         ch->acc_lo = 0;
         ch->acc_hi = 0;
         ch->held = 0;
@@ -118,17 +127,14 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
     }
 }
 
-/* 256 / P for a period P = 2^p <= 256: the factor that turns the period sum into the mean in fixed
- * point, exactly (ALGORITHM.md step 5). A loop of at most 8 steps: the M0+ has no divide instruction. */
-static int64_t mean_factor(uint16_t period_frames)
+/* The period mean in fixed point, acc * 2^(8 - p) for a period P = 2^p <= 256 (ALGORITHM.md step 5),
+ * exactly: doubled by additions (defined for negative sums too), no multiply helper on a Cortex-M0+. */
+static int64_t mean_fp(int64_t acc, uint16_t period_frames)
 {
-    int64_t mul = ONE_FP;
-    uint16_t q = period_frames;
-    while (q > 1u) {
-        q = (uint16_t)(q >> 1);
-        mul /= 2;
-    }
-    return mul;
+    uint16_t q;
+    for (q = period_frames; q != 0 && q < (uint16_t)ONE_FP; q = (uint16_t)(q * 2u))
+        acc += acc;
+    return acc;
 }
 
 /* Steps 1-4 of ALGORITHM.md for one channel; returns the event kind (0 for none). */
@@ -212,7 +218,7 @@ static void period_end(pt_chan_t *ch, const pt_settings_t *s)
 {
     if (ch->flags & F_CLEAN) {
         int64_t bfp = get_base_fp(ch);
-        int64_t diff = get_acc(ch) * mean_factor(s->baseline_period_frames) - bfp;
+        int64_t diff = mean_fp(get_acc(ch), s->baseline_period_frames) - bfp;
         int toward = (ch->flags & F_NEG) ? diff < 0 : diff > 0;
         unsigned shift = toward ? s->baseline_slow_shift : s->baseline_fast_shift;
         set_base_fp(ch, bfp + tdiv_pow2(diff, shift));
@@ -229,23 +235,22 @@ size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *ev
     for (c = 0; c < d->channels; c++) {
         const pt_settings_t *s = &d->settings[c];
         pt_chan_t *ch = &d->chans[c];
-        pt_event_t ev;
+        pt_event_t scratch;
+        pt_event_t *ev = events != NULL ? &events[n] : &scratch; /* filled in place; kept if kind != 0 */
         uint8_t kind;
         uint32_t mask = (uint32_t)s->baseline_period_frames - 1u;
-        ev.held_frames = 0;
-        ev.value = 0;
-        kind = step(ch, s, readings[c], &ev);
+        ev->held_frames = 0;
+        ev->value = 0;
+        kind = step(ch, s, readings[c], ev);
         if ((clock & mask) == mask)
             period_end(ch, s);
-        if (kind != 0 && events != NULL) {
-            ev.kind = kind;
-            ev.source = c;
+        if (kind != 0) {
+            ev->kind = kind;
+            ev->source = c;
             if (kind == PT_EV_REBASELINED)
-                ev.delta_counts = 0;
-            events[n] = ev;
-        }
-        if (kind != 0)
+                ev->delta_counts = 0;
             n++;
+        }
     }
     d->frame = clock + 1u;
     return n;

@@ -8,6 +8,8 @@
  * pt_detect_rebaseline() from an interrupt only if it cannot preempt pt_detect_frame()).
  *
  * RAM: sizeof(pt_chan_t) = 20 bytes per channel plus sizeof(pt_detector_t) (16 bytes on a 32-bit MCU).
+ * Cycle counts in these headers are estimates from the code arm-none-eabi-gcc -Os makes for a Cortex-M0+,
+ * not measurements on silicon; flash figures are `make firmware-size`'s.
  * The settings are read through a pointer: a const table in flash, or a RAM copy a board edits live.
  *
  *   static pt_chan_t chans[PADTUNE_CHANNELS];
@@ -52,11 +54,11 @@ typedef struct pt_event {
 /* One channel's state: 20 bytes. Opaque: read it with the accessors below. Fields hold 40-bit values
  * split in two (baseline and period sum) so that no int64_t sits in RAM per channel. */
 typedef struct pt_chan {
-    int32_t base;        /* baseline in counts, floor(baseline_fp / 256) */
+    uint32_t base_lo;    /* baseline_fp (counts * 256), low 32 bits */
     uint32_t acc_lo;     /* sum of the period's released readings, low 32 bits */
     uint32_t held;       /* frames since the touch was reported (saturates at 2^32-1) */
     uint32_t delta_mag;  /* |delta| of the last frame (up to 2^32-1 for readings at the int32 limits) */
-    uint8_t base_frac;   /* baseline_fp mod 256 */
+    uint8_t base_hi;     /* baseline_fp, bits 32..39 (two's complement of the 40-bit value) */
     uint8_t acc_hi;      /* period sum, bits 32..39 (two's complement of the 40-bit sum) */
     uint8_t count;       /* frames counted toward the pending touch or release */
     uint8_t flags;       /* state (2 bits), clean, pending, running polarity, sign of delta */
@@ -83,9 +85,11 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
 /* Process one frame: `readings[c]` for every channel c (signed 32-bit counts, as measured). Runs
  * ALGORITHM.md steps 1-5 for each channel, then advances the frame counter. Writes the frame's events,
  * in channel order, to `events` (room for `channels` entries: a channel reports at most one event per
- * frame) and returns how many it wrote; `events` may be NULL when the caller only reads states.
- * Neither array is kept. Cost: on a Cortex-M0+ about 60-120 cycles per channel and frame (64-bit
- * additions and compares; no division instruction is used), plus the events written. */
+ * frame; entries past the returned count are used as scratch) and returns how many it wrote; `events`
+ * may be NULL when the caller only reads states.
+ * Neither array is kept. Cost: on a Cortex-M0+ roughly 100-200 cycles per channel and frame when
+ * nothing happens (64-bit additions and compares, no division; an estimate from the compiled code, not
+ * measured on silicon), a little more at a baseline period's end; 1.3 KB of flash with its helpers. */
 size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *events);
 
 /* Take channel `channel`'s next reading as its baseline (ALGORITHM.md, "Re-baseline triggers"), or every

@@ -1,8 +1,9 @@
 /* pt_groups.c: exclusive groups, sliders and wheels (processing/ALGORITHM.md, version 1), bit for bit.
  *
  * The slider's intermediate values stay below 2^61 for up to 1024 pads, deltas up to 2^32 and a
- * resolution up to 65535 (ALGORITHM.md, "Integer rules"); every division has non-negative operands
- * except the wheel's `num % m`, which is made non-negative the way ALGORITHM.md writes it.
+ * resolution up to 65535 (ALGORITHM.md, "Integer rules"). Both divisions have non-negative operands and a
+ * quotient below the resolution, so a 16-step division does them exactly (div_position); the wheel's
+ * non-negative `num mod m` needs no division at all.
  */
 #include "pt_groups.h"
 
@@ -23,6 +24,25 @@ void pt_sliders_init(pt_slider_state_t *state, uint16_t count)
         state[i].position = PT_NONE;
         state[i].touched = 0;
     }
+}
+
+/* a / b, floored, for b > 0 and a quotient below 2^16 (a position is below the resolution, at most
+ * 65535): sixteen steps of compare and subtract. No 64-bit division helper is linked (about 1 KB on a
+ * Cortex-M0+, which has no divide instruction); b < 2^46 here, so b * 2^15 fits. */
+static uint16_t div_position(uint64_t a, uint64_t b)
+{
+    uint64_t step = b << 15;
+    uint16_t bit = 0x8000u;
+    uint16_t q = 0;
+    while (bit != 0) {
+        if (a >= step) {
+            a -= step;
+            q = (uint16_t)(q | bit);
+        }
+        step >>= 1;
+        bit = (uint16_t)(bit >> 1);
+    }
+    return q;
 }
 
 /* One frame of one group: the member to report now, or PT_NONE. */
@@ -108,13 +128,16 @@ uint16_t pt_slider_position(const pt_detector_t *d, const pt_slider_t *slider)
         den = 1;
     }
     if (slider->wheel) {
+        /* num lies in [-den, n * den] (positions -1 .. n, weights summing to den), so ALGORITHM.md's
+         * non-negative num mod m is one addition or subtraction. */
         int64_t m = (int64_t)n * den;
-        int64_t mod = ((num % m) + m) % m;
-        return (uint16_t)((mod * res) / m);
+        int64_t mod = num < 0 ? num + m : num >= m ? num - m : num;
+        return div_position((uint64_t)(mod * res), (uint64_t)m);
     }
     if (n == 1)
         return 0;
-    return (uint16_t)((num * (res - 1)) / (den * (int64_t)(n - 1)));
+    /* num <= (n - 1) * den: the quotient is at most res - 1. */
+    return div_position((uint64_t)(num * (res - 1)), (uint64_t)(den * (int64_t)(n - 1)));
 }
 
 size_t pt_sliders_frame(const pt_detector_t *d, const pt_slider_t *sliders, pt_slider_state_t *state,

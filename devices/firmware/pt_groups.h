@@ -53,8 +53,8 @@ size_t pt_groups_frame(const pt_detector_t *d, const pt_group_t *groups, pt_grou
  * reported touched; the position is the centroid of the strongest pad and its two neighbours, in
  * integers. Writes one PT_EV_SLIDER event per slider whose touch or position changed (to `events`, room
  * for `count` entries, or NULL) and returns how many. `sliders` and `state` have `count` entries.
- * Cost: about 20 cycles per pad (finding the strongest) plus one 64-bit division per touched slider
- * (a library call on a Cortex-M0+, a few hundred cycles). */
+ * Cost: about 20 cycles per pad (finding the strongest) plus, per touched slider, a few 64-bit
+ * multiplies and a 16-step division of the library's own (a few hundred cycles on a Cortex-M0+). */
 size_t pt_sliders_frame(const pt_detector_t *d, const pt_slider_t *sliders, pt_slider_state_t *state,
                         uint16_t count, pt_event_t *events);
 

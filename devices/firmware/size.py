@@ -7,8 +7,9 @@ multiply, shift and division; libc's string functions), as a firmware image call
 part's figure is what its own object puts in that image (from the linker's map); the helpers are a row
 of their own; the detector, emitter and command parser are also linked alone together (helpers
 included) against the 3 KB goal. Flash is `.text + .rodata + .data`, static RAM `.data + .bss` (the
-library has none: all state is in the caller's structs). RAM per channel and the
-fixed part come from `sizeof` of the library's types on the target (every `pt_*_t` in the headers).
+library has none: all state is in the caller's structs), stack the part's largest function frame
+(`-fstack-usage`). RAM per channel and the fixed part come from `sizeof` of the library's types on the
+target (every `pt_*_t` in the headers).
 
 Parts are named by file (`pt_detect.c` the detector, `pt_groups.c` groups and sliders, `pt_emit.c` the
 emitter, `pt_cmd.c` the command parser); a file not known here is listed by its own name.
@@ -98,6 +99,15 @@ def total(parts: dict[str, tuple[int, int]]) -> tuple[int, int]:
     return sum(f for f, _ in parts.values()), sum(r for _, r in parts.values())
 
 
+def stack_bytes(su: Path) -> int:
+    """The largest stack frame of one function of the part (gcc -fstack-usage): a call into the part
+    needs that plus what its callees in the library need (pt_sliders_frame calls pt_slider_position)."""
+    if not su.exists():
+        return 0
+    return max((int(line.split("\t")[1]) for line in su.read_text().splitlines() if line.count("\t") >= 2),
+               default=0)
+
+
 def type_sizes(headers: list[Path], work: Path) -> dict[str, int]:
     """sizeof every `pt_*_t` typedef in the headers, on the target (read back from the symbol table)."""
     names: list[str] = []
@@ -130,25 +140,25 @@ def main() -> int:
         objs = {}
         for src in sources:
             objs[src.name] = work / (src.stem + ".o")
-            run([CC, *CFLAGS, f"-I{HERE}", "-c", str(src), "-o", str(objs[src.name])], work)
+            run([CC, *CFLAGS, "-fstack-usage", f"-I{HERE}", "-c", str(src), "-o", str(objs[src.name])], work)
         version = run([CC, "--version"], work).splitlines()[0]
         print(f"padtune firmware library on a Cortex-M0+ ({version}; -Os -mcpu=cortex-m0plus -mthumb)")
-        print(f"{'part':<34}{'flash B':>9}{'static RAM B':>14}")
+        print(f"{'part':<46}{'flash B':>9}{'static RAM B':>14}{'stack B':>9}")
         every = list(objs.values())
         parts = link(every, every, work, "all")
         for name, obj in objs.items():
             flash, ram = parts.get(obj.name, (0, 0))
             label = f"{PART_NAMES.get(name, name[:-2])} ({name})"
-            print(f"{label:<34}{flash:>9}{ram:>14}")
+            print(f"{label:<46}{flash:>9}{ram:>14}{stack_bytes(obj.with_suffix('.su')):>9}")
         helpers = [parts.get(k, (0, 0)) for k in ("libgcc", "libc")]
         flash, ram = sum(f for f, _ in helpers), sum(r for _, r in helpers)
-        print(f"{'helpers (libgcc, libc)':<34}{flash:>9}{ram:>14}")
+        print(f"{'helpers (libgcc, libc)':<46}{flash:>9}{ram:>14}")
         present = [n for n in TOGETHER if n in objs]
         flash, ram = total(link([objs[n] for n in present], every, work, "together"))
         missing = [n for n in TOGETHER if n not in objs]
         label = " + ".join(PART_NAMES[n] for n in present)
         verdict = "within" if flash <= FLASH_GOAL_BYTES else "OVER"
-        print(f"{label + ' together':<34}{flash:>9}{ram:>14}   {verdict} the {FLASH_GOAL_BYTES} B goal"
+        print(f"{label + ' together':<46}{flash:>9}{ram:>14}   {verdict} the {FLASH_GOAL_BYTES} B goal"
               + (f" (not built yet: {', '.join(missing)})" if missing else "") + ", helpers included")
         sizes = type_sizes(headers, work)
         print("types (caller-owned RAM): " + ", ".join(f"{n} {b} B" for n, b in sizes.items()))

@@ -187,7 +187,7 @@ def test_firmware_size_reports_every_part_and_the_ram_per_channel():
     assert out.returncode == 0, out.stdout + out.stderr
     assert "detector (pt_detect.c)" in out.stdout and "groups and sliders (pt_groups.c)" in out.stdout
     assert "RAM per channel: 20 B of detector state (pt_chan_t), within the 24 B goal" in out.stdout
-    rows = {line[:34].strip(): line[34:].split() for line in out.stdout.splitlines()}
+    rows = {line[:46].strip(): line[46:].split() for line in out.stdout.splitlines()}
     flash, ram = (int(v) for v in rows["detector (pt_detect.c)"][:2])
     assert flash > 0 and ram == 0  # no static RAM: every byte of state is the caller's
 
@@ -215,3 +215,33 @@ def test_the_readmes_example_compiles_against_an_exported_header(tmp_path):
         timeout=120,
     )
     assert built.returncode == 0, built.stderr
+
+
+def test_binding_settings_are_the_profile_keys_with_the_same_defaults():
+    from dataclasses import asdict
+
+    from devices.firmware import clib
+    from processing.settings import SETTING_KEYS
+
+    assert clib.SETTING_KEYS == SETTING_KEYS
+    assert clib.Settings()._asdict() == asdict(ChannelSettings())
+
+
+@needs_cc
+def test_detector_sources_are_clean_under_the_stricter_warnings_firmware_builds_use(tmp_path):
+    extra = [
+        "-Wconversion",
+        "-Wsign-conversion",
+        "-Wshadow",
+        "-Wcast-qual",
+        "-Wstrict-prototypes",
+        "-Wmissing-prototypes",
+    ]
+    for name in ("pt_detect.c", "pt_groups.c"):
+        built = subprocess.run(
+            ["cc", *STRICT, *extra, "-c", str(FIRMWARE / name), "-o", str(tmp_path / "x.o")],
+            capture_output=True,
+            text=True,
+            timeout=120,
+        )
+        assert built.returncode == 0, built.stderr

@@ -21,6 +21,12 @@ def recordings(tmp_path_factory):
     for board, seconds in (("greenhouse", 22.0), ("pumphouse", 14.0), ("grid64", 3.0)):
         _, data = sim_capture(seconds, board=board, seed=3)
         write_recording(folder / f"{board}.csv", data)
+    # Raw captures with a board restarting mid-stream (its info line again: a new session, every channel
+    # re-baselined) and another board after it (a new width: the engine is built anew).
+    _, gh = sim_capture(6.0, board="greenhouse", seed=4)
+    _, ph = sim_capture(6.0, board="pumphouse", seed=4)
+    (folder / "restart.raw").write_bytes(gh + gh)
+    (folder / "swap.raw").write_bytes(gh + ph + gh)
     demo = demo_profile("greenhouse")
     save_profile(demo, folder / "demo.toml")
     # A stuck timeout of half a second: the long zone2 hold of the script is released by it.
@@ -63,6 +69,16 @@ def test_first_contact_without_a_profile_prints_the_same_bytes(firmware_lib, rec
         assert any(e["type"] == "touch" for e in events)
 
 
+@pytest.mark.parametrize("capture", ["restart.raw", "swap.raw"])
+def test_restarts_and_board_changes_print_the_same_bytes(firmware_lib, recordings, capture):  # noqa: F811
+    py, fw = both(str(recordings / capture), "--json", "--every", "2")
+    assert fw == py
+    events = json_lines(fw)
+    assert any(e["type"] == "touch" for e in events)
+    py, fw = both(str(recordings / capture), "--json", "--profile", str(recordings / "demo.toml"))
+    assert fw == py
+
+
 def test_human_lines_are_the_same_too(firmware_lib, recordings):  # noqa: F811
     py, fw = both(str(recordings / "greenhouse.csv"), "--profile", str(recordings / "demo.toml"))
     assert fw == py and "touch" in fw
@@ -82,3 +98,11 @@ def test_a_compiler_that_fails_is_one_line_and_exit_2(recordings, tmp_path):
     assert out.returncode == 2 and out.stdout == ""
     assert len(out.stderr.splitlines()) == 1 and "could not build" in out.stderr, out.stderr
     assert not list((tmp_path / "cache").rglob("*.so"))  # nothing half-built left behind
+
+
+def test_an_unwritable_build_cache_is_one_line_and_exit_2(recordings, tmp_path):
+    (tmp_path / "file").write_text("not a folder")
+    out = padtune("replay", str(recordings / "greenhouse.csv"), "--engine", "firmware",
+                  env={"PADTUNE_CACHE_DIR": str(tmp_path / "file")})
+    assert out.returncode == 2 and out.stdout == ""
+    assert len(out.stderr.splitlines()) == 1 and "PADTUNE_CACHE_DIR" in out.stderr, out.stderr
