@@ -177,7 +177,7 @@ def test_the_host_presses_a_simulated_key_by_name_or_number():
     board = HarnessPty("--channels", "3", "--names", ",".join(NAMES), "--rate", "500")
     seen: list[bytes] = []
 
-    def wait_state(port: serial.Serial, want: str) -> None:
+    def wait_state(port: serial.Serial, want: str, after_seq: int = 0) -> None:
         buf = b""
         deadline = time.monotonic() + WAIT_S
         while True:
@@ -185,11 +185,14 @@ def test_the_host_presses_a_simulated_key_by_name_or_number():
             buf += port.read(port.in_waiting or 1)
             *lines, buf = buf.split(b"\n")
             seen.extend(lines)
-            if any(line.startswith(b"@") and line.split(b";")[1][1:2] == want.encode() for line in lines):
+            if any(line.startswith(b"@") and int(line[1:line.index(b" ")]) >= after_seq
+                   and line.split(b";")[1][1:2] == want.encode() for line in lines):
                 return
 
     try:
         with serial.Serial(board.path, 115200, timeout=0.2) as port:
+            # released for 20 frames first: a key held when the board starts is its baseline, never a touch
+            wait_state(port, "0", after_seq=20)
             port.write(b"+valve2\n")
             wait_state(port, "2")
             port.write(b"-1\r\n")
