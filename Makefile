@@ -6,7 +6,7 @@ BIN := $(VENV)/bin
 RUN_STAMP := $(VENV)/.stamp-run
 TEST_STAMP := $(VENV)/.stamp-test
 
-.PHONY: demo test bench lint snapshots-update clean firmware firmware-size
+.PHONY: demo test bench lint snapshots-update clean firmware firmware-size firmware-harness
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -70,3 +70,14 @@ $(FW_BUILD)/vector_runner: $(FW)/pt_detect.c $(FW)/pt_groups.c $(FW_HDR) tests/f
 # Flash and RAM per part on a Cortex-M0+ (arm-none-eabi-gcc -Os); says how to install it when missing.
 firmware-size:
 	$(PYTHON) $(FW)/size.py
+
+# The C library as a board on this computer (devices/firmware/harness/, see DEVELOPERS.md): `make
+# firmware-harness`, then `build/firmware/pt_harness --pty`. FW_SAN=1 builds it under AddressSanitizer and
+# UndefinedBehaviorSanitizer (the tests do, with FW_BUILD set to a folder of their own).
+HARNESS_SRC := $(FW)/harness/pt_harness.c $(FW_SRC)
+
+firmware-harness: $(FW_BUILD)/pt_harness
+
+$(FW_BUILD)/pt_harness: $(HARNESS_SRC) $(FW_HDR)
+	@mkdir -p $(FW_BUILD)
+	$(CC) $(FW_STRICT) $(if $(filter 1,$(FW_SAN)),$(FW_SANITIZE),-O2) -I$(FW) -o $@.tmp $(HARNESS_SRC) && mv $@.tmp $@
