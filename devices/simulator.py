@@ -100,7 +100,12 @@ class SimBoard:
         """The board's own detector (the C library: a UserError in one line when it cannot be built)."""
         rate = self.spec.rate_hz
         deviate = {self.channel(pad): math.ceil(from_s * rate) for pad, from_s in self.faults.deviating}
-        return OnBoardDetector(self._width, self.spec.method.polarity, deviate)
+        live = self.settings.live if self.settings is not None else None
+        return OnBoardDetector(self._width, self.spec.method.polarity, deviate, live)
+
+    def _live(self) -> list[dict[str, int]] | None:
+        """The settings in force on a board that takes section 7's commands (None: the defaults)."""
+        return self.settings.live if self.settings is not None else None
 
     def _timeline(self) -> list[tuple[int, str, float]]:
         """Stream events as (frame index, kind, value), in frame order."""
@@ -233,7 +238,7 @@ class SimBoard:
             if self.settings is not None:
                 self.settings.power_up()  # RAM is lost: the kept settings (or the factory's) again
             if self.onboard is not None:
-                self.onboard.restart()
+                self.onboard.restart(settings=self._live())
             self._note(f"{self.spec.name} restarted (watchdog), fw {self.spec.fw}")
         elif kind == "width":
             self.injected.width_changes += 1
@@ -241,7 +246,7 @@ class SimBoard:
             if self.settings is not None:
                 self.settings.resize(self._width)
             if self.onboard is not None:
-                self.onboard.restart(self._width)
+                self.onboard.restart(self._width, self._live())
         else:  # a stall: the board measures and sends nothing for a while
             self.injected.stalls += 1
             skipped = round(value * self.spec.rate_hz)
@@ -313,6 +318,8 @@ class SimBoard:
             assert command is not None
             for line in self.settings.answer(command):
                 self._pending += encoder.encode_answer(line, checksum=self.checksum)
+            if self.onboard is not None:
+                self.onboard.sync(self.settings.live)  # a `set` takes effect on the next frame
             self.injected.extra["answers"] = self.injected.extra.get("answers", 0) + 1
             return
         if text in ("script off", "script on"):
