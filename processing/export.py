@@ -9,6 +9,7 @@ from __future__ import annotations
 import datetime as dt
 import json
 import os
+import re
 from dataclasses import asdict
 from typing import Any
 
@@ -74,6 +75,7 @@ def c_header_text(profile: Profile, source: str, now: dt.datetime | None = None)
         f"#define PADTUNE_CHANNELS {profile.channels}",
         f"#define PADTUNE_GROUPS {len(profile.groups)}",
         f"#define PADTUNE_SLIDERS {len(profile.sliders)}",
+        *_board_defines(profile),
         "",
         "/* Per channel, in flash. A board that takes live `set` commands copies this table to RAM at start",
         " * and gives the detector the copy (pt_detect_init). */",
@@ -89,6 +91,22 @@ def c_header_text(profile: Profile, source: str, now: dt.datetime | None = None)
     lines += _c_lists(profile)
     lines += ["", "#endif /* PADTUNE_PROFILE_H */", ""]
     return "\n".join(lines)
+
+
+# What pt_info_t's `board` may hold (the info line's word: no spaces, no quotes to escape).
+_BOARD_WORD = re.compile(r"[A-Za-z0-9_.-]{1,32}")
+
+
+def _board_defines(profile: Profile) -> list[str]:
+    """The board's name and frame rate for the firmware's info line (pt_info_t's `board` and
+    `rate_mhz`), when the profile knows them and they fit the line's rules."""
+    out = []
+    if _BOARD_WORD.fullmatch(profile.board):
+        out.append(f'#define PADTUNE_BOARD "{profile.board}"')
+    rate = profile.rate_hz
+    if rate is not None and 0 < rate < 4_294_967:  # millihertz in 32 bits
+        out.append(f"#define PADTUNE_RATE_MHZ {round(rate * 1000)}u /* frames per second x 1000 */")
+    return out
 
 
 def _c_lists(profile: Profile) -> list[str]:
