@@ -8,10 +8,13 @@ import signal
 import subprocess
 import sys
 import time
+from dataclasses import replace
 
 import pytest
 
+from devices.board_settings import SIM_FACTORY
 from processing.profile import profile_for, save_profile
+from processing.settings import ChannelSettings
 from tests.headless.helpers import ROOT, json_lines, padtune
 from tests.headless.test_link_commands import WAIT_S, Monitor
 
@@ -23,9 +26,11 @@ RATE_HZ = 60  # greenhouse.toml
 
 @pytest.fixture(scope="module")
 def profile(tmp_path_factory):
-    """The profile the simulated firmware was built with: the default settings on every key."""
+    """The profile the simulated firmware runs: its factory settings on every key (a board that takes
+    section 7's commands runs the settings it holds; `padtune pull` would read the same)."""
     path = tmp_path_factory.mktemp("twin") / "greenhouse.toml"
-    save_profile(profile_for(len(NAMES), NAMES, "greenhouse"), path)
+    factory = ChannelSettings(**{k: v for k, v in SIM_FACTORY.items() if k != "polarity"})
+    save_profile(replace(profile_for(len(NAMES), NAMES, "greenhouse"), defaults=factory), path)
     return str(path)
 
 
