@@ -11,6 +11,7 @@ from __future__ import annotations
 import contextlib
 import os
 import shutil
+import stat
 import tempfile
 from pathlib import Path
 
@@ -58,18 +59,41 @@ def _sweep_stale(folder: Path, name: str) -> None:
             continue
 
 
+class NotRegularFile(OSError):
+    """The target exists and is not a regular file (a device, a pipe, a socket, a folder): replacing
+    it with a file would destroy it (`/dev/null` as root), so nothing is written."""
+
+    def __init__(self, path: Path, kind: str) -> None:
+        super().__init__(f"{path} is {kind}, not a regular file; padtune replaces only regular files")
+        self.strerror = f"it is {kind}, not a regular file; choose a file name"
+        self.filename = str(path)
+
+
+def _kind(mode: int) -> str:
+    for test, kind in ((stat.S_ISDIR, "a folder"), (stat.S_ISCHR, "a character device"),
+                       (stat.S_ISBLK, "a block device"), (stat.S_ISFIFO, "a pipe (FIFO)"),
+                       (stat.S_ISSOCK, "a socket")):
+        if test(mode):
+            return kind
+    return "not a regular file"
+
+
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes, keep_backup: bool = True) -> None:
     """Replace `path` with `data` atomically (OSError propagates; the old file is then untouched).
 
-    A symlink is followed: the file it points to is replaced, and the link stays a link.
+    A symlink is followed: the file it points to is replaced, and the link stays a link. A target that
+    exists and is not a regular file raises `NotRegularFile` before anything is written.
     """
     target = Path(os.path.realpath(path))
     folder = target.parent if str(target.parent) else Path(".")
     try:
-        mode = target.stat().st_mode & 0o7777
+        st = target.stat()
         existed = True
     except FileNotFoundError:
-        mode, existed = _umask_mode(), False
+        st, existed = None, False
+    if st is not None and not stat.S_ISREG(st.st_mode):
+        raise NotRegularFile(target, _kind(st.st_mode))
+    mode = st.st_mode & 0o7777 if st is not None else _umask_mode()
     _sweep_stale(folder, target.name)
     fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.{os.getpid()}.", suffix=".tmp", dir=folder)
     try:
