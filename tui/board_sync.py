@@ -21,11 +21,11 @@ from processing.board_settings import BoardValues, board_values, settings_pairs
 from processing.settings import SETTING_KEYS, ChannelSettings
 from protocol.command_client import CommandClient, Result
 from protocol.commands import ALL, POLARITY_KEY, get_line, set_line
-from protocol.events import BoardChanged, BoardInfo, Event, LinkState, LinkStatus
+from protocol.events import BoardChanged, BoardInfo, Event, FaultKind, LinkFault, LinkState, LinkStatus
 
 COMMAND_SET = "1"
 TIMEOUT_S = 1.0
-APPLIED, REFUSED, SENDING, NO_ANSWER = "applied", "refused", "sending", "no answer"
+APPLIED, REFUSED, SENDING, NO_ANSWER, DIFFERS = "applied", "refused", "sending", "no answer", "differs"
 
 
 @dataclass
@@ -82,12 +82,15 @@ class BoardSync:
             sign = polarity[c] if c < len(polarity) else None
             self._set(c, settings_pairs(s, sign))
 
-    def mark_board_values(self, values: BoardValues) -> None:
-        """The session took the board's own values: they are applied by definition."""
+    def mark_board_values(self, values: BoardValues, unknown: Iterable[tuple[int, str]] = ()) -> None:
+        """The board holds these values and the session has them too: applied. `unknown`: (channel, key)
+        where the two differ and nobody chose yet (`differs`, until the user takes one side)."""
         for c in values:
             for k in (*SETTING_KEYS, POLARITY_KEY):
                 self.status[(c, k)] = APPLIED
                 self.reasons.pop((c, k), None)
+        for where in unknown:
+            self.status[where] = DIFFERS
 
     def quietly(self) -> _Quiet:
         """`with sync.quietly():` changes made inside are not sent (the board holds them already)."""
@@ -111,6 +114,13 @@ class BoardSync:
                 self._info(ev, out)
             elif isinstance(ev, LinkStatus) and ev.state is LinkState.RECONNECTED and self.active:
                 self.read()  # the board may have restarted while away: read it again
+            elif isinstance(ev, LinkFault) and ev.kind is FaultKind.RESET and self.active:
+                # A restart without a new info line: its RAM settings are gone (the kept or factory
+                # ones again), so what the edit bar says the board holds may no longer be so.
+                for where in self.status:
+                    self.status[where] = SENDING
+                out.lines.append("⇄ the board restarted: reading its settings again")
+                self.read()
             elif isinstance(ev, LinkStatus) and ev.state in (LinkState.DISCONNECTED, LinkState.CLOSED):
                 results += self.client.cancel(f"the board went away ({ev.state.value})")
             elif isinstance(ev, BoardChanged):

@@ -295,14 +295,17 @@ class SessionSource:
             return
         found = self.board_differences()
         if not found:
+            self.board_sync.mark_board_values(read)
             tick.board_lines.append("✓ the board holds the session's settings")
-        elif not self._profile_given:
-            # No profile loaded: what the board runs is the starting point, not a guess of ours.
+        elif not self._profile_given and not self.unsaved():
+            # No profile loaded and no edits of the user's: what the board runs is the starting point,
+            # not a guess of ours. (Unsaved edits are never replaced silently: the dialog asks.)
             self.take_board_settings()
             self._saved = self.session.profile
             tick.board_lines.append(f"⇄ took the board's settings ({len(found)} differed from the defaults; "
                                     "no profile loaded)")
         else:
+            self.board_sync.mark_board_values(read, [(d.channel, d.key) for d in found])
             tick.board_diff = found
 
     def board_differences(self) -> list[Difference]:

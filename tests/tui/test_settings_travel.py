@@ -162,3 +162,41 @@ def test_the_edit_bar_without_a_board_status_is_drawn_as_before() -> None:
     plain = edit_bar("zone1", DEMO_SETTINGS, "threshold_counts", {}, 80, "1/9", 1, "", ())
     same = edit_bar("zone1", DEMO_SETTINGS, "threshold_counts", {}, 80, "1/9", 1, "", (), {})
     assert plain.plain == same.plain and "✓" not in plain.plain
+
+
+async def test_a_board_that_restarts_silently_is_read_again_and_a_lost_edit_is_shown() -> None:
+    # The review's case: an edit the board applied, then a watchdog restart (no new info line: only the
+    # sequence jumps back). The board is back on its factory settings; the screen must not go on saying
+    # "on board" for the edit, and the user chooses which side wins.
+    from devices.faults import FaultPlan
+
+    feed = SimFeed(seed=11, settings=True, faults=FaultPlan.parse(["reset@2"]))
+    app, feed, _ = travel_app(feed)
+    async with app.run_test(size=(100, 30)) as pilot:
+        run(app, feed, 1.0)
+        await pilot.press("plus")
+        run(app, feed, 0.2)
+        assert board_threshold(feed, 0) == 31 and "threshold 31 counts ✓ on board" in bar(app)
+        run(app, feed, 1.5)  # past the restart
+        assert board_threshold(feed, 0) == 30  # the board lost the edit with its RAM
+        assert "the board restarted: reading its settings again" in log_text(app)
+        assert isinstance(app.screen, BoardDiffScreen)
+        assert "≠" in bar(app) or "differs" in bar(app)
+        await pilot.press("p")  # send the session's: the edit is on the board again
+        run(app, feed, 0.3)
+        assert board_threshold(feed, 0) == 31 and "threshold 31 counts ✓ on board" in bar(app)
+
+
+async def test_without_a_profile_unsaved_edits_are_never_replaced_silently_by_the_boards() -> None:
+    from devices.faults import FaultPlan
+
+    feed = SimFeed(seed=11, settings=True, faults=FaultPlan.parse(["reset@2"]))
+    source = SessionSource(feed, port="sim://greenhouse?seed=11", clock=lambda: feed.t_s)  # no profile
+    app = PadtuneApp(source, ui_hz=0, clock=lambda: feed.t_s)
+    async with app.run_test(size=(100, 30)) as pilot:
+        run(app, feed, 1.0)
+        assert "took the board's settings" in log_text(app) or "holds the session's" in log_text(app)
+        await pilot.press("plus")
+        run(app, feed, 1.7)
+        assert source.unsaved() and source.settings(0).threshold_counts == 31  # the edit stands
+        assert isinstance(app.screen, BoardDiffScreen)  # and the user is asked

@@ -19,7 +19,8 @@ NOT_YET = "--"
 # What a board that takes settings did with a value it was sent (tui/board_sync.py): a glyph after the
 # value on every field, and glyph and word on the field under edit and in the bar's head.
 BOARD_MARKS = {"applied": ("✓", "on board", "applied"), "refused": ("✗", "refused", "refused"),
-               "sending": ("…", "sending", "dim"), "no answer": ("?", "no answer", "refused")}
+               "sending": ("…", "sending", "dim"), "no answer": ("?", "no answer", "refused"),
+               "differs": ("≠", "differs on board", "refused")}
 
 
 def settings_text(settings: ChannelSettings, selected_key: str | None, styles: Styles,
@@ -144,7 +145,7 @@ def _field_groups() -> list[list[Field]]:
 def _board_summary(board: Mapping[str, str], styles: Styles) -> Text:
     """The channel's settings on the board in a glyph and words: the worst news first."""
     text = Text(no_wrap=True, end="")
-    for state in ("refused", "no answer", "sending"):
+    for state in ("refused", "no answer", "differs", "sending"):
         n = sum(1 for s in board.values() if s == state)
         if n:
             glyph, word, role = BOARD_MARKS[state]
