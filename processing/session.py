@@ -385,7 +385,8 @@ class Session(FirstContact):
                                     "load the profile the firmware was built with")
             return []
         mask = None if all(compared) else np.array(compared)
-        return self.twin.compare(block.board_states, states, block.first_index, block.t_s, self.rate_hz, mask)
+        return self.twin.compare(block.board_states, states, block.first_index, block.t_s, self.rate_hz, mask,
+                                 block.seq)
 
     @staticmethod
     def _new_zeros(first_index: int, found: list[DetectionEvent | TwinMismatch]) -> dict[int, int]:

@@ -42,10 +42,12 @@ class TwinMismatch:
     padtune_state: KeyState
     count: int
     first: bool
+    seq: int | None = None  # the board's own sequence number of that frame (None: sent without one)
 
     def describe(self, name: str) -> str:
         """One line for a person (the log, stderr)."""
-        what = (f"{name} at frame {self.index}: board {self.board_state.name.lower()}, "
+        at = f"frame {self.index}" + (f" (board seq {self.seq})" if self.seq is not None else "")
+        what = (f"{name} at {at}: board {self.board_state.name.lower()}, "
                 f"padtune {self.padtune_state.name.lower()}")
         if self.first:  # the count is worth saying only when this is not the very first
             return f"twin disagrees: {what}" + (f" ({self.count} frames so far)" if self.count > 1 else "")
@@ -77,11 +79,13 @@ class TwinCheck:
         self._last_bad = None
 
     def compare(self, board: np.ndarray, padtune: np.ndarray, first_index: int, t_s: np.ndarray,
-                rate_hz: float, mask: np.ndarray | None = None) -> list[TwinMismatch]:
+                rate_hz: float, mask: np.ndarray | None = None,
+                seq: np.ndarray | None = None) -> list[TwinMismatch]:
         """Compare one block: `board` and `padtune` are (frames, channels) key states (KeyState values),
         padtune's after each frame; `first_index` the block's first frame index, `t_s` the frames' host
         times, `rate_hz` the board's frame rate (a second of agreement re-arms), `mask` the channels
-        compared (None: all). Returns the reports, oldest first."""
+        compared (None: all), `seq` the board's sequence numbers (-1: none; they go into the reports, a
+        firmware engineer looks a frame up by the board's own count). Returns the reports, oldest first."""
         n = board.shape[0]
         if n == 0:
             return []
@@ -110,8 +114,10 @@ class TwinCheck:
         for k in np.flatnonzero(first | power).tolist():
             row = int(rows[k])
             ch = int(np.argmax(differ[row]))
+            board_seq = int(seq[row]) if seq is not None and seq[row] >= 0 else None
             out.append(TwinMismatch(ch, first_index + row, float(t_s[row]), KeyState(int(board[row, ch])),
-                                    KeyState(int(padtune[row, ch])), int(counts[k]), bool(first[k])))
+                                    KeyState(int(padtune[row, ch])), int(counts[k]), bool(first[k]),
+                                    board_seq))
         if out:
             self.last = out[-1]
         return out

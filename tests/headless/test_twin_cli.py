@@ -43,7 +43,8 @@ def _check_deviation(events: list[dict], from_index: int) -> None:
     assert twins, events[-3:]
     first = twins[0]
     assert first == {"type": "twin_mismatch", "t": first["t"], "channel": "zone2", "index": from_index,
-                     "board_state": "confirming", "padtune_state": "released", "count": 1}
+                     "board_state": "confirming", "padtune_state": "released", "count": 1,
+                     "seq": from_index}  # the board's own count: it numbered its frames from 0 too
     counts = [e["count"] for e in twins]
     # After the first: at most one report per power of two (a key off on every frame is never re-armed).
     assert counts == [1 << k for k in range(len(counts))]
@@ -80,7 +81,7 @@ def test_without_the_boards_profile_nothing_is_compared_and_stderr_says_why():
 def test_a_deviating_board_on_a_pseudo_terminal(tmp_path, profile):
     link = tmp_path / "board"
     sim = subprocess.Popen([sys.executable, "-m", "tui.cli", "sim", "greenhouse", "--seed", "2", "--speed",
-                            "4", "--fault", "deviate:zone2@1", "--link", str(link)],
+                            "4", "--no-script", "--fault", "deviate:zone2@1", "--link", str(link)],
                            cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     try:
         assert sim.stdout is not None and sim.stdout.readline().strip().startswith("/dev/")
@@ -99,6 +100,8 @@ def test_a_deviating_board_on_a_pseudo_terminal(tmp_path, profile):
     twins = _twins(events)
     # The board ran before the monitor opened the pty: padtune's first frame is not the board's, so the
     # first report's index is the first frame at or after 1 s of board time that padtune saw, or later.
+    # No scripted touches: padtune, joining mid-stream, takes its baselines from its first frame, and at a
+    # touch's edges a few counts of baseline apart can put the two a frame apart (README: the twin check).
     assert twins[0]["channel"] == "zone2" and twins[0]["count"] == 1
     assert [e["count"] for e in twins][:3] == [1, 2, 4]
     assert twins[0]["board_state"] == "confirming" and twins[0]["padtune_state"] == "released"

@@ -45,7 +45,7 @@ class Output(Protocol):
     def group(self, t_s: float, group: str, channel: str | None, index: int) -> None: ...
     def slider(self, t_s: float, slider: str, position: int | None, touched: bool, index: int) -> None: ...
     def twin_mismatch(self, t_s: float, channel: str, index: int, board_state: str, padtune_state: str,
-                      count: int) -> None: ...
+                      count: int, seq: int | None = None) -> None: ...
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None: ...
     def summary(self, t_s: float, summary: Mapping[str, Any]) -> None: ...
     def close(self) -> None: ...
@@ -84,9 +84,11 @@ class JsonLinesOutput:
         self._emit("slider", t_s, slider=slider, position=position, touched=touched, index=index)
 
     def twin_mismatch(self, t_s: float, channel: str, index: int, board_state: str, padtune_state: str,
-                      count: int) -> None:
+                      count: int, seq: int | None = None) -> None:
+        # `seq` (the board's own sequence number of the frame) only when the board sent one.
+        extra = {} if seq is None else {"seq": seq}
         self._emit("twin_mismatch", t_s, channel=channel, index=index, board_state=board_state,
-                   padtune_state=padtune_state, count=count)
+                   padtune_state=padtune_state, count=count, **extra)
 
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
         self._emit("status", t_s, channels=list(channels))
@@ -221,10 +223,11 @@ class HumanOutput:
         self._line(t_s, "slider", "magenta", f"{slider} {where}  (frame {index})")
 
     def twin_mismatch(self, t_s: float, channel: str, index: int, board_state: str, padtune_state: str,
-                      count: int) -> None:
+                      count: int, seq: int | None = None) -> None:
         frames = f"{count} disagreeing frame{'' if count == 1 else 's'} so far"
+        board_seq = "" if seq is None else f", board seq {seq}"
         self._line(t_s, "twin", "bold red", f"{channel}  board {board_state}, padtune {padtune_state}  "
-                   f"(frame {index}; {frames})")
+                   f"(frame {index}{board_seq}; {frames})")
 
     def status(self, t_s: float, channels: Sequence[Mapping[str, Any]]) -> None:
         self.console.print(channel_table([_readable_status(c) for c in channels], STATUS_COLUMNS,

@@ -208,7 +208,8 @@ class DetectionRun:
         elif isinstance(det, TwinMismatch):
             self.twin_count = det.count
             self.output.twin_mismatch(self._rel(det.t_s), self.name(det.channel), det.index,
-                                      det.board_state.name.lower(), det.padtune_state.name.lower(), det.count)
+                                      det.board_state.name.lower(), det.padtune_state.name.lower(), det.count,
+                                      det.seq)
 
     @property
     def judges_touches(self) -> bool:
