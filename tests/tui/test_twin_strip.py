@@ -60,6 +60,6 @@ async def test_the_log_says_the_first_disagreement_and_the_strip_counts():
         assert app.live.source.link_view().twin == 0  # compared, agreeing, before 1 s
         await _run(pilot, feed, 1.1)
         log = log_text(app)
-        assert "twin disagrees: zone2 at frame 60: board confirming, padtune released" in log
+        assert "twin disagrees: zone2 at frame 60 (board seq 60): board confirming, padtune released" in log
         count = app.live.source.link_view().twin
         assert count is not None and count >= 60
