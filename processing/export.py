@@ -95,17 +95,24 @@ def c_header_text(profile: Profile, source: str, now: dt.datetime | None = None)
 
 # What pt_info_t's `board` may hold (the info line's word: no spaces, no quotes to escape).
 _BOARD_WORD = re.compile(r"[A-Za-z0-9_.-]{1,32}")
+_NOT_WORD = re.compile(r"[^A-Za-z0-9_.-]+")
 
 
 def _board_defines(profile: Profile) -> list[str]:
     """The board's name and frame rate for the firmware's info line (pt_info_t's `board` and
-    `rate_mhz`), when the profile knows them and they fit the line's rules."""
-    out = []
-    if _BOARD_WORD.fullmatch(profile.board):
-        out.append(f'#define PADTUNE_BOARD "{profile.board}"')
+    `rate_mhz`), and array sizes that are never zero for the groups' and sliders' state (C99 has no
+    empty arrays: a board without groups declares PADTUNE_GROUP_SLOTS of them, 1)."""
+    word = profile.board if _BOARD_WORD.fullmatch(profile.board) else \
+        (_NOT_WORD.sub("-", profile.board).strip("-")[:32] or "board")
+    note = "" if word == profile.board else " /* the profile's board id made one info-line word */"
+    out = [f'#define PADTUNE_BOARD "{word}"{note}']
     rate = profile.rate_hz
     if rate is not None and 0 < rate < 4_294_967:  # millihertz in 32 bits
         out.append(f"#define PADTUNE_RATE_MHZ {round(rate * 1000)}u /* frames per second x 1000 */")
+    else:
+        out.append("#define PADTUNE_RATE_MHZ 0u /* rate unknown when saved: the info line leaves it out */")
+    out += ["#define PADTUNE_GROUP_SLOTS (PADTUNE_GROUPS > 0 ? PADTUNE_GROUPS : 1)",
+            "#define PADTUNE_SLIDER_SLOTS (PADTUNE_SLIDERS > 0 ? PADTUNE_SLIDERS : 1)"]
     return out
 
 

@@ -54,8 +54,26 @@ def test_a_board_built_from_the_export_names_itself_and_its_rate(tmp_path: Path)
     assert info.names == demo_profile("greenhouse").names and info.fields["settings"] == "1"
 
 
-def test_a_name_the_info_line_cannot_carry_or_an_unknown_rate_is_left_out() -> None:
+def test_a_name_the_info_line_cannot_carry_is_made_one_word_and_an_unknown_rate_is_zero() -> None:
     text = c_header_text(_profile("greenhouse panel", None), "p.toml")  # a space: not one word
-    assert "PADTUNE_BOARD" not in text and "PADTUNE_RATE_MHZ" not in text
+    assert '#define PADTUNE_BOARD "greenhouse-panel"' in text and "#define PADTUNE_RATE_MHZ 0u" in text
     text = c_header_text(_profile("gh.2", 1000.0), "p.toml")
     assert '#define PADTUNE_BOARD "gh.2"' in text and "#define PADTUNE_RATE_MHZ 1000000u" in text
+    assert '#define PADTUNE_BOARD "board"' in c_header_text(_profile('"*/', None), "p.toml")
+
+
+@needs_cc
+def test_a_profile_without_groups_or_sliders_declares_one_state_slot_each(tmp_path: Path) -> None:
+    # C99 has no empty arrays: `pt_group_state_t gs[PADTUNE_GROUPS]` with no groups fails -pedantic.
+    plain = replace(demo_profile("greenhouse"), groups=(), sliders=())
+    export_c_header(plain, tmp_path / "profile.h", "p.toml")
+    (tmp_path / "main.c").write_text(
+        '#include "pt_groups.h"\n#include "profile.h"\n'
+        "static pt_group_state_t gs[PADTUNE_GROUP_SLOTS];\n"
+        "static pt_slider_state_t ss[PADTUNE_SLIDER_SLOTS];\n"
+        "int main(void) { pt_groups_init(gs, PADTUNE_GROUPS); pt_sliders_init(ss, PADTUNE_SLIDERS); "
+        "return (int)(sizeof gs / sizeof gs[0]) - 1; }\n")
+    subprocess.run(["cc", *STRICT, f"-I{FIRMWARE}", f"-I{tmp_path}", str(FIRMWARE / "pt_groups.c"),
+                    str(FIRMWARE / "pt_detect.c"), str(tmp_path / "main.c"), "-o", str(tmp_path / "m")],
+                   check=True, timeout=120)
+    assert subprocess.run([str(tmp_path / "m")], timeout=30).returncode == 0
