@@ -51,14 +51,15 @@ typedef struct pt_event {
     uint8_t kind;         /* enum pt_event_kind */
 } pt_event_t;
 
-/* One channel's state: 20 bytes. Opaque: read it with the accessors below. Fields hold 40-bit values
- * split in two (baseline and period sum) so that no int64_t sits in RAM per channel. */
+/* One channel's state: 20 bytes. Opaque: read it with the accessors below. The baseline is kept as
+ * whole counts and a fraction, the 40-bit period sum split in two, so that no int64_t sits in RAM per
+ * channel and a frame needs no 64-bit shift. */
 typedef struct pt_chan {
-    uint32_t base_lo;    /* baseline_fp (counts * 256), low 32 bits */
+    int32_t base;        /* baseline_fp (counts * 256) / 256, rounded down: whole counts */
     uint32_t acc_lo;     /* sum of the period's released readings, low 32 bits */
     uint32_t held;       /* frames since the touch was reported (saturates at 2^32-1) */
     uint32_t delta_mag;  /* |delta| of the last frame (up to 2^32-1 for readings at the int32 limits) */
-    uint8_t base_hi;     /* baseline_fp, bits 32..39 (two's complement of the 40-bit value) */
+    uint8_t frac;        /* baseline_fp mod 256: the fraction, 0..255 */
     uint8_t acc_hi;      /* period sum, bits 32..39 (two's complement of the 40-bit sum) */
     uint8_t count;       /* frames counted toward the pending touch or release */
     uint8_t flags;       /* state (2 bits), clean, pending, running polarity, sign of delta */
