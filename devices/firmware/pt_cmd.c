@@ -22,17 +22,15 @@ static const char rules[] =
     "1..16777216\0" "0..threshold_counts-1\0" "1..255\0" "1..255\0" "0..16\0" "0..baseline_slow_shift\0"
     "a power of two 1..256\0" "0..2147483647\0" "+ or -";
 
-typedef struct {
-    const char *s;
-    size_t len;
-} word_t;
-
-/* One command being answered: its first word and channel word say whom an answer is for. */
+/* One command being answered. The line is in the caller's buffer with its blanks turned into NULs
+ * (so every word is a C string) and a NUL after its end. */
 typedef struct {
     pt_cmd_t *p;
-    word_t cmd;  /* the first word */
-    word_t chw;  /* the channel word of get / set (len 0: none) */
-    int32_t ch;  /* its channel, ALL_CHANNELS or NO_CHANNEL */
+    char *at;        /* the rest of the line */
+    char *end;       /* the line's end */
+    const char *cmd; /* the first word */
+    const char *chw; /* the channel word of get / set, or NULL */
+    int32_t ch;      /* its channel, ALL_CHANNELS or NO_CHANNEL */
 } job_t;
 
 /* The n-th (from 0) string of a NUL-separated list. */
@@ -72,44 +70,38 @@ void pt_cmd_reset(pt_cmd_t *p)
 
 /* --- words ------------------------------------------------------------------------------------- */
 
-static int is_blank(char c)
+/* The next word, or NULL at the line's end. */
+static char *next(job_t *j)
 {
-    return c == ' ' || c == '\t';
-}
-
-/* The next word at or after *pos; len 0 when the line has no more. */
-static word_t next_word(const char *line, size_t len, size_t *pos)
-{
-    word_t w;
-    size_t i = *pos;
-    while (i < len && is_blank(line[i])) {
-        i++;
+    char *w;
+    while (j->at < j->end && *j->at == '\0') {
+        j->at++;
     }
-    w.s = line + i;
-    while (i < len && !is_blank(line[i])) {
-        i++;
+    if (j->at == j->end) {
+        return NULL;
     }
-    w.len = (size_t)(line + i - w.s);
-    *pos = i;
+    w = j->at;
+    while (*j->at != '\0') {
+        j->at++;
+    }
     return w;
 }
 
-/* 1 when `w` is exactly the NUL-terminated `text`. */
-static int word_is(word_t w, const char *text)
+static int same(const char *a, const char *b)
 {
-    size_t i = 0;
-    while (i < w.len && text[i] == w.s[i]) {
-        i++;
+    while (*a != '\0' && *a == *b) {
+        a++;
+        b++;
     }
-    return i == w.len && text[i] == '\0';
+    return *a == *b;
 }
 
 /* The key (enum pt_setting_key) named `w`, or PT_KEY_NONE. */
-static unsigned key_of(word_t w)
+static unsigned key_of(const char *w)
 {
     unsigned k;
     for (k = PT_KEY_THRESHOLD_COUNTS; k <= PT_KEY_POLARITY; k++) {
-        if (word_is(w, nth(key_names, k - 1u))) {
+        if (same(w, nth(key_names, k - 1u))) {
             return k;
         }
     }
@@ -118,20 +110,19 @@ static unsigned key_of(word_t w)
 
 /* Decimal with an optional '-' (only when `sign`), or NOT_A_NUMBER when `w` is none or outside int32
  * (NOT_A_NUMBER itself, -2147483648, reads back as itself). */
-static int32_t parse_int(word_t w, int sign)
+static int32_t parse_int(const char *w, int sign)
 {
-    size_t i = 0;
     uint32_t v = 0;
     uint32_t limit = 2147483647u;
-    if (sign && w.len > 0 && w.s[0] == '-') {
+    if (sign && *w == '-') {
         limit = 2147483648u;
-        i = 1;
+        w++;
     }
-    if (i == w.len) {
+    if (*w == '\0') {
         return NOT_A_NUMBER;
     }
-    for (; i < w.len; i++) {
-        uint32_t digit = (uint32_t)(unsigned char)w.s[i] - (uint32_t)'0';
+    for (; *w != '\0'; w++) {
+        uint32_t digit = (uint32_t)(unsigned char)*w - (uint32_t)'0';
         if (digit > 9u || v > 214748364u) {
             return NOT_A_NUMBER;
         }
@@ -145,36 +136,38 @@ static int32_t parse_int(word_t w, int sign)
 
 /* --- settings by key --------------------------------------------------------------------------- */
 
+/* Where each key's field is in pt_settings_t, in enum pt_setting_key's order from 1. */
+static const uint8_t field_at[PT_KEY_POLARITY] = {
+    offsetof(pt_settings_t, threshold_counts), offsetof(pt_settings_t, hysteresis_counts),
+    offsetof(pt_settings_t, touch_debounce_frames), offsetof(pt_settings_t, release_debounce_frames),
+    offsetof(pt_settings_t, baseline_slow_shift), offsetof(pt_settings_t, baseline_fast_shift),
+    offsetof(pt_settings_t, baseline_period_frames), offsetof(pt_settings_t, stuck_timeout_frames),
+    offsetof(pt_settings_t, polarity),
+};
+
+#define IS_BYTE(k) ((k) >= PT_KEY_TOUCH_DEBOUNCE_FRAMES && (k) <= PT_KEY_BASELINE_FAST_SHIFT)
+
 static int32_t get(const pt_settings_t *s, unsigned k)
 {
-    switch (k) {
-    case PT_KEY_THRESHOLD_COUNTS: return s->threshold_counts;
-    case PT_KEY_HYSTERESIS_COUNTS: return s->hysteresis_counts;
-    case PT_KEY_TOUCH_DEBOUNCE_FRAMES: return s->touch_debounce_frames;
-    case PT_KEY_RELEASE_DEBOUNCE_FRAMES: return s->release_debounce_frames;
-    case PT_KEY_BASELINE_SLOW_SHIFT: return s->baseline_slow_shift;
-    case PT_KEY_BASELINE_FAST_SHIFT: return s->baseline_fast_shift;
-    case PT_KEY_BASELINE_PERIOD_FRAMES: return s->baseline_period_frames;
-    case PT_KEY_STUCK_TIMEOUT_FRAMES: return s->stuck_timeout_frames;
-    default: return s->polarity;
-    }
+    const void *f = (const char *)s + field_at[k - 1u];
+    return k == PT_KEY_BASELINE_PERIOD_FRAMES ? *(const uint16_t *)f
+           : k == PT_KEY_POLARITY ? *(const int8_t *)f
+           : IS_BYTE(k) ? *(const uint8_t *)f : *(const int32_t *)f;
 }
 
 /* Writes `v` into key k's field. A value the field cannot hold becomes one pt_settings_problem() refuses
- * for that key (a debounce 0, a shift 255, a period 0); any value the field holds is kept as it is. */
+ * for that key (a debounce 0, a shift 255, a period 0, a polarity 0); any value it holds is kept. */
 static void put(pt_settings_t *s, unsigned k, int32_t v)
 {
-    uint8_t small = (v < 0 || v > 255) ? (k <= PT_KEY_RELEASE_DEBOUNCE_FRAMES ? 0u : 255u) : (uint8_t)v;
-    switch (k) {
-    case PT_KEY_THRESHOLD_COUNTS: s->threshold_counts = v; break;
-    case PT_KEY_HYSTERESIS_COUNTS: s->hysteresis_counts = v; break;
-    case PT_KEY_TOUCH_DEBOUNCE_FRAMES: s->touch_debounce_frames = small; break;
-    case PT_KEY_RELEASE_DEBOUNCE_FRAMES: s->release_debounce_frames = small; break;
-    case PT_KEY_BASELINE_SLOW_SHIFT: s->baseline_slow_shift = small; break;
-    case PT_KEY_BASELINE_FAST_SHIFT: s->baseline_fast_shift = small; break;
-    case PT_KEY_BASELINE_PERIOD_FRAMES: s->baseline_period_frames = (v < 0 || v > 65535) ? 0u : (uint16_t)v; break;
-    case PT_KEY_STUCK_TIMEOUT_FRAMES: s->stuck_timeout_frames = v; break;
-    default: s->polarity = (v < -128 || v > 127) ? 0 : (int8_t)v; break;
+    void *f = (char *)s + field_at[k - 1u];
+    if (k == PT_KEY_BASELINE_PERIOD_FRAMES) {
+        *(uint16_t *)f = (v < 0 || v > 65535) ? 0u : (uint16_t)v;
+    } else if (k == PT_KEY_POLARITY) {
+        *(int8_t *)f = (v < -128 || v > 127) ? 0 : (int8_t)v;
+    } else if (IS_BYTE(k)) {
+        *(uint8_t *)f = (v < 0 || v > 255) ? (k <= PT_KEY_RELEASE_DEBOUNCE_FRAMES ? 0u : 255u) : (uint8_t)v;
+    } else {
+        *(int32_t *)f = v;
     }
 }
 
@@ -193,48 +186,37 @@ static void pair(pt_emit_t *e, unsigned k, int32_t v)
 
 /* --- answers ----------------------------------------------------------------------------------- */
 
-/* A word as given, at most MAX_WORD characters, anything unprintable as '?'. */
-static void quote(pt_emit_t *e, word_t w)
-{
-    size_t i;
-    for (i = 0; i < w.len && i < MAX_WORD; i++) {
-        pt_emit_char(e, (w.s[i] > 0x20 && w.s[i] < 0x7F) ? w.s[i] : '?');
-    }
-}
-
-/* Begins an answer: `>ok ` or `>no `, then whom it is for (`get 3`, `set *`, `keep`, the word). */
+/* Begins an answer: `>ok ` or `>no `, then whom it is for (`get 3`, `set *`, `keep`, the word given,
+ * at most MAX_WORD characters). */
 static void head(const job_t *j, const char *kind)
 {
     pt_emit_t *e = j->p->out;
     pt_emit_str(e, kind);
-    quote(e, j->cmd);
-    if (j->chw.len > 0) {
+    pt_emit_strn(e, j->cmd, MAX_WORD);
+    if (j->chw != NULL) {
         pt_emit_char(e, ' ');
-        if (j->ch == ALL_CHANNELS) {
-            pt_emit_char(e, '*');
-        } else if (j->ch == NO_CHANNEL) {
-            quote(e, j->chw);
-        } else {
+        if (j->ch >= 0) {
             pt_emit_uint(e, (uint32_t)j->ch);
+        } else {
+            pt_emit_strn(e, j->chw, MAX_WORD);
         }
     }
 }
 
-/* `>no SUBJECT: [WORD: ]why`, or for a broken rule (key != 0) `>no SUBJECT: key: must be RULE`
+/* `>no SUBJECT: [WORD: ]why`, or for a broken rule (key != 0) `>no SUBJECT: key: must be RULE`,
  * ` (channel N)` after it when `set *` found it on channel `bad`. */
-static void no(const job_t *j, const word_t *w, const char *why, unsigned key, int32_t bad)
+static void no(const job_t *j, const char *w, const char *why, unsigned key, int32_t bad)
 {
     pt_emit_t *e = j->p->out;
     head(j, ">no ");
     pt_emit_str(e, ": ");
-    if (w != NULL) {
-        quote(e, *w);
-        pt_emit_str(e, ": ");
-    }
     if (key != PT_KEY_NONE) {
-        pt_emit_str(e, nth(key_names, key - 1u));
-        pt_emit_str(e, ": must be ");
+        w = nth(key_names, key - 1u);
         why = nth(rules, key - 1u);
+    }
+    if (w != NULL) {
+        pt_emit_strn(e, w, key != PT_KEY_NONE ? (size_t)-1 : MAX_WORD);
+        pt_emit_str(e, key != PT_KEY_NONE ? ": must be " : ": ");
     }
     pt_emit_str(e, why);
     if (bad >= 0) {
@@ -256,10 +238,10 @@ static void ok(const job_t *j)
 static void run_get(job_t *j)
 {
     pt_emit_t *e = j->p->out;
-    uint16_t c;
+    unsigned c;
     unsigned k;
     for (c = 0; c < j->p->channels; c++) {
-        if (j->ch == ALL_CHANNELS || c == j->ch) {
+        if (j->ch < 0 || c == (unsigned)j->ch) {
             pt_emit_str(e, ">val ");
             pt_emit_uint(e, c);
             for (k = PT_KEY_THRESHOLD_COUNTS; k <= PT_KEY_POLARITY; k++) {
@@ -272,7 +254,7 @@ static void run_get(job_t *j)
 }
 
 /* `set` from the pairs on: read them all, check every channel asked, then write: all or none. */
-static void run_set(job_t *j, const char *line, size_t len, size_t pos)
+static void run_set(job_t *j)
 {
     pt_cmd_t *p = j->p;
     pt_settings_t given;
@@ -282,28 +264,27 @@ static void run_set(job_t *j, const char *line, size_t len, size_t pos)
     unsigned have = 0;
     unsigned k;
     unsigned pass;
-    uint16_t c;
-    word_t w;
-    for (w = next_word(line, len, &pos); w.len > 0; w = next_word(line, len, &pos)) {
-        word_t name = w;
-        word_t value;
-        name.len = 0;
-        while (name.len < w.len && w.s[name.len] != '=') {
-            name.len++;
+    unsigned c;
+    char *w;
+    char *v;
+    const char *why;
+    while ((w = next(j)) != NULL) {
+        for (v = w; *v != '\0' && *v != '='; v++) {
         }
-        value.s = w.s + name.len + 1;
-        value.len = w.len - name.len - 1u;
-        k = key_of(name);
-        if (name.len == w.len || k == PT_KEY_NONE || (have & (1u << k)) != 0) {
-            no(j, name.len == w.len ? &w : &name,
-               name.len == w.len ? "not key=value" : k == PT_KEY_NONE ? "unknown setting" : "given twice",
-               PT_KEY_NONE, -1);
+        why = "not key=value";
+        k = PT_KEY_NONE;
+        if (*v != '\0') {
+            *v++ = '\0';
+            k = key_of(w);
+            why = k == PT_KEY_NONE ? "unknown setting" : ((have >> k) & 1u) != 0 ? "given twice" : NULL;
+        }
+        if (why != NULL) {
+            no(j, w, why, PT_KEY_NONE, -1);
             return;
         }
         have |= 1u << k;
         order[n++] = (uint8_t)k;
-        put(&given, k, k != PT_KEY_POLARITY ? parse_int(value, 1)
-                       : word_is(value, "+") ? 1 : word_is(value, "-") ? -1 : 0);
+        put(&given, k, k != PT_KEY_POLARITY ? parse_int(v, 1) : same(v, "+") ? 1 : same(v, "-") ? -1 : 0);
     }
     if (n == 0) {
         no(j, NULL, "nothing to set", PT_KEY_NONE, -1);
@@ -311,18 +292,18 @@ static void run_set(job_t *j, const char *line, size_t len, size_t pos)
     }
     for (pass = 0; pass < 2; pass++) {
         for (c = 0; c < p->channels; c++) {
-            if (j->ch != ALL_CHANNELS && c != j->ch) {
+            if (j->ch >= 0 && c != (unsigned)j->ch) {
                 continue;
             }
             for (k = PT_KEY_THRESHOLD_COUNTS; k <= PT_KEY_POLARITY; k++) {
-                put(pass ? &p->settings[c] : &now, k, get((have & (1u << k)) ? &given : &p->settings[c], k));
+                put(pass ? &p->settings[c] : &now, k, get(((have >> k) & 1u) ? &given : &p->settings[c], k));
             }
             if (pass != 0) {
                 if (p->hooks->changed != NULL) {
-                    p->hooks->changed(p->ctx, c);
+                    p->hooks->changed(p->ctx, (uint16_t)c);
                 }
             } else if ((k = (unsigned)pt_settings_problem(&now)) != PT_KEY_NONE) {
-                no(j, NULL, NULL, k, j->ch == ALL_CHANNELS ? (int32_t)c : -1);
+                no(j, NULL, NULL, k, j->ch < 0 ? (int32_t)c : -1);
                 return;
             }
         }
@@ -334,80 +315,102 @@ static void run_set(job_t *j, const char *line, size_t len, size_t pos)
     pt_emit_end(p->out);
 }
 
-static void run(pt_cmd_t *p, const char *line, size_t len, const char *refusal)
+/* Every `from` in [c, end) becomes `to`: the line's blanks (all spaces, see pt_cmd_feed) into word ends
+ * and back. */
+static void swap(char *c, const char *end, char from, char to)
 {
+    for (; c < end; c++) {
+        if (*c == from) {
+            *c = to;
+        }
+    }
+}
+
+/* Runs the line held in the buffer, or refuses it with `refusal`. */
+static void run(pt_cmd_t *p, const char *refusal)
+{
+    const pt_cmd_hooks_t *h = p->hooks;
     job_t j;
-    size_t pos = 0;
     const char *why = "unknown command";
     int getset;
     j.p = p;
-    j.cmd = next_word(line, len, &pos);
-    j.chw.len = 0;
+    j.at = p->buf;
+    j.end = p->buf + p->len;
+    *j.end = '\0';
+    swap(j.at, j.end, ' ', '\0');
+    j.chw = NULL;
     j.ch = NO_CHANNEL;
+    j.cmd = next(&j);
     if (refusal != NULL) {
-        if (j.cmd.len == 0) {
-            j.cmd.s = "?";
-            j.cmd.len = 1;
+        if (j.cmd == NULL) {
+            j.cmd = "?";
         }
         why = refusal;
-    } else if (j.cmd.len == 0) {
+    } else if (j.cmd == NULL) {
         return; /* a blank line: nothing asked */
-    } else if (word_is(j.cmd, "?") && p->hooks->info != NULL) {
-        p->hooks->info(p->ctx);
+    } else if (same(j.cmd, "?") && h->info != NULL) {
+        h->info(p->ctx);
         return;
-    } else if ((getset = word_is(j.cmd, "get") || word_is(j.cmd, "set")) != 0 || word_is(j.cmd, "keep")) {
+    } else if ((getset = same(j.cmd, "get") || same(j.cmd, "set")) != 0 || same(j.cmd, "keep")) {
+        why = h->keep == NULL ? "cannot keep settings" : NULL;
         if (getset) {
-            j.chw = next_word(line, len, &pos);
-            j.ch = word_is(j.chw, "*") ? ALL_CHANNELS : parse_int(j.chw, 0);
-            if (j.ch < ALL_CHANNELS || j.ch >= (int32_t)p->channels) {
-                j.ch = NO_CHANNEL;
+            j.chw = next(&j);
+            why = "which channel?";
+            if (j.chw != NULL) {
+                j.ch = same(j.chw, "*") ? ALL_CHANNELS : parse_int(j.chw, 0);
+                if (j.ch < ALL_CHANNELS || j.ch >= (int32_t)p->channels) {
+                    j.ch = NO_CHANNEL;
+                }
+                why = j.ch == NO_CHANNEL ? "no such channel" : NULL;
             }
-            why = j.chw.len == 0 ? "which channel?" : j.ch == NO_CHANNEL ? "no such channel" : NULL;
-            if (why == NULL && j.cmd.s[0] == 's') {
-                run_set(&j, line, len, pos);
+            if (why == NULL && j.cmd[0] == 's') {
+                run_set(&j);
                 return;
             }
-        } else {
-            why = p->hooks->keep == NULL ? "cannot keep settings" : NULL;
         }
-        if (why == NULL && next_word(line, len, &pos).len > 0) {
+        if (why == NULL && next(&j) != NULL) {
             why = "too many words";
         }
         if (why == NULL && getset) {
             run_get(&j);
             return;
         }
-        if (why == NULL && (why = p->hooks->keep(p->ctx)) == NULL) {
+        if (why == NULL && (why = h->keep(p->ctx)) == NULL) {
             ok(&j);
             return;
         }
-    } else if (p->hooks->other != NULL && p->hooks->other(p->ctx, line, len)) {
-        return;
+    } else if (h->other != NULL) {
+        swap(p->buf, j.end, '\0', ' '); /* the line again, its blanks as spaces */
+        if (h->other(p->ctx, p->buf, p->len)) {
+            return;
+        }
+        swap(p->buf, j.end, ' ', '\0');
     }
     no(&j, NULL, why, PT_KEY_NONE, -1);
 }
 
-static const char not_ascii[] = "not ASCII text";
-
 void pt_cmd_line(pt_cmd_t *p, const char *line, size_t len)
 {
-    size_t i;
-    for (i = 0; i < len && (is_blank(line[i]) || (line[i] >= 0x20 && line[i] < 0x7F)); i++) {
+    while (len-- > 0) {
+        pt_cmd_feed(p, (uint8_t)*line++);
     }
-    run(p, line, len, i < len ? not_ascii : NULL);
+    pt_cmd_feed(p, '\n');
 }
 
 void pt_cmd_feed(pt_cmd_t *p, uint8_t byte)
 {
     if (byte == '\n' || byte == '\r') {
-        run(p, p->buf, p->len, p->overlong ? "line too long" : p->binary ? not_ascii : NULL);
+        run(p, p->overlong ? "line too long" : p->binary ? "not ASCII text" : NULL);
         pt_cmd_reset(p);
         return;
     }
-    if (!is_blank((char)byte) && (byte < 0x20u || byte > 0x7Eu)) {
+    if (byte == '\t') {
+        byte = ' '; /* one kind of blank */
+    } else if (byte < 0x20u || byte > 0x7Eu) {
         p->binary = 1;
+        byte = '?'; /* kept printable: quoted as '?' in the refusal */
     }
-    if (p->len < p->size) {
+    if (p->len + 1u < p->size) { /* room for the NUL after the line */
         p->buf[p->len++] = (char)byte;
     } else {
         p->overlong = 1;
