@@ -22,9 +22,17 @@
 
 #define ONE_FP 256 /* 1 << PT_FRAC_BITS */
 
+/* Kept out of line (GCC, Clang): inlined into their one caller they cost the Cortex-M0+ more flash than
+ * the call (fewer registers than live values: spills). Other compilers may inline as they like. */
+#if defined(__GNUC__)
+#define PT_OUTLINE __attribute__((noinline))
+#else
+#define PT_OUTLINE
+#endif
+
 /* a / 2^k, truncated toward zero, for |a| < 2^63 (ALGORITHM.md's tdiv_pow2): on the magnitude, one
  * bit at a time (k <= 16, only at a baseline period's end), so no 64-bit shift helper is linked. */
-static int64_t tdiv_pow2(int64_t a, unsigned k)
+PT_OUTLINE static int64_t tdiv_pow2(int64_t a, unsigned k)
 {
     uint64_t mag = a < 0 ? (uint64_t)0 - (uint64_t)a : (uint64_t)a;
     while (k-- > 0)
@@ -116,17 +124,17 @@ static int64_t mean_fp(int64_t acc, uint16_t period_frames)
 /* Steps 1-4 of ALGORITHM.md for one channel; returns the event kind (0 for none). 32-bit arithmetic
  * only: the delta is a sign (F_DNEG) and a magnitude up to 2^32 - 1, compared with the levels, which
  * valid settings keep positive (threshold 1 .. 2^24, hysteresis 0 .. threshold - 1). */
-static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_event_t *ev)
+PT_OUTLINE static unsigned step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_event_t *ev)
 {
-    uint8_t kind = 0;
-    uint8_t f = ch->flags;
-    uint8_t st;
+    unsigned kind = 0;
+    unsigned f = ch->flags;
+    unsigned st;
     uint32_t mag;
     int neg;
     if (f & F_PENDING) {
         ev->value = (f & F_STATE) >= PT_TOUCHED ? 1u : 0u; /* TOUCHED or RELEASING */
         set_base(ch, reading);
-        f = (uint8_t)((f & ~(F_STATE | F_CLEAN | F_PENDING)) | PT_RELEASED);
+        f = ((f & ~(F_STATE | F_CLEAN | F_PENDING)) | PT_RELEASED);
         ch->count = 0;
         ch->held = 0;
         ch->acc_lo = 0;
@@ -145,12 +153,12 @@ static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_e
         neg = !neg;
     if (mag == 0)
         neg = 0;
-    f = (uint8_t)(neg ? f | F_DNEG : f & ~F_DNEG);
+    f = (neg ? f | F_DNEG : f & ~F_DNEG);
     ch->delta_mag = mag;
-    st = (uint8_t)(f & F_STATE);
+    st = f & F_STATE;
     if (st == PT_RELEASED || st == PT_CONFIRMING) {
         if (!neg && mag >= (uint32_t)s->threshold_counts) {
-            uint8_t count = (st == PT_CONFIRMING) ? (uint8_t)(ch->count + 1u) : (uint8_t)1u;
+            unsigned count = (st == PT_CONFIRMING) ? ch->count + 1u : 1u;
             if (count >= s->touch_debounce_frames) {
                 st = PT_TOUCHED;
                 ch->count = 0;
@@ -158,7 +166,7 @@ static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_e
                 kind = PT_EV_TOUCH;
             } else {
                 st = PT_CONFIRMING;
-                ch->count = count;
+                ch->count = (uint8_t)count;
             }
         } else {
             st = PT_RELEASED;
@@ -168,14 +176,14 @@ static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_e
         if (ch->held != UINT32_MAX)
             ch->held++;
         if (neg || mag < (uint32_t)(s->threshold_counts - s->hysteresis_counts)) {
-            uint8_t count = (st == PT_RELEASING) ? (uint8_t)(ch->count + 1u) : (uint8_t)1u;
+            unsigned count = (st == PT_RELEASING) ? ch->count + 1u : 1u;
             if (count >= s->release_debounce_frames) {
                 st = PT_RELEASED;
                 ch->count = 0;
                 kind = PT_EV_RELEASE;
             } else {
                 st = PT_RELEASING;
-                ch->count = count;
+                ch->count = (uint8_t)count;
             }
         } else {
             st = PT_TOUCHED;
@@ -186,33 +194,33 @@ static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_e
             set_base(ch, reading);
             st = PT_RELEASED;
             ch->count = 0;
-            f = (uint8_t)(f & ~F_CLEAN);
+            f = (f & ~F_CLEAN);
         }
         if (kind == PT_EV_RELEASE || kind == PT_EV_STUCK)
             ev->held_frames = ch->held;
     }
-    f = (uint8_t)((f & ~F_STATE) | st);
+    f = ((f & ~F_STATE) | st);
     if (st == PT_RELEASED) {
         /* the 40-bit period sum plus the reading sign-extended: carry and sign into the high byte */
         uint32_t lo = ch->acc_lo + (uint32_t)reading;
         ch->acc_hi = (uint8_t)(ch->acc_hi + (lo < ch->acc_lo ? 1u : 0u) + (reading < 0 ? 0xFFu : 0u));
         ch->acc_lo = lo;
     } else {
-        f = (uint8_t)(f & ~F_CLEAN);
+        f = (f & ~F_CLEAN);
     }
-    ch->flags = f;
+    ch->flags = (uint8_t)f;
     return kind;
 }
 
 /* The channel's last delta, whole counts, positive toward touch. */
-static int64_t delta_of(const pt_chan_t *ch)
+PT_OUTLINE static int64_t delta_of(const pt_chan_t *ch)
 {
     int64_t mag = (int64_t)ch->delta_mag;
     return (ch->flags & F_DNEG) ? -mag : mag;
 }
 
 /* Step 5: the end of a baseline period. */
-static void period_end(pt_chan_t *ch, const pt_settings_t *s)
+PT_OUTLINE static void period_end(pt_chan_t *ch, const pt_settings_t *s)
 {
     if (ch->flags & F_CLEAN) {
         int64_t bfp = get_base_fp(ch);
@@ -232,13 +240,13 @@ size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *ev
 {
     size_t n = 0;
     uint32_t clock = d->frame;
-    uint16_t c;
+    unsigned c;
     for (c = 0; c < d->channels; c++) {
         const pt_settings_t *s = &d->settings[c];
         pt_chan_t *ch = &d->chans[c];
         pt_event_t scratch;
         pt_event_t *ev = events != NULL ? &events[n] : &scratch; /* filled in place; kept if kind != 0 */
-        uint8_t kind;
+        unsigned kind;
         uint32_t mask = (uint32_t)s->baseline_period_frames - 1u;
         ev->held_frames = 0;
         ev->value = 0;
@@ -246,8 +254,8 @@ size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *ev
         if ((clock & mask) == mask)
             period_end(ch, s);
         if (kind != 0) {
-            ev->kind = kind;
-            ev->source = c;
+            ev->kind = (uint8_t)kind;
+            ev->source = (uint16_t)c;
             ev->delta_counts = kind == PT_EV_REBASELINED ? 0 : delta_of(ch);
             n++;
         }
@@ -284,8 +292,7 @@ uint8_t pt_detect_state(const pt_detector_t *d, uint16_t channel)
 
 int pt_detect_touched(const pt_detector_t *d, uint16_t channel)
 {
-    uint8_t st = (uint8_t)(d->chans[channel].flags & F_STATE);
-    return st == PT_TOUCHED || st == PT_RELEASING;
+    return (d->chans[channel].flags & F_STATE) >= PT_TOUCHED; /* TOUCHED or RELEASING */
 }
 
 int64_t pt_detect_delta(const pt_detector_t *d, uint16_t channel)
