@@ -133,11 +133,20 @@ static void text_key(pt_emit_t *e, const char *key, const char *text)
     }
 }
 
+/* ` key=a,b,c`: `n` names, or `n` polarity signs when `names` is NULL. */
+static void list(pt_emit_t *e, const char *key, const char *const *names, const int8_t *pol, unsigned n)
+{
+    unsigned c;
+    pt_emit_str(e, key);
+    for (c = 0; c < n; c++) {
+        text_key(e, c > 0 ? "," : "", names != NULL ? names[c] : pol[c] < 0 ? "-" : "+");
+    }
+}
+
 void pt_emit_info(pt_emit_t *e, const pt_info_t *info, int announce)
 {
-    uint16_t c;
-    uint16_t n = info->channels;
-    uint16_t shown = n;
+    unsigned c;
+    unsigned n = info->channels;
     const int8_t *pol = info->polarity;
     pt_emit_str(e, announce ? "! proto=1" : "!");
     text_key(e, " board=", info->board);
@@ -150,22 +159,13 @@ void pt_emit_info(pt_emit_t *e, const pt_info_t *info, int announce)
         number(e, info->rate_mhz, 3);
     }
     if (info->names != NULL && n != 0) {
-        pt_emit_str(e, " names=");
-        for (c = 0; c < n; c++) {
-            text_key(e, c > 0 ? "," : "", info->names[c]);
-        }
+        list(e, " names=", info->names, NULL, n);
     }
     text_key(e, " method=", info->method);
     if (pol != NULL && n != 0) {
         for (c = 1; c < n && (pol[c] < 0) == (pol[0] < 0); c++) {
         }
-        if (c == n) {
-            shown = 1; /* all agree: one sign */
-        }
-        pt_emit_str(e, " polarity=");
-        for (c = 0; c < shown; c++) {
-            text_key(e, c > 0 ? "," : "", pol[c] < 0 ? "-" : "+");
-        }
+        list(e, " polarity=", NULL, pol, c == n ? 1u : n); /* all agree: one sign */
     }
     text_key(e, " fw=", info->fw);
     text_key(e, " settings=", info->settings ? "1" : NULL);
