@@ -203,27 +203,17 @@ static void head(const job_t *j, const char *kind)
     }
 }
 
-/* `>no SUBJECT: [WORD: ]why`, or for a broken rule (key != 0) `>no SUBJECT: key: must be RULE`,
- * ` (channel N)` after it when `set *` found it on channel `bad`. */
-static void no(const job_t *j, const char *w, const char *why, unsigned key, int32_t bad)
+/* `>no SUBJECT: [WORD: ]why`. */
+static void no(const job_t *j, const char *w, const char *why)
 {
     pt_emit_t *e = j->p->out;
     head(j, ">no ");
     pt_emit_str(e, ": ");
-    if (key != PT_KEY_NONE) {
-        w = nth(key_names, key - 1u);
-        why = nth(rules, key - 1u);
-    }
     if (w != NULL) {
-        pt_emit_strn(e, w, key != PT_KEY_NONE ? (size_t)-1 : MAX_WORD);
-        pt_emit_str(e, key != PT_KEY_NONE ? ": must be " : ": ");
+        pt_emit_strn(e, w, MAX_WORD);
+        pt_emit_str(e, ": ");
     }
     pt_emit_str(e, why);
-    if (bad >= 0) {
-        pt_emit_str(e, " (channel ");
-        pt_emit_uint(e, (uint32_t)bad);
-        pt_emit_char(e, ')');
-    }
     pt_emit_end(e);
 }
 
@@ -279,7 +269,7 @@ static void run_set(job_t *j)
             why = k == PT_KEY_NONE ? "unknown setting" : ((have >> k) & 1u) != 0 ? "given twice" : NULL;
         }
         if (why != NULL) {
-            no(j, w, why, PT_KEY_NONE, -1);
+            no(j, w, why);
             return;
         }
         have |= 1u << k;
@@ -287,7 +277,7 @@ static void run_set(job_t *j)
         put(&given, k, k != PT_KEY_POLARITY ? parse_int(v, 1) : same(v, "+") ? 1 : same(v, "-") ? -1 : 0);
     }
     if (n == 0) {
-        no(j, NULL, "nothing to set", PT_KEY_NONE, -1);
+        no(j, NULL, "nothing to set");
         return;
     }
     for (pass = 0; pass < 2; pass++) {
@@ -303,7 +293,18 @@ static void run_set(job_t *j)
                     p->hooks->changed(p->ctx, (uint16_t)c);
                 }
             } else if ((k = (unsigned)pt_settings_problem(&now)) != PT_KEY_NONE) {
-                no(j, NULL, NULL, k, j->ch < 0 ? (int32_t)c : -1);
+                /* `>no set N: key: must be RULE`, and which channel for `set *` */
+                head(j, ">no ");
+                pt_emit_str(p->out, ": ");
+                pt_emit_str(p->out, nth(key_names, k - 1u));
+                pt_emit_str(p->out, ": must be ");
+                pt_emit_str(p->out, nth(rules, k - 1u));
+                if (j->ch < 0) {
+                    pt_emit_str(p->out, " (channel ");
+                    pt_emit_uint(p->out, c);
+                    pt_emit_char(p->out, ')');
+                }
+                pt_emit_end(p->out);
                 return;
             }
         }
@@ -386,7 +387,7 @@ static void run(pt_cmd_t *p, const char *refusal)
         }
         swap(p->buf, j.end, ' ', '\0');
     }
-    no(&j, NULL, why, PT_KEY_NONE, -1);
+    no(&j, NULL, why);
 }
 
 void pt_cmd_line(pt_cmd_t *p, const char *line, size_t len)
