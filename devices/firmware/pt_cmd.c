@@ -1,73 +1,51 @@
 /* pt_cmd: section 7's host commands, parsed from a caller-owned line buffer (see pt_cmd.h).
  *
- * Written for flash: every answer is one template string expanded by one function (`say`), whose
- * control codes stand for the parts that vary (the channel, the word in question, a value, the reason),
- * so each refusal costs its text and one call. No division anywhere (the M0+ has none). */
+ * Written for flash: the rules are pt_settings_problem()'s (one statement of them in C, in the profile's
+ * order), a refusal names the key and that key's rule from one table (`rules`, by key, not by sentence),
+ * and the setting names are one NUL-separated table read by the parser and its answers alike. A value
+ * its field cannot hold (300 for a debounce, a word that is no number) is stored as one the rules refuse
+ * for that same key, so the first problem named is the profile's. No division, no <string.h> call. */
 #include "pt_cmd.h"
 
-/* No <string.h> calls: the few loops below are smaller than newlib's optimised versions they would
- * pull into the image. */
-
-/* The settings as the wire lists them, index = enum pt_setting_key - 1. Commands work on int32
- * copies: a value is checked before it is narrowed into pt_settings_t's small fields (300 must be
- * refused as 300, not stored as 44), and a refusal quotes the value as it was given. */
-#define NKEYS 9
-#define K_THRESHOLD 0
-#define K_HYSTERESIS 1
-#define K_TOUCH_DEBOUNCE 2
-#define K_RELEASE_DEBOUNCE 3
-#define K_SLOW_SHIFT 4
-#define K_FAST_SHIFT 5
-#define K_PERIOD 6
-#define K_STUCK 7
-#define K_POLARITY 8
-
 #define ALL_CHANNELS (-1L) /* `*` */
+#define NO_CHANNEL (-2L)   /* a channel word that names no channel: quoted as given */
 #define MAX_WORD 16u       /* a word is quoted up to this many characters */
+#define NOT_A_NUMBER (-2147483647L - 1L) /* breaks the rule of every numeric key */
 
-/* Template codes (see say()). */
-#define A_CMD "\001"   /* the command word */
-#define A_CH "\002"    /* the channel: its number, or * */
-#define A_WORD "\003"  /* the word in question, as given (at most 16 characters, unprintable ones as ?) */
-#define A_LAST "\004"  /* the last channel's number */
-#define A_KEY "\005"   /* the setting in question */
-#define A_WHY "\006"   /* the reason (a template itself) */
-#define A_SIZE "\007"  /* the line buffer's size */
-#define A_BAD "\010"   /* the channel `set *` failed on */
-#define V_T "\020"     /* \020 + k: the value of setting k */
-#define V_H "\021"
-#define V_SLOW "\024"
-#define V_FAST "\025"
-#define V_P "\026"
-#define V_X "\027"
-#define V_KEY "\030"   /* the value of the setting in question */
+/* The setting keys as the wire names them, in enum pt_setting_key's order from 1, NUL-separated. */
+static const char key_names[] =
+    "threshold_counts\0hysteresis_counts\0touch_debounce_frames\0release_debounce_frames\0"
+    "baseline_slow_shift\0baseline_fast_shift\0baseline_period_frames\0stuck_timeout_frames\0polarity";
 
-static const char *const key_names[NKEYS] = {
-    "threshold_counts", "hysteresis_counts", "touch_debounce_frames", "release_debounce_frames",
-    "baseline_slow_shift", "baseline_fast_shift", "baseline_period_frames", "stuck_timeout_frames",
-    "polarity",
-};
+/* What each key must be: the rule pt_settings_problem() checks for it, same order. */
+static const char rules[] =
+    "1..16777216\0" "0..threshold_counts-1\0" "1..255\0" "1..255\0" "0..16\0" "0..baseline_slow_shift\0"
+    "a power of two 1..256\0" "0..2147483647\0" "+ or -";
 
-typedef struct {
-    const char *s;
-    size_t len;
-} word_t;
-
-/* One command being answered. */
+/* One command being answered. The line is in the caller's buffer with its blanks turned into NULs
+ * (so every word is a C string) and a NUL after its end. */
 typedef struct {
     pt_cmd_t *p;
-    const char *cmd;  /* "get", "set" */
-    int32_t ch;       /* the channel, or ALL_CHANNELS */
-    int32_t bad;      /* `set *`: the channel whose settings broke the rules */
-    word_t word;      /* the word in question */
-    unsigned key;     /* the setting in question */
-    const char *why;  /* the reason's template */
-    int32_t v[NKEYS]; /* settings being checked, or the values given */
+    char *at;        /* the rest of the line */
+    char *end;       /* the line's end */
+    const char *cmd; /* the first word */
+    const char *chw; /* the channel word of get / set, or NULL */
+    int32_t ch;      /* its channel, ALL_CHANNELS or NO_CHANNEL */
 } job_t;
+
+/* The n-th (from 0) string of a NUL-separated list. */
+static const char *nth(const char *list, unsigned n)
+{
+    while (n-- > 0) {
+        while (*list++ != '\0') {
+        }
+    }
+    return list;
+}
 
 const char *pt_cmd_key_name(int key)
 {
-    return key >= PT_KEY_THRESHOLD_COUNTS && key <= PT_KEY_POLARITY ? key_names[key - 1] : NULL;
+    return key >= PT_KEY_THRESHOLD_COUNTS && key <= PT_KEY_POLARITY ? nth(key_names, (unsigned)key - 1u) : NULL;
 }
 
 void pt_cmd_init(pt_cmd_t *p, const pt_cmd_hooks_t *hooks, void *ctx, pt_emit_t *out,
@@ -92,439 +70,348 @@ void pt_cmd_reset(pt_cmd_t *p)
 
 /* --- words ------------------------------------------------------------------------------------- */
 
-static int is_blank(char c)
+/* The next word, or NULL at the line's end. */
+static char *next(job_t *j)
 {
-    return c == ' ' || c == '\t';
-}
-
-/* The next word at or after *pos; len 0 when the line has no more. */
-static word_t next_word(const char *line, size_t len, size_t *pos)
-{
-    word_t w;
-    size_t i = *pos;
-    while (i < len && is_blank(line[i])) {
-        i++;
+    char *w;
+    while (j->at < j->end && *j->at == '\0') {
+        j->at++;
     }
-    w.s = line + i;
-    while (i < len && !is_blank(line[i])) {
-        i++;
+    if (j->at == j->end) {
+        return NULL;
     }
-    w.len = (size_t)(line + i - w.s);
-    *pos = i;
+    w = j->at;
+    while (*j->at != '\0') {
+        j->at++;
+    }
     return w;
 }
 
-static int word_is(word_t w, const char *text)
+static int same(const char *a, const char *b)
 {
-    size_t i = 0;
-    while (i < w.len && text[i] == w.s[i]) {
-        i++;
+    while (*a != '\0' && *a == *b) {
+        a++;
+        b++;
     }
-    return i == w.len && text[i] == '\0';
+    return *a == *b;
 }
 
-/* How many characters of `w` come before its '=' (w.len when it has none). */
-static size_t before_eq(word_t w)
+/* The key (enum pt_setting_key) named `w`, or PT_KEY_NONE. */
+static unsigned key_of(const char *w)
 {
-    size_t i = 0;
-    while (i < w.len && w.s[i] != '=') {
-        i++;
+    unsigned k;
+    for (k = PT_KEY_THRESHOLD_COUNTS; k <= PT_KEY_POLARITY; k++) {
+        if (same(w, nth(key_names, k - 1u))) {
+            return k;
+        }
     }
-    return i;
+    return PT_KEY_NONE;
 }
 
-/* The index of the setting named `w`, or NKEYS. */
-static unsigned key_of(word_t w)
+/* Decimal with an optional '-' (only when `sign`), or NOT_A_NUMBER when `w` is none or outside int32
+ * (NOT_A_NUMBER itself, -2147483648, reads back as itself). */
+static int32_t parse_int(const char *w, int sign)
 {
-    unsigned k = 0;
-    while (k < NKEYS && !word_is(w, key_names[k])) {
-        k++;
-    }
-    return k;
-}
-
-/* Decimal (a leading '-' when `sign`) into *out; 0 when not a number or outside int32. */
-static int parse_int(word_t w, int sign, int32_t *out)
-{
-    size_t i = 0;
     uint32_t v = 0;
     uint32_t limit = 2147483647u;
-    int negative = sign && w.len > 0 && w.s[0] == '-';
-    if (negative) {
+    if (sign && *w == '-') {
         limit = 2147483648u;
-        i = 1;
+        w++;
     }
-    if (i == w.len) {
-        return 0;
+    if (*w == '\0') {
+        return NOT_A_NUMBER;
     }
-    for (; i < w.len; i++) {
-        uint32_t digit = (uint32_t)(unsigned char)w.s[i] - (uint32_t)'0';
+    for (; *w != '\0'; w++) {
+        uint32_t digit = (uint32_t)(unsigned char)*w - (uint32_t)'0';
         if (digit > 9u || v > 214748364u) {
-            return 0;
+            return NOT_A_NUMBER;
         }
         v = v * 10u + digit; /* at most 2147483649: no overflow */
         if (v > limit) {
-            return 0;
+            return NOT_A_NUMBER;
         }
     }
-    *out = !negative ? (int32_t)v : v == 0u ? 0 : -(int32_t)(v - 1u) - 1;
-    return 1;
+    return limit == 2147483647u ? (int32_t)v : v == 0u ? 0 : -(int32_t)(v - 1u) - 1;
 }
 
-/* --- answers ----------------------------------------------------------------------------------- */
+/* --- settings by key --------------------------------------------------------------------------- */
 
-static void emit_value(pt_emit_t *e, unsigned key, int32_t v)
+/* Where each key's field is in pt_settings_t, in enum pt_setting_key's order from 1. */
+static const uint8_t field_at[PT_KEY_POLARITY] = {
+    offsetof(pt_settings_t, threshold_counts), offsetof(pt_settings_t, hysteresis_counts),
+    offsetof(pt_settings_t, touch_debounce_frames), offsetof(pt_settings_t, release_debounce_frames),
+    offsetof(pt_settings_t, baseline_slow_shift), offsetof(pt_settings_t, baseline_fast_shift),
+    offsetof(pt_settings_t, baseline_period_frames), offsetof(pt_settings_t, stuck_timeout_frames),
+    offsetof(pt_settings_t, polarity),
+};
+
+#define IS_BYTE(k) ((k) >= PT_KEY_TOUCH_DEBOUNCE_FRAMES && (k) <= PT_KEY_BASELINE_FAST_SHIFT)
+
+static int32_t get(const pt_settings_t *s, unsigned k)
 {
-    if (key == K_POLARITY) {
+    const void *f = (const char *)s + field_at[k - 1u];
+    return k == PT_KEY_BASELINE_PERIOD_FRAMES ? *(const uint16_t *)f
+           : k == PT_KEY_POLARITY ? *(const int8_t *)f
+           : IS_BYTE(k) ? *(const uint8_t *)f : *(const int32_t *)f;
+}
+
+/* Writes `v` into key k's field. A value the field cannot hold becomes one pt_settings_problem() refuses
+ * for that key (a debounce 0, a shift 255, a period 0, a polarity 0); any value it holds is kept. */
+static void put(pt_settings_t *s, unsigned k, int32_t v)
+{
+    void *f = (char *)s + field_at[k - 1u];
+    if (k == PT_KEY_BASELINE_PERIOD_FRAMES) {
+        *(uint16_t *)f = (v < 0 || v > 65535) ? 0u : (uint16_t)v;
+    } else if (k == PT_KEY_POLARITY) {
+        *(int8_t *)f = (v < -128 || v > 127) ? 0 : (int8_t)v;
+    } else if (IS_BYTE(k)) {
+        *(uint8_t *)f = (v < 0 || v > 255) ? (k <= PT_KEY_RELEASE_DEBOUNCE_FRAMES ? 0u : 255u) : (uint8_t)v;
+    } else {
+        *(int32_t *)f = v;
+    }
+}
+
+/* ` key=value` (polarity as + or -). */
+static void pair(pt_emit_t *e, unsigned k, int32_t v)
+{
+    pt_emit_char(e, ' ');
+    pt_emit_str(e, nth(key_names, k - 1u));
+    pt_emit_char(e, '=');
+    if (k == PT_KEY_POLARITY) {
         pt_emit_char(e, v < 0 ? '-' : '+');
     } else {
         pt_emit_int(e, v);
     }
 }
 
-static void expand(const job_t *j, const char *t)
+/* --- answers ----------------------------------------------------------------------------------- */
+
+/* Begins an answer: `>ok ` or `>no `, then whom it is for (`get 3`, `set *`, `keep`, the word given,
+ * at most MAX_WORD characters). */
+static void head(const job_t *j, const char *kind)
 {
     pt_emit_t *e = j->p->out;
-    char c;
-    size_t i;
-    while ((c = *t++) != '\0') {
-        if (c >= 0x10 && c <= 0x18) {
-            unsigned k = c == 0x18 ? j->key : (unsigned)(c - 0x10);
-            emit_value(e, k, j->v[k]);
-            continue;
-        }
-        switch (c) {
-        case 1:
-            pt_emit_str(e, j->cmd);
-            break;
-        case 2:
-            if (j->ch == ALL_CHANNELS) {
-                pt_emit_char(e, '*');
-            } else {
-                pt_emit_int(e, j->ch);
-            }
-            break;
-        case 3:
-            for (i = 0; i < j->word.len && i < MAX_WORD; i++) {
-                char w = j->word.s[i];
-                pt_emit_char(e, (w > 0x20 && w < 0x7F) ? w : '?');
-            }
-            break;
-        case 4:
-            pt_emit_uint(e, (uint32_t)j->p->channels - 1u);
-            break;
-        case 5:
-            pt_emit_str(e, key_names[j->key]);
-            break;
-        case 6:
-            expand(j, j->why);
-            break;
-        case 7:
-            pt_emit_uint(e, j->p->size);
-            break;
-        case 8:
-            pt_emit_int(e, j->bad);
-            break;
-        default:
-            pt_emit_char(e, c);
-            break;
+    pt_emit_str(e, kind);
+    pt_emit_strn(e, j->cmd, MAX_WORD);
+    if (j->chw != NULL) {
+        pt_emit_char(e, ' ');
+        if (j->ch >= 0) {
+            pt_emit_uint(e, (uint32_t)j->ch);
+        } else {
+            pt_emit_strn(e, j->chw, MAX_WORD);
         }
     }
 }
 
-/* One whole answer line from a template. */
-static void say(const job_t *j, const char *t)
+/* `>no SUBJECT: [WORD: ]why`. */
+static void no(const job_t *j, const char *w, const char *why)
 {
-    pt_emit_begin(j->p->out);
-    expand(j, t);
+    pt_emit_t *e = j->p->out;
+    head(j, ">no ");
+    pt_emit_str(e, ": ");
+    if (w != NULL) {
+        pt_emit_strn(e, w, MAX_WORD);
+        pt_emit_str(e, ": ");
+    }
+    pt_emit_str(e, why);
+    pt_emit_end(e);
+}
+
+static void ok(const job_t *j)
+{
+    head(j, ">ok ");
     pt_emit_end(j->p->out);
-}
-
-/* --- the rules of a profile (processing/settings.py), in pt_settings_problem's order ------------- */
-
-static int out_of(int32_t v, int32_t lo, int32_t hi)
-{
-    return v < lo || v > hi;
-}
-
-/* Sets j->key and j->why to the first value of j->v that breaks the rules; 0 when none does. */
-static int problem(job_t *j)
-{
-    const int32_t *v = j->v;
-    int32_t period = v[K_PERIOD];
-    unsigned k;
-    j->why = NULL;
-    if (out_of(v[K_THRESHOLD], 1, 16777216L)) {
-        j->key = K_THRESHOLD;
-        j->why = "must be between 1 and 16777216, not " V_T;
-    } else if (v[K_HYSTERESIS] < 0) {
-        j->key = K_HYSTERESIS;
-        j->why = "must not be negative (" V_H ")";
-    } else if (v[K_HYSTERESIS] >= v[K_THRESHOLD]) {
-        j->key = K_HYSTERESIS;
-        j->why = V_H " must be below the threshold (" V_T "), or the key could never release";
-    } else {
-        for (k = K_TOUCH_DEBOUNCE; k <= K_FAST_SHIFT && j->why == NULL; k++) {
-            int debounce = k <= K_RELEASE_DEBOUNCE;
-            if (out_of(v[k], debounce ? 1 : 0, debounce ? 255 : 16)) {
-                j->key = k;
-                j->why = debounce ? "must be between 1 (react on the first frame) and 255, not " V_KEY
-                                  : "must be between 0 and 16, not " V_KEY;
-            }
-        }
-        if (j->why != NULL) {
-            return 1;
-        }
-        if (v[K_FAST_SHIFT] > v[K_SLOW_SHIFT]) {
-            j->key = K_FAST_SHIFT;
-            j->why = V_FAST " is slower than baseline_slow_shift (" V_SLOW
-                     "); the baseline must recover faster than it drifts";
-        } else if (out_of(period, 1, 256) || (period & (period - 1)) != 0) {
-            j->key = K_PERIOD;
-            j->why = "must be a power of two from 1 to 256, not " V_P;
-        } else if (v[K_STUCK] < 0) {
-            j->key = K_STUCK;
-            j->why = "must be 0 (never) or a positive frame count, not " V_X;
-        }
-    }
-    return j->why != NULL;
-}
-
-static void to_values(const pt_settings_t *s, int32_t v[NKEYS])
-{
-    v[K_THRESHOLD] = s->threshold_counts;
-    v[K_HYSTERESIS] = s->hysteresis_counts;
-    v[K_TOUCH_DEBOUNCE] = s->touch_debounce_frames;
-    v[K_RELEASE_DEBOUNCE] = s->release_debounce_frames;
-    v[K_SLOW_SHIFT] = s->baseline_slow_shift;
-    v[K_FAST_SHIFT] = s->baseline_fast_shift;
-    v[K_PERIOD] = s->baseline_period_frames;
-    v[K_STUCK] = s->stuck_timeout_frames;
-    v[K_POLARITY] = s->polarity < 0 ? -1 : 1;
-}
-
-/* Only for values that passed problem(): every one fits its field. */
-static void from_values(pt_settings_t *s, const int32_t v[NKEYS])
-{
-    s->threshold_counts = v[K_THRESHOLD];
-    s->hysteresis_counts = v[K_HYSTERESIS];
-    s->touch_debounce_frames = (uint8_t)v[K_TOUCH_DEBOUNCE];
-    s->release_debounce_frames = (uint8_t)v[K_RELEASE_DEBOUNCE];
-    s->baseline_slow_shift = (uint8_t)v[K_SLOW_SHIFT];
-    s->baseline_fast_shift = (uint8_t)v[K_FAST_SHIFT];
-    s->baseline_period_frames = (uint16_t)v[K_PERIOD];
-    s->stuck_timeout_frames = v[K_STUCK];
-    s->polarity = (int8_t)v[K_POLARITY];
 }
 
 /* --- commands ---------------------------------------------------------------------------------- */
 
-/* Reads the channel word into j->ch; answers and returns 0 when there is none or it is wrong. */
-static int channel_of(job_t *j, word_t arg)
-{
-    j->word = arg;
-    if (arg.len == 0) {
-        say(j, j->cmd[0] == 'g' ? ">no get: which channel? (get N, or get * for all)"
-                                : ">no set: which channel? (set N key=value ..., or set * key=value ...)");
-        return 0;
-    }
-    if (word_is(arg, "*")) {
-        j->ch = ALL_CHANNELS;
-        return 1;
-    }
-    if (!parse_int(arg, 0, &j->ch) || j->ch >= (int32_t)j->p->channels) {
-        say(j, ">no " A_CMD " " A_WORD ": no such channel (0 to " A_LAST ", or *)");
-        return 0;
-    }
-    return 1;
-}
-
-static void run_get(job_t *j, const char *line, size_t len, size_t pos)
+static void run_get(job_t *j)
 {
     pt_emit_t *e = j->p->out;
-    uint16_t c;
+    unsigned c;
     unsigned k;
-    if (!channel_of(j, next_word(line, len, &pos))) {
-        return;
-    }
-    if (next_word(line, len, &pos).len > 0) {
-        say(j, ">no get " A_CH ": one channel at a time (get N, or get * for all)");
-        return;
-    }
     for (c = 0; c < j->p->channels; c++) {
-        if (j->ch != ALL_CHANNELS && c != j->ch) {
-            continue;
+        if (j->ch < 0 || c == (unsigned)j->ch) {
+            pt_emit_str(e, ">val ");
+            pt_emit_uint(e, c);
+            for (k = PT_KEY_THRESHOLD_COUNTS; k <= PT_KEY_POLARITY; k++) {
+                pair(e, k, get(&j->p->settings[c], k));
+            }
+            pt_emit_end(e);
         }
-        to_values(&j->p->settings[c], j->v);
-        pt_emit_begin(e);
-        pt_emit_str(e, ">val ");
-        pt_emit_uint(e, c);
-        for (k = 0; k < NKEYS; k++) {
-            pt_emit_char(e, ' ');
-            pt_emit_str(e, key_names[k]);
-            pt_emit_char(e, '=');
-            emit_value(e, k, j->v[k]);
-        }
-        pt_emit_end(e);
     }
-    say(j, ">ok get " A_CH);
+    ok(j);
 }
 
-/* `set` from the pairs on: parse all, check all channels, then write. */
-static void run_set(job_t *j, const char *line, size_t len, size_t pos)
+/* `set` from the pairs on: read them all, check every channel asked, then write: all or none. */
+static void run_set(job_t *j)
 {
-    pt_emit_t *e = j->p->out;
-    int32_t given[NKEYS];
-    uint16_t have = 0;
-    uint16_t c;
-    size_t pairs;
-    word_t w;
+    pt_cmd_t *p = j->p;
+    pt_settings_t given;
+    pt_settings_t now;
+    uint8_t order[PT_KEY_POLARITY];
+    unsigned n = 0;
+    unsigned have = 0;
     unsigned k;
-    if (!channel_of(j, next_word(line, len, &pos))) {
+    unsigned pass;
+    unsigned c;
+    char *w;
+    char *v;
+    const char *why;
+    while ((w = next(j)) != NULL) {
+        for (v = w; *v != '\0' && *v != '='; v++) {
+        }
+        why = "not key=value";
+        k = PT_KEY_NONE;
+        if (*v != '\0') {
+            *v++ = '\0';
+            k = key_of(w);
+            why = k == PT_KEY_NONE ? "unknown setting" : ((have >> k) & 1u) != 0 ? "given twice" : NULL;
+        }
+        if (why != NULL) {
+            no(j, w, why);
+            return;
+        }
+        have |= 1u << k;
+        order[n++] = (uint8_t)k;
+        put(&given, k, k != PT_KEY_POLARITY ? parse_int(v, 1) : same(v, "+") ? 1 : same(v, "-") ? -1 : 0);
+    }
+    if (n == 0) {
+        no(j, NULL, "nothing to set");
         return;
     }
-    pairs = pos;
-    for (w = next_word(line, len, &pos); w.len > 0; w = next_word(line, len, &pos)) {
-        size_t eq = before_eq(w);
-        word_t value;
-        j->word = w;
-        if (eq == w.len) {
-            say(j, ">no set " A_CH ": " A_WORD ": not key=value");
-            return;
-        }
-        j->word.len = eq;
-        value.s = w.s + eq + 1;
-        value.len = w.len - eq - 1u;
-        k = key_of(j->word);
-        if (k == NKEYS) {
-            say(j, ">no set " A_CH ": " A_WORD ": unknown setting");
-            return;
-        }
-        if (have & (1u << k)) {
-            say(j, ">no set " A_CH ": " A_WORD ": given twice");
-            return;
-        }
-        if (k == K_POLARITY && (word_is(value, "+") || word_is(value, "-"))) {
-            given[k] = value.s[0] == '-' ? -1 : 1;
-        } else if (k == K_POLARITY || !parse_int(value, 1, &given[k])) {
-            j->key = k;
-            j->word = value;
-            say(j, k == K_POLARITY ? ">no set " A_CH ": " A_KEY ": must be + or -, not '" A_WORD "'"
-                                   : ">no set " A_CH ": " A_KEY ": must be a whole number that fits in 32 bits, "
-                                     "not '" A_WORD "'");
-            return;
-        }
-        have = (uint16_t)(have | (1u << k));
-    }
-    if (have == 0) {
-        say(j, ">no set " A_CH ": nothing to set (key=value ...)");
-        return;
-    }
-    for (pos = 0; pos < 2; pos++) { /* first check every channel asked, then write them: all or none */
-        for (c = 0; c < j->p->channels; c++) {
-            if (j->ch != ALL_CHANNELS && c != j->ch) {
+    for (pass = 0; pass < 2; pass++) {
+        for (c = 0; c < p->channels; c++) {
+            if (j->ch >= 0 && c != (unsigned)j->ch) {
                 continue;
             }
-            to_values(&j->p->settings[c], j->v);
-            for (k = 0; k < NKEYS; k++) {
-                if (have & (1u << k)) {
-                    j->v[k] = given[k];
-                }
+            for (k = PT_KEY_THRESHOLD_COUNTS; k <= PT_KEY_POLARITY; k++) {
+                put(pass ? &p->settings[c] : &now, k, get(((have >> k) & 1u) ? &given : &p->settings[c], k));
             }
-            if (pos == 1) {
-                from_values(&j->p->settings[c], j->v);
-                if (j->p->hooks->changed != NULL) {
-                    j->p->hooks->changed(j->p->ctx, c);
+            if (pass != 0) {
+                if (p->hooks->changed != NULL) {
+                    p->hooks->changed(p->ctx, (uint16_t)c);
                 }
-            } else if (problem(j)) {
-                j->bad = c;
-                say(j, j->ch == ALL_CHANNELS ? ">no set *: " A_KEY ": " A_WHY " (channel " A_BAD ")"
-                                             : ">no set " A_CH ": " A_KEY ": " A_WHY);
+            } else if ((k = (unsigned)pt_settings_problem(&now)) != PT_KEY_NONE) {
+                /* `>no set N: key: must be RULE`, and which channel for `set *` */
+                head(j, ">no ");
+                pt_emit_str(p->out, ": ");
+                pt_emit_str(p->out, nth(key_names, k - 1u));
+                pt_emit_str(p->out, ": must be ");
+                pt_emit_str(p->out, nth(rules, k - 1u));
+                if (j->ch < 0) {
+                    pt_emit_str(p->out, " (channel ");
+                    pt_emit_uint(p->out, c);
+                    pt_emit_char(p->out, ')');
+                }
+                pt_emit_end(p->out);
                 return;
             }
         }
     }
-    pt_emit_begin(e);
-    expand(j, ">ok set " A_CH);
-    for (w = next_word(line, len, &pairs); w.len > 0; w = next_word(line, len, &pairs)) {
-        w.len = before_eq(w);
-        k = key_of(w);
-        pt_emit_char(e, ' ');
-        pt_emit_str(e, key_names[k]);
-        pt_emit_char(e, '=');
-        emit_value(e, k, given[k]);
+    head(j, ">ok ");
+    for (k = 0; k < n; k++) {
+        pair(p->out, order[k], get(&given, order[k]));
     }
-    pt_emit_end(e);
+    pt_emit_end(p->out);
 }
 
-static void run_keep(job_t *j, const char *line, size_t len, size_t pos)
+/* Every `from` in [c, end) becomes `to`: the line's blanks (all spaces, see pt_cmd_feed) into word ends
+ * and back. */
+static void swap(char *c, const char *end, char from, char to)
 {
-    const pt_cmd_hooks_t *h = j->p->hooks;
-    if (next_word(line, len, &pos).len > 0) {
-        say(j, ">no keep: takes no words after it");
-    } else if (h->keep == NULL) {
-        say(j, ">no keep: this board cannot keep settings");
-    } else if ((j->why = h->keep(j->p->ctx)) != NULL) {
-        say(j, ">no keep: " A_WHY);
-    } else {
-        say(j, ">ok keep");
-    }
-}
-
-static void run(pt_cmd_t *p, const char *line, size_t len, const char *refusal)
-{
-    job_t j; /* fields set as they come into use (no memset: it would pull in newlib's) */
-    size_t pos = 0;
-    j.p = p;
-    j.cmd = "";
-    j.ch = 0;
-    j.bad = 0;
-    j.key = 0;
-    j.why = "";
-    j.word = next_word(line, len, &pos);
-    if (refusal != NULL) {
-        if (j.word.len == 0) {
-            j.word.s = "?";
-            j.word.len = 1;
+    for (; c < end; c++) {
+        if (*c == from) {
+            *c = to;
         }
-        say(&j, refusal);
-    } else if (j.word.len == 0) {
-        return; /* a blank line: nothing asked */
-    } else if (word_is(j.word, "?") && p->hooks->info != NULL) {
-        p->hooks->info(p->ctx);
-    } else if (word_is(j.word, "get") || word_is(j.word, "set")) {
-        j.cmd = j.word.s[0] == 'g' ? "get" : "set";
-        (j.cmd[0] == 'g' ? run_get : run_set)(&j, line, len, pos);
-    } else if (word_is(j.word, "keep")) {
-        run_keep(&j, line, len, pos);
-    } else if (p->hooks->other == NULL || !p->hooks->other(p->ctx, line, len)) {
-        say(&j, ">no " A_WORD ": unknown command");
     }
 }
 
-static const char not_ascii[] = ">no " A_WORD ": not ASCII text";
+/* Runs the line held in the buffer, or refuses it with `refusal`. */
+static void run(pt_cmd_t *p, const char *refusal)
+{
+    const pt_cmd_hooks_t *h = p->hooks;
+    job_t j;
+    const char *why = "unknown command";
+    int getset;
+    j.p = p;
+    j.at = p->buf;
+    j.end = p->buf + p->len;
+    *j.end = '\0';
+    swap(j.at, j.end, ' ', '\0');
+    j.chw = NULL;
+    j.ch = NO_CHANNEL;
+    j.cmd = next(&j);
+    if (refusal != NULL) {
+        if (j.cmd == NULL) {
+            j.cmd = "?";
+        }
+        why = refusal;
+    } else if (j.cmd == NULL) {
+        return; /* a blank line: nothing asked */
+    } else if (same(j.cmd, "?") && h->info != NULL) {
+        h->info(p->ctx);
+        return;
+    } else if ((getset = same(j.cmd, "get") || same(j.cmd, "set")) != 0 || same(j.cmd, "keep")) {
+        why = h->keep == NULL ? "cannot keep settings" : NULL;
+        if (getset) {
+            j.chw = next(&j);
+            why = "which channel?";
+            if (j.chw != NULL) {
+                j.ch = same(j.chw, "*") ? ALL_CHANNELS : parse_int(j.chw, 0);
+                if (j.ch < ALL_CHANNELS || j.ch >= (int32_t)p->channels) {
+                    j.ch = NO_CHANNEL;
+                }
+                why = j.ch == NO_CHANNEL ? "no such channel" : NULL;
+            }
+            if (why == NULL && j.cmd[0] == 's') {
+                run_set(&j);
+                return;
+            }
+        }
+        if (why == NULL && next(&j) != NULL) {
+            why = "too many words";
+        }
+        if (why == NULL && getset) {
+            run_get(&j);
+            return;
+        }
+        if (why == NULL && (why = h->keep(p->ctx)) == NULL) {
+            ok(&j);
+            return;
+        }
+    } else if (h->other != NULL) {
+        swap(p->buf, j.end, '\0', ' '); /* the line again, its blanks as spaces */
+        if (h->other(p->ctx, p->buf, p->len)) {
+            return;
+        }
+        swap(p->buf, j.end, ' ', '\0');
+    }
+    no(&j, NULL, why);
+}
 
 void pt_cmd_line(pt_cmd_t *p, const char *line, size_t len)
 {
-    size_t i;
-    for (i = 0; i < len && (is_blank(line[i]) || (line[i] >= 0x20 && line[i] < 0x7F)); i++) {
+    while (len-- > 0) {
+        pt_cmd_feed(p, (uint8_t)*line++);
     }
-    run(p, line, len, i < len ? not_ascii : NULL);
+    pt_cmd_feed(p, '\n');
 }
 
 void pt_cmd_feed(pt_cmd_t *p, uint8_t byte)
 {
     if (byte == '\n' || byte == '\r') {
-        run(p, p->buf, p->len,
-            p->overlong ? ">no " A_WORD ": line too long (over " A_SIZE " characters)"
-                        : p->binary ? not_ascii : NULL);
+        run(p, p->overlong ? "line too long" : p->binary ? "not ASCII text" : NULL);
         pt_cmd_reset(p);
         return;
     }
-    if (!is_blank((char)byte) && (byte < 0x20u || byte > 0x7Eu)) {
+    if (byte == '\t') {
+        byte = ' '; /* one kind of blank */
+    } else if (byte < 0x20u || byte > 0x7Eu) {
         p->binary = 1;
+        byte = '?'; /* kept printable: quoted as '?' in the refusal */
     }
-    if (p->len < p->size) {
+    if (p->len + 1u < p->size) { /* room for the NUL after the line */
         p->buf[p->len++] = (char)byte;
     } else {
         p->overlong = 1;

@@ -6,21 +6,23 @@
  *
  *   ?                        the info line again (without proto), through the `info` hook
  *   get N | get *            one `>val N key=value ...` line per channel, then `>ok get N`
- *   set N|* key=value ...    all pairs checked together against the profile's rules (the same rules and
- *                            nearly the same words as padtune's processing/settings.py), applied all or
- *                            none: `>ok set N key=value ...` (the values now in force, in the order
- *                            given) or `>no set N: key: reason` (the first problem; nothing changed)
+ *   set N|* key=value ...    all pairs checked together with pt_settings_problem() (the profile's rules,
+ *                            in its order), applied all or none: `>ok set N key=value ...` (the values
+ *                            now in force, in the order given) or `>no set N: key: must be RULE` (the
+ *                            first problem's key and its rule, e.g. `must be 1..255`; nothing changed)
  *   keep                     `>ok keep` or `>no keep: reason`, through the `keep` hook
  *   anything else            the `other` hook may take it (a board's own commands); if not,
  *                            `>no WORD: unknown command`
  *
- * Lines over the buffer's size, and lines holding bytes outside printable ASCII, are refused whole
- * with one `>no` line; empty and blank lines are ignored. Every command gets exactly one final `>ok` or
+ * Lines that do not fit the buffer (with a NUL after them), and lines holding bytes outside printable
+ * ASCII, are refused whole with one `>no` line (short reasons: `line too long`, `no such channel`,
+ * `unknown setting`, ...); empty and blank lines are ignored. Every command gets exactly one final `>ok` or
  * `>no` line (`?` answers with the info line only, as it always has).
  *
  * The settings are the application's RAM copy (`pt_settings_t`, pt_types.h): the same array the
- * detector reads, given to pt_cmd_init. `set` checks every value, writes the channel's entry only when
- * all of them pass, and calls the `changed` hook so the detector treats it as a live change
+ * detector reads, given to pt_cmd_init. At a line end the words become C strings in the line buffer
+ * (blanks turned into NULs). `set` checks every value, writes the channel's entry only when all of
+ * them pass, and calls the `changed` hook so the detector treats it as a live change
  * (pt_detect_settings_changed). C99, no malloc, no floating point; state in a caller-owned `pt_cmd_t`,
  * the line buffer caller-owned too; hooks const (placeable in flash).
  */
@@ -34,7 +36,8 @@
 #include "pt_types.h"
 
 /* A line buffer that holds the longest useful command (`set 511` with all nine keys at their widest
- * values is about 230 characters). Smaller buffers work; longer commands are then refused. */
+ * values is about 230 characters) and the NUL after it. Smaller buffers work; longer commands are then
+ * refused. */
 #define PT_CMD_LINE_BYTES 256u
 
 /* What the parser asks of the application. All hooks get the `ctx` given to pt_cmd_init. */
@@ -47,7 +50,8 @@ typedef struct {
     const char *(*keep)(void *ctx);
     /* Send the info line without proto (pt_emit_info(..., 0)). NULL hook: `?` is an unknown command. */
     void (*info)(void *ctx);
-    /* A line that is none of the above (`len` characters of printable ASCII, no line end). Return
+    /* A line that is none of the above (`len` characters of printable ASCII, tabs as spaces, no line
+     * end; a NUL follows them). Return
      * nonzero when the application took it (and answered as it likes); zero, or a NULL hook, gives
      * `>no WORD: unknown command`. */
     int (*other)(void *ctx, const char *line, size_t len);
@@ -69,7 +73,7 @@ typedef struct {
 
 /* Start a parser for a board of `channels` channels (1..1024) whose live settings are `settings`
  * (`channels` entries in RAM, the array the detector reads; `get` reads it, `set` writes it). `buf`
- * (`size` bytes, 8..65535; PT_CMD_LINE_BYTES is a good size) holds one line; `out` is the emitter the
+ * (`size` bytes, 8..65535; PT_CMD_LINE_BYTES is a good size) holds one line, `size` - 1 characters; `out` is the emitter the
  * answers go through. Nothing is copied: all four must outlive the parser. */
 void pt_cmd_init(pt_cmd_t *p, const pt_cmd_hooks_t *hooks, void *ctx, pt_emit_t *out,
                  pt_settings_t *settings, uint16_t channels, char *buf, uint16_t size);
@@ -77,14 +81,15 @@ void pt_cmd_init(pt_cmd_t *p, const pt_cmd_hooks_t *hooks, void *ctx, pt_emit_t 
 /* One received byte. Runs the command (and answers it) when the byte ends a line. Cost: about 15
  * cycles a byte on a Cortex-M0+; at a line end, a few thousand cycles to parse and check a command
  * (`set *` a few hundred more per channel), then the answer's characters through the emitter. Stack:
- * about 400 bytes at the deepest, plus the put-char function's. */
+ * about 270 bytes at the deepest, plus the put-char function's. Flash: the parser is about 2.2 KB. */
 void pt_cmd_feed(pt_cmd_t *p, uint8_t byte);
 
 /* Forget a partly received line (the host reconnected, the UART reported a framing error). */
 void pt_cmd_reset(pt_cmd_t *p);
 
 /* Run one whole line (no line end; `len` bytes) as if it had been received: for boards that frame
- * lines themselves (USB packets). The buffer limit does not apply; the line is not modified. */
+ * lines themselves (USB packets). Its bytes go through pt_cmd_feed() (and the line buffer, whose limit
+ * applies), then a line end; `line` itself is not modified. */
 void pt_cmd_line(pt_cmd_t *p, const char *line, size_t len);
 
 /* The wire name of a setting (`threshold_counts`, ..., `polarity`: enum pt_setting_key of

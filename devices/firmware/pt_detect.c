@@ -22,60 +22,44 @@
 
 #define ONE_FP 256 /* 1 << PT_FRAC_BITS */
 
-/* a / 2^k, truncated toward zero, for |a| < 2^63 (ALGORITHM.md's tdiv_pow2). */
-static int64_t tdiv_pow2(int64_t a, unsigned k)
+/* Kept out of line (GCC, Clang): inlined into their one caller they cost the Cortex-M0+ more flash than
+ * the call (fewer registers than live values: spills). Other compilers may inline as they like. */
+#if defined(__GNUC__)
+#define PT_OUTLINE __attribute__((noinline))
+#else
+#define PT_OUTLINE
+#endif
+
+/* a / 2^k, truncated toward zero, for |a| < 2^63 (ALGORITHM.md's tdiv_pow2): on the magnitude, one
+ * bit at a time (k <= 16, only at a baseline period's end), so no 64-bit shift helper is linked. */
+PT_OUTLINE static int64_t tdiv_pow2(int64_t a, unsigned k)
 {
     uint64_t mag = a < 0 ? (uint64_t)0 - (uint64_t)a : (uint64_t)a;
-    int64_t q = (int64_t)(mag >> k);
-    return a < 0 ? -q : q;
+    while (k-- > 0)
+        mag >>= 1;
+    return a < 0 ? -(int64_t)mag : (int64_t)mag;
 }
 
-/* A 40-bit signed value kept as its low 32 bits and the next 8 (two's complement): joined by a
- * multiplication, split through uint64_t (conversions to unsigned types are defined modulo 2^n). */
-static int64_t join40(uint32_t lo, uint8_t hi)
-{
-    int32_t h = hi >= 128u ? (int32_t)hi - 256 : (int32_t)hi;
-    return (int64_t)h * 4294967296LL + (int64_t)lo;
-}
-
-static uint32_t split40(int64_t v, uint8_t *hi)
-{
-    uint64_t u = (uint64_t)v;
-    *hi = (uint8_t)((u >> 32) & 0xFFu);
-    return (uint32_t)(u & 0xFFFFFFFFu);
-}
-
-/* baseline_fp stays within 256 x the readings' range (each update moves it toward a period mean), and
- * the period sum holds at most 256 readings: both fit 40 bits. */
-static int64_t get_base_fp(const pt_chan_t *c)
-{
-    return join40(c->base_lo, c->base_hi);
-}
-
-static void set_base_fp(pt_chan_t *c, int64_t bfp)
-{
-    c->base_lo = split40(bfp, &c->base_hi);
-}
-
+/* The period sum, 40 bits signed (at most 256 readings), kept as its low 32 bits and the next 8 (two's
+ * complement; step() adds a reading with carry): joined by a multiplication. */
 static int64_t get_acc(const pt_chan_t *c)
 {
-    return join40(c->acc_lo, c->acc_hi);
+    int32_t h = c->acc_hi >= 128u ? (int32_t)c->acc_hi - 256 : (int32_t)c->acc_hi;
+    return (int64_t)h * 4294967296LL + (int64_t)c->acc_lo;
 }
 
-static void set_acc(pt_chan_t *c, int64_t acc)
+/* baseline_fp = base * 256 + frac: the whole counts (floor) and the fraction 0..255. baseline_fp stays
+ * within 256 x the readings' range (each update moves it toward a period mean, never past it), so
+ * `base` fits int32. */
+static int64_t get_base_fp(const pt_chan_t *c)
 {
-    c->acc_lo = split40(acc, &c->acc_hi);
+    return (int64_t)c->base * ONE_FP + c->frac;
 }
 
-static void set_delta(pt_chan_t *c, int64_t delta, uint8_t *flags)
+static void set_base(pt_chan_t *c, int32_t reading)
 {
-    if (delta < 0) {
-        c->delta_mag = (uint32_t)((uint64_t)0 - (uint64_t)delta);
-        *flags = (uint8_t)(*flags | F_DNEG);
-    } else {
-        c->delta_mag = (uint32_t)delta;
-        *flags = (uint8_t)(*flags & ~F_DNEG);
-    }
+    c->base = reading;
+    c->frac = 0;
 }
 
 static uint8_t polarity_flag(const pt_settings_t *s)
@@ -116,8 +100,8 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
     d->frame = 0;
     for (c = 0; c < channels; c++) {
         pt_chan_t *ch = &chans[c];
-        ch->base_lo = 0;
-        ch->base_hi = 0;
+        ch->base = 0;
+        ch->frac = 0;
         ch->acc_lo = 0;
         ch->acc_hi = 0;
         ch->held = 0;
@@ -137,32 +121,44 @@ static int64_t mean_fp(int64_t acc, uint16_t period_frames)
     return acc;
 }
 
-/* Steps 1-4 of ALGORITHM.md for one channel; returns the event kind (0 for none). */
-static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_event_t *ev)
+/* Steps 1-4 of ALGORITHM.md for one channel; returns the event kind (0 for none). 32-bit arithmetic
+ * only: the delta is a sign (F_DNEG) and a magnitude up to 2^32 - 1, compared with the levels, which
+ * valid settings keep positive (threshold 1 .. 2^24, hysteresis 0 .. threshold - 1). */
+PT_OUTLINE static unsigned step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_event_t *ev)
 {
-    uint8_t kind = 0;
-    uint8_t f = ch->flags;
-    uint8_t st;
-    int64_t r = reading;
-    int64_t x;
-    int64_t delta;
+    unsigned kind = 0;
+    unsigned f = ch->flags;
+    unsigned st;
+    uint32_t mag;
+    int neg;
     if (f & F_PENDING) {
-        st = (uint8_t)(f & F_STATE);
-        ev->value = (st == PT_TOUCHED || st == PT_RELEASING) ? 1u : 0u;
-        set_base_fp(ch, r * ONE_FP);
-        f = (uint8_t)((f & ~(F_STATE | F_CLEAN | F_PENDING)) | PT_RELEASED);
+        ev->value = (f & F_STATE) >= PT_TOUCHED ? 1u : 0u; /* TOUCHED or RELEASING */
+        set_base(ch, reading);
+        f = ((f & ~(F_STATE | F_CLEAN | F_PENDING)) | PT_RELEASED);
         ch->count = 0;
         ch->held = 0;
-        set_acc(ch, 0);
+        ch->acc_lo = 0;
+        ch->acc_hi = 0;
         kind = PT_EV_REBASELINED;
     }
-    x = r * ONE_FP - get_base_fp(ch);
-    delta = tdiv_pow2((f & F_NEG) ? -x : x, PT_FRAC_BITS);
-    set_delta(ch, delta, &f);
-    st = (uint8_t)(f & F_STATE);
+    /* delta = tdiv_pow2(polarity * (reading * 256 - baseline_fp), 8), exactly, without 64 bits: with
+     * baseline_fp = base * 256 + frac and d = reading - base (|d| < 2^32, its magnitude exact modulo
+     * 2^32), the quotient is d, less one when d > 0 and frac > 0 (the fraction pulls it below the next
+     * whole count), times the polarity. */
+    neg = reading < ch->base;
+    mag = neg ? (uint32_t)ch->base - (uint32_t)reading : (uint32_t)reading - (uint32_t)ch->base;
+    if (!neg && mag != 0 && ch->frac != 0)
+        mag--;
+    if (f & F_NEG)
+        neg = !neg;
+    if (mag == 0)
+        neg = 0;
+    f = (neg ? f | F_DNEG : f & ~F_DNEG);
+    ch->delta_mag = mag;
+    st = f & F_STATE;
     if (st == PT_RELEASED || st == PT_CONFIRMING) {
-        if (delta >= s->threshold_counts) {
-            uint8_t count = (st == PT_CONFIRMING) ? (uint8_t)(ch->count + 1u) : (uint8_t)1u;
+        if (!neg && mag >= (uint32_t)s->threshold_counts) {
+            unsigned count = (st == PT_CONFIRMING) ? ch->count + 1u : 1u;
             if (count >= s->touch_debounce_frames) {
                 st = PT_TOUCHED;
                 ch->count = 0;
@@ -170,7 +166,7 @@ static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_e
                 kind = PT_EV_TOUCH;
             } else {
                 st = PT_CONFIRMING;
-                ch->count = count;
+                ch->count = (uint8_t)count;
             }
         } else {
             st = PT_RELEASED;
@@ -179,15 +175,15 @@ static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_e
     } else {
         if (ch->held != UINT32_MAX)
             ch->held++;
-        if (delta < (int64_t)s->threshold_counts - (int64_t)s->hysteresis_counts) {
-            uint8_t count = (st == PT_RELEASING) ? (uint8_t)(ch->count + 1u) : (uint8_t)1u;
+        if (neg || mag < (uint32_t)(s->threshold_counts - s->hysteresis_counts)) {
+            unsigned count = (st == PT_RELEASING) ? ch->count + 1u : 1u;
             if (count >= s->release_debounce_frames) {
                 st = PT_RELEASED;
                 ch->count = 0;
                 kind = PT_EV_RELEASE;
             } else {
                 st = PT_RELEASING;
-                ch->count = count;
+                ch->count = (uint8_t)count;
             }
         } else {
             st = PT_TOUCHED;
@@ -195,35 +191,48 @@ static uint8_t step(pt_chan_t *ch, const pt_settings_t *s, int32_t reading, pt_e
         }
         if (st != PT_RELEASED && s->stuck_timeout_frames > 0 && ch->held >= (uint32_t)s->stuck_timeout_frames) {
             kind = PT_EV_STUCK;
-            set_base_fp(ch, r * ONE_FP);
+            set_base(ch, reading);
             st = PT_RELEASED;
             ch->count = 0;
-            f = (uint8_t)(f & ~F_CLEAN);
+            f = (f & ~F_CLEAN);
         }
         if (kind == PT_EV_RELEASE || kind == PT_EV_STUCK)
             ev->held_frames = ch->held;
     }
-    f = (uint8_t)((f & ~F_STATE) | st);
-    if (st == PT_RELEASED)
-        set_acc(ch, get_acc(ch) + r);
-    else
-        f = (uint8_t)(f & ~F_CLEAN);
-    ch->flags = f;
-    ev->delta_counts = delta;
+    f = ((f & ~F_STATE) | st);
+    if (st == PT_RELEASED) {
+        /* the 40-bit period sum plus the reading sign-extended: carry and sign into the high byte */
+        uint32_t lo = ch->acc_lo + (uint32_t)reading;
+        ch->acc_hi = (uint8_t)(ch->acc_hi + (lo < ch->acc_lo ? 1u : 0u) + (reading < 0 ? 0xFFu : 0u));
+        ch->acc_lo = lo;
+    } else {
+        f = (f & ~F_CLEAN);
+    }
+    ch->flags = (uint8_t)f;
     return kind;
 }
 
+/* The channel's last delta, whole counts, positive toward touch. */
+PT_OUTLINE static int64_t delta_of(const pt_chan_t *ch)
+{
+    int64_t mag = (int64_t)ch->delta_mag;
+    return (ch->flags & F_DNEG) ? -mag : mag;
+}
+
 /* Step 5: the end of a baseline period. */
-static void period_end(pt_chan_t *ch, const pt_settings_t *s)
+PT_OUTLINE static void period_end(pt_chan_t *ch, const pt_settings_t *s)
 {
     if (ch->flags & F_CLEAN) {
         int64_t bfp = get_base_fp(ch);
         int64_t diff = mean_fp(get_acc(ch), s->baseline_period_frames) - bfp;
         int toward = (ch->flags & F_NEG) ? diff < 0 : diff > 0;
         unsigned shift = toward ? s->baseline_slow_shift : s->baseline_fast_shift;
-        set_base_fp(ch, bfp + tdiv_pow2(diff, shift));
+        bfp += tdiv_pow2(diff, shift);
+        ch->frac = (uint8_t)((uint64_t)bfp & 0xFFu);
+        ch->base = (int32_t)((bfp - ch->frac) / ONE_FP); /* exact: a multiple of 256 */
     }
-    set_acc(ch, 0);
+    ch->acc_lo = 0;
+    ch->acc_hi = 0;
     ch->flags = (uint8_t)(ch->flags | F_CLEAN);
 }
 
@@ -231,13 +240,13 @@ size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *ev
 {
     size_t n = 0;
     uint32_t clock = d->frame;
-    uint16_t c;
+    unsigned c;
     for (c = 0; c < d->channels; c++) {
         const pt_settings_t *s = &d->settings[c];
         pt_chan_t *ch = &d->chans[c];
         pt_event_t scratch;
         pt_event_t *ev = events != NULL ? &events[n] : &scratch; /* filled in place; kept if kind != 0 */
-        uint8_t kind;
+        unsigned kind;
         uint32_t mask = (uint32_t)s->baseline_period_frames - 1u;
         ev->held_frames = 0;
         ev->value = 0;
@@ -245,10 +254,9 @@ size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *ev
         if ((clock & mask) == mask)
             period_end(ch, s);
         if (kind != 0) {
-            ev->kind = kind;
-            ev->source = c;
-            if (kind == PT_EV_REBASELINED)
-                ev->delta_counts = 0;
+            ev->kind = (uint8_t)kind;
+            ev->source = (uint16_t)c;
+            ev->delta_counts = kind == PT_EV_REBASELINED ? 0 : delta_of(ch);
             n++;
         }
     }
@@ -284,15 +292,12 @@ uint8_t pt_detect_state(const pt_detector_t *d, uint16_t channel)
 
 int pt_detect_touched(const pt_detector_t *d, uint16_t channel)
 {
-    uint8_t st = (uint8_t)(d->chans[channel].flags & F_STATE);
-    return st == PT_TOUCHED || st == PT_RELEASING;
+    return (d->chans[channel].flags & F_STATE) >= PT_TOUCHED; /* TOUCHED or RELEASING */
 }
 
 int64_t pt_detect_delta(const pt_detector_t *d, uint16_t channel)
 {
-    const pt_chan_t *ch = &d->chans[channel];
-    int64_t mag = (int64_t)ch->delta_mag;
-    return (ch->flags & F_DNEG) ? -mag : mag;
+    return delta_of(&d->chans[channel]);
 }
 
 int64_t pt_detect_baseline_fp(const pt_detector_t *d, uint16_t channel)

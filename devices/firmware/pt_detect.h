@@ -1,8 +1,8 @@
 /* pt_detect.h: padtune's per-channel touch detector (processing/ALGORITHM.md, version 1), in C99.
  *
  * Bit for bit the detector padtune runs on the host: baseline in fixed point, polarity, touch and release
- * debounce, hysteresis, stuck timeout, re-baseline on demand. Integers only (int64_t for the few
- * intermediate values that need it), no floating point, no malloc, no globals: every byte of state is in
+ * debounce, hysteresis, stuck timeout, re-baseline on demand. Integers only (a frame in 32-bit arithmetic;
+ * int64_t only at a baseline period's end and in the event's delta), no floating point, no malloc, no globals: every byte of state is in
  * structs the caller owns, so several detectors can run side by side (one per sensor block, say) and each
  * call touches only the instance it is given. Functions on one instance must not run concurrently (call
  * pt_detect_rebaseline() from an interrupt only if it cannot preempt pt_detect_frame()).
@@ -51,14 +51,15 @@ typedef struct pt_event {
     uint8_t kind;         /* enum pt_event_kind */
 } pt_event_t;
 
-/* One channel's state: 20 bytes. Opaque: read it with the accessors below. Fields hold 40-bit values
- * split in two (baseline and period sum) so that no int64_t sits in RAM per channel. */
+/* One channel's state: 20 bytes. Opaque: read it with the accessors below. The baseline is kept as
+ * whole counts and a fraction, the 40-bit period sum split in two, so that no int64_t sits in RAM per
+ * channel and a frame needs no 64-bit shift. */
 typedef struct pt_chan {
-    uint32_t base_lo;    /* baseline_fp (counts * 256), low 32 bits */
+    int32_t base;        /* baseline_fp (counts * 256) / 256, rounded down: whole counts */
     uint32_t acc_lo;     /* sum of the period's released readings, low 32 bits */
     uint32_t held;       /* frames since the touch was reported (saturates at 2^32-1) */
     uint32_t delta_mag;  /* |delta| of the last frame (up to 2^32-1 for readings at the int32 limits) */
-    uint8_t base_hi;     /* baseline_fp, bits 32..39 (two's complement of the 40-bit value) */
+    uint8_t frac;        /* baseline_fp mod 256: the fraction, 0..255 */
     uint8_t acc_hi;      /* period sum, bits 32..39 (two's complement of the 40-bit sum) */
     uint8_t count;       /* frames counted toward the pending touch or release */
     uint8_t flags;       /* state (2 bits), clean, pending, running polarity, sign of delta */
@@ -87,9 +88,10 @@ void pt_detect_init(pt_detector_t *d, const pt_settings_t *settings, pt_chan_t *
  * in channel order, to `events` (room for `channels` entries: a channel reports at most one event per
  * frame; entries past the returned count are used as scratch) and returns how many it wrote; `events`
  * may be NULL when the caller only reads states.
- * Neither array is kept. Cost: on a Cortex-M0+ roughly 100-200 cycles per channel and frame when
- * nothing happens (64-bit additions and compares, no division; an estimate from the compiled code, not
- * measured on silicon), a little more at a baseline period's end; 1.3 KB of flash with its helpers. */
+ * Neither array is kept. Cost: on a Cortex-M0+ roughly 80-120 cycles per channel and frame when
+ * nothing happens (32-bit arithmetic, no division; an estimate from the compiled code, not measured on
+ * silicon), about 150 more at a baseline period's end; about 120 B of stack. The whole detector is
+ * 1088 B of flash and needs no libgcc helper. */
 size_t pt_detect_frame(pt_detector_t *d, const int32_t *readings, pt_event_t *events);
 
 /* Take channel `channel`'s next reading as its baseline (ALGORITHM.md, "Re-baseline triggers"), or every

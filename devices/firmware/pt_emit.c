@@ -1,42 +1,26 @@
-/* pt_emit: protocol v1 lines written a character at a time, the CRC kept as they go (see pt_emit.h). */
+/* pt_emit: protocol v1 lines written a character at a time, the CRC kept as they go (see pt_emit.h).
+ *
+ * Written for flash: the CRC bit by bit (no table), one number printer for readings, counts and the
+ * rate's decimals (no table of powers of ten, no division: the M0+ has none), hex digits computed. */
 #include "pt_emit.h"
-
-/* CRC-16/CCITT-FALSE four bits at a time: 16 entries (32 bytes of flash) instead of a 512-byte table,
- * two lookups per byte instead of eight shift-and-test steps. */
-static const uint16_t crc_nibble[16] = {
-    0x0000, 0x1021, 0x2042, 0x3063, 0x4084, 0x50A5, 0x60C6, 0x70E7,
-    0x8108, 0x9129, 0xA14A, 0xB16B, 0xC18C, 0xD1AD, 0xE1CE, 0xF1EF,
-};
-
-/* Powers of ten for printing without division (the M0+ has no divide instruction). */
-static const uint32_t ten_power[9] = {
-    1000000000u, 100000000u, 10000000u, 1000000u, 100000u, 10000u, 1000u, 100u, 10u,
-};
-
-static const char hex_digit[16] = {
-    '0', '1', '2', '3', '4', '5', '6', '7', '8', '9', 'A', 'B', 'C', 'D', 'E', 'F',
-};
 
 uint16_t pt_crc16_step(uint16_t crc, uint8_t byte)
 {
-    crc = (uint16_t)((crc << 4) ^ crc_nibble[((crc >> 12) ^ (byte >> 4)) & 0x0Fu]);
-    crc = (uint16_t)((crc << 4) ^ crc_nibble[((crc >> 12) ^ byte) & 0x0Fu]);
-    return crc;
-}
-
-static int is_hex(char c)
-{
-    return (c >= '0' && c <= '9') || (c >= 'A' && c <= 'F') || (c >= 'a' && c <= 'f');
+    unsigned i;
+    unsigned c = crc ^ ((unsigned)byte << 8);
+    for (i = 0; i < 8; i++) {
+        c = (c & 0x8000u) ? (c << 1) ^ 0x1021u : c << 1;
+    }
+    return (uint16_t)c;
 }
 
 void pt_emit_init(pt_emit_t *e, pt_put_fn put, void *ctx, int checksum)
 {
     e->put = put;
     e->ctx = ctx;
-    e->crc = 0xFFFFu;
     e->seq = 0;
     e->checksum = checksum ? 1u : 0u;
-    e->tail = 0;
+    pt_emit_begin(e);
 }
 
 void pt_emit_set_seq(pt_emit_t *e, uint16_t seq)
@@ -52,22 +36,18 @@ void pt_emit_begin(pt_emit_t *e)
 
 void pt_emit_char(pt_emit_t *e, char c)
 {
+    uint8_t t = e->tail;
     e->crc = pt_crc16_step(e->crc, (uint8_t)c);
-    if (c == '*') {
-        e->tail = 1;
-    } else if (e->tail >= 1 && e->tail < 5 && is_hex(c)) {
-        e->tail++;
-    } else {
-        e->tail = 0;
-    }
+    /* how much of a checksum-like `*HHHH` ends the line so far (only matters without checksums) */
+    e->tail = c == '*' ? 1u
+              : (t >= 1u && t < 5u && ((c >= '0' && c <= '9') || ((c | 0x20) >= 'a' && (c | 0x20) <= 'f')))
+                ? (uint8_t)(t + 1u) : 0u;
     e->put(e->ctx, c);
 }
 
 void pt_emit_str(pt_emit_t *e, const char *s)
 {
-    while (*s != '\0') {
-        pt_emit_char(e, *s++);
-    }
+    pt_emit_strn(e, s, (size_t)-1);
 }
 
 void pt_emit_strn(pt_emit_t *e, const char *s, size_t n)
@@ -77,50 +57,71 @@ void pt_emit_strn(pt_emit_t *e, const char *s, size_t n)
     }
 }
 
+/* v in decimal; `frac` > 0 puts a decimal point before the last `frac` digits (leading zero kept,
+ * trailing zeros of the fraction dropped with the point when nothing is left). Digits are found by
+ * dividing by ten with shifts and adds (exact for every uint32: Hacker's Delight, divu10) into a
+ * 10-byte buffer, then sent most significant first. */
+static void number(pt_emit_t *e, uint32_t v, unsigned frac)
+{
+    char digit[10];
+    unsigned n = 0;
+    unsigned skip = 0;
+    do {
+        uint32_t q = (v >> 1) + (v >> 2);
+        uint32_t r;
+        q += q >> 4;
+        q += q >> 8;
+        q += q >> 16;
+        q >>= 3;
+        r = v - q * 10u;
+        if (r > 9u) {
+            q++;
+            r -= 10u;
+        }
+        digit[n++] = (char)('0' + r);
+        v = q;
+    } while (v != 0 || n <= frac);
+    while (skip < frac && digit[skip] == '0') {
+        skip++;
+    }
+    while (n > skip) {
+        if (n == frac) {
+            pt_emit_char(e, '.');
+        }
+        pt_emit_char(e, digit[--n]);
+    }
+}
+
 void pt_emit_uint(pt_emit_t *e, uint32_t v)
 {
-    unsigned i;
-    int started = 0;
-    for (i = 0; i < 9; i++) {
-        char digit = '0';
-        while (v >= ten_power[i]) {
-            v -= ten_power[i];
-            digit++;
-        }
-        if (started || digit != '0') {
-            pt_emit_char(e, digit);
-            started = 1;
-        }
-    }
-    pt_emit_char(e, (char)('0' + v));
+    number(e, v, 0);
 }
 
 void pt_emit_int(pt_emit_t *e, int32_t v)
 {
+    uint32_t m = (uint32_t)v; /* modulo 2^32: defined for INT32_MIN too */
     if (v < 0) {
         pt_emit_char(e, '-');
-        /* -(v + 1) + 1 in unsigned arithmetic: INT32_MIN has no positive int32 */
-        pt_emit_uint(e, (uint32_t)(-(v + 1)) + 1u);
-    } else {
-        pt_emit_uint(e, (uint32_t)v);
+        m = 0u - m;
     }
+    number(e, m, 0);
 }
 
 void pt_emit_end(pt_emit_t *e)
 {
+    unsigned i;
     if (e->checksum) {
         uint16_t crc = e->crc;
         e->put(e->ctx, '*');
-        e->put(e->ctx, hex_digit[(crc >> 12) & 0x0Fu]);
-        e->put(e->ctx, hex_digit[(crc >> 8) & 0x0Fu]);
-        e->put(e->ctx, hex_digit[(crc >> 4) & 0x0Fu]);
-        e->put(e->ctx, hex_digit[crc & 0x0Fu]);
+        for (i = 12; i < 16; i -= 4) { /* 12, 8, 4, 0: unsigned wraps past 0 and stops the loop */
+            unsigned h = (crc >> i) & 0x0Fu;
+            e->put(e->ctx, (char)(h < 10u ? '0' + h : 'A' - 10u + h));
+        }
     } else if (e->tail == 5) {
         e->put(e->ctx, ' ');
     }
     e->put(e->ctx, '\n');
-    e->crc = 0xFFFFu;
-    e->tail = 0;
+    pt_emit_begin(e);
 }
 
 /* ` key=text`, or nothing when there is no text. `key` holds the blank and the `=`. */
@@ -132,81 +133,39 @@ static void text_key(pt_emit_t *e, const char *key, const char *text)
     }
 }
 
-static void rate(pt_emit_t *e, uint32_t rate_mhz)
+/* ` key=a,b,c`: `n` names, or `n` polarity signs when `names` is NULL. */
+static void list(pt_emit_t *e, const char *key, const char *const *names, const int8_t *pol, unsigned n)
 {
-    uint32_t whole = 0;
-    uint32_t milli = rate_mhz;
-    unsigned i;
-    while (milli >= 1000000u) { /* in big steps first: at most 4294 rounds otherwise */
-        milli -= 1000000u;
-        whole += 1000u;
-    }
-    while (milli >= 1000u) {
-        milli -= 1000u;
-        whole++;
-    }
-    pt_emit_uint(e, whole);
-    if (milli != 0) {
-        pt_emit_char(e, '.');
-        for (i = 7; i < 9 && milli != 0; i++) { /* 100, 10: the fraction's digits, no trailing zeros */
-            char digit = '0';
-            while (milli >= ten_power[i]) {
-                milli -= ten_power[i];
-                digit++;
-            }
-            pt_emit_char(e, digit);
-        }
-        if (milli != 0) {
-            pt_emit_char(e, (char)('0' + milli));
-        }
-    }
-}
-
-static void polarity(pt_emit_t *e, const int8_t *pol, uint16_t channels)
-{
-    uint16_t c;
-    int same = 1;
-    for (c = 1; c < channels; c++) {
-        if ((pol[c] < 0) != (pol[0] < 0)) {
-            same = 0;
-        }
-    }
-    pt_emit_str(e, " polarity=");
-    for (c = 0; c < (same ? 1u : channels); c++) {
-        if (c > 0) {
-            pt_emit_char(e, ',');
-        }
-        pt_emit_char(e, pol[c] < 0 ? '-' : '+');
+    unsigned c;
+    pt_emit_str(e, key);
+    for (c = 0; c < n; c++) {
+        text_key(e, c > 0 ? "," : "", names != NULL ? names[c] : pol[c] < 0 ? "-" : "+");
     }
 }
 
 void pt_emit_info(pt_emit_t *e, const pt_info_t *info, int announce)
 {
-    uint16_t c;
-    uint16_t n = info->channels;
-    pt_emit_begin(e);
+    unsigned c;
+    unsigned n = info->channels;
+    const int8_t *pol = info->polarity;
     pt_emit_str(e, announce ? "! proto=1" : "!");
     text_key(e, " board=", info->board);
     if (n != 0) {
         pt_emit_str(e, " channels=");
-        pt_emit_uint(e, n);
+        number(e, n, 0);
     }
     if (info->rate_mhz != 0) {
         pt_emit_str(e, " rate=");
-        rate(e, info->rate_mhz);
+        number(e, info->rate_mhz, 3);
     }
     if (info->names != NULL && n != 0) {
-        pt_emit_str(e, " names=");
-        for (c = 0; c < n; c++) {
-            if (c > 0) {
-                pt_emit_char(e, ',');
-            }
-            pt_emit_str(e, info->names[c]);
-        }
+        list(e, " names=", info->names, NULL, n);
     }
     text_key(e, " method=", info->method);
-    if (info->polarity != NULL && n != 0) {
-        polarity(e, info->polarity, n);
+    if (pol != NULL && n != 0) {
+        for (c = 1; c < n && (pol[c] < 0) == (pol[0] < 0); c++) {
+        }
+        list(e, " polarity=", NULL, pol, c == n ? 1u : n); /* all agree: one sign */
     }
     text_key(e, " fw=", info->fw);
     text_key(e, " settings=", info->settings ? "1" : NULL);
@@ -216,9 +175,7 @@ void pt_emit_info(pt_emit_t *e, const pt_info_t *info, int announce)
 
 void pt_emit_comment(pt_emit_t *e, const char *text)
 {
-    pt_emit_begin(e);
-    pt_emit_char(e, '#');
-    pt_emit_char(e, ' ');
+    pt_emit_str(e, "# ");
     while (*text != '\0') {
         char c = *text++;
         pt_emit_char(e, (c >= 0x20 && c < 0x7F) ? c : (c == '\t' ? ' ' : '?'));
@@ -229,9 +186,8 @@ void pt_emit_comment(pt_emit_t *e, const char *text)
 void pt_emit_frame(pt_emit_t *e, const int32_t *readings, uint16_t count, const uint8_t *states)
 {
     uint16_t c;
-    pt_emit_begin(e);
     pt_emit_char(e, '@');
-    pt_emit_uint(e, e->seq);
+    number(e, e->seq++, 0);
     for (c = 0; c < count; c++) {
         pt_emit_char(e, ' ');
         pt_emit_int(e, readings[c]);
@@ -243,5 +199,4 @@ void pt_emit_frame(pt_emit_t *e, const int32_t *readings, uint16_t count, const 
         }
     }
     pt_emit_end(e);
-    e->seq++;
 }

@@ -5,8 +5,8 @@
  * register, a ring buffer, a USB CDC packet). Nothing is buffered: the line checksum (CRC-16/CCITT-FALSE)
  * is updated one character at a time as each character goes out, and `*HHHH` is appended at the end.
  *
- * C99, no malloc, no floating point, no division (numbers are printed by subtracting powers of ten:
- * a Cortex-M0+ has no divide instruction). All state lives in a caller-owned `pt_emit_t`; one
+ * C99, no malloc, no floating point, no division (numbers are printed by dividing by ten with shifts
+ * and adds: a Cortex-M0+ has no divide instruction), no table: 1110 B of flash on a Cortex-M0+. All state lives in a caller-owned `pt_emit_t`; one
  * instance per output port; instances never share anything, so each is re-entrant on its own.
  * A line must be finished before another starts on the same instance: call the emitter from one
  * context (the main loop), never from an interrupt that could cut into a line.
@@ -70,9 +70,9 @@ void pt_emit_comment(pt_emit_t *e, const char *text);
 
 /* One sequenced frame `@seq v0 v1 ...`, then the sequence number counts on. `states` (may be NULL)
  * adds the state field `;ddd` (one PT_STATE_* per channel, 0..3; anything above 3 is sent as 0 -
- * never garble a frame). `count` is 1..512 readings. Cost on a Cortex-M0+: about 30 cycles per
- * character (the CRC by nibble table), about 10 more per digit printed, plus the put-char function:
- * a 5-digit reading is 6 characters. */
+ * never garble a frame). `count` is 1..512 readings. Cost on a Cortex-M0+: about 70 cycles per
+ * character (the CRC bit by bit), about 25 more per digit printed, plus the put-char function: a
+ * 5-digit reading is 6 characters. Stack: about 130 bytes, plus the put-char function's. */
 void pt_emit_frame(pt_emit_t *e, const int32_t *readings, uint16_t count, const uint8_t *states);
 
 /* Building a line of your own (the answer lines of section 7 are made so): begin, then any mix of
@@ -90,7 +90,7 @@ void pt_emit_strn(pt_emit_t *e, const char *s, size_t n);
 void pt_emit_int(pt_emit_t *e, int32_t v);
 /* An unsigned decimal number (0..4294967295), no leading zeros. */
 void pt_emit_uint(pt_emit_t *e, uint32_t v);
-/* Ends the line: `*HHHH` when checksums are on; without them, a line that happens to end in `*` and
+/* Ends the line (and readies the next: pt_emit_begin() is then optional): `*HHHH` when checksums are on; without them, a line that happens to end in `*` and
  * four hex digits gets a trailing space first (the host would read it as a checksum; section 2). */
 void pt_emit_end(pt_emit_t *e);
 

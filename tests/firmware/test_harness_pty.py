@@ -14,6 +14,7 @@ import serial
 
 from processing.profile import load_profile, profile_for, save_profile
 from processing.settings import ChannelSettings
+from protocol.command_client import run_commands
 from protocol.decoder import Decoder
 from protocol.events import FrameBlock
 from tests.firmware import c_build
@@ -169,6 +170,32 @@ def test_padtune_pull_and_push_keep_against_the_c_board(tmp_path):
     finally:
         board.stop()
     assert [line.split()[0] for line in flash.read_text().splitlines()] == ["70", "70", "70"]
+
+
+def test_the_host_shows_the_c_boards_reasons_as_given(tmp_path):
+    """The board's own short reasons reach the user word for word: padtune's command client over the
+    pseudo-terminal (as the live screen and `padtune pull` / `push` use it), and `padtune push --keep`
+    against a board whose storage fails."""
+    board = HarnessPty("--channels", "2", "--rate", "50", "--keep-file", str(tmp_path / "gone" / "flash"))
+    try:
+        with serial.Serial(board.path, 115200, timeout=0.05) as port:
+            decoder = Decoder()
+            results = run_commands(lambda line: port.write(line) == len(line),
+                                   lambda: decoder.feed(port.read(port.in_waiting or 1), time.monotonic()),
+                                   [b"set 1 hysteresis_counts=100\n", b"set * touch_debounce_frames=300\n",
+                                    b"get 2\n", b"set 0 threshold_counts=64\n"], timeout_s=WAIT_S)
+        assert [r.describe() for r in results] == [
+            "set 1 hysteresis_counts=100: refused: hysteresis_counts: must be 0..threshold_counts-1",
+            "set * touch_debounce_frames=300: refused: touch_debounce_frames: must be 1..255 (channel 0)",
+            "get 2: refused: no such channel",
+            "set 0 threshold_counts=64: applied"]
+        profile = tmp_path / "board.toml"
+        save_profile(profile_for(2, ("a", "b"), board="harness", polarity=(1, 1), rate_hz=50.0), profile)
+        pushed = padtune("push", str(profile), board.path, "--keep", timeout=60)
+    finally:
+        board.stop()
+    assert pushed.returncode == 1
+    assert "harness: keep: refused: storage cannot be written" in pushed.stdout, pushed.stdout
 
 
 def test_the_host_presses_a_simulated_key_by_name_or_number():
