@@ -352,7 +352,8 @@ def test_the_porting_guides_main_loop_runs_as_a_board(tmp_path):
 
     events, answers, frame_lines = board(b"set 2 threshold_counts=300 hysteresis_counts=40\nkeep\nget 2\n")
     info = next(e for e in events if isinstance(e, BoardInfo))
-    assert info.names == profile.names and info.proto == 1 and info.rate_hz == 100
+    assert info.names == profile.names and info.proto == 1
+    assert info.rate_hz == profile.rate_hz and info.board == profile.board  # PADTUNE_RATE_MHZ, PADTUNE_BOARD
     assert info.fields["settings"] == "1" and info.fields["states"] == "1"
     assert answers[:2] == [b">ok set 2 threshold_counts=300 hysteresis_counts=40", b">ok keep"]
     assert answers[2].startswith(b">val 2 threshold_counts=300 hysteresis_counts=40 ")
