@@ -7,9 +7,9 @@ multiply, shift and division; libc's string functions), as a firmware image call
 part's figure is what its own object puts in that image (from the linker's map); the helpers are a row
 of their own; the detector, emitter and command parser are also linked alone together (helpers
 included) against the 3 KB goal. Flash is `.text + .rodata + .data`, static RAM `.data + .bss` (the
-library has none: all state is in the caller's structs), stack the part's largest function frame
-(`-fstack-usage`). RAM per channel and the fixed part come from `sizeof` of the library's types on the
-target (every `pt_*_t` in the headers).
+library has none: all state is in the caller's structs), stack the deepest call chain into the part
+(gcc's frame sizes and call graph, `-fcallgraph-info=su`). RAM per channel and the fixed part come
+from `sizeof` of the library's types on the target (every `pt_*_t` in the headers).
 
 Parts are named by file (`pt_detect.c` the detector, `pt_groups.c` groups and sliders, `pt_emit.c` the
 emitter, `pt_cmd.c` the command parser); a file not known here is listed by its own name.
@@ -99,13 +99,59 @@ def total(parts: dict[str, tuple[int, int]]) -> tuple[int, int]:
     return sum(f for f, _ in parts.values()), sum(r for _, r in parts.values())
 
 
-def stack_bytes(su: Path) -> int:
-    """The largest stack frame of one function of the part (gcc -fstack-usage): a call into the part
-    needs that plus what its callees in the library need (pt_sliders_frame calls pt_slider_position)."""
-    if not su.exists():
-        return 0
-    return max((int(line.split("\t")[1]) for line in su.read_text().splitlines() if line.count("\t") >= 2),
-               default=0)
+_NODE = re.compile(r'node: \{ title: "([^"]+)" label: "([^"\\]+)\\n[^"]*?(?:\\n(\d+) bytes[^"]*)?"')
+_EDGE = re.compile(r'edge: \{ sourcename: "([^"]+)" targetname: "([^"]+)"')
+INDIRECT = "__indirect_call"
+
+
+def call_graph(ci_files: list[Path]) -> tuple[dict[str, int], dict[str, set[str]], dict[str, Path]]:
+    """Every function's own frame, its callees and its file, from gcc's -fcallgraph-info=su files (one
+    per source; a call into another file names the function, which the other file defines)."""
+    frames: dict[str, int] = {}
+    calls: dict[str, set[str]] = {}
+    home: dict[str, Path] = {}
+    for ci in ci_files:
+        text = ci.read_text()
+        for title, _name, size in _NODE.findall(text):
+            if size:
+                frames[title] = int(size)
+                home[title] = ci
+        for source, target in _EDGE.findall(text):
+            calls.setdefault(source, set()).add(target)
+    return frames, calls, home
+
+
+def deepest_stack(frames: dict[str, int], calls: dict[str, set[str]], start: str) -> tuple[int, bool]:
+    """The stack a call of `start` needs at its deepest (its frame plus its deepest callee's, through
+    every file), and whether a path calls through a function pointer (the caller's callbacks: put-char,
+    hooks; their own stack comes on top)."""
+    memo: dict[str, tuple[int, bool]] = {}
+
+    def depth(fn: str, seen: frozenset[str]) -> tuple[int, bool]:
+        if fn == INDIRECT:
+            return 0, True
+        if fn in memo:
+            return memo[fn]
+        if fn in seen:  # recursion: the library has none, and a bound could not be given
+            raise ValueError(f"{fn} calls itself: no stack bound")
+        best, indirect = 0, False
+        for callee in calls.get(fn, ()):
+            d, i = depth(callee, seen | {fn})
+            best, indirect = max(best, d), indirect or i
+        memo[fn] = (frames.get(fn, 0) + best, indirect)
+        return memo[fn]
+
+    return depth(start, frozenset())
+
+
+def stack_bytes(part: Path, frames: dict[str, int], calls: dict[str, set[str]], home: dict[str, Path]) -> str:
+    """The deepest stack a call into the part needs (gcc's own frame sizes along the deepest call chain,
+    into the other parts it calls), `+cb` when a chain goes through the caller's callbacks."""
+    depths = [deepest_stack(frames, calls, fn) for fn, ci in home.items() if ci == part]
+    if not depths:
+        return "0"
+    deepest = max(d for d, _ in depths)
+    return f"{deepest}{'+cb' if any(i for _, i in depths) else ''}"
 
 
 def type_sizes(headers: list[Path], work: Path) -> dict[str, int]:
@@ -140,19 +186,23 @@ def main() -> int:
         objs = {}
         for src in sources:
             objs[src.name] = work / (src.stem + ".o")
-            run([CC, *CFLAGS, "-fstack-usage", f"-I{HERE}", "-c", str(src), "-o", str(objs[src.name])], work)
+            run([CC, *CFLAGS, "-fcallgraph-info=su", f"-I{HERE}", "-c", str(src), "-o", str(objs[src.name])],
+                work)
+        graph = call_graph([obj.with_suffix(".ci") for obj in objs.values()])
         version = run([CC, "--version"], work).splitlines()[0]
         print(f"padtune firmware library on a Cortex-M0+ ({version}; -Os -mcpu=cortex-m0plus -mthumb)")
-        print(f"{'part':<46}{'flash B':>9}{'static RAM B':>14}{'stack B':>9}")
+        print(f"{'part':<46}{'flash B':>9}{'static RAM B':>14}{'stack B':>9}  (deepest call chain)")
         every = list(objs.values())
         parts = link(every, every, work, "all")
         for name, obj in objs.items():
             flash, ram = parts.get(obj.name, (0, 0))
             label = f"{PART_NAMES.get(name, name[:-2])} ({name})"
-            print(f"{label:<46}{flash:>9}{ram:>14}{stack_bytes(obj.with_suffix('.su')):>9}")
+            print(f"{label:<46}{flash:>9}{ram:>14}{stack_bytes(obj.with_suffix('.ci'), *graph):>9}")
         helpers = [parts.get(k, (0, 0)) for k in ("libgcc", "libc")]
         flash, ram = sum(f for f, _ in helpers), sum(r for _, r in helpers)
         print(f"{'helpers (libgcc, libc)':<46}{flash:>9}{ram:>14}")
+        print("  stack: a call into the part at its deepest, through the parts it calls (gcc's frame sizes, "
+              "-fcallgraph-info); +cb: add your callbacks' own (put-char, hooks)")
         present = [n for n in TOGETHER if n in objs]
         together = link([objs[n] for n in present], every, work, "together")
         flash, ram = total(together)

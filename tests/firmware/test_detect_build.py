@@ -253,3 +253,30 @@ def test_detector_sources_are_clean_under_the_stricter_warnings_firmware_builds_
             timeout=120,
         )
         assert built.returncode == 0, built.stderr
+
+
+def test_the_stack_column_is_the_deepest_chain_through_every_file():
+    # A hand-worked graph: a (16) calls b (40) and c (8); b calls d (100, in another file) and a function
+    # pointer; c calls d too. The deepest call of a: 16 + 40 + 100 = 156, through a callback.
+    sys.path.insert(0, str(FIRMWARE))
+    try:
+        import size
+    finally:
+        sys.path.remove(str(FIRMWARE))
+    frames = {"a": 16, "b": 40, "c": 8, "d": 100}
+    calls = {"a": {"b", "c"}, "b": {"d", size.INDIRECT}, "c": {"d"}}
+    assert size.deepest_stack(frames, calls, "a") == (156, True)
+    assert size.deepest_stack(frames, calls, "c") == (108, False)
+    with pytest.raises(ValueError, match="calls itself"):
+        size.deepest_stack(frames, {"a": {"b"}, "b": {"a"}}, "a")
+
+
+def test_the_parsers_stack_includes_the_emitter_it_calls():
+    out = subprocess.run([sys.executable, str(FIRMWARE / "size.py")], capture_output=True, text=True,
+                         timeout=300)
+    if out.returncode == 2:
+        pytest.skip("no cross compiler here")
+    rows = {line[:46].strip(): line[46:].split() for line in out.stdout.splitlines()}
+    parser = int(rows["command parser (pt_cmd.c)"][2].removesuffix("+cb"))
+    emitter = int(rows["emitter (pt_emit.c)"][2].removesuffix("+cb"))
+    assert parser > emitter and rows["command parser (pt_cmd.c)"][2].endswith("+cb")
