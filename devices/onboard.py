@@ -19,28 +19,18 @@ firmware whose state table is off by one would: the twin check must report it.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import asdict, dataclass, fields
 
 import numpy as np
 
-from devices.firmware.clib import FirmwareDetector
+from devices.firmware.clib import FirmwareDetector, Settings
 from protocol.commands import POLARITY_KEY
 
 STATES = 4  # released, confirming, touched, releasing (processing.detections.KeyState's values)
 
 
-@dataclass(frozen=True, slots=True)
-class DetectorSettings:
-    """One channel's settings in the board's firmware (the profile's setting keys and defaults)."""
-
-    threshold_counts: int = 100
-    hysteresis_counts: int = 15
-    touch_debounce_frames: int = 3
-    release_debounce_frames: int = 3
-    baseline_slow_shift: int = 6
-    baseline_fast_shift: int = 2
-    baseline_period_frames: int = 16
-    stuck_timeout_frames: int = 0
+# One channel's settings in the board's firmware: the library binding's own (the profile's keys and
+# defaults, kept equal to processing.settings.ChannelSettings by a test).
+DetectorSettings = Settings
 
 
 class OnBoardDetector:
@@ -59,7 +49,7 @@ class OnBoardDetector:
     def _fresh(self, settings: Sequence[Mapping[str, int]] | None) -> FirmwareDetector:
         n = self.channels
         if settings is None:
-            default = {**asdict(DetectorSettings()), POLARITY_KEY: self.polarity}
+            default = {**DetectorSettings()._asdict(), POLARITY_KEY: self.polarity}
             settings = [default] * n
         self._applied = [dict(s) for s in settings[:n]]
         if len(self._applied) != n:
@@ -100,4 +90,4 @@ class OnBoardDetector:
 
 def _detector_settings(values: Mapping[str, int]) -> DetectorSettings:
     """The library's settings for one channel from the wire's keys (polarity goes separately)."""
-    return DetectorSettings(**{f.name: int(values[f.name]) for f in fields(DetectorSettings)})
+    return DetectorSettings(**{key: int(values[key]) for key in DetectorSettings._fields})

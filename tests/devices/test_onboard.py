@@ -58,7 +58,7 @@ def _reference_states(readings: np.ndarray, board: SimBoard) -> np.ndarray:
 
 
 def test_the_boards_detector_starts_from_the_default_profile_settings():
-    assert dataclasses.asdict(DetectorSettings()) == dataclasses.asdict(ChannelSettings())
+    assert DetectorSettings()._asdict() == dataclasses.asdict(ChannelSettings())
 
 
 @pytest.mark.parametrize("name", ["greenhouse", "pumphouse"])
