@@ -9,7 +9,8 @@
 
 #define ALL_CHANNELS (-1L) /* `*` */
 #define NO_CHANNEL (-2L)   /* a channel word that names no channel: quoted as given */
-#define MAX_WORD 16u       /* a word is quoted up to this many characters */
+#define MAX_WORD 16u       /* a command or channel word is quoted up to this many characters */
+#define MAX_KEY 23u        /* a setting word up to this many: the longest key, release_debounce_frames */
 #define NOT_A_NUMBER (-2147483647L - 1L) /* breaks the rule of every numeric key */
 
 /* The setting keys as the wire names them, in enum pt_setting_key's order from 1, NUL-separated, an
@@ -211,17 +212,26 @@ static void head(const job_t *j, const char *kind)
     }
 }
 
-/* `>no SUBJECT: [WORD: ]why`. */
-static void no(const job_t *j, const char *w, const char *why)
+/* `>no SUBJECT: [WORD: ]why`; a key's rule (`rule` not NO_CHANNEL) as `must be RULE`, and for
+ * `set *` which channel broke it (`rule` >= 0): `>no set *: key: must be RULE (channel N)`. */
+static void no(const job_t *j, const char *w, const char *why, int32_t rule)
 {
     pt_emit_t *e = j->p->out;
     head(j, ">no ");
     pt_emit_str(e, ": ");
     if (w != NULL) {
-        pt_emit_strn(e, w, MAX_WORD);
+        pt_emit_strn(e, w, MAX_KEY);
         pt_emit_str(e, ": ");
     }
+    if (rule != NO_CHANNEL) {
+        pt_emit_str(e, "must be ");
+    }
     pt_emit_str(e, why);
+    if (rule >= 0) {
+        pt_emit_str(e, " (channel ");
+        pt_emit_uint(e, (uint32_t)rule);
+        pt_emit_char(e, ')');
+    }
     pt_emit_end(e);
 }
 
@@ -279,7 +289,7 @@ static void run_set(job_t *j)
             why = k == PT_KEY_NONE ? "unknown setting" : ((have >> k) & 1u) != 0 ? "given twice" : NULL;
         }
         if (why != NULL) {
-            no(j, w, why);
+            no(j, w, why, NO_CHANNEL);
             return;
         }
         have |= 1u << k;
@@ -288,7 +298,7 @@ static void run_set(job_t *j)
                    : v[0] != '\0' && v[1] == '\0' ? (v[0] == '+' ? 1 : v[0] == '-' ? -1 : 0) : 0;
     }
     if (n == 0) {
-        no(j, NULL, "nothing to set");
+        no(j, NULL, "nothing to set", NO_CHANNEL);
         return;
     }
     for (pass = 0; pass < 2; pass++) {
@@ -306,18 +316,7 @@ static void run_set(job_t *j)
                     p->hooks->changed(p->ctx, (uint16_t)c);
                 }
             } else if ((k = (unsigned)pt_settings_problem(&now)) != PT_KEY_NONE) {
-                /* `>no set N: key: must be RULE`, and which channel for `set *` */
-                head(j, ">no ");
-                pt_emit_str(p->out, ": ");
-                pt_emit_str(p->out, nth(key_names, k - 1u));
-                pt_emit_str(p->out, ": must be ");
-                pt_emit_str(p->out, nth(rules, k - 1u));
-                if (j->ch < 0) {
-                    pt_emit_str(p->out, " (channel ");
-                    pt_emit_uint(p->out, c);
-                    pt_emit_char(p->out, ')');
-                }
-                pt_emit_end(p->out);
+                no(j, nth(key_names, k - 1u), nth(rules, k - 1u), j->ch < 0 ? (int32_t)c : ALL_CHANNELS);
                 return;
             }
         }
@@ -400,7 +399,7 @@ static void run(pt_cmd_t *p, const char *refusal)
         }
         swap(p->buf, j.end, ' ', '\0');
     }
-    no(&j, NULL, why);
+    no(&j, NULL, why, NO_CHANNEL);
 }
 
 void pt_cmd_line(pt_cmd_t *p, const char *line, size_t len)
