@@ -2,7 +2,9 @@
  *
  * Written for flash: the rules are pt_settings_problem()'s (one statement of them in C, in the profile's
  * order), a refusal names the key and that key's rule from one table (`rules`, by key, not by sentence),
- * and the setting names are one NUL-separated table read by the parser and its answers alike. A value
+ * the setting names are one NUL-separated table read by the parser and its answers alike, and the
+ * command words and the keys are found by one lookup (`find`). `set` writes the given values into a
+ * copy of each channel's entry and checks the copy, so nothing is written before all pass. A value
  * its field cannot hold (300 for a debounce, a word that is no number) is stored as one the rules refuse
  * for that same key, so the first problem named is the profile's. No division, no <string.h> call. */
 #include "pt_cmd.h"
