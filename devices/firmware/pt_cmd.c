@@ -2,20 +2,36 @@
  *
  * Written for flash: the rules are pt_settings_problem()'s (one statement of them in C, in the profile's
  * order), a refusal names the key and that key's rule from one table (`rules`, by key, not by sentence),
- * and the setting names are one NUL-separated table read by the parser and its answers alike. A value
+ * the setting names are one NUL-separated table read by the parser and its answers alike, and the
+ * command words and the keys are found by one lookup (`find`). `set` writes the given values into a
+ * copy of each channel's entry and checks the copy, so nothing is written before all pass. A value
  * its field cannot hold (300 for a debounce, a word that is no number) is stored as one the rules refuse
  * for that same key, so the first problem named is the profile's. No division, no <string.h> call. */
 #include "pt_cmd.h"
 
 #define ALL_CHANNELS (-1L) /* `*` */
 #define NO_CHANNEL (-2L)   /* a channel word that names no channel: quoted as given */
-#define MAX_WORD 16u       /* a word is quoted up to this many characters */
+#define MAX_WORD 16u       /* a command or channel word is quoted up to this many characters */
+#define MAX_KEY 23u        /* a setting word up to this many: the longest key, release_debounce_frames */
 #define NOT_A_NUMBER (-2147483647L - 1L) /* breaks the rule of every numeric key */
 
-/* The setting keys as the wire names them, in enum pt_setting_key's order from 1, NUL-separated. */
+/* Kept out of line (GCC, Clang): inlined twice into the command runner it costs the Cortex-M0+ 8 bytes
+ * more flash than the calls. Other compilers may inline as they like. */
+#if defined(__GNUC__)
+#define PT_OUTLINE __attribute__((noinline))
+#else
+#define PT_OUTLINE
+#endif
+
+/* The setting keys as the wire names them, in enum pt_setting_key's order from 1, NUL-separated, an
+ * empty string after the last. */
 static const char key_names[] =
     "threshold_counts\0hysteresis_counts\0touch_debounce_frames\0release_debounce_frames\0"
-    "baseline_slow_shift\0baseline_fast_shift\0baseline_period_frames\0stuck_timeout_frames\0polarity";
+    "baseline_slow_shift\0baseline_fast_shift\0baseline_period_frames\0stuck_timeout_frames\0polarity\0";
+
+/* The command words, found like the keys: CMD_* below. */
+static const char commands[] = "?\0get\0set\0keep\0";
+enum { CMD_INFO = 1, CMD_GET, CMD_SET, CMD_KEEP };
 
 /* What each key must be: the rule pt_settings_problem() checks for it, same order. */
 static const char rules[] =
@@ -96,16 +112,19 @@ static int same(const char *a, const char *b)
     return *a == *b;
 }
 
-/* The key (enum pt_setting_key) named `w`, or PT_KEY_NONE. */
-static unsigned key_of(const char *w)
+/* Where `w` is in a NUL-separated list ended by an empty string: 1 for the first, ...; 0 when absent.
+ * The command words and the setting keys are both found so. */
+static unsigned find(const char *list, const char *w)
 {
     unsigned k;
-    for (k = PT_KEY_THRESHOLD_COUNTS; k <= PT_KEY_POLARITY; k++) {
-        if (same(w, nth(key_names, k - 1u))) {
+    for (k = 1; *list != '\0'; k++) {
+        if (same(w, list)) {
             return k;
         }
+        while (*list++ != '\0') {
+        }
     }
-    return PT_KEY_NONE;
+    return 0;
 }
 
 /* Decimal with an optional '-' (only when `sign`), or NOT_A_NUMBER when `w` is none or outside int32
@@ -203,17 +222,26 @@ static void head(const job_t *j, const char *kind)
     }
 }
 
-/* `>no SUBJECT: [WORD: ]why`. */
-static void no(const job_t *j, const char *w, const char *why)
+/* `>no SUBJECT: [WORD: ]why`; a key's rule (`rule` not NO_CHANNEL) as `must be RULE`, and for
+ * `set *` which channel broke it (`rule` >= 0): `>no set *: key: must be RULE (channel N)`. */
+static void no(const job_t *j, const char *w, const char *why, int32_t rule)
 {
     pt_emit_t *e = j->p->out;
     head(j, ">no ");
     pt_emit_str(e, ": ");
     if (w != NULL) {
-        pt_emit_strn(e, w, MAX_WORD);
+        pt_emit_strn(e, w, MAX_KEY);
         pt_emit_str(e, ": ");
     }
+    if (rule != NO_CHANNEL) {
+        pt_emit_str(e, "must be ");
+    }
     pt_emit_str(e, why);
+    if (rule >= 0) {
+        pt_emit_str(e, " (channel ");
+        pt_emit_uint(e, (uint32_t)rule);
+        pt_emit_char(e, ')');
+    }
     pt_emit_end(e);
 }
 
@@ -243,12 +271,14 @@ static void run_get(job_t *j)
     ok(j);
 }
 
-/* `set` from the pairs on: read them all, check every channel asked, then write: all or none. */
+/* `set` from the pairs on: read them all, check every channel asked, then write: all or none. Each
+ * channel's entry is copied, the given values written into the copy and the copy checked; the second
+ * pass writes it back. */
 static void run_set(job_t *j)
 {
     pt_cmd_t *p = j->p;
-    pt_settings_t given;
     pt_settings_t now;
+    int32_t given[PT_KEY_POLARITY + 1];
     uint8_t order[PT_KEY_POLARITY];
     unsigned n = 0;
     unsigned have = 0;
@@ -265,19 +295,20 @@ static void run_set(job_t *j)
         k = PT_KEY_NONE;
         if (*v != '\0') {
             *v++ = '\0';
-            k = key_of(w);
+            k = find(key_names, w);
             why = k == PT_KEY_NONE ? "unknown setting" : ((have >> k) & 1u) != 0 ? "given twice" : NULL;
         }
         if (why != NULL) {
-            no(j, w, why);
+            no(j, w, why, NO_CHANNEL);
             return;
         }
         have |= 1u << k;
         order[n++] = (uint8_t)k;
-        put(&given, k, k != PT_KEY_POLARITY ? parse_int(v, 1) : same(v, "+") ? 1 : same(v, "-") ? -1 : 0);
+        given[k] = k != PT_KEY_POLARITY ? parse_int(v, 1)
+                   : v[0] != '\0' && v[1] == '\0' ? (v[0] == '+' ? 1 : v[0] == '-' ? -1 : 0) : 0;
     }
     if (n == 0) {
-        no(j, NULL, "nothing to set");
+        no(j, NULL, "nothing to set", NO_CHANNEL);
         return;
     }
     for (pass = 0; pass < 2; pass++) {
@@ -285,40 +316,31 @@ static void run_set(job_t *j)
             if (j->ch >= 0 && c != (unsigned)j->ch) {
                 continue;
             }
-            for (k = PT_KEY_THRESHOLD_COUNTS; k <= PT_KEY_POLARITY; k++) {
-                put(pass ? &p->settings[c] : &now, k, get(((have >> k) & 1u) ? &given : &p->settings[c], k));
+            now = p->settings[c];
+            for (k = 0; k < n; k++) {
+                put(&now, order[k], given[order[k]]);
             }
             if (pass != 0) {
+                p->settings[c] = now;
                 if (p->hooks->changed != NULL) {
                     p->hooks->changed(p->ctx, (uint16_t)c);
                 }
             } else if ((k = (unsigned)pt_settings_problem(&now)) != PT_KEY_NONE) {
-                /* `>no set N: key: must be RULE`, and which channel for `set *` */
-                head(j, ">no ");
-                pt_emit_str(p->out, ": ");
-                pt_emit_str(p->out, nth(key_names, k - 1u));
-                pt_emit_str(p->out, ": must be ");
-                pt_emit_str(p->out, nth(rules, k - 1u));
-                if (j->ch < 0) {
-                    pt_emit_str(p->out, " (channel ");
-                    pt_emit_uint(p->out, c);
-                    pt_emit_char(p->out, ')');
-                }
-                pt_emit_end(p->out);
+                no(j, nth(key_names, k - 1u), nth(rules, k - 1u), j->ch < 0 ? (int32_t)c : ALL_CHANNELS);
                 return;
             }
         }
     }
     head(j, ">ok ");
     for (k = 0; k < n; k++) {
-        pair(p->out, order[k], get(&given, order[k]));
+        pair(p->out, order[k], get(&now, order[k]));
     }
     pt_emit_end(p->out);
 }
 
 /* Every `from` in [c, end) becomes `to`: the line's blanks (all spaces, see pt_cmd_feed) into word ends
  * and back. */
-static void swap(char *c, const char *end, char from, char to)
+PT_OUTLINE static void swap(char *c, const char *end, char from, char to)
 {
     for (; c < end; c++) {
         if (*c == from) {
@@ -333,7 +355,7 @@ static void run(pt_cmd_t *p, const char *refusal)
     const pt_cmd_hooks_t *h = p->hooks;
     job_t j;
     const char *why = "unknown command";
-    int getset;
+    unsigned cmd;
     j.p = p;
     j.at = p->buf;
     j.end = p->buf + p->len;
@@ -349,22 +371,22 @@ static void run(pt_cmd_t *p, const char *refusal)
         why = refusal;
     } else if (j.cmd == NULL) {
         return; /* a blank line: nothing asked */
-    } else if (same(j.cmd, "?") && h->info != NULL) {
+    } else if ((cmd = find(commands, j.cmd)) == CMD_INFO && h->info != NULL) {
         h->info(p->ctx);
         return;
-    } else if ((getset = same(j.cmd, "get") || same(j.cmd, "set")) != 0 || same(j.cmd, "keep")) {
+    } else if (cmd >= CMD_GET) {
         why = h->keep == NULL ? "cannot keep settings" : NULL;
-        if (getset) {
+        if (cmd != CMD_KEEP) {
             j.chw = next(&j);
             why = "which channel?";
             if (j.chw != NULL) {
-                j.ch = same(j.chw, "*") ? ALL_CHANNELS : parse_int(j.chw, 0);
+                j.ch = j.chw[0] == '*' && j.chw[1] == '\0' ? ALL_CHANNELS : parse_int(j.chw, 0);
                 if (j.ch < ALL_CHANNELS || j.ch >= (int32_t)p->channels) {
                     j.ch = NO_CHANNEL;
                 }
                 why = j.ch == NO_CHANNEL ? "no such channel" : NULL;
             }
-            if (why == NULL && j.cmd[0] == 's') {
+            if (why == NULL && cmd == CMD_SET) {
                 run_set(&j);
                 return;
             }
@@ -372,7 +394,7 @@ static void run(pt_cmd_t *p, const char *refusal)
         if (why == NULL && next(&j) != NULL) {
             why = "too many words";
         }
-        if (why == NULL && getset) {
+        if (why == NULL && cmd == CMD_GET) {
             run_get(&j);
             return;
         }
@@ -387,7 +409,7 @@ static void run(pt_cmd_t *p, const char *refusal)
         }
         swap(p->buf, j.end, ' ', '\0');
     }
-    no(&j, NULL, why);
+    no(&j, NULL, why, NO_CHANNEL);
 }
 
 void pt_cmd_line(pt_cmd_t *p, const char *line, size_t len)

@@ -81,7 +81,7 @@ void pt_cmd_init(pt_cmd_t *p, const pt_cmd_hooks_t *hooks, void *ctx, pt_emit_t 
 /* One received byte. Runs the command (and answers it) when the byte ends a line. Cost: about 15
  * cycles a byte on a Cortex-M0+; at a line end, a few thousand cycles to parse and check a command
  * (`set *` a few hundred more per channel), then the answer's characters through the emitter. Stack:
- * about 270 bytes at the deepest, plus the put-char function's. Flash: the parser is about 2.2 KB. */
+ * about 280 bytes at the deepest, plus the put-char function's. Flash: the parser is about 2.2 KB. */
 void pt_cmd_feed(pt_cmd_t *p, uint8_t byte);
 
 /* Forget a partly received line (the host reconnected, the UART reported a framing error). */

@@ -6,7 +6,7 @@
  * is updated one character at a time as each character goes out, and `*HHHH` is appended at the end.
  *
  * C99, no malloc, no floating point, no division (numbers are printed by dividing by ten with shifts
- * and adds: a Cortex-M0+ has no divide instruction), no table: 1110 B of flash on a Cortex-M0+. All state lives in a caller-owned `pt_emit_t`; one
+ * and adds: a Cortex-M0+ has no divide instruction), no table: 1114 B of flash on a Cortex-M0+. All state lives in a caller-owned `pt_emit_t`; one
  * instance per output port; instances never share anything, so each is re-entrant on its own.
  * A line must be finished before another starts on the same instance: call the emitter from one
  * context (the main loop), never from an interrupt that could cut into a line.
