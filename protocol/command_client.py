@@ -205,7 +205,8 @@ class CommandClient:
             wire.values.clear()
             return None
         if reply.subject not in (wire.subject, wire.word):
-            self.strays += 1
+            self.strays += 1 + len(wire.values)  # the values before it were that answer's, not ours
+            wire.values.clear()
             return None
         self._wire = None
         self._owed.clear()  # the board answered a later command: it owes nothing before it

@@ -293,6 +293,12 @@ def test_stale_values_before_a_late_get_answer_are_dropped_with_it():
     assert client.feed([answer(VAL), answer(VAL), answer(">ok get *")]) == []  # the first's, late
     [done] = client.feed([answer(VAL.replace(">val 3", ">val 0")), answer(">ok get *")])
     assert done.applied and [v.channel for v in done.values] == [0]
+    # Values followed by an answer that names another command were that command's: never ours.
+    client.submit(b"get 0")
+    client.poll(2.0)
+    assert client.feed([answer(VAL), answer(">ok get 3")]) == []
+    [done] = client.feed([answer(VAL.replace(">val 3", ">val 0")), answer(">ok get 0")])
+    assert [v.channel for v in done.values] == [0]
 
 
 def test_an_ok_set_that_echoes_other_values_than_were_sent_is_a_failure_naming_the_key():
