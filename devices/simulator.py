@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import re
 import time
 from collections.abc import Callable
 
@@ -31,7 +32,7 @@ from devices.onboard import OnBoardDetector
 from devices.spec import MAX_RANDOM_PER_MIN, BoardSpec
 from devices.touches import Contact, TouchPlan
 from protocol import encoder
-from protocol.commands import parse_command
+from protocol.commands import MAX_WORD_CHARS, parse_command, split_words
 from protocol.errors import UserError
 
 SEQ_MODULO = 65536
@@ -40,6 +41,9 @@ MAX_NOTE_CHARS = 400  # well inside protocol v1's 1024-byte line with its prefix
 MAX_ECHO_CHARS = 40  # how much of a bad host command an error note quotes back
 MAX_BLOCK_FRAMES = 4096  # bounds memory when a slow reader asks for a long stretch at once
 _JUNK = bytes(range(0x80, 0x100))
+MAX_COMMAND_BYTES = 256  # a host line's bytes a board holds (the C parser's buffer, pt_cmd.c)
+_LINE_END = re.compile(rb"[\r\n]")
+_NOT_TEXT = re.compile(rb"[^\t\x20-\x7e]")  # what makes a line "not ASCII text" (pt_cmd.c)
 
 
 class SimBoard:
@@ -65,7 +69,8 @@ class SimBoard:
         self._seq = 0
         self._width = self.spec.channels
         self._pending = bytearray()
-        self._commands = bytearray()
+        self._commands = bytearray()  # the host line being received (at most MAX_COMMAND_BYTES)
+        self._overlong = False  # it was longer: the rest is discarded up to its line end
         for _, width in self.faults.width_changes:
             if frame_line_bytes(width, self.spec.method.max_count) > MAX_LINE_BYTES:
                 raise UserError(f"fault width:{width}: frames that wide would not fit in one protocol line; "
@@ -296,23 +301,60 @@ class SimBoard:
 
     # --- the host side ----------------------------------------------------------------------------
     def write(self, data: bytes) -> int:
-        """Bytes from the host. Complete lines are commands; a partial line waits for its end."""
-        self._commands += data
-        while b"\n" in self._commands:
-            line, _, rest = bytes(self._commands).partition(b"\n")
-            self._commands = bytearray(rest)
-            self.command(line.decode("ascii", "replace").strip())
-        if len(self._commands) > 256:  # a host that never sends a newline must not grow memory
-            self._commands.clear()
+        """Bytes from the host, read as the C board's parser reads them (devices/firmware/pt_cmd.c):
+        a line ends at LF or CR (so CRLF ends one line and an empty one, which gets no answer); at
+        most MAX_COMMAND_BYTES of a line are held, the rest of an overlong line is discarded up to its
+        end and the line is answered once as too long; a line with bytes that are not printable
+        ASCII (tabs and spaces aside) is answered as not ASCII text. Nothing a host sends raises."""
+        start = 0
+        for end in _LINE_END.finditer(data):
+            self._hold(data[start:end.start()])
+            self._end_of_line()
+            start = end.end()
+        self._hold(data[start:])
         return len(data)
 
+    def _hold(self, chunk: bytes) -> None:
+        room = MAX_COMMAND_BYTES - len(self._commands)
+        self._commands += chunk[:room]  # bounded: the rest of an overlong line is never kept
+        if len(chunk) > room:
+            self._overlong = True
+
+    def _end_of_line(self) -> None:
+        line = bytes(self._commands)
+        overlong = self._overlong
+        self._commands.clear()
+        self._overlong = False
+        if overlong:
+            self._refuse(line.decode("latin-1"), f"line too long (over {MAX_COMMAND_BYTES} characters)")
+        elif _NOT_TEXT.search(line):
+            self._refuse(line.decode("latin-1"), "not ASCII text")
+        else:
+            self.command(line.decode("ascii"))
+
+    def _refuse(self, line: str, reason: str) -> None:
+        """A line the board cannot read: `>no WORD: reason` (WORD its first word, `?` when none), or a
+        note from a board without section 7's commands."""
+        words = split_words(line)
+        shown = _shown_word(words[0]) if words else "?"
+        if self.settings is not None:
+            self._pending += encoder.encode_answer(f">no {shown}: {reason}", self.checksum)
+            self.injected.extra["answers"] = self.injected.extra.get("answers", 0) + 1
+        else:
+            self._note(f"error: a host line starting {shown!r}: {reason}")
+
     def command(self, text: str) -> None:
+        """One host line (no line end). Only ASCII spaces and tabs separate words."""
+        if not text.isascii() or _NOT_TEXT.search(text.encode("ascii")):
+            self._refuse(text, "not ASCII text")
+            return
+        text = text.strip(" \t")
         if not text:
             return
         if text == "?":
             self._emit_info(announce=False)
             return
-        word = text.split()[0]
+        word = split_words(text)[0]
         if self.settings is not None and word in ("get", "set", "keep"):
             command = parse_command(text)
             assert command is not None
@@ -346,7 +388,7 @@ class SimBoard:
                 self._note(f"error: {_clip(text)!r}: {exc}")
             return
         if self.settings is not None:  # section 7: every command gets one final answer
-            shown = "".join(c if c.isascii() and c.isprintable() else "?" for c in word[:16])
+            shown = _shown_word(word)
             self._pending += encoder.encode_answer(f">no {shown}: unknown command", self.checksum)
             return
         self._note(f"error: unknown command {_clip(text)!r}; commands: ?, +PAD, +PAD=STRENGTH, -PAD, "
@@ -380,6 +422,12 @@ class SimBoard:
         Defaults to the time generated so far.
         """
         return self.touches.truth(self.generated_s if until_s is None else until_s)
+
+
+def _shown_word(word: str) -> str:
+    """A word of the host's as an answer quotes it: at most MAX_WORD_CHARS, each character that is
+    not printable ASCII as `?` (as pt_cmd.c does)."""
+    return "".join(c if "!" <= c <= "~" else "?" for c in word[:MAX_WORD_CHARS])
 
 
 def _clip(text: str) -> str:

@@ -40,7 +40,10 @@ def board_values(replies: Sequence[Reply]) -> BoardValues:
         problems = settings.problems()
         if problems:
             key, message = problems[0]
-            raise ValueError(f"channel {reply.channel}: the board holds {key} {message}")
+            held = reply.values[key]
+            message = message.removesuffix(f", not {held}")  # the sentence names the value already
+            raise ValueError(f"channel {reply.channel}: the board holds {key}={held}, which a profile "
+                             f"cannot: {message}")
         out[reply.channel] = BoardChannel(settings, 1 if reply.values[POLARITY_KEY] > 0 else -1)
     return out
 

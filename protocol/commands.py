@@ -9,6 +9,7 @@ Pure: no I/O.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -115,8 +116,12 @@ def parse_value(key: str, text: str) -> int:
     if key not in SETTING_KEYS:
         raise CommandError(f"{key[:MAX_WORD_CHARS]}: unknown key")
     digits = text[1:] if text[:1] == "-" else text
-    if not digits.isascii() or not digits.isdigit() or len(digits.lstrip("0")) > MAX_DIGITS:
+    if not digits.isascii() or not digits.isdigit():
         raise CommandError(f"{key}: not a decimal whole number: {text[:MAX_WORD_CHARS]!r}")
+    if len(digits.lstrip("0")) > MAX_DIGITS:  # a whole number, too long to be worth converting
+        low, high = RANGES[key]
+        shown = text if len(text) <= 24 else f"{text[:20]}... ({len(digits)} digits)"
+        raise CommandError(f"{key}: {shown} is out of range: must be between {low} and {high}")
     return int(text)
 
 
@@ -133,6 +138,22 @@ def parse_pairs(words: Sequence[str]) -> dict[str, int]:
             raise CommandError(f"{key}: given twice")
         out[key] = parse_value(key, text)
     return out
+
+
+_BLANKS = re.compile(r"[ \t]+")
+
+
+def split_words(text: str) -> list[str]:
+    """A line's words as a board reads them: only ASCII spaces (and tabs, as the C parser,
+    devices/firmware/pt_cmd.c) separate them, never other whitespace (`\\x1c`, a no-break space)."""
+    return [w for w in _BLANKS.split(text) if w]
+
+
+def channel_name(text: str) -> str:
+    """How answers name a channel word: a number as plain decimal (`01` is `1`, as the C board says
+    it), `*` and anything else as given (at most MAX_WORD_CHARS)."""
+    text = text[:MAX_WORD_CHARS]
+    return str(int(text)) if text.isascii() and text.isdigit() else text
 
 
 def check_channel(text: str, channels: int) -> int | None:
@@ -177,14 +198,14 @@ class Command:
     def subject(self) -> str:
         """What answers name: the word, and the channel word for get and set."""
         if self.word in ("get", "set") and self.args:
-            return f"{self.word} {self.args[0][:MAX_WORD_CHARS]}"
+            return f"{self.word} {channel_name(self.args[0])}"
         return self.word[:MAX_WORD_CHARS]
 
 
 def parse_command(line: bytes | str) -> Command | None:
     """One host line (its line end removed or not); None for an empty one."""
     text = line.decode("ascii", "replace") if isinstance(line, bytes) else line
-    words = text.split()
+    words = split_words(text.rstrip("\r\n"))
     if not words:
         return None
     return Command(words[0], tuple(words[1:]))
@@ -222,7 +243,7 @@ class Reply:
 
 def parse_reply(kind: str, text: str) -> Reply:
     """The part after `>val `, `>ok ` or `>no ` (CommandError when it is not section 7's shape)."""
-    words = text.split()
+    words = split_words(text)
     if kind == "val":
         if not words or not words[0].isdigit():
             raise CommandError("a value line starts with the channel number")
@@ -235,7 +256,10 @@ def parse_reply(kind: str, text: str) -> Reply:
         subject, colon, reason = text.partition(":")
         if not colon or not subject.strip():
             raise CommandError("a refusal is `>no SUBJECT: reason`")
-        return Reply("no", subject=" ".join(subject.split()), reason=reason.strip())
+        said = split_words(subject)
+        if said[0] in ("get", "set") and len(said) > 1:
+            said[1] = channel_name(said[1])
+        return Reply("no", subject=" ".join(said), reason=reason.strip())
     if kind == "ok":
         if not words:
             raise CommandError("an ok answer names its command")
@@ -243,6 +267,9 @@ def parse_reply(kind: str, text: str) -> Reply:
             channel = None if words[1] == ALL else int(words[1]) if words[1].isdigit() else -1
             if channel == -1:
                 raise CommandError("`>ok set` names its channel")
-            return Reply("ok", subject=f"set {words[1]}", channel=channel, values=parse_pairs(words[2:]))
-        return Reply("ok", subject=" ".join(words[:2]) if words[0] == "get" else words[0])
+            return Reply("ok", subject=f"set {channel_name(words[1])}", channel=channel,
+                         values=parse_pairs(words[2:]))
+        if words[0] == "get" and len(words) >= 2:
+            return Reply("ok", subject=f"get {channel_name(words[1])}")
+        return Reply("ok", subject=words[0])
     raise CommandError(f"{kind[:MAX_WORD_CHARS]}: not an answer kind")

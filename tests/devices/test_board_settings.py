@@ -5,6 +5,9 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
 from devices.board_settings import Flash
 from devices.faults import FaultPlan
 from devices.simulator import SimBoard
@@ -112,3 +115,79 @@ def test_the_exchange_in_protocol_md_section_7_is_what_a_simulated_board_answers
         else:
             expected.append(line)
     assert got == expected
+
+
+# -- host lines as the C board reads them (devices/firmware/pt_cmd.c) -------------------------------
+
+def finals(lines: list[str]) -> list[str]:
+    """Answers with each `>val` line cut to its channel (the boards' factory values differ)."""
+    return [" ".join(a.split()[:2]) if a.startswith(">val ") else a for a in lines]
+
+
+HOSTILE = (b"get 0\rget 1\r\nget 0\n\r\n  \t \n\tget 0  \r\n"  # line ends of every kind, blank lines
+           b"get 0\xff\nget 0\x00\n\xff\xfeset 0 threshold_counts=40\nge\x1bt 1\n"  # not ASCII text
+           b"get\x1c1\nget\xc2\xa01\nget\t1\nget 01\nset 002 polarity=+\n"  # only spaces and tabs split
+           + b"x" * 300 + b" set 0 threshold_counts=99\r\n"  # overlong: the tail is no command
+           + b"set 0 " + b"threshold_counts=40 " * 40 + b"\nfrob\n\x00\n")
+
+
+def test_the_sim_reads_host_lines_exactly_as_the_c_board_does():
+    """Reference: the C parser itself (devices/firmware/pt_cmd.c through its harness), fed the same bytes."""
+    from tests.firmware import c_build
+
+    c_build.require_cc()
+    board = SimBoard("pumphouse", seed=1)
+    out = c_build.run(c_build.harness(), ["--frames", "0", "--channels", str(board.spec.channels)], HOSTILE)
+    c_answers = [f">{e.kind} {e.text}" for e in Decoder().feed(out, 0.0) if isinstance(e, Answer)]
+    sim_answers = answers(board, HOSTILE)
+    assert finals(sim_answers) == finals(c_answers)
+    assert threshold(board, 0) == 30  # neither the overlong line's tail nor a binary line was applied
+
+
+def test_bytes_that_are_not_ascii_text_are_refused_and_the_board_goes_on():
+    board = SimBoard("pumphouse", seed=1)
+    assert answers(board, b"get 0\xff\n") == [">no get: not ASCII text"]
+    assert answers(board, b"get 0\x00\n") == [">no get: not ASCII text"]
+    assert answers(board, b"get\x1c1\n", "get\u00a01\n".encode()) == [">no get?1: not ASCII text",
+                                                                       ">no get??1: not ASCII text"]
+    assert answers(board, b"\x00\n") == [">no ?: not ASCII text"]
+    assert answers(board, b"get 01\n")[-1] == ">ok get 1"  # the channel named as the C board names it
+    board.command("get\u20281")  # a caller of `command` with text no host could send: refused too
+    assert [e.text for e in Decoder().feed(board.take(), 0.0) if isinstance(e, Answer)] == [
+        "get?1: not ASCII text"]
+    assert len(answers(board, b"get 1\n")) == 2
+
+
+def test_cr_and_crlf_end_a_line_once_and_blank_lines_get_no_answer():
+    board = SimBoard("pumphouse", seed=1)
+    assert finals(answers(board, b"get 1\r")) == [">val 1", ">ok get 1"]
+    assert finals(answers(board, b"get 1\r", b"\n", b"get 2\r\n\r\n\n")) == [
+        ">val 1", ">ok get 1", ">val 2", ">ok get 2"]
+
+
+def test_an_overlong_line_is_refused_once_and_its_tail_never_runs():
+    board = SimBoard("pumphouse", seed=1)
+    got = answers(board, b"x" * 300 + b" set 0 threshold_counts=99\n")
+    assert got == [">no xxxxxxxxxxxxxxxx: line too long (over 256 characters)"]
+    assert threshold(board, 0) == 30
+    for _ in range(100):  # 100 kB without a line end: memory stays at the line buffer
+        board.write(b"set 0 threshold_counts=77 " * 40)
+        assert len(board._commands) <= 256
+    assert answers(board, b"\n") == [">no set: line too long (over 256 characters)"]
+    assert threshold(board, 0) == 30
+
+
+PIECES = st.one_of(st.binary(max_size=40), st.sampled_from(
+    [b"get ", b"set 0 ", b"set * ", b"keep", b"\n", b"\r", b"?", b"threshold_counts=", b"polarity=",
+     b"*", b"0", b"+well", b"-*", b"script off", b"\t", b" ", b"\xff", b"\x00", b"x" * 200]))
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.lists(PIECES, max_size=8).map(b"".join), max_size=12))
+def test_nothing_a_host_sends_raises_out_of_the_sim(chunks):
+    board = SimBoard("pumphouse", seed=1, settings=bool(len(chunks) % 2))
+    for chunk in chunks:
+        board.write(chunk)
+    board.write(b"\n")
+    board.take()
+    assert len(board._commands) == 0

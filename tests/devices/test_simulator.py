@@ -256,17 +256,22 @@ def test_padtune_sim_broken_board_file_is_one_line(capsys, tmp_path):
 
 def test_long_host_lines_are_answered_in_one_protocol_line():
     # protocol v1 lines are at most 1024 bytes (protocol/PROTOCOL.md): a host that sends a very long
-    # line gets a short error comment back, and the board goes on.
+    # line gets one short refusal back, as the C board's parser gives (pt_cmd.c: its first word, at
+    # most 16 characters), and the board goes on.
     board = SimBoard("greenhouse", seed=2)
     board.take()
     board.write(b"+" + b"x" * 3000 + b"\n" + b"hello" * 600 + b"\n")
     d, events, _ = decode(board.take() + board.run_for(0.5))
-    notes = [e.text for e in events if isinstance(e, Note)]
-    assert len(notes) == 1 and all(n.startswith("error:") and len(n) < 500 for n in notes)
-    # the unknown word is refused in one short answer (section 7 quotes at most 16 characters of it)
     assert [(e.kind, e.text) for e in events if isinstance(e, Answer)] == [
-        ("no", "hellohellohelloh: unknown command")]
+        ("no", "+xxxxxxxxxxxxxxx: line too long (over 256 characters)"),
+        ("no", "hellohellohelloh: line too long (over 256 characters)")]
     assert d.stats.overlong == d.stats.garbled == 0 and d.stats.frames > 20
+    # A board without section 7's commands says it in one short comment instead.
+    board = SimBoard("greenhouse", seed=2, settings=False)
+    board.take()
+    board.write(b"+" + b"x" * 3000 + b"\n")
+    notes = [e.text for e in decode(board.take())[1] if isinstance(e, Note)]
+    assert len(notes) == 1 and notes[0].startswith("error:") and "line too long" in notes[0]
 
 
 def test_padtune_sim_link_in_a_missing_folder_is_one_line(capsys, tmp_path):

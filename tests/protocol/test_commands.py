@@ -65,8 +65,13 @@ def test_command_lines_are_written_as_section_7_says():
         wire.parse_pairs(["threshold_counts=3", "threshold_counts=4"])
     with pytest.raises(wire.CommandError, match="not a decimal"):
         wire.parse_pairs(["threshold_counts=0x10"])
-    with pytest.raises(wire.CommandError, match="not a decimal"):
+    with pytest.raises(wire.CommandError, match=r"\(5000 digits\) is out of range: must be between 1 and"):
         wire.parse_pairs(["threshold_counts=" + "9" * 5000])  # refused before any conversion
+    # A whole number too long to convert is one, out of range: the message says so, with the range.
+    with pytest.raises(wire.CommandError) as caught:
+        wire.parse_pairs(["threshold_counts=999999999999"])
+    assert str(caught.value) == ("threshold_counts: 999999999999 is out of range: must be between 1 "
+                                 "and 16777216")
 
 
 @pytest.mark.parametrize("decoder", [Decoder, PlainDecoder])
@@ -187,3 +192,129 @@ def test_link_post_sends_from_the_writer_thread_and_the_answer_comes_back_as_an_
     finally:
         link.stop()
     assert not link.post(b"keep\n") and "not connected" in link.last_error
+
+
+# -- answers that take long, come late, or echo other values ---------------------------------------
+
+class LateBoard:
+    """A fake board for the client: answers each command `delay_s` after it arrives, in order, one
+    `>val` line every `line_s` for a `get *` of `channels`; `echo` changes what `>ok set` echoes."""
+
+    def __init__(self, delay_s: float = 0.0, line_s: float = 0.0, channels: int = 2,
+                 echo: dict[str, str] | None = None) -> None:
+        self.delay_s, self.line_s, self.channels, self.echo = delay_s, line_s, channels, echo or {}
+        self.now_s = 0.0
+        self.due: list[tuple[float, str]] = []
+        self.sent: list[bytes] = []
+
+    def __call__(self, data: bytes) -> bool:
+        self.sent.append(data)
+        words = data.decode().split()
+        start = max([self.now_s, *(t for t, _ in self.due)]) + self.delay_s  # one command at a time
+        if words[0] == "get":
+            chosen = range(self.channels) if words[1] == "*" else [int(words[1])]
+            for i, c in enumerate(chosen):
+                self.due.append((start + i * self.line_s, VAL.replace(">val 3", f">val {c}")))
+            self.due.append((start + len(chosen) * self.line_s, f">ok get {words[1]}"))
+        else:
+            pairs = " ".join(self.echo.get(w, w) for w in words[2:])
+            self.due.append((start, f">ok {words[0]} {words[1]} {pairs}"))
+        return True
+
+    def run(self, client: CommandClient, until_s: float, step_s: float = 0.05) -> list:
+        results = []
+        while self.now_s <= until_s and client.busy:
+            results += client.poll(self.now_s)
+            ready = [a for t, a in self.due if t <= self.now_s]
+            self.due = [(t, a) for t, a in self.due if t > self.now_s]
+            results += client.feed([answer(a, self.now_s) for a in ready])
+            self.now_s += step_s
+        return results
+
+
+def test_a_long_answer_is_waited_for_while_its_lines_keep_coming():
+    # 512 channels at 115200 Bd, the answer at a tenth of the rate: one 239-byte line every 20.7 ms,
+    # 10.6 s in all, five times the 2 s timeout; the bound (board_link.answer_limit_s) is 34 s.
+    from tui.headless.board_link import answer_limit_s
+
+    board = LateBoard(line_s=239 / 11520, channels=512)
+    client = CommandClient(board, timeout_s=2.0, limit_s=answer_limit_s(512, 115200))
+    client.submit(wire.get_line(None))
+    [done] = board.run(client, 60.0, step_s=0.01)
+    assert done.applied and len(done.values) == 512 and 10.5 < board.now_s < 11.0
+
+
+def test_an_answer_that_stops_or_never_ends_fails_in_its_words():
+    board = LateBoard(line_s=0.5, channels=8)
+    client = CommandClient(board, timeout_s=1.0, limit_s=2.0)
+    client.submit(b"get *")
+    [done] = board.run(client, 10.0)
+    assert done.reason == "the answer did not end within 2 s (4 value lines so far)"
+    board = LateBoard(line_s=0.5, channels=8)
+    client = CommandClient(board, timeout_s=1.0, limit_s=20.0)
+    client.submit(b"get *")
+    client.poll(0.0)
+    client.feed([answer(VAL)])
+    board.due.clear()  # the board stops after one line
+    [done] = board.run(client, 10.0)
+    assert done.reason == "the answer stopped after 1 value lines (nothing more for 1 s)"
+
+
+def test_a_late_answer_never_counts_for_the_next_command_with_the_same_name():
+    board = LateBoard(delay_s=1.5)  # answers after the client gave up (1 s)
+    client = CommandClient(board, timeout_s=1.0)
+    client.submit(b"set 0 threshold_counts=40")
+    client.submit(b"set 0 threshold_counts=50")
+    client.submit(b"get *")
+    client.submit(b"get *")
+    results = board.run(client, 10.0)
+    assert [r.status for r in results] == ["failed"] * 4  # each timed out; no late answer was taken
+    # The late `>ok set 0 threshold_counts=40` came while `set 0 threshold_counts=50` waited, and the
+    # late answer to that one while the first `get *` waited: both dropped, as owed to timed-out ones.
+    assert client.late == 2 and client.strays == 2
+    # Once the board answers in time again (the late answers of both gets lost on the way), the next
+    # command is its own, and so are its values.
+    board.delay_s = 0.0
+    board.due.clear()
+    client.submit(b"set 0 threshold_counts=60")
+    client.submit(b"get *")
+    ok_set, ok_get = board.run(client, 20.0)
+    assert ok_set.applied and ok_set.reply.values == {"threshold_counts": 60}
+    assert ok_get.applied and len(ok_get.values) == 2
+
+
+def test_stale_values_before_a_late_get_answer_are_dropped_with_it():
+    client = CommandClient(LateBoard(), timeout_s=1.0)
+    client.submit(b"get *")
+    client.submit(b"get *")
+    client.poll(0.0)
+    [timed] = client.poll(1.0)  # the first gave up; the second is on the wire now
+    assert timed.status == "failed"
+    assert client.feed([answer(VAL), answer(VAL), answer(">ok get *")]) == []  # the first's, late
+    [done] = client.feed([answer(VAL.replace(">val 3", ">val 0")), answer(">ok get *")])
+    assert done.applied and [v.channel for v in done.values] == [0]
+    # Values followed by an answer that names another command were that command's: never ours.
+    client.submit(b"get 0")
+    client.poll(2.0)
+    assert client.feed([answer(VAL), answer(">ok get 3")]) == []
+    [done] = client.feed([answer(VAL.replace(">val 3", ">val 0")), answer(">ok get 0")])
+    assert [v.channel for v in done.values] == [0]
+
+
+def test_an_ok_set_that_echoes_other_values_than_were_sent_is_a_failure_naming_the_key():
+    cases = [({"threshold_counts=40": "threshold_counts=41"},
+              "threshold_counts: the board says it now holds threshold_counts=41, not threshold_counts=40 as "
+              "sent"),
+             ({"polarity=-": ""}, "polarity: the board's answer leaves it out (sent polarity=-)"),
+             ({"polarity=-": "polarity=- hysteresis_counts=3"},
+              "hysteresis_counts: the board's answer names it, but it was not sent")]
+    for echo, reason in cases:
+        board = LateBoard(echo=echo)
+        client = CommandClient(board)
+        client.submit(b"set 0 threshold_counts=40 polarity=-")
+        [done] = board.run(client, 5.0)
+        assert done.status == "failed" and done.reason == reason
+    board = LateBoard()
+    client = CommandClient(board)
+    client.submit(b"set 0 threshold_counts=40 polarity=-")
+    assert board.run(client, 5.0)[0].applied

@@ -3,7 +3,9 @@
 `connect()` opens the port and waits for the board's info line: a board whose info line says
 `settings=1` is ready; one without it (asked once more with `?`, in case the first line was a stale
 one) or one that never sends an info line is a `UserError` (one line, exit 2). `read_board()` asks
-`get *` and returns the settings the board holds.
+`get *` and returns the settings the board holds: its answer may take a while on a board of many
+channels at a slow baud, so the wait counts from its last line (`ANSWER_TIMEOUT_S` of silence ends
+it) within a bound scaled to its size at the link's byte rate (`answer_limit_s`).
 """
 
 from __future__ import annotations
@@ -24,6 +26,17 @@ from tui.pipeline import Pipeline
 COMMAND_SET = "1"
 INFO_WAIT_S = 3.0
 ANSWER_TIMEOUT_S = 2.0
+VAL_LINE_BYTES = 240  # a `>val` line at its longest (every value at its widest, a checksum), LF
+BITS_PER_BYTE = 10  # 8N1: start, 8 data, stop
+ANSWER_SHARE = 3.0  # the answer shares the link with the board's frames: allow it a third of the rate
+
+
+def answer_limit_s(channels: int, baud: int) -> float:
+    """How long a `get *` answer of `channels` value lines may take in all at `baud`: its bytes at a
+    third of the link's byte rate (the board's frames share the link), plus the silent timeout. 512
+    channels at 115200 Bd: 123 KB of answer, 10.7 s at full rate, a 34 s bound."""
+    byte_rate = max(baud, 1) / BITS_PER_BYTE
+    return ANSWER_TIMEOUT_S + (channels + 1) * VAL_LINE_BYTES / byte_rate * ANSWER_SHARE
 
 
 @dataclass
@@ -38,7 +51,10 @@ class BoardLink:
         return self.info.board or self.port
 
     def run(self, lines: list[bytes]) -> list[Result]:
-        return run_commands(self.link.write, lambda: self.pipeline.step().events, lines, ANSWER_TIMEOUT_S)
+        """Each line and its answer in turn; a `get *` may take as long as its size needs."""
+        limit_s = answer_limit_s(max(self.info.channels, 1), self.link.baud)
+        return run_commands(self.link.write, lambda: self.pipeline.step().events, lines, ANSWER_TIMEOUT_S,
+                            limit_s=limit_s)
 
 
 def connect(port: str, baud: int | None, wait_s: float = INFO_WAIT_S,
