@@ -326,7 +326,7 @@ class SimBoard:
         self._commands.clear()
         self._overlong = False
         if overlong:
-            self._refuse(line.decode("latin-1"), f"line too long (over {MAX_COMMAND_BYTES} characters)")
+            self._refuse(line.decode("latin-1"), "line too long")
         elif _NOT_TEXT.search(line):
             self._refuse(line.decode("latin-1"), "not ASCII text")
         else:
