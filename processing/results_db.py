@@ -85,9 +85,10 @@ def _connect(path: Path) -> sqlite3.Connection:
     return conn
 
 
-def _problem(path: Path, exc: Exception) -> UserError:
-    return UserError(f"{path}: cannot use it as a results database ({exc}); give a new file name or a "
-                     "database padtune wrote")
+def _problem(path: Path, exc: Exception, create: bool) -> UserError:
+    what = "a new file name or " if create else ""
+    return UserError(f"{path}: cannot use it as a results database ({exc}); give {what}a database "
+                     "written by `padtune check --results`")
 
 
 def open_results(path: str | Path, create: bool = True) -> sqlite3.Connection:
@@ -110,7 +111,7 @@ def open_results(path: str | Path, create: bool = True) -> sqlite3.Connection:
                                f"('schema_version', '{SCHEMA_VERSION}'); COMMIT;")
         row = conn.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone()
     except sqlite3.Error as exc:
-        raise _problem(p, exc) from None
+        raise _problem(p, exc, create) from None
     if row is None or row[0] != str(SCHEMA_VERSION):
         conn.close()
         raise UserError(f"{p}: results schema version {row[0] if row else 'missing'}, this padtune reads "
