@@ -73,17 +73,30 @@ def _ticks(lo: float, hi: float, count: int = 5) -> list[float]:
     return [first + k * step for k in range(int((hi - first) / step) + 2)]
 
 
+def _axis(known: Sequence[Distribution]) -> tuple[float, float]:
+    """The shared axis: every channel's box and whiskers, except values far outside their own channel's
+    quartiles (beyond 3 IQR: Tukey's 'far out' fence), which would squash the rest to a line."""
+    lo = min(max(d.min, d.q1 - 3 * (d.q3 - d.q1)) for d in known)
+    hi = max(min(d.max, d.q3 + 3 * (d.q3 - d.q1)) for d in known)
+    lo, hi = min(lo, min(d.q1 for d in known)), max(hi, max(d.q3 for d in known))
+    if hi == lo:
+        lo, hi = lo - 1.0, hi + 1.0
+    return lo, hi
+
+
 def box_plot(names: Sequence[str], dists: Sequence[Distribution | None], label: str) -> str:
-    """One row per channel: whiskers min..max, a box q1..q3, the median as a line, each unit a dot."""
+    """One row per channel: whiskers min..max, a box q1..q3, the median as a line, each unit a dot.
+    Values off the axis (far outliers, such as a shorted pad) are a red mark at the edge with the value."""
     known = [d for d in dists if d is not None]
     if not known:
         return "<p>Not measured.</p>"
-    ticks = _ticks(min(d.min for d in known), max(d.max for d in known))
+    ticks = _ticks(*_axis(known))
     lo, hi = ticks[0], ticks[-1]
-    left, right, row = 110, 20, 22
+    left, right, row = 110, 60, 22
     scale = (W - left - right) / ((hi - lo) or 1.0)
-    x = lambda v: left + (v - lo) * scale  # noqa: E731
+    x = lambda v: left + (min(max(v, lo), hi) - lo) * scale  # noqa: E731
     height = len(names) * row + 24
+    ink = COLOURS["ink"]
     body = []
     for t in ticks:
         body.append(f'<line x1="{x(t):.1f}" y1="0" x2="{x(t):.1f}" y2="{height - 20}" stroke="#e0e0e0"/>'
@@ -96,15 +109,21 @@ def box_plot(names: Sequence[str], dists: Sequence[Distribution | None], label: 
             continue
         tip = (f"{name}: n {d.n}, min {d.min:g}, q1 {d.q1:g}, median {d.median:g}, q3 {d.q3:g}, "
                f"max {d.max:g}" + (f", sd {d.stdev:.3g}" if d.stdev is not None else ""))
-        ink = COLOURS["ink"]
+        dots = "".join(f'<circle cx="{x(v):.1f}" cy="{y}" r="2" fill="{ink}" fill-opacity="0.6"/>'
+                       for v in d.values if lo <= v <= hi)
+        below, above = [v for v in d.values if v < lo], [v for v in d.values if v > hi]
+        # A far value on the right goes in the right margin; on the left, just inside the axis (the
+        # names are in the left margin), above the whisker.
+        marks = "".join(f'<text x="{x(v) + 4:.1f}" y="{y + (4 if side > 0 else -3)}" font-size="10" '
+                        f'fill="{COLOURS["fail"]}">{glyph} {v:g}</text>'
+                        for v, side, glyph in ((min(below, default=None), -1, "◀"),
+                                               (max(above, default=None), 1, "▶")) if v is not None)
         body.append(f'<g><title>{_e(tip)}</title>'
                     f'<line x1="{x(d.min):.1f}" y1="{y}" x2="{x(d.max):.1f}" y2="{y}" stroke="{ink}"/>'
                     f'<rect x="{x(d.q1):.1f}" y="{y - 7}" width="{max(x(d.q3) - x(d.q1), 1):.1f}" '
                     f'height="14" fill="{COLOURS["box"]}" stroke="{ink}"/>'
                     f'<line x1="{x(d.median):.1f}" y1="{y - 7}" x2="{x(d.median):.1f}" y2="{y + 7}" '
-                    f'stroke="{COLOURS["ink"]}" stroke-width="2"/>'
-                    + "".join(f'<circle cx="{x(v):.1f}" cy="{y}" r="2" fill="{COLOURS["ink"]}" '
-                              'fill-opacity="0.6"/>' for v in d.values) + "</g>")
+                    f'stroke="{ink}" stroke-width="2"/>{dots}{marks}</g>')
     return _svg(height, body, label)
 
 
