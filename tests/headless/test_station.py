@@ -205,3 +205,23 @@ def test_a_unit_that_cannot_be_opened_is_not_tested_and_the_others_are(bench, tm
     assert units[ports[0]]["status"] == "pass"
     missing = units[str(tmp_path / "no-such-port")]
     assert missing["status"] == "error" and not missing["passed"] and "no-such-port" in missing["reason"]
+
+
+def test_two_stations_append_to_one_results_file_at_once(bench, tmp_path):
+    folder, _ = bench
+    db = tmp_path / "shared.sqlite"
+    cmd = [sys.executable, "-m", "tui.cli", "check", "--profile", str(folder / "limits.toml"),
+           "--duration", "1", "--results", str(db), "--json"]
+    sim = "sim://greenhouse?script=0&seed="
+    stations = [subprocess.Popen([*cmd, f"{sim}{a}", f"{sim}{b}", "--unit", f"{tag}{{n}}"], cwd=ROOT,
+                                 stdout=subprocess.PIPE,
+                                 stderr=subprocess.PIPE, text=True)
+                for tag, a, b in (("S", 21, 22), ("T", 23, 24))]
+    for proc in stations:
+        out, err = proc.communicate(timeout=120)
+        assert proc.returncode == 0, err
+        assert len(json_lines(out)) == 2
+    with sqlite3.connect(db) as conn:
+        units = sorted(r[0] for r in conn.execute("SELECT unit FROM units"))
+        assert conn.execute("SELECT COUNT(*) FROM channels").fetchone()[0] == 4 * 9
+    assert units == ["S1", "S2", "T1", "T2"]
