@@ -136,12 +136,19 @@ class SimBoard:
         fields: dict[str, object] = {
             **lead, "board": self.spec.name, "channels": self._width, "rate": f"{self.spec.rate_hz:g}",
             "names": ",".join(names), "method": self.spec.method.kind,
-            "polarity": "+" if self.spec.method.polarity > 0 else "-", "fw": self.spec.fw}
+            "polarity": "+" if self.spec.method.polarity > 0 else "-", "fw": self.spec.fw,
+            "serial": self.serial}
         if self.settings is not None:
             fields["settings"] = 1  # takes PROTOCOL.md section 7's commands
         if self.onboard is not None:
             fields["states"] = 1  # the frames carry the state field (PROTOCOL.md section 3)
         return fields
+
+    @property
+    def serial(self) -> str:
+        """The unit's serial number, one per seed (a production station tells units apart by it):
+        the board's name and the seed, `greenhouse-0007`."""
+        return f"{self.spec.name}-{self.seed:04d}"
 
     def info_line(self, announce: bool = True) -> bytes:
         return encoder.encode_info(self.info_fields(announce), checksum=self.checksum)

@@ -21,8 +21,9 @@ from processing.settings import Limits
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import (
+    DEFAULT_BAUD,
     StopFlag,
-    add_port_args,
+    baud_rate,
     load_profile_arg,
     open_link,
     quiet_broken_pipe,
@@ -38,7 +39,11 @@ def register(sub: argparse._SubParsersAction) -> None:
         description="Check one unit: every channel alive (baseline inside the profile's range: no open or "
         "shorted pad), noise below the limit, no key stuck; with --touch, each key is asked for in turn "
         "and its SNR checked. Exit 0 pass, 1 fail, 2 usage or input error.")
-    add_port_args(p)
+    p.add_argument("port", metavar="PORT_OR_URL", nargs="+",
+                   help="serial device (/dev/ttyACM0, COM3) or pyserial URL (sim://greenhouse?speed=4); "
+                        "several ports test several units at once, one fixture per port")
+    p.add_argument("--baud", type=baud_rate, default=None,
+                   help=f"baud rate (default {DEFAULT_BAUD}; no effect on socket:// URLs)")
     p.add_argument("--profile", metavar="F", required=True, help="profile TOML with the [limits] to check")
     add_polarity_arg(p)
     p.add_argument("--duration", metavar="S", type=seconds, default=3.0,
@@ -48,10 +53,22 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="with --touch: seconds to wait for each key (default %(default)s)")
     p.add_argument("--json", action="store_true", help="print the report as one JSON object")
     p.add_argument("--report", metavar="FILE.html", help="also write an HTML report with plots")
+    p.add_argument("--unit", metavar="ID", action="append",
+                   help="the unit's id: one per port in the ports' order, or one pattern such as A{n:03} "
+                        "(default: the serial key of the board's info line)")
+    p.add_argument("--unit-start", metavar="N", type=int, default=1,
+                   help="the first {n} of a --unit pattern (default %(default)s)")
+    p.add_argument("--results", metavar="FILE.sqlite",
+                   help="append every unit's result, per channel and per check, to this SQLite database")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
+    if len(args.port) > 1 or args.unit or args.results:
+        from tui.headless.station import run_station
+
+        return run_station(args)
+    args.port = args.port[0]
     if args.report:
         from tui.report import check_report_path, require_matplotlib
 
@@ -103,6 +120,7 @@ def _report(args: argparse.Namespace, session: Session, limits: Limits, verdicts
         warnings.append("the profile has no [limits]: only stuck keys (and --touch) were checked")
     return {"type": "check", "t": round(elapsed_s, 3), "passed": all(v.passed for v in verdicts),
             "warnings": warnings, "port": args.port, "board": session.info.board if session.info else None,
+            "serial": session.info.fields.get("serial") if session.info else None,
             "profile": args.profile, "duration_s": args.duration, "touch": args.touch,
             "limits": {k: getattr(limits, k) for k in keys}, "channels": [v.as_dict() for v in verdicts]}
 
