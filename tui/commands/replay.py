@@ -14,9 +14,11 @@ from __future__ import annotations
 import argparse
 import time
 from collections.abc import Iterator
+from typing import Any
 
 from processing.recording import read_recording
 from processing.session import Session
+from protocol.errors import UserError
 from protocol.events import Event, FrameBlock
 from tui.headless.output import make_output
 from tui.headless.ports import (
@@ -27,7 +29,7 @@ from tui.headless.ports import (
     seconds,
     speed_factor,
 )
-from tui.headless.runner import DetectionRun
+from tui.headless.runner import DetectionRun, warn_on_stderr
 from tui.polarity_arg import add_polarity_arg
 
 PACE_CHUNK_S = 0.05  # a paced replay hands frames over in slices of this much recorded time
@@ -42,6 +44,9 @@ def register(sub: argparse._SubParsersAction) -> None:
         "recording, touches outside them are counted as false touches.")
     p.add_argument("file", metavar="FILE", help="recording (CSV) or raw capture of protocol lines")
     p.add_argument("--profile", metavar="F", help="profile TOML with the detection settings to try")
+    p.add_argument("--against", metavar="B",
+                   help="a second profile: replay through both in one pass and show side by side what each "
+                        "detects (touches per key, gained and lost, false touches, the first difference)")
     add_polarity_arg(p)
     p.add_argument("--speed", metavar="X", type=speed_factor, default=0.0,
                    help="replay speed: 1 = real time, 4 = four times faster, 0 = as fast as possible "
@@ -79,13 +84,10 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _run(args: argparse.Namespace) -> int:
+    if args.against is not None:
+        return _against(args)
     profile = load_profile_arg(args.profile)
-    factory = None
-    if args.engine == "firmware":
-        from tui.firmware_engine import check_firmware, firmware_engine
-
-        check_firmware()  # no compiler: one line and exit 2 before any output
-        factory = firmware_engine
+    factory = _engine(args.engine)
     rec = read_recording(args.file, rate_hz=args.rate)
     session = Session(profile, polarity=args.polarity, engine_factory=factory)
     run_ = DetectionRun(session, make_output(args.json), origin_t_s=0.0, every_s=args.every, marks=rec.marks)
@@ -108,4 +110,36 @@ def _run(args: argparse.Namespace) -> int:
             last_t = max(last_t, t_s)
             run_.feed(batch, last_t)
     run_.finish(last_t)
+    return 0
+
+
+def _engine(engine: str) -> Any:
+    """The engine factory for `--engine` (None: the Python engine)."""
+    if engine != "firmware":
+        return None
+    from tui.firmware_engine import check_firmware, firmware_engine
+
+    check_firmware()  # no compiler: one line and exit 2 before any output
+    return firmware_engine
+
+
+def _against(args: argparse.Namespace) -> int:
+    """`--profile A --against B`: both in one pass, then the comparison (`tui.headless.against`)."""
+    from tui.headless.against import AgainstRun, feed_all, write_human, write_json
+
+    if args.profile is None:
+        raise UserError("--against B compares with --profile A: give both profiles")
+    if args.speed > 0 or args.every:
+        raise UserError("--against compares a whole recording at once: leave out --speed and --every")
+    profile_a, profile_b = load_profile_arg(args.profile), load_profile_arg(args.against)
+    assert profile_a is not None and profile_b is not None
+    factory = _engine(args.engine)
+    rec = read_recording(args.file, rate_hz=args.rate)
+    run_ = AgainstRun(profile_a, profile_b, rec.marks, polarity=args.polarity, engine_factory=factory)
+    if rec.truncated:
+        warn_on_stderr("the recording's last line was cut short (the writer was stopped mid-row)")
+    with StopFlag() as stop:
+        last_t = feed_all(run_, paced(rec.events, None), lambda: stop.stopped)
+    write = write_json if args.json else write_human
+    write(run_, args.profile, args.against, last_t)
     return 0
