@@ -440,9 +440,15 @@ def test_check_without_limits_is_a_setup_error_unless_no_limits(profiles):
     report = json_lines(loose.stdout)[0]
     assert report["passed"] and "--no-limits" in report["warnings"][0]
     assert all(c["checks"]["alive"] == "not checked" for c in report["channels"])
-    touch = padtune("check", "sim://greenhouse?script=0", "--profile", str(profiles / "limits.toml"),
-                    "--duration", "1", "--touch", "--json")
-    assert touch.returncode == 0 or "SNR" not in touch.stderr  # limits.toml has min_snr_pp: no refusal
+
+
+def test_check_touch_without_an_snr_limit_is_a_setup_error(profiles, tmp_path):
+    no_snr = load_profile(profiles / "limits.toml")
+    save_profile(replace(no_snr, limits=replace(no_snr.limits, min_snr_pp=None)), tmp_path / "p.toml")
+    out = padtune("check", "sim://greenhouse?script=0", "--profile", str(tmp_path / "p.toml"), "--touch")
+    assert out.returncode == 2 and out.stdout == ""
+    (line,) = out.stderr.splitlines()
+    assert "no SNR limits for zone1" in line
 
 
 def _no_frames_check(profiles: Path, noise: bytes) -> subprocess.CompletedProcess:
