@@ -11,12 +11,16 @@ a shorted pad), quiet (noise pp and RMS of the released deltas below `max_noise_
 touches the panel is stuck). Phase 2, with `--touch`: each key in turn is touched; its touch must be
 detected with the profile's settings, and its SNR (median touched delta / hands-off noise pp) must reach
 `min_snr_pp`. A limit the profile leaves out is reported as not checked, never as passed silently.
+
+Limits are per channel: `evaluate` takes one `Limits` for every channel or one per channel
+(`Profile.limits_for`), and each verdict's reason quotes the limit it was judged by.
+`missing_limits` says which channels a strict check (the default of `padtune check`) cannot judge.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
@@ -28,6 +32,8 @@ from processing.settings import Limits
 from protocol.events import Event, FrameBlock
 
 PASS, FAIL, UNCHECKED = "pass", "fail", "not checked"
+BASELINE_KEYS = ("baseline_min_counts", "baseline_max_counts")
+NOISE_KEYS = ("max_noise_pp_counts", "max_noise_rms_counts")
 Phase = Literal["quiet", "touch"]
 MIN_TOUCH_FRAMES = 3
 
@@ -176,12 +182,28 @@ def _noise(v: ChannelVerdict, limits: Limits) -> None:
         v.reasons.append("noise not measured: too few released frames")
 
 
-def evaluate(probe: UnitProbe, limits: Limits, names: list[str], polarity: list[int],
+def missing_limits(limits: Sequence[Limits], touch: bool) -> dict[int, list[str]]:
+    """Channel -> what it has no limit for ("baseline range", "noise", with `touch` "SNR"): a strict
+    check refuses to start rather than pass a channel it cannot judge."""
+    out: dict[int, list[str]] = {}
+    for c, lim in enumerate(limits):
+        lacks = [what for what, keys in (("baseline range", BASELINE_KEYS), ("noise", NOISE_KEYS))
+                 if all(getattr(lim, k) is None for k in keys)]
+        if touch and lim.min_snr_pp is None:
+            lacks.append("SNR")
+        if lacks:
+            out[c] = lacks
+    return out
+
+
+def evaluate(probe: UnitProbe, limits: Limits | Sequence[Limits], names: list[str], polarity: list[int],
              touch: bool) -> list[ChannelVerdict]:
-    """The verdict of every channel from the collected phases."""
+    """The verdict of every channel from the collected phases, each by its own limits (one `Limits`
+    for all, or one per channel)."""
     _, readings, deltas, states = probe.arrays()
     out = []
     for c, name in enumerate(names):
+        lim = limits if isinstance(limits, Limits) else limits[c]
         released = states[:, c] == KeyState.RELEASED if len(states) else np.zeros(0, bool)
         r = readings[released, c] if released.any() else readings[:, c] if len(readings) else np.zeros(0)
         d = deltas[released, c] if released.any() else np.zeros(0)
@@ -189,11 +211,11 @@ def evaluate(probe: UnitProbe, limits: Limits, names: list[str], polarity: list[
         pp = float(d.max() - d.min()) if len(d) >= 8 else None
         rms = float(np.std(d)) if len(d) >= 8 else None
         v = ChannelVerdict(c, name, baseline, pp, rms)
-        _alive(v, limits, polarity[c] if c < len(polarity) else 1)
-        _noise(v, limits)
+        _alive(v, lim, polarity[c] if c < len(polarity) else 1)
+        _noise(v, lim)
         _stuck(v, probe, states)
         if touch:
-            _snr(v, probe, limits)
+            _snr(v, probe, lim)
         out.append(v)
     return out
 

@@ -36,6 +36,7 @@ TOP_KEYS = ("format_version", "board", "channels", "names", "polarity", "rate_hz
             "group", "slider", "limits")
 Problems = list[tuple[str, str]]
 GROUP_KEYS = ("name", "members", "switch_margin_counts")
+CHANNEL_EXTRA_KEYS = ("measured", "limits")  # [channel.NAME] keys beside the settings
 SLIDER_KEYS = ("name", "pads", "wheel", "resolution")
 
 
@@ -49,7 +50,9 @@ class ProfileError(UserError):
 
 @dataclass(frozen=True)
 class Profile:
-    """Everything a tuned board needs. `overrides` holds full settings for channels that differ."""
+    """Everything a tuned board needs. `overrides` holds full settings for channels that differ;
+    `channel_limits` full limits for channels whose limits differ from `limits` (`[channel.NAME.limits]`);
+    `unmeasured_channels` the keys written from defaults, not measured (`measured = false`)."""
 
     names: tuple[str, ...]
     defaults: ChannelSettings = field(default_factory=ChannelSettings)
@@ -61,6 +64,8 @@ class Profile:
     polarity: tuple[int, ...] = ()  # empty: take it from the board (+1 if the board does not say)
     rate_hz: float | None = None  # the board's frame rate when the profile was saved (informational)
     format_version: int = FORMAT_VERSION
+    channel_limits: Mapping[int, Limits] = field(default_factory=dict)
+    unmeasured_channels: frozenset[int] = frozenset()
 
     @property
     def channels(self) -> int:
@@ -79,6 +84,36 @@ class Profile:
         else:
             overrides[channel] = s
         return replace(self, overrides=overrides)
+
+    def limits_for(self, channel: int) -> Limits:
+        """The limits `check` judges `channel` by: its own `[channel.NAME.limits]` over `[limits]`."""
+        return self.channel_limits.get(channel, self.limits)
+
+    def with_limits(self, channel: int, limits: Limits) -> Profile:
+        """This profile with `channel`'s own limits (dropped when they equal the profile's `[limits]`)."""
+        own = dict(self.channel_limits)
+        if limits == self.limits:
+            own.pop(channel, None)
+        else:
+            own[channel] = limits
+        return replace(self, channel_limits=own)
+
+    def unmeasured(self) -> tuple[int, ...]:
+        """Channels whose settings were written from defaults, not measured (`measured = false`), in order."""
+        return tuple(sorted(self.unmeasured_channels))
+
+    def with_measured(self, channel: int, measured: bool) -> Profile:
+        marks = set(self.unmeasured_channels)
+        if measured:
+            marks.discard(channel)
+        else:
+            marks.add(channel)
+        return replace(self, unmeasured_channels=frozenset(marks))
+
+    def has_limits(self, channel: int, keys: tuple[str, ...]) -> bool:
+        """True when `channel` has at least one of `keys` set (its own limits or the profile's)."""
+        limits = self.limits_for(channel)
+        return any(getattr(limits, k) is not None for k in keys)
 
 
 def default_names(channels: int) -> tuple[str, ...]:
@@ -114,11 +149,12 @@ def _is_int(v: Any) -> bool:
     return isinstance(v, int) and not isinstance(v, bool)
 
 
-def _settings(where: str, table: Any, base: ChannelSettings, out: Problems) -> ChannelSettings | None:
+def _settings(where: str, table: Any, base: ChannelSettings, out: Problems,
+              known: tuple[str, ...] = SETTING_KEYS) -> ChannelSettings | None:
     if not isinstance(table, dict):
         out.append((where.rstrip("."), "must be a table of settings"))
         return None
-    _unknown(where, table, SETTING_KEYS, out)
+    _unknown(where, table, known, out)
     values = {k: v for k, v in table.items() if k in SETTING_KEYS}
     bad = [k for k, v in values.items() if not _is_int(v)]
     for k in bad:
@@ -240,15 +276,17 @@ def _sliders(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[SliderSpe
     return tuple(sliders)
 
 
-def _limits(raw: Any, out: Problems) -> Limits:
+def _limits(raw: Any, out: Problems, where: str = "limits", base: Limits | None = None) -> Limits:
+    """`[limits]`, or a channel's `[channel.NAME.limits]` (`where`) over the profile's (`base`)."""
+    base = base or Limits()
     if raw is None:
-        return Limits()
+        return base
     if not isinstance(raw, dict):
-        out.append(("limits", "must be a table"))
-        return Limits()
-    _unknown("limits.", raw, LIMIT_KEYS, out)
-    limits = Limits(**{k: v for k, v in raw.items() if k in LIMIT_KEYS})
-    out.extend((f"limits.{k}", m) for k, m in limits.problems())
+        out.append((where, "must be a table"))
+        return base
+    _unknown(f"{where}.", raw, LIMIT_KEYS, out)
+    limits = replace(base, **{k: v for k, v in raw.items() if k in LIMIT_KEYS})
+    out.extend((f"{where}.{k}", m) for k, m in limits.problems())
     return limits
 
 
@@ -285,6 +323,8 @@ def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[s
             len(polarity) not in (0, len(names)):
         out.append(("polarity", f"must be a list of {len(names)} values, each 1 or -1 (or left out)"))
     overrides: dict[int, ChannelSettings] = {}
+    own_limits: dict[int, Limits] = {}
+    unmeasured: set[int] = set()
     table = raw.get("channel", {})
     if not isinstance(table, dict):
         out.append(("channel", "must be a table of per-channel tables ([channel.NAME])"))
@@ -295,16 +335,29 @@ def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[s
             hint = f"; did you mean '{close[0]}'?" if close else ""
             out.append((f"channel.{key}", f"no channel named '{key}'{hint}"))
             continue
-        s = _settings(f"channel.{key}.", sub, defaults, out)
+        c = names.index(key)
+        if isinstance(sub, dict):
+            measured = sub.get("measured", True)
+            if not isinstance(measured, bool):
+                out.append((f"channel.{key}.measured", f"must be true or false, not {measured!r}"))
+            elif not measured:
+                unmeasured.add(c)
+            if "limits" in sub:
+                lim = _limits(sub["limits"], out, f"channel.{key}.limits", limits)
+                if lim != limits:
+                    own_limits[c] = lim
+            sub = {k: v for k, v in sub.items() if k not in CHANNEL_EXTRA_KEYS}
+        s = _settings(f"channel.{key}.", sub, defaults, out, SETTING_KEYS + CHANNEL_EXTRA_KEYS)
         if s is not None and s != defaults:
-            overrides[names.index(key)] = s
+            overrides[c] = s
     groups = _groups(raw.get("group"), names, out)
     sliders = _sliders(raw.get("slider"), names, out)
     if out:
         return None, out
     rate = raw.get("rate_hz")
     return Profile(names, defaults, overrides, groups, sliders, limits, raw.get("board", ""),
-                   tuple(polarity), float(rate) if rate is not None else None, raw["format_version"]), out
+                   tuple(polarity), float(rate) if rate is not None else None, raw["format_version"],
+                   own_limits, frozenset(unmeasured)), out
 
 
 def load_profile(path: str | os.PathLike[str]) -> Profile:
@@ -347,10 +400,18 @@ def profile_to_dict(profile: Profile) -> dict[str, Any]:
     if profile.rate_hz is not None:
         doc["rate_hz"] = float(profile.rate_hz)
     doc["defaults"] = _settings_table(profile.defaults, None)
-    channel = {profile.names[c]: _settings_table(s, profile.defaults)
-               for c, s in sorted(profile.overrides.items())}
-    if any(channel.values()):
-        doc["channel"] = {k: v for k, v in channel.items() if v}
+    channel: dict[str, dict[str, Any]] = {}
+    for c, name in enumerate(profile.names):
+        table: dict[str, Any] = _settings_table(profile.settings_for(c), profile.defaults)
+        if c in profile.unmeasured_channels:
+            table["measured"] = False
+        own = _limits_table(profile.limits_for(c), profile.limits, f"channel.{name}.limits")
+        if own:
+            table["limits"] = own
+        if table:
+            channel[name] = table
+    if channel:
+        doc["channel"] = channel
     if profile.groups:
         doc["group"] = [{"name": g.name, "members": [profile.names[m] for m in g.members],
                          "switch_margin_counts": int(g.switch_margin_counts)} for g in profile.groups]
@@ -361,6 +422,20 @@ def profile_to_dict(profile: Profile) -> dict[str, Any]:
     if limits:
         doc["limits"] = limits
     return doc
+
+
+def _limits_table(own: Limits, base: Limits, where: str) -> dict[str, Any]:
+    """The keys of a channel's limits that differ from `[limits]`. TOML has no "unset": a channel cannot
+    leave out a limit `[limits]` sets, so that is refused rather than saved as something else."""
+    table: dict[str, Any] = {}
+    for key, value in asdict(own).items():
+        if value == getattr(base, key):
+            continue
+        if value is None:
+            raise ProfileError([f"{where}.{key}: [limits] sets it and a channel cannot unset it; "
+                                "give this channel its own value (not saved)"])
+        table[key] = value
+    return table
 
 
 def save_profile(profile: Profile, path: str | os.PathLike[str]) -> None:

@@ -95,5 +95,18 @@ class Limits:
             out.append(("baseline_max_counts", f"{hi} must be above baseline_min_counts ({lo})"))
         return out
 
+    def describe(self) -> str:
+        """One line: `baseline 900..1400, noise pp <= 12, noise RMS <= 2.4, SNR pp >= 7` (what is set)."""
+        parts = []
+        lo, hi = self.baseline_min_counts, self.baseline_max_counts
+        if lo is not None or hi is not None:
+            parts.append(f"baseline {'-inf' if lo is None else lo}..{'inf' if hi is None else hi}")
+        for key, words in (("max_noise_pp_counts", "noise pp <="), ("max_noise_rms_counts", "noise RMS <="),
+                           ("min_snr_pp", "SNR pp >=")):
+            value = getattr(self, key)
+            if value is not None:
+                parts.append(f"{words} {value:g}")
+        return ", ".join(parts) or "none"
+
 
 LIMIT_KEYS: tuple[str, ...] = tuple(f.name for f in fields(Limits))

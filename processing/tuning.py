@@ -1,9 +1,12 @@
 """Suggestions for every key of a recording: touches from the marks or found, figures, new settings.
 
 Pure: a `Recording` and a base profile in, a `TuneResult` out (the new profile, and per key what was
-measured, the verdict, the suggestion or the reason for refusing one); `limits_from_result` turns a
-good unit's result into production limits. `padtune tune` prints and saves it (rows for its table and
-JSON: `tui.headless.tuning`); the HTML report draws it.
+measured, the verdict, the suggestion or the reason for refusing one). A key without a suggestion is
+*unmeasured*: it keeps its settings, `TuneResult.unmeasured()` names it and the profile marks it
+(`measured = false`) unless a base profile already held settings for it as measured.
+`limits_from_result` turns a good unit's result into production limits, each channel its own.
+`padtune tune` prints and saves it (rows for its table and JSON: `tui.headless.tuning`); the HTML
+report draws it.
 """
 
 from __future__ import annotations
@@ -16,7 +19,7 @@ import numpy as np
 from processing.measure import VerdictBounds
 from processing.profile import Profile, profile_for, profile_from_board
 from processing.recording_format import Recording
-from processing.settings import ChannelSettings, Limits
+from processing.settings import LIMIT_KEYS, ChannelSettings, Limits
 from processing.startup import Learned, Startup
 from processing.stretches import KeyFigures, KeyTrace, find_touches, key_figures
 from processing.suggest import Refusal, Suggestion, suggest
@@ -40,6 +43,11 @@ class KeyResult:
     def changed(self) -> bool:
         return self.before != self.after
 
+    @property
+    def measured(self) -> bool:
+        """True when this recording gave the key a suggestion (its settings come from its own figures)."""
+        return isinstance(self.outcome, Suggestion)
+
 
 @dataclass
 class TuneResult:
@@ -50,6 +58,10 @@ class TuneResult:
     from_marks: bool
     source: str
     frames: int
+
+    def unmeasured(self) -> list[KeyResult]:
+        """Keys this recording did not measure (no touch found, or a suggestion refused), in order."""
+        return [k for k in self.keys if not k.measured]
 
 
 def base_profile(rec: Recording, base: Profile | None) -> Profile:
@@ -103,27 +115,81 @@ def tune_recording(rec: Recording, base: Profile | None = None,
         after = outcome.apply(before) if isinstance(outcome, Suggestion) else before
         keys.append(KeyResult(c, profile.names[c], figures, bounds.verdict(figures.snr_pp), outcome, before,
                               after, trace))
-        profile = profile.with_settings(c, after)
+        # Unmeasured: settings from defaults, not from this key. A base profile's unmarked key keeps
+        # its claim (it was measured before); a key from defaults, or marked in the base, is marked.
+        from_defaults = base is None or c in base.unmeasured_channels
+        measured = isinstance(outcome, Suggestion) or not from_defaults
+        profile = profile.with_settings(c, after).with_measured(c, measured)
     profile = replace(profile, rate_hz=rate_hz)
     return TuneResult(profile, keys, t_s, rate_hz, bool(traces and traces[0].from_marks), rec.path, len(t_s))
 
 
-def limits_from_result(result: TuneResult, readings: np.ndarray, baseline_margin: float = 0.2) -> Limits:
-    """Acceptance limits for `padtune check` from a recording of a good unit.
+# Margins of `limits_from_result` (common practice, no source; from memory of production test plans):
+# a pad's count varies unit to unit with the RC parts' tolerance (5-10 %), the overlay's thickness and
+# its adhesive, and drifts with temperature, so a good unit's own baseline is widened by 20 % each side;
+# a short or an open pad moves it by far more (a missing pad loses most of its capacitance). Noise pp
+# grows with the number of frames it is taken over and with the room's interference, so the limit is
+# three times the good unit's own; a channel quieter than one count is treated as one count, so a
+# perfectly quiet reference does not give a limit no real unit meets. The SNR floor is 70 % of the
+# weakest key's (a finger is not a fixture), for every key alike.
+NOISE_LIMIT_FACTOR = 3.0
+MIN_NOISE_PP_COUNTS = 1.0
+MIN_NOISE_RMS_COUNTS = 0.3
+SNR_LIMIT_SHARE = 0.7
 
-    Common practice, no source: the baseline range is the good unit's lowest and highest baseline
-    widened by `baseline_margin` (20 %), the noise limits three times its noisiest key, and the SNR
-    limit 70 % of its weakest key (so the same design passes with margin and a bad unit does not).
-    """
-    baselines = np.median(readings, axis=0)
-    pps = [k.figures.noise_pp_counts for k in result.keys if k.figures.noise_pp_counts is not None]
-    rmss = [k.figures.noise_rms_counts for k in result.keys if k.figures.noise_rms_counts is not None]
-    snrs = [k.figures.snr_pp for k in result.keys
-            if k.figures.snr_pp is not None and np.isfinite(k.figures.snr_pp) and k.trace.stretches]
+
+def _untouched_readings(result: TuneResult, readings: np.ndarray, c: int) -> np.ndarray:
+    """A channel's readings outside its own touches (edges of a touch are in the touch's stretch)."""
+    keep = np.ones(len(readings), bool)
+    for start, stop in result.keys[c].trace.stretches:
+        keep[start:stop] = False
+    return readings[keep, c] if keep.any() else np.zeros(0)
+
+
+def channel_limits(result: TuneResult, readings: np.ndarray, c: int, baseline_margin: float) -> Limits:
+    """One channel's own baseline range and noise limits from a good unit (see the margins above)."""
+    key = result.keys[c]
+    untouched = _untouched_readings(result, readings, c)
+    pp, rms = key.figures.noise_pp_counts, key.figures.noise_rms_counts
+    lo = hi = None
+    if len(untouched):
+        lo = math.floor(float(untouched.min()) * (1 - baseline_margin))
+        hi = max(math.ceil(float(untouched.max()) * (1 + baseline_margin)), lo + 1)
     return Limits(
-        max_noise_pp_counts=float(math.ceil(3 * max(pps))) if pps and max(pps) > 0 else None,
-        max_noise_rms_counts=round(3 * max(rmss), 1) if rmss and max(rmss) > 0 else None,
-        min_snr_pp=round(0.7 * min(snrs), 1) if snrs else None,
-        baseline_min_counts=math.floor(float(baselines.min()) * (1 - baseline_margin)),
-        baseline_max_counts=math.ceil(float(baselines.max()) * (1 + baseline_margin)),
-    )
+        max_noise_pp_counts=float(math.ceil(NOISE_LIMIT_FACTOR * max(pp, MIN_NOISE_PP_COUNTS)))
+        if pp is not None else None,
+        max_noise_rms_counts=round(NOISE_LIMIT_FACTOR * max(rms, MIN_NOISE_RMS_COUNTS), 1)
+        if rms is not None else None,
+        baseline_min_counts=lo, baseline_max_counts=hi)
+
+
+def limits_from_result(result: TuneResult, readings: np.ndarray,
+                       baseline_margin: float = 0.2) -> tuple[Limits, dict[int, Limits]]:
+    """Acceptance limits for `padtune check` from a recording of a good unit: `[limits]` (the SNR floor,
+    and the whole unit's band and noise for any channel without its own) and each channel's own.
+
+    Each channel gets its own baseline range (its lowest and highest untouched reading widened by
+    `baseline_margin`) and noise limits, so a pad that drifts to another pad's count fails. The
+    margins and where they come from are above (`NOISE_LIMIT_FACTOR`, ...).
+    """
+    own = {c: channel_limits(result, readings, c, baseline_margin) for c in range(len(result.keys))}
+    snrs = [k.figures.snr_pp for k in result.keys
+            if k.measured and k.figures.snr_pp is not None and np.isfinite(k.figures.snr_pp)]
+    pps = [v.max_noise_pp_counts for v in own.values() if v.max_noise_pp_counts is not None]
+    rmss = [v.max_noise_rms_counts for v in own.values() if v.max_noise_rms_counts is not None]
+    los = [v.baseline_min_counts for v in own.values() if v.baseline_min_counts is not None]
+    his = [v.baseline_max_counts for v in own.values() if v.baseline_max_counts is not None]
+    common = Limits(max_noise_pp_counts=max(pps, default=None), max_noise_rms_counts=max(rmss, default=None),
+                    min_snr_pp=round(SNR_LIMIT_SHARE * min(snrs), 1) if snrs else None,
+                    baseline_min_counts=min(los, default=None), baseline_max_counts=max(his, default=None))
+    return common, {c: replace(v, min_snr_pp=common.min_snr_pp) for c, v in own.items()}
+
+
+def with_limits(profile: Profile, common: Limits, own: dict[int, Limits]) -> Profile:
+    """`profile` with `[limits]` = `common` and each channel's own limits (where they differ)."""
+    out = replace(profile, limits=common, channel_limits={})
+    for c, limits in own.items():
+        # A channel keeps what [limits] sets and it could not measure (TOML cannot unset a key).
+        filled = replace(limits, **{k: getattr(common, k) for k in LIMIT_KEYS if getattr(limits, k) is None})
+        out = out.with_limits(c, filled)
+    return out

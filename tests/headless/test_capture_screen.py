@@ -138,9 +138,17 @@ async def test_ignored_key_is_asked_again_then_skipped_and_apply_one():
         await pilot.press("a")  # the cursor is on zone1
         await pilot.pause()
         assert list(screen.applied) == [0]
-        await pilot.press("escape")
+        # Apply all: the first A names zone2 (not measured) and applies nothing more; the second applies
+        # every suggestion and leaves zone2 as it was.
+        await pilot.press("A")
         await pilot.pause()
-    assert list(app.result) == [0]
+        assert list(screen.applied) == [0] and screen.is_current
+        warning = [n.message for n in app._notifications if "Not measured" in n.message]
+        assert warning and "zone2: no touch seen" in warning[-1]
+        await pilot.press("A")
+        await pilot.pause()
+    assert 1 not in app.result and 0 in app.result
+    assert set(app.result) == {o.channel for o in screen.outcomes if o.suggested}
 
 
 async def test_skip_key_moves_on_and_release_step_waits():

@@ -224,7 +224,8 @@ def test_check_does_not_learn_it_says_what_it_assumes(tmp_path, given):
     save_profile(profile_for(3), tmp_path / "three.toml")
     board = FallingBoard(tmp_path, lines=400, touches=())
     proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "check", str(board.pty.path), "--profile",
-                             str(tmp_path / "three.toml"), "--duration", "1", "--json", *given],
+                             str(tmp_path / "three.toml"), "--duration", "1", "--json", "--no-limits",
+                             *given],
                             cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     try:
         deadline = time.monotonic() + WAIT_S

@@ -374,39 +374,118 @@ def test_record_on_a_terminal_marks_a_moment_on_enter(tmp_path):
     assert rec.frames > 0
 
 
-def test_limits_from_a_good_unit_pass_it_and_fail_a_short(profiles, tmp_path):
-    """The production flow: record a good unit, `tune --limits`, then `check` units against it."""
-    out = padtune("tune", str(profiles / "gh.csv"), "-o", str(tmp_path / "golden.toml"), "--limits", "--json")
+def _serve(board: SimBoard):
+    """A simulated board on a pseudo-terminal, served from this process (so a test can change its pads)."""
+    server = PtyServer(board)
+    stop = threading.Event()
+    thread = threading.Thread(target=server.serve, args=(stop.is_set,), daemon=True)
+    thread.start()
+
+    def close() -> None:
+        stop.set()
+        thread.join(5)
+        server.close()
+    return server, close
+
+
+def test_limits_from_a_good_unit_pass_it_and_fail_a_short_and_a_drifted_pad(profiles, tmp_path):
+    """The production flow: record a good unit, `tune --limits`, then `check` units against it. Each
+    channel has its own baseline range: dur0 (about 1,170 counts) drifted to stop's count (about 1,660)
+    is inside the whole unit's band (dur's lowest -20 % .. stop's highest +20 %) but outside its own."""
+    golden = tmp_path / "golden.toml"
+    out = padtune("tune", str(profiles / "gh.csv"), "-o", str(golden), "--limits", "--json")
     assert out.returncode == 0, out.stderr
-    limits = json_lines(out.stdout)[0]["limits"]
-    assert all(limits[k] is not None for k in ("max_noise_pp_counts", "min_snr_pp", "baseline_min_counts"))
-    good = padtune("check", "sim://greenhouse?seed=9&script=0", "--profile", str(tmp_path / "golden.toml"),
-                   "--duration", "1.5")
+    tuned = json_lines(out.stdout)[0]
+    assert tuned["limits"]["min_snr_pp"] is not None
+    own = {c["name"]: c["limits"] for c in tuned["channels"]}
+    stop_mid = (own["stop"]["baseline_min_counts"] + own["stop"]["baseline_max_counts"]) / 2
+    assert own["dur0"]["baseline_max_counts"] < stop_mid  # stop's count lies outside dur0's own range
+    assert all(v["max_noise_pp_counts"] and v["baseline_min_counts"] for v in own.values())
+    good = padtune("check", "sim://greenhouse?seed=9&script=0", "--profile", str(golden), "--duration", "1.5")
     assert good.returncode == 0, good.stdout
     assert "PASS: every channel passed" in good.stdout
     bad = padtune("check", "sim://greenhouse?seed=9&script=0&fault=short:zone1", "--profile",
-                  str(tmp_path / "golden.toml"), "--duration", "1.5")
+                  str(golden), "--duration", "1.5")
     assert bad.returncode == 1 and "FAIL: zone1" in bad.stdout and "shorted pad?" in bad.stdout
 
-
-def test_check_fails_a_silent_unit_and_warns_about_missing_limits(profiles):
-    import tty
-
-    master, slave = os.openpty()  # a port where nothing ever speaks: a dead unit
-    tty.setraw(slave)
+    board = SimBoard("greenhouse", seed=9, script=False)
+    names = list(board.spec.names)
+    board.model.parasitic_f[names.index("dur0")] = board.model.parasitic_f[names.index("stop")]
+    server, close = _serve(board)
+    whole_unit = tmp_path / "whole.toml"
+    save_profile(replace(load_profile(golden), channel_limits={}), whole_unit)  # [limits] only
     try:
-        out = padtune("check", os.ttyname(slave), "--profile", str(profiles / "limits.toml"),
-                      "--duration", "1", "--json")
+        drifted = padtune("check", server.path, "--profile", str(golden), "--duration", "1.5", "--json")
+        banded = padtune("check", server.path, "--profile", str(whole_unit), "--duration", "1.5", "--json")
     finally:
-        os.close(slave)
-        os.close(master)
-    assert out.returncode == 1, out.stderr
-    report = json_lines(out.stdout)[0]
-    assert report["passed"] is False and "no frames" in report["reason"]
+        close()
+    assert drifted.returncode == 1, drifted.stderr
+    report = json_lines(drifted.stdout)[0]
+    failed = [c for c in report["channels"] if not c["passed"]]
+    assert [c["name"] for c in failed] == ["dur0"] and failed[0]["checks"]["alive"] == "fail"
+    assert f"above the allowed {own['dur0']['baseline_min_counts']}..{own['dur0']['baseline_max_counts']}" \
+        in failed[0]["reasons"][0]
+    assert banded.returncode == 0, banded.stdout  # one band for all channels passes the drifted pad
+
+
+def test_check_without_limits_is_a_setup_error_unless_no_limits(profiles):
     bare = padtune("check", "sim://greenhouse?script=0", "--profile", str(profiles / "tuned.toml"),
                    "--duration", "1")
-    assert bare.returncode == 0 and "not checked" not in bare.stdout
-    assert "the profile has no [limits]" in bare.stderr
+    assert bare.returncode == 2 and bare.stdout == ""
+    (line,) = bare.stderr.splitlines()
+    assert "no baseline range or noise limits for zone1" in line and "--no-limits" in line
+    loose = padtune("check", "sim://greenhouse?script=0", "--profile", str(profiles / "tuned.toml"),
+                    "--duration", "1", "--no-limits", "--json")
+    assert loose.returncode == 0, loose.stderr
+    report = json_lines(loose.stdout)[0]
+    assert report["passed"] and "--no-limits" in report["warnings"][0]
+    assert all(c["checks"]["alive"] == "not checked" for c in report["channels"])
+
+
+def test_check_touch_without_an_snr_limit_is_a_setup_error(profiles, tmp_path):
+    no_snr = load_profile(profiles / "limits.toml")
+    save_profile(replace(no_snr, limits=replace(no_snr.limits, min_snr_pp=None)), tmp_path / "p.toml")
+    out = padtune("check", "sim://greenhouse?script=0", "--profile", str(tmp_path / "p.toml"), "--touch")
+    assert out.returncode == 2 and out.stdout == ""
+    (line,) = out.stderr.splitlines()
+    assert "no SNR limits for zone1" in line
+
+
+def _no_frames_check(profiles: Path, noise: bytes) -> subprocess.CompletedProcess:
+    """`check --json` on a pseudo-terminal where a writer sends `noise` over and over (or nothing)."""
+    import tty
+
+    master, slave = os.openpty()
+    tty.setraw(slave)
+    stop = threading.Event()
+
+    def write() -> None:
+        while noise and not stop.wait(0.05):
+            os.write(master, noise)
+    writer = threading.Thread(target=write, daemon=True)
+    writer.start()
+    try:
+        return padtune("check", os.ttyname(slave), "--profile", str(profiles / "limits.toml"),
+                       "--duration", "1", "--json")
+    finally:
+        stop.set()
+        writer.join(5)
+        os.close(slave)
+        os.close(master)
+
+
+def test_check_with_no_data_or_the_wrong_baud_rate_is_a_setup_error(profiles):
+    silent = _no_frames_check(profiles, b"")
+    assert silent.returncode == 2, silent.stderr
+    assert "no data from" in json_lines(silent.stdout)[0]["error"]
+    assert "no data from" in silent.stderr.splitlines()[-1] and "Traceback" not in silent.stderr
+    # What a UART at the wrong rate delivers: framing-error bytes (as tests/protocol/test_linkwatch.py).
+    garbage = bytes([0x00, 0x80, 0xF8, 0xFE, 0xE0, 0x78, 0x0A, 0xF0] * 8)
+    wrong = _no_frames_check(profiles, garbage)
+    assert wrong.returncode == 2, wrong.stderr
+    report = json_lines(wrong.stdout)[0]
+    assert report["passed"] is False and report["channels"] == []
+    assert "baud rate" in report["error"] and "not one frame" in report["error"]
 
 
 def _run_on_pty(args: list[str], no_color: bool) -> bytes:
@@ -516,7 +595,8 @@ def test_check_measures_its_duration_from_the_first_frame(tmp_path):
     save_profile(profile_for(2, names=("a", "b")), tmp_path / "two.toml")
     board = PtyBoard(tmp_path)
     proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "check", str(board.path), "--profile",
-                             str(tmp_path / "two.toml"), "--duration", "1", "--json"], cwd=ROOT,
+                             str(tmp_path / "two.toml"), "--duration", "1", "--json", "--no-limits"],
+                            cwd=ROOT,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     try:
         # Bytes sent before the port is open would be flushed: wait until the check holds it open.

@@ -91,20 +91,32 @@ def test_note_marks_alone_judge_no_touch(work, tmp_path):
     assert not any("false_touches" in c for c in channels)
 
 
-def test_tune_uses_marks_when_present(work, tmp_path):
+def test_tune_refuses_keys_it_did_not_measure_unless_partial(work, tmp_path):
+    """Only zone1 is marked touched: the other keys were never measured. Without --partial: exit 1, each
+    named on stderr and in the table, no profile written; with it: exit 0, each marked measured = false."""
     folder, _, _ = work
     data = (folder / "gh.raw").read_bytes()
     marks = [Mark(0.2, "quiet-start"), Mark(1.8, "quiet-end"),
              Mark(2.05, "touch-start", "zone1"), Mark(2.55, "touch-end", "zone1")]
     write_recording(tmp_path / "m.csv", data, marks)
-    out = padtune("tune", str(tmp_path / "m.csv"), "-o", str(tmp_path / "m.toml"), "--json")
+    refused = padtune("tune", str(tmp_path / "m.csv"), "-o", str(tmp_path / "m.toml"))
+    assert refused.returncode == 1 and not (tmp_path / "m.toml").exists()
+    assert "padtune: zone2: not measured: no touch found" in refused.stderr
+    assert "Traceback" not in refused.stderr and "--partial" in refused.stderr.splitlines()[-1]
+    assert re.search(r"zone2[ |]+NO\b", refused.stdout) and re.search(r"zone1[ |]+yes\b", refused.stdout)
+    out = padtune("tune", str(tmp_path / "m.csv"), "-o", str(tmp_path / "m.toml"), "--json", "--partial")
     assert out.returncode == 0, out.stderr
     result = json_lines(out.stdout)[0]
     assert result["from_marks"] is True
     rows = {r["name"]: r for r in result["channels"]}
-    assert rows["zone1"]["suggested"] and rows["zone1"]["touches"] == 1
+    assert rows["zone1"]["suggested"] and rows["zone1"]["touches"] == 1 and rows["zone1"]["measured"]
     assert not rows["zone2"]["suggested"] and "no touch" in rows["zone2"]["refusal"]
-    human = padtune("tune", str(tmp_path / "m.csv"), "-o", str(tmp_path / "m.toml"))
+    assert "zone2" in result["unmeasured"] and "zone1" not in result["unmeasured"]
+    profile = load_profile(tmp_path / "m.toml")
+    assert [profile.names[c] for c in profile.unmeasured()] == result["unmeasured"]
+    assert "[channel.zone2]\nmeasured = false" in (tmp_path / "m.toml").read_text()
+    human = padtune("tune", str(tmp_path / "m.csv"), "-o", str(tmp_path / "m.toml"), "--partial")
+    assert human.returncode == 0 and "marked measured = false (--partial)" in human.stderr
     assert "from the recording's marks" in human.stdout and "zone2: no suggestion" in human.stdout
     assert (tmp_path / "m.toml.bak").exists()  # the second save kept the first profile
 

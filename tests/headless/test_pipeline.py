@@ -100,7 +100,8 @@ def test_every_headless_command_steps_through_the_pipeline(command: str, counted
     port = "sim://greenhouse?speed=4&seed=2"
     args = {"monitor": ["monitor", port, "--duration", "0.5", "--json"],
             "record": ["record", port, "--duration", "0.5", "-o", str(tmp_path / "r.csv")],
-            "check": ["check", port, "--duration", "0.5", "--json", "--profile", str(tmp_path / "p.toml")]}
+            "check": ["check", port, "--duration", "0.5", "--json", "--profile", str(tmp_path / "p.toml"),
+                      "--no-limits"]}
     save_profile(profile_for(9), tmp_path / "p.toml")  # the greenhouse board has 9 keys
     code = cli.main(args[command])
     out = capsys.readouterr()

@@ -97,15 +97,48 @@ def test_a_base_profile_keeps_its_other_settings() -> None:
     assert result.keys[1].before.stuck_timeout_frames == 700
 
 
-def test_limits_of_a_good_unit() -> None:
+def test_limits_of_a_good_unit_per_channel() -> None:
     r = readings()
     result = tune_recording(recording(r))
-    limits = limits_from_result(result, r, baseline_margin=0.2)
-    pp = max(k.figures.noise_pp_counts for k in result.keys)
-    rms = max(k.figures.noise_rms_counts for k in result.keys)
+    common, own = limits_from_result(result, r, baseline_margin=0.2)
     snr = min(k.figures.snr_pp for k in result.keys)
-    assert limits.max_noise_pp_counts == math.ceil(3 * pp) == 30  # 3x the noisiest key, pp 10
-    assert limits.max_noise_rms_counts == pytest.approx(3 * rms, abs=0.05)
-    assert limits.min_snr_pp == pytest.approx(0.7 * snr, abs=0.05)
-    # Baselines 1000 and 2000 (+-1 for the noise's median), widened by 20 %.
-    assert 799 <= limits.baseline_min_counts <= 801 and 2398 <= limits.baseline_max_counts <= 2403
+    assert common.min_snr_pp == pytest.approx(0.7 * snr, abs=0.05)
+    for c, (base, k) in enumerate(zip(BASE, NOISE, strict=True)):
+        lim = own[c]
+        # Each channel's own noise: pp 2k (uniform -k..k), the limit 3x it.
+        assert lim.max_noise_pp_counts == 3 * 2 * k
+        assert lim.max_noise_rms_counts == pytest.approx(3 * math.sqrt(((2 * k + 1) ** 2 - 1) / 12), rel=0.1)
+        # Its own untouched range base-k..base+k widened by 20 %: the other pad's count is outside.
+        assert lim.baseline_min_counts == math.floor((base - k) * 0.8)
+        assert lim.baseline_max_counts == math.ceil((base + k) * 1.2)
+        other = BASE[1 - c]
+        assert not lim.baseline_min_counts <= other <= lim.baseline_max_counts
+    assert common.baseline_min_counts == own[0].baseline_min_counts
+    assert common.baseline_max_counts == own[1].baseline_max_counts
+
+
+def test_a_perfectly_quiet_channel_gets_a_noise_limit_a_real_unit_can_meet() -> None:
+    r = readings()
+    r[:, 0] = np.where(np.arange(len(r)) // 100 % 4 == 3, 1200, 1000)  # quiet, then touched stretches
+    result = tune_recording(recording(r))
+    _, own = limits_from_result(result, r)
+    assert result.keys[0].figures.noise_pp_counts == 0
+    assert own[0].max_noise_pp_counts == 3.0  # one count, times three
+
+
+def test_a_key_never_touched_is_unmeasured_and_marked() -> None:
+    r = readings()
+    r[500:600, 1] -= STEP[1]  # valve never touched
+    result = tune_recording(recording(r))
+    assert [k.name for k in result.unmeasured()] == ["valve"]
+    assert result.profile.unmeasured() == (1,)
+    assert result.profile.settings_for(1) == result.keys[1].before  # kept, not invented
+
+
+def test_a_base_profiles_measured_key_keeps_its_claim_and_a_marked_one_is_cleared_when_measured() -> None:
+    r = readings()
+    r[500:600, 1] -= STEP[1]
+    base = profile_for(2, NAMES).with_measured(0, False)
+    result = tune_recording(recording(r), base)
+    assert [k.name for k in result.unmeasured()] == ["valve"]  # not measured by this recording
+    assert result.profile.unmeasured() == ()  # pump measured now; valve's base settings were measured

@@ -1,8 +1,11 @@
 """`padtune check PORT_OR_URL --profile F`: a production test of one unit, with a pass/fail exit code.
 
 Hands off for `--duration` seconds (alive, noise, stuck), then with `--touch` each key in turn. Prints
-a pass/fail table (or one JSON report with `--json`); exit 0 when every channel passes, 1 otherwise,
-2 for a usage or input error. See `processing.acceptance` for what each check means.
+a pass/fail table (or one JSON report with `--json`); exit 0 when every channel passes, 1 when the
+unit failed, 2 for a setup or usage problem: a profile without limits for some channel (unless
+`--no-limits`), no frames at all (no unit, the wrong port or baud rate, an unreadable stream), an
+interrupted run. Each channel is judged by its own limits (`Profile.limits_for`). See
+`processing.acceptance` for what each check means.
 """
 
 from __future__ import annotations
@@ -15,9 +18,10 @@ from typing import Any
 
 from rich.console import Console
 
-from processing.acceptance import ChannelVerdict, UnitProbe, evaluate
+from processing.acceptance import ChannelVerdict, UnitProbe, evaluate, missing_limits
+from processing.profile import Profile
 from processing.session import Session
-from processing.settings import Limits
+from processing.settings import LIMIT_KEYS, Limits
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import (
@@ -38,7 +42,9 @@ def register(sub: argparse._SubParsersAction) -> None:
         "check", help="production test of one unit against a profile's acceptance limits",
         description="Check one unit: every channel alive (baseline inside the profile's range: no open or "
         "shorted pad), noise below the limit, no key stuck; with --touch, each key is asked for in turn "
-        "and its SNR checked. Exit 0 pass, 1 fail, 2 usage or input error.")
+        "and its SNR checked. Each channel is judged by its own limits ([channel.NAME.limits] over "
+        "[limits]). "
+        "Exit 0 pass, 1 a unit failed, 2 a setup problem (no limits, no frames, wrong baud rate).")
     p.add_argument("port", metavar="PORT_OR_URL", nargs="+",
                    help="serial device (/dev/ttyACM0, COM3) or pyserial URL (sim://greenhouse?speed=4); "
                         "several ports test several units at once, one fixture per port")
@@ -51,6 +57,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--touch", action="store_true", help="then ask for each key in turn and check its SNR")
     p.add_argument("--touch-timeout", metavar="S", type=seconds, default=10.0,
                    help="with --touch: seconds to wait for each key (default %(default)s)")
+    p.add_argument("--no-limits", action="store_true",
+                   help="check even where the profile sets no limits (those checks read 'not checked'); "
+                        "without it such a profile is a setup error (exit 2)")
     p.add_argument("--json", action="store_true", help="print the report as one JSON object")
     p.add_argument("--report", metavar="FILE.html", help="also write an HTML report with plots")
     p.add_argument("--unit", metavar="ID", action="append",
@@ -76,6 +85,9 @@ def run(args: argparse.Namespace) -> int:
         check_report_path(args.report)
     profile = load_profile_arg(args.profile)
     assert profile is not None  # --profile is required
+    limits = [profile.limits_for(c) for c in range(profile.channels)]
+    if not args.no_limits:
+        _refuse_missing_limits(args, profile.names, limits)
     console = make_console(stderr=True)
     session = Session(profile, polarity=args.polarity)
     link = open_link(args.port, args.baud)
@@ -87,7 +99,8 @@ def run(args: argparse.Namespace) -> int:
             rising = lambda: assume_rising(session, console.print)  # noqa: E731
             if not quiet_phase(pipeline, probe, args.duration, stop, rising) and not stop.stopped:
                 elapsed_s = time.monotonic() - origin
-                return quiet_broken_pipe(lambda: _dead_unit(args, elapsed_s), code_on_pipe=1)
+                seen = (link.stats.bytes_in, link.baud_suspect)
+                return quiet_broken_pipe(lambda: _no_frames(args, elapsed_s, *seen), code_on_pipe=2)
             names = list(session.names)
             if profile.channels != session.channels:
                 raise UserError(f"the board has {session.channels} channels, the profile "
@@ -99,8 +112,8 @@ def run(args: argparse.Namespace) -> int:
     finally:
         link.stop()
     assert session.engine is not None
-    verdicts = evaluate(probe, profile.limits, names, session.engine.pol.tolist(), args.touch)
-    report = _report(args, session, profile.limits, verdicts, time.monotonic() - origin)
+    verdicts = evaluate(probe, limits, names, session.engine.pol.tolist(), args.touch)
+    report = _report(args, session, profile, verdicts, time.monotonic() - origin)
     code = 0 if report["passed"] else 1
     # The verdict is the exit code even when the reader of the output went away (`| head`).
     quiet_broken_pipe(lambda: _show(args, report, verdicts, console), code_on_pipe=code)
@@ -111,18 +124,40 @@ def run(args: argparse.Namespace) -> int:
     return code
 
 
-def _report(args: argparse.Namespace, session: Session, limits: Limits, verdicts: list[ChannelVerdict],
+def _refuse_missing_limits(args: argparse.Namespace, names: tuple[str, ...], limits: list[Limits]) -> None:
+    """A strict check cannot pass a channel it has no limits for: one line, exit 2 (a setup problem)."""
+    missing = missing_limits(limits, args.touch)
+    if not missing:
+        return
+    whats = sorted({w for lacks in missing.values() for w in lacks})
+    shown = [names[c] for c in list(missing)[:6]] + (["..."] if len(missing) > 6 else [])
+    raise UserError(f"{args.profile}: no {' or '.join(whats)} limits for {', '.join(shown)}: set them with "
+                    "`padtune tune GOOD_UNIT.csv --limits -o ...` (or [limits] in the profile), or give "
+                    "--no-limits to check without them")
+
+
+def _report(args: argparse.Namespace, session: Session, profile: Profile, verdicts: list[ChannelVerdict],
             elapsed_s: float) -> dict[str, Any]:
     """The JSON report (also what the HTML report is drawn from)."""
-    keys = list(limits.__dataclass_fields__)
     warnings = []
-    if all(getattr(limits, k) is None for k in keys):
-        warnings.append("the profile has no [limits]: only stuck keys (and --touch) were checked")
+    missing = missing_limits([profile.limits_for(c) for c in range(profile.channels)], args.touch)
+    if missing:  # only with --no-limits: strict checks refused to start
+        warnings.append("--no-limits: no limits for " + ", ".join(
+            f"{profile.names[c]} ({', '.join(lacks)})" for c, lacks in missing.items()) + ": not checked")
+    if profile.unmeasured():
+        warnings.append("the profile marks " + ", ".join(profile.names[c] for c in profile.unmeasured())
+                        + " measured = false: their settings were not tuned on a touch")
+    channels = []
+    for v in verdicts:
+        row = v.as_dict()
+        own = profile.limits_for(v.channel)
+        row["limits"] = {k: getattr(own, k) for k in LIMIT_KEYS}
+        channels.append(row)
     return {"type": "check", "t": round(elapsed_s, 3), "passed": all(v.passed for v in verdicts),
             "warnings": warnings, "port": args.port, "board": session.info.board if session.info else None,
             "serial": session.info.fields.get("serial") if session.info else None,
             "profile": args.profile, "duration_s": args.duration, "touch": args.touch,
-            "limits": {k: getattr(limits, k) for k in keys}, "channels": [v.as_dict() for v in verdicts]}
+            "limits": {k: getattr(profile.limits, k) for k in LIMIT_KEYS}, "channels": channels}
 
 
 def _show(args: argparse.Namespace, report: dict[str, Any], verdicts: list[ChannelVerdict],
@@ -138,19 +173,27 @@ def _show(args: argparse.Namespace, report: dict[str, Any], verdicts: list[Chann
     return 0
 
 
-def _dead_unit(args: argparse.Namespace, elapsed_s: float) -> int:
-    """Not one frame: a failed unit (or the wrong port or baud rate), reported like any failure."""
+def _no_frames(args: argparse.Namespace, elapsed_s: float, bytes_in: int, baud_suspect: bool) -> int:
+    """Not one frame: a setup problem (no unit, the wrong port or baud rate, an unreadable stream), not a
+    failed unit. One line on stderr, and with `--json` the JSON object with the same `error`; exit 2."""
     from protocol.opening import has_baud_rate
 
-    check = "the cable, the port and the baud rate" if has_baud_rate(args.port) else "the bridge and the URL"
-    reason = f"no frames from {args.port} in {elapsed_s:.1f} s: a dead unit, or check {check}"
+    if bytes_in and (baud_suspect or has_baud_rate(args.port)):
+        why = "mostly not text: the baud rate is probably wrong" if baud_suspect else "check the baud rate"
+        reason = (f"{bytes_in} bytes from {args.port} in {elapsed_s:.1f} s but not one frame: {why} "
+                  f"(--baud, now {args.baud or DEFAULT_BAUD})")
+    elif bytes_in:
+        reason = f"{bytes_in} bytes from {args.port} in {elapsed_s:.1f} s but not one frame: unreadable"
+    else:
+        check = "the cable, the port and the baud rate" if has_baud_rate(args.port) else \
+            "the bridge and the URL"
+        reason = f"no data from {args.port} in {elapsed_s:.1f} s: no unit, or check {check}"
     if args.json:
         sys.stdout.write(json.dumps({"type": "check", "t": round(elapsed_s, 3), "passed": False,
-                                     "port": args.port, "profile": args.profile, "reason": reason,
+                                     "port": args.port, "profile": args.profile, "error": reason,
                                      "channels": []}) + "\n")
-    else:
-        make_console().print(f"FAIL: {reason}")
-    return 1
+    print(f"padtune: {reason}; no verdict", file=sys.stderr)
+    return 2
 
 
 def _print_table(verdicts: list[ChannelVerdict], touch: bool) -> None:

@@ -3,6 +3,9 @@
 The touched stretches come from the recording's marks (touch-start/touch-end per key, quiet-start/
 quiet-end) or, without marks, are found in the deltas. The result is written as a profile (atomic,
 the old file kept as .bak) and printed as a table, with the reason behind every suggestion or refusal.
+A key the recording did not measure is never written as if it had been: the table and stderr name it,
+and without `--partial` nothing is written and the exit code is 1; with it the profile marks the key
+(`measured = false`) and the exit code is 0.
 """
 
 from __future__ import annotations
@@ -10,13 +13,13 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from dataclasses import replace
 from pathlib import Path
 
 from processing.profile import save_profile
 from processing.recording import read_recording
 from processing.settings import LIMIT_KEYS
-from processing.tuning import TuneResult, limits_from_result, tune_recording
+from processing.suggest import Refusal
+from processing.tuning import KeyResult, TuneResult, limits_from_result, tune_recording, with_limits
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import frame_rate, load_profile_arg, percentage, quiet_broken_pipe
@@ -28,7 +31,8 @@ def register(sub: argparse._SubParsersAction) -> None:
         "tune", help="suggest settings per key from a recording and write a profile",
         description="Measure noise and touch signal of every key in a recording (marks, or touches found "
         "in the data), suggest threshold, hysteresis and debounce with their reasons, write the profile "
-        "and print a table. Keys without a usable touch keep their settings and say why.")
+        "and print a table. Keys without a usable touch keep their settings and say why; then nothing is "
+        "written and the exit code is 1, unless --partial writes them marked measured = false.")
     p.add_argument("file", metavar="FILE", help="recording (CSV) or raw capture of protocol lines")
     p.add_argument("-o", "--output", metavar="PROFILE", required=True, help="profile TOML to write")
     p.add_argument("--profile", metavar="F",
@@ -38,10 +42,15 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--rate", metavar="HZ", type=frame_rate,
                    help="frame rate of a raw capture without info line")
     p.add_argument("--limits", action="store_true",
-                   help="also set the profile's production limits from this recording of a good unit "
-                        "(baseline range, noise, SNR; see README)")
+                   help="also set the profile's production limits from this recording of a good unit: "
+                        "each channel's own baseline range and noise limits, one SNR floor (see README)")
+    p.add_argument("--partial", action="store_true",
+                   help="write the profile even if some keys were not measured (they are marked "
+                        "measured = false and keep their settings); without it such a run writes nothing "
+                        "and exits 1")
     p.add_argument("--baseline-margin", metavar="PCT", type=percentage, default=20.0,
-                   help="with --limits: widen the good unit's baseline range by PCT %% (default 20)")
+                   help="with --limits: widen each channel's baseline range by PCT %% of its own count "
+                        "(default 20)")
     p.set_defaults(func=run)
 
 
@@ -60,8 +69,13 @@ def run(args: argparse.Namespace) -> int:
     rec = read_recording(args.file, rate_hz=args.rate)
     result = tune_recording(rec, base)
     if args.limits:
-        limits = limits_from_result(result, rec.arrays()[2], args.baseline_margin / 100)
-        result.profile = replace(result.profile, limits=limits)
+        common, own = limits_from_result(result, rec.arrays()[2], args.baseline_margin / 100)
+        result.profile = with_limits(result.profile, common, own)
+    missing = result.unmeasured()
+    if missing and not args.partial:  # the table and the reasons, but no profile that looks tuned
+        quiet_broken_pipe(lambda: _show(args, result, None), code_on_pipe=1)
+        _say_unmeasured(missing, written=False)
+        return 1
     page = None
     if args.report:  # drawn before anything is saved: a failure here leaves no new profile behind
         from tui.report.tune_report import build_tune_report
@@ -72,26 +86,50 @@ def run(args: argparse.Namespace) -> int:
         from tui.report.html import write_page
 
         write_page(args.report, page)
-    return quiet_broken_pipe(lambda: _show(args, result, out))
+    code = quiet_broken_pipe(lambda: _show(args, result, out))
+    if missing:
+        _say_unmeasured(missing, written=True)
+    return code
 
 
-def _show(args: argparse.Namespace, result: TuneResult, out: Path) -> int:
+def _say_unmeasured(missing: list[KeyResult], written: bool) -> None:
+    """One line on stderr per unmeasured key, then what was (not) done about them."""
+    for k in missing:
+        why = k.outcome.reason if isinstance(k.outcome, Refusal) else "no suggestion"
+        print(f"padtune: {k.name}: not measured: {why}", file=sys.stderr)
+    names = ", ".join(k.name for k in missing)
+    if written:
+        print(f"padtune: {names} written with unmeasured settings, marked measured = false (--partial)",
+              file=sys.stderr)
+    else:
+        print(f"padtune: not measured: {names}; no profile written. Record those keys being touched, "
+              "or give --partial to write them marked measured = false", file=sys.stderr)
+
+
+def _show(args: argparse.Namespace, result: TuneResult, out: Path | None) -> int:
     if args.json:
         limits = {k: getattr(result.profile.limits, k) for k in LIMIT_KEYS}
-        sys.stdout.write(json.dumps({"type": "tune", "source": result.source, "profile": str(out),
+        rows = result_rows(result)
+        for row, c in zip(rows, range(len(rows)), strict=True):
+            own = result.profile.limits_for(c)
+            row["limits"] = {k: getattr(own, k) for k in LIMIT_KEYS}  # type: ignore[typeddict-unknown-key]
+        sys.stdout.write(json.dumps({"type": "tune", "source": result.source,
+                                     "profile": str(out) if out is not None else None,
                                      "from_marks": result.from_marks, "rate_hz": result.rate_hz,
                                      "frames": result.frames, "limits": limits,
-                                     "channels": result_rows(result)}) + "\n")
+                                     "unmeasured": [k.name for k in result.unmeasured()],
+                                     "channels": rows}) + "\n")
     else:
         print_result(result, out)
     return 0
 
 
-def print_result(result: TuneResult, out: Path) -> None:
+def print_result(result: TuneResult, out: Path | None) -> None:
     console = make_console()
     plain = not console.is_terminal
-    rows = result_rows(result)
-    columns = [("name", "key"), ("touches", "touches"), ("noise_pp", "noise pp"), ("noise_rms", "noise rms"),
+    rows = [dict(row, measured="yes" if row["measured"] else "NO") for row in result_rows(result)]
+    columns = [("name", "key"), ("measured", "measured"), ("touches", "touches"), ("noise_pp", "noise pp"),
+               ("noise_rms", "noise rms"),
                ("signal", "signal"), ("snr_pp", "SNR pp"), ("snr_rms", "SNR rms"), ("verdict", "verdict"),
                ("threshold", "threshold"), ("hysteresis", "hyst"), ("touch_debounce", "touch db"),
                ("release_debounce", "release db")]
@@ -108,5 +146,11 @@ def print_result(result: TuneResult, out: Path) -> None:
     limits = [f"{k} {getattr(result.profile.limits, k)}" for k in LIMIT_KEYS
               if getattr(result.profile.limits, k) is not None]
     if limits:
-        console.print("production limits: " + ", ".join(limits))
-    console.print(f"profile written to {out}")
+        console.print("production limits ([limits]): " + ", ".join(limits))
+    for c, name in enumerate(result.profile.names):
+        if c in result.profile.channel_limits:
+            console.print(f"{name} limits: {result.profile.limits_for(c).describe()}")
+    if out is not None:
+        console.print(f"profile written to {out}")
+    else:
+        console.print("no profile written: some keys were not measured (see above)")

@@ -26,6 +26,7 @@ class KeyRow(TypedDict):
     touch_debounce: int | None
     release_debounce: int | None
     suggested: bool
+    measured: bool  # False: the key keeps settings it was not measured for (marked in the profile)
     reasons: dict[str, str]  # setting -> why it was suggested
     refusal: str | None  # why nothing was suggested
 
@@ -45,6 +46,7 @@ def result_rows(result: TuneResult) -> list[KeyRow]:
             "touch_debounce": s.touch_debounce_frames if ok else None,
             "release_debounce": s.release_debounce_frames if ok else None,
             "suggested": ok,
+            "measured": k.measured,
             "reasons": dict(k.outcome.reasons) if isinstance(k.outcome, Suggestion) else {},
             "refusal": k.outcome.reason if isinstance(k.outcome, Refusal) else None,
         })

@@ -26,18 +26,21 @@ def build_check_report(report: dict[str, Any], probe: UnitProbe, session: Sessio
                      "status": "pass" if ch["passed"] else "fail", "reason": "; ".join(ch["reasons"]) or "-"})
     verdict = "PASS" if report["passed"] else "FAIL"
     limit_text = ", ".join(f"{k} {v}" for k, v in limits.items() if v is not None) or "none set"
+    if any(ch.get("limits", limits) != limits for ch in report["channels"]):
+        limit_text += " (the profile's [limits]; some channels have their own, each plot shows its own)"
     body = [f"<p class=\"banner {verdict.lower()}\" data-field=\"verdict\">{verdict}</p>",
             f"<p class=\"sub\">limits: {escape(limit_text)}</p>",
             f"<h2>Channels</h2>{html.table(COLUMNS, rows, row_class='status')}"]
     for row in rows:
         c, name = row["index"], row["name"]
         s = session.settings(c)
+        own_pp = row.get("limits", limits).get("max_noise_pp_counts")  # the channel's own limit
         d = deltas[:, c] if deltas.size else np.zeros(0)
         touched = np.array(probe.touch_samples.get(c, []), float)
         figures = [
             html.figure(delta_plot(t_s, d, float(s.threshold_counts), float(s.release_level_counts),
                                    title=f"{name}: hands-off delta",
-                                   noise_limit_pp_counts=limits.get("max_noise_pp_counts")),
+                                   noise_limit_pp_counts=own_pp),
                         name, "delta", f"{name}: delta with hands off, threshold and release level"),
             # Hands off is not "untouched": a stuck key or a stray touch shows in it.
             html.figure(histogram_plot(d, touched, float(s.threshold_counts), title=f"{name}: deltas",

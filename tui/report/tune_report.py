@@ -39,6 +39,9 @@ def build_tune_report(result: TuneResult) -> str:
         notes = [f"<li>{escape(k)}: {escape(v)}</li>" for k, v in row["reasons"].items()]  # type: ignore
         if row["refusal"]:
             notes.append(f"<li>no suggestion: {escape(str(row['refusal']))}</li>")
+        if not row["measured"]:  # written with --partial: it keeps settings it was not measured for
+            notes.append("<li>not measured: keeps its settings (marked measured = false in the profile "
+                         "unless the base profile held it as measured)</li>")
         body.append(f'<section data-key="{escape(name)}"><h2>{escape(name)}</h2>'
                     f"{html.table(COLUMNS, [row])}<ul class=\"reasons\">{''.join(notes)}</ul>"
                     f"<div class=\"figures\">{''.join(figures)}</div></section>")

@@ -15,7 +15,10 @@ then its reasons (Tab to scroll them when they do not fit).
 On a simulated board the screen presses keys itself (`press`, from the source): `p` holds or lets go of
 the key asked for, `t` touches it until its step is done, `1`..`0` hold or let go of keys 1..10; any key
 it still holds is let go when it closes. `a` applies the selected key's suggestion, `A` all of them,
-Esc closes. The screen dismisses with `{channel: ChannelSettings}` of what to apply (empty when
+Esc closes. A key without a suggestion (skipped, never touched, refused) is never applied as if it had
+been measured: the first `A` names each such key and why, and applies nothing; a second `A` applies
+the others, and those keys keep their settings (as `padtune tune` without `--partial` writes nothing).
+The screen dismisses with `{channel: ChannelSettings}` of what to apply (empty when
 nothing was).
 
 What it draws is plain rich in `tui.render.capture`. Open it with `open_capture(screen, source,
@@ -107,6 +110,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         self.wizard: CaptureWizard | None = None
         self.outcomes: list[CaptureOutcome] = []
         self.applied: dict[int, ChannelSettings] = {}
+        self._partial_confirmed = False  # "A" once named the keys without a suggestion
         self.held: set[int] = set()  # simulated keys this screen holds down
         self._touching: int | None = None  # `t`: held until its touch step is done
         self._history: object | None = None
@@ -405,9 +409,19 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
             self._close()
 
     def action_apply_all(self) -> None:
+        unmeasured = [o for o in self.outcomes if not o.suggested]
+        if unmeasured and not self._partial_confirmed:
+            self._partial_confirmed = True
+            why = "; ".join(f"{o.name}: {getattr(o.suggestion, 'reason', '-')}" for o in unmeasured)
+            self.notify(f"Not measured, nothing applied yet: {why}. Press A again to apply the other keys "
+                        "(these keep their settings), or Esc to close.", severity="warning", timeout=15)
+            return
         for o in self.outcomes:
             if o.suggested:
                 self.applied[o.channel] = o.after
+        if unmeasured:
+            self.notify("Applied all but " + ", ".join(o.name for o in unmeasured) + " (not measured).",
+                        severity="warning")
         self._close()
 
     def action_discard(self) -> None:
