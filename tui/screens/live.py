@@ -33,7 +33,7 @@ from processing.settings import ChannelSettings
 from protocol.errors import UserError
 from protocol.events import BoardChanged
 from tui.editor import Editor, EditResult, Outcome
-from tui.fields import EDIT_FIELDS, FROM_NOISE, POLARITY_KEY, field, polarity_word
+from tui.fields import EDIT_FIELDS, FROM_NOISE, NO_RATE, POLARITY_KEY, TIME_KEYS, field, polarity_word
 from tui.files import FileQueue, ReplaceOnce, new_recording_path, writable_path
 from tui.log_feed import LogFeed
 from tui.pacing import FramePacer
@@ -266,7 +266,8 @@ class LiveScreen(Screen[None]):
         self.edit_bar.view = EditBarView(names[ch], self.source.settings(ch), self.field_key,
                                          f"{ch + 1}/{len(names)}" if len(names) > 1 else "",
                                          self.source.polarity(ch), status, pending,
-                                         board_status(ch) if board_status is not None else ())
+                                         board_status(ch) if board_status is not None else (),
+                                         self.source.rate_hz)
         if detail and self.detail:
             self._draw_detail()
 
@@ -381,12 +382,21 @@ class LiveScreen(Screen[None]):
             unit = "a shift n: the baseline moves 1/2ⁿ of the way a step" if f.unit == "shift" else f.unit
             question, now = f"{name}: new {f.label} ({unit})", str(getattr(self.source.settings(ch), key))
 
+        rate = self.source.rate_hz
+        hint = f"allowed: {self.editor.allowed(ch, key, rate)}"
+        if key in TIME_KEYS:  # frame counts may be typed as times (tui/fields.py says how they round)
+            question = question[:-1] + ", or a time: 40ms, 0.04s)"
+            if not rate:
+                hint += f"\n{NO_RATE}"
+
         def done(text: str | None) -> None:
             if text is not None:
-                self._report(self.editor.type_value(ch, key, text))
+                self._report(self.editor.type_value(ch, key, text, self.source.rate_hz))
 
-        self.app.push_screen(PromptScreen(question, now, lambda text: self.editor.check_text(ch, key, text),
-                                          hint=f"allowed: {self.editor.allowed(ch, key)}"), done)
+        self.app.push_screen(PromptScreen(question, now,
+                                          lambda text: self.editor.check_text(ch, key, text, rate),
+                                          hint=hint, note=lambda text: self.editor.rounding(key, text, rate)),
+                             done)
 
     def action_apply_all(self) -> None:
         self._report(self.editor.copy_to_all(self.cursor))
