@@ -23,7 +23,6 @@ from tui.fields import (
     allowed_range,
     field,
     parse_polarity,
-    parse_value,
     polarity_meaning,
     polarity_word,
     stepped,
