@@ -96,6 +96,11 @@ class SessionSource:
     def rate_hz(self) -> float | None:
         return self.session.rate_hz if self.session.engine else None
 
+    @property
+    def known_rate_hz(self) -> float | None:
+        """The board's frame rate once stated or measured (None while assumed): what times in ms use."""
+        return self.session.known_rate_hz if self.session.engine else None
+
     def poll(self) -> Tick:
         step = self.pipeline.step()
         self._polls += 1

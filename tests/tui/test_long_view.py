@@ -119,3 +119,29 @@ async def test_a_time_typed_in_the_dialog_becomes_frames_and_the_log_says_the_ro
 def test_time_axis_units_and_words() -> None:
     assert [time_unit(s)[0] for s in (8, 120, 121, 7200, 7201)] == ["s", "s", "min", "min", "h"]
     assert [span_words(s) for s in (45, 600, 5400, 36000)] == ["45 s", "10 min", "90 min", "10 h"]
+
+
+async def test_without_a_known_rate_the_dialog_says_ms_cannot_be_used_yet(monkeypatch) -> None:
+    from tui.fields import NO_RATE
+    from tui.session_source import SessionSource
+
+    monkeypatch.setattr(SessionSource, "known_rate_hz", property(lambda self: None))
+    app = demo_app()
+    async with app.run_test(size=(120, 40)) as pilot:
+        await settle(pilot)
+        await pilot.press("right", "right", "enter")
+        await pilot.pause()
+        assert NO_RATE.startswith("ms cannot be used yet")
+        assert screen_text(app).count("ms cannot be used yet") == 1  # the hint (the dialog wraps it)
+        await pilot.press("ctrl+a", "ctrl+k", *"40ms", "enter")
+        await pilot.pause()
+        assert "✗ ms cannot be used yet" in screen_text(app)
+        assert app.source.settings(0).touch_debounce_frames == 2  # nothing changed, the dialog stays
+
+
+def test_the_source_knows_the_rate_only_once_stated_or_measured() -> None:
+    app = demo_app()
+    assert app.source.known_rate_hz is None  # no frames yet
+    app.source.producer.advance(1.0)
+    app.source.poll()
+    assert app.source.known_rate_hz == 60.0  # the greenhouse board states 60 Hz

@@ -272,7 +272,7 @@ class LiveScreen(Screen[None]):
                                          f"{ch + 1}/{len(names)}" if len(names) > 1 else "",
                                          self.source.polarity(ch), status, pending,
                                          board_status(ch) if board_status is not None else (),
-                                         self.source.rate_hz)
+                                         self._time_rate_hz())
         if detail and self.detail:
             self._draw_detail()
 
@@ -296,6 +296,12 @@ class LiveScreen(Screen[None]):
             list(self.feed.recent.get(ch, ())), self.source.rate_hz, self.source.polarity(ch), status,
             pending, self._long_view(ch),
         )
+
+    def _time_rate_hz(self) -> float | None:
+        """The rate times in ms are shown and typed at: the board's, once stated or measured (a source
+        that cannot tell gives the rate it runs at)."""
+        known = getattr(type(self.source), "known_rate_hz", None)
+        return self.source.known_rate_hz if known is not None else self.source.rate_hz  # type: ignore[attr-defined]
 
     def _long_view(self, ch: int) -> LongView | None:
         """The zoomed-out history for the panel, when it is zoomed out and the source keeps one."""
@@ -395,7 +401,7 @@ class LiveScreen(Screen[None]):
             unit = "a shift n: the baseline moves 1/2ⁿ of the way a step" if f.unit == "shift" else f.unit
             question, now = f"{name}: new {f.label} ({unit})", str(getattr(self.source.settings(ch), key))
 
-        rate = self.source.rate_hz
+        rate = self._time_rate_hz()
         hint = f"allowed: {self.editor.allowed(ch, key, rate)}"
         if key in TIME_KEYS:  # frame counts may be typed as times (tui/fields.py says how they round)
             question = question[:-1] + ", or a time: 40ms, 0.04s)"
@@ -404,7 +410,7 @@ class LiveScreen(Screen[None]):
 
         def done(text: str | None) -> None:
             if text is not None:
-                self._report(self.editor.type_value(ch, key, text, self.source.rate_hz))
+                self._report(self.editor.type_value(ch, key, text, self._time_rate_hz()))
 
         self.app.push_screen(PromptScreen(question, now,
                                           lambda text: self.editor.check_text(ch, key, text, rate),
