@@ -414,7 +414,8 @@ class LiveScreen(Screen[None]):
 
         self.app.push_screen(PromptScreen(question, now,
                                           lambda text: self.editor.check_text(ch, key, text, rate),
-                                          hint=hint, note=lambda text: self.editor.rounding(key, text, rate)),
+                                          hint=hint, note=(lambda text: self.editor.rounding(key, text, rate))
+                                          if key in TIME_KEYS else None),
                              done)
 
     def action_apply_all(self) -> None:

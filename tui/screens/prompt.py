@@ -88,7 +88,10 @@ class PromptScreen(ModalScreen[str | None]):
 
     def on_input_changed(self, event: Input.Changed) -> None:
         if self._note:
-            self.query_one("#prompt-note", Static).update(self._note(event.value))
+            note = self.query_one("#prompt-note", Static)
+            text = self._note(event.value)
+            note.update(text)
+            note.display = bool(text)  # no empty line while the text amounts to nothing to say
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()

@@ -158,8 +158,10 @@ class DetailPanel(Vertical):
             widget.refresh()
             return
         s = view.series
-        span = view.window_s if view.window_s is not None else max(view.covered_s(), 1e-9)
-        unit, scale = time_unit(max(span, view.covered_s()))
+        # the window, or less while the session is shorter (the title then says "whole session")
+        covered = max(view.covered_s(), 1e-9)
+        span = min(view.window_s, covered) if view.window_s is not None else covered
+        unit, scale = time_unit(span)
         t = ((s.t_first_s + s.t_last_s) / 2 - view.now_s) / scale
         points = max(10, widget.size.width * 2)
         # min and max of each bucket, in time order, thinned again only if the buckets outnumber cells
@@ -175,7 +177,7 @@ class DetailPanel(Vertical):
         plt.plot(t_env.tolist(), env.tolist(), label="reading min–max" if legend else None, marker="braille")
         # the baseline last, over the readings: its drift is what the long view is for
         plt.plot(t_b.tolist(), baseline.tolist(), label="baseline" if legend else None, marker="·")
-        left = -(view.window_s if view.window_s is not None else view.covered_s()) / scale
+        left = -span / scale
         plt.xlim(left, 0.0)
         ticks = np.linspace(left, 0.0, 5 if widget.size.width >= 40 else 3)
         plt.xticks(ticks.tolist(), [_tick(x) for x in ticks])
