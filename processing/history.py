@@ -138,6 +138,11 @@ class LongHistory:
                           self._bmax[sl, channel].copy(), self.span)
 
     @property
+    def newest_s(self) -> float | None:
+        """Host time of the newest frame (None before the first)."""
+        return float(self._t1[len(self) - 1]) if len(self) else None
+
+    @property
     def span_s(self) -> float:
         """Host seconds from the first frame to the last (0 before two frames)."""
         n = len(self)

@@ -195,7 +195,8 @@ class SessionSource:
         lh, e = self.long_history, self.session.engine
         if lh is None or len(lh) < 2 or e is None or not 0 <= channel < lh.channels:
             return None
-        now = float(lh.series(channel, since_s=None).t_last_s[-1])
+        now = lh.newest_s
+        assert now is not None  # two buckets or more
         series = lh.series(channel, None if window_s is None else now - window_s)
         pol = int(e.pol[channel]) if hasattr(e, "pol") else 1
         return LongView(series, now, window_s, lh.span_s, pol, lh.span / self.session.rate_hz)
