@@ -476,6 +476,12 @@ class Session(FirstContact):
             self.notices.append(f"the board's time column does not give the frame rate "
                                 f"({self._clock.refused}): measuring it from arrival times")
 
+    @property
+    def known_rate_hz(self) -> float | None:
+        """The frame rate the board stated or its frames showed; None while only assumed (times in ms
+        are converted at it, so not at a guess)."""
+        return self._declared_rate()
+
     def _declared_rate(self) -> float | None:
         return self.measures.rate_hz if self.measures is not None and self._rate_declared else None
 

@@ -31,7 +31,12 @@ NOTES = {
                         "(edit it, run the guided capture w, or load a profile). The state reads '~ noise' "
                         "while its quiet second is measured (hands off; the edit bar shows its threshold as "
                         "--), '? learn' until a first touch shows which way its counts move"),
+    # The detail panel's zoom keys act only while it shows (LiveScreen.check_action): said here otherwise.
+    "chan.spectrum": ("z,Z", "With the detail panel open (d): zoom out to 1 min, 10 min, 1 h and the whole "
+                      "session (z), back in (Z)"),
 }
+# A note left out when the action it stands for is listed itself.
+NOTE_UNLESS = {"chan.spectrum": "chan.zoom_out"}
 
 
 @dataclass(frozen=True, slots=True)
@@ -89,6 +94,8 @@ def help_rows(actions: Iterable[KeyAction]) -> list[tuple[str, str, str]]:
     """(section, keys, description) for every action, sections in the order of `SECTIONS`; the demo
     keys 1..0 collapse into one row."""
     rows: list[tuple[str, str, str]] = []
+    actions = list(actions)
+    listed = {a.binding.id for a in actions}
     for a in sorted(actions, key=_section_order):
         ident = a.binding.id or ""
         if ident.startswith("demo.key"):
@@ -97,7 +104,7 @@ def help_rows(actions: Iterable[KeyAction]) -> list[tuple[str, str, str]]:
                              "simulated board"))
             continue
         rows.append((a.section, a.keys, a.sentence))
-        if ident in NOTES:
+        if ident in NOTES and NOTE_UNLESS.get(ident) not in listed:
             rows.append((a.section, *NOTES[ident]))
     return rows
 

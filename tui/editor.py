@@ -23,10 +23,10 @@ from tui.fields import (
     allowed_range,
     field,
     parse_polarity,
-    parse_value,
     polarity_meaning,
     polarity_word,
     stepped,
+    typed_frames,
     with_value,
 )
 from tui.words import plural, with_unit
@@ -80,46 +80,65 @@ class Editor:
             return self.set_polarity(channel, 1 if steps > 0 else -1)
         return self.set_value(channel, key, stepped(self.target.settings(channel), key, steps, coarse))
 
-    def set_value(self, channel: int, key: str, value: int) -> EditResult:
+    def set_value(self, channel: int, key: str, value: int, note: str = "") -> EditResult:
+        """`note` (how a typed time became frames) follows the log line and the refusal."""
         if not self._has(channel):
             return NO_BOARD
         old = self.target.settings(channel)
         new, reason = with_value(old, key, value)
         f = field(key)
+        said = f" ({note})" if note else ""
         if reason:
-            return EditResult(Outcome.REFUSED,
-                              f"Refused: {reason}. It stays {with_unit(getattr(old, key), f.unit)}.")
+            return EditResult(Outcome.REFUSED, f"Refused: {reason}{said}. "
+                              f"It stays {with_unit(getattr(old, key), f.unit)}.")
         name = self._name(channel)
         before = getattr(old, key)
         if before == value:
-            return EditResult(Outcome.UNCHANGED, f"{name}: {f.label} is {value} already.")
-        return self._apply(f"{name}: {f.label} {before} → {value}", [Change(channel, old, new)],
+            return EditResult(Outcome.UNCHANGED, f"{name}: {f.label} is {value} already{said}.")
+        return self._apply(f"{name}: {f.label} {before} → {value}{said}", [Change(channel, old, new)],
                            back=f"{f.label} {before} again")
 
-    def check_text(self, channel: int, key: str, text: str) -> str | None:
-        """Why a typed value would be refused (one line), or None: for the value dialog's check."""
+    def check_text(self, channel: int, key: str, text: str, rate_hz: float | None = None) -> str | None:
+        """Why a typed value would be refused (one line), or None: for the value dialog's check. Frame
+        counts may be typed as times (`40ms`, `0.04s`) at the board's `rate_hz`."""
         try:
             if key == POLARITY_KEY:
                 parse_polarity(text)
                 return None
-            return with_value(self.target.settings(channel), key, parse_value(text, key))[1]
+            value, time = typed_frames(text, key, rate_hz)
+            reason = with_value(self.target.settings(channel), key, value)[1]
+            return f"{reason} ({time.note()})" if reason and time else reason
         except ValueError as exc:
             return str(exc)
 
-    def type_value(self, channel: int, key: str, text: str) -> EditResult:
-        """A value typed in the dialog: a whole number, or for the polarity `+`, `-` or `?`."""
+    def rounding(self, key: str, text: str, rate_hz: float | None) -> str:
+        """What a typed time becomes (`40 ms = 2.4 frames at 60 Hz: 2 frames (33 ms)`), or empty when
+        the text is no time (or not readable yet): the value dialog shows it as the user types."""
+        if key == POLARITY_KEY:
+            return ""
+        try:
+            time = typed_frames(text, key, rate_hz)[1]
+        except ValueError:
+            return ""
+        return time.note() if time else ""
+
+    def type_value(self, channel: int, key: str, text: str, rate_hz: float | None = None) -> EditResult:
+        """A value typed in the dialog: a whole number (or a time for a frame count, at `rate_hz`), or
+        for the polarity `+`, `-` or `?`."""
         try:
             if key == POLARITY_KEY:
                 return self.set_polarity(channel, parse_polarity(text))
-            return self.set_value(channel, key, parse_value(text, key))
+            value, time = typed_frames(text, key, rate_hz)
+            return self.set_value(channel, key, value, time.note() if time else "")
         except ValueError as exc:
             return EditResult(Outcome.REFUSED, f"Refused: {exc}.")
 
-    def allowed(self, channel: int, key: str) -> str:
-        """What `key` may be set to on `channel` now, in words (for the value dialog)."""
+    def allowed(self, channel: int, key: str, rate_hz: float | None = None) -> str:
+        """What `key` may be set to on `channel` now, in words (for the value dialog); frame counts in
+        ms too at `rate_hz`."""
         if key == POLARITY_KEY:
             return "+ (counts rise on touch), - (they fall) or ? (learn it from the next touch)"
-        return allowed_range(self.target.settings(channel), key) if self._has(channel) else ""
+        return allowed_range(self.target.settings(channel), key, rate_hz) if self._has(channel) else ""
 
     def set_polarity(self, channel: int, sign: int | None) -> EditResult:
         """+ counts rise on touch, - they fall, None: learn it again from the next touch."""

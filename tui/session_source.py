@@ -23,6 +23,7 @@ import numpy as np
 from processing.board_settings import BoardValues, Difference, differences
 from processing.detections import KeyState
 from processing.fixed import FRAC_BITS, tdiv_pow2_np
+from processing.history import LongHistory
 from processing.measure import ChannelQuality
 from processing.profile import Profile, load_profile, save_profile
 from processing.session import Session
@@ -41,7 +42,7 @@ from protocol.events import (
 from protocol.linkwatch import SILENT_AFTER_S
 from tui.board_sync import BoardSync
 from tui.pipeline import Pipeline, Producer
-from tui.render.views import ChannelView, GroupView, LinkView, Series, SliderView, Spectrum
+from tui.render.views import ChannelView, GroupView, LinkView, LongView, Series, SliderView, Spectrum
 from tui.source import FileJob, Tick
 
 # The engine's states as the screen names them (lower case), looked up once, not per channel and frame.
@@ -86,11 +87,19 @@ class SessionSource:
         self._board_read: BoardValues | None = None
         self._profile_given = profile is not None  # else the board's own settings are the start
         self.board_values: BoardValues | None = None
+        # The detail panel's long view: the whole session decimated (processing.history), bounded at
+        # LongHistory's 1024 buckets (1 MiB for 64 channels); appended in `poll`, O(1) per frame.
+        self.long_history: LongHistory | None = None
 
     # -- data in ----------------------------------------------------------------------------------
     @property
     def rate_hz(self) -> float | None:
         return self.session.rate_hz if self.session.engine else None
+
+    @property
+    def known_rate_hz(self) -> float | None:
+        """The board's frame rate once stated or measured (None while assumed): what times in ms use."""
+        return self.session.known_rate_hz if self.session.engine else None
 
     def poll(self) -> Tick:
         step = self.pipeline.step()
@@ -115,6 +124,8 @@ class SessionSource:
         if self._saved is None and self.session.profile is not None:
             self._saved = self.session.profile  # the defaults the board came up with: nothing to save yet
         self._board_step(step.events, tick)
+        if tick.frames:
+            self._keep_long(tick.frames)
         tick.errors.extend(f"recording stopped: {reason}" for reason in step.recording_errors)
         now = self.clock()
         if tick.frames:
@@ -161,6 +172,34 @@ class SessionSource:
         if start + n <= h.capacity:
             return arr[start:start + n]
         return np.concatenate((arr[start:], arr[: start + n - h.capacity]))
+
+    def _keep_long(self, frames: int) -> None:
+        """Hand the poll's new frames (reading and baseline) to the long history; a board of another
+        width starts it again."""
+        m, e = self.session.measures, self.session.engine
+        if m is None or e is None or len(m.history) == 0:
+            return
+        h = m.history
+        n = min(frames, len(h))
+        if self.long_history is None or self.long_history.channels != h.readings.shape[1]:
+            self.long_history = LongHistory(h.readings.shape[1])
+        start = (h.written - n) % h.capacity
+        idx = (start + np.arange(n)) % h.capacity if start + n > h.capacity else slice(start, start + n)
+        readings = h.readings[idx]
+        pol = np.asarray(getattr(e, "pol", 1))
+        baselines = readings - pol * h.deltas[idx]
+        self.long_history.append(h.t_s[idx], readings.astype(np.float32), baselines.astype(np.float32))
+
+    def long_view(self, channel: int, window_s: float | None) -> LongView | None:
+        """The last `window_s` seconds of `channel` from the long history (None: the whole session)."""
+        lh, e = self.long_history, self.session.engine
+        if lh is None or len(lh) < 2 or e is None or not 0 <= channel < lh.channels:
+            return None
+        now = lh.newest_s
+        assert now is not None  # two buckets or more
+        series = lh.series(channel, None if window_s is None else now - window_s)
+        pol = int(e.pol[channel]) if hasattr(e, "pol") else 1
+        return LongView(series, now, window_s, lh.span_s, pol, lh.span / self.session.rate_hz)
 
     def _sparks(self, points: int) -> np.ndarray | None:
         if self.session.measures is None or len(self.session.measures.history) == 0:

@@ -11,7 +11,17 @@ from collections.abc import Collection, Mapping
 from rich.text import Text
 
 from processing.settings import ChannelSettings
-from tui.fields import FIELDS, POLARITY_FIELD, POLARITY_KEY, Field, polarity_meaning, polarity_word
+from tui.fields import (
+    FIELDS,
+    POLARITY_FIELD,
+    POLARITY_KEY,
+    TIME_KEYS,
+    Field,
+    format_ms,
+    frames_to_ms,
+    polarity_meaning,
+    polarity_word,
+)
 from tui.render import Styles, pick
 from tui.words import unit_word, with_unit
 
@@ -43,7 +53,7 @@ def settings_text(settings: ChannelSettings, selected_key: str | None, styles: S
         else:
             text.append(f"{value:>6} {unit_word(value, f.unit)}", pick(styles, role))
         if rate_hz and f.unit == "frames" and value:
-            text.append(f" {_duration(value / rate_hz)}", pick(styles, "dim"))
+            text.append(f" {format_ms(frames_to_ms(value, rate_hz))}", pick(styles, "dim"))
         if f.unit == "shift" and 0 <= value < 31:  # what the shift stands for: the fraction a step
             text.append(f" 1/{2 ** value}", pick(styles, "dim"))
         text.append("\n")
@@ -60,13 +70,10 @@ def settings_text(settings: ChannelSettings, selected_key: str | None, styles: S
     return text
 
 
-def _duration(seconds: float) -> str:
-    return f"{seconds * 1000:.0f} ms" if seconds < 10 else f"{seconds:.0f} s"
-
-
 def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: Styles, width: int,
              position: str = "", polarity: int | None = 1, status: str = "",
-             pending: Collection[str] = (), board: Mapping[str, str] | None = None) -> Text:
+             pending: Collection[str] = (), board: Mapping[str, str] | None = None,
+             rate_hz: float | None = None) -> Text:
     """One line: the selected channel and its settings in their groups, then its polarity, the field
     under edit marked `▸` and named in full with its unit. `status` ("provisional", "measuring noise")
     follows the name when the settings are not tuned yet; `pending` settings read `--`.
@@ -77,11 +84,14 @@ def edit_bar(name: str, settings: ChannelSettings, selected_key: str, styles: St
     `board` (a board that takes settings) maps each setting it was sent to `applied`, `refused`,
     `sending` or `no answer`: a glyph follows that value, the field under edit says the word too, and
     the head sums up the channel (`✗ 1 refused`, `✓ on board`).
+
+    A frame count under edit also reads in ms at the board's `rate_hz` (`▸touch 3 frames = 50 ms`).
     """
     board = board or {}
     groups = _field_groups()
     chosen = next(i for i, g in enumerate(groups) if any(f.key == selected_key for f in g))
-    pieces = [_group_pieces(g, settings, selected_key, styles, polarity, pending, board) for g in groups]
+    pieces = [_group_pieces(g, settings, selected_key, styles, polarity, pending, board, rate_hz)
+              for g in groups]
     head = Text(no_wrap=True, end="")
     head.append(f"{name} ", pick(styles, "header"))
     if position:
@@ -166,7 +176,7 @@ def _mark(text: Text, key: str, selected: bool, board: Mapping[str, str], styles
 
 def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: str, styles: Styles,
                   polarity: int | None = 1, pending: Collection[str] = (),
-                  board: Mapping[str, str] | None = None) -> Text:
+                  board: Mapping[str, str] | None = None, rate_hz: float | None = None) -> Text:
     board = board or {}
     text = Text(no_wrap=True, end="")
     if group[0].group:
@@ -188,7 +198,7 @@ def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: s
             shown = f"▸{f.short} {NOT_YET} (set from its noise)" if chosen else f"{f.short} {NOT_YET}"
             text.append(shown, pick(styles, "cursor" if chosen else "pending"))
         elif f.key == selected_key:
-            text.append(f"▸{f.short} {_meaning(f, value)}", pick(styles, "cursor"))
+            text.append(f"▸{f.short} {_meaning(f, value, rate_hz)}", pick(styles, "cursor"))
         else:
             shown = "never" if f.key == "stuck_timeout_frames" and value == 0 else str(value)
             text.append(f"{f.short} {shown}", pick(styles, "dim"))
@@ -197,11 +207,14 @@ def _group_pieces(group: list[Field], settings: ChannelSettings, selected_key: s
     return text
 
 
-def _meaning(f: Field, value: int) -> str:
-    """The value under edit and what it stands for: with its unit, or for the baseline follow shifts
-    the fraction of the way the baseline moves a step (a shift of 6 moves it 1/64 of the way)."""
+def _meaning(f: Field, value: int, rate_hz: float | None = None) -> str:
+    """The value under edit and what it stands for: with its unit (a frame count in ms too, at the
+    board's rate), or for the baseline follow shifts the fraction of the way the baseline moves a step
+    (a shift of 6 moves it 1/64 of the way)."""
     if f.key == "stuck_timeout_frames" and value == 0:
         return "never"
+    if f.key in TIME_KEYS and rate_hz and rate_hz > 0:
+        return f"{with_unit(value, f.unit)} = {format_ms(frames_to_ms(value, rate_hz))}"
     if f.unit == "shift":
         toward = "toward a touch" if f.key == "baseline_slow_shift" else "away from a touch"
         return f"{value} (1/{2 ** value} a step {toward})" if 0 <= value < 31 else str(value)

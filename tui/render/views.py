@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from processing.history import LongSeries
 from processing.measure import NoiseSpectrum
 
 
@@ -92,3 +93,43 @@ class Series:
 # What the detail panel draws for the spectrum: processing's own figures (its bins and finding, or how
 # many untouched frames are collected of how many it needs), under the name the sources use.
 Spectrum = NoiseSpectrum
+
+
+@dataclass(frozen=True, slots=True)
+class LongView:
+    """The detail panel's zoomed-out plot: one channel's decimated history (`processing.history`) over
+    the last `window_s` seconds (None: the whole session), with what the panel says about it."""
+
+    series: LongSeries
+    now_s: float  # host time of the newest frame: the plot's 0
+    window_s: float | None
+    session_s: float  # how long the history covers
+    polarity: int
+    bucket_s: float  # one bucket's length at the board's rate
+
+    def drift_counts(self) -> float:
+        """How far the baseline moved across the view (newest bucket's middle minus the oldest's)."""
+        s = self.series
+        mid = (s.baseline_min + s.baseline_max) / 2
+        return float(mid[-1] - mid[0]) if len(mid) else 0.0
+
+    def covered_s(self) -> float:
+        s = self.series
+        return float(self.now_s - s.t_first_s[0]) if len(s) else 0.0
+
+
+def time_unit(span_s: float) -> tuple[str, float]:
+    """The plot's time axis unit for a span: seconds up to 2 min, minutes up to 2 h, then hours."""
+    if span_s <= 120:
+        return "s", 1.0
+    if span_s <= 7200:
+        return "min", 60.0
+    return "h", 3600.0
+
+
+def span_words(span_s: float) -> str:
+    """`45 s`, `12 min`, `1.5 h`: a span in the unit the axis uses."""
+    unit, scale = time_unit(span_s)
+    value = span_s / scale
+    text = f"{value:.1f}" if value < 10 else f"{value:.0f}"
+    return f"{text[:-2] if text.endswith('.0') else text} {unit}"

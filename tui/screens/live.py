@@ -33,17 +33,17 @@ from processing.settings import ChannelSettings
 from protocol.errors import UserError
 from protocol.events import BoardChanged
 from tui.editor import Editor, EditResult, Outcome
-from tui.fields import EDIT_FIELDS, FROM_NOISE, POLARITY_KEY, field, polarity_word
+from tui.fields import EDIT_FIELDS, FROM_NOISE, NO_RATE, POLARITY_KEY, TIME_KEYS, field, polarity_word
 from tui.files import FileQueue, ReplaceOnce, new_recording_path, writable_path
 from tui.log_feed import LogFeed
 from tui.pacing import FramePacer
-from tui.render.views import LinkView, Spectrum
+from tui.render.views import LinkView, LongView, Spectrum
 from tui.screens.board_diff import BoardDiffScreen
 from tui.screens.confirm import ConfirmScreen, QuitChoice, QuitScreen
 from tui.screens.prompt import PromptScreen
 from tui.source import FileJob, LiveSource, Tick
 from tui.widgets.channel_table import ChannelTable
-from tui.widgets.detail_panel import DetailPanel
+from tui.widgets.detail_panel import ZOOM_KEYS, DetailPanel
 from tui.widgets.edit_bar import EditBar, EditBarView
 from tui.widgets.event_log import EventLog
 from tui.widgets.groups_panel import GroupsPanel
@@ -74,8 +74,9 @@ BINDINGS: list[Binding] = [
       show=False),
     B("left_square_bracket", "step(-1, True)", "Lower the setting (coarse step)", id="edit.down_coarse",
       show=False),
-    B("enter,e", "type_value", "Type a value for the setting", id="edit.type", key_display="⏎",
-      show=False),
+    B("enter,e", "type_value", "Type a value for the setting (debounce, baseline period and stuck timeout "
+      "in frames or as a time: 40ms, 0.04s, made whole frames at the board's rate)", id="edit.type",
+      key_display="⏎", show=False),
     B("a", "apply_all", "Copy this channel's settings to all channels", id="edit.all", show=False),
     B("g", "apply_group", "Copy this channel's settings to its group", id="edit.group", show=False),
     B("u", "undo", "Undo the last edit", id="edit.undo", show=False),
@@ -84,6 +85,10 @@ BINDINGS: list[Binding] = [
     B("B", "rebaseline(True)", "Re-baseline all channels", id="chan.rebase_all", show=False),
     B("d", "toggle_detail", "detail", id="chan.detail", tooltip="Detail panel: plot, settings, events"),
     B("f", "toggle_spectrum", "Noise spectrum in the detail panel", id="chan.spectrum", show=False),
+    # The detail panel's zoom (its levels and words are the panel's: tui/widgets/detail_panel.py); in the
+    # footer while the panel shows (`check_action`), since the table keeps the focus.
+    *[B(key, f"zoom({step})", word, id=bid, tooltip=sentence, show=step > 0, key_display="z/Z" if step > 0
+        else None) for key, step, word, sentence, bid in ZOOM_KEYS],
     B("space", "toggle_pause", "pause", id="chan.pause", key_display="Space",
       tooltip="Pause / resume the display (detection keeps running)"),
     B("r", "toggle_recording", "record", id="rec.toggle", tooltip="Start / stop recording to a CSV file"),
@@ -266,7 +271,8 @@ class LiveScreen(Screen[None]):
         self.edit_bar.view = EditBarView(names[ch], self.source.settings(ch), self.field_key,
                                          f"{ch + 1}/{len(names)}" if len(names) > 1 else "",
                                          self.source.polarity(ch), status, pending,
-                                         board_status(ch) if board_status is not None else ())
+                                         board_status(ch) if board_status is not None else (),
+                                         self._time_rate_hz())
         if detail and self.detail:
             self._draw_detail()
 
@@ -288,8 +294,21 @@ class LiveScreen(Screen[None]):
         self.detail_panel.show(
             names[ch], self.source.series(ch), spectrum, self.source.settings(ch), self.field_key,
             list(self.feed.recent.get(ch, ())), self.source.rate_hz, self.source.polarity(ch), status,
-            pending,
+            pending, self._long_view(ch),
         )
+
+    def _time_rate_hz(self) -> float | None:
+        """The rate times in ms are shown and typed at: the board's, once stated or measured (a source
+        that cannot tell gives the rate it runs at)."""
+        known = getattr(type(self.source), "known_rate_hz", None)
+        return self.source.known_rate_hz if known is not None else self.source.rate_hz  # type: ignore[attr-defined]
+
+    def _long_view(self, ch: int) -> LongView | None:
+        """The zoomed-out history for the panel, when it is zoomed out and the source keeps one."""
+        long_view = getattr(self.source, "long_view", None)
+        if not self.detail_panel.zoomed_out or long_view is None:
+            return None
+        return long_view(ch, self.detail_panel.zoom_window_s)
 
     def _spectrum_for(self, ch: int) -> Spectrum | None:
         """The noise spectrum, recomputed at most once a second (it covers seconds of frames anyway)."""
@@ -318,6 +337,7 @@ class LiveScreen(Screen[None]):
 
     def watch_detail(self, shown: bool) -> None:
         self.set_class(shown, "-detail")
+        self.refresh_bindings()  # the panel's zoom keys come and go with it (check_action)
         self.detail_panel.display = shown
         self.lower.display = not shown
         self._show_channel()
@@ -381,12 +401,22 @@ class LiveScreen(Screen[None]):
             unit = "a shift n: the baseline moves 1/2ⁿ of the way a step" if f.unit == "shift" else f.unit
             question, now = f"{name}: new {f.label} ({unit})", str(getattr(self.source.settings(ch), key))
 
+        rate = self._time_rate_hz()
+        hint = f"allowed: {self.editor.allowed(ch, key, rate)}"
+        if key in TIME_KEYS:  # frame counts may be typed as times (tui/fields.py says how they round)
+            question = question[:-1] + ", or a time: 40ms, 0.04s)"
+            if not rate:
+                hint += f"\n{NO_RATE}"
+
         def done(text: str | None) -> None:
             if text is not None:
-                self._report(self.editor.type_value(ch, key, text))
+                self._report(self.editor.type_value(ch, key, text, self._time_rate_hz()))
 
-        self.app.push_screen(PromptScreen(question, now, lambda text: self.editor.check_text(ch, key, text),
-                                          hint=f"allowed: {self.editor.allowed(ch, key)}"), done)
+        self.app.push_screen(PromptScreen(question, now,
+                                          lambda text: self.editor.check_text(ch, key, text, rate),
+                                          hint=hint, note=(lambda text: self.editor.rounding(key, text, rate))
+                                          if key in TIME_KEYS else None),
+                             done)
 
     def action_apply_all(self) -> None:
         self._report(self.editor.copy_to_all(self.cursor))
@@ -424,6 +454,16 @@ class LiveScreen(Screen[None]):
         self.spectrum = not self.spectrum
         if self.spectrum and not self.detail:
             self.detail = True
+
+    def action_zoom(self, step: int) -> None:
+        """The detail panel's zoom: out to minutes, hours, the whole session; in back to seconds."""
+        self.spectrum = False  # zooming asks for the plot over time
+        self.detail_panel.zoom_by(step)  # the panel's title says what it shows now
+        self._draw_detail()
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        """The zoom keys are the detail panel's: they act (and show in the footer) while it shows."""
+        return self.detail if action == "zoom" else True
 
     def action_toggle_pause(self) -> None:
         self.paused = not self.paused

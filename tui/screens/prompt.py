@@ -22,6 +22,8 @@ from textual.widgets import Input, Static
 
 # Returns None when the text is acceptable, else the one-line reason it is not.
 Check = Callable[[str], str | None]
+# What the text as typed so far amounts to (a time's rounding to frames), or empty: shown as it is typed.
+Note = Callable[[str], str]
 
 
 class PromptInput(Input):
@@ -45,12 +47,14 @@ class PromptInput(Input):
 class PromptScreen(ModalScreen[str | None]):
     BINDINGS: ClassVar = [Binding("escape", "cancel", "Cancel", id="prompt.cancel", key_display="Esc")]
 
-    def __init__(self, question: str, value: str = "", check: Check | None = None, hint: str = "") -> None:
+    def __init__(self, question: str, value: str = "", check: Check | None = None, hint: str = "",
+                 note: Note | None = None) -> None:
         super().__init__()
         self._question = question
         self._value = value
         self._check = check
         self._hint = hint
+        self._note = note
         self._early: list[events.Key] | None = []  # None once the input has focus and they were typed
 
     def compose(self) -> ComposeResult:
@@ -59,6 +63,8 @@ class PromptScreen(ModalScreen[str | None]):
             if self._hint:
                 yield Static(self._hint, id="prompt-hint", classes="dialog-hint", markup=False)
             yield PromptInput(value=self._value, id="prompt-input", select_on_focus=True)
+            if self._note:
+                yield Static("", id="prompt-note", classes="dialog-hint", markup=False)
             yield Static("", id="prompt-error", classes="dialog-error", markup=False)
             yield Static("Enter accepts, Esc cancels", classes="dialog-keys", markup=False)
 
@@ -79,6 +85,13 @@ class PromptScreen(ModalScreen[str | None]):
             self._early.append(event)
         else:
             self.app.post_message(event)
+
+    def on_input_changed(self, event: Input.Changed) -> None:
+        if self._note:
+            note = self.query_one("#prompt-note", Static)
+            text = self._note(event.value)
+            note.update(text)
+            note.display = bool(text)  # no empty line while the text amounts to nothing to say
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()

@@ -4,6 +4,12 @@ release lines (or the noise spectrum), the channel's settings and its recent eve
 The plot is textual-plotext's PlotextPlot; it is redrawn at a few hertz, not at the table's rate. The
 spectrum is computed in processing (`processing.measure.NoiseSpectrum`); this panel only draws it, or,
 while its frames are still being collected, says how many there are of how many it needs.
+
+The panel owns its zoom (`ZOOM_LEVELS`, `zoom_out`/`zoom_in`; the live screen binds the keys from
+`ZOOM_KEYS`): the first level is the last seconds from the fine history, the others the long view
+(`LongView`, the session's decimated history from `processing.history`): each bucket's lowest and
+highest reading drawn as an envelope, the baseline through their middle, and the baseline's drift
+across the view in the title, on a time axis in s, min or h.
 """
 
 from __future__ import annotations
@@ -22,9 +28,19 @@ from textual_plotext import PlotextPlot
 
 from processing.settings import ChannelSettings
 from tui.render.settings import settings_text
-from tui.render.views import Series, Spectrum
+from tui.render.views import LongView, Series, Spectrum, span_words, time_unit
 
 __all__ = ["DetailPanel", "Series", "Spectrum", "detail_title", "envelope"]  # Series, Spectrum: old home
+
+# (the level's word, its window in seconds; None: the whole session). The first is the fine plot.
+ZOOM_LEVELS: tuple[tuple[str, float | None], ...] = (
+    ("8 s", 8.0), ("1 min", 60.0), ("10 min", 600.0), ("1 h", 3600.0), ("session", None))
+# The keys, for the screen to bind (the table keeps the focus, so the panel cannot bind them itself):
+# (key, zoom step, footer word, help sentence, binding id).
+ZOOM_KEYS = (
+    ("z", 1, "zoom", "Detail panel: zoom out (8 s, 1 min, 10 min, 1 h, the whole session)", "chan.zoom_out"),
+    ("Z", -1, "zoom in", "Detail panel: zoom back in", "chan.zoom_in"),
+)
 
 
 def _thin(x: np.ndarray, points: int) -> np.ndarray:
@@ -49,6 +65,22 @@ def envelope(t: np.ndarray, x: np.ndarray, points: int) -> tuple[np.ndarray, np.
     return t[idx], x[idx]
 
 
+def long_title(name: str, view: LongView | None, level: str, width: int) -> str:
+    """The zoomed-out plot's title: what it covers and the baseline's drift across it, whole at any
+    width (the drift is what matters: the legend gives way first)."""
+    if view is None or len(view.series) < 2:
+        long_text = f"{name}: last {level}: no history yet (z/Z: zoom)"
+        return long_text if len(long_text) <= width else f"{name}: {level}: none yet"
+    covered = span_words(view.covered_s())
+    what = f"last {covered}" if view.window_s is not None and view.covered_s() >= view.window_s * 0.99 \
+        else f"whole session, {covered}"
+    drift = f"baseline drift {view.drift_counts():+.0f} counts"
+    choices = [f"{name}: {what} · {drift} · reading min–max ⣿ baseline · (z/Z: zoom)",
+               f"{name}: {what} · {drift} · (z/Z: zoom)", f"{name}: {what} · {drift}",
+               f"{name}: {covered} · drift {view.drift_counts():+.0f}"]
+    return next((c for c in choices if len(c) <= width), choices[-1])
+
+
 def detail_title(name: str, spectrum: Spectrum | None, width: int) -> str:
     """The panel's title line: the plot's legend, or the spectrum's finding, whole at any width (the
     finding is what matters: the explanations give way first)."""
@@ -67,6 +99,22 @@ class DetailPanel(Vertical):
     ROLES = ("cursor", "name", "dim")
     COMPONENT_CLASSES: ClassVar[set[str]] = {f"detail-panel--{r}" for r in ROLES}
 
+    zoom = 0  # index into ZOOM_LEVELS
+
+    @property
+    def zoom_window_s(self) -> float | None:
+        """The zoomed-out plot's window (None: the whole session); 8 s at the first level."""
+        return ZOOM_LEVELS[self.zoom][1]
+
+    @property
+    def zoomed_out(self) -> bool:
+        return self.zoom > 0
+
+    def zoom_by(self, step: int) -> str:
+        """Zoom out (+1) or in (-1); returns the level's word (the screen tells it)."""
+        self.zoom = max(0, min(len(ZOOM_LEVELS) - 1, self.zoom + step))
+        return ZOOM_LEVELS[self.zoom][0]
+
     def compose(self) -> ComposeResult:
         yield Static("", id="detail-title")
         with Horizontal(id="detail-body"):
@@ -77,10 +125,13 @@ class DetailPanel(Vertical):
 
     def show(self, name: str, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
              selected_key: str, events: Sequence[str], rate_hz: float | None, polarity: int | None = 1,
-             status: str = "", pending: Collection[str] = ()) -> None:
+             status: str = "", pending: Collection[str] = (), long: LongView | None = None) -> None:
+        """`long`: the zoomed-out history when `zoomed_out` (the spectrum, when asked for, wins)."""
         styles = {r: self.get_component_rich_style(f"detail-panel--{r}", partial=True) for r in self.ROLES}
-        self.query_one("#detail-title", Static).update(
-            Text(detail_title(name, spectrum, max(20, self.size.width - 2)), no_wrap=True))
+        width = max(20, self.size.width - 2)
+        title = long_title(name, long, ZOOM_LEVELS[self.zoom][0], width) \
+            if self.zoomed_out and spectrum is None else detail_title(name, spectrum, width)
+        self.query_one("#detail-title", Static).update(Text(title, no_wrap=True))
         settings_lines = settings_text(settings, selected_key, styles, rate_hz, polarity, status, pending)
         self.query_one("#detail-settings", Static).update(settings_lines)
         lines = Text("recent events, newest first\n", style=styles["dim"], no_wrap=True)
@@ -89,7 +140,50 @@ class DetailPanel(Vertical):
         if not events:
             lines.append("(none yet)", styles["dim"])
         self.query_one("#detail-events", Static).update(lines)
-        self._plot(series, spectrum, settings, levels="threshold_counts" not in pending)
+        if self.zoomed_out and spectrum is None:
+            self._plot_long(long, settings, levels="threshold_counts" not in pending)
+        else:
+            self._plot(series, spectrum, settings, levels="threshold_counts" not in pending)
+
+    def _plot_long(self, view: LongView | None, settings: ChannelSettings, levels: bool) -> None:
+        """The session's decimated history: each bucket's lowest and highest reading (spikes kept), the
+        baseline through the middle of its own, and the threshold above it; time in s, min or h."""
+        widget = self.query_one("#detail-plot", PlotextPlot)
+        plt = widget.plt
+        plt.clear_data()
+        plt.clear_figure()
+        if view is None or len(view.series) < 2:
+            _say(plt, ["long view: no history yet", "it fills as frames come"], widget.size.width,
+                 widget.size.height)
+            widget.refresh()
+            return
+        s = view.series
+        # the window, or less while the session is shorter (the title then says "whole session")
+        covered = max(view.covered_s(), 1e-9)
+        span = min(view.window_s, covered) if view.window_s is not None else covered
+        unit, scale = time_unit(span)
+        t = ((s.t_first_s + s.t_last_s) / 2 - view.now_s) / scale
+        points = max(10, widget.size.width * 2)
+        # min and max of each bucket, in time order, thinned again only if the buckets outnumber cells
+        t_env = np.repeat(t, 2)
+        env = np.column_stack((s.reading_min, s.reading_max)).ravel().astype(np.float64)
+        t_env, env = envelope(t_env, env, points)
+        baseline = ((s.baseline_min + s.baseline_max) / 2).astype(np.float64)
+        t_b, baseline = _thin(t, points), _thin(baseline, points)
+        legend = widget.size.width >= 70
+        if levels:
+            thr = baseline + view.polarity * settings.threshold_counts
+            plt.plot(t_b.tolist(), thr.tolist(), label="threshold" if legend else None, marker="=")
+        plt.plot(t_env.tolist(), env.tolist(), label="reading min–max" if legend else None, marker="braille")
+        # the baseline last, over the readings: its drift is what the long view is for
+        plt.plot(t_b.tolist(), baseline.tolist(), label="baseline" if legend else None, marker="·")
+        left = -span / scale
+        plt.xlim(left, 0.0)
+        ticks = np.linspace(left, 0.0, 5 if widget.size.width >= 40 else 3)
+        plt.xticks(ticks.tolist(), [_tick(x) for x in ticks])
+        plt.xlabel(f"{_UNIT_WORDS[unit]} (0 = now; a bucket is {span_words(view.bucket_s)})"
+                   if view.bucket_s >= 1 else f"{_UNIT_WORDS[unit]} (0 = now)")
+        widget.refresh()
 
     def _plot(self, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
               levels: bool = True) -> None:
@@ -123,6 +217,17 @@ class DetailPanel(Vertical):
         else:
             plt.title("waiting for frames")
         widget.refresh()
+
+
+_UNIT_WORDS = {"s": "seconds", "min": "minutes", "h": "hours"}
+
+
+def _tick(x: float) -> str:
+    """An axis label: `-10`, `-7.5`, `0` (no `-0.0`)."""
+    if abs(x) < 1e-9:
+        return "0"
+    text = f"{x:.1f}" if abs(x) < 10 else f"{x:.0f}"
+    return text[:-2] if text.endswith(".0") else text
 
 
 def collecting_lines(spectrum: Spectrum) -> list[str]:

@@ -30,6 +30,7 @@ class EditBarView:
     # What a board that takes settings did with each one it was sent: (key, applied / refused /
     # sending / no answer), empty for a board without settings=1 (the bar is then as before).
     board: tuple[tuple[str, str], ...] = ()
+    rate_hz: float | None = None  # the board's frame rate: frame counts read in ms too (None: not known)
 
 
 class EditBar(Widget):
@@ -43,4 +44,4 @@ class EditBar(Widget):
             return Text("waiting for the board to send its first frames…", no_wrap=True)
         styles = {r: self.get_component_rich_style(f"edit-bar--{r}", partial=True) for r in ROLES}
         return edit_bar(v.name, v.settings, v.field_key, styles, self.size.width, v.position, v.polarity,
-                        v.status, v.pending, dict(v.board))
+                        v.status, v.pending, dict(v.board), v.rate_hz)
