@@ -215,4 +215,11 @@ def test_board_clock_rate_within_a_percent(rate_hz, exp, lost_every, first_lost)
     clock.observe(ticks, host)
     if 10.0**exp / rate_hz < 1:  # a clock coarser than the frames (whole seconds at 10 Hz): repeats
         return
-    assert clock.unit is not None and clock.rate_hz == pytest.approx(rate_hz, rel=0.01)
+    # Frames lost without a sequence number cannot be told from a slower board (their share goes into the
+    # estimate whole), and a clock as coarse as the frames can be a tick off at each end of the span:
+    # the bound is those two, and 0.5 % besides (a 99.5 Hz board on a 100 Hz clock with 2 of 248 frames
+    # lost reads 98.4 Hz: 0.8 % lost and 0.8 % of quantisation).
+    lost_share = 1 - keep.sum() / n
+    quantisation = 2 / max(1, int(ticks[-1] - ticks[0]))
+    assert clock.unit is not None
+    assert clock.rate_hz == pytest.approx(rate_hz, rel=lost_share + quantisation + 0.005)
