@@ -354,11 +354,12 @@ class SettleGate:
 
     A released frame counts as noise only when every frame within `guard_frames` before and after it is
     released too, on every key (`any_key`; a neighbour's touch or a slider swipe moves a released key by
-    crosstalk, which is not its noise): a finger landing moves the delta before the state leaves released (the approach stays
-    under the threshold for a while), and a lifting finger's tail runs on after it comes back. So each
-    frame is decided `guard_frames` frames late, once the frames after it have arrived; the newest ones
-    wait. Frames before a channel's `start_frame` (its last re-baseline) never count, but touch activity
-    before it still guards the frames after it (a stuck release lets go of a finger still landing).
+    crosstalk, which is not its noise): a finger landing moves the delta before the state leaves released
+    (the approach stays under the threshold for a while), and a lifting finger's tail runs on after it
+    comes back. So each frame is decided `guard_frames` frames late, once the frames after it have
+    arrived; the newest ones wait. Frames before a channel's `start_frame` (its last re-baseline) never
+    count, but touch activity before it still guards the frames after it (a stuck release lets go of a
+    finger still landing).
     """
 
     NEVER = np.iinfo(np.int64).min // 4  # "no touch activity seen yet": far enough back for any guard
