@@ -555,9 +555,9 @@ class Measures:
         """The newest unbroken run of released frames in the window, less the settle guard after the last
         touch; and whether that guard (or a touch) is still running now."""
         _, _, deltas, states = self.history.last(self.window_frames)
-        # any key's touch breaks the run: crosstalk from a neighbour is not this key's noise either
-        busy = states != KeyState.RELEASED if self._gate.any_key else states[:, channel:channel + 1] != 0
-        broken = np.flatnonzero(busy.any(axis=1))
+        # this key's own touches break the run (the spectrum looks for a tone, which a neighbour's
+        # crosstalk step does not make; the noise window above is the one kept clear of other keys)
+        broken = np.flatnonzero(states[:, channel] != KeyState.RELEASED)
         start = int(broken[-1]) + 1 + self.guard_frames if len(broken) else 0
         return deltas[start:, channel].astype(np.float64), bool(len(broken)) and start >= len(states)
 
