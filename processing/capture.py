@@ -22,7 +22,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from processing.measure import VerdictBounds
+from processing.crosstalk import Coupling, TouchedNoise, couplings, touched_noise
+from processing.measure import VerdictBounds, rests_on
 from processing.recording import Mark
 from processing.settings import ChannelSettings
 from processing.stretches import KeyFigures, expand_polarity, key_figures
@@ -139,22 +140,39 @@ class KeyCapture:
     name: str
     quiet: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # hands-off frames
     touched: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
-    crosstalk: list[int] = field(default_factory=list)  # while another key was held
-    stray_frames: int = 0  # frames it rose beyond its noise while another key was held (left out)
+    # what this key read while another key was held: the other key -> its deltas (crosstalk, not noise)
+    crosstalk: dict[int, list[int]] = field(default_factory=dict)
     attempts: int = 0
     seen: bool = False  # a touch clearly rose above the noise
+    level_counts: float = float("inf")  # the delta above which it counts as moved (set after hands off)
+
+    def _coupled(self, values: np.ndarray) -> np.ndarray:
+        """The frames of `values` that are coupling, not this key being touched (a stray finger): below
+        half its own typical touch once it has one, else not beyond its moved level."""
+        if len(self.touched):
+            return values < 0.5 * float(np.median(self.touched))
+        return values <= self.level_counts
+
+    def crossed(self, source: int) -> np.ndarray:
+        """Its deltas while `source` was held, stray-finger frames left out (crosstalk from `source`)."""
+        values = np.array(self.crosstalk.get(source, ()), np.int64)
+        return values[self._coupled(values)]
+
+    @property
+    def stray_frames(self) -> int:
+        """Frames it read while another key was held that were a stray finger on it (left out)."""
+        values = np.array([v for vs in self.crosstalk.values() for v in vs], np.int64)
+        return int(len(values) - self._coupled(values).sum())
 
     @property
     def untouched(self) -> np.ndarray:
-        """What this key saw while not touched: hands off, and while the others were held.
+        """What this key saw while not touched: hands off, and while the others were held (what its
+        threshold must clear; its noise figures are of `quiet` alone: crosstalk is not noise).
 
         A frame that reached half this key's own typical touch was this key being touched (a stray
-        finger), not crosstalk, and is left out.
+        finger), not crosstalk, and is left out (without a touch of its own yet: one beyond its noise).
         """
-        cross = np.array(self.crosstalk, np.int64)
-        if len(self.touched):
-            cross = cross[cross < 0.5 * float(np.median(self.touched))]
-        return np.concatenate([self.quiet, cross])
+        return np.concatenate([self.quiet, *(self.crossed(src) for src in self.crosstalk)])
 
 
 # Frames before a disturbance's first clear frame that still count as touched when a hands-off stretch
@@ -354,9 +372,10 @@ class CaptureWizard:
             self.notice = f"{first} moved during hands off: measuring again, hands off please"
             return
         self._mark("quiet-end")
+        self._levels = np.array([_level(quiet[:, c], self.min_rise_counts) for c in range(len(self.names))])
         for c, key in self.keys.items():
             key.quiet = quiet[:, c].copy()
-        self._levels = np.array([_level(quiet[:, c], self.min_rise_counts) for c in range(len(self.names))])
+            key.level_counts = float(self._levels[c])
         self._advance(now_s)
 
     def _track_baseline(self, row: np.ndarray, deltas: np.ndarray, target: int) -> None:
@@ -396,10 +415,9 @@ class CaptureWizard:
             for k in others:  # what the finger on this key does to the others
                 if k not in self.keys:
                     continue
-                if deltas[k] > self._levels[k]:  # a stray finger, not coupling: keep it out
-                    self.keys[k].stray_frames += 1
-                else:
-                    self.keys[k].crosstalk.append(round(deltas[k]))
+                # all kept: which frames were a stray finger rather than coupling is decided once the
+                # key's own touch is known (`KeyCapture.crossed`)
+                self.keys[k].crosstalk.setdefault(c, []).append(round(deltas[k]))
             if len(self._held) >= self.hold_frames:
                 key.touched = np.array(self._held, np.int64)
                 self._mark("touch-end", c)
@@ -478,6 +496,16 @@ class CaptureOutcome:
     untouched: np.ndarray
     touched: np.ndarray
     stray_frames: int = 0
+    touched_noise: TouchedNoise | None = None  # noise while touched, the touch level removed
+    crosstalk: tuple[Coupling, ...] = ()  # what touching each other key did to this one, largest first
+    touches: int = 0  # touches the signal rests on (a guided capture holds one per key)
+    quiet_frames: int = 0  # hands-off frames the noise rests on
+    rate_hz: float = 0.0
+    names: tuple[str, ...] = ()  # every key's name, for the crosstalk lines
+
+    def basis(self) -> str:
+        """What the verdict rests on (touches and frames)."""
+        return rests_on(self.touches, len(self.touched), self.quiet_frames)
 
     @property
     def suggested(self) -> bool:
@@ -489,6 +517,8 @@ def summarise(wizard: CaptureWizard, settings_of: Callable[[int], ChannelSetting
     """Figures and suggestions for every key the wizard captured (`settings_of(channel)` gives today's)."""
     bounds = bounds or VerdictBounds()
     out = []
+    thresholds: dict[int, float | None] = {}
+    pending = []
     for c, key in wizard.keys.items():
         figures = key_figures(key.quiet, key.touched)
         result: Suggestion | Refusal
@@ -498,6 +528,15 @@ def summarise(wizard: CaptureWizard, settings_of: Callable[[int], ChannelSetting
             result = suggest(key.untouched, key.touched, wizard.rate_hz)
         before = settings_of(c)
         after = result.apply(before) if isinstance(result, Suggestion) else before
+        thresholds[c] = float(after.threshold_counts)
+        pending.append((c, key, figures, result, before, after))
+    # crosstalk: each key's deltas while another key alone was held, against its own hands-off median
+    during = {(src, c): key.crossed(src) for c, key in wizard.keys.items() for src in key.crosstalk}
+    found = couplings({c: key.quiet for c, key in wizard.keys.items()}, during, thresholds)
+    for c, key, figures, result, before, after in pending:
+        held = touched_noise([key.touched], wizard.rate_hz) if len(key.touched) else None
         out.append(CaptureOutcome(c, key.name, figures, bounds.verdict(figures.snr_pp), result, before, after,
-                                  key.untouched, key.touched, key.stray_frames))
+                                  key.untouched, key.touched, key.stray_frames, held,
+                                  tuple(x for x in found if x.target == c), int(len(key.touched) > 0),
+                                  len(key.quiet), wizard.rate_hz, tuple(wizard.names)))
     return out

@@ -2,9 +2,11 @@
 
 Definitions (also in ALGORITHM.md, "Measures"):
 - noise RMS: population standard deviation (numpy.std, mean removed) of the delta over the last
-  `window_s` seconds of frames in which the channel was released and clear of touch activity by
-  `settle_s` on both sides (since its last re-baseline); noise pp: max - min over the same frames.
-- touch signal: median delta of the frames in state touched (the last `touched_frames` of them).
+  `window_s` seconds of frames in which every key was released and clear of touch activity by
+  `settle_s` on both sides (since the channel's last re-baseline: a neighbour's touch moves a released
+  key by crosstalk, which is not its noise); noise pp: max - min over the same frames.
+- touch signal: median delta of the frames in state touched (the last `touched_frames` of them); the
+  verdict says what it rests on (`ChannelQuality.basis`: touches, touched frames, noise frames).
 - SNR pp = signal / noise pp; SNR RMS = signal / noise RMS. The verdict uses the pp form.
 Memory is bounded: every buffer is a fixed-size ring allocated once.
 """
@@ -118,6 +120,18 @@ class ChannelQuality:
     snr_pp: float | None
     snr_rms: float | None
     verdict: str
+    touches: int = 0  # touches the signal rests on (since its last clear)
+    touched_frames: int = 0  # touched frames the signal's median is taken of
+
+    def basis(self) -> str:
+        """What the verdict rests on: "3 touches (412 frames), noise of 120 frames"."""
+        return rests_on(self.touches, self.touched_frames, self.noise.samples if self.noise else 0)
+
+
+def rests_on(touches: int, touched_frames: int, noise_frames: int) -> str:
+    """What an SNR verdict rests on, in words: touches and touched frames, untouched frames."""
+    return (f"{touches} touch{'' if touches == 1 else 'es'} ({touched_frames} frames), "
+            f"noise of {noise_frames} frames")
 
 
 @dataclass(frozen=True, slots=True)
@@ -339,17 +353,21 @@ class SettleGate:
     """Holds released frames back until they are known to lie clear of touch activity.
 
     A released frame counts as noise only when every frame within `guard_frames` before and after it is
-    released too: a finger landing moves the delta before the state leaves released (the approach stays
-    under the threshold for a while), and a lifting finger's tail runs on after it comes back. So each
-    frame is decided `guard_frames` frames late, once the frames after it have arrived; the newest ones
-    wait. Frames before a channel's `start_frame` (its last re-baseline) never count, but touch activity
-    before it still guards the frames after it (a stuck release lets go of a finger still landing).
+    released too, on every key (`any_key`; a neighbour's touch or a slider swipe moves a released key by
+    crosstalk, which is not its noise): a finger landing moves the delta before the state leaves released
+    (the approach stays under the threshold for a while), and a lifting finger's tail runs on after it
+    comes back. So each frame is decided `guard_frames` frames late, once the frames after it have
+    arrived; the newest ones wait. Frames before a channel's `start_frame` (its last re-baseline) never
+    count, but touch activity before it still guards the frames after it (a stuck release lets go of a
+    finger still landing).
     """
 
     NEVER = np.iinfo(np.int64).min // 4  # "no touch activity seen yet": far enough back for any guard
 
-    def __init__(self, channels: int, guard_frames: int, last_busy: np.ndarray | None = None) -> None:
+    def __init__(self, channels: int, guard_frames: int, last_busy: np.ndarray | None = None,
+                 any_key: bool = True) -> None:
         self.guard_frames = g = max(0, guard_frames)
+        self.any_key = any_key
         self.tail_deltas = np.zeros((g, channels), np.int64)  # the undecided newest frames
         self.tail_ok = np.zeros((g, channels), bool)  # ... that are released (none before the first block)
         self.last_busy = np.full(channels, self.NEVER, np.int64) if last_busy is None else last_busy.copy()
@@ -363,6 +381,8 @@ class SettleGate:
             return deltas[:0], np.zeros(deltas.shape, bool)
         frame = first_frame + np.arange(n, dtype=np.int64)[:, None]
         busy = states != KeyState.RELEASED
+        if self.any_key and busy.shape[1] > 1:  # another key's touch moves this one too: not its noise
+            busy = np.broadcast_to(busy.any(axis=1, keepdims=True), busy.shape)
         if busy.any():
             last_busy = np.maximum.accumulate(np.where(busy, frame, self.NEVER), axis=0)
             np.maximum(last_busy, self.last_busy[None, :], out=last_busy)
@@ -384,7 +404,9 @@ class Measures:
 
     def __init__(self, channels: int, rate_hz: float, window_s: float = 2.0, history_frames: int = 4096,
                  touched_frames: int = 2048, bounds: VerdictBounds | None = None,
-                 settle_s: float = SETTLE_S) -> None:
+                 settle_s: float = SETTLE_S, any_key: bool = True) -> None:
+        """`any_key`: a frame is noise only while every key is released (issue 12: another key's touch
+        moves a released key by crosstalk); False judges each key by its own state alone."""
         if settle_s < 0:
             raise ValueError(f"settle guard must be 0 s or more, not {settle_s:g} s")
         self.channels, self.window_s, self.settle_s = channels, window_s, settle_s
@@ -392,10 +414,12 @@ class Measures:
         self._rate_hz = rate_hz
         self.history = History(channels, max(history_frames, 2 * self.window_frames))
         self._released = ColumnRing(self.window_frames, channels)
-        self._gate = SettleGate(channels, self.guard_frames)
+        self._gate = SettleGate(channels, self.guard_frames, any_key=any_key)
         self._scratch: np.ndarray | None = None  # qualities()' work array, the window ring's shape
         self._touched = ColumnRing(touched_frames, channels)
         self._signal_cache: dict[int, tuple[int, float | None]] = {}
+        self._touch_count = np.zeros(channels, np.int64)  # touches (entries into touched) since a clear
+        self._was_touched = np.zeros(channels, bool)
         # per channel, the history frame number (History.written counts) from which frames count as noise
         self.noise_start_frame = np.zeros(channels, np.int64)
 
@@ -410,7 +434,8 @@ class Measures:
         if self.window_frames != self._released.capacity:
             self._released = ColumnRing(self.window_frames, self.channels)
         if self.guard_frames != self._gate.guard_frames:  # undecided frames are dropped, activity kept
-            self._gate = SettleGate(self.channels, self.guard_frames, self._gate.last_busy)
+            self._gate = SettleGate(self.channels, self.guard_frames, self._gate.last_busy,
+                                    self._gate.any_key)
 
     @property
     def window_frames(self) -> int:
@@ -440,13 +465,23 @@ class Measures:
         touched = states == KeyState.TOUCHED
         if touched.any():
             self._touched.push(deltas, touched)
+            before = np.vstack((self._was_touched[None, :], touched[:-1]))
+            self._touch_count += (touched & ~before).sum(axis=0)
+        if len(touched):
+            self._was_touched = touched[-1].copy()
 
     def clear_touch_signal(self, channel: int | None = None) -> None:
         self._touched.clear(channel)
         if channel is None:
             self._signal_cache.clear()
+            self._touch_count[:] = 0
         else:
             self._signal_cache.pop(channel, None)
+            self._touch_count[channel] = 0
+
+    def touches(self, channel: int) -> int:
+        """Touches (entries into touched) since the touch signal was last cleared."""
+        return int(self._touch_count[channel])
 
     def qualities(self) -> list[ChannelQuality]:
         """`quality` of every channel, the noise of all channels in one pass over the window ring: a
@@ -478,7 +513,7 @@ class Measures:
         out = []
         for c, n in enumerate(count.tolist()):
             noise = NoiseStats(float(rms[c]), float(pp[c]), n) if n >= MIN_NOISE_SAMPLES else None
-            out.append(self._quality(noise, self.touch_signal(c)))
+            out.append(self._quality(noise, self.touch_signal(c), c))
         return out
 
     def released_deltas(self, channel: int) -> np.ndarray:
@@ -505,19 +540,23 @@ class Measures:
         return value
 
     def quality(self, channel: int) -> ChannelQuality:
-        return self._quality(self.noise(channel), self.touch_signal(channel))
+        return self._quality(self.noise(channel), self.touch_signal(channel), channel)
 
-    def _quality(self, noise: NoiseStats | None, signal: float | None) -> ChannelQuality:
+    def _quality(self, noise: NoiseStats | None, signal: float | None, channel: int) -> ChannelQuality:
         snr_pp = snr_rms = None
         if noise is not None and signal is not None:
             snr_pp = signal / noise.pp_counts if noise.pp_counts > 0 else math.inf
             snr_rms = signal / noise.rms_counts if noise.rms_counts > 0 else math.inf
-        return ChannelQuality(noise, signal, snr_pp, snr_rms, self.bounds.verdict(snr_pp))
+        frames = min(int(self._touched.written[channel]), self._touched.capacity)
+        return ChannelQuality(noise, signal, snr_pp, snr_rms, self.bounds.verdict(snr_pp),
+                              self.touches(channel), frames)
 
     def _spectrum_run(self, channel: int) -> tuple[np.ndarray, bool]:
         """The newest unbroken run of released frames in the window, less the settle guard after the last
         touch; and whether that guard (or a touch) is still running now."""
         _, _, deltas, states = self.history.last(self.window_frames)
+        # this key's own touches break the run (the spectrum looks for a tone, which a neighbour's
+        # crosstalk step does not make; the noise window above is the one kept clear of other keys)
         broken = np.flatnonzero(states[:, channel] != KeyState.RELEASED)
         start = int(broken[-1]) + 1 + self.guard_frames if len(broken) else 0
         return deltas[start:, channel].astype(np.float64), bool(len(broken)) and start >= len(states)

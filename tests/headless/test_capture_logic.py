@@ -331,3 +331,58 @@ def test_a_capture_of_some_keys_asks_only_for_them():
     assert w.done and list(w.keys) == [2, 0] and len(w.steps) == 5
     assert [s.name for s in w.steps[1:]] == ["stop", "stop", "zone1", "zone1"]
     assert all(k.seen for k in w.keys.values()) and balanced(w.marks)
+
+
+class CouplingUser(User):
+    """A user whose finger on zone1 moves zone2 by `cross_counts` (crosstalk), and whose touches carry
+    mains hum (50 Hz at 100 frames/s lands near 0 Hz, so 60 Hz: its alias is |60 - 100| = 40 Hz)."""
+
+    cross_counts = 30.0
+    hum_counts = 8.0
+
+    def run(self, max_s: float = 120.0) -> None:
+        t_s = 0.0
+        while not self.w.done and t_s < max_s:
+            self.react()
+            row = 1000 + self.rng.normal(0, self.noise_counts, len(NAMES))
+            if self.pressing is not None:
+                k = NAMES.index(self.pressing)
+                row[k] += self.touch_counts + self.hum_counts * np.sin(2 * np.pi * 60.0 * t_s)
+                if self.pressing == "zone1":
+                    row[1] += self.cross_counts
+            self.w.feed(FrameBlock(np.array([t_s]), np.array([self.frame]),
+                                   row.round().astype(np.int64)[None, :], self.frame), t_s)
+            self.frame += 1
+            t_s += 1 / RATE_HZ
+
+
+def test_the_results_carry_crosstalk_and_noise_while_touched():
+    # Reference, worked by hand: zone1's touch adds 40 counts to zone2, whose suggested threshold is about
+    # half its 200-count touch (100): a share of about 40 / 100 = 40 %, flagged (above 30 %). Such strong
+    # coupling rises beyond zone2's noise, yet it is crosstalk, not a stray finger (under half its touch).
+    # The hum on a finger: a 8-count sine has RMS 8 / sqrt(2) = 5.7 and aliases from 60 Hz to 40 Hz at
+    # 100 frames/s; the untouched noise (2 counts RMS, no hum) stays as it was.
+    from processing.capture import summarise
+    from processing.settings import ChannelSettings
+
+    CouplingUser.cross_counts = 40.0
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=2.0, hold_s=1.0)
+    CouplingUser(w, np.random.default_rng(8)).run()
+    assert w.done
+    out = {o.name: o for o in summarise(w, lambda c: ChannelSettings())}
+    zone2 = out["zone2"]
+    worst = zone2.crosstalk[0]
+    assert worst.source == 0 and worst.shift_counts == pytest.approx(40, abs=2)
+    assert worst.threshold_counts == zone2.after.threshold_counts
+    assert worst.share == pytest.approx(40 / zone2.after.threshold_counts) and worst.flagged()
+    assert zone2.figures.noise_pp_counts < 20  # crosstalk is not in its noise
+    assert all(abs(c.shift_counts) < 3 for c in out["stop"].crosstalk)
+    held = zone2.touched_noise
+    assert held is not None and held.rms_counts == pytest.approx(np.hypot(8 / np.sqrt(2), 2.0), rel=0.25)
+    assert held.peak is not None and held.peak.mains_hz == 60.0
+    assert held.peak.freq_hz == pytest.approx(40, abs=1)
+    assert zone2.figures.noise_rms_counts == pytest.approx(2.0, rel=0.3)
+    assert zone2.basis() == "1 touch (100 frames), noise of 200 frames"
+    from tui.render.capture import crosstalk_cell, crosstalk_line, noise_cell
+    assert crosstalk_cell(zone2).endswith("!") and noise_cell(zone2).count("/") == 1
+    assert "zone1 +40.0" in crosstalk_line(zone2) and "flagged" in crosstalk_line(zone2)

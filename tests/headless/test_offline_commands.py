@@ -181,12 +181,20 @@ def test_tune_report_has_every_key_with_plots_and_matching_numbers(work, tmp_pat
     parser.feed(report.read_text(encoding="utf-8"))
     assert not parser.external  # self-contained: nothing loaded from anywhere
     names = read_recording(folder / "gh.csv").names
+    pairs = {k: v for k, v in parser.rows.items() if " > " in k}  # the crosstalk table's rows
+    parser.rows = {k: v for k, v in parser.rows.items() if " > " not in k}
     assert set(parser.rows) == set(names) and len(names) == 9
+    assert set(pairs) == {x["pair"] for x in result["crosstalk"]} and pairs
+    for x in result["crosstalk"]:
+        (cells,) = pairs[x["pair"]]
+        assert cells["shift"] == _shown(x["shift"]) and cells["share_pct"] == _shown(x["share_pct"])
+        assert cells["flagged"] == ("yes" if x["flagged"] else "no")
     for row in result["channels"]:
         shown = parser.rows[row["name"]]
         assert len(shown) == 2  # summary table and the key's own section
         for cells in shown:
-            for field in ("noise_pp", "noise_rms", "signal", "snr_pp", "threshold", "hysteresis"):
+            for field in ("noise_pp", "noise_rms", "noise_touched_pp", "crosstalk_pct", "signal", "snr_pp",
+                          "threshold", "hysteresis"):
                 assert cells[field] == _shown(row[field]), (row["name"], field)
             assert cells["verdict"] == row["verdict"]
         assert parser.figures[row["name"]] == {"delta": True, "histogram": True}
@@ -301,3 +309,28 @@ def test_a_reader_that_goes_away_ends_the_command_quietly_with_exit_0(work, tmp_
     proc.stdout.close()  # the reader goes away after one line, as `head -1` does
     _, err = proc.communicate(timeout=120)
     assert proc.returncode == 0 and b"Traceback" not in err and b"Exception" not in err, err
+
+
+def test_tune_json_has_crosstalk_noise_while_touched_and_what_each_verdict_rests_on(work):
+    # Issue 12, on the demo board's recording (greenhouse, 60 frames/s, 50 Hz mains coupled by a finger):
+    # - a touch's hum shows in the noise while touched and aliases to |50 - 60| = 10 Hz (worked by hand);
+    # - the duration slider's pads share a finger: touching dur0 moves dur1 by far more than the zone keys
+    #   move each other, flagged above 30 % of its threshold (common practice, no source);
+    # - each verdict names the touches and frames it rests on.
+    _, _, tuned = work
+    rows = {r["name"]: r for r in tuned["channels"]}
+    for name in ("zone1", "zone2", "stop"):
+        r = rows[name]
+        assert r["noise_touched_pp"] > r["noise_pp"], r  # the finger brings hum
+        assert "alias of 50 Hz" in r["touched_tone"] and r["touched_tone"].startswith("10."), r
+        assert r["basis"].startswith(f"{r['touches']} touch"), r
+    assert rows["zone2"]["basis"].startswith("2 touches")
+    cross = {(x["source"], x["target"]): x for x in tuned["crosstalk"]}
+    slider = cross[("dur0", "dur1")]
+    assert slider["flagged"] and slider["share_pct"] > 30
+    assert rows["dur1"]["crosstalk_flagged"] and rows["dur1"]["crosstalk_from"] in ("dur0", "dur2")
+    zones = [x for (a, b), x in cross.items() if a.startswith("zone") and b.startswith("zone")]
+    assert zones and all(not x["flagged"] for x in zones)
+    # the table's column is each key's largest crosstalk: the table's largest share is one of them
+    worst = max(r["crosstalk_pct"] for r in rows.values() if r["crosstalk_pct"] is not None)
+    assert worst == max(x["share_pct"] for x in tuned["crosstalk"])

@@ -163,7 +163,7 @@ def test_qualities_for_all_channels_against_numpy_std():
     # population standard deviation (numpy.std) of the frames the rule selects, including channels whose
     # window is not full yet; qualities() agrees with the per-channel quality() too.
     rng = np.random.default_rng(5)
-    m = Measures(channels=6, rate_hz=100.0, window_s=1.0, history_frames=1024)
+    m = Measures(channels=6, rate_hz=100.0, window_s=1.0, history_frames=1024, any_key=False)
     for block in range(8):
         n = 97
         deltas = rng.normal(0, 3 + np.arange(6), size=(n, 6)).round().astype(np.int64)
@@ -194,3 +194,46 @@ def test_guard_follows_the_frame_rate_and_refuses_a_negative_length():
     assert m.guard_frames == 100 and m._gate.guard_frames == 100
     with pytest.raises(ValueError, match="settle guard"):
         Measures(1, rate_hz=100.0, settle_s=-0.1)
+
+
+def test_another_keys_touch_is_not_noise_plain_rule_over_all_keys():
+    # Issue 12: a frame counts as a key's noise only when every key is released (clear by the guard).
+    # Reference: the same plain per-frame loop, over the "any key busy" state, and numpy.std of those frames.
+    rng = np.random.default_rng(9)
+    m = Measures(channels=3, rate_hz=100.0, window_s=3.0, history_frames=1024)
+    deltas = rng.normal(0, 2, size=(300, 3)).round().astype(np.int64)
+    states = np.zeros((300, 3), np.int8)
+    states[100:160, 0] = TOUCHED
+    deltas[100:160, 0] += 200
+    deltas[95:165, 1] += 40  # the neighbour moves key 1 by crosstalk, still released
+    for a in range(0, 300, 64):
+        m.ingest(np.arange(a, min(a + 64, 300)) / 100.0, 1000 + deltas[a:a + 64], deltas[a:a + 64],
+                 states[a:a + 64])
+    any_busy = np.where((states != RELEASED).any(axis=1), TOUCHED, RELEASED)
+    kept = plain_selection(any_busy, m.guard_frames)
+    q = m.quality(1)
+    assert q.noise is not None and q.noise.samples == len(kept)
+    assert q.noise.rms_counts == pytest.approx(float(np.std(deltas[kept, 1])))
+    assert q.noise.pp_counts < 20  # the 40-count crosstalk is out
+    per_key = Measures(channels=3, rate_hz=100.0, window_s=3.0, history_frames=1024, any_key=False)
+    per_key.ingest(np.arange(300) / 100.0, 1000 + deltas, deltas, states)
+    assert per_key.quality(1).noise.pp_counts >= 40  # the old rule counted it
+
+
+def test_the_verdict_says_what_it_rests_on():
+    m = Measures(channels=2, rate_hz=100.0, window_s=1.0)
+    states = np.zeros((400, 2), np.int8)
+    deltas = np.zeros((400, 2), np.int64)
+    for a, b in ((50, 80), (150, 190), (300, 310)):  # three touches of key 0: 30 + 40 + 10 frames
+        states[a:b, 0] = TOUCHED
+        deltas[a:b, 0] = 100
+    deltas[:, 1] = np.tile([0, 1], 200)
+    for a in range(0, 400, 37):  # blocks that split touches
+        m.ingest(np.arange(a, min(a + 37, 400)) / 100.0, deltas[a:a + 37] + 1000, deltas[a:a + 37],
+                 states[a:a + 37])
+    q = m.quality(0)
+    assert (q.touches, q.touched_frames) == (3, 80)
+    assert q.basis() == f"3 touches (80 frames), noise of {q.noise.samples} frames"
+    assert m.qualities()[0].touches == 3 and m.qualities()[1].touches == 0
+    m.clear_touch_signal(0)
+    assert m.quality(0).touches == 0

@@ -23,7 +23,7 @@ from processing.tuning import KeyResult, TuneResult, limits_from_result, tune_re
 from protocol.errors import UserError
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import frame_rate, load_profile_arg, percentage, quiet_broken_pipe
-from tui.headless.tuning import result_rows
+from tui.headless.tuning import CROSSTALK_RULE, couplings_of, crosstalk_rows, result_rows
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -109,7 +109,8 @@ def _say_unmeasured(missing: list[KeyResult], written: bool) -> None:
 def _show(args: argparse.Namespace, result: TuneResult, out: Path | None) -> int:
     if args.json:
         limits = {k: getattr(result.profile.limits, k) for k in LIMIT_KEYS}
-        rows = result_rows(result)
+        found = couplings_of(result)
+        rows = result_rows(result, found)
         for row, c in zip(rows, range(len(rows)), strict=True):
             own = result.profile.limits_for(c)
             row["limits"] = {k: getattr(own, k) for k in LIMIT_KEYS}  # type: ignore[typeddict-unknown-key]
@@ -118,7 +119,7 @@ def _show(args: argparse.Namespace, result: TuneResult, out: Path | None) -> int
                                      "from_marks": result.from_marks, "rate_hz": result.rate_hz,
                                      "frames": result.frames, "limits": limits,
                                      "unmeasured": [k.name for k in result.unmeasured()],
-                                     "channels": rows}) + "\n")
+                                     "channels": rows, "crosstalk": crosstalk_rows(result, found)}) + "\n")
     else:
         print_result(result, out)
     return 0
@@ -127,9 +128,10 @@ def _show(args: argparse.Namespace, result: TuneResult, out: Path | None) -> int
 def print_result(result: TuneResult, out: Path | None) -> None:
     console = make_console()
     plain = not console.is_terminal
-    rows = [dict(row, measured="yes" if row["measured"] else "NO") for row in result_rows(result)]
+    found = couplings_of(result)
+    rows = [dict(row, measured="yes" if row["measured"] else "NO") for row in result_rows(result, found)]
     columns = [("name", "key"), ("measured", "measured"), ("touches", "touches"), ("noise_pp", "noise pp"),
-               ("noise_rms", "noise rms"),
+               ("noise_rms", "noise rms"), ("noise_touched_pp", "touched pp"), ("crosstalk_pct", "xtalk %"),
                ("signal", "signal"), ("snr_pp", "SNR pp"), ("snr_rms", "SNR rms"), ("verdict", "verdict"),
                ("threshold", "threshold"), ("hysteresis", "hyst"), ("touch_debounce", "touch db"),
                ("release_debounce", "release db")]
@@ -137,12 +139,20 @@ def print_result(result: TuneResult, out: Path | None) -> None:
     console.print(channel_table(rows, columns, title=f"{result.source}: {result.frames} frames at "
                                 f"{result.rate_hz:g} Hz, touches {how}", plain=plain))
     for row in rows:
+        console.print(f"{row['name']}: verdict {row['verdict']} from {row['basis']}; noise while touched "
+                      f"{row['noise_touched_pp'] if row['noise_touched_pp'] is not None else '-'} pp"
+                      + (f" ({row['touched_tone']})" if row["touched_tone"] else ""))
         if row["refusal"]:
             console.print(f"{row['name']}: no suggestion: {row['refusal']}")
         for key, reason in row["reasons"].items():
             console.print(f"{row['name']} {key}: {reason}")
+    for x in crosstalk_rows(result, found):
+        if x["flagged"]:
+            console.print(f"crosstalk flagged: touching {x['source']} moves {x['target']} by {x['shift']:+g} "
+                          f"counts, {x['share_pct']:g}% of its threshold")
     console.print("SNR = median touched delta / untouched noise (pp or RMS); verdict from SNR pp "
                   "(common practice: below 5 weak, 5-10 marginal, above 10 solid)")
+    console.print(CROSSTALK_RULE + "; noise while touched: the touch level removed by a 0.2 s running median")
     limits = [f"{k} {getattr(result.profile.limits, k)}" for k in LIMIT_KEYS
               if getattr(result.profile.limits, k) is not None]
     if limits:

@@ -1,10 +1,22 @@
 """What `padtune tune` shows of a `processing.tuning.TuneResult`: one plain row per key for its table, its
-JSON and its HTML report (the tuning itself is `processing.tuning`)."""
+JSON and its HTML report (the tuning itself is `processing.tuning`), and the crosstalk table (touching key
+A moves key B: `crosstalk_rows`), both computed from the result's traces by `processing.crosstalk`."""
 
 from __future__ import annotations
 
 from typing import TypedDict
 
+import numpy as np
+
+from processing.crosstalk import (
+    FLAG_SHARE,
+    Coupling,
+    couplings,
+    during_touches,
+    touched_noise,
+    worst_by_target,
+)
+from processing.measure import rests_on
 from processing.suggest import Refusal, Suggestion
 from processing.tuning import TuneResult
 
@@ -17,10 +29,17 @@ class KeyRow(TypedDict):
     touches: int
     noise_pp: float | None
     noise_rms: float | None
+    noise_touched_pp: float | None  # noise while touched, the touch level removed (processing.crosstalk)
+    noise_touched_rms: float | None
+    touched_tone: str  # the touched noise's spectrum in a few words (the mains alias check), "" if none
     signal: float | None
     snr_pp: float | None
     snr_rms: float | None
     verdict: str
+    basis: str  # what the verdict rests on: touches, touched frames, noise frames
+    crosstalk_pct: float | None  # the largest crosstalk onto this key, % of its threshold
+    crosstalk_from: str | None  # ... from touching this key
+    crosstalk_flagged: bool  # above FLAG_SHARE of its threshold
     threshold: int | None
     hysteresis: int | None
     touch_debounce: int | None
@@ -31,16 +50,70 @@ class KeyRow(TypedDict):
     refusal: str | None  # why nothing was suggested
 
 
-def result_rows(result: TuneResult) -> list[KeyRow]:
+class CrosstalkRow(TypedDict):
+    """Touching `source` moves `target` by `shift` counts: `share_pct` % of the target's threshold."""
+
+    pair: str  # "source > target"
+    source: str
+    target: str
+    shift: float
+    share_pct: float | None
+    frames: int
+    flagged: bool
+
+
+def couplings_of(result: TuneResult) -> list[Coupling]:
+    """Crosstalk in a tuned recording: each key's deltas in the frames where one other key alone was
+    touched, against the median of its own untouched deltas, as a share of its threshold after tuning."""
+    traces = [k.trace for k in result.keys]
+    if not traces:
+        return []
+    deltas = np.stack([t.delta for t in traces], axis=1)
+    touched = np.zeros(deltas.shape, bool)
+    for c, t in enumerate(traces):
+        for a, b in t.stretches:
+            touched[a:b, c] = True
+    return couplings({c: t.quiet for c, t in enumerate(traces)}, during_touches(deltas, touched),
+                     {c: float(k.after.threshold_counts) for c, k in enumerate(result.keys)})
+
+
+def crosstalk_rows(result: TuneResult, found: list[Coupling] | None = None) -> list[CrosstalkRow]:
+    """The crosstalk table, the largest share first (only pairs measured: one key alone touched)."""
+    names = [k.name for k in result.keys]
+    return [{"pair": f"{names[c.source]} > {names[c.target]}", "source": names[c.source],
+             "target": names[c.target], "shift": round(c.shift_counts, 1),
+             "share_pct": None if c.share is None else round(100 * c.share, 1), "frames": c.frames,
+             "flagged": c.flagged()} for c in (couplings_of(result) if found is None else found)]
+
+
+CROSSTALK_RULE = (f"crosstalk: touching one key alone moves another by its median delta then, less its own "
+                  f"untouched median; flagged above {100 * FLAG_SHARE:.0f}% of its threshold "
+                  "(common practice, no source)")
+
+
+def result_rows(result: TuneResult, found: list[Coupling] | None = None) -> list[KeyRow]:
     """One plain dict per key: what the table, the JSON and the report show."""
     rows: list[KeyRow] = []
+    worst = worst_by_target(couplings_of(result) if found is None else found)
     for k in result.keys:
         f, s = k.figures, k.after
         ok = isinstance(k.outcome, Suggestion)
+        delta = k.trace.delta
+        held = touched_noise([delta[a:b] for a, b in k.trace.stretches], result.rate_hz)
+        x = worst.get(k.channel)
+        share = x.share if x is not None else None
         rows.append({
             "name": k.name, "index": k.channel, "touches": len(k.trace.stretches),
-            "noise_pp": f.noise_pp_counts, "noise_rms": f.noise_rms_counts, "signal": f.signal_counts,
+            "noise_pp": f.noise_pp_counts, "noise_rms": f.noise_rms_counts,
+            "noise_touched_pp": round(held.pp_counts, 1) if held else None,
+            "noise_touched_rms": round(held.rms_counts, 2) if held else None,
+            "touched_tone": held.hum() if held else "",
+            "signal": f.signal_counts,
             "snr_pp": f.snr_pp, "snr_rms": f.snr_rms, "verdict": k.verdict,
+            "basis": rests_on(len(k.trace.stretches), len(k.trace.touched), len(k.trace.quiet)),
+            "crosstalk_pct": None if share is None else round(100 * share, 1),
+            "crosstalk_from": result.keys[x.source].name if x is not None else None,
+            "crosstalk_flagged": bool(x is not None and x.flagged()),
             "threshold": s.threshold_counts if ok else None,
             "hysteresis": s.hysteresis_counts if ok else None,
             "touch_debounce": s.touch_debounce_frames if ok else None,

@@ -14,6 +14,7 @@ from rich.padding import Padding
 from rich.text import Text
 
 from processing.capture import CaptureOutcome, key_ranges, steps_for
+from processing.crosstalk import FLAG_SHARE
 from tui.fields import FIELDS
 from tui.render import Styles
 from tui.render.histogram import DeltaHistogram
@@ -21,9 +22,13 @@ from tui.render.histogram import DeltaHistogram
 # Two-line heads (the quantity over its form or unit) in plain words. Eleven columns with full words
 # cannot fit 80 cells, so the RMS forms of noise and SNR moved to the selected key's detail lines,
 # and the columns are one cell apart (each cell carries its own leading space) instead of two.
+# The noise column holds untouched/touched noise pp ("8/12": the second is noise while touched, the
+# touch level removed); "xtalk" the largest crosstalk onto the key as a share of its threshold, "!"
+# above the flag share (processing.crosstalk). The detail lines spell both out.
 COLUMNS: tuple[tuple[str, str], ...] = (
     ("key", ""), ("noise", "pp"), ("touch", "delta"), ("SNR", "pp"), ("verdict", ""),
     ("threshold", "counts"), ("hysteresis", "counts"), ("debounce", "frames"), ("applied", ""),
+    ("xtalk", "%"),
 )
 # Setting keys (as the suggestion's reasons carry them) -> the words the editor shows for them.
 _LABELS = {f.key: f.label for f in FIELDS}
@@ -57,8 +62,23 @@ def outcome_row(o: CaptureOutcome, applied: bool) -> tuple[str, ...]:
     settings = (str(s.threshold_counts), str(s.hysteresis_counts),
                 f"{s.touch_debounce_frames}/{s.release_debounce_frames}") if o.suggested else ("-", "-", "-")
     mark = "yes" if applied else ("-" if o.suggested else "none")
-    return (o.name, _num(f.noise_pp_counts), _num(f.signal_counts), _num(f.snr_pp), o.verdict, *settings,
-            mark)
+    return (o.name, noise_cell(o), _num(f.signal_counts), _num(f.snr_pp), o.verdict, *settings, mark,
+            crosstalk_cell(o))
+
+
+def noise_cell(o: CaptureOutcome) -> str:
+    """Untouched and touched noise pp, "8/12" (whole counts: pp of integer deltas), "8/-" without a touch."""
+    still = _num(o.figures.noise_pp_counts, 0)
+    return f"{still}/{_num(o.touched_noise.pp_counts if o.touched_noise else None, 0)}"
+
+
+def crosstalk_cell(o: CaptureOutcome) -> str:
+    """The largest crosstalk onto the key as a whole percentage of its threshold, "!" when flagged."""
+    worst = next((c for c in o.crosstalk if c.share is not None), None)
+    if worst is None:
+        return "-"
+    share = worst.share or 0.0
+    return f"{100 * share:.0f}" + ("!" if worst.flagged() else "")
 
 
 def _indented(text: str, left: int = 4) -> Padding:
@@ -67,17 +87,21 @@ def _indented(text: str, left: int = 4) -> Padding:
 
 
 def outcome_detail(o: CaptureOutcome, styles: Styles | None = None) -> Group:
-    """The selected key's figures, its histogram of untouched and touched deltas, then its reasons
-    (the histogram first: at 80x24 it is what fits; the reasons scroll)."""
-    f = o.figures
+    """The selected key's figures (untouched and touched noise side by side, SNR and what it rests on),
+    its histogram of untouched and touched deltas, its crosstalk and the touched noise's spectrum, then
+    its reasons (the histogram first: at 80x24 it is what fits; the rest scrolls)."""
+    f, t = o.figures, o.touched_noise
+    held = f"{_num(t.pp_counts)}/{_num(t.rms_counts)}" if t is not None else "-"
     lines: list[Any] = [
         Text(f"{o.name}", style="bold"),
-        _indented(f"noise {_num(f.noise_pp_counts)} pp, {_num(f.noise_rms_counts)} RMS counts; "
-                  f"touch delta {_num(f.signal_counts)} counts", 2),
-        _indented(f"SNR {_num(f.snr_pp)} pp, {_num(f.snr_rms)} RMS: {o.verdict}", 2)]
+        _indented(f"noise pp/RMS untouched {_num(f.noise_pp_counts)}/{_num(f.noise_rms_counts)}, "
+                  f"touched {held}; touch delta {_num(f.signal_counts)} counts", 2),
+        _indented(f"SNR {_num(f.snr_pp)} pp, {_num(f.snr_rms)} RMS: {o.verdict}, from {o.basis()}", 2)]
     threshold = float(o.after.threshold_counts) if o.suggested else None
     lines.append(Padding(DeltaHistogram(o.untouched, o.touched, threshold=threshold, width=48, styles=styles),
                          (0, 0, 0, 2)))
+    lines.append(_indented(crosstalk_line(o), 2))
+    lines.append(_indented(touched_noise_line(o), 2))
     if o.suggested:
         for key, reason in o.suggestion.reasons.items():  # type: ignore[union-attr]
             lines.append(_indented(f"{setting_label(key)}: {reason}", 2))
@@ -87,6 +111,30 @@ def outcome_detail(o: CaptureOutcome, styles: Styles | None = None) -> Group:
         lines.append(_indented(f"{o.stray_frames} frames rose beyond its noise while other keys were held "
                                "(a stray finger or strong crosstalk): left out of its untouched deltas", 2))
     return Group(*lines)
+
+
+def crosstalk_line(o: CaptureOutcome, most: int = 3) -> str:
+    """What touching the other keys did to this one, the largest first, as shares of its threshold."""
+    if not o.crosstalk:
+        return "crosstalk: no other key was held during this capture"
+    parts = []
+    for c in o.crosstalk[:most]:
+        share = f" ({100 * c.share:.0f}%{', flagged' if c.flagged() else ''})" if c.share is not None else ""
+        parts.append(f"{o.names[c.source]} {c.shift_counts:+.1f}{share}")
+    more = f", {len(o.crosstalk) - most} smaller" if len(o.crosstalk) > most else ""
+    return (f"crosstalk onto {o.name}, counts (% of its threshold {o.after.threshold_counts}): "
+            f"{', '.join(parts)}{more}; flagged above {100 * FLAG_SHARE:.0f}% (common practice, no source)")
+
+
+def touched_noise_line(o: CaptureOutcome) -> str:
+    """How the touched noise was taken and what its spectrum shows."""
+    t = o.touched_noise
+    if t is None:
+        return "touched noise: too few touched frames"
+    ms = f", {1000 * t.window_frames / o.rate_hz:.0f} ms" if o.rate_hz > 0 else ""
+    hum = f"; {t.hum()}" if t.hum() else "; too few frames for a spectrum"
+    return (f"touched noise: {t.samples} frames, the touch level removed by a {t.window_frames}-frame "
+            f"running median{ms}{hum}")
 
 
 def key_choices(names: Sequence[str], selected: int | None,

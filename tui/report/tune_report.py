@@ -6,23 +6,35 @@ from __future__ import annotations
 from html import escape
 
 from processing.tuning import TuneResult
-from tui.headless.tuning import result_rows
+from tui.headless.tuning import CROSSTALK_RULE, couplings_of, crosstalk_rows, result_rows
 from tui.report import html
 from tui.report.plots import delta_plot, histogram_plot
 
 COLUMNS = [("name", "key"), ("touches", "touches"), ("noise_pp", "noise pp"), ("noise_rms", "noise RMS"),
-           ("signal", "signal"), ("snr_pp", "SNR pp"), ("snr_rms", "SNR RMS"), ("verdict", "verdict"),
+           ("noise_touched_pp", "touched noise pp"), ("noise_touched_rms", "touched noise RMS"),
+           ("crosstalk_pct", "crosstalk % of threshold"), ("signal", "signal"), ("snr_pp", "SNR pp"),
+           ("snr_rms", "SNR RMS"), ("verdict", "verdict"),
            ("threshold", "threshold"), ("hysteresis", "hysteresis"), ("touch_debounce", "touch debounce"),
            ("release_debounce", "release debounce")]
 
 
+CROSSTALK_COLUMNS = [("source", "touching"), ("target", "moves"), ("shift", "by counts"),
+                     ("share_pct", "% of its threshold"), ("frames", "frames"), ("flagged", "flagged")]
+
+
 def build_tune_report(result: TuneResult) -> str:
-    rows = result_rows(result)
+    found = couplings_of(result)
+    rows = result_rows(result, found)
     how = "from the recording's marks" if result.from_marks else "found in the deltas"
+    cross = crosstalk_rows(result, found)
     body = [f"<h2>Summary</h2>{html.table(COLUMNS, rows)}",
             "<p class=\"reasons\">Noise: peak-to-peak and RMS (numpy.std) of untouched deltas, counts. "
+            "Touched noise: the same of the touched deltas less a 0.2 s running median (the touch level). "
             "Signal: median touched delta. SNR = signal / noise (pp or RMS form). Verdict from SNR pp "
-            "(common practice, no source: below 5 weak, 5-10 marginal, above 10 solid).</p>"]
+            "(common practice, no source: below 5 weak, 5-10 marginal, above 10 solid).</p>",
+            "<h2>Crosstalk</h2>" + html.table(CROSSTALK_COLUMNS, cross, key_field="pair",
+                                              text_fields=("source", "target", "flagged"))
+            + f"<p class=\"reasons\">{escape(CROSSTALK_RULE)}.</p>"]
     for key, row in zip(result.keys, rows, strict=True):
         s = key.after
         threshold = float(s.threshold_counts)
@@ -36,7 +48,10 @@ def build_tune_report(result: TuneResult) -> str:
                                        title=f"{name}: untouched and touched"), name, "histogram",
                         f"{name}: histograms of untouched and touched deltas"),
         ]
-        notes = [f"<li>{escape(k)}: {escape(v)}</li>" for k, v in row["reasons"].items()]  # type: ignore
+        notes = [f"<li>verdict {escape(row['verdict'])} from {escape(row['basis'])}</li>"]
+        if row["touched_tone"]:
+            notes.append(f"<li>noise while touched: {escape(row['touched_tone'])}</li>")
+        notes += [f"<li>{escape(k)}: {escape(v)}</li>" for k, v in row["reasons"].items()]  # type: ignore
         if row["refusal"]:
             notes.append(f"<li>no suggestion: {escape(str(row['refusal']))}</li>")
         if not row["measured"]:  # written with --partial: it keeps settings it was not measured for
