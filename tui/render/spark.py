@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from functools import lru_cache
+from operator import itemgetter
 
 from rich.text import Text
 
@@ -22,7 +23,21 @@ def downsample_max(values: Sequence[float], width: int) -> list[float]:
         return []
     if n <= width:
         return list(values)
+    pairs = _pair_pickers(n, width)
+    if pairs is not None:  # buckets of one or two values: the larger of the first and the last
+        firsts, lasts = pairs
+        return list(map(max, firsts(values), lasts(values)))
     return [max(values[lo:hi]) for lo, hi in _buckets(n, width)]
+
+
+@lru_cache(maxsize=64)
+def _pair_pickers(n: int, width: int) -> tuple[itemgetter, itemgetter] | None:
+    """For buckets of at most two values (the screen's usual case: 48 points on 20-48 cells), getters of
+    each bucket's first and last value: no slice per bucket. None when a bucket is wider (or one cell)."""
+    bounds = _buckets(n, width)
+    if width < 2 or any(hi - lo > 2 for lo, hi in bounds):
+        return None
+    return itemgetter(*[lo for lo, _ in bounds]), itemgetter(*[hi - 1 for _, hi in bounds])
 
 
 @lru_cache(maxsize=64)

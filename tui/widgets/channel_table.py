@@ -11,10 +11,12 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import ClassVar
 
+from rich.color import Color as RichColor
 from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
 from textual.binding import Binding
+from textual.filter import ANSIToTruecolor, LineFilter
 from textual.geometry import Region, Size
 from textual.message import Message
 from textual.reactive import reactive
@@ -71,6 +73,9 @@ class ChannelTable(Widget):
         self._combined: dict[Style, dict[str, Style]] = {}
         self._pass_size: Size | None = None
         self._header_strip: tuple[tuple[object, ...], Strip] | None = None
+        # The app's ANSI-to-truecolour filter when this table applies it itself (see get_line_filters),
+        # and the background it converts on.
+        self._truecolor: tuple[ANSIToTruecolor, RichColor] | None = None
 
     # -- data in ----------------------------------------------------------------------------------
     def show(self, views: Sequence[ChannelView]) -> None:
@@ -149,6 +154,40 @@ class ChannelTable(Widget):
             self._layout = row_layout(width, name_width=max(6, longest))
         return self._layout
 
+    def get_line_filters(self) -> Sequence[LineFilter]:
+        """The app's filters, less its ANSI-to-truecolour one when the rows can take it themselves.
+
+        That filter makes a new segment for every segment of every line drawn, though it maps a
+        handful of styles: the table converts its few styles once (`_on_base`, kept until the styles,
+        the theme or the background change) and makes its segments in their final styles. Only where a
+        line reaches the filter as the table drew it (no opacity, tint, text opacity, hatch or padding
+        on the table, which would change the styles in between); otherwise Textual filters as usual.
+        """
+        filters = super().get_line_filters()
+        found = next((f for f in filters if isinstance(f, ANSIToTruecolor)), None)
+        styles = self.styles
+        if (found is None or self.opacity != 1.0 or styles.tint.a or styles.text_opacity != 1.0
+                or styles.hatch != "none" or styles.padding.left or styles.padding.right):
+            self._own_truecolor(None)
+            return filters
+        self._own_truecolor((found, self.background_colors[1].rich_color))
+        return [f for f in filters if f is not found]
+
+    def _own_truecolor(self, truecolor: tuple[ANSIToTruecolor, RichColor] | None) -> None:
+        if truecolor != self._truecolor:  # another theme, background or filter: convert afresh
+            self._truecolor = truecolor
+            self._combined = {}
+            self._header_strip = None
+            # Lines Textual kept from the passes before were drawn for the other way: draw them again.
+            self._styles_cache.clear()
+
+    def _final(self, style: Style) -> Style:
+        """A style as it will reach the terminal (the app's truecolour filter, when the table applies it)."""
+        if self._truecolor is None:
+            return style
+        found, background = self._truecolor
+        return found.truecolor_style(style, background)
+
     def render_lines(self, crop: Region) -> list[Strip]:
         """Textual's pass over the dirty lines: the size is looked up once for all of them, not per line."""
         self._pass_size = self.size
@@ -167,12 +206,13 @@ class ChannelTable(Widget):
             return self._header(layout, width, size.height, styles)
         index = self._top + y - 1
         if index >= len(self._views):
-            return Strip.blank(width, base)
+            return Strip.blank(width, self._final(base))
         selected = index == self.cursor
         if selected:
             base = base + styles["selected"]
-        pieces = row_pieces(self._views[index], layout, selected, self._on_base(base))
-        return self._strip(pieces, base, width)
+        on_base = self._on_base(base)
+        pieces = row_pieces(self._views[index], layout, selected, on_base)
+        return self._strip(pieces, on_base[""], width)
 
     def _header(self, layout: RowLayout, width: int, height: int, styles: dict[str, Style]) -> Strip:
         """The header line, built again only when what it shows changes (not at every frame)."""
@@ -188,15 +228,22 @@ class ChannelTable(Widget):
             text = Text("↕" if more_up and more_down else "↑" if more_up else "↓", styles["dim"]) + text[1:]
         text.truncate(width, pad=True)
         strip = Strip(text.render(self.app.console), width).apply_style(styles["base"])
+        if self._truecolor is not None:
+            strip = Strip([Segment(chunk, None if style is None else self._final(style), control)
+                           for chunk, style, control in strip], strip.cell_length)
         self._header_strip = (key, strip)
         return strip
 
     def _on_base(self, base: Style) -> dict[str, Style]:
-        """Every role's style already on the row's base (one map per base, kept until the styles change):
-        the pieces come out in their final styles, and plain pieces (NULL) take the base itself."""
+        """Every role's style already on the row's base (one map per base, kept until the styles change),
+        as it reaches the terminal: the pieces come out in their final styles; "" is the base itself,
+        which plain pieces (NULL) take."""
         found = self._combined.get(base)
         if found is None:
-            found = self._combined[base] = {role: base + style for role, style in self.styles_map().items()}
+            final = self._final
+            found = {role: final(base + style) for role, style in self.styles_map().items()}
+            found[""] = final(base)
+            self._combined[base] = found
         return found
 
     def _strip(self, pieces: list[Piece], base: Style, width: int) -> Strip:
