@@ -162,8 +162,11 @@ def json_document(profile: Profile, source: str, now: dt.datetime | None = None)
         "exported_at": _stamp(now),
         "board": profile.board,
         "rate_hz": profile.rate_hz,
+        # Each channel's own limits ([channel.NAME.limits] over [limits]) and whether its settings were
+        # measured (`measured = false` in the profile: written by `tune --partial` from defaults).
         "channels": [{"index": c, "name": names[c], "polarity": _polarity(profile, c),
-                      **asdict(profile.settings_for(c))} for c in range(profile.channels)],
+                      **asdict(profile.settings_for(c)), "limits": asdict(profile.limits_for(c)),
+                      "measured": c not in profile.unmeasured()} for c in range(profile.channels)],
         "groups": [{"name": g.name, "members": list(g.members), "member_names": [names[m] for m in g.members],
                     "switch_margin_counts": g.switch_margin_counts} for g in profile.groups],
         "sliders": [{"name": s.name, "pads": list(s.pads), "pad_names": [names[p] for p in s.pads],

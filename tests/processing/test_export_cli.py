@@ -117,3 +117,24 @@ def test_missing_profile_and_output_required(tmp_path):
     (tmp_path / "p.toml").write_text(GOOD)
     out = padtune("export", "p.toml", "--json", "p.toml", cwd=tmp_path)
     assert out.returncode == 2 and "refusing to overwrite" in out.stderr
+
+
+def test_json_carries_each_channels_own_limits_and_an_unmeasured_key_is_warned_about(tmp_path):
+    from dataclasses import replace
+
+    from processing.profile import load_profile, save_profile
+
+    (tmp_path / "panel.toml").write_text(GOOD)
+    base = load_profile(tmp_path / "panel.toml")
+    own = replace(base.limits_for(2), baseline_min_counts=1500, baseline_max_counts=1800)
+    save_profile(base.with_limits(2, own).with_measured(1, False), tmp_path / "p.toml")
+    out = padtune("export", "p.toml", "--json", "p.json", cwd=tmp_path)
+    assert out.returncode == 0, out.stderr
+    channels = json.loads((tmp_path / "p.json").read_text())["channels"]
+    assert channels[2]["limits"]["baseline_min_counts"] == 1500  # its own band, not [limits]'
+    assert channels[0]["limits"] == json.loads((tmp_path / "p.json").read_text())["limits"]
+    assert [c["measured"] for c in channels[:3]] == [True, False, True]
+    name = channels[1]["name"]
+    assert out.stderr.count("\n") == 1 and f"{name} marked measured = false" in out.stderr
+    out = padtune("export", "p.toml", "--c-header", "p.h", cwd=tmp_path)
+    assert out.returncode == 0 and "measured = false" in out.stderr

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 
 from processing.export import export_c_header, export_json
@@ -48,6 +49,11 @@ def run(args: argparse.Namespace) -> int:
                                                         (len(profile.groups), "group"),
                                                         (len(profile.sliders), "slider")))
     print(f"wrote {target} ({counts})")
+    if profile.unmeasured():  # written from defaults by `tune --partial`: the firmware gets guesses there
+        names = ", ".join(profile.names[c] for c in profile.unmeasured())
+        print(f"padtune: warning: {names} marked measured = false in {args.profile}: their settings were "
+              "not tuned on a touch; record them being touched and tune again before shipping",
+              file=sys.stderr)
     return 0
 
 
