@@ -106,70 +106,26 @@ def test_push_and_pull_through_a_sim_served_on_a_pseudo_terminal(tmp_path):
         server.wait(timeout=30)
 
 
-class LyingBoard:
-    """A board on a pty that says settings=1 and answers `>ok` to every set, but changes nothing: push
-    must catch it when it reads the settings back."""
-
-    VAL = ("threshold_counts=30 hysteresis_counts=8 touch_debounce_frames=2 release_debounce_frames=2 "
+# What the fake boards below hold on every channel, whatever they were told.
+BOARD_VAL = ("threshold_counts=30 hysteresis_counts=8 touch_debounce_frames=2 release_debounce_frames=2 "
            "baseline_slow_shift=6 baseline_fast_shift=2 baseline_period_frames=16 stuck_timeout_frames=0 "
            "polarity=+")
 
-    def __init__(self, folder: Path) -> None:
-        self.master, slave = os.openpty()
-        tty.setraw(slave)
-        self.slave = slave
-        self.path = folder / "liar"
-        os.symlink(os.ttyname(slave), self.path)
-        self.stop = threading.Event()
-        self.thread = threading.Thread(target=self._serve, daemon=True)
-        self.thread.start()
-
-    def _serve(self) -> None:
-        import select
-
-        pending = b""
-        while not self.stop.is_set():
-            ready, _, _ = select.select([self.master], [], [], 0.05)
-            if not ready:
-                continue
-            try:
-                pending += os.read(self.master, 4096)
-            except OSError:
-                return
-            while b"\n" in pending:
-                line, _, pending = pending.partition(b"\n")
-                os.write(self.master, self._answer(line.decode().split()))
-
-    def _answer(self, words: list[str]) -> bytes:
-        if words == ["?"]:
-            return b"! board=liar channels=2 names=a,b settings=1\n"
-        if words[:1] == ["get"]:
-            return f">val 0 {self.VAL}\n>val 1 {self.VAL}\n>ok get *\n".encode()
-        if words[:1] == ["set"]:
-            return f">ok set {words[1]} {' '.join(words[2:])}\n".encode()
-        return f">no {words[0]}: unknown command\n".encode()
-
-    def close(self) -> None:
-        self.stop.set()
-        self.thread.join(5)
-        os.close(self.master)
-        os.close(self.slave)
-
 
 def test_push_reports_each_difference_when_the_board_does_not_hold_what_it_acknowledged(tmp_path):
-    board = LyingBoard(tmp_path)
+    board = FakeBoard(tmp_path)  # acknowledges every set and goes on holding BOARD_VAL
     try:
         profile = tmp_path / "two.toml"
-        profile.write_text('format_version = 1\nchannels = 2\nnames = ["a", "b"]\n'
+        profile.write_text('format_version = 1\nchannels = 2\nnames = ["k0", "k1"]\n'
                            '[defaults]\nthreshold_counts = 30\nhysteresis_counts = 8\n'
                            'touch_debounce_frames = 2\nrelease_debounce_frames = 2\n'
-                           '[channel.b]\nthreshold_counts = 55\n')
+                           '[channel.k1]\nthreshold_counts = 55\n')
         r = padtune("push", str(profile), str(board.path))
     finally:
         board.close()
     assert r.returncode == 1, r.stdout + r.stderr
     assert r.stdout.strip().splitlines() == [
-        "padtune push: b: threshold_counts is 30 on the board, 55 in the profile"]
+        "padtune push: k1: threshold_counts is 30 on the board, 55 in the profile"]
 
 
 def test_a_sim_on_a_pseudo_terminal_answers_bytes_that_are_not_text_and_keeps_its_port(tmp_path):
@@ -206,7 +162,7 @@ class FakeBoard:
     echoes while the board holds what was sent."""
 
     def __init__(self, folder: Path, channels: int = 2, byte_rate: float = 0.0,
-                 val: str = LyingBoard.VAL, echo: tuple[str, str] = ("", "")) -> None:
+                 val: str = BOARD_VAL, echo: tuple[str, str] = ("", "")) -> None:
         self.channels, self.byte_rate, self.val, self.echo = channels, byte_rate, val, echo
         self.master, self.slave = os.openpty()
         tty.setraw(self.slave)
@@ -301,7 +257,7 @@ def test_push_fails_when_the_board_echoes_other_values_than_were_sent(tmp_path):
      "unreadable answer (threshold_counts: 999999999999 is out of range: must be between 1 and 16777216)"),
 ])
 def test_pull_says_in_one_sentence_what_a_board_holds_that_a_profile_cannot(tmp_path, held, says):
-    board = FakeBoard(tmp_path, val=LyingBoard.VAL.replace(*held))
+    board = FakeBoard(tmp_path, val=BOARD_VAL.replace(*held))
     try:
         r = padtune("pull", str(board.path), "-o", str(tmp_path / "x.toml"))
     finally:
