@@ -17,6 +17,7 @@ from collections.abc import Sequence
 from typing import NoReturn
 
 import devices
+from protocol.printable import printable
 from tui import commands
 from tui.errors import UserError
 from tui.polarity_arg import glue_polarity
@@ -60,7 +61,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return int(func(args) or 0)
     except UserError as exc:
-        print(f"padtune: {exc}", file=sys.stderr)
+        # The last guard: a message quoting a file or a board never reaches the terminal as control codes.
+        print(f"padtune: {printable(str(exc), double_backslash=False)}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         return 130
