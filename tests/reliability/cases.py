@@ -20,7 +20,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 
 # The words of a leaked Python internal: a traceback, an exception's class name, a bare KeyError.
-LEAKS = ("Traceback", "Error:", "Exception", "set_int_max_str_digits", "Exceeds the limit", "errno",
+LEAKS = ("Traceback", "Error:", "Exception", "set_int_max_str_digits", "Exceeds the limit", "[Errno",
          "KeyError", "<class", "object at 0x")
 
 
