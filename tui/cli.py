@@ -62,7 +62,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         return int(func(args) or 0)
     except UserError as exc:
         # The last guard: a message quoting a file or a board never reaches the terminal as control codes.
-        print(f"padtune: {printable(str(exc), double_backslash=False)}", file=sys.stderr)
+        # A message listing several problems keeps its own line breaks (one problem per line).
+        lines = (printable(line, double_backslash=False) for line in str(exc).split("\n"))
+        print("padtune: " + "\n".join(lines), file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         return 130
