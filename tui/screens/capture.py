@@ -263,7 +263,9 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
     def _finish(self) -> None:
         assert self.wizard is not None
         self._let_go()
-        self.outcomes = summarise(self.wizard, self.session.settings)
+        profile = self.session.profile
+        self.outcomes = summarise(self.wizard, self.session.settings,
+                                  sliders=profile.sliders if profile is not None else ())
         self.query_one("#capture-steps").display = False
         self.query_one("#capture-results").display = True
         self._fill_table()
