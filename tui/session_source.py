@@ -211,6 +211,10 @@ class SessionSource:
         tail = deltas[len(deltas) - n:]
         return tail.reshape(points, n // points, -1).max(axis=1).T.astype(np.float64)
 
+    def quality(self, channel: int) -> ChannelQuality | None:
+        """A channel's SNR verdict and what it rests on, as last refreshed (twice a second)."""
+        return self._quality[channel] if 0 <= channel < len(self._quality) else None
+
     def channel_views(self, spark_points: int) -> list[ChannelView]:
         e, p = self.session.engine, self.session.profile
         if e is None or p is None:

@@ -29,6 +29,7 @@ from textual.screen import Screen
 from textual.widgets import Footer
 from textual.worker import Worker, WorkerState
 
+from processing.measure import ChannelQuality
 from processing.settings import ChannelSettings
 from protocol.errors import UserError
 from protocol.events import BoardChanged
@@ -294,8 +295,13 @@ class LiveScreen(Screen[None]):
         self.detail_panel.show(
             names[ch], self.source.series(ch), spectrum, self.source.settings(ch), self.field_key,
             list(self.feed.recent.get(ch, ())), self.source.rate_hz, self.source.polarity(ch), status,
-            pending, self._long_view(ch),
+            pending, self._long_view(ch), self._quality(ch),
         )
+
+    def _quality(self, ch: int) -> ChannelQuality | None:
+        """The key's SNR verdict and what it rests on, when the source measures one."""
+        quality = getattr(self.source, "quality", None)
+        return quality(ch) if quality is not None else None
 
     def _time_rate_hz(self) -> float | None:
         """The rate times in ms are shown and typed at: the board's, once stated or measured (a source

@@ -1,0 +1,40 @@
+"""A key's SNR verdict with what it rests on (touches and released frames), fitted to a width.
+
+The table's SNR column has room for the figure and a glyph only; the detail panel says the rest:
+"solid ✓ SNR 14.2 from 6 touches, 4,800 released frames" on one line where it fits, else on two
+("SNR 14.2 ✓ solid" / "from 6 touches, 4,800 released frames") where there are lines to spare, else
+the short line "SNR 14.2 ✓ solid: 6 touches, 4,800 frames" (the frames are always released frames, the
+ones the noise is taken over). The figures are `processing.measure.ChannelQuality`'s: touches since
+the signal was last cleared, and the released frames of its noise window (ALGORITHM.md, Measures).
+Plain text, no Textual.
+"""
+
+from __future__ import annotations
+
+from processing.measure import ChannelQuality
+from tui.render.glyphs import verdict_label
+from tui.words import plural
+
+
+def verdict_lines(q: ChannelQuality | None, width: int, lines: int = 2) -> list[str]:
+    """At most `lines` (1 or 2) lines of at most `width` cells: the most explicit form that fits (cut
+    only when even the shortest is wider)."""
+    if q is None:
+        return _first_fit([["SNR -- ? not measured yet"], ["SNR -- ?", "not measured yet"]], width, lines)
+    glyph, word = verdict_label(q.verdict).glyph, q.verdict
+    snr = f"SNR {q.snr_pp:.1f}" if q.snr_pp is not None else "SNR --"
+    frames = q.noise.samples if q.noise is not None else 0
+    touches = plural(q.touches, "touch", "touches")
+    released = f"{frames:,} released frame{'' if frames == 1 else 's'}"
+    head = f"{snr} {glyph} {word}"
+    choices = [[f"{word} {glyph} {snr} from {touches}, {released}"],
+               [head, f"from {touches}, {released}"],
+               [f"{head}: {touches}, {frames:,} frames"],
+               [head, f"{touches}, {frames:,} frames"]]
+    return _first_fit(choices, width, lines)
+
+
+def _first_fit(choices: list[list[str]], width: int, lines: int) -> list[str]:
+    allowed = [c for c in choices if len(c) <= max(1, lines)] or choices
+    fit = next((c for c in allowed if all(len(line) <= width for line in c)), allowed[-1])
+    return [line[:width] for line in fit]
