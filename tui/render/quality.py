@@ -3,10 +3,11 @@
 The table's SNR column has room for the figure and a glyph only; the detail panel says the rest:
 "solid ✓ SNR 14.2 from 6 touches, 4,800 released frames" on one line where it fits, else on two
 ("SNR 14.2 ✓ solid" / "from 6 touches, 4,800 released frames") where there are lines to spare, else
-the short line "SNR 14.2 ✓ solid: 6 touches, 4,800 frames" (the frames are always released frames, the
-ones the noise is taken over). The figures are `processing.measure.ChannelQuality`'s: touches since
-the signal was last cleared, and the released frames of its noise window (ALGORITHM.md, Measures).
-Plain text, no Textual.
+the short line "SNR 14.2 ✓ solid: 6 touches, 4,800 frames" (the frames are always released frames,
+the ones the noise is taken over). A verdict the hysteresis holds against its SNR says "(held)"
+(`VerdictBounds.held`: "SNR 9.2 ✓ solid (held)"). The figures are `processing.measure.ChannelQuality`'s:
+touches since the signal was last cleared, and the released frames of its noise window (ALGORITHM.md,
+Measures). Plain text, no Textual.
 """
 
 from __future__ import annotations
@@ -26,11 +27,13 @@ def verdict_lines(q: ChannelQuality | None, width: int, lines: int = 2) -> list[
     frames = q.noise.samples if q.noise is not None else 0
     touches = plural(q.touches, "touch", "touches")
     released = f"{frames:,} released frame{'' if frames == 1 else 's'}"
-    head = f"{snr} {glyph} {word}"
-    choices = [[f"{word} {glyph} {snr} from {touches}, {released}"],
+    held = " (held)" if q.held else ""  # the hysteresis keeps it although the SNR alone says another
+    head = f"{snr} {glyph} {word}{held}"
+    choices = [[f"{word}{held} {glyph} {snr} from {touches}, {released}"],
                [head, f"from {touches}, {released}"],
                [f"{head}: {touches}, {frames:,} frames"],
-               [head, f"{touches}, {frames:,} frames"]]
+               [head, f"{touches}, {frames:,} frames"],
+               [f"{head}: {touches}"]]
     return _first_fit(choices, width, lines)
 
 
