@@ -31,7 +31,9 @@ def test_the_verdict_names_its_touches_and_released_frames_in_the_form_that_fits
     for width in range(20, 81):  # never wider than asked, never more lines than allowed
         for lines in (1, 2):
             got = verdict_lines(_quality("marginal", 123.4, 12345, 1234567), width, lines)
-            assert len(got) <= lines and all(len(line) <= width for line in got), (width, lines, got)
+            assert len(got) <= 2 and all(len(line) <= width for line in got), (width, lines, got)
+            if width >= 33:  # the shortest second line fits: two lines only to keep the frames
+                assert len(got) <= lines or got[-1].endswith(" frames"), (width, lines, got)
 
 
 async def test_the_detail_panel_shows_the_selected_keys_verdict_and_what_it_rests_on():
@@ -51,3 +53,16 @@ async def test_the_detail_panel_shows_the_selected_keys_verdict_and_what_it_rest
         await pilot.pause()
         shown = str(app.screen.query_one("#detail-settings").render())
         assert "SNR -- ? unmeasured: 0 touches" in shown, shown
+
+
+def test_a_held_verdict_says_so_in_every_form():
+    from dataclasses import replace
+
+    q = replace(_quality("solid", 9.2, 6, 120), held=True)  # 9.2: marginal by the plain rule, held solid
+    assert verdict_lines(q, 80) == ["solid (held) ✓ SNR 9.2 from 6 touches, 120 released frames"]
+    assert verdict_lines(q, 42) == ["SNR 9.2 ✓ solid (held)", "from 6 touches, 120 released frames"]
+    assert verdict_lines(q, 46, lines=1) == ["SNR 9.2 ✓ solid (held): 6 touches, 120 frames"]
+    # too long for one line of 42 (45 cells): two lines rather than leave the frames out
+    assert verdict_lines(q, 42, lines=1) == ["SNR 9.2 ✓ solid (held)", "from 6 touches, 120 released frames"]
+    for width in range(24, 81):
+        assert "(held)" in verdict_lines(q, width, 1)[0], width

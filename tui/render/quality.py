@@ -18,8 +18,9 @@ from tui.words import plural
 
 
 def verdict_lines(q: ChannelQuality | None, width: int, lines: int = 2) -> list[str]:
-    """At most `lines` (1 or 2) lines of at most `width` cells: the most explicit form that fits (cut
-    only when even the shortest is wider)."""
+    """Lines of at most `width` cells, at most `lines` (1 or 2) where a form that short fits: the most
+    explicit form that fits (two lines rather than leave out the touches or frames; cut only when even
+    the shortest is wider)."""
     if q is None:
         return _first_fit([["SNR -- ? not measured yet"], ["SNR -- ?", "not measured yet"]], width, lines)
     glyph, word = verdict_label(q.verdict).glyph, q.verdict
@@ -32,12 +33,13 @@ def verdict_lines(q: ChannelQuality | None, width: int, lines: int = 2) -> list[
     choices = [[f"{word}{held} {glyph} {snr} from {touches}, {released}"],
                [head, f"from {touches}, {released}"],
                [f"{head}: {touches}, {frames:,} frames"],
-               [head, f"{touches}, {frames:,} frames"],
-               [f"{head}: {touches}"]]
+               [head, f"{touches}, {frames:,} frames"]]
     return _first_fit(choices, width, lines)
 
 
 def _first_fit(choices: list[list[str]], width: int, lines: int) -> list[str]:
-    allowed = [c for c in choices if len(c) <= max(1, lines)] or choices
-    fit = next((c for c in allowed if all(len(line) <= width for line in c)), allowed[-1])
+    """The first choice of at most `lines` lines that fits; else the first that fits at all (what the
+    verdict rests on matters more than a line of the panel); else the last, cut to `width`."""
+    fits = [c for c in choices if all(len(line) <= width for line in c)]
+    fit = next((c for c in fits if len(c) <= lines), fits[0] if fits else choices[-1])
     return [line[:width] for line in fit]
