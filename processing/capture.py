@@ -26,6 +26,7 @@ from processing.crosstalk import Coupling, TouchedNoise, couplings, touched_nois
 from processing.measure import VerdictBounds, rests_on
 from processing.recording import Mark
 from processing.settings import ChannelSettings
+from processing.slider import SliderSpec
 from processing.stretches import KeyFigures, expand_polarity, key_figures
 from processing.suggest import Refusal, Suggestion, suggest
 from protocol.events import FrameBlock
@@ -513,8 +514,10 @@ class CaptureOutcome:
 
 
 def summarise(wizard: CaptureWizard, settings_of: Callable[[int], ChannelSettings],
-              bounds: VerdictBounds | None = None) -> list[CaptureOutcome]:
-    """Figures and suggestions for every key the wizard captured (`settings_of(channel)` gives today's)."""
+              bounds: VerdictBounds | None = None,
+              sliders: Sequence[SliderSpec] = ()) -> list[CaptureOutcome]:
+    """Figures and suggestions for every key the wizard captured (`settings_of(channel)` gives today's);
+    pads of one of `sliders` moving together are slider neighbours, not crosstalk."""
     bounds = bounds or VerdictBounds()
     out = []
     thresholds: dict[int, float | None] = {}
@@ -532,7 +535,7 @@ def summarise(wizard: CaptureWizard, settings_of: Callable[[int], ChannelSetting
         pending.append((c, key, figures, result, before, after))
     # crosstalk: each key's deltas while another key alone was held, against its own hands-off median
     during = {(src, c): key.crossed(src) for c, key in wizard.keys.items() for src in key.crosstalk}
-    found = couplings({c: key.quiet for c, key in wizard.keys.items()}, during, thresholds)
+    found = couplings({c: key.quiet for c, key in wizard.keys.items()}, during, thresholds, sliders)
     for c, key, figures, result, before, after in pending:
         held = touched_noise([key.touched], wizard.rate_hz) if len(key.touched) else None
         out.append(CaptureOutcome(c, key.name, figures, bounds.verdict(figures.snr_pp), result, before, after,

@@ -5,6 +5,12 @@ is not noise); they say by how much a touch on A moves B: the shift is the media
 alone was held, less the median of B's own untouched deltas (counts, touch positive). As a share of B's
 threshold it says how much of B's margin a touch on A uses up; above `FLAG_SHARE` a key is flagged.
 
+Slider neighbours are not crosstalk: the pads of one slider are laid out so that a finger covers two at
+once (that is how a slider finds the position between them), so a swipe moving a pad's neighbour is the
+slider working. A pair of pads in the same slider (the profile's `[[slider]]`, `slider_of`) is reported
+as slider neighbours: shown, never flagged, and left out of a key's worst crosstalk (`worst_by_target`).
+Every other pair, a slider pad and a key outside it included, is judged as before.
+
 Noise while touched: a finger couples mains hum (the body is an antenna) and its own tremor into the pad.
 The touch level is removed with a centred running median of `LEVEL_WINDOW_S` over each touch on its own
 (only frames with the whole window inside the touch are kept: no edge padding); what is left is the noise
@@ -23,6 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from processing.measure import MIN_SPECTRUM_SAMPLES, SpectrumPeak, spectrum_peak
+from processing.slider import SliderSpec
 
 # A touch on a neighbour that moves a key by more than this share of its threshold leaves too little of
 # the margin for noise and for the finger on the key itself (common practice, no source: a third of the
@@ -36,13 +43,20 @@ MIN_FRAMES = 8  # fewer frames than this give no figure (the same floor as the u
 
 @dataclass(frozen=True, slots=True)
 class Coupling:
-    """Touching `source` moves `target` by `shift_counts` (median, touch positive) over `frames` frames."""
+    """Touching `source` moves `target` by `shift_counts` (median, touch positive) over `frames` frames.
+    `slider`: the slider both are pads of (slider neighbours: shown, never flagged), else None."""
 
     source: int
     target: int
     shift_counts: float
     frames: int
     threshold_counts: float | None
+    slider: str | None = None
+
+    @property
+    def neighbours(self) -> bool:
+        """True when source and target are pads of the same slider."""
+        return self.slider is not None
 
     @property
     def share(self) -> float | None:
@@ -53,14 +67,27 @@ class Coupling:
 
     def flagged(self, limit: float = FLAG_SHARE) -> bool:
         share = self.share
-        return share is not None and abs(share) > limit
+        return share is not None and abs(share) > limit and not self.neighbours
+
+
+def slider_of(sliders: Iterable[SliderSpec]) -> dict[tuple[int, int], str]:
+    """(pad, pad) -> the slider's name, both ways round, for every two pads of one slider."""
+    out: dict[tuple[int, int], str] = {}
+    for spec in sliders:
+        for a in spec.pads:
+            for b in spec.pads:
+                if a != b:
+                    out.setdefault((a, b), spec.name)
+    return out
 
 
 def couplings(untouched: Mapping[int, np.ndarray], during: Mapping[tuple[int, int], np.ndarray],
-              thresholds: Mapping[int, float | None]) -> list[Coupling]:
+              thresholds: Mapping[int, float | None], sliders: Iterable[SliderSpec] = ()) -> list[Coupling]:
     """One `Coupling` per (source, target) in `during` (target's deltas while source alone was held) with
     at least `MIN_FRAMES` frames, measured against the target's `untouched` deltas (its own zero when it has
-    fewer than `MIN_FRAMES`). Sorted by the largest share (or shift) first."""
+    fewer than `MIN_FRAMES`). Pairs of pads of one of `sliders` are slider neighbours. Sorted by the
+    largest share (or shift) first."""
+    neighbours = slider_of(sliders)
     out = []
     for (source, target), values in during.items():
         values = np.asarray(values, np.float64)
@@ -69,7 +96,7 @@ def couplings(untouched: Mapping[int, np.ndarray], during: Mapping[tuple[int, in
         own = np.asarray(untouched.get(target, ()), np.float64)
         zero = float(np.median(own)) if len(own) >= MIN_FRAMES else 0.0
         out.append(Coupling(source, target, float(np.median(values)) - zero, len(values),
-                            thresholds.get(target)))
+                            thresholds.get(target), neighbours.get((source, target))))
     return sorted(out, key=lambda c: (-abs(c.share if c.share is not None else 0.0), -abs(c.shift_counts)))
 
 
@@ -92,20 +119,25 @@ def during_touches(deltas: np.ndarray, touched: np.ndarray, targets: Iterable[in
 
 
 def worst_by_target(found: Sequence[Coupling]) -> dict[int, Coupling]:
-    """Each target's largest coupling (by share, else shift)."""
+    """Each target's largest crosstalk (by share, else shift); slider neighbours are not crosstalk."""
     out: dict[int, Coupling] = {}
     for c in found:  # `couplings` sorts the largest first
-        out.setdefault(c.target, c)
+        if not c.neighbours:
+            out.setdefault(c.target, c)
     return out
 
 
 def describe(c: Coupling, names: Sequence[str], limit: float = FLAG_SHARE) -> str:
-    """"touching zone1 moves zone2 by +12.0 counts, 24 % of its threshold 50 (flagged: above 30 %)"."""
+    """"touching zone1 moves zone2 by +12.0 counts, 24 % of its threshold 50 (flagged: above 30 %)";
+    slider neighbours end "(slider neighbours in duration, not crosstalk)"."""
     text = f"touching {names[c.source]} moves {names[c.target]} by {c.shift_counts:+.1f} counts"
     share = c.share
     if share is None:
-        return f"{text} ({c.frames} frames; no threshold to compare)"
-    text += f", {100 * share:.0f} % of its threshold {c.threshold_counts:g} ({c.frames} frames)"
+        text += f" ({c.frames} frames; no threshold to compare)"
+    else:
+        text += f", {100 * share:.0f} % of its threshold {c.threshold_counts:g} ({c.frames} frames)"
+    if c.neighbours:
+        return f"{text}: slider neighbours in {c.slider}, not crosstalk"
     return text + (f": flagged, above {100 * limit:.0f} %" if c.flagged(limit) else "")
 
 

@@ -98,6 +98,10 @@ class VerdictBounds:
 
     weak_below: float = 5.0
     solid_above: float = 10.0
+    # The live verdict's hysteresis (`held`; ALGORITHM.md, Measures): a shown verdict gives way only to
+    # an SNR past the bound by `margin` of it, found at every judgement for `hold_s`.
+    margin: float = 0.15
+    hold_s: float = 3.0
 
     def describe(self) -> str:
         """The verdict rule in one line, for help screens and reports."""
@@ -112,6 +116,19 @@ class VerdictBounds:
             return "weak"
         return "marginal" if snr_pp <= self.solid_above else "solid"
 
+    def held(self, snr_pp: float | None, shown: str | None) -> str:
+        """The verdict with `shown` (the one on screen) held against an SNR near a bound: a move down
+        needs the SNR below the bound less `margin` of it, a move up above the bound plus `margin`
+        (with the default 15 %: solid stays solid down to 8.5, marginal becomes solid above 11.5)."""
+        new = self.verdict(snr_pp)
+        if new == shown or shown not in _RANK or new not in _RANK:
+            return new
+        factor = 1.0 - self.margin if _RANK[new] < _RANK[shown] else 1.0 + self.margin
+        return VerdictBounds(self.weak_below * factor, self.solid_above * factor).verdict(snr_pp)
+
+
+_RANK = {"weak": 0, "marginal": 1, "solid": 2}  # the verdicts `held` holds (not "unmeasured")
+
 
 @dataclass(frozen=True, slots=True)
 class ChannelQuality:
@@ -122,6 +139,7 @@ class ChannelQuality:
     verdict: str
     touches: int = 0  # touches the signal rests on (since its last clear)
     touched_frames: int = 0  # touched frames the signal's median is taken of
+    held: bool = False  # the verdict is held (hysteresis) although the SNR alone would give another
 
     def basis(self) -> str:
         """What the verdict rests on: "3 touches (412 frames), noise of 120 frames"."""
@@ -419,6 +437,10 @@ class Measures:
         self._touched = ColumnRing(touched_frames, channels)
         self._signal_cache: dict[int, tuple[int, float | None]] = {}
         self._touch_count = np.zeros(channels, np.int64)  # touches (entries into touched) since a clear
+        # The live verdict's hysteresis (VerdictBounds.held): the verdict shown per channel, and the frame
+        # (History.written) from which every judgement has asked for another one (-1: none asked).
+        self._shown: list[str | None] = [None] * channels
+        self._asked_since = np.full(channels, -1, np.int64)
         self._was_touched = np.zeros(channels, bool)
         # per channel, the history frame number (History.written counts) from which frames count as noise
         self.noise_start_frame = np.zeros(channels, np.int64)
@@ -449,7 +471,9 @@ class Measures:
     def definition(self) -> str:
         """How SNR and the verdict are defined here, to show beside the numbers."""
         text = SNR_DEFINITION.format(window_s=self.window_s, settle_s=self.settle_s)
-        return f"{text} {self.bounds.describe()}."
+        b = self.bounds
+        return (f"{text} {b.describe()}; a verdict shown changes only once the SNR is past the bound by "
+                f"{100 * b.margin:g} % of it for {b.hold_s:g} s.")
 
     def ingest(self, t_s: np.ndarray, readings: np.ndarray, deltas: np.ndarray, states: np.ndarray,
                restart: Mapping[int, int] | None = None) -> None:
@@ -461,6 +485,7 @@ class Measures:
         for c, row in (restart or {}).items():
             self._released.clear(c)
             self.noise_start_frame[c] = first_frame + row
+            self._forget_verdict(c)
         self._released.push(*self._gate.select(deltas, states, first_frame, self.noise_start_frame))
         touched = states == KeyState.TOUCHED
         if touched.any():
@@ -472,12 +497,34 @@ class Measures:
 
     def clear_touch_signal(self, channel: int | None = None) -> None:
         self._touched.clear(channel)
+        self._forget_verdict(channel)
         if channel is None:
             self._signal_cache.clear()
             self._touch_count[:] = 0
         else:
             self._signal_cache.pop(channel, None)
             self._touch_count[channel] = 0
+
+    def _forget_verdict(self, channel: int | None) -> None:
+        """New figures (a re-baseline, a cleared signal): the next verdict is taken as it comes."""
+        for c in range(self.channels) if channel is None else (channel,):
+            self._shown[c] = None
+            self._asked_since[c] = -1
+
+    def _hold(self, channel: int, snr_pp: float | None) -> tuple[str, bool]:
+        """The verdict to show (and whether it is held against the SNR's own): `VerdictBounds.held`
+        past the margin, and only once every judgement for `hold_s` of frames asked for the change."""
+        shown, now = self._shown[channel], self.history.written
+        wanted = self.bounds.held(snr_pp, shown)
+        if shown is None or wanted == shown or "unmeasured" in (wanted, shown):
+            self._shown[channel], self._asked_since[channel] = wanted, -1
+            return wanted, wanted != self.bounds.verdict(snr_pp)
+        if self._asked_since[channel] < 0:
+            self._asked_since[channel] = now
+        if now - self._asked_since[channel] >= math.ceil(self.bounds.hold_s * self._rate_hz):
+            self._shown[channel], self._asked_since[channel] = wanted, -1
+            return wanted, wanted != self.bounds.verdict(snr_pp)
+        return shown, True
 
     def touches(self, channel: int) -> int:
         """Touches (entries into touched) since the touch signal was last cleared."""
@@ -548,8 +595,8 @@ class Measures:
             snr_pp = signal / noise.pp_counts if noise.pp_counts > 0 else math.inf
             snr_rms = signal / noise.rms_counts if noise.rms_counts > 0 else math.inf
         frames = min(int(self._touched.written[channel]), self._touched.capacity)
-        return ChannelQuality(noise, signal, snr_pp, snr_rms, self.bounds.verdict(snr_pp),
-                              self.touches(channel), frames)
+        verdict, held = self._hold(channel, snr_pp)
+        return ChannelQuality(noise, signal, snr_pp, snr_rms, verdict, self.touches(channel), frames, held)
 
     def _spectrum_run(self, channel: int) -> tuple[np.ndarray, bool]:
         """The newest unbroken run of released frames in the window, less the settle guard after the last

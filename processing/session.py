@@ -254,6 +254,18 @@ class Session(FirstContact):
         assert self._profile is not None
         self._edited[self.engine.channels] = self._profile
 
+    def measured(self, channel: int) -> bool:
+        """False when the profile marks the channel's settings as not measured (`measured = false`)."""
+        return self._profile is None or channel not in self._profile.unmeasured_channels
+
+    def set_measured(self, channel: int, measured: bool) -> None:
+        """Mark (or clear the mark on) a channel's settings as not measured: the guided capture's keys
+        without a suggestion keep their settings and are saved `measured = false`."""
+        self._check_channel(channel)
+        assert self.engine is not None and self._profile is not None
+        self._profile = self._profile.with_measured(channel, measured)
+        self._edited[self.engine.channels] = self._profile
+
     def apply_profile(self, profile: Profile) -> None:
         """Use a (newly loaded) profile: rebuilds now when the width is known, else on the first frames."""
         self.requested_profile = self._profile = profile

@@ -3,7 +3,8 @@
 Pure: a `Recording` and a base profile in, a `TuneResult` out (the new profile, and per key what was
 measured, the verdict, the suggestion or the reason for refusing one). A key without a suggestion is
 *unmeasured*: it keeps its settings, `TuneResult.unmeasured()` names it and the profile marks it
-(`measured = false`) unless a base profile already held settings for it as measured.
+(`measured = false`) unless a base profile already held settings for it as measured: the rule is
+`keeps_claim` / `measured_marks`, which the live screen's guided capture applies too.
 `limits_from_result` turns a good unit's result into production limits, each channel its own.
 `padtune tune` prints and saves it (rows for its table and JSON: `tui.headless.tuning`); the HTML
 report draws it.
@@ -12,6 +13,7 @@ report draws it.
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -62,6 +64,23 @@ class TuneResult:
     def unmeasured(self) -> list[KeyResult]:
         """Keys this recording did not measure (no touch found, or a suggestion refused), in order."""
         return [k for k in self.keys if not k.measured]
+
+
+def keeps_claim(base: Profile | None, channel: int) -> bool:
+    """Whether a key not measured now may still be written as measured: only when `base` (the profile its
+    settings came from) held it as measured. Settings from defaults (no base), or a key the base marked,
+    are not a measurement."""
+    return base is not None and 0 <= channel < base.channels and channel not in base.unmeasured_channels
+
+
+def measured_marks(base: Profile | None, measured: Iterable[int],
+                   unmeasured: Iterable[int]) -> dict[int, bool]:
+    """Channel -> whether the profile may call it measured, after a run that measured `measured` and not
+    `unmeasured` (`tune_recording`, the guided capture's results): measured keys are; the others keep the
+    claim `base` gave them (`keeps_claim`), else they are marked `measured = false`."""
+    out = {c: keeps_claim(base, c) for c in unmeasured}
+    out.update({c: True for c in measured})
+    return out
 
 
 def base_profile(rec: Recording, base: Profile | None) -> Profile:
@@ -115,11 +134,10 @@ def tune_recording(rec: Recording, base: Profile | None = None,
         after = outcome.apply(before) if isinstance(outcome, Suggestion) else before
         keys.append(KeyResult(c, profile.names[c], figures, bounds.verdict(figures.snr_pp), outcome, before,
                               after, trace))
-        # Unmeasured: settings from defaults, not from this key. A base profile's unmarked key keeps
-        # its claim (it was measured before); a key from defaults, or marked in the base, is marked.
-        from_defaults = base is None or c in base.unmeasured_channels
-        measured = isinstance(outcome, Suggestion) or not from_defaults
-        profile = profile.with_settings(c, after).with_measured(c, measured)
+        # Unmeasured: settings from defaults, not from this key (the rule: `measured_marks`).
+        ok = isinstance(outcome, Suggestion)
+        marks = measured_marks(base, [c] if ok else [], [] if ok else [c])
+        profile = profile.with_settings(c, after).with_measured(c, marks[c])
     profile = replace(profile, rate_hz=rate_hz)
     return TuneResult(profile, keys, t_s, rate_hz, bool(traces and traces[0].from_marks), rec.path, len(t_s))
 

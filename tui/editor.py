@@ -16,7 +16,7 @@ from enum import Enum
 from typing import Protocol
 
 from processing.settings import ChannelSettings
-from tui.edits import Change, Edit, EditHistory, EditValue
+from tui.edits import Change, Edit, EditHistory, EditValue, MeasuredMark
 from tui.fields import (
     POLARITY_KEY,
     PolarityChoice,
@@ -59,6 +59,9 @@ class EditTarget(Protocol):
     def polarity(self, channel: int) -> int | None: ...
     def set_polarity(self, channel: int, sign: int | None) -> None: ...  # ValueError when refused
     def group_of(self, channel: int) -> Sequence[int]: ...
+    # only for a batch with marks (the guided capture's keys without a suggestion):
+    def measured(self, channel: int) -> bool: ...
+    def set_measured(self, channel: int, measured: bool) -> None: ...
 
 
 NO_BOARD = EditResult(Outcome.UNAVAILABLE, "No channels yet: waiting for the board's first frames.")
@@ -178,19 +181,23 @@ class Editor:
                            f"({plural(len(real), 'channel')} changed)", real)
 
     def apply_batch(self, description: str, settings: Mapping[int, ChannelSettings],
-                    polarity: Mapping[int, int | None] | None = None) -> EditResult:
+                    polarity: Mapping[int, int | None] | None = None,
+                    measured: Mapping[int, bool] | None = None) -> EditResult:
         """New settings (and polarities) for several channels as one undoable edit, all or none: the
-        guided capture's outcome. Polarities go first (a threshold's meaning depends on them)."""
+        guided capture's outcome. Polarities go first (a threshold's meaning depends on them); `measured`
+        marks channels whose settings the profile may (True) or may not (False) call measured."""
         names = self.target.channel_names()
         if not names:
             return NO_BOARD
-        wrong = [c for c in [*settings, *(polarity or {})] if not 0 <= c < len(names)]
+        wrong = [c for c in [*settings, *(polarity or {}), *(measured or {})] if not 0 <= c < len(names)]
         if wrong:
             return EditResult(Outcome.REFUSED, f"Refused: no channel {wrong[0]} on this board "
                               f"({plural(len(names), 'channel')}).")
         changes = [Change(c, PolarityChoice(self.target.polarity(c)), PolarityChoice(sign))
                    for c, sign in sorted((polarity or {}).items())]
         changes += [Change(c, self.target.settings(c), s) for c, s in sorted(settings.items())]
+        changes += [Change(c, MeasuredMark(self.target.measured(c)), MeasuredMark(m))
+                    for c, m in sorted((measured or {}).items())]
         real = [c for c in changes if c.before != c.after]
         if not real:
             return EditResult(Outcome.UNCHANGED, f"{description}: nothing to change.")
@@ -248,9 +255,12 @@ class Editor:
         return None
 
     def _set(self, channel: int, value: EditValue) -> None:
-        """Apply one side of a change: new settings, or a channel's polarity (ValueError if refused)."""
+        """Apply one side of a change: new settings, a channel's polarity or its measured mark (ValueError
+        if refused)."""
         if isinstance(value, PolarityChoice):
             self.target.set_polarity(channel, value.sign)
+        elif isinstance(value, MeasuredMark):
+            self.target.set_measured(channel, value.measured)
         else:
             self.target.apply(channel, value)
 

@@ -1,7 +1,8 @@
 """Setting edits as steps that can be undone and redone; pure, no Textual, no engine.
 
 An edit is a batch (one key press may change one channel, a group or all channels) of
-`(channel, before, after)` changes of frozen values (settings, or a polarity choice). Applying is the
+`(channel, before, after)` changes of frozen values (settings, a polarity choice, or whether the
+profile may call the channel's settings measured). Applying is the
 caller's job (`tui.editor.Editor`): the history only says what to apply, so it is tested without a
 board.
 """
@@ -14,8 +15,16 @@ from dataclasses import dataclass
 from processing.settings import ChannelSettings
 from tui.fields import PolarityChoice
 
-# What one change sets on a channel: its settings, or its polarity.
-EditValue = ChannelSettings | PolarityChoice
+
+@dataclass(frozen=True, slots=True)
+class MeasuredMark:
+    """Whether the profile may call a channel's settings measured (False: saved `measured = false`)."""
+
+    measured: bool
+
+
+# What one change sets on a channel: its settings, its polarity, or its measured mark.
+EditValue = ChannelSettings | PolarityChoice | MeasuredMark
 
 
 @dataclass(frozen=True, slots=True)

@@ -211,6 +211,10 @@ class SessionSource:
         tail = deltas[len(deltas) - n:]
         return tail.reshape(points, n // points, -1).max(axis=1).T.astype(np.float64)
 
+    def quality(self, channel: int) -> ChannelQuality | None:
+        """A channel's SNR verdict and what it rests on, as last refreshed (twice a second)."""
+        return self._quality[channel] if 0 <= channel < len(self._quality) else None
+
     def channel_views(self, spark_points: int) -> list[ChannelView]:
         e, p = self.session.engine, self.session.profile
         if e is None or p is None:
@@ -401,6 +405,28 @@ class SessionSource:
         """Set a channel's direction (None: learn it again from its next touch); ValueError if refused."""
         self.session.set_polarity(channel, sign)
         self.board_sync.polarity_changed(channel, sign)
+
+    def measured(self, channel: int) -> bool:
+        """False when the profile marks the channel's settings `measured = false`."""
+        return self.session.measured(channel)
+
+    def set_measured(self, channel: int, measured: bool) -> None:
+        self.session.set_measured(channel, measured)
+
+    def measured_base(self) -> Profile | None:
+        """The profile a key not measured by a guided capture keeps its claim from
+        (`processing.tuning.keeps_claim`): the session's, when a profile file backs it (loaded or saved);
+        None when the settings came from no file (the board's, defaults, a first guess)."""
+        return self.session.profile if self._path is not None else None
+
+    def unmeasured_news(self) -> list[str]:
+        """Names of the keys the profile would be saved with marked `measured = false` that the file it
+        came from (or the last save) did not mark: what a save asks about first."""
+        current, saved = self.session.profile, self._saved
+        if current is None:
+            return []
+        before = saved.unmeasured_channels if saved is not None and self._path is not None else frozenset()
+        return [current.names[c] for c in current.unmeasured() if c not in before and c < current.channels]
 
     def first_contact(self, channel: int) -> tuple[bool, str]:
         """(provisional, phase) of a channel: see `processing.session.ChannelRow`."""

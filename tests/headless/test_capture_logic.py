@@ -386,3 +386,25 @@ def test_the_results_carry_crosstalk_and_noise_while_touched():
     from tui.render.capture import crosstalk_cell, crosstalk_line, noise_cell
     assert crosstalk_cell(zone2).endswith("!") and noise_cell(zone2).count("/") == 1
     assert "zone1 +40.0" in crosstalk_line(zone2) and "flagged" in crosstalk_line(zone2)
+
+
+def test_the_results_show_pads_of_one_slider_as_neighbours_not_flagged_crosstalk():
+    # The same coupling as above (zone1's touch adds 40 counts to zone2, about 40 % of its threshold), with
+    # zone1 and zone2 declared pads of one slider: that is the slider working, shown but not flagged.
+    from processing.capture import summarise
+    from processing.settings import ChannelSettings
+    from processing.slider import SliderSpec
+    from tui.render.capture import crosstalk_cell, crosstalk_line
+
+    CouplingUser.cross_counts = 40.0
+    w = CaptureWizard(NAMES, (1,), RATE_HZ, quiet_s=2.0, hold_s=1.0)
+    CouplingUser(w, np.random.default_rng(8)).run()
+    assert w.done
+    out = {o.name: o for o in summarise(w, lambda c: ChannelSettings(), sliders=[SliderSpec("pair", (0, 1))])}
+    zone2 = out["zone2"]
+    pad = next(c for c in zone2.crosstalk if c.source == 0)
+    assert pad.shift_counts == pytest.approx(40, abs=2) and pad.slider == "pair" and not pad.flagged()
+    assert not crosstalk_cell(zone2).endswith("!")
+    line = crosstalk_line(zone2)
+    assert "slider neighbours in pair (not crosstalk, not flagged): zone1 +" in line
+    assert ", flagged)" not in line and line.endswith("zone1 +40.0 (40%)")

@@ -311,6 +311,40 @@ def test_a_reader_that_goes_away_ends_the_command_quietly_with_exit_0(work, tmp_
     assert proc.returncode == 0 and b"Traceback" not in err and b"Exception" not in err, err
 
 
+def test_tune_tells_slider_neighbours_from_crosstalk_with_the_boards_slider(work, tmp_path):
+    # The demo board's duration slider (devices/boards/greenhouse.toml: dur0..dur3) in the profile given:
+    # its pads moving together on a swipe are slider neighbours (shown, not flagged); the zone keys'
+    # pairs are judged as before. Without the slider (the fixture's run) dur0 > dur1 was flagged above 30 %.
+    from processing.profile import save_profile
+    from tui.demo_profile import demo_profile
+
+    folder, _, plain = work
+    save_profile(demo_profile("greenhouse"), tmp_path / "base.toml")
+    out = padtune("tune", str(folder / "gh.csv"), "--profile", str(tmp_path / "base.toml"), "-o",
+                  str(tmp_path / "gh.toml"), "--json")
+    assert out.returncode == 0, out.stderr
+    tuned = json_lines(out.stdout)[0]
+    cross = {(x["source"], x["target"]): x for x in tuned["crosstalk"]}
+    before = {(x["source"], x["target"]): x for x in plain["crosstalk"]}
+    pads = ("dur0", "dur1", "dur2", "dur3")
+    assert before[("dur0", "dur1")]["flagged"] and before[("dur0", "dur1")]["slider"] is None
+    slider = cross[("dur0", "dur1")]
+    assert slider["slider"] == "duration" and not slider["flagged"] and slider["share_pct"] > 30
+    for (a, b), x in cross.items():
+        assert (x["slider"] == "duration") == (a in pads and b in pads), x
+        if x["slider"]:
+            assert not x["flagged"]
+    rows = {r["name"]: r for r in tuned["channels"]}
+    for pad in pads:  # a pad's column names crosstalk from outside its slider only
+        assert rows[pad]["crosstalk_from"] not in pads, rows[pad]
+    zones = [x for (a, b), x in cross.items() if a.startswith("zone") and b.startswith("zone")]
+    assert zones and all(not x["flagged"] and x["slider"] is None for x in zones)
+    text = padtune("tune", str(folder / "gh.csv"), "--profile", str(tmp_path / "base.toml"), "-o",
+                   str(tmp_path / "gh2.toml"))
+    assert "slider neighbours in duration (not crosstalk, not flagged): dur0 > dur1" in text.stdout
+    assert "crosstalk flagged: touching dur0 moves dur1" not in text.stdout
+
+
 def test_tune_json_has_crosstalk_noise_while_touched_and_what_each_verdict_rests_on(work):
     # Issue 12, on the demo board's recording (greenhouse, 60 frames/s, 50 Hz mains coupled by a finger):
     # - a touch's hum shows in the noise while touched and aliases to |50 - 60| = 10 Hz (worked by hand);

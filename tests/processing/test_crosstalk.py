@@ -110,3 +110,37 @@ def test_a_coupling_above_the_share_is_flagged_and_says_so():
     assert describe(c, ["zone1", "zone2"]).endswith("flagged, above 30 %")
     assert Coupling(0, 1, 20.0, 50, None).share is None
     assert couplings({}, {(0, 1): np.ones(3)}, {1: 10}) == []  # too few frames: no figure
+
+
+def test_pads_of_one_slider_are_neighbours_shown_not_flagged_and_a_key_outside_stays_flagged():
+    # Hand-worked: pads 0 and 1 form slider "level", key 2 is outside it. Touching pad 0 alone for 10
+    # frames moves pad 1 by median(30..39) = 34.5 less its own untouched median 3 = 31.5 counts, 31.5 / 20 =
+    # 158 % of its threshold 20: a finger on a slider covers two pads, so that is the slider working, not
+    # crosstalk. The same touch moves key 2 by 9 counts, 9 / 20 = 45 % of its threshold: flagged (above 30 %).
+    from processing.crosstalk import slider_of
+    from processing.slider import SliderSpec
+
+    deltas = np.zeros((10, 3))
+    touched = np.zeros((10, 3), bool)
+    touched[:, 0] = True
+    deltas[:, 0] = 200
+    deltas[:, 1] = np.arange(30, 40)  # median 34.5
+    deltas[:, 2] = 9
+    quiet = {1: np.array([2, 2, 3, 3, 3, 3, 3, 4, 4, 4]), 2: np.zeros(10)}  # medians 3 and 0
+    sliders = [SliderSpec("level", (0, 1))]
+    assert slider_of(sliders) == {(0, 1): "level", (1, 0): "level"}
+    found = couplings(quiet, during_touches(deltas, touched), {1: 20, 2: 20}, sliders)
+    by = {(c.source, c.target): c for c in found}
+    pad = by[(0, 1)]
+    assert pad.shift_counts == 31.5 and pad.share == pytest.approx(31.5 / 20)
+    assert pad.neighbours and pad.slider == "level" and not pad.flagged() and not pad.flagged(0.0)
+    assert describe(pad, ["lvl0", "lvl1", "stop"]).endswith("slider neighbours in level, not crosstalk")
+    key = by[(0, 2)]
+    assert key.shift_counts == 9 and key.slider is None and key.flagged()
+    assert describe(key, ["lvl0", "lvl1", "stop"]).endswith("flagged, above 30 %")
+    # a key's worst crosstalk comes from outside its slider: pad 1 has none, key 2 has pad 0's
+    assert worst_by_target(found) == {2: key}
+    # without the slider's definition the same pair is crosstalk again, and flagged
+    again = couplings(quiet, during_touches(deltas, touched), {1: 20, 2: 20})
+    plain = {(c.source, c.target): c for c in again}
+    assert plain[(0, 1)].flagged() and worst_by_target(list(plain.values()))[1] == plain[(0, 1)]

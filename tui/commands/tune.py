@@ -146,10 +146,16 @@ def print_result(result: TuneResult, out: Path | None) -> None:
             console.print(f"{row['name']}: no suggestion: {row['refusal']}")
         for key, reason in row["reasons"].items():
             console.print(f"{row['name']} {key}: {reason}")
+    neighbours: dict[str, list[str]] = {}
     for x in crosstalk_rows(result, found):
         if x["flagged"]:
             console.print(f"crosstalk flagged: touching {x['source']} moves {x['target']} by {x['shift']:+g} "
                           f"counts, {x['share_pct']:g}% of its threshold")
+        if x["slider"] is not None:
+            share = f" ({x['share_pct']:g}%)" if x["share_pct"] is not None else ""
+            neighbours.setdefault(x["slider"], []).append(f"{x['pair']} {x['shift']:+g}{share}")
+    for slider, pairs in neighbours.items():
+        console.print(f"slider neighbours in {slider} (not crosstalk, not flagged): {', '.join(pairs)}")
     console.print("SNR = median touched delta / untouched noise (pp or RMS); verdict from SNR pp "
                   "(common practice: below 5 weak, 5-10 marginal, above 10 solid)")
     console.print(CROSSTALK_RULE + "; noise while touched: the touch level removed by a 0.2 s running median")

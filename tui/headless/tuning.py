@@ -59,12 +59,14 @@ class CrosstalkRow(TypedDict):
     shift: float
     share_pct: float | None
     frames: int
-    flagged: bool
+    flagged: bool  # above FLAG_SHARE of its threshold, and not slider neighbours
+    slider: str | None  # the slider both are pads of (slider neighbours: shown, never flagged)
 
 
 def couplings_of(result: TuneResult) -> list[Coupling]:
     """Crosstalk in a tuned recording: each key's deltas in the frames where one other key alone was
-    touched, against the median of its own untouched deltas, as a share of its threshold after tuning."""
+    touched, against the median of its own untouched deltas, as a share of its threshold after tuning;
+    pads of one of the profile's sliders are slider neighbours."""
     traces = [k.trace for k in result.keys]
     if not traces:
         return []
@@ -74,7 +76,8 @@ def couplings_of(result: TuneResult) -> list[Coupling]:
         for a, b in t.stretches:
             touched[a:b, c] = True
     return couplings({c: t.quiet for c, t in enumerate(traces)}, during_touches(deltas, touched),
-                     {c: float(k.after.threshold_counts) for c, k in enumerate(result.keys)})
+                     {c: float(k.after.threshold_counts) for c, k in enumerate(result.keys)},
+                     result.profile.sliders)
 
 
 def crosstalk_rows(result: TuneResult, found: list[Coupling] | None = None) -> list[CrosstalkRow]:
@@ -83,12 +86,14 @@ def crosstalk_rows(result: TuneResult, found: list[Coupling] | None = None) -> l
     return [{"pair": f"{names[c.source]} > {names[c.target]}", "source": names[c.source],
              "target": names[c.target], "shift": round(c.shift_counts, 1),
              "share_pct": None if c.share is None else round(100 * c.share, 1), "frames": c.frames,
-             "flagged": c.flagged()} for c in (couplings_of(result) if found is None else found)]
+             "flagged": c.flagged(), "slider": c.slider}
+            for c in (couplings_of(result) if found is None else found)]
 
 
 CROSSTALK_RULE = (f"crosstalk: touching one key alone moves another by its median delta then, less its own "
                   f"untouched median; flagged above {100 * FLAG_SHARE:.0f}% of its threshold "
-                  "(common practice, no source)")
+                  "(common practice, no source); pads of one slider moving together are slider neighbours "
+                  "(the slider working), shown but not flagged")
 
 
 def result_rows(result: TuneResult, found: list[Coupling] | None = None) -> list[KeyRow]:

@@ -14,7 +14,7 @@ from rich.padding import Padding
 from rich.text import Text
 
 from processing.capture import CaptureOutcome, key_ranges, steps_for
-from processing.crosstalk import FLAG_SHARE
+from processing.crosstalk import FLAG_SHARE, Coupling
 from tui.fields import FIELDS
 from tui.render import Styles
 from tui.render.histogram import DeltaHistogram
@@ -73,8 +73,9 @@ def noise_cell(o: CaptureOutcome) -> str:
 
 
 def crosstalk_cell(o: CaptureOutcome) -> str:
-    """The largest crosstalk onto the key as a whole percentage of its threshold, "!" when flagged."""
-    worst = next((c for c in o.crosstalk if c.share is not None), None)
+    """The largest crosstalk onto the key as a whole percentage of its threshold, "!" when flagged (its
+    slider neighbours are not crosstalk: `crosstalk_line` shows them)."""
+    worst = next((c for c in o.crosstalk if c.share is not None and not c.neighbours), None)
     if worst is None:
         return "-"
     share = worst.share or 0.0
@@ -114,16 +115,27 @@ def outcome_detail(o: CaptureOutcome, styles: Styles | None = None) -> Group:
 
 
 def crosstalk_line(o: CaptureOutcome, most: int = 3) -> str:
-    """What touching the other keys did to this one, the largest first, as shares of its threshold."""
+    """What touching the other keys did to this one, the largest first, as shares of its threshold; then
+    its slider neighbours (pads of its own slider: shown, not crosstalk, never flagged)."""
     if not o.crosstalk:
         return "crosstalk: no other key was held during this capture"
-    parts = []
-    for c in o.crosstalk[:most]:
-        share = f" ({100 * c.share:.0f}%{', flagged' if c.flagged() else ''})" if c.share is not None else ""
-        parts.append(f"{o.names[c.source]} {c.shift_counts:+.1f}{share}")
-    more = f", {len(o.crosstalk) - most} smaller" if len(o.crosstalk) > most else ""
-    return (f"crosstalk onto {o.name}, counts (% of its threshold {o.after.threshold_counts}): "
-            f"{', '.join(parts)}{more}; flagged above {100 * FLAG_SHARE:.0f}% (common practice, no source)")
+    others = [c for c in o.crosstalk if not c.neighbours]
+    neighbours = [c for c in o.crosstalk if c.neighbours]
+    parts = [_coupling_part(o, c) for c in others[:most]]
+    more = f", {len(others) - most} smaller" if len(others) > most else ""
+    text = (f"crosstalk onto {o.name}, counts (% of its threshold {o.after.threshold_counts}): "
+            f"{', '.join(parts) or 'none from keys outside its slider'}{more}; flagged above "
+            f"{100 * FLAG_SHARE:.0f}% (common practice, no source)")
+    if neighbours:
+        text += (f"; slider neighbours in {neighbours[0].slider} (not crosstalk, not flagged): "
+                 + ", ".join(_coupling_part(o, c) for c in neighbours))
+    return text
+
+
+def _coupling_part(o: CaptureOutcome, c: Coupling) -> str:
+    """"zone2 +12.0 (24%)", ", flagged" inside the brackets when flagged."""
+    share = f" ({100 * c.share:.0f}%{', flagged' if c.flagged() else ''})" if c.share is not None else ""
+    return f"{o.names[c.source]} {c.shift_counts:+.1f}{share}"
 
 
 def touched_noise_line(o: CaptureOutcome) -> str:

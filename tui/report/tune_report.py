@@ -19,7 +19,8 @@ COLUMNS = [("name", "key"), ("touches", "touches"), ("noise_pp", "noise pp"), ("
 
 
 CROSSTALK_COLUMNS = [("source", "touching"), ("target", "moves"), ("shift", "by counts"),
-                     ("share_pct", "% of its threshold"), ("frames", "frames"), ("flagged", "flagged")]
+                     ("share_pct", "% of its threshold"), ("frames", "frames"), ("flagged", "flagged"),
+                     ("slider", "slider neighbours in")]
 
 
 def build_tune_report(result: TuneResult) -> str:
@@ -33,7 +34,7 @@ def build_tune_report(result: TuneResult) -> str:
             "Signal: median touched delta. SNR = signal / noise (pp or RMS form). Verdict from SNR pp "
             "(common practice, no source: below 5 weak, 5-10 marginal, above 10 solid).</p>",
             "<h2>Crosstalk</h2>" + html.table(CROSSTALK_COLUMNS, cross, key_field="pair",
-                                              text_fields=("source", "target", "flagged"))
+                                              text_fields=("source", "target", "flagged", "slider"))
             + f"<p class=\"reasons\">{escape(CROSSTALK_RULE)}.</p>"]
     for key, row in zip(result.keys, rows, strict=True):
         s = key.after

@@ -17,9 +17,11 @@ the key asked for, `t` touches it until its step is done, `1`..`0` hold or let g
 it still holds is let go when it closes. `a` applies the selected key's suggestion, `A` all of them,
 Esc closes. A key without a suggestion (skipped, never touched, refused) is never applied as if it had
 been measured: the first `A` names each such key and why, and applies nothing; a second `A` applies
-the others, and those keys keep their settings (as `padtune tune` without `--partial` writes nothing).
-The screen dismisses with `{channel: ChannelSettings}` of what to apply (empty when
-nothing was).
+the others, and those keys keep their settings marked not measured (as `padtune tune` without
+`--partial` writes nothing, and with it marks them). The screen dismisses with
+`{channel: ChannelSettings}` of what to apply (empty when nothing was); `unmeasured()` names the keys
+the live screen marks `measured = false` (by `processing.tuning.measured_marks`: a key keeps its claim
+only when a profile file held it as measured).
 
 What it draws is plain rich in `tui.render.capture`. Open it with `open_capture(screen, source,
 apply)` (the live screen's `w` key does), or push `CaptureScreen(session, clock=...)`; given
@@ -111,6 +113,7 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
         self.outcomes: list[CaptureOutcome] = []
         self.applied: dict[int, ChannelSettings] = {}
         self._partial_confirmed = False  # "A" once named the keys without a suggestion
+        self._applied_all = False  # "A" applied the keys with a suggestion, the others left out
         self.held: set[int] = set()  # simulated keys this screen holds down
         self._touching: int | None = None  # `t`: held until its touch step is done
         self._history: object | None = None
@@ -263,7 +266,9 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
     def _finish(self) -> None:
         assert self.wizard is not None
         self._let_go()
-        self.outcomes = summarise(self.wizard, self.session.settings)
+        profile = self.session.profile
+        self.outcomes = summarise(self.wizard, self.session.settings,
+                                  sliders=profile.sliders if profile is not None else ())
         self.query_one("#capture-steps").display = False
         self.query_one("#capture-results").display = True
         self._fill_table()
@@ -414,19 +419,28 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
             self._partial_confirmed = True
             why = "; ".join(f"{o.name}: {getattr(o.suggestion, 'reason', '-')}" for o in unmeasured)
             self.notify(f"Not measured, nothing applied yet: {why}. Press A again to apply the other keys "
-                        "(these keep their settings), or Esc to close.", severity="warning", timeout=15)
+                        "(these keep their settings, marked not measured: measured = false when saved), "
+                        "or Esc to close.", severity="warning", timeout=15)
             return
+        self._applied_all = True
         for o in self.outcomes:
             if o.suggested:
                 self.applied[o.channel] = o.after
         if unmeasured:
-            self.notify("Applied all but " + ", ".join(o.name for o in unmeasured) + " (not measured).",
-                        severity="warning")
+            self.notify("Applied all but " + ", ".join(o.name for o in unmeasured) + " (not measured: they "
+                        "keep their settings, marked measured = false).", severity="warning")
         self._close()
 
     def action_discard(self) -> None:
         # Keys applied one by one are kept; everything else is dropped.
         self._close()
+
+    def unmeasured(self) -> list[int]:
+        """The captured keys without a suggestion, once the user applied anything (`a`, or `A` with them
+        left out): they keep their settings, and the profile may not call those measured."""
+        if not (self.applied or self._applied_all):
+            return []
+        return [o.channel for o in self.outcomes if not o.suggested]
 
     def _close(self) -> None:
         """Dismiss with what was applied; a stretch under way gets its end mark, held keys are let go."""
@@ -437,10 +451,11 @@ class CaptureScreen(Screen[dict[int, ChannelSettings]]):
 
 
 def open_capture(host: Screen[object], source: LiveSource,
-                 apply: Callable[[dict[int, ChannelSettings], dict[int, int]], None],
+                 apply: Callable[[dict[int, ChannelSettings], dict[int, int], list[int]], None],
                  *, clock: Callable[[], float] = time.monotonic, selected: int | None = None) -> None:
     """Push the capture screen over `host` (the live screen); what the user applied goes to `apply`
-    (settings per channel, and the polarities the capture learned for them) as one undoable edit.
+    (settings per channel, the polarities the capture learned for them, and the captured keys left
+    without a suggestion, `CaptureScreen.unmeasured`) as one undoable edit.
     `selected` is the channel selected in the table (one of the choices of keys to capture)."""
     if not isinstance(source, SessionSource):
         host.notify("The guided capture needs a live session.", severity="warning")
@@ -454,11 +469,13 @@ def open_capture(host: Screen[object], source: LiveSource,
 
     def done(result: dict[int, ChannelSettings] | None) -> None:
         source.keep_still(False)
-        if not result:
+        unmeasured = screen.unmeasured()
+        if not result and not unmeasured:
             host.notify("Guided capture closed: nothing applied.")
             return
         learned = screen.wizard.learned if screen.wizard is not None else {}
-        apply(result, {c: sign for c, sign in learned.items() if c in result})
+        result = result or {}
+        apply(result, {c: sign for c, sign in learned.items() if c in result}, unmeasured)
 
     def marker(mark: Mark) -> None:
         # While the app records, the capture's stretches go into the file as marks, so the same

@@ -15,11 +15,12 @@ from __future__ import annotations
 
 import gc
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import replace
 from pathlib import Path
 from typing import ClassVar
 
+from rich.markup import escape
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
@@ -29,9 +30,12 @@ from textual.screen import Screen
 from textual.widgets import Footer
 from textual.worker import Worker, WorkerState
 
+from processing.measure import ChannelQuality
 from processing.settings import ChannelSettings
+from processing.tuning import measured_marks
 from protocol.errors import UserError
 from protocol.events import BoardChanged
+from protocol.printable import printable
 from tui.editor import Editor, EditResult, Outcome
 from tui.fields import EDIT_FIELDS, FROM_NOISE, NO_RATE, POLARITY_KEY, TIME_KEYS, field, polarity_word
 from tui.files import FileQueue, ReplaceOnce, new_recording_path, writable_path
@@ -294,8 +298,13 @@ class LiveScreen(Screen[None]):
         self.detail_panel.show(
             names[ch], self.source.series(ch), spectrum, self.source.settings(ch), self.field_key,
             list(self.feed.recent.get(ch, ())), self.source.rate_hz, self.source.polarity(ch), status,
-            pending, self._long_view(ch),
+            pending, self._long_view(ch), self._quality(ch),
         )
+
+    def _quality(self, ch: int) -> ChannelQuality | None:
+        """The key's SNR verdict and what it rests on, when the source measures one."""
+        quality = getattr(self.source, "quality", None)
+        return quality(ch) if quality is not None else None
 
     def _time_rate_hz(self) -> float | None:
         """The rate times in ms are shown and typed at: the board's, once stated or measured (a source
@@ -430,16 +439,24 @@ class LiveScreen(Screen[None]):
     def action_redo(self) -> None:
         self._report(self.editor.redo())
 
-    def apply_capture(self, settings: dict[int, ChannelSettings], polarity: dict[int, int]) -> None:
-        """The guided capture's outcome: one undoable edit (its learned polarities with it)."""
+    def apply_capture(self, settings: dict[int, ChannelSettings], polarity: dict[int, int],
+                      unmeasured: Sequence[int] = ()) -> None:
+        """The guided capture's outcome: one undoable edit (its learned polarities with it, and the marks
+        of `unmeasured` keys, which keep settings the capture did not measure: `measured_marks`)."""
         names = self.source.channel_names()
         which = sorted(settings)
         what = ", ".join(names[c] for c in which if c < len(names)) if len(which) <= 3 else \
             plural(len(which), "key")
-        result = self.editor.apply_batch(f"guided capture: {what}", settings, polarity)
+        base = getattr(self.source, "measured_base", lambda: None)()
+        marks = measured_marks(base, which, unmeasured)  # a key measured now loses an old mark too
+        left = [printable(names[c]) for c in unmeasured if c < len(names) and not marks[c]]
+        note = f" ({', '.join(left)} not measured: marked measured = false)" if left else ""
+        result = self.editor.apply_batch(f"guided capture: {what}{note}", settings, polarity, marks)
         self._report(result)
         if result.applied:
-            self.say(f"Applied the suggestions for {plural(len(which), 'key')}.")
+            self.say(f"Applied the suggestions for {plural(len(which), 'key')}."
+                     + (f" Not measured: {', '.join(left)}: they keep their settings, saved marked "
+                        "measured = false." if left else ""), severity="warning" if left else "information")
 
     # -- channel and display ----------------------------------------------------------------------
     def action_rebaseline(self, every: bool) -> None:
@@ -540,9 +557,11 @@ class LiveScreen(Screen[None]):
     def action_save(self) -> None:
         self._save(then_quit=False)
 
-    def _save(self, then_quit: bool) -> None:
+    def _save(self, then_quit: bool, asked: bool = False) -> None:
+        if not asked and self._ask_unmeasured(lambda: self._save(then_quit, asked=True)):
+            return
         if self.source.profile_path() is None:
-            self._save_as(then_quit)
+            self._save_as(then_quit, asked=True)
             return
         try:
             job = self.source.save_job()
@@ -554,7 +573,22 @@ class LiveScreen(Screen[None]):
     def action_save_as(self) -> None:
         self._save_as(then_quit=False)
 
-    def _save_as(self, then_quit: bool) -> None:
+    def _ask_unmeasured(self, save: Callable[[], None]) -> bool:
+        """Keys newly marked not measured (a guided capture left them without a suggestion) are named
+        and the save waits for a yes (True: asked; `save` runs on yes)."""
+        news = getattr(self.source, "unmeasured_news", lambda: [])()
+        if not news:
+            return False
+        keys = escape(", ".join(printable(n) for n in news))
+        question = (f"Not measured: {keys}. Save them with the settings they have, marked measured = false "
+                    "(not tuned)?")
+        self.app.push_screen(ConfirmScreen(question, yes="save, marked", no="do not save"),
+                             lambda yes: save() if yes else self.say("Not saved."))
+        return True
+
+    def _save_as(self, then_quit: bool, asked: bool = False) -> None:
+        if not asked and self._ask_unmeasured(lambda: self._save_as(then_quit, asked=True)):
+            return
         current = self.source.profile_path()
         default = str(current) if current else f"{self.source.link_view().board or 'board'}.toml"
         replacing = ReplaceOnce("the old one is kept as .bak", current)

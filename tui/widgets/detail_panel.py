@@ -26,7 +26,9 @@ from textual.containers import Horizontal, Vertical
 from textual.widgets import Static
 from textual_plotext import PlotextPlot
 
+from processing.measure import ChannelQuality
 from processing.settings import ChannelSettings
+from tui.render.quality import verdict_lines
 from tui.render.settings import settings_text
 from tui.render.views import LongView, Series, Spectrum, span_words, time_unit
 
@@ -41,6 +43,9 @@ ZOOM_KEYS = (
     ("z", 1, "zoom", "Detail panel: zoom out (8 s, 1 min, 10 min, 1 h, the whole session)", "chan.zoom_out"),
     ("Z", -1, "zoom in", "Detail panel: zoom back in", "chan.zoom_in"),
 )
+
+
+MIN_EVENT_LINES = 3  # the recent events keep this many lines before the verdict takes a second line
 
 
 def _thin(x: np.ndarray, points: int) -> np.ndarray:
@@ -125,14 +130,22 @@ class DetailPanel(Vertical):
 
     def show(self, name: str, series: Series | None, spectrum: Spectrum | None, settings: ChannelSettings,
              selected_key: str, events: Sequence[str], rate_hz: float | None, polarity: int | None = 1,
-             status: str = "", pending: Collection[str] = (), long: LongView | None = None) -> None:
-        """`long`: the zoomed-out history when `zoomed_out` (the spectrum, when asked for, wins)."""
+             status: str = "", pending: Collection[str] = (), long: LongView | None = None,
+             quality: ChannelQuality | None = None) -> None:
+        """`long`: the zoomed-out history when `zoomed_out` (the spectrum, when asked for, wins);
+        `quality`: the key's SNR verdict, shown with what it rests on under its settings."""
         styles = {r: self.get_component_rich_style(f"detail-panel--{r}", partial=True) for r in self.ROLES}
         width = max(20, self.size.width - 2)
         title = long_title(name, long, ZOOM_LEVELS[self.zoom][0], width) \
             if self.zoomed_out and spectrum is None else detail_title(name, spectrum, width)
         self.query_one("#detail-title", Static).update(Text(title, no_wrap=True))
         settings_lines = settings_text(settings, selected_key, styles, rate_hz, polarity, status, pending)
+        side = self.query_one("#detail-side", Vertical).content_size
+        # two lines for the verdict only where the recent events keep a few lines (not at 80x24)
+        spare = side.height - len(settings_lines.plain.splitlines()) - 1 >= 2 + MIN_EVENT_LINES
+        for line in verdict_lines(quality, max(20, side.width or 40), 2 if spare else 1):
+            settings_lines.append("\n")
+            settings_lines.append(line)
         self.query_one("#detail-settings", Static).update(settings_lines)
         lines = Text("recent events, newest first\n", style=styles["dim"], no_wrap=True)
         for line in reversed(list(events)[-6:]):
