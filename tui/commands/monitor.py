@@ -16,7 +16,7 @@ from tui.headless.ports import (
     seconds,
     stop_on_recording_error,
 )
-from tui.headless.runner import DetectionRun
+from tui.headless.runner import DetectionRun, never_spoke
 from tui.pipeline import Pipeline
 from tui.polarity_arg import add_polarity_arg
 
@@ -61,5 +61,11 @@ def _run(args: argparse.Namespace) -> int:
     until = None if args.duration is None else origin + args.duration
     with StopFlag() as stop:
         last = pipeline.run_to_end(until_s=until, stop=stop, on_step=stop_on_recording_error)
+    stats = link.stats
+    silence = never_spoke(stats, args.port, last.t_s - origin)
+    if silence is not None:
+        run_.silent_s = last.t_s - origin
+        if not stats.extra.get("stalls"):  # the link's own silence report was not told already
+            run_.warn(silence)
     run_.finish(last.t_s)
     return 0
