@@ -51,6 +51,7 @@ from urllib.parse import quote
 
 # The format's shared names and the reader are part of this module's API too (`read_recording` and
 # `Mark` are usually imported from here); the reader imports only `recording_format`, so no cycle.
+from processing.atomic import NotRegularFile, open_regular
 from processing.recording_format import FORMAT_LINE, FORMAT_PREFIX, HEADER_START, MARK_KINDS, Mark, Recording
 from processing.recording_read import (
     info_from_fields,
@@ -204,7 +205,9 @@ class RecordingWriter:
         if self.path.is_dir():
             raise UserError(f"{self.path} is a folder: give the recording's file name (such as run.csv)")
         try:
-            self._fd: int | None = os.open(self.path, flags, 0o644)
+            self._fd: int | None = open_regular(self.path, flags, 0o644)
+        except NotRegularFile as exc:  # a device, FIFO or socket at the name: never written into
+            raise UserError(f"{self.path}: {exc.strerror} for the recording") from None
         except FileExistsError:
             raise UserError(
                 f"{self.path} already exists: choose another file name, or overwrite it "

@@ -6,6 +6,8 @@ import argparse
 import time
 
 from processing.session import Session
+from tui.commands.record import DASH_WHY
+from tui.dash import HELP_NO_DASH, refuse_dash
 from tui.headless.output import make_output
 from tui.headless.ports import (
     StopFlag,
@@ -35,7 +37,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="stop after S seconds (default: run until stopped)")
     p.add_argument("--every", metavar="S", type=seconds,
                    help="print a status of every channel every S seconds")
-    p.add_argument("--record", metavar="FILE", help="also write a recording (CSV) of the same run to FILE")
+    p.add_argument("--record", metavar="FILE",
+                   help="also write a recording (CSV) of the same run to FILE (a regular file; "
+                   f"{HELP_NO_DASH})")
     p.add_argument("--force", action="store_true", help="with --record: overwrite FILE if it exists")
     p.set_defaults(func=run)
 
@@ -45,6 +49,7 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _run(args: argparse.Namespace) -> int:
+    refuse_dash("--record", args.record, DASH_WHY)
     profile = load_profile_arg(args.profile)
     clock = time.monotonic
     origin = clock()  # before the link starts, so its first events have t >= 0
