@@ -7,6 +7,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -58,7 +59,9 @@ def run(args: argparse.Namespace) -> int:
             raise UserError(f"cannot write the export to standard output: {exc.strerror or exc}") from None
     else:
         target = Path(name)
-        if target.resolve() == Path(args.profile).resolve():
+        # os.path.realpath, not Path.resolve: a symlink loop at the target must reach the write's own
+        # one-line refusal, not raise here.
+        if os.path.realpath(target) == os.path.realpath(args.profile):
             raise UserError(f"{target}: refusing to overwrite the profile itself; choose another output file")
         try:
             if args.c_header:

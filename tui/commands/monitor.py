@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import time
 
+from processing.recording import check_recording_target
 from processing.session import Session
 from tui.commands.record import DASH_WHY
 from tui.dash import HELP_NO_DASH, refuse_dash
@@ -50,6 +51,8 @@ def run(args: argparse.Namespace) -> int:
 
 def _run(args: argparse.Namespace) -> int:
     refuse_dash("--record", args.record, DASH_WHY)
+    if args.record:
+        check_recording_target(args.record, overwrite=args.force)  # before the port is opened
     profile = load_profile_arg(args.profile)
     clock = time.monotonic
     origin = clock()  # before the link starts, so its first events have t >= 0

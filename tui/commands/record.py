@@ -14,6 +14,7 @@ import sys
 import threading
 import time
 
+from processing.recording import check_recording_target
 from protocol.events import LinkFault
 from tui.dash import HELP_NO_DASH, refuse_dash
 from tui.headless.notices import NoticeGate
@@ -49,6 +50,7 @@ def _read_marks(lines: queue.Queue[str]) -> None:
 
 def run(args: argparse.Namespace) -> int:
     refuse_dash("-o", args.output, DASH_WHY)
+    check_recording_target(args.output, overwrite=args.force)  # before the port is opened
     clock = time.monotonic
     console = make_console(stderr=True)
     origin = clock()  # before the link starts, so its first events have t_s >= 0

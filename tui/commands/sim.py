@@ -100,12 +100,14 @@ def _link_refusal(link: str, own_pty: str) -> str | None:
     target = os.readlink(link)
     if not os.path.isabs(target):
         target = os.path.join(os.path.dirname(link), target)
-    if not os.path.exists(target) or os.path.realpath(target) == os.path.realpath(own_pty):
-        return None  # dangling (its pty went with its server), or this server's pty: replaced
-    if os.path.realpath(target).startswith("/dev/pts/"):
+    pty = target.startswith("/dev/pts/")
+    if pty and (not os.path.exists(target) or target == own_pty):
+        return None  # its pty went with its killed server (or is this server's, the number free again)
+    if pty:
         return (f"--link {link} points to {target}, a pseudo-terminal in use (another padtune sim?); stop "
                 "that server or pick another path")
-    return f"--link {link} is a link to {target}, not to a padtune sim; pick another path or remove it"
+    what = "nothing (a dangling link)" if not os.path.lexists(target) else target
+    return f"--link {link} is a link to {what}, not to a padtune sim; pick another path or remove it"
 
 
 def list_text() -> list[str]:
