@@ -113,3 +113,21 @@ def test_dash_is_refused_for_link_and_flash_and_help_says_so(tmp_path):
         assert list(tmp_path.iterdir()) == []
     helptext = padtune("sim", "--help").stdout
     assert "`-` is refused" in " ".join(helptext.split())
+
+
+def test_a_link_whose_pty_number_another_program_took_again_is_replaced(tmp_path):
+    """After the kill the pty number is free, and on a busy machine another program (here this test, as
+    a terminal would) may take it before the server starts again: that program serves no link, so the
+    link is still the dead server's and is replaced."""
+    master, slave = os.openpty()
+    try:
+        link = tmp_path / "board"
+        link.symlink_to(os.ttyname(slave))
+        again, device = start_sim(link)
+        try:
+            assert device != os.ttyname(slave) and b"board=greenhouse" in read_info_line(link)
+        finally:
+            stop(again)
+    finally:
+        os.close(master)
+        os.close(slave)

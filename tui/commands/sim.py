@@ -103,6 +103,8 @@ def _link_refusal(link: str, own_pty: str) -> str | None:
     pty = target.startswith("/dev/pts/")
     if pty and (not os.path.exists(target) or target == own_pty):
         return None  # its pty went with its killed server (or is this server's, the number free again)
+    if pty and _served_by_a_linking_sim(target) is False:
+        return None  # the number was taken again by a program that serves no link: the link is stale
     if pty:
         return (f"--link {link} points to {target}, a pseudo-terminal in use (another padtune sim?); stop "
                 "that server or pick another path")
@@ -176,6 +178,42 @@ def _serve(server: PtyServer, args: argparse.Namespace) -> None:
         server.close()
         if args.link:
             _remove_link(args.link, server.path)
+
+
+def _served_by_a_linking_sim(pty: str) -> bool | None:
+    """Whether the process holding the master of `/dev/pts/N` was started with `--link` (a server that
+    may own the link), False when its holder(s) were not, None when that cannot be told (no /proc, or
+    another user's processes): then the link counts as live and is left alone."""
+    number = pty.rsplit("/", 1)[-1]
+    holders: list[str] = []
+    try:
+        pids = [p for p in os.listdir("/proc") if p.isdigit()]
+    except OSError:
+        return None
+    for pid in pids:
+        try:
+            fds = os.listdir(f"/proc/{pid}/fd")
+        except OSError:
+            continue  # gone, or not ours to look at
+        for fd in fds:
+            try:
+                if not os.readlink(f"/proc/{pid}/fd/{fd}").endswith("ptmx"):
+                    continue
+                with open(f"/proc/{pid}/fdinfo/{fd}", encoding="ascii") as f:
+                    if f"tty-index:\t{number}\n" in f.read():
+                        holders.append(pid)
+            except OSError:
+                continue
+    if not holders:
+        return None
+    for pid in holders:
+        try:
+            with open(f"/proc/{pid}/cmdline", "rb") as f:
+                if b"\0--link\0" in f.read():
+                    return True
+        except OSError:
+            return None
+    return False
 
 
 def _remove_link(link: str, own_pty: str) -> None:
