@@ -181,8 +181,11 @@ def export_c_header(profile: Profile, path: str | os.PathLike[str], source: str 
     atomic_write_bytes(path, text.encode("utf-8"), keep_backup=False)
 
 
+def json_text(profile: Profile, source: str, now: dt.datetime | None = None) -> str:
+    doc = json_document(profile, source or "(unsaved profile)", now)
+    return json.dumps(doc, indent=2, allow_nan=False) + "\n"  # strict JSON: limits are finite (validated)
+
+
 def export_json(profile: Profile, path: str | os.PathLike[str], source: str = "",
                 now: dt.datetime | None = None) -> None:
-    doc = json_document(profile, source or "(unsaved profile)", now)
-    text = json.dumps(doc, indent=2, allow_nan=False) + "\n"  # strict JSON: limits are finite (validated)
-    atomic_write_bytes(path, text.encode("utf-8"), keep_backup=False)
+    atomic_write_bytes(path, json_text(profile, source, now).encode("utf-8"), keep_backup=False)

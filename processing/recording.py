@@ -51,6 +51,7 @@ from urllib.parse import quote
 
 # The format's shared names and the reader are part of this module's API too (`read_recording` and
 # `Mark` are usually imported from here); the reader imports only `recording_format`, so no cycle.
+from processing.atomic import NotRegularFile, open_regular, refuse_non_regular
 from processing.recording_format import FORMAT_LINE, FORMAT_PREFIX, HEADER_START, MARK_KINDS, Mark, Recording
 from processing.recording_read import (
     info_from_fields,
@@ -161,6 +162,27 @@ def utc_stamp(epoch_s: float) -> str:
 # ---------------------------------------------------------------- writer (thin shell)
 
 
+def check_recording_target(path: str | os.PathLike[str], overwrite: bool = False) -> None:
+    """The checks `RecordingWriter` makes when it opens, made before a port is opened (UserError, one
+    line): a folder, a device, FIFO or socket, an existing file without `overwrite`, a symlink loop.
+    The writer checks again as it opens (the name may change in between)."""
+    target = Path(path)
+    if target.is_dir():
+        raise UserError(f"{target} is a folder: give the recording's file name (such as run.csv)")
+    try:
+        refuse_non_regular(target)
+        os.stat(target)
+    except NotRegularFile as exc:
+        raise UserError(f"{target}: {exc.strerror} for the recording") from None
+    except FileNotFoundError:
+        return
+    except OSError as exc:
+        raise UserError(f"cannot create recording {target}: {exc.strerror}") from None
+    if not overwrite:
+        raise UserError(f"{target} already exists: choose another file name, or overwrite it "
+                        "(--force on the command line)")
+
+
 class RecordingWriter:
     """Writes events to a recording file as they come; whole rows only, flushed every `flush_interval_s`.
 
@@ -204,7 +226,9 @@ class RecordingWriter:
         if self.path.is_dir():
             raise UserError(f"{self.path} is a folder: give the recording's file name (such as run.csv)")
         try:
-            self._fd: int | None = os.open(self.path, flags, 0o644)
+            self._fd: int | None = open_regular(self.path, flags, 0o644)
+        except NotRegularFile as exc:  # a device, FIFO or socket at the name: never written into
+            raise UserError(f"{self.path}: {exc.strerror} for the recording") from None
         except FileExistsError:
             raise UserError(
                 f"{self.path} already exists: choose another file name, or overwrite it "

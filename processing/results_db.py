@@ -28,6 +28,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from processing.atomic import NotRegularFile, refuse_non_regular
 from protocol.errors import UserError
 
 SCHEMA_VERSION = 1
@@ -96,6 +97,10 @@ def open_results(path: str | Path, create: bool = True) -> sqlite3.Connection:
     p = Path(path).expanduser()
     if p.is_dir():
         raise UserError(f"{p}: is a folder, not a results database file")
+    try:  # sqlite would open a device or a FIFO and write its journal next to it
+        refuse_non_regular(p)
+    except NotRegularFile as exc:
+        raise UserError(f"{p}: {exc.strerror} for the results database") from None
     if not create and not p.exists():
         raise UserError(f"{p}: no such results database")
     if create and not p.parent.is_dir():

@@ -24,7 +24,8 @@ class FaultKind(StrEnum):
     BAD_CHECKSUM = "bad_checksum"  # checksum mismatch, or missing after checksums were seen
     WIDTH_MISMATCH = "width_mismatch"  # a frame with a channel count other than the known one
     BOARD_CHANGED = "board_changed"  # three frames in a row of one new width: the board changed
-    OVERFLOW = "overflow"  # events the consumer was too slow to take (bounded queue), count = dropped
+    OVERFLOW = "overflow"  # frames the consumer was too slow to take (bounded queue), count = dropped
+    DROPPED = "dropped"  # other events (notes, answers, info lines) dropped for the same reason, counted
     BAUD_SUSPECT = "baud_suspect"  # most bytes of the first 2 s after opening were garbage: wrong baud?
     SILENT = "silent"  # no bytes for 2 s after opening, or a stall of 2 s later (count = seconds so far)
     UNREADABLE = "unreadable"  # a printable stream in no form padtune reads (detail quotes a line)

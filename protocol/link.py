@@ -132,6 +132,8 @@ class Link:
         snap.overflow = self._buffer.dropped_frames
         if self._buffer.dropped_events:
             snap.extra["overflow_events"] = self._buffer.dropped_events
+        if self._buffer.merged_faults:
+            snap.extra["merged_faults"] = self._buffer.merged_faults  # their counts are kept
         if self._callback_errors:
             snap.extra["callback_errors"] = self._callback_errors
         snap.extra["stalls"] = self._watch.stalls  # silences of 2 s or more (never spoke, or stalled)

@@ -18,7 +18,7 @@ from typing import NoReturn
 
 import devices
 from protocol.printable import printable
-from tui import commands
+from tui import commands, loglines
 from tui.errors import UserError
 from tui.polarity_arg import glue_polarity
 from tui.version import padtune_version
@@ -49,6 +49,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: Sequence[str] | None = None) -> int:
     devices.register_url_handlers()
+    loglines.install()  # no library's logging line reaches the terminal bare
     parser = build_parser()
     args = parser.parse_args(glue_polarity(sys.argv[1:] if argv is None else argv))
     func = getattr(args, "func", None)

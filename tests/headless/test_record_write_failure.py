@@ -4,6 +4,7 @@
 standard stand-in for a full disk.
 """
 
+import errno
 import os
 import subprocess
 import sys
@@ -27,9 +28,20 @@ def _block(n: int, channels: int = 3) -> FrameBlock:
     )
 
 
-def test_writer_turns_a_full_disk_into_a_user_error():
-    # The header is written at once, so the very first write already meets the full disk.
+def _disk_full(self, data: bytes) -> None:
+    raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+
+def test_writer_turns_a_full_disk_into_a_user_error(tmp_path, monkeypatch):
+    # The header is written at once, so the very first write already meets the full disk. (/dev/full
+    # itself is no longer written into: a character device is refused by name, issue 13.)
+    monkeypatch.setattr(RecordingWriter, "_write_all", _disk_full)
     with pytest.raises(UserError, match="No space left on device"):
+        RecordingWriter(tmp_path / "r.csv", overwrite=True)
+
+
+def test_writer_refuses_dev_full_by_name():
+    with pytest.raises(UserError, match="/dev/full: it is a character device, not a regular file"):
         RecordingWriter("/dev/full", overwrite=True)
 
 
@@ -46,28 +58,21 @@ def test_writer_stops_buffering_after_a_failed_write(tmp_path):
     assert (tmp_path / "r.csv").read_text().startswith("# padtune recording")
 
 
-def test_record_command_on_a_full_disk_exits_2_with_one_line():
-    out = subprocess.run(
-        [sys.executable, "-m", "tui.cli", "record", "sim://greenhouse?speed=8&seed=3",
-         "-o", "/dev/full", "--force", "--duration", "3"],
-        capture_output=True, text=True, timeout=120,
-    )
+@pytest.mark.parametrize("command", [
+    ["record", "sim://greenhouse?speed=8&seed=3", "-o", "/dev/full", "--force", "--duration", "3"],
+    ["monitor", "sim://greenhouse?speed=8&seed=3", "--duration", "3", "--record", "/dev/full", "--force",
+     "--json"],
+])
+def test_a_recording_on_dev_full_is_refused_by_name_in_one_line(command):
+    # Issue 13: a character device at the name is refused before anything is written (a full disk met
+    # while writing is the mid-run test below).
+    out = subprocess.run([sys.executable, "-m", "tui.cli", *command], capture_output=True, text=True,
+                         timeout=120)
     assert out.returncode == 2, out.stderr
     lines = out.stderr.strip().splitlines()
-    assert len(lines) == 1 and "No space left on device" in lines[0], out.stderr
-    assert "Traceback" not in out.stderr
-
-
-def test_monitor_recording_to_a_full_disk_exits_2_with_one_line():
-    out = subprocess.run(
-        [sys.executable, "-m", "tui.cli", "monitor", "sim://greenhouse?speed=8&seed=3", "--duration", "3",
-         "--record", "/dev/full", "--force", "--json"],
-        capture_output=True, text=True, timeout=120,
-    )
-    assert out.returncode == 2, out.stderr
-    lines = out.stderr.strip().splitlines()
-    assert len(lines) == 1 and "No space left on device" in lines[0], out.stderr
-    assert "Traceback" not in out.stderr
+    said = "/dev/full: it is a character device, not a regular file"
+    assert len(lines) == 1 and said in lines[0], out.stderr
+    assert "Traceback" not in out.stderr and out.stdout == ""
 
 
 @pytest.mark.parametrize("command", ["monitor", "record"])

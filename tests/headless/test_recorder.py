@@ -7,6 +7,7 @@ descriptor with `dup2`. Waits are on conditions with generous deadlines.
 
 from __future__ import annotations
 
+import errno
 import os
 import time
 from pathlib import Path
@@ -14,7 +15,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from processing.recording import read_recording
+from processing.recording import RecordingWriter, read_recording
 from protocol.errors import UserError
 from protocol.events import BoardInfo, FrameBlock, Note
 from tests.headless.disks import DEADLINE_S, SlowDisk, put_dev_full_under, returns_soon
@@ -153,10 +154,15 @@ def test_a_full_disk_at_close_is_the_close_errors_reason(tmp_path: Path) -> None
 
 
 @pytest.mark.skipif(not os.path.exists("/dev/full"), reason="needs Linux /dev/full")
-def test_a_recording_on_dev_full_is_refused_at_once() -> None:
+def test_a_recording_on_a_full_disk_is_refused_at_once(tmp_path: Path, monkeypatch) -> None:
     # The head is written when the file opens (on the caller's thread): a full disk is a refusal there.
+    # (/dev/full itself is refused by name as a character device since issue 13.)
+    def disk_full(self, data: bytes) -> None:
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    monkeypatch.setattr(RecordingWriter, "_write_all", disk_full)
     with pytest.raises(UserError, match="No space left on device"):
-        Recorder("/dev/full", overwrite=True)
+        Recorder(tmp_path / "full.csv", overwrite=True)
 
 
 def test_the_writer_flushes_on_its_own_while_nothing_comes(tmp_path: Path) -> None:

@@ -63,8 +63,27 @@ def test_buffer_bounds_other_events_but_keeps_status():
     buf.put([Note(0, str(i)) for i in range(5)] + [LinkStatus(0, LinkState.DISCONNECTED, "p")],
             on_drop=lambda f, e: dropped.append((f, e)))
     out = buf.drain(max_events=10)
-    assert len(out) == 3 and isinstance(out[-1], LinkStatus)
+    assert [type(e).__name__ for e in out] == ["Note", "Note", "LinkFault", "LinkStatus"]
+    assert out[2].kind is FaultKind.DROPPED and out[2].count == 3 and "3 events" in out[2].detail
     assert dropped == [(0, 3)] and buf.dropped_events == 3
+
+
+def test_a_flood_of_faults_is_merged_by_kind_and_every_count_kept():
+    """Issue 13: 100,000 garbled lines behind a full queue were lost without a marker (the summary said
+    14,092). Past the bound each kind's first fault takes in the later ones; a rarer kind (a baud
+    verdict) still gets its own slot, in order."""
+    buf = EventBuffer(max_frames=5, max_events=3)
+    buf.put([LinkFault(0, FaultKind.GARBLED, 1, "line 0")] * 3)
+    buf.put([LinkFault(1, FaultKind.GARBLED, 1, f"line {i}") for i in range(3, 100_000)])
+    buf.put([LinkFault(2, FaultKind.BAUD_SUSPECT, 1, "wrong rate?"), LinkFault(3, FaultKind.GARBLED, 2)])
+    out = buf.drain()
+    assert [(e.kind, e.count) for e in out] == [(FaultKind.GARBLED, 1)] * 3 + [
+        (FaultKind.GARBLED, 100_000 - 3 + 2), (FaultKind.BAUD_SUSPECT, 1)]
+    assert sum(e.count for e in out if e.kind is FaultKind.GARBLED) == 100_002
+    assert out[3].detail.startswith("line 3 (99997 more garbled reports merged here")
+    assert out[4].detail == "wrong rate?" and buf.merged_faults == 99_997 and buf.dropped_events == 0
+    buf.put([LinkFault(4, FaultKind.GARBLED)])  # drained: a new tally, not the old one
+    assert [(e.kind, e.count) for e in buf.drain()] == [(FaultKind.GARBLED, 1)]
 
 
 def test_buffer_drain_limit():

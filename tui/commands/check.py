@@ -23,6 +23,7 @@ from processing.profile import Profile
 from processing.session import Session
 from processing.settings import LIMIT_KEYS, Limits
 from protocol.errors import UserError
+from tui.dash import refuse_dash
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import (
     DEFAULT_BAUD,
@@ -61,18 +62,21 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="check even where the profile sets no limits (those checks read 'not checked'); "
                         "without it such a profile is a setup error (exit 2)")
     p.add_argument("--json", action="store_true", help="print the report as one JSON object")
-    p.add_argument("--report", metavar="FILE.html", help="also write an HTML report with plots")
+    p.add_argument("--report", metavar="FILE.html",
+                   help="also write an HTML report with plots (a file; `-` is refused)")
     p.add_argument("--unit", metavar="ID", action="append",
                    help="the unit's id: one per port in the ports' order, or one pattern such as A{n:03} "
                         "(default: the serial key of the board's info line)")
     p.add_argument("--unit-start", metavar="N", type=int, default=1,
                    help="the first {n} of a --unit pattern (default %(default)s)")
     p.add_argument("--results", metavar="FILE.sqlite",
-                   help="append every unit's result, per channel and per check, to this SQLite database")
+                   help="append every unit's result, per channel and per check, to this SQLite database "
+                   "(a file; `-` is refused)")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
+    refuse_dash("--results", args.results, "a results database is a file stations share and lot reads")
     if len(args.port) > 1 or args.unit or args.results:
         from tui.headless.station import run_station
 

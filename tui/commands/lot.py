@@ -27,7 +27,8 @@ def register(sub: argparse._SubParsersAction) -> None:
         "baseline, noise pp and SNR over the units (min, median, max, standard deviation).")
     p.add_argument("results", metavar="FILE.sqlite", help="results database written by check --results")
     p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
-    p.add_argument("--report", metavar="FILE.html", help="also write an HTML lot report with plots")
+    p.add_argument("--report", metavar="FILE.html",
+                   help="also write an HTML lot report with plots (a file; `-` is refused)")
     p.set_defaults(func=run)
 
 

@@ -5,7 +5,10 @@ from __future__ import annotations
 import argparse
 import time
 
+from processing.recording import check_recording_target
 from processing.session import Session
+from tui.commands.record import DASH_WHY
+from tui.dash import HELP_NO_DASH, refuse_dash
 from tui.headless.output import make_output
 from tui.headless.ports import (
     StopFlag,
@@ -16,7 +19,7 @@ from tui.headless.ports import (
     seconds,
     stop_on_recording_error,
 )
-from tui.headless.runner import DetectionRun
+from tui.headless.runner import DetectionRun, never_spoke
 from tui.pipeline import Pipeline
 from tui.polarity_arg import add_polarity_arg
 
@@ -35,7 +38,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="stop after S seconds (default: run until stopped)")
     p.add_argument("--every", metavar="S", type=seconds,
                    help="print a status of every channel every S seconds")
-    p.add_argument("--record", metavar="FILE", help="also write a recording (CSV) of the same run to FILE")
+    p.add_argument("--record", metavar="FILE",
+                   help="also write a recording (CSV) of the same run to FILE (a regular file; "
+                   f"{HELP_NO_DASH})")
     p.add_argument("--force", action="store_true", help="with --record: overwrite FILE if it exists")
     p.set_defaults(func=run)
 
@@ -45,6 +50,9 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _run(args: argparse.Namespace) -> int:
+    refuse_dash("--record", args.record, DASH_WHY)
+    if args.record:
+        check_recording_target(args.record, overwrite=args.force)  # before the port is opened
     profile = load_profile_arg(args.profile)
     clock = time.monotonic
     origin = clock()  # before the link starts, so its first events have t >= 0
@@ -61,5 +69,11 @@ def _run(args: argparse.Namespace) -> int:
     until = None if args.duration is None else origin + args.duration
     with StopFlag() as stop:
         last = pipeline.run_to_end(until_s=until, stop=stop, on_step=stop_on_recording_error)
+    stats = link.stats
+    silence = never_spoke(stats, args.port, last.t_s - origin)
+    if silence is not None:
+        run_.silent_s = last.t_s - origin
+        if not stats.extra.get("stalls"):  # the link's own silence report was not told already
+            run_.warn(silence)
     run_.finish(last.t_s)
     return 0

@@ -14,12 +14,18 @@ import sys
 import threading
 import time
 
+from processing.recording import check_recording_target
 from protocol.events import LinkFault
+from tui.dash import HELP_NO_DASH, refuse_dash
 from tui.headless.notices import NoticeGate
 from tui.headless.output import make_console
 from tui.headless.ports import StopFlag, add_port_args, open_link, seconds, stop_on_recording_error
-from tui.headless.runner import link_fault_text
+from tui.headless.runner import link_fault_text, never_spoke
 from tui.pipeline import Pipeline, Step
+
+# Why `record -o -` is refused: a data logger's file is flushed every quarter second and synced at the end
+# so a crash loses at most that; a pipe cannot be synced, and a reader that goes away would end the run.
+DASH_WHY = "a recording is written to a file padtune flushes and syncs (a crash loses at most 0.25 s)"
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -29,7 +35,8 @@ def register(sub: argparse._SubParsersAction) -> None:
         "metadata, a header, one row per frame). On a terminal, press Enter to mark a moment (type a note "
         "first to label it). Stops after --duration, on Ctrl-C or SIGTERM.")
     add_port_args(p)
-    p.add_argument("-o", "--output", metavar="FILE", required=True, help="the recording to write (CSV)")
+    p.add_argument("-o", "--output", metavar="FILE", required=True,
+                   help=f"the recording to write (CSV); a regular file only: {HELP_NO_DASH}")
     p.add_argument("--duration", metavar="S", type=seconds,
                    help="stop after S seconds (default: until stopped)")
     p.add_argument("--force", action="store_true", help="overwrite FILE if it already exists")
@@ -42,6 +49,8 @@ def _read_marks(lines: queue.Queue[str]) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    refuse_dash("-o", args.output, DASH_WHY)
+    check_recording_target(args.output, overwrite=args.force)  # before the port is opened
     clock = time.monotonic
     console = make_console(stderr=True)
     origin = clock()  # before the link starts, so its first events have t_s >= 0
@@ -80,6 +89,10 @@ def run(args: argparse.Namespace) -> int:
         last = pipeline.run_to_end(until_s=until, stop=stop, on_step=on_step)
     for line in gate.flush():
         console.print(f"padtune: {line}")
+    stats = link.stats
+    silence = never_spoke(stats, args.port, last.t_s - origin)
+    if silence is not None and not stats.extra.get("stalls"):  # not told already while recording
+        console.print(f"padtune: {silence}")
     console.print(f"recorded {recorder.frames_written} frames in {last.t_s - origin:.1f} s "
                   f"({recorder.marks_written} marks) to {args.output}")
     return 0

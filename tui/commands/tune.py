@@ -15,12 +15,14 @@ import json
 import sys
 from pathlib import Path
 
+from processing.atomic import NotRegularFile, refuse_non_regular
 from processing.profile import save_profile
 from processing.recording import read_recording
 from processing.settings import LIMIT_KEYS
 from processing.suggest import Refusal
 from processing.tuning import KeyResult, TuneResult, limits_from_result, tune_recording, with_limits
 from protocol.errors import UserError
+from tui.dash import refuse_dash
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import frame_rate, load_profile_arg, percentage, quiet_broken_pipe
 from tui.headless.tuning import CROSSTALK_RULE, couplings_of, crosstalk_rows, result_rows
@@ -34,10 +36,13 @@ def register(sub: argparse._SubParsersAction) -> None:
         "and print a table. Keys without a usable touch keep their settings and say why; then nothing is "
         "written and the exit code is 1, unless --partial writes them marked measured = false.")
     p.add_argument("file", metavar="FILE", help="recording (CSV) or raw capture of protocol lines")
-    p.add_argument("-o", "--output", metavar="PROFILE", required=True, help="profile TOML to write")
+    p.add_argument("-o", "--output", metavar="PROFILE", required=True,
+                   help="profile TOML to write (a file; `-` is refused: the results table goes to standard "
+                   "output)")
     p.add_argument("--profile", metavar="F",
                    help="start from this profile (groups, sliders, limits, other settings are kept)")
-    p.add_argument("--report", metavar="FILE.html", help="also write an HTML report with plots")
+    p.add_argument("--report", metavar="FILE.html",
+                   help="also write an HTML report with plots (a file; `-` is refused)")
     p.add_argument("--json", action="store_true", help="print the results as one JSON object")
     p.add_argument("--rate", metavar="HZ", type=frame_rate,
                    help="frame rate of a raw capture without info line")
@@ -55,7 +60,13 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    refuse_dash("-o", args.output, "tune writes the profile to a file (its results table goes to standard "
+                "output)")
     out = Path(args.output)
+    try:  # before the recording is read: a device, FIFO or socket at the name is never replaced
+        refuse_non_regular(out)
+    except NotRegularFile as exc:
+        raise UserError(f"{out}: {exc.strerror}") from None
     if out.suffix.lower() != ".toml":
         raise UserError(f"{out}: a profile is a TOML file; end the name in .toml")
     if out.is_dir():

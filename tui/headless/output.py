@@ -236,6 +236,10 @@ class HumanOutput:
     def summary(self, t_s: float, summary: Mapping[str, Any]) -> None:
         counts = ", ".join(f"{k} {summary[k]}" for k in ("frames", "lost", "garbled", "bad_checksum",
                                                           "overlong", "resets") if k in summary)
+        # What the consumer was too slow to take is said only when it happened (every line counted).
+        counts += "".join(f", {k} {summary[k]}" for k in ("overflow", "dropped") if summary.get(k))
+        if summary.get("silent_s") is not None:
+            counts += f"; nothing received: silent for {summary['silent_s']:.1f} s"
         self.console.print(Text(f"summary after {t_s:.1f} s: {counts}"))
         if "twin_compared" in summary:  # the board sent its own key states (PROTOCOL.md section 3)
             self.console.print(Text(f"twin check: {summary['twin_mismatches']} of {summary['twin_compared']} "

@@ -30,6 +30,7 @@ from protocol.events import (
     FaultKind,
     FrameBlock,
     LinkFault,
+    LinkStats,
     LinkStatus,
     Note,
     StreamForm,
@@ -42,7 +43,7 @@ _FAULT_EVENTS = {FaultKind.LOST: "lost", FaultKind.RESET: "reset", FaultKind.GAR
                  FaultKind.BOARD_CHANGED: "board changed"}
 _SUMMARY_FAULTS = {FaultKind.LOST: "lost", FaultKind.GARBLED: "garbled",
                    FaultKind.BAD_CHECKSUM: "bad_checksum", FaultKind.OVERLONG: "overlong",
-                   FaultKind.RESET: "resets"}
+                   FaultKind.RESET: "resets", FaultKind.OVERFLOW: "overflow", FaultKind.DROPPED: "dropped"}
 # Link faults a person running `monitor` is told on stderr (their details are whole sentences).
 _TOLD_FAULTS = (FaultKind.SILENT, FaultKind.UNREADABLE, FaultKind.BAUD_SUSPECT, FaultKind.REPEATED)
 
@@ -109,7 +110,10 @@ class DetectionRun:
     link_warnings: bool = False
     gate: NoticeGate = field(default_factory=NoticeGate)
     frames: int = 0
+    notes: int = 0
     counts: dict[str, int] = field(default_factory=lambda: dict.fromkeys(_SUMMARY_FAULTS.values(), 0))
+    # A live run's silence at the end (`monitor`): seconds the port stayed open without a byte, or None.
+    silent_s: float | None = None
     touches: list[FoundTouch] = field(default_factory=list)
     twin_count: int = 0  # the last twin report's count of disagreeing frames
     _next_status_t: float | None = None
@@ -165,6 +169,7 @@ class DetectionRun:
             self._say_form(None)
             self._form = self._form_hello = event
         elif isinstance(event, Note):
+            self.notes += 1
             self.output.note(t, event.text)
         elif isinstance(event, LinkFault):
             if event.kind in _SUMMARY_FAULTS:
@@ -273,7 +278,9 @@ class DetectionRun:
             channels.append(row)
         twin = self.session.twin
         extra = {"twin_compared": twin.compared, "twin_mismatches": twin.count} if twin.active else {}
-        return {"frames": self.frames, **self.counts, **extra, "channels": channels}
+        silence = {} if self.silent_s is None else {"silent_s": round(self.silent_s, 1)}
+        return {"frames": self.frames, **self.counts, "notes": self.notes, **silence, **extra,
+                "channels": channels}
 
     def finish(self, now_t_s: float) -> dict[str, Any]:
         self._say_form(None)
@@ -299,3 +306,13 @@ def _fault_text(fault: LinkFault) -> str:
         return (f"{fault.count} {frames} repeated the previous sequence number"
                 + (f" ({fault.detail})" if fault.detail else ""))
     return fault.detail or fault.kind.value
+
+
+def never_spoke(stats: LinkStats, port: str, seconds_s: float) -> str | None:
+    """A live run that ends without a single byte from an open port: the sentence that says so, or None
+    when bytes came. A run too short for the link's own 2 s silence report would otherwise end as an
+    empty success (0 frames and nothing said)."""
+    if stats.bytes_in:
+        return None
+    return (f"{port} sent nothing in {seconds_s:.1f} s (the port is open, no bytes came): check that the "
+            "board is powered and running and that this is its port")

@@ -21,7 +21,16 @@ def check_report_path(text: str) -> None:
     """Refuse a report path that cannot be written before any measuring is done."""
     from pathlib import Path
 
+    from processing.atomic import NotRegularFile, refuse_non_regular
+    from tui.dash import refuse_dash
+
+    refuse_dash("--report", text, "the report is a file (standard output carries the command's own results)")
     path = Path(text).expanduser()
+    try:
+        if not path.is_dir():
+            refuse_non_regular(path)
+    except NotRegularFile as exc:
+        raise UserError(f"--report {path}: {exc.strerror} (FILE.html)") from None
     if path.is_dir():
         raise UserError(f"--report {path}: is a folder; give the report's file name (FILE.html)")
     folder = path.resolve().parent
