@@ -121,3 +121,17 @@ def test_tune_never_writes_over_the_recording_it_reads(work, tmp_path):
     _one_line(out, "is the recording being tuned")
     assert rec.read_bytes() == (work / "gh.csv").read_bytes()
     assert not (tmp_path / "rec.toml.bak").exists()
+
+
+def test_replay_prints_a_boards_text_escaped(work, tmp_path):
+    """A board's comment and a note row holding ESC sequences reach the terminal escaped, not raw."""
+    data = (work / "gh.raw").read_bytes()
+    (tmp_path / "esc.raw").write_bytes(b"# \x1b[2J wiped\n" + data)
+    lines = (work / "gh.csv").read_text().split("\n")
+    lines.insert(20, "# note t_s=0.100000 text=\x1b]0;title\x07 hi")
+    (tmp_path / "esc.csv").write_text("\n".join(lines))
+    for name in ("esc.raw", "esc.csv"):
+        out = padtune("replay", str(tmp_path / name))
+        assert out.returncode == 0, out.stderr
+        assert "\x1b" not in out.stdout and "\x07" not in out.stdout
+        assert "\\x1b" in out.stdout
