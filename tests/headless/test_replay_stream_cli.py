@@ -52,6 +52,18 @@ def test_a_leap_to_1e12_s_ends_with_every_status_due(work, tmp_path):
     assert json_lines(out.stdout)[-1]["frames"] == len(rows)
 
 
+def test_a_paced_replay_does_not_wait_out_a_leap_in_time(work, tmp_path):
+    """At 100x, a leap of 1e12 s would be waited out for 1e10 s; a paced replay waits at most a few."""
+    lines = (work / "gh.csv").read_text().split("\n")
+    rows = [i for i, line in enumerate(lines) if line[:1].isdigit()]
+    for k, i in enumerate(rows[-10:]):
+        lines[i] = f"{1e12 + k / 60:.6f}," + lines[i].split(",", 1)[1]
+    (tmp_path / "jump.csv").write_text("\n".join(lines))
+    out = padtune("replay", str(tmp_path / "jump.csv"), "--json", "--speed", "100", timeout=60)
+    assert out.returncode == 0, out.stderr
+    assert json_lines(out.stdout)[-1]["frames"] == len(rows)
+
+
 def test_a_lone_cr_in_a_raw_capture_reads_every_frame_as_the_live_decoder_does(work, tmp_path):
     lines = (work / "gh.raw").read_bytes().split(b"\n")
     (tmp_path / "cr.raw").write_bytes(b"\n".join(lines[:100]) + b"\r" + b"\n".join(lines[100:]))

@@ -35,7 +35,7 @@ from tui.headless.runner import DetectionRun, warn_on_stderr
 from tui.polarity_arg import add_polarity_arg
 
 PACE_CHUNK_S = 0.05  # a paced replay hands frames over in slices of this much recorded time
-MAX_WAIT_S = 1.0  # a paced replay waits at most this long for the next slice (a leap in time is skipped)
+MAX_WAIT_S = 5.0  # a paced replay waits at most this long for the next slice (a leap in time is skipped)
 ENGINES = ("python", "firmware")
 TRUNCATED = "the recording's last line was cut short (the writer was stopped mid-row)"
 
