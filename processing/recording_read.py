@@ -1,8 +1,14 @@
 """Reading padtune recordings (and raw captures of protocol lines) back into events, marks and metadata.
 
 The format is described in `processing.recording`; the names and types shared with the writer come from
-`processing.recording_format`. Parsing is pure; `read_recording` is the only function here that touches
-the file system. Damaged files raise `UserError` as `file:line: what`.
+`processing.recording_format`. Files are read in chunks of whole lines (`CHUNK_BYTES`), so memory stays
+bounded whatever the file's size: `open_recording(path)` gives a `RecordingStream` whose `chunks()` yields
+the events each chunk completed (what `replay` feeds detection as it goes); `read_recording(path)`
+collects them all into a `Recording` (what `tune` measures). The data rows between two stream rows are
+converted in one numpy `loadtxt` call; a stretch it refuses is read row by row, which names the damage.
+Raw captures go through `protocol.decoder.Decoder`, the live link's decoder, a chunk at a time.
+Damaged files raise `UserError` as `file:line: what`; no Python exception text reaches a message.
+Parsing is pure; `open_recording` is the only function here that opens a file.
 """
 
 from __future__ import annotations
@@ -10,7 +16,11 @@ from __future__ import annotations
 import dataclasses
 import math
 import os
+import re
+import stat
+from collections.abc import Callable, Iterator
 from pathlib import Path
+from typing import BinaryIO
 from urllib.parse import unquote
 
 import numpy as np
@@ -20,6 +30,7 @@ from protocol.errors import UserError
 from protocol.events import (
     BoardChanged,
     BoardInfo,
+    Event,
     FaultKind,
     FrameBlock,
     LinkFault,
@@ -28,7 +39,17 @@ from protocol.events import (
     Note,
     StreamForm,
 )
+from protocol.info import MAX_CHANNELS
 from protocol.rules import INT32_MAX, INT32_MIN
+
+CHUNK_BYTES = 1 << 22  # whole lines read and converted at a time (4 MiB: about 10,000 rows of 64 channels)
+RAW_CHUNK_BYTES = 1 << 20  # bytes of a raw capture handed to the decoder at a time
+MAX_LINE_BYTES = 1 << 20  # a recording's longest line (a 512-channel header of long names is far shorter)
+MAX_HELD_EVENTS = 10_000  # events before the first frame held back (see RecordingStream.chunks)
+MAX_COUNT = 1 << 31  # a fault's count, a frame index: what a 32-bit board can count to and then some
+# A mark row as `_parse_line` reads one: "#", blanks, "mark", then a space or the line end.
+_MARK_ROW = re.compile(rb"#[ \t\x0b\x0c]*mark(?:[ \r][^\n]*)?$")
+BOM = b"\xef\xbb\xbf"  # a UTF-8 byte order mark some editors put first; skipped
 
 
 def _parse_pairs(body: str) -> tuple[dict[str, str], str]:
@@ -42,7 +63,7 @@ def _parse_pairs(body: str) -> tuple[dict[str, str], str]:
     for token in body.split():
         key, sep, value = token.partition("=")
         if not sep:
-            raise ValueError(f"expected key=value, got {token!r}")
+            raise ValueError(f"expected key=value, got {token[:40]!r}")
         pairs[key] = unquote(value)
     return pairs, text
 
@@ -55,6 +76,63 @@ def info_from_fields(fields: dict[str, str], t_s: float) -> BoardInfo:
         return parse_info(dict(fields), t_s, cross_check=False)
     except InfoError as exc:
         raise ValueError(str(exc)) from None
+
+
+def _need(pairs: dict[str, str], key: str, kind: str) -> str:
+    if key not in pairs:
+        raise ValueError(f"a {kind} row needs {key}=")
+    return pairs[key]
+
+
+def _whole(value: str, what: str, low: int, high: int) -> int:
+    """A whole number from `low` to `high` (digits only: no Python limit or message reaches the user)."""
+    digits = value[1:] if value[:1] in "+-" else value
+    if not digits.isdigit() or not digits.isascii() or len(digits) > 12:
+        raise ValueError(f"{what} must be a whole number, got {value[:40]!r}")
+    number = int(value)
+    if not low <= number <= high:
+        raise ValueError(f"{what} must be from {low} to {high}, got {number}")
+    return number
+
+
+def _time(pairs: dict[str, str]) -> float:
+    """A stream row's host time in seconds (NaN when the row has none, as before)."""
+    value = pairs.get("t_s")
+    if value is None:
+        return math.nan
+    try:
+        t_s = float(value)
+    except ValueError:
+        raise ValueError(f"t_s must be a time in seconds, got {value[:40]!r}") from None
+    if not math.isfinite(t_s):
+        raise ValueError(f"t_s must be a finite time in seconds, got {value[:40]!r}")
+    return t_s
+
+
+def _choice(value: str, choices: type, what: str) -> object:
+    known = [m.value for m in choices]  # type: ignore[attr-defined]
+    if value not in known:
+        raise ValueError(f"unknown {what} {value[:40]!r} (known: {', '.join(known)})")
+    return choices(value)
+
+
+Rows = tuple[np.ndarray, np.ndarray, np.ndarray]  # t_s (n,), seq (n,), readings (n, channels)
+
+
+def check_rows(rows: list[str], width: int) -> Rows:
+    """Data rows -> arrays in one numpy call; ValueError for any value that is not right (a time that is
+    not finite, a seq or reading that is not a whole 32-bit number) or a row of another width."""
+    # numpy's C parser reads the whole stretch at once; readings are 32-bit integers, exact in float64,
+    # and checked to be whole below.
+    arr = np.loadtxt(rows, delimiter=",", dtype=np.float64, ndmin=2, comments=None)
+    if arr.shape[1] != width + 2:
+        raise ValueError("another number of columns")
+    ints = arr[:, 1:]
+    if not np.all(np.isfinite(arr[:, 0])) or np.any(ints != np.round(ints)):
+        raise ValueError("not whole numbers")
+    if ints.size and (ints.min() < INT32_MIN or ints.max() > INT32_MAX):
+        raise ValueError("out of range")  # a board's readings and seq are 32-bit (PROTOCOL.md)
+    return arr[:, 0].copy(), ints[:, 0].astype(np.int64), ints[:, 1:].astype(np.int64)
 
 
 class _Builder:
@@ -76,23 +154,24 @@ class _Builder:
         self.rows.append(line)
         self.linenos.append(lineno)
 
+    def add_bulk(self, rows: Rows) -> None:
+        """Rows converted in bulk (`check_rows` on a whole stretch), after any rows still held."""
+        self.close_block()
+        t_s, seq, readings = rows
+        self._append(FrameBlock(t_s=t_s, seq=seq, readings=readings, first_index=self.next_index))
+
     def close_block(self) -> None:
         if not self.rows:
             return
         try:
-            # numpy's C parser reads the whole stretch at once; readings are 32-bit integers, exact
-            # in float64, and checked to be whole below.
-            arr = np.loadtxt(self.rows, delimiter=",", dtype=np.float64, ndmin=2, comments=None)
-            ints = arr[:, 1:]
-            if not np.all(np.isfinite(arr[:, 0])) or np.any(ints != np.round(ints)):
-                raise ValueError("not whole numbers")
-            if ints.size and (ints.min() < INT32_MIN or ints.max() > INT32_MAX):
-                raise ValueError("out of range")  # a board's readings and seq are 32-bit (PROTOCOL.md)
+            assert self.width is not None
+            t_s, seq, readings = check_rows(self.rows, self.width)
         except ValueError:
             self._raise_for_bad_row()
-        block = FrameBlock(t_s=arr[:, 0].copy(), seq=ints[:, 0].astype(np.int64),
-                           readings=ints[:, 1:].astype(np.int64), first_index=self.next_index)
         self.rows, self.linenos = [], []
+        self._append(FrameBlock(t_s=t_s, seq=seq, readings=readings, first_index=self.next_index))
+
+    def _append(self, block: FrameBlock) -> None:
         self.next_index += len(block)
         self.rec.events.append(block)
 
@@ -102,7 +181,7 @@ class _Builder:
             try:
                 if not math.isfinite(float(cells[0])):
                     raise ValueError("time is not finite")
-                if not all(INT32_MIN <= int(c) <= INT32_MAX for c in cells[1:]):
+                if not all(len(c) <= 24 and INT32_MIN <= int(c) <= INT32_MAX for c in cells[1:]):
                     raise ValueError("out of range")
             except ValueError:
                 raise UserError(
@@ -114,61 +193,44 @@ class _Builder:
 
 def _stream_row(b: _Builder, kind: str, pairs: dict[str, str], text: str) -> None:
     rec = b.rec
-    t_s = float(pairs.get("t_s", "nan"))
+    if kind not in ("info", "note", "fault", "link", "board-changed", "form", "index", "mark"):
+        return  # unknown stream kinds come from a newer writer: skipped, the frames still read
+    t_s = _time(pairs)
     if kind == "info":
         rec.events.append(info_from_fields({k: v for k, v in pairs.items() if k != "t_s"}, t_s))
     elif kind == "note":
         rec.events.append(Note(t_s, text.strip()))
     elif kind == "fault":
-        rec.events.append(LinkFault(t_s, FaultKind(pairs["kind"]), int(pairs.get("count", 1)), text))
+        fault = _choice(_need(pairs, "kind", kind), FaultKind, "fault kind")
+        count = _whole(pairs.get("count", "1"), "a fault's count", 0, MAX_COUNT)
+        rec.events.append(LinkFault(t_s, fault, count, text))  # type: ignore[arg-type]
     elif kind == "link":
-        rec.events.append(LinkStatus(t_s, LinkState(pairs["state"]), pairs.get("port", ""), text))
+        state = _choice(_need(pairs, "state", kind), LinkState, "link state")
+        rec.events.append(LinkStatus(t_s, state, pairs.get("port", ""), text))  # type: ignore[arg-type]
     elif kind == "board-changed":
         old = pairs.get("old", "")
-        rec.events.append(BoardChanged(t_s, int(old) if old else None, int(pairs["channels"])))
+        channels = _whole(_need(pairs, "channels", kind), "channels", 1, MAX_CHANNELS)
+        rec.events.append(BoardChanged(t_s, _whole(old, "old", 0, MAX_CHANNELS) if old else None, channels))
     elif kind == "form":
         names = pairs.get("names", "")
-        rec.events.append(StreamForm(t_s, pairs["form"], tuple(names.split(",")) if names else (),
-                                     int(pairs.get("scale", 1)), pairs.get("time_column", "0") == "1", text))
+        name_list = tuple(names.split(",")) if names else ()
+        if len(name_list) > MAX_CHANNELS:
+            raise ValueError(f"a form row names {len(name_list)} channels; a board has at most "
+                             f"{MAX_CHANNELS}")
+        rec.events.append(StreamForm(t_s, _need(pairs, "form", kind), name_list,
+                                     _whole(pairs.get("scale", "1"), "scale", 1, MAX_COUNT),
+                                     pairs.get("time_column", "0") == "1", text))
     elif kind == "index":
-        b.next_index = int(pairs["value"])
+        b.next_index = _whole(_need(pairs, "value", kind), "an index", 0, MAX_COUNT)
     elif kind == "mark":
-        mkind = pairs.get("kind", "note")
-        if mkind not in MARK_KINDS:
-            raise ValueError(f"unknown mark kind {mkind!r}")
-        rec.marks.append(Mark(t_s, mkind, pairs.get("channel"), text))
-    # Unknown stream kinds come from a newer writer: skipped, the frames still read.
+        rec.marks.append(_mark(pairs, text, t_s))
 
 
-def parse_recording_text(text: str, where: str = "<recording>") -> Recording:
-    """Parse a padtune recording. Raises UserError `where:line: what is wrong` for a damaged file."""
-    lines = text.split("\n")
-    truncated = bool(lines) and lines[-1] != ""
-    lines = lines[:-1]  # the last piece is empty for a whole file, or a partial row to drop
-    if not lines or not lines[0].startswith(FORMAT_PREFIX):
-        raise UserError(f"{where}: not a padtune recording (first line must be {FORMAT_LINE!r})")
-    try:
-        version = int(lines[0][len(FORMAT_PREFIX):].strip())
-    except ValueError:
-        raise UserError(f"{where}:1: cannot read the format version in {lines[0]!r}") from None
-    if version != 1:
-        raise UserError(f"{where}:1: recording format v{version} is newer than this padtune reads (v1)")
-    rec = Recording(path=where, version=version, truncated=truncated)
-    b = _Builder(rec, where)
-    in_meta = True
-    for lineno, raw in enumerate(lines[1:], start=2):
-        line = raw.rstrip("\r")
-        try:
-            in_meta = _parse_line(b, lineno, line, in_meta)
-        except (ValueError, KeyError) as exc:
-            raise UserError(
-                f"{where}:{lineno}: {exc}; the file is damaged or not a padtune recording"
-            ) from None
-    try:
-        b.close_block()
-    except ValueError as exc:
-        raise UserError(f"{where}: {exc}") from None
-    return rec
+def _mark(pairs: dict[str, str], text: str, t_s: float) -> Mark:
+    mkind = pairs.get("kind", "note")
+    if mkind not in MARK_KINDS:
+        raise ValueError(f"unknown mark kind {mkind[:40]!r}")
+    return Mark(t_s, mkind, pairs.get("channel"), text)
 
 
 def _parse_line(b: _Builder, lineno: int, line: str, in_meta: bool) -> bool:
@@ -182,10 +244,10 @@ def _parse_line(b: _Builder, lineno: int, line: str, in_meta: bool) -> bool:
             key, _, value = body.partition("=")
             rec.meta[key] = unquote(value)
             if key == "first_index":
-                b.next_index = int(value)
+                b.next_index = _whole(value, "first_index", 0, MAX_COUNT)
             return True
         if kind == "first_index" or body.startswith("first_index="):
-            b.next_index = int(body.partition("=")[2])
+            b.next_index = _whole(body.partition("=")[2], "first_index", 0, MAX_COUNT)
             return in_meta
         b.close_block()
         pairs, text = _parse_pairs(rest)
@@ -193,6 +255,10 @@ def _parse_line(b: _Builder, lineno: int, line: str, in_meta: bool) -> bool:
         return in_meta
     if line.startswith(HEADER_START):
         b.close_block()
+        columns = line.count(",") - 1
+        if columns > MAX_CHANNELS:
+            raise ValueError(f"the header names {columns} channels; a board has at most {MAX_CHANNELS} "
+                             "(PROTOCOL.md)")
         rec.names = tuple(line.split(",")[2:])
         if not rec.names or not all(rec.names):
             raise ValueError(f"the header {line[:60]!r} must name every channel column after t_s,seq")
@@ -202,56 +268,381 @@ def _parse_line(b: _Builder, lineno: int, line: str, in_meta: bool) -> bool:
     return False
 
 
+def _damaged(where: str, lineno: int, exc: Exception) -> UserError:
+    return UserError(f"{where}:{lineno}: {exc}; the file is damaged or not a padtune recording")
+
+
+class _CsvReader:
+    """The text of a padtune recording, whole lines at a time, into events (`feed`), then `finish`."""
+
+    def __init__(self, rec: Recording, where: str) -> None:
+        self.rec = rec
+        self.where = where
+        self.b = _Builder(rec, where)
+        self.in_meta = True
+        self.lineno = 1  # the number of the next line to read
+        self.started = False
+
+    def feed(self, text: str) -> None:
+        """Whole lines (each ending in LF)."""
+        if "\r" in text:  # CRLF line ends (a recording passed through another system)
+            text = "\n".join(line.rstrip("\r") for line in text.split("\n"))
+        lines = text.split("\n")
+        lines.pop()  # the empty piece after the last LF
+        first = 0
+        if not self.started:
+            self._format_line(lines[0] if lines else "")
+            self.started, first = True, 1
+        i, n = first, len(lines)
+        b = self.b
+        while i < n:
+            if _is_data(lines[i]) and b.width is not None:
+                j = i + 1
+                while j < n and _is_data(lines[j]):
+                    j += 1
+                self._data(lines, i, j)
+                i = j
+                continue
+            line = lines[i].rstrip("\r")
+            try:
+                self.in_meta = _parse_line(b, self.lineno + i, line, self.in_meta)
+            except (ValueError, KeyError, IndexError, OverflowError) as exc:
+                raise _damaged(self.where, self.lineno + i, exc) from None
+            i += 1
+        self.lineno += n
+        self.b.close_block()
+
+    def _data(self, lines: list[str], i: int, j: int) -> None:
+        """Data rows i..j-1: in one numpy call, else row by row (which finds and names the damage)."""
+        b = self.b
+        assert b.width is not None
+        try:
+            rows = check_rows(lines[i:j], b.width)
+        except ValueError:
+            pass
+        else:
+            b.add_bulk(rows)
+            return
+        for k in range(i, j):
+            try:
+                b.add_row(self.lineno + k, lines[k])
+            except ValueError as exc:
+                raise _damaged(self.where, self.lineno + k, exc) from None
+        b.close_block()
+
+    def _format_line(self, line: str) -> None:
+        where = self.where
+        if not line.startswith(FORMAT_PREFIX):
+            raise UserError(f"{where}: not a padtune recording (first line must be {FORMAT_LINE!r})")
+        version_text = line[len(FORMAT_PREFIX):].strip()
+        if not version_text.isdigit() or len(version_text) > 6:
+            raise UserError(f"{where}:1: cannot read the format version in {line[:60]!r}")
+        version = int(version_text)
+        if version != 1:
+            raise UserError(f"{where}:1: recording format v{version} is newer than this padtune reads (v1)")
+        self.rec.version = version
+
+    def finish(self) -> None:
+        if not self.started:
+            raise UserError(f"{self.where}: not a padtune recording (first line must be {FORMAT_LINE!r})")
+
+
+def _is_data(line: str) -> bool:
+    """A data row starts with its time (a digit, a sign or a point); anything else is read row by row."""
+    return bool(line) and line[0] in "0123456789-+." and not line.startswith(HEADER_START)
+
+
+def _csv_events(rec: Recording, where: str, pieces: Iterator[tuple[bytes, int]]) -> Iterator[list[Event]]:
+    """Whole-line byte pieces (with their offset in the file) of a recording -> the events of each."""
+    reader = _CsvReader(rec, where)
+    for piece, offset in pieces:
+        try:
+            text = piece.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise UserError(f"{where}: not valid UTF-8 at byte {offset + exc.start}: the file is "
+                            "damaged") from None
+        reader.feed(text)
+        events, rec.events = rec.events, []
+        if events:
+            yield events
+    reader.finish()
+
+
+def parse_recording_text(text: str, where: str = "<recording>") -> Recording:
+    """Parse a padtune recording held in memory. Raises UserError `where:line: what is wrong` for a
+    damaged file; a partial last line is dropped (`truncated`)."""
+    data = text.encode("utf-8", "surrogateescape")
+    cut = data.rfind(b"\n") + 1
+    rec = Recording(path=where, version=None, truncated=cut < len(data))
+    events: list[Event] = []
+    for chunk in _csv_events(rec, where, iter([(data[:cut], 0)] if cut else [])):
+        events.extend(chunk)
+    rec.events = events
+    return rec
+
+
 def parse_raw_capture(data: bytes, where: str = "<capture>", rate_hz: float | None = None) -> Recording:
     """A raw capture of protocol lines (v1, or a plain form) through the protocol's decoder.
 
     Times are made up: frame n arrives at n / rate (`rate_hz`, else the info line's rate, else 100 Hz);
     other events at the time of the frame that follows them. A partial last line is dropped.
     """
-    from protocol.decoder import Decoder  # the decoder owns the wire format
-
-    decoder = Decoder()
     rec = Recording(path=where, version=None, truncated=bool(data) and not data.endswith((b"\n", b"\r")))
-    # The end of the capture lets go of lines held while a plain form is decided.
-    decoded = decoder.feed(data, 0.0) + decoder.flush_hold(0.0)
-    rate, frames = rate_hz, 0
-    names: tuple[str, ...] = ()
-    for event in decoded:
-        t_s = frames / (rate or 100.0)
-        if isinstance(event, FrameBlock):
-            made_up_t_s = (frames + np.arange(len(event))) / (rate or 100.0)
-            rec.events.append(dataclasses.replace(event, t_s=made_up_t_s))
-            frames += len(event)
-            continue
-        if isinstance(event, BoardInfo) and event.rate_hz and rate_hz is None:
-            rate = event.rate_hz
-        elif isinstance(event, StreamForm):
-            names = event.names
-        rec.events.append(dataclasses.replace(event, t_s=t_s))
-    rec.names = decoder.info.names if decoder.info and decoder.info.names else names
+    raw = _RawReader(rec, rate_hz)
+    rec.events = raw.feed(data) + raw.finish()
     if rec.frames == 0:
-        raise UserError(f"{where}: no frames found: not a padtune recording nor a capture of protocol lines")
+        raise UserError(_no_frames_raw(where))
     return rec
 
 
-def read_recording(path: str | os.PathLike[str], rate_hz: float | None = None) -> Recording:
-    """Read a padtune recording or a raw capture of protocol lines (UserError for anything unreadable)."""
+def _no_frames_raw(where: str) -> str:
+    return f"{where}: no frames found: not a padtune recording nor a capture of protocol lines"
+
+
+class _RawReader:
+    """Raw capture bytes through the live link's decoder, with made-up times (see `parse_raw_capture`)."""
+
+    def __init__(self, rec: Recording, rate_hz: float | None) -> None:
+        from protocol.decoder import Decoder  # the decoder owns the wire format
+
+        self.rec = rec
+        self.decoder = Decoder()
+        self.rate_hz, self.rate = rate_hz, rate_hz
+        self.frames = 0
+        self.names: tuple[str, ...] = ()
+
+    def feed(self, data: bytes) -> list[Event]:
+        return self._timed(self.decoder.feed(data, 0.0))
+
+    def finish(self) -> list[Event]:
+        """The end of the capture lets go of lines held while a plain form is decided."""
+        events = self._timed(self.decoder.flush_hold(0.0))
+        info = self.decoder.info
+        self.rec.names = info.names if info and info.names else self.names
+        return events
+
+    def _timed(self, decoded: list[Event]) -> list[Event]:
+        out: list[Event] = []
+        for event in decoded:
+            t_s = self.frames / (self.rate or 100.0)
+            if isinstance(event, FrameBlock):
+                if event.channels > MAX_CHANNELS:
+                    raise UserError(f"{self.rec.path}: frames of {event.channels} values; a board has at "
+                                    f"most {MAX_CHANNELS} channels (PROTOCOL.md): not a capture of protocol "
+                                    "lines")
+                made_up_t_s = (self.frames + np.arange(len(event))) / (self.rate or 100.0)
+                out.append(dataclasses.replace(event, t_s=made_up_t_s))
+                self.frames += len(event)
+                continue
+            if isinstance(event, BoardInfo) and event.rate_hz and self.rate_hz is None:
+                self.rate = event.rate_hz
+            elif isinstance(event, StreamForm):
+                self.names = event.names
+            out.append(dataclasses.replace(event, t_s=t_s))
+        return out
+
+
+class RecordingStream:
+    """An open recording or raw capture, read a chunk at a time (`chunks()`), in bounded memory.
+
+    Known at once: `path`, `version` (None for a raw capture), `truncated` (the last line is partial and
+    is dropped), `marks` (a padtune recording's marks, found by a first pass that keeps only them, so
+    every touch can be judged against them as it is found). `meta` and `names` fill in as chunks are
+    read. Use as a context manager, or `close()`.
+    """
+
+    def __init__(self, file: BinaryIO, where: str, size_bytes: int, rate_hz: float | None = None,
+                 chunk_bytes: int = CHUNK_BYTES) -> None:
+        self._file = file
+        self.where = where
+        self.chunk_bytes = chunk_bytes
+        head = file.read(len(BOM) + len(FORMAT_PREFIX))
+        self._skip = len(BOM) if head.startswith(BOM) else 0
+        self.is_csv = head[self._skip:].startswith(FORMAT_PREFIX.encode())
+        last = b""
+        if size_bytes:
+            file.seek(size_bytes - 1)
+            last = file.read(1)
+        ends = (b"\n",) if self.is_csv else (b"\n", b"\r")
+        self.rec = Recording(path=where, version=None, truncated=bool(size_bytes) and last not in ends)
+        self.rate_hz = rate_hz
+        self.marks: list[Mark] = self._find_marks() if self.is_csv else []
+        self.frames = 0
+
+    @property
+    def path(self) -> str:
+        return self.where
+
+    @property
+    def truncated(self) -> bool:
+        return self.rec.truncated
+
+    @property
+    def meta(self) -> dict[str, str]:
+        return self.rec.meta
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        return self.rec.names
+
+    def __enter__(self) -> RecordingStream:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def close(self) -> None:
+        self._file.close()
+
+    def _pieces(self) -> Iterator[tuple[bytes, int]]:
+        """The file in pieces of whole lines (LF), each with its byte offset; the partial last line is
+        not given. A line longer than MAX_LINE_BYTES is refused (memory stays bounded)."""
+        f = self._file
+        f.seek(self._skip)
+        carry, offset, lineno = b"", self._skip, 1
+        while True:
+            data = f.read(self.chunk_bytes)
+            if not data:
+                return
+            buf = carry + data if carry else data
+            cut = buf.rfind(b"\n") + 1
+            if cut:
+                yield buf[:cut], offset
+                lineno += buf.count(b"\n", 0, cut)
+                offset += cut
+            carry = buf[cut:]
+            if len(carry) > MAX_LINE_BYTES:
+                raise UserError(f"{self.where}:{lineno}: a line longer than {MAX_LINE_BYTES} bytes: the file "
+                                "is damaged or not a padtune recording")
+
+    def _find_marks(self) -> list[Mark]:
+        """Every mark row, read on their own (a first pass over the file that converts nothing else:
+        `bytes.find` skips the data rows, which never hold the word)."""
+        rec = Recording(path=self.where, version=None)
+        b = _Builder(rec, self.where)
+        lineno = 1
+        for piece, _ in self._pieces():
+            counted = 0  # line ends of this piece counted so far
+            pos = piece.find(b"mark")
+            while pos >= 0:
+                start = piece.rfind(b"\n", 0, pos) + 1
+                end = piece.find(b"\n", pos)
+                found = _MARK_ROW.match(piece, start, end)
+                if found is not None:
+                    lineno += piece.count(b"\n", counted, start)
+                    counted = start
+                    self._mark_row(b, found.group(0), lineno)
+                pos = piece.find(b"mark", end)
+            lineno += piece.count(b"\n", counted)
+        return rec.marks
+
+    def _mark_row(self, b: _Builder, line: bytes, lineno: int) -> None:
+        body = line.decode("utf-8", "replace").rstrip("\r")[1:].strip()
+        try:
+            pairs, text = _parse_pairs(body.partition(" ")[2])
+            _stream_row(b, "mark", pairs, text)
+        except (ValueError, KeyError, IndexError, OverflowError) as exc:
+            raise _damaged(self.where, lineno, exc) from None
+
+    def chunks(self) -> Iterator[list[Event]]:
+        """The events in stream order, a chunk's worth at a time. Raises UserError for damage where it
+        is found, and at the end for a recording without a single frame (one cut inside its header)."""
+        source = _csv_events(self.rec, self.where, self._pieces()) if self.is_csv else self._raw_chunks()
+        held: list[Event] = []
+        for events in source:
+            self.frames += sum(len(e) for e in events if isinstance(e, FrameBlock))
+            if not self.frames:
+                # Nothing is given before the first frame (up to a bound): a file without one is refused
+                # before a front end has said anything about it.
+                held.extend(events)
+                if len(held) < MAX_HELD_EVENTS:
+                    continue
+            if held:
+                events, held = held + events, []
+            yield events
+        if self.frames == 0:
+            raise UserError(self._no_frames())
+
+    def _no_frames(self) -> str:
+        if not self.is_csv:
+            return _no_frames_raw(self.where)
+        if not self.rec.names:
+            return (f"{self.where}: the recording ends before its header row (cut short while it was "
+                    "written?): no frames to read")
+        return f"{self.where}: the recording holds no frames (a header row and no data rows)"
+
+    def _raw_chunks(self) -> Iterator[list[Event]]:
+        raw = _RawReader(self.rec, self.rate_hz)
+        f = self._file
+        f.seek(0)
+        while True:
+            data = f.read(RAW_CHUNK_BYTES)
+            if not data:
+                break
+            events = raw.feed(data)
+            if events:
+                yield events
+        events = raw.finish()
+        if events:
+            yield events
+
+    def read_all(self) -> Recording:
+        """The whole recording in memory (what `tune` measures)."""
+        events: list[Event] = []
+        for chunk in self.chunks():
+            events.extend(chunk)
+        rec = self.rec
+        rec.events = events
+        if self.is_csv:
+            rec.marks = list(self.marks)
+        return rec
+
+
+def open_recording(path: str | os.PathLike[str], rate_hz: float | None = None,
+                   chunk_bytes: int = CHUNK_BYTES) -> RecordingStream:
+    """Open a padtune recording or a raw capture for reading in chunks (UserError for anything that is not
+    a readable regular file: a folder, a device such as /dev/zero, a FIFO that may never end)."""
     p = Path(path)
-    if p.exists() and not p.is_dir() and not p.is_file():
-        # A device or a pipe (/dev/zero, a FIFO) may never end: a recording is a file on disk.
-        raise UserError(f"{p}: not a regular file; record the board to a file first (padtune record)")
     try:
-        data = p.read_bytes()
+        # O_NONBLOCK: opening a FIFO must not wait for a writer; it is refused below.
+        fd = os.open(p, os.O_RDONLY | os.O_NONBLOCK | getattr(os, "O_CLOEXEC", 0))
     except FileNotFoundError:
         raise UserError(f"{p}: no such file") from None
     except IsADirectoryError:
         raise UserError(f"{p}: is a folder, not a recording") from None
     except OSError as exc:
         raise UserError(f"{p}: cannot read: {exc.strerror}") from None
-    if data.startswith(FORMAT_PREFIX.encode()):
-        try:
-            text = data.decode("utf-8")
-        except UnicodeDecodeError as exc:
-            raise UserError(f"{p}: not valid UTF-8 at byte {exc.start}: the file is damaged") from None
-        return parse_recording_text(text, str(p))
-    return parse_raw_capture(data, str(p), rate_hz)
+    try:
+        st = os.fstat(fd)
+        if stat.S_ISDIR(st.st_mode):
+            raise UserError(f"{p}: is a folder, not a recording")
+        if not stat.S_ISREG(st.st_mode):
+            # A device or a pipe (/dev/zero, a FIFO) may never end: a recording is a file on disk.
+            raise UserError(f"{p}: not a regular file; record the board to a file first (padtune record)")
+        os.set_blocking(fd, True)
+        file = os.fdopen(fd, "rb", buffering=0)
+    except BaseException:
+        os.close(fd)
+        raise
+    try:
+        return RecordingStream(file, str(p), st.st_size, rate_hz, chunk_bytes)
+    except OSError as exc:
+        file.close()
+        raise UserError(f"{p}: cannot read: {exc.strerror}") from None
+    except BaseException:
+        file.close()
+        raise
+
+
+def read_recording(path: str | os.PathLike[str], rate_hz: float | None = None) -> Recording:
+    """Read a padtune recording or a raw capture of protocol lines (UserError for anything unreadable,
+    or without a single frame)."""
+    with open_recording(path, rate_hz) as stream:
+        return _reading(stream.where, stream.read_all)
+
+
+def _reading(where: str, read: Callable[[], Recording]) -> Recording:
+    try:
+        return read()
+    except OSError as exc:
+        raise UserError(f"{where}: cannot read: {exc.strerror}") from None

@@ -13,10 +13,12 @@ from __future__ import annotations
 
 import argparse
 import time
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from typing import Any
 
-from processing.recording import read_recording
+import numpy as np
+
+from processing.recording_read import RecordingStream, open_recording
 from processing.session import Session
 from protocol.errors import UserError
 from protocol.events import Event, FrameBlock
@@ -33,7 +35,9 @@ from tui.headless.runner import DetectionRun, warn_on_stderr
 from tui.polarity_arg import add_polarity_arg
 
 PACE_CHUNK_S = 0.05  # a paced replay hands frames over in slices of this much recorded time
+MAX_WAIT_S = 5.0  # a paced replay waits at most this long for the next slice (a leap in time is skipped)
 ENGINES = ("python", "firmware")
+TRUNCATED = "the recording's last line was cut short (the writer was stopped mid-row)"
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -61,22 +65,76 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.set_defaults(func=run)
 
 
-def paced(events: list[Event], slice_s: float | None) -> Iterator[tuple[list[Event], float]]:
-    """(events, recorded time) in stream order; FrameBlocks cut into `slice_s` slices if given."""
+def paced(events: Iterable[Event], slice_s: float | None) -> Iterator[tuple[list[Event], float]]:
+    """(events, recorded time) in stream order; FrameBlocks cut into `slice_s` slices if given.
+
+    A slice still open at the end of a block carries on into the next block when that one continues it
+    (a recording is read in chunks: where a chunk ends says nothing about the slices)."""
+    held: FrameBlock | None = None  # the open slice's frames at the end of the last block
     for event in events:
-        if isinstance(event, FrameBlock) and slice_s and len(event) > 1:
-            t = event.t_s
-            start = 0
-            while start < len(event):
-                stop = int(start + max(1, (t[start:] < t[start] + slice_s).sum()))
-                board_time = None if event.board_time is None else event.board_time[start:stop]
-                yield [FrameBlock(t[start:stop], event.seq[start:stop], event.readings[start:stop],
-                                  event.first_index + start, board_time)], float(t[stop - 1])
-                start = stop
-        elif isinstance(event, FrameBlock):
+        if isinstance(event, FrameBlock) and slice_s:
+            if held is not None and _continues(held, event):
+                event = _joined(held, event)
+            elif held is not None:
+                yield [held], float(held.t_s[-1])
+            held = None
+            for piece, closed in _slices(event, slice_s):
+                if closed:
+                    yield [piece], float(piece.t_s[-1])
+                else:
+                    held = piece
+            continue
+        if held is not None:
+            yield [held], float(held.t_s[-1])
+            held = None
+        if isinstance(event, FrameBlock):
             yield [event], float(event.t_s[-1]) if len(event) else 0.0
         else:
             yield [event], float(event.t_s)
+    if held is not None:
+        yield [held], float(held.t_s[-1])
+
+
+def _slices(block: FrameBlock, slice_s: float) -> Iterator[tuple[FrameBlock, bool]]:
+    """(slice, closed): each slice from its first frame to the frames less than `slice_s` later; the
+    last is not closed when every frame after its first is inside its span (more may follow)."""
+    t = block.t_s
+    ordered = len(t) < 2 or bool(np.all(t[1:] >= t[:-1]))
+    start = 0
+    while start < len(block):
+        if ordered:  # the same count as below, in log time
+            stop = max(start + 1, int(np.searchsorted(t, t[start] + slice_s, "left")))
+        else:
+            stop = int(start + max(1, (t[start:] < t[start] + slice_s).sum()))
+        board_time = None if block.board_time is None else block.board_time[start:stop]
+        piece = FrameBlock(t[start:stop], block.seq[start:stop], block.readings[start:stop],
+                           block.first_index + start, board_time)
+        yield piece, stop < len(block)
+        start = stop
+
+
+def _continues(a: FrameBlock, b: FrameBlock) -> bool:
+    return (b.first_index == a.first_index + len(a) and a.channels == b.channels
+            and a.board_time is None and b.board_time is None
+            and a.board_states is None and b.board_states is None)
+
+
+def _joined(a: FrameBlock, b: FrameBlock) -> FrameBlock:
+    return FrameBlock(np.concatenate([a.t_s, b.t_s]), np.concatenate([a.seq, b.seq]),
+                      np.concatenate([a.readings, b.readings]), a.first_index)
+
+
+def _flat(chunks: Iterable[list[Event]]) -> Iterator[Event]:
+    for chunk in chunks:
+        yield from chunk
+
+
+def _told(stream: RecordingStream) -> Iterator[Event]:
+    """The stream's events; a cut last line is told on stderr once the first chunk proved readable."""
+    for i, chunk in enumerate(stream.chunks()):
+        if i == 0 and stream.truncated:
+            warn_on_stderr(TRUNCATED)
+        yield from chunk
 
 
 def run(args: argparse.Namespace) -> int:
@@ -88,23 +146,33 @@ def _run(args: argparse.Namespace) -> int:
         return _against(args)
     profile = load_profile_arg(args.profile)
     factory = _engine(args.engine)
-    rec = read_recording(args.file, rate_hz=args.rate)
-    session = Session(profile, polarity=args.polarity, engine_factory=factory)
-    run_ = DetectionRun(session, make_output(args.json), origin_t_s=0.0, every_s=args.every, marks=rec.marks)
-    if rec.truncated:
-        run_.output.note(0.0, "the recording's last line was cut short (the writer was stopped mid-row)")
+    with open_recording(args.file, rate_hz=args.rate) as stream:
+        return _replay(args, stream, Session(profile, polarity=args.polarity, engine_factory=factory))
+
+
+def _replay(args: argparse.Namespace, stream: RecordingStream, session: Session) -> int:
+    """Feed the recording chunk by chunk as it is read (bounded memory whatever its size)."""
+    run_ = DetectionRun(session, make_output(args.json), origin_t_s=0.0, every_s=args.every,
+                        marks=stream.marks)
     wall0 = time.monotonic()
     first_t: float | None = None
     last_t = 0.0
+    told = False
     with StopFlag() as stop:
         # Slices keep a paced replay smooth and put each status at its recorded time.
         slice_s = PACE_CHUNK_S if args.speed > 0 else (args.every / 4 if args.every else None)
-        for batch, t_s in paced(rec.events, slice_s):
+        for batch, t_s in paced(_flat(stream.chunks()), slice_s):
             if stop.stopped:
                 break
+            if stream.truncated and not told:  # told once the file proved readable, before any event
+                run_.output.note(0.0, TRUNCATED)
+                told = True
             if args.speed > 0:
                 first_t = t_s if first_t is None else first_t
                 delay = (t_s - first_t) / args.speed - (time.monotonic() - wall0)
+                if delay > MAX_WAIT_S:  # a leap in recorded time is not waited out
+                    wall0 -= delay - MAX_WAIT_S
+                    delay = MAX_WAIT_S
                 if delay > 0:
                     time.sleep(delay)
             last_t = max(last_t, t_s)
@@ -134,12 +202,10 @@ def _against(args: argparse.Namespace) -> int:
     profile_a, profile_b = load_profile_arg(args.profile), load_profile_arg(args.against)
     assert profile_a is not None and profile_b is not None
     factory = _engine(args.engine)
-    rec = read_recording(args.file, rate_hz=args.rate)
-    run_ = AgainstRun(profile_a, profile_b, rec.marks, polarity=args.polarity, engine_factory=factory)
-    if rec.truncated:
-        warn_on_stderr("the recording's last line was cut short (the writer was stopped mid-row)")
-    with StopFlag() as stop:
-        last_t = feed_all(run_, paced(rec.events, None), lambda: stop.stopped)
+    with open_recording(args.file, rate_hz=args.rate) as stream:
+        run_ = AgainstRun(profile_a, profile_b, stream.marks, polarity=args.polarity, engine_factory=factory)
+        with StopFlag() as stop:
+            last_t = feed_all(run_, paced(_told(stream), None), lambda: stop.stopped)
     write = write_json if args.json else write_human
     write(run_, args.profile, args.against, last_t)
     return 0

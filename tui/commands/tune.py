@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -22,9 +23,11 @@ from processing.settings import LIMIT_KEYS
 from processing.suggest import Refusal
 from processing.tuning import KeyResult, TuneResult, limits_from_result, tune_recording, with_limits
 from protocol.errors import UserError
+from protocol.printable import printable
 from tui.dash import refuse_dash
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import frame_rate, load_profile_arg, percentage, quiet_broken_pipe
+from tui.headless.runner import warn_on_stderr
 from tui.headless.tuning import CROSSTALK_RULE, couplings_of, crosstalk_rows, result_rows
 
 
@@ -71,6 +74,10 @@ def run(args: argparse.Namespace) -> int:
         raise UserError(f"{out}: a profile is a TOML file; end the name in .toml")
     if out.is_dir():
         raise UserError(f"{out}: is a folder; give the profile's file name")
+    for given in (args.output, args.report):
+        if given is not None and _same_file(given, args.file):  # never lose what was recorded
+            raise UserError(f"{given}: is the recording being tuned; write the profile or the report to "
+                            "another file")
     if args.report:
         from tui.report import check_report_path, require_matplotlib
 
@@ -79,12 +86,15 @@ def run(args: argparse.Namespace) -> int:
     base = load_profile_arg(args.profile)
     rec = read_recording(args.file, rate_hz=args.rate)
     result = tune_recording(rec, base)
+    if rec.truncated:  # measured without it: say so, as replay does
+        warn_on_stderr(f"{printable(rec.path)}: the last line was cut short (the writer was stopped mid-row) "
+                       "and was dropped; the rows before it were measured")
     if args.limits:
         common, own = limits_from_result(result, rec.arrays()[2], args.baseline_margin / 100)
         result.profile = with_limits(result.profile, common, own)
     missing = result.unmeasured()
     if missing and not args.partial:  # the table and the reasons, but no profile that looks tuned
-        quiet_broken_pipe(lambda: _show(args, result, None), code_on_pipe=1)
+        quiet_broken_pipe(lambda: _show(args, result, None, rec.truncated), code_on_pipe=1)
         _say_unmeasured(missing, written=False)
         return 1
     page = None
@@ -97,10 +107,17 @@ def run(args: argparse.Namespace) -> int:
         from tui.report.html import write_page
 
         write_page(args.report, page)
-    code = quiet_broken_pipe(lambda: _show(args, result, out))
+    code = quiet_broken_pipe(lambda: _show(args, result, out, rec.truncated))
     if missing:
         _say_unmeasured(missing, written=True)
     return code
+
+
+def _same_file(a: str, b: str) -> bool:
+    try:
+        return os.path.samefile(a, b)
+    except OSError:  # one of them does not exist (yet): not the same file
+        return False
 
 
 def _say_unmeasured(missing: list[KeyResult], written: bool) -> None:
@@ -117,7 +134,7 @@ def _say_unmeasured(missing: list[KeyResult], written: bool) -> None:
               "or give --partial to write them marked measured = false", file=sys.stderr)
 
 
-def _show(args: argparse.Namespace, result: TuneResult, out: Path | None) -> int:
+def _show(args: argparse.Namespace, result: TuneResult, out: Path | None, truncated: bool = False) -> int:
     if args.json:
         limits = {k: getattr(result.profile.limits, k) for k in LIMIT_KEYS}
         found = couplings_of(result)
@@ -128,7 +145,7 @@ def _show(args: argparse.Namespace, result: TuneResult, out: Path | None) -> int
         sys.stdout.write(json.dumps({"type": "tune", "source": result.source,
                                      "profile": str(out) if out is not None else None,
                                      "from_marks": result.from_marks, "rate_hz": result.rate_hz,
-                                     "frames": result.frames, "limits": limits,
+                                     "frames": result.frames, "truncated": truncated, "limits": limits,
                                      "unmeasured": [k.name for k in result.unmeasured()],
                                      "channels": rows, "crosstalk": crosstalk_rows(result, found)}) + "\n")
     else:

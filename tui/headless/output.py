@@ -20,6 +20,8 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
+from protocol.printable import printable
+
 
 def _clean(value: Any) -> Any:
     """JSON-safe: numpy scalars to Python, NaN/inf to null, tuples to lists."""
@@ -128,7 +130,7 @@ def _fmt(value: Any, digits: int = 1) -> str:
         return "-"
     if isinstance(value, float):
         return f"{value:.{digits}f}"
-    return str(value)
+    return printable(str(value), double_backslash=False)  # names come from boards and files
 
 
 # Verdicts are words first; colour only helps on a terminal (and goes away under NO_COLOR or a pipe).
@@ -179,7 +181,7 @@ class HumanOutput:
     def _line(self, t_s: float, word: str, style: str, rest: str) -> None:
         text = Text(f"{t_s:9.3f} s  ")
         text.append(f"{word:<8}", style=style)
-        text.append(" " + rest)
+        text.append(" " + printable(rest, double_backslash=False))  # names, notes, details: a board's text
         self.console.print(text)
 
     def hello(self, t_s: float, info: Mapping[str, Any]) -> None:

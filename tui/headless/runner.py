@@ -246,8 +246,7 @@ class DetectionRun:
             self._next_status_t = self.every_s
         if t >= self._next_status_t:
             self.output.status(t, self.status_rows())
-            while self._next_status_t <= t:
-                self._next_status_t += self.every_s
+            self._next_status_t = next_status_t(self._next_status_t, t, self.every_s)
 
     def status_rows(self) -> list[dict[str, Any]]:
         """Every channel now. `provisional`: its settings come from its noise, not a profile or an edit;
@@ -290,6 +289,27 @@ class DetectionRun:
         self.output.summary(self._rel(now_t_s), summary)
         self.output.close()
         return summary
+
+
+# A status is due every `every_s`; after a jump in time of more steps than this, the next one is due an
+# interval after the jump instead of stepping through every missed one (a recording whose time leaps to
+# 1e12 s must not step a trillion times).
+STATUS_CATCH_UP_STEPS = 1000
+
+
+def next_status_t(due_t_s: float, now_t_s: float, every_s: float) -> float:
+    """When the status after the one just given at `now_t_s` is due (strictly after `now_t_s`)."""
+    if now_t_s - due_t_s < STATUS_CATCH_UP_STEPS * every_s:
+        while due_t_s <= now_t_s:
+            moved = due_t_s + every_s
+            if moved == due_t_s:  # so far out that a step no longer changes the float
+                break
+            due_t_s = moved
+    if due_t_s <= now_t_s:
+        due_t_s = now_t_s + every_s
+        if due_t_s <= now_t_s:
+            due_t_s = math.nextafter(now_t_s, math.inf)
+    return due_t_s
 
 
 def link_fault_text(event: Event) -> str | None:
