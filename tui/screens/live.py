@@ -46,8 +46,8 @@ from tui.widgets.channel_table import ChannelTable
 from tui.widgets.detail_panel import ZOOM_KEYS, DetailPanel
 from tui.widgets.edit_bar import EditBar, EditBarView
 from tui.widgets.event_log import EventLog
-from tui.widgets.kept_lines import keep_lines
 from tui.widgets.groups_panel import GroupsPanel
+from tui.widgets.kept_lines import keep_lines
 from tui.widgets.link_strip import LinkStrip
 from tui.words import plural
 

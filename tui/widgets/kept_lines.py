@@ -14,10 +14,14 @@ the opacity and the hover style (links are styled on hover). All are part of the
 
 from __future__ import annotations
 
+from typing import TypeVar
+
 from textual._styles_cache import StylesCache
 from textual.geometry import Region
 from textual.strip import Strip
 from textual.widget import Widget
+
+W = TypeVar("W", bound=Widget)
 
 
 class KeptLinesCache(StylesCache):
@@ -46,7 +50,7 @@ class KeptLinesCache(StylesCache):
         return strips
 
 
-def keep_lines(widget: Widget) -> Widget:
+def keep_lines(widget: W) -> W:
     """Give `widget` a styles cache that keeps its last pass; returns the widget."""
     widget._styles_cache = KeptLinesCache()
     return widget
