@@ -27,14 +27,24 @@ ANSI_BITS = Theme(name="ansi-bits", primary="ansi_bright_blue", secondary="ansi_
 
 
 class TextualFiltered(ChannelTable):
-    """The table drawn the plain way: Textual applies every filter of the app to its lines."""
+    """The table drawn the plain way: Textual styles every line and applies every filter of the app."""
 
     def get_line_filters(self) -> Sequence[LineFilter]:
         self._own_truecolor(None)
         return Widget.get_line_filters(self)
 
+    def _plain_box(self) -> bool:
+        return False
+
 
 async def screen_text(theme: str, stale: bool, plain: bool, monkeypatch: pytest.MonkeyPatch) -> str:
+    text, _ = await drawn(theme, stale, plain, monkeypatch)
+    return text
+
+
+async def drawn(theme: str, stale: bool, plain: bool,
+                monkeypatch: pytest.MonkeyPatch) -> tuple[str, tuple[bool, bool]]:
+    """The screen's text, and whether the table took its own ways (its truecolour, its plain box)."""
     feed = SyntheticFeed(names=NAMES)
     source = SessionSource(feed, port="test://feed", clock=lambda: feed.t_s, profile=profile_for(len(NAMES)))
     if plain:
@@ -48,12 +58,15 @@ async def screen_text(theme: str, stale: bool, plain: bool, monkeypatch: pytest.
         await pilot.press("down", "down")
         table = app.query_one(ChannelTable)
         assert isinstance(table, TextualFiltered) == plain
-        table.set_class(stale, "-stale")
         for _ in range(3):  # rows drawn, then drawn again over Textual's kept lines
             feed.advance(0.1)
             app.refresh_now()
             await pilot.pause()
-        return app.export_screenshot()
+        # After the frames: each screen frame sets the class from the link's state (a live feed: not stale).
+        table.set_class(stale, "-stale")
+        await pilot.pause()
+        assert table.opacity == (0.6 if stale else 1.0)
+        return app.export_screenshot(), (table._truecolor is not None, table._plain_box())
 
 
 @pytest.mark.parametrize("theme", ["textual-dark", "textual-light", "ansi-bits"])
@@ -64,3 +77,12 @@ async def test_rows_in_their_final_styles_draw_as_textual_filtering_them(
     plain = await screen_text(theme, stale, True, monkeypatch)
     assert own == plain
 
+
+
+@pytest.mark.parametrize("stale", [False, True])
+async def test_the_table_takes_its_own_ways_only_where_textual_would_not_change_its_lines(
+        stale: bool, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Once, `hatch` (None where no rule sets it, not "none") made the table always hand its lines to
+    # Textual's filter, so the comparison above compared Textual with itself.
+    _, ways = await drawn("textual-dark", stale, False, monkeypatch)
+    assert ways == ((False, False) if stale else (True, True))  # a stale table is faded (opacity)

@@ -10,10 +10,13 @@ from rich.style import Style
 from rich.text import Text
 
 from tui.render import NULL, Piece, Styles, to_text
+from tui.render.memo import PiecesMemo
 
 _EIGHTHS = " ▏▎▍▌▋▊▉█"
 THRESHOLD_MARK = "┃"
 RELEASE_MARK = "╎"
+_KEPT = PiecesMemo()
+
 # The threshold sits at this fraction of the bar so a touch well above it still has room to show.
 THRESHOLD_AT = 0.6
 
@@ -37,6 +40,17 @@ def delta_bar(
 
 def bar_pieces(delta_counts: float, threshold_counts: int, release_counts: int, width: int, styles: Styles,
                role: str = "bar") -> list[Piece]:
+    """The bar as pieces (kept by their inputs: a released key's delta wanders over a few counts)."""
+    key = (delta_counts, threshold_counts, release_counts, width, role, id(styles))
+    found = _KEPT.get(key, styles)
+    if found is None:
+        found = _KEPT.put(key, styles, _bar_pieces(delta_counts, threshold_counts, release_counts, width,
+                                                   styles, role))
+    return found
+
+
+def _bar_pieces(delta_counts: float, threshold_counts: int, release_counts: int, width: int, styles: Styles,
+                role: str) -> list[Piece]:
     text: list[Piece] = []
     if width <= 0:
         return text

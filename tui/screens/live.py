@@ -51,6 +51,7 @@ from tui.widgets.detail_panel import ZOOM_KEYS, DetailPanel
 from tui.widgets.edit_bar import EditBar, EditBarView
 from tui.widgets.event_log import EventLog
 from tui.widgets.groups_panel import GroupsPanel
+from tui.widgets.kept_lines import keep_lines
 from tui.widgets.link_strip import LinkStrip
 from tui.words import plural
 
@@ -144,6 +145,9 @@ class LiveScreen(Screen[None]):
         self.groups = GroupsPanel(id="groups")
         self.log_view = EventLog(id="log")
         self.lower = Horizontal(self.groups, self.log_view, id="lower")
+        # Drawn again whenever the table changes (every frame), though they rarely change themselves.
+        for quiet in (self, self.link_strip, self.edit_bar, self.lower):
+            keep_lines(quiet)
 
     # -- layout -----------------------------------------------------------------------------------
     def compose(self) -> ComposeResult:
@@ -152,7 +156,7 @@ class LiveScreen(Screen[None]):
         yield self.edit_bar
         yield self.detail_panel
         yield self.lower
-        yield Footer(compact=True, show_command_palette=False)
+        yield keep_lines(Footer(compact=True, show_command_palette=False))
 
     def on_mount(self) -> None:
         self._state = "mounted"

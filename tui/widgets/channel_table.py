@@ -16,6 +16,7 @@ from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
 from textual.binding import Binding
+from textual.css.styles import RenderStyles
 from textual.filter import ANSIToTruecolor, LineFilter
 from textual.geometry import Region, Size
 from textual.message import Message
@@ -35,6 +36,11 @@ ROLES = (
     "header", "cursor", "selected", "name", "edited", "dim", "idle", "pending", "touched", "stuck",
     "good", "warn", "bad", "bar", "bar-empty", "threshold", "release", "spark",
 )
+
+
+def _hatched(styles: RenderStyles) -> bool:
+    """As Textual decides it when drawing: `hatch` reads None, not "none", where no rule sets it."""
+    return styles.has_rule("hatch") and styles.hatch not in (None, "none")
 
 
 class ChannelTable(Widget):
@@ -167,7 +173,7 @@ class ChannelTable(Widget):
         found = next((f for f in filters if isinstance(f, ANSIToTruecolor)), None)
         styles = self.styles
         if (found is None or self.opacity != 1.0 or styles.tint.a or styles.text_opacity != 1.0
-                or styles.hatch != "none" or styles.padding.left or styles.padding.right):
+                or _hatched(styles) or styles.padding.left or styles.padding.right):
             self._own_truecolor(None)
             return filters
         self._own_truecolor((found, self.background_colors[1].rich_color))
@@ -192,9 +198,51 @@ class ChannelTable(Widget):
         """Textual's pass over the dirty lines: the size is looked up once for all of them, not per line."""
         self._pass_size = self.size
         try:
+            if self._plain_box():
+                return self._render_plain(crop)
             return super().render_lines(crop)
         finally:
             self._pass_size = None
+
+    def _plain_box(self) -> bool:
+        """True when Textual's styling would hand the table's lines through unchanged: no border,
+        outline, padding, scrollbar gutter, tint, opacity, text opacity or hatch (the table's own CSS)."""
+        styles = self.styles
+        return (not any(edge for edge, _ in styles.border) and not any(edge for edge, _ in styles.outline)
+                and not any(styles.padding) and self.opacity == 1.0 and not styles.tint.a
+                and styles.text_opacity == 1.0 and not _hatched(styles)
+                and self.content_region.size == self.region.size)
+
+    def _render_plain(self, crop: Region) -> list[Strip]:
+        """What `StylesCache.render_widget` does for a plain box, without its per-line styling work.
+
+        Every visible row changes at every screen frame, so that work (borders, padding, outline,
+        tint and opacity looked up and a new strip made per line, then thrown away) was a third of
+        drawing the table. The lines are kept in the widget's own styles cache, so Textual's marking
+        of dirty lines (refresh, resize, style changes) works exactly as for any widget.
+        """
+        cache = self._styles_cache
+        filters = self.get_line_filters()  # first: it may drop the lines kept (see _own_truecolor)
+        background = self.background_colors[1]
+        width = self._pass_size.width if self._pass_size is not None else self.size.width
+        if width != cache._width:
+            cache.clear()
+            cache._width = width
+        kept, dirty = cache._cache, cache._dirty_lines
+        render_line = self.render_line
+        strips = []
+        for y in crop.line_range:
+            strip = kept.get(y)
+            if strip is None or y in dirty:
+                strip = kept[y] = render_line(y).adjust_cell_length(width)
+            for line_filter in filters:
+                strip = strip.apply_filter(line_filter, background)
+            strips.append(strip)
+        dirty.difference_update(crop.line_range)
+        if crop.column_span != (0, width):
+            x1, x2 = crop.column_span
+            strips = [strip.crop(x1, x2) for strip in strips]
+        return strips
 
     def render_line(self, y: int) -> Strip:
         size = self._pass_size or self.size
