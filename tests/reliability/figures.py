@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import os
 import threading
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 
@@ -53,6 +53,16 @@ def info(name: str, value: float | int | str, unit: str = "") -> Figure:
 def failed(name: str, why: str) -> Figure:
     """A figure that could not be measured: out of bounds, `why` in its note."""
     return Figure(name, "not measured", "", "measured", False, note=why)
+
+
+def with_note(figures: list[Figure], note: str) -> list[Figure]:
+    """`figures` with `note` (what went wrong first) on the first figure out of bounds."""
+    if not note:
+        return figures
+    at = next((k for k, f in enumerate(figures) if not f.ok), None)
+    if at is None:
+        return figures
+    return [*figures[:at], replace(figures[at], note=note), *figures[at + 1:]]
 
 
 def table(figures: list[Figure]) -> str:
