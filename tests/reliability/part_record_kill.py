@@ -113,12 +113,12 @@ def run(quick: bool) -> list[Figure]:
     figures = [
         info("record kill: trials", trials),
         equal("record kill: trials that could not be measured", unmeasured, 0),
-        at_most("record kill: board time lost, worst", round(worst, 1), LOSS_BOUND_MS, "ms"),
+        at_most("record kill: board time lost, worst", round(worst, 1), LOSS_BOUND_MS, "ms", timed=True),
         info("record kill: board time lost, median", round(sorted(losses)[len(losses) // 2], 1) if losses
              else "none", "ms"),
         equal("record kill: replays that failed (exit != 0)", failed_replays, 0),
         equal("record kill: replays with fewer frames than rows", short_replays, 0),
     ]
     if not losses:
-        figures[2] = Figure(figures[2].name, "none", "ms", figures[2].bound, False)
+        figures[2] = Figure(figures[2].name, "none", "ms", figures[2].bound, False, timed=True)
     return with_note(figures, problems[0] if problems else "")

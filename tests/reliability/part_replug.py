@@ -135,7 +135,7 @@ def run(quick: bool) -> list[Figure]:
         equal("replug: cycles reconnected", done, cycles),
         equal("replug: info line recovered", infos, cycles),
         at_most("replug: reconnect time, max", round(max(times), 3) if times else float("inf"),
-                RECONNECT_BOUND_S, "s"),
+                RECONNECT_BOUND_S, "s", timed=True),
         info("replug: reconnect time, median", round(statistics.median(times), 3) if times else "none", "s"),
         equal("replug: open descriptors, spread over cycles", max(fds) - min(fds) if fds else -1, 0),
         equal("replug: threads, spread over cycles", max(threads) - min(threads) if threads else -1, 0),

@@ -60,6 +60,41 @@ def _others(folder: Path) -> list[str]:
     return sorted(p.name for p in folder.iterdir() if p.name not in (NAME, NAME + ".bak"))
 
 
+def _dead_pid() -> int:
+    """The pid of a process that has ended and been reaped (what a killed saver's pid is afterwards)."""
+    pid = os.fork()
+    if pid == 0:
+        os._exit(0)
+    os.waitpid(pid, 0)
+    return pid
+
+
+def staged_kill_points(folder: Path) -> dict[str, list[str]]:
+    """Each state a kill can leave between the steps of a save (processing/atomic.py), made on purpose,
+    then the next save: {kill point: the temporaries still there after it} (all lists should be empty)."""
+    old, new = _profiles()
+    left: dict[str, list[str]] = {}
+    steps = ("after the temporary is written", "after the backup's hard link",
+             "after the backup's rename, before the final rename")
+    for k, step in enumerate(steps):
+        case = folder / f"point{k}"
+        case.mkdir()
+        path = case / NAME
+        save_profile(old, path)
+        save_profile(old, path)  # a .bak too, as after any second save
+        dead = _dead_pid()
+        if k in (0, 2):  # the new content's temporary, written and fsynced, not yet renamed
+            (case / f".{NAME}.{dead}.x1y2z3.tmp").write_bytes(b"new content")
+        if k == 1:  # the hard link made, not yet renamed over .bak
+            os.link(path, case / f".{NAME}.{dead}.bak.tmp")
+        if k == 2:  # the link renamed over .bak: NAME and NAME.bak are one file now
+            os.unlink(case / (NAME + ".bak"))
+            os.link(path, case / (NAME + ".bak"))
+        save_profile(new, path)
+        left[step] = sorted(p.name for p in case.iterdir() if p.name not in (NAME, NAME + ".bak"))
+    return left
+
+
 def run(quick: bool) -> list[Figure]:
     trials = QUICK_TRIALS if quick else FULL_TRIALS
     rng = random.Random(9)
@@ -115,6 +150,9 @@ def run(quick: bool) -> list[Figure]:
                 first_problem = first_problem or f"trial {trial}: after the next save: {', '.join(left)}"
                 for name in left:
                     (folder / name).unlink()  # each trial counts its own leftovers
+    with tempfile.TemporaryDirectory(prefix="padtune-savekill-staged-") as tmp:
+        staged = staged_kill_points(Path(tmp))
+    staged_bad = {step: names for step, names in staged.items() if names}
     left_text = ", ".join(f"{n} {k}" for k, n in sorted(left_by_kill.items())) or "none"
     figures = [
         info("save kill: trials", trials),
@@ -123,6 +161,9 @@ def run(quick: bool) -> list[Figure]:
         equal("save kill: .bak neither old nor new", bak_broken, 0),
         equal("save kill: temporaries left after the next save", after_next, 0, "files"),
         info("save kill: temporaries left by the kills", left_text),
+        Figure("save kill: staged kill points leaving temporaries after the next save", len(staged_bad), "",
+               "= 0", not staged_bad, note="; ".join(f"{step}: {', '.join(names)}"
+                                                     for step, names in staged_bad.items())),
         info("save kill: found old / new", f"{seen_old}/{seen_new}"),
         info("save kill: one save takes", round(save_s * 1e3, 2), "ms"),
     ]

@@ -1,0 +1,79 @@
+"""Soak: the 64-channel simulated board (`grid64`, 1 kHz) accelerated through at least ten minutes of
+board time, through the real pipeline every live front end runs: `protocol.link.Link` reading a `sim://`
+port on its own thread, `tui.pipeline.Pipeline` stepping, `processing.session.Session` detecting and
+measuring (rows and qualities taken as a screen would, twice a second of wall time).
+
+Memory must stay flat: resident memory is sampled every step; after the warm-up (the first tenth of the
+board time: rings, histories and caches filled), the growth above the warm-up's level is bounded. Board
+time is counted from the board's own frames: those received, those the link had to drop (a machine too
+busy to keep up; shown) and those lost on the way.
+"""
+
+from __future__ import annotations
+
+import time
+
+import devices
+from processing.session import Session
+from protocol.events import FrameBlock
+from protocol.link import Link
+from tests.reliability.figures import Figure, at_least, at_most, info, rss_mib
+from tui.pipeline import Pipeline
+
+RATE_HZ = 1000.0  # devices/boards/grid64.toml
+FULL_BOARD_S = 600.0
+QUICK_BOARD_S = 40.0
+SPEED = 10.0  # board seconds per second: about 10,000 frames/s of 64 channels
+WARM_UP = 0.1
+WALL_LIMIT_S = 300.0  # a machine that cannot do it in this long reports the board time it reached
+# Every ring and history the session keeps is bounded (DEVELOPERS.md, Processing): growth after the
+# warm-up is a leak. The room is for the allocator's own slack (common practice, no source).
+GROWTH_BOUND_MIB = 16.0
+
+
+def run(quick: bool) -> list[Figure]:
+    target_s = QUICK_BOARD_S if quick else FULL_BOARD_S
+    devices.register_url_handlers()
+    link = Link(f"sim://grid64?seed=4&speed={SPEED:g}&backlog_s=5")
+    session = Session()
+    pipeline = Pipeline(link, session)
+    samples: list[tuple[float, float]] = []  # (board s, RSS MiB)
+    last_rows = [0.0]
+    through = [0]  # frames handed to the session
+
+    def board_s() -> float:
+        stats = link.stats
+        return (stats.frames + stats.overflow + stats.lost) / RATE_HZ
+
+    def on_step(step) -> None:
+        through[0] += sum(len(e) for e in step.events if isinstance(e, FrameBlock))
+        now = time.monotonic()
+        if now - last_rows[0] >= 0.5 and session.measures is not None:  # as a screen, twice a second
+            session.rows()
+            session.measures.qualities()
+            last_rows[0] = now
+        samples.append((board_s(), rss_mib()))
+
+    start = time.monotonic()
+    link.start()
+    try:
+        pipeline.run(until_s=start + WALL_LIMIT_S, done=lambda: board_s() >= target_s, on_step=on_step,
+                     tick_s=0.01)
+    finally:
+        link.stop()
+    wall_s = time.monotonic() - start
+    covered = board_s()
+    stats = link.stats
+    warm = [rss for t, rss in samples if t <= covered * WARM_UP]
+    after = [rss for t, rss in samples if t > covered * WARM_UP]
+    base = warm[-1] if warm else float("nan")
+    growth = max(after) - base if after and warm else float("inf")
+    return [
+        at_least("soak: board time covered", round(covered, 1), target_s, "s"),
+        at_most("soak: RSS growth after warm-up", round(growth, 1), GROWTH_BOUND_MIB, "MiB"),
+        info("soak: RSS after warm-up / at the end",
+             f"{base:.0f}/{samples[-1][1]:.0f}" if samples else "none", "MiB"),
+        info("soak: frames through the session", through[0]),
+        info("soak: frames dropped (consumer behind) / lost", f"{stats.overflow}/{stats.lost}"),
+        info("soak: wall time", round(wall_s, 1), "s"),
+    ]
