@@ -3,8 +3,10 @@ board time, through the real pipeline every live front end runs: `protocol.link.
 port on its own thread, `tui.pipeline.Pipeline` stepping, `processing.session.Session` detecting and
 measuring (rows and qualities taken as a screen would, twice a second of wall time).
 
-Memory must stay flat: resident memory is sampled every step; after the warm-up (the first tenth of the
-board time: rings, histories and caches filled), the growth above the warm-up's level is bounded. Board
+Memory must stay flat: resident memory is sampled every step; its level at the end (median over the last
+tenth of the board time) may exceed its level after the warm-up (median over the second tenth: rings,
+histories and caches filled) by a bounded amount. The session alone over 600 s of this board stays
+within 1 MiB (measured while writing this part); the rest of the bound is the allocator's slack. Board
 time is counted from the board's own frames: those received, those the link had to drop (a machine too
 busy to keep up; shown) and those lost on the way.
 """
@@ -64,15 +66,22 @@ def run(quick: bool) -> list[Figure]:
     wall_s = time.monotonic() - start
     covered = board_s()
     stats = link.stats
-    warm = [rss for t, rss in samples if t <= covered * WARM_UP]
-    after = [rss for t, rss in samples if t > covered * WARM_UP]
-    base = warm[-1] if warm else float("nan")
-    growth = max(after) - base if after and warm else float("inf")
+    # Flat means no trend: the level at the end (median of the last tenth of the board time) against the
+    # level just after the warm-up (median of the second tenth). A bounded buffer that fills for a moment
+    # (the link's queue, when this machine is busy) is a bump, not a trend: it shows in the peak.
+    def level(lo: float, hi: float) -> float:
+        window = sorted(rss for t, rss in samples if covered * lo < t <= covered * hi)
+        return window[len(window) // 2] if window else float("nan")
+
+    base, end = level(WARM_UP, 2 * WARM_UP), level(1 - WARM_UP, 1.0)
+    growth = end - base if base == base and end == end else float("inf")  # nan: too few samples
+    peak = max((rss for t, rss in samples if t > covered * WARM_UP), default=float("nan")) - base
     return [
         at_least("soak: board time covered", round(covered, 1), target_s, "s"),
-        at_most("soak: RSS growth after warm-up", round(growth, 1), GROWTH_BOUND_MIB, "MiB"),
-        info("soak: RSS after warm-up / at the end",
-             f"{base:.0f}/{samples[-1][1]:.0f}" if samples else "none", "MiB"),
+        at_most("soak: RSS growth after warm-up (end level - level after warm-up)", round(growth, 1),
+                GROWTH_BOUND_MIB, "MiB"),
+        info("soak: RSS after warm-up / at the end / highest above warm-up",
+             f"{base:.0f}/{end:.0f}/{peak:+.0f}", "MiB"),
         info("soak: frames through the session", through[0]),
         info("soak: frames dropped (consumer behind) / lost", f"{stats.overflow}/{stats.lost}"),
         info("soak: wall time", round(wall_s, 1), "s"),
