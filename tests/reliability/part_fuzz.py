@@ -198,12 +198,20 @@ def same(a: tuple[list, list], b: tuple[list, list]) -> bool:
                for x, y in zip(a[1], b[1], strict=True))
 
 
+def _shown(item: tuple) -> str:
+    if item[0] == "frames":
+        return f"{item[4]} frames of {item[1]} channels"
+    fields = dict(item[1])
+    kind = fields.get("kind", "").split(":")[-1].strip(" '>")
+    return f"{item[0]} {kind} {fields.get('detail', '')}".strip()[:120]
+
+
 def difference(got: list[Event], expected: list[Event]) -> str:
     """The first event where the fast decoder's differ from the plain one's, in words."""
     a, b = digest(got)[0], digest(expected)[0]
     for k, (x, y) in enumerate(zip(a, b, strict=False)):
         if x != y:
-            return f"event {k}: fast {str(x)[:160]} / plain {str(y)[:160]}"
+            return f"event {k}: fast {_shown(x)} / plain {_shown(y)}"
     return f"{len(a)} events / {len(b)}, or the same events with other frames or statistics"
 
 
