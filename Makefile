@@ -6,7 +6,7 @@ BIN := $(VENV)/bin
 RUN_STAMP := $(VENV)/.stamp-run
 TEST_STAMP := $(VENV)/.stamp-test
 
-.PHONY: demo test bench lint snapshots-update clean firmware firmware-size firmware-harness
+.PHONY: demo test bench reliability lint snapshots-update clean firmware firmware-size firmware-harness
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -29,6 +29,12 @@ test: $(TEST_STAMP)
 
 bench: $(TEST_STAMP)
 	$(BIN)/python tests/benchmarks/run_all.py
+
+# The reliability suite (issue 13): decoder fuzz, kill -9 during saves and recordings, unplug/replug,
+# hostile inputs, garbage flood, soak. One table of figures; exits non-zero when one is out of bounds.
+# Not part of `make test` (which runs each part's quick version); under 10 minutes on 2 cores.
+reliability: $(TEST_STAMP)
+	$(BIN)/python tests/reliability/run.py
 
 lint: $(TEST_STAMP)
 	$(BIN)/ruff check .
