@@ -77,7 +77,6 @@ def test_no_kill_point_leaves_a_temporary_after_the_next_save(tmp_path):
         "after the backup's rename, before the final rename")}
 
 
-@pytest.mark.xfail(strict=True, reason=MIXED_CASE_DEFECT)
 def test_fast_decoder_refuses_a_mixed_case_wrong_checksum():
     # Found by `make reliability`'s fuzz. The body's CRC is C8D8 (CRC-16/CCITT-FALSE, protocol.crc, checked
     # against binascii in tests/protocol/test_crc.py); C8f8 is wrong in any case.
