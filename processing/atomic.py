@@ -37,11 +37,17 @@ def _keep_backup(path: Path) -> None:
     tmp = path.with_name(f".{path.name}.{os.getpid()}.bak.tmp")
     with contextlib.suppress(FileNotFoundError):
         tmp.unlink()
+    with contextlib.suppress(OSError):
+        if os.path.samefile(path, bak):  # a save killed after its backup's rename: it already holds it
+            return
     try:
         os.link(path, tmp)
     except OSError:  # no hard links on this file system: copy instead (still atomic for the .bak)
         shutil.copy2(path, tmp)
     os.replace(tmp, bak)
+    # POSIX rename of two links to one file does nothing and leaves the source: never leave it behind.
+    with contextlib.suppress(FileNotFoundError):
+        tmp.unlink()
 
 
 def _temporary_pid(leftover: str, name: str) -> int | None:

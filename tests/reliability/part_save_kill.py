@@ -84,7 +84,7 @@ def staged_kill_points(folder: Path) -> dict[str, list[str]]:
         save_profile(old, path)  # a .bak too, as after any second save
         dead = _dead_pid()
         if k in (0, 2):  # the new content's temporary, written and fsynced, not yet renamed
-            (case / f".{NAME}.{dead}.x1y2z3.tmp").write_bytes(b"new content")
+            (case / f".{NAME}.{dead}.x1y2z3w4.tmp").write_bytes(b"new content")
         if k == 1:  # the hard link made, not yet renamed over .bak
             os.link(path, case / f".{NAME}.{dead}.bak.tmp")
         if k == 2:  # the link renamed over .bak: NAME and NAME.bak are one file now

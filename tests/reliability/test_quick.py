@@ -58,19 +58,11 @@ def test_fuzz_counts_a_decoder_that_loses_lines(monkeypatch):
 
 @pytest.mark.e2e
 def test_kill_during_profile_save_quick():
-    # The leftover figures are the defect pinned below (strict xfail); the rest must hold.
-    assert_within(part_save_kill.run(quick=True), skip=("save kill: temporaries left after",
-                                                        "save kill: staged kill points"))
+    assert_within(part_save_kill.run(quick=True))
 
 
-BAK_DEFECT = ("processing/atomic.py: a kill after the backup's rename leaves NAME.bak and NAME one file; "
-              "the next save's os.replace(link, NAME.bak) is then a no-op (POSIX rename of two links to one "
-              "file) and leaves .NAME.PID.bak.tmp (i13-misc's part of issue 13)")
-MIXED_CASE_DEFECT = ("protocol/fastscan.py: a mixed-case checksum (C8f8) is checked against the all-lower "
-                     "case table and can match it, so the fast decoder takes a frame the plain one refuses")
 
 
-@pytest.mark.xfail(strict=True, reason=BAK_DEFECT)
 def test_no_kill_point_leaves_a_temporary_after_the_next_save(tmp_path):
     assert part_save_kill.staged_kill_points(tmp_path) == {step: [] for step in (
         "after the temporary is written", "after the backup's hard link",
