@@ -38,9 +38,11 @@ from protocol.tomlfile import MIB, read_toml, shown_path
 
 FORMAT_VERSION = 1
 MAX_CHANNELS = 1024
-# Far above any real profile: 1024 channels, each with every setting and limit of its own, save to under
-# 400 KiB (tests/processing/test_profile_hostile.py measures it). Larger files are refused unread.
-MAX_PROFILE_BYTES = 4 * MIB
+# Far above any real profile: the largest padtune writes (1024 channels, each with every setting and limit
+# of its own and a group per pair) is 563 KiB (tests/processing/test_profile_hostile.py measures it). Larger
+# files are refused unread; a file at the cap parses in about 1.5 s at worst (tomllib, tiny tables).
+MAX_PROFILE_BYTES = 2 * MIB
+MAX_BOARD_CHARS = 200  # the board id: one line of printable text
 SHOWN_PROBLEMS = 8  # a message lists this many problems, then says how many more
 HINTED = 3  # unknown names that get a did-you-mean search; the rest are counted (each search is O(names))
 LINE_CHARS = 300  # one problem's line is cut to this (a 4 MiB string value must not become the message)
@@ -348,7 +350,11 @@ def _limits(raw: Any, out: Problems, where: str = "limits", base: Limits | None 
         out.append((where, "must be a table"))
         return base
     _unknown(f"{where}.", raw, LIMIT_KEYS, out)
-    limits = replace(base, **{k: v for k, v in raw.items() if k in LIMIT_KEYS})
+    values = {k: v for k, v in raw.items() if k in LIMIT_KEYS}
+    huge = [k for k, v in values.items() if _is_int(v) and abs(v) >= 2**63]
+    for k in huge:
+        out.append((f"{where}.{k}", f"{_shown(values.pop(k))} is far out of range"))
+    limits = replace(base, **values)
     out.extend((f"{where}.{k}", m) for k, m in limits.problems())
     return limits
 
@@ -364,11 +370,16 @@ def _head(raw: dict[str, Any], out: Problems) -> None:
                     f"({FORMAT_VERSION}); update padtune"))
     elif version < 1:
         out.append(("format_version", f"must be {FORMAT_VERSION}, not {_shown(version)}"))
-    if not isinstance(raw.get("board", ""), str):
+    board = raw.get("board", "")
+    if not isinstance(board, str):
         out.append(("board", "must be a string"))
+    elif len(board) > MAX_BOARD_CHARS or not board.isprintable():
+        out.append(("board", f"must be one line of at most {MAX_BOARD_CHARS} printable characters, not "
+                    f"{_shown(board)}"))
     rate = raw.get("rate_hz")
-    if rate is not None and not is_positive_number(rate):
-        out.append(("rate_hz", f"must be a positive number, not {_shown(rate)}"))
+    if rate is not None and (not is_positive_number(rate) or (_is_int(rate) and rate.bit_length() > 1000)):
+        # the second test: an integer too large for a float (float() raises OverflowError on it)
+        out.append(("rate_hz", f"must be a positive number of frames per second, not {_shown(rate)}"))
 
 
 def _unknown_channels(unknown: list[str], index: Mapping[str, int], out: Problems) -> None:
@@ -460,7 +471,10 @@ def _settings_table(s: ChannelSettings, base: ChannelSettings | None) -> dict[st
 
 def profile_to_dict(profile: Profile) -> dict[str, Any]:
     """The TOML document for a profile (plain Python types only: tomli-w rejects numpy ints and None)."""
-    doc: dict[str, Any] = {"format_version": FORMAT_VERSION, "board": profile.board,
+    # A board id is free text from the board's info line: written printable and cut, so the file loads
+    # again (backslashes kept as they are, so saving twice never changes it twice).
+    board = printable(profile.board, MAX_BOARD_CHARS, double_backslash=False)
+    doc: dict[str, Any] = {"format_version": FORMAT_VERSION, "board": board,
                            "channels": profile.channels, "names": list(profile.names)}
     if profile.polarity:
         doc["polarity"] = [int(p) for p in profile.polarity]

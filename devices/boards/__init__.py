@@ -39,7 +39,7 @@ MAX_LINE_BYTES = 1024  # protocol v1's line limit (protocol/PROTOCOL.md)
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_.-]{0,31}$")
 _FW_RE = re.compile(r"^[A-Za-z0-9_.+-]{1,32}$")  # goes into the info line: no spaces, commas or '='
 MAX_DESCRIPTION_CHARS = 200  # the boot comment line carries it
-MAX_BOARD_BYTES = 4 * MIB  # far above any real board file (the bundled ones are a few KiB); refused unread
+MAX_BOARD_BYTES = 1 * MIB  # far above any real board file (the bundled ones are under 4 KiB); refused unread
 MAX_PADS = 256
 MESSAGE_CHARS = 400  # a message quoting a 4 MiB value is cut to this
 _TOP = {"board", "method", "overlay", "finger", "pad_defaults", "pad", "pad_grid", "slider", "noise",
