@@ -118,7 +118,8 @@ class _Parser:
                 raise self.fail(f"{where}.{key}", "missing (a number is needed)")
             return default
         value = table[key]
-        if isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
+        # Compared, not math.isfinite: an integer of hundreds of digits overflows a float (OverflowError).
+        if isinstance(value, bool) or not isinstance(value, int | float) or not -1e300 < value < 1e300:
             raise self.fail(f"{where}.{key}", f"must be a number, got {value!r}")
         if value < low or (not inclusive_low and value == low) or value > high:
             bounds = f"{'>=' if inclusive_low else '>'} {low:g}"
@@ -140,9 +141,9 @@ class _Parser:
 
     def one_line(self, table: dict, where: str, key: str, default: str) -> str:
         value = self.text(table, where, key, default)
-        if "\n" in value or "\r" in value or len(value) > MAX_DESCRIPTION_CHARS:
+        if not value.isprintable() or len(value) > MAX_DESCRIPTION_CHARS:  # no newline, ESC or other control
             raise self.fail(f"{where}.{key}", f"must be one line of at most {MAX_DESCRIPTION_CHARS} "
-                            "characters")
+                            "printable characters")
         return value
 
     def fw(self, table: dict) -> str:
@@ -232,6 +233,9 @@ class _Parser:
             cols = self.whole(g, "pad_grid", "cols", 1, 64)
             pitch = self.num(g, "pad_grid", "pitch_mm", low=1, high=100)
             prefix = self.text(g, "pad_grid", "prefix", "k")
+            if not _NAME_RE.match(f"{prefix}{rows - 1}_{cols - 1}"):  # the longest name it makes
+                raise self.fail("pad_grid.prefix", f"{prefix!r} does not make plain pad names (letter first, "
+                                "then letters, digits, _ . -; names at most 32 characters)")
             area, parasitic = self.pad({}, "pad_defaults", defaults)
             for r in range(rows):
                 for c in range(cols):
