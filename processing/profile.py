@@ -379,7 +379,7 @@ def _head(raw: dict[str, Any], out: Problems) -> None:
     rate = raw.get("rate_hz")
     if rate is not None and (not is_positive_number(rate) or (_is_int(rate) and rate.bit_length() > 1000)):
         # the second test: an integer too large for a float (float() raises OverflowError on it)
-        out.append(("rate_hz", f"must be a positive number of frames per second, not {_shown(rate)}"))
+        out.append(("rate_hz", f"must be a positive number, not {_shown(rate)}"))
 
 
 def _unknown_channels(unknown: list[str], index: Mapping[str, int], out: Problems) -> None:
