@@ -23,12 +23,13 @@ def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = Fal
     """Open `target`, run the screen until the user quits; `start_profile` is used when no file is given.
     `notices` are lines for the screen's log (stderr belongs to the screen while it runs); `polarity` is
     `--polarity` (empty: the board's, the profile's, or learned)."""
+    # The profile first: a bad one is one line before the port, the session or the screen (Textual) exist.
+    profile = load_profile(profile_path) if profile_path is not None else start_profile
     from processing.session import Session
     from protocol.link import Link
     from tui.app import PadtuneApp
     from tui.session_source import SessionSource
 
-    profile = load_profile(profile_path) if profile_path is not None else start_profile
     link = Link(target, baud)
     link.start()  # UserError (one line) when the port cannot be opened
     try:
