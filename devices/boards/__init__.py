@@ -233,7 +233,8 @@ class _Parser:
             cols = self.whole(g, "pad_grid", "cols", 1, 64)
             pitch = self.num(g, "pad_grid", "pitch_mm", low=1, high=100)
             prefix = self.text(g, "pad_grid", "prefix", "k")
-            last = f"{prefix}{rows - 1}{cols - 1}" if max(rows, cols) <= 10 else f"{prefix}{rows - 1}_{cols - 1}"
+            wide = max(rows, cols) > 10
+            last = f"{prefix}{rows - 1}_{cols - 1}" if wide else f"{prefix}{rows - 1}{cols - 1}"
             if not _NAME_RE.match(last):  # the longest name it makes (the names are made below)
                 raise self.fail("pad_grid.prefix", f"{prefix!r} does not make plain pad names (letter first, "
                                 "then letters, digits, _ . -; names at most 32 characters)")
