@@ -147,7 +147,7 @@ PROFILE_KINDS: dict[str, tuple[Make, tuple[str, ...]]] = {
     "link-loop": (_loop, ("cannot read",)),
     "over-the-cap": (text(GOOD + "#" * PROFILE_CAP_BYTES + "\n"),
                      ("a profile file is at most 2.0 MiB (2097152 bytes)",)),
-    "sparse-64-mib": (_sparse(64 * MIB), ("is 64.0 MiB (67108864 bytes)", "at most 2.0 MiB")),
+    "sparse-16-mib": (_sparse(16 * MIB), ("is 16.0 MiB (16777216 bytes)", "at most 2.0 MiB")),
     # encoding
     "invalid-utf8": (raw(HEAD.encode() + b'board = "caf\xe9"\n'), ("not UTF-8 text (byte 0xe9 on line 4)",)),
     "nul-byte": (raw(HEAD.encode() + b"\0\n"), ("holds a NUL byte on line 4",)),
