@@ -165,7 +165,8 @@ FILE_RANGES: dict[str, tuple[float, float]] = {
 
 def _component(raw: object, where: str, key: str, factor: float, whole: bool) -> float | int:
     """One component from file units to SI, or a one-line UserError saying what range it must be in."""
-    if isinstance(raw, bool) or not isinstance(raw, int | float) or not math.isfinite(raw) or raw <= 0:
+    # Compared, not math.isfinite: an integer of hundreds of digits overflows a float (OverflowError).
+    if isinstance(raw, bool) or not isinstance(raw, int | float) or not 0 < raw < 1e300:
         raise UserError(f"{where}: must be a positive number, got {raw!r}")
     low, high = FILE_RANGES[key]
     if whole:

@@ -2,14 +2,18 @@
 
 Loading checks everything before building anything, so a bad file is refused whole with every problem
 listed as `file:key: what is wrong` (with a did-you-mean for misspelt keys); nothing is half-applied.
+The file itself (not a regular file, larger than MAX_PROFILE_BYTES, not UTF-8 text, nested thousands deep,
+numbers of thousands of digits) is checked by `protocol.tomlfile` first. Validation takes time linear in
+the file: a flood of unknown keys or tables gets did-you-mean hints for the first few and a count, and
+every key quoted from the file passes through `printable` (control characters escaped).
 """
 
 from __future__ import annotations
 
 import difflib
 import os
-import tomllib
-from collections.abc import Mapping
+from collections import Counter
+from collections.abc import Iterable, Mapping
 from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any
@@ -29,9 +33,19 @@ from processing.settings import (
 )
 from processing.slider import SliderSpec
 from protocol.errors import UserError
+from protocol.printable import printable
+from protocol.tomlfile import MIB, read_toml, shown_path
 
 FORMAT_VERSION = 1
 MAX_CHANNELS = 1024
+# Far above any real profile: the largest padtune writes (1024 channels, each with every setting and limit
+# of its own and a group per pair) is 563 KiB (tests/processing/test_profile_hostile.py measures it). Larger
+# files are refused unread; a file at the cap parses in about 1.5 s at worst (tomllib, tiny tables).
+MAX_PROFILE_BYTES = 2 * MIB
+MAX_BOARD_CHARS = 200  # the board id: one line of printable text
+SHOWN_PROBLEMS = 8  # a message lists this many problems, then says how many more
+HINTED = 3  # unknown names that get a did-you-mean search; the rest are counted (each search is O(names))
+LINE_CHARS = 300  # one problem's line is cut to this (a 4 MiB string value must not become the message)
 TOP_KEYS = ("format_version", "board", "channels", "names", "polarity", "rate_hz", "defaults", "channel",
             "group", "slider", "limits")
 Problems = list[tuple[str, str]]
@@ -41,11 +55,36 @@ SLIDER_KEYS = ("name", "pads", "wheel", "resolution")
 
 
 class ProfileError(UserError):
-    """A profile that cannot be loaded or saved. `problems` holds the `file:key: message` lines."""
+    """A profile that cannot be loaded or saved. `problems` holds every `file:key: message` line; the
+    message is one line: the first SHOWN_PROBLEMS of them joined by ` | `, then how many more."""
 
     def __init__(self, problems: list[str]) -> None:
         self.problems = problems
-        super().__init__("\n".join(problems))
+        shown = [_cut(p) for p in problems[:SHOWN_PROBLEMS]]
+        more = len(problems) - len(shown)
+        if more:
+            shown.append(f"and {more} more problem{'' if more == 1 else 's'}")
+        super().__init__(" | ".join(shown))
+
+
+def _cut(line: str) -> str:
+    return line if len(line) <= LINE_CHARS else line[: LINE_CHARS - 3] + "..."
+
+
+def _key(text: str) -> str:
+    """A key or name quoted from the file, as a message shows it (escaped, cut)."""
+    return printable(text, 60)
+
+
+def _shown(value: Any) -> str:
+    """A value quoted from the file: `'text'`, `3`, `[1, 2]`; a huge number by its digit count."""
+    if isinstance(value, int) and not isinstance(value, bool) and abs(value) >= 10**18:
+        return f"a number of {len(str(abs(value)))} digits"
+    if isinstance(value, str):
+        return f"'{printable(value, 60)}'"
+    text = repr(value) if not isinstance(value, list | dict) or len(value) <= 8 else \
+        f"a {'list' if isinstance(value, list) else 'table'} of {len(value)} items"
+    return printable(text, 60)
 
 
 @dataclass(frozen=True)
@@ -137,12 +176,23 @@ def profile_from_board(info: Any) -> Profile:
 
 # ---------------------------------------------------------------- validation
 
+def _hint(name: str, candidates: Iterable[str]) -> str | None:
+    """The closest candidate to a misspelt `name`, or None (long names are not searched: no name is long)."""
+    if len(name) > 64:
+        return None
+    close = difflib.get_close_matches(name, list(candidates), n=1)
+    return close[0] if close else None
+
+
 def _unknown(where: str, table: Mapping[str, Any], allowed: tuple[str, ...], out: Problems) -> None:
-    for key in table:
-        if key not in allowed:
-            close = difflib.get_close_matches(key, allowed, n=1)
-            hint = f"; did you mean '{close[0]}'?" if close else f"; known keys: {', '.join(allowed)}"
-            out.append((f"{where}{key}", f"unknown key{hint}"))
+    unknown = [key for key in table if key not in allowed]
+    for key in unknown[:HINTED]:
+        close = _hint(key, allowed)
+        hint = f"; did you mean '{close}'?" if close else f"; known keys: {', '.join(allowed)}"
+        out.append((f"{where}{_key(key)}", f"unknown key{hint}"))
+    if len(unknown) > HINTED:
+        out.append((where.rstrip(".") or "(top level)", f"{len(unknown)} unknown keys in all "
+                    f"(the first {HINTED} above); known keys: {', '.join(allowed)}"))
 
 
 def _is_int(v: Any) -> bool:
@@ -158,7 +208,11 @@ def _settings(where: str, table: Any, base: ChannelSettings, out: Problems,
     values = {k: v for k, v in table.items() if k in SETTING_KEYS}
     bad = [k for k, v in values.items() if not _is_int(v)]
     for k in bad:
-        out.append((f"{where}{k}", f"must be a whole number, not {values[k]!r}"))
+        out.append((f"{where}{k}", f"must be a whole number, not {_shown(values[k])}"))
+    huge = [k for k, v in values.items() if k not in bad and abs(v) >= 2**63]
+    for k in huge:
+        out.append((f"{where}{k}", f"{_shown(values[k])} is far out of range"))
+    bad += huge
     if bad:
         return None
     s = replace(base, **values)
@@ -173,7 +227,7 @@ def _names(raw: dict[str, Any], out: Problems) -> tuple[str, ...] | None:
         out.append(("channels", "missing; add the channel count (channels = N)"))
         return None
     if not _is_int(channels) or not 1 <= channels <= MAX_CHANNELS:
-        out.append(("channels", f"must be a channel count from 1 to {MAX_CHANNELS}, not {channels!r}"))
+        out.append(("channels", f"must be a channel count from 1 to {MAX_CHANNELS}, not {_shown(channels)}"))
         return None
     if names is None:
         return default_names(channels)
@@ -186,48 +240,59 @@ def _names(raw: dict[str, Any], out: Problems) -> tuple[str, ...] | None:
     for n in names:
         why = name_problem(n)
         if why is not None:
-            out.append(("names", f"'{n}' is not a valid name ({why}; {NAME_HINT})"))
-    dupes = sorted({n for n in names if names.count(n) > 1})
+            out.append(("names", f"'{_key(n)}' is not a valid name ({why}; {NAME_HINT})"))
+    dupes = sorted(n for n, count in Counter(names).items() if count > 1)
     if dupes:
-        out.append(("names", f"duplicate names: {', '.join(dupes)}"))
+        out.append(("names", f"duplicate names: {', '.join(_key(n) for n in dupes[:HINTED * 2])}"
+                    + (f" and {len(dupes) - HINTED * 2} more" if len(dupes) > HINTED * 2 else "")))
     return tuple(names)
 
 
-def _channel_refs(where: str, refs: Any, names: tuple[str, ...], out: Problems) -> tuple[int, ...] | None:
+def _channel_refs(where: str, refs: Any, index: Mapping[str, int], out: Problems) -> tuple[int, ...] | None:
     """Channel indices for a list of names, or None (with the problems recorded) when any is wrong."""
     if not isinstance(refs, list) or not refs:
         out.append((where, "must be a non-empty list of channel names"))
         return None
     found: list[int] = []
+    wrong = 0
     for ref in refs:
-        if isinstance(ref, str) and ref in names:
-            found.append(names.index(ref))
-        elif not isinstance(ref, str):
-            out.append((where, f"{ref!r} is not a channel name (names are strings in quotes)"))
+        if isinstance(ref, str) and ref in index:
+            found.append(index[ref])
+            continue
+        wrong += 1
+        if wrong > HINTED:
+            continue
+        if not isinstance(ref, str):
+            out.append((where, f"{_shown(ref)} is not a channel name (names are strings in quotes)"))
         else:
-            close = difflib.get_close_matches(str(ref), names, n=1)
-            hint = f"; did you mean '{close[0]}'?" if close else ""
-            out.append((where, f"unknown channel {ref!r}{hint}"))
+            close = _hint(ref, index)
+            hint = f"; did you mean '{close}'?" if close else ""
+            out.append((where, f"unknown channel {_shown(ref)}{hint}"))
+    if wrong > HINTED:
+        out.append((where, f"{wrong} entries in all are not channel names of this profile"))
     if len(set(found)) != len(found):
         out.append((where, "lists a channel twice"))
     return tuple(found) if len(found) == len(refs) else None
 
 
 def _unique_names(table: str, names: list[str], out: Problems) -> None:
+    first: dict[str, int] = {}
     for i, name in enumerate(names):
-        if name in names[:i]:
-            first = names.index(name)
-            out.append((f"{table}[{i}].name", f"'{name}' is already the name of {table}[{first}]"))
+        if name in first:
+            out.append((f"{table}[{i}].name",
+                        f"'{_key(name)}' is already the name of {table}[{first[name]}]"))
+        else:
+            first[name] = i
 
 
 def _name_problem(where: str, name: Any, out: Problems) -> None:
     if name is None:
         out.append((f"{where}name", f"missing; give it a name ({NAME_HINT})"))
     elif not isinstance(name, str) or not NAME_RE.match(name):
-        out.append((f"{where}name", f"must be a name ({NAME_HINT}), not {name!r}"))
+        out.append((f"{where}name", f"must be a name ({NAME_HINT}), not {_shown(name)}"))
 
 
-def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec, ...]:
+def _groups(raw: Any, names: Mapping[str, int], out: Problems) -> tuple[GroupSpec, ...]:
     groups: list[GroupSpec] = []
     for i, g in enumerate(raw if isinstance(raw, list) else []):
         where = f"group[{i}]."
@@ -239,7 +304,7 @@ def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec,
         _name_problem(where, name, out)
         if not _is_int(margin) or not 0 <= margin <= MAX_COUNTS:
             out.append((f"{where}switch_margin_counts",
-                        f"must be a whole number from 0 to {MAX_COUNTS}, not {margin!r}"))
+                        f"must be a whole number from 0 to {MAX_COUNTS}, not {_shown(margin)}"))
         members = _channel_refs(f"{where}members", g.get("members"), names, out)
         if members is not None and len(members) == 1:
             out.append((f"{where}members", "an exclusive group needs at least two members"))
@@ -250,7 +315,7 @@ def _groups(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[GroupSpec,
     return tuple(groups)
 
 
-def _sliders(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[SliderSpec, ...]:
+def _sliders(raw: Any, names: Mapping[str, int], out: Problems) -> tuple[SliderSpec, ...]:
     sliders: list[SliderSpec] = []
     for i, sl in enumerate(raw if isinstance(raw, list) else []):
         where = f"slider[{i}]."
@@ -261,9 +326,9 @@ def _sliders(raw: Any, names: tuple[str, ...], out: Problems) -> tuple[SliderSpe
         name, wheel, res = sl.get("name"), sl.get("wheel", False), sl.get("resolution", 100)
         _name_problem(where, name, out)
         if not isinstance(wheel, bool):
-            out.append((f"{where}wheel", f"must be true or false, not {wheel!r}"))
+            out.append((f"{where}wheel", f"must be true or false, not {_shown(wheel)}"))
         if not _is_int(res) or not 2 <= res <= 65535:
-            out.append((f"{where}resolution", f"must be a whole number from 2 to 65535, not {res!r}"))
+            out.append((f"{where}resolution", f"must be a whole number from 2 to 65535, not {_shown(res)}"))
         pads = _channel_refs(f"{where}pads", sl.get("pads"), names, out)
         need = 3 if wheel is True else 2
         if pads is not None and len(pads) < need:
@@ -285,7 +350,11 @@ def _limits(raw: Any, out: Problems, where: str = "limits", base: Limits | None 
         out.append((where, "must be a table"))
         return base
     _unknown(f"{where}.", raw, LIMIT_KEYS, out)
-    limits = replace(base, **{k: v for k, v in raw.items() if k in LIMIT_KEYS})
+    values = {k: v for k, v in raw.items() if k in LIMIT_KEYS}
+    huge = [k for k, v in values.items() if _is_int(v) and abs(v) >= 2**63]
+    for k in huge:
+        out.append((f"{where}.{k}", f"{_shown(values.pop(k))} is far out of range"))
+    limits = replace(base, **values)
     out.extend((f"{where}.{k}", m) for k, m in limits.problems())
     return limits
 
@@ -295,17 +364,36 @@ def _head(raw: dict[str, Any], out: Problems) -> None:
     if version is None:
         out.append(("format_version", f"missing; add format_version = {FORMAT_VERSION}"))
     elif not _is_int(version):
-        out.append(("format_version", f"must be the whole number {FORMAT_VERSION}, not {version!r}"))
+        out.append(("format_version", f"must be the whole number {FORMAT_VERSION}, not {_shown(version)}"))
     elif version > FORMAT_VERSION:
-        out.append(("format_version", f"{version} is newer than this padtune reads ({FORMAT_VERSION}); "
-                    "update padtune"))
+        out.append(("format_version", f"{_shown(version)} is newer than this padtune reads "
+                    f"({FORMAT_VERSION}); update padtune"))
     elif version < 1:
-        out.append(("format_version", f"must be {FORMAT_VERSION}, not {version}"))
-    if not isinstance(raw.get("board", ""), str):
+        out.append(("format_version", f"must be {FORMAT_VERSION}, not {_shown(version)}"))
+    board = raw.get("board", "")
+    if not isinstance(board, str):
         out.append(("board", "must be a string"))
+    elif len(board) > MAX_BOARD_CHARS or not board.isprintable():
+        out.append(("board", f"must be one line of at most {MAX_BOARD_CHARS} printable characters, not "
+                    f"{_shown(board)}"))
     rate = raw.get("rate_hz")
-    if rate is not None and not is_positive_number(rate):
-        out.append(("rate_hz", f"must be a positive number, not {rate!r}"))
+    if rate is not None and (not is_positive_number(rate) or (_is_int(rate) and rate.bit_length() > 1000)):
+        # the second test: an integer too large for a float (float() raises OverflowError on it)
+        out.append(("rate_hz", f"must be a positive number, not {_shown(rate)}"))
+
+
+def _unknown_channels(unknown: list[str], index: Mapping[str, int], out: Problems) -> None:
+    """`[channel.X]` tables whose X is no channel: a hint each for a few, then one line with the count (a
+    did-you-mean search per table against every name made 20,000 such tables take minutes)."""
+    if len(unknown) <= HINTED:
+        for key in unknown:
+            close = _hint(key, index)
+            hint = f"; did you mean '{close}'?" if close else ""
+            out.append((f"channel.{_key(key)}", f"no channel named '{_key(key)}'{hint}"))
+        return
+    first = ", ".join(f"'{_key(key)}'" for key in unknown[:HINTED])
+    out.append(("channel", f"{len(unknown)} [channel.NAME] tables name no channel of this profile "
+                f"({first} and {len(unknown) - HINTED} more); `names` lists the channels"))
 
 
 def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[str, str]]]:
@@ -329,17 +417,16 @@ def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[s
     if not isinstance(table, dict):
         out.append(("channel", "must be a table of per-channel tables ([channel.NAME])"))
         table = {}
+    index = {name: c for c, name in enumerate(names)}
+    _unknown_channels([key for key in table if key not in index], index, out)
     for key, sub in table.items():
-        if key not in names:
-            close = difflib.get_close_matches(key, names, n=1)
-            hint = f"; did you mean '{close[0]}'?" if close else ""
-            out.append((f"channel.{key}", f"no channel named '{key}'{hint}"))
+        c = index.get(key)
+        if c is None:
             continue
-        c = names.index(key)
         if isinstance(sub, dict):
             measured = sub.get("measured", True)
             if not isinstance(measured, bool):
-                out.append((f"channel.{key}.measured", f"must be true or false, not {measured!r}"))
+                out.append((f"channel.{key}.measured", f"must be true or false, not {_shown(measured)}"))
             elif not measured:
                 unmeasured.add(c)
             if "limits" in sub:
@@ -350,8 +437,8 @@ def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[s
         s = _settings(f"channel.{key}.", sub, defaults, out, SETTING_KEYS + CHANNEL_EXTRA_KEYS)
         if s is not None and s != defaults:
             overrides[c] = s
-    groups = _groups(raw.get("group"), names, out)
-    sliders = _sliders(raw.get("slider"), names, out)
+    groups = _groups(raw.get("group"), index, out)
+    sliders = _sliders(raw.get("slider"), index, out)
     if out:
         return None, out
     rate = raw.get("rate_hz")
@@ -361,27 +448,18 @@ def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[s
 
 
 def load_profile(path: str | os.PathLike[str]) -> Profile:
-    """Read and validate a profile; raise ProfileError listing every problem (`file:key: message`)."""
+    """Read and validate a profile; raise ProfileError listing every problem (`file:key: message`).
+
+    Never blocks or reads without bound: a FIFO, a device or a folder is refused by what it is before it
+    is opened, a file above MAX_PROFILE_BYTES by its size (`protocol.tomlfile.read_toml`)."""
     p = Path(path)
     try:
-        data = p.read_bytes()
-    except FileNotFoundError:
-        raise ProfileError([f"{p}: no such profile file; check the path"]) from None
-    except IsADirectoryError:
-        raise ProfileError([f"{p}: is a folder, not a profile file"]) from None
-    except PermissionError:
-        raise ProfileError([f"{p}: cannot read: permission denied; check the file's permissions"]) from None
-    except OSError as exc:
-        raise ProfileError([f"{p}: cannot read: {exc.strerror or exc}"]) from None
-    try:
-        raw = tomllib.loads(data.decode("utf-8-sig"))  # a byte order mark is not a mistake
-    except UnicodeDecodeError:
-        raise ProfileError([f"{p}: not UTF-8 text; a profile is a TOML file"]) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ProfileError([f"{p}: not valid TOML: {exc}"]) from None
+        raw = read_toml(p, "profile", MAX_PROFILE_BYTES)
+    except UserError as exc:
+        raise ProfileError([str(exc)]) from None
     profile, problems = profile_from_dict(raw)
     if profile is None:
-        raise ProfileError([f"{p}:{key}: {message}" for key, message in problems])
+        raise ProfileError([f"{shown_path(p)}:{key}: {message}" for key, message in problems])
     return profile
 
 
@@ -393,7 +471,10 @@ def _settings_table(s: ChannelSettings, base: ChannelSettings | None) -> dict[st
 
 def profile_to_dict(profile: Profile) -> dict[str, Any]:
     """The TOML document for a profile (plain Python types only: tomli-w rejects numpy ints and None)."""
-    doc: dict[str, Any] = {"format_version": FORMAT_VERSION, "board": profile.board,
+    # A board id is free text from the board's info line: written printable and cut, so the file loads
+    # again (backslashes kept as they are, so saving twice never changes it twice).
+    board = printable(profile.board, MAX_BOARD_CHARS, double_backslash=False)
+    doc: dict[str, Any] = {"format_version": FORMAT_VERSION, "board": board,
                            "channels": profile.channels, "names": list(profile.names)}
     if profile.polarity:
         doc["polarity"] = [int(p) for p in profile.polarity]

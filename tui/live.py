@@ -7,12 +7,14 @@ line; once the screen is up, the link reconnects by itself and the screen shows 
 
 from __future__ import annotations
 
+import stat
 import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from processing.profile import Profile, load_profile
+from processing.profile import MAX_PROFILE_BYTES, Profile, load_profile
 from protocol.errors import UserError
+from protocol.tomlfile import shown_path
 
 
 def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = False,
@@ -21,12 +23,13 @@ def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = Fal
     """Open `target`, run the screen until the user quits; `start_profile` is used when no file is given.
     `notices` are lines for the screen's log (stderr belongs to the screen while it runs); `polarity` is
     `--polarity` (empty: the board's, the profile's, or learned)."""
+    # The profile first: a bad one is one line before the port, the session or the screen (Textual) exist.
+    profile = load_profile(profile_path) if profile_path is not None else start_profile
     from processing.session import Session
     from protocol.link import Link
     from tui.app import PadtuneApp
     from tui.session_source import SessionSource
 
-    profile = load_profile(profile_path) if profile_path is not None else start_profile
     link = Link(target, baud)
     link.start()  # UserError (one line) when the port cannot be opened
     try:
@@ -44,11 +47,20 @@ def run_live(target: str, baud: int, profile_path: Path | None, demo: bool = Fal
 
 
 def check_profile_arg(text: str | None) -> Path | None:
+    """`--profile`'s path, refused at once when it is no regular file (a FIFO, a device, a folder: by what
+    it is, never opened) or too large; `run_live` then loads it before the port opens or the screen starts."""
     if text is None:
         return None
     path = Path(text).expanduser()
-    if not path.is_file():
-        raise UserError(f"no profile file at {path}: give an existing .toml file, or leave --profile out")
+    try:
+        st = path.stat()
+    except FileNotFoundError:
+        raise UserError(f"no profile file at {shown_path(path)}: give an existing .toml file, or leave "
+                        "--profile out") from None
+    except OSError:
+        st = None  # load_profile says why it cannot be read
+    if st is None or not stat.S_ISREG(st.st_mode) or st.st_size > MAX_PROFILE_BYTES:
+        load_profile(path)  # raises ProfileError naming what the path is, or its size against the cap
     return path
 
 

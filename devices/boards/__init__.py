@@ -1,7 +1,9 @@
 """Board description files (`*.toml` beside this module): finding, loading and validating them.
 
 `load_board("greenhouse")` or `load_board("path/to/my.toml")` returns a `devices.spec.BoardSpec`.
-Every mistake in a file becomes one `UserError` line: `file: table.key: what is wrong (what to do)`.
+Every mistake in a file becomes one `UserError` line: `file: table.key: what is wrong (what to do)`, with
+what it quotes from the file escaped (`printable`) and cut. The file itself (a FIFO, a device, more than
+MAX_BOARD_BYTES, not UTF-8, nested thousands deep) is refused by `protocol.tomlfile` before any key is read.
 The keys are documented in `devices/README.md`.
 """
 
@@ -11,7 +13,6 @@ import difflib
 import math
 import pathlib
 import re
-import tomllib
 from typing import Any
 
 from devices import physics
@@ -30,12 +31,17 @@ from devices.spec import (
     SliderSpec,
 )
 from protocol.errors import UserError
+from protocol.printable import printable
+from protocol.tomlfile import MIB, read_toml, shown_path
 
 BOARDS_DIR = pathlib.Path(__file__).parent
 MAX_LINE_BYTES = 1024  # protocol v1's line limit (protocol/PROTOCOL.md)
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_.-]{0,31}$")
 _FW_RE = re.compile(r"^[A-Za-z0-9_.+-]{1,32}$")  # goes into the info line: no spaces, commas or '='
 MAX_DESCRIPTION_CHARS = 200  # the boot comment line carries it
+MAX_BOARD_BYTES = 1 * MIB  # far above any real board file (the bundled ones are under 4 KiB); refused unread
+MAX_PADS = 256
+MESSAGE_CHARS = 400  # a message quoting a 4 MiB value is cut to this
 _TOP = {"board", "method", "overlay", "finger", "pad_defaults", "pad", "pad_grid", "slider", "noise",
         "script"}
 
@@ -47,26 +53,27 @@ def list_boards() -> list[str]:
 def board_path(name_or_path: str) -> pathlib.Path:
     candidate = pathlib.Path(name_or_path)
     if candidate.suffix == ".toml" or "/" in name_or_path:
-        if not candidate.is_file():
-            raise UserError(f"board file {name_or_path} not found; give a .toml path or one of: "
+        if not candidate.exists():
+            raise UserError(f"board file {shown_path(name_or_path)} not found; give a .toml path or one of: "
                             f"{', '.join(list_boards())}")
-        return candidate
+        return candidate  # a folder, a FIFO or a device is refused by what it is when it is read
     path = BOARDS_DIR / f"{name_or_path}.toml"
     if not path.is_file():
         close = difflib.get_close_matches(name_or_path, list_boards(), n=1)
         hint = f" (did you mean {close[0]}?)" if close else ""
-        raise UserError(f"unknown board {name_or_path!r}{hint}; known boards: {', '.join(list_boards())} "
-                        f"(or give a path to a .toml file)")
+        raise UserError(f"unknown board '{printable(name_or_path, 60)}'{hint}; known boards: "
+                        f"{', '.join(list_boards())} (or give a path to a .toml file)")
     return path
 
 
 def load_board(name_or_path: str) -> BoardSpec:
     path = board_path(name_or_path)
+    data = read_toml(path, "board", MAX_BOARD_BYTES)
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise UserError(f"{path.name}: not valid TOML: {exc}") from None
-    return _Parser(path.name).board(data, source=str(path))
+        return _Parser(path.name).board(data, source=str(path))
+    except UserError as exc:
+        # Keys and values quoted from the file: control characters escaped, a huge value cut.
+        raise UserError(printable(str(exc), MESSAGE_CHARS, double_backslash=False)) from None
 
 
 class _Parser:
@@ -92,7 +99,7 @@ class _Parser:
     def check_keys(self, table: dict, where: str, allowed: set[str]) -> None:
         for k in table:
             if k not in allowed:
-                close = difflib.get_close_matches(k, sorted(allowed), n=1)
+                close = difflib.get_close_matches(k, sorted(allowed), n=1) if len(k) <= 64 else []
                 hint = f" (did you mean {close[0]}?)" if close else ""
                 raise self.fail(f"{where}.{k}", f"unknown key{hint}; known: {', '.join(sorted(allowed))}")
 
@@ -111,7 +118,8 @@ class _Parser:
                 raise self.fail(f"{where}.{key}", "missing (a number is needed)")
             return default
         value = table[key]
-        if isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
+        # Compared, not math.isfinite: an integer of hundreds of digits overflows a float (OverflowError).
+        if isinstance(value, bool) or not isinstance(value, int | float) or not -1e300 < value < 1e300:
             raise self.fail(f"{where}.{key}", f"must be a number, got {value!r}")
         if value < low or (not inclusive_low and value == low) or value > high:
             bounds = f"{'>=' if inclusive_low else '>'} {low:g}"
@@ -133,9 +141,9 @@ class _Parser:
 
     def one_line(self, table: dict, where: str, key: str, default: str) -> str:
         value = self.text(table, where, key, default)
-        if "\n" in value or "\r" in value or len(value) > MAX_DESCRIPTION_CHARS:
+        if not value.isprintable() or len(value) > MAX_DESCRIPTION_CHARS:  # no newline, ESC or other control
             raise self.fail(f"{where}.{key}", f"must be one line of at most {MAX_DESCRIPTION_CHARS} "
-                            "characters")
+                            "printable characters")
         return value
 
     def fw(self, table: dict) -> str:
@@ -160,7 +168,7 @@ class _Parser:
         method_table.pop("kind")
         method = method_from_table(kind, method_table, where=f"{self.file}: method")
         pads = self.pads(data)
-        names = [p.name for p in pads]
+        names = dict.fromkeys(p.name for p in pads)  # ordered, and a name is found in O(1)
         if frame_line_bytes(len(pads), method.max_count) > MAX_LINE_BYTES:
             raise self.fail("pad", f"{len(pads)} pads make frame lines longer than the protocol's "
                             f"{MAX_LINE_BYTES} bytes with this method's readings; use fewer pads")
@@ -225,6 +233,11 @@ class _Parser:
             cols = self.whole(g, "pad_grid", "cols", 1, 64)
             pitch = self.num(g, "pad_grid", "pitch_mm", low=1, high=100)
             prefix = self.text(g, "pad_grid", "prefix", "k")
+            wide = max(rows, cols) > 10
+            last = f"{prefix}{rows - 1}_{cols - 1}" if wide else f"{prefix}{rows - 1}{cols - 1}"
+            if not _NAME_RE.match(last):  # the longest name it makes (the names are made below)
+                raise self.fail("pad_grid.prefix", f"{prefix!r} does not make plain pad names (letter first, "
+                                "then letters, digits, _ . -; names at most 32 characters)")
             area, parasitic = self.pad({}, "pad_defaults", defaults)
             for r in range(rows):
                 for c in range(cols):
@@ -234,6 +247,8 @@ class _Parser:
             entries = data["pad"]
             if not isinstance(entries, list) or not entries:
                 raise self.fail("pad", "must be a list of [[pad]] tables")
+            if len(entries) > MAX_PADS:
+                raise self.fail("pad", f"{len(entries)} pads; a simulated board has at most {MAX_PADS}")
             for i, t in enumerate(entries):
                 where = f"pad[{i}]"
                 if not isinstance(t, dict):
@@ -248,11 +263,11 @@ class _Parser:
             if p.name in seen:
                 raise self.fail("pad", f"the name {p.name!r} is used twice; pad names must be unique")
             seen.add(p.name)
-        if len(out) > 256:
-            raise self.fail("pad", f"{len(out)} pads; a simulated board has at most 256")
+        if len(out) > MAX_PADS:
+            raise self.fail("pad", f"{len(out)} pads; a simulated board has at most {MAX_PADS}")
         return out
 
-    def sliders(self, data: dict, names: list[str]) -> list[SliderSpec]:
+    def sliders(self, data: dict, names: dict[str, None]) -> list[SliderSpec]:
         out = []
         for i, t in enumerate(self.tables(data.get("slider"), "slider", "[[slider]]")):
             where = f"slider[{i}]"
@@ -270,9 +285,10 @@ class _Parser:
             out.append(SliderSpec(name, tuple(pads)))
         return out
 
-    def known_pad(self, pad: object, where: str, names: list[str]) -> str:
+    def known_pad(self, pad: object, where: str, names: dict[str, None]) -> str:
         if not isinstance(pad, str) or pad not in names:
-            close = difflib.get_close_matches(str(pad), names, n=1)
+            close = difflib.get_close_matches(pad, names, n=1) if isinstance(pad, str) and len(pad) <= 64 \
+                else []
             hint = f" (did you mean {close[0]}?)" if close else ""
             raise self.fail(where, f"no pad named {pad!r}{hint}")
         return pad
@@ -290,7 +306,7 @@ class _Parser:
                             f"0 to 1, got {values['crosstalk']:g}")
         return NoiseSpec(**values)
 
-    def script(self, data: dict, names: list[str], sliders: list[SliderSpec]) -> list[ScriptTouch]:
+    def script(self, data: dict, names: dict[str, None], sliders: list[SliderSpec]) -> list[ScriptTouch]:
         s = self.table(data, "script", {"loop_s", "touch", "random"}, required=False)
         by_slider = {sl.name: sl for sl in sliders}
         out = []
@@ -342,7 +358,7 @@ class _Parser:
             return people[t["who"]]
         return None
 
-    def random(self, data: dict, names: list[str]) -> RandomTouchSpec:
+    def random(self, data: dict, names: dict[str, None]) -> RandomTouchSpec:
         s = data.get("script", {})
         keys = set(RandomTouchSpec.__dataclass_fields__)
         t = self.table(s, "random", keys, required=False) if isinstance(s, dict) else {}

@@ -29,21 +29,22 @@ def test_export_header_and_json(tmp_path):
     assert json.loads((tmp_path / "panel.json").read_text())["channels"][2]["name"] == "stop"
 
 
-def test_bad_profile_exits_2_one_line_per_problem(tmp_path):
+def test_bad_profile_exits_2_one_line_naming_every_problem(tmp_path):
     bad = GOOD.replace("threshold_counts = 120", "thresold_counts = 120")
     bad = bad.replace('"zone1", "zone2"]\n[[slider]]', '"zone1", "zone7"]\n[[slider]]')
     (tmp_path / "panel.toml").write_text(bad)
     out = padtune("export", "panel.toml", "--json", "panel.json", cwd=tmp_path)
     assert out.returncode == 2 and out.stdout == "" and "Traceback" not in out.stderr
+    # One line (issue 13: nothing a file holds may add lines to stderr), the problems joined by " | ".
     assert out.stderr.splitlines() == [
-        "padtune: panel.toml:defaults.thresold_counts: unknown key; did you mean 'threshold_counts'?",
+        "padtune: panel.toml:defaults.thresold_counts: unknown key; did you mean 'threshold_counts'? | "
         "panel.toml:group[0].members: unknown channel 'zone7'; did you mean 'zone2'?",
     ]
     assert not (tmp_path / "panel.json").exists()
 
 
 BAD_FILES = [
-    # (file text, a piece of each line expected, in order)
+    # (file text, a piece of each problem expected, in order)
     (GOOD.replace("[defaults]", "[defualts]"), ["defualts: unknown key; did you mean 'defaults'?"]),
     (GOOD.replace("channels = 3", 'channels = "3"').replace("= 120", "= 1.5"),
      ["channels: must be a channel count from 1 to 1024, not '3'",
@@ -59,11 +60,12 @@ BAD_FILES = [
 
 @pytest.mark.parametrize(("text", "pieces"), BAD_FILES,
                          ids=["misspelt", "types", "hysteresis", "group", "not-toml", "empty"])
-def test_bad_files_each_problem_on_its_own_line(tmp_path, text, pieces):
+def test_bad_files_each_problem_named_on_one_line(tmp_path, text, pieces):
     (tmp_path / "bad.toml").write_text(text)
     out = padtune("export", "bad.toml", "--json", "out.json", cwd=tmp_path)
     assert out.returncode == 2 and "Traceback" not in out.stderr and out.stdout == ""
-    lines = out.stderr.removeprefix("padtune: ").splitlines()
+    assert len(out.stderr.splitlines()) == 1
+    lines = out.stderr.removeprefix("padtune: ").rstrip("\n").split(" | ")
     assert len(lines) == len(pieces)
     for line, piece in zip(lines, pieces, strict=True):
         assert line.startswith("bad.toml") and piece in line, (line, piece)
@@ -74,7 +76,7 @@ def test_unusable_paths_give_one_line(tmp_path):
     (tmp_path / "folder.toml").mkdir()
     out = padtune("export", "folder.toml", "--json", "out.json", cwd=tmp_path)
     assert out.returncode == 2
-    assert out.stderr.strip() == "padtune: folder.toml: is a folder, not a profile file"
+    assert out.stderr.strip() == "padtune: folder.toml: is a folder, not a file; give the profile file itself"
     (tmp_path / "p.toml").write_text(GOOD)
     out = padtune("export", "p.toml", "--json", "no-such-folder/out.json", cwd=tmp_path)
     assert out.returncode == 2 and "Traceback" not in out.stderr

@@ -14,6 +14,7 @@ from typing import Any
 
 from processing.profile import profile_to_dict
 from processing.profile_diff import ProfileDiff, diff_dict, diff_documents
+from protocol.printable import printable
 from tui.headless.ports import load_profile_arg, quiet_broken_pipe
 
 
@@ -54,7 +55,7 @@ def _shown(value: Any) -> str:
         return "[" + ", ".join(_shown(v) for v in value) + "]"
     if isinstance(value, str) and value == "":
         return '""'
-    return str(value)
+    return printable(str(value), 200)  # a profile's board id is free text: no control codes on the terminal
 
 
 _WHAT = {"profile": "profile", "channel": "channel", "group": "group", "slider": "slider"}
@@ -64,7 +65,7 @@ def human_text(diff: ProfileDiff, name_a: str, name_b: str) -> str:
     """`channel zone1  threshold_counts  100 -> 120` lines, grouped by item, then the unmatched ones."""
     if diff.equal:
         return f"{name_a} and {name_b} are the same (every channel's settings and limits, groups, sliders)\n"
-    lines = [f"A = {name_a}", f"B = {name_b}"]
+    lines = [f"A = {printable(name_a)}", f"B = {printable(name_b)}"]
     width = max((len(d.key) for d in diff.differences), default=0)
     last = None
     for d in diff.differences:

@@ -83,12 +83,8 @@ def load_profile_arg(text: str | None) -> Profile | None:
         return None
     from processing.profile import load_profile
 
-    path = Path(text).expanduser()
-    if not path.exists():
-        raise UserError(f"{path}: no such profile file: give an existing .toml profile")
-    if path.is_dir():
-        raise UserError(f"{path}: is a folder, not a profile file")
-    return load_profile(path)
+    # load_profile says what is wrong with the path itself: missing, a folder, a FIFO, a device, too large.
+    return load_profile(Path(text).expanduser())
 
 
 def baud_note(port: str, baud: int | None) -> str | None:
