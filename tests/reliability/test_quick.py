@@ -139,6 +139,9 @@ def test_gather_finds_only_hostile_modules():
 def test_runner_prints_one_table_and_fails_on_a_figure_out_of_bounds(monkeypatch, capsys):
     good = [Figure("a: fine", 1, "", "= 1", True)]
     bad = [Figure("b: broken", 2, "", "= 0", False, note="what went wrong")]
+    # main() sets NO_COLOR for the subprocesses it starts: never for the rest of this test session (the
+    # TUI snapshots after this test would be drawn without colour).
+    monkeypatch.setenv("NO_COLOR", "1")
     monkeypatch.setattr(run, "PARTS", ("one", "two"))
     monkeypatch.setattr(run, "run_part", lambda name, quick: ((good if name == "one" else bad), 0.0))
     assert run.main([]) == 1
