@@ -399,11 +399,14 @@ class SettleGate:
             return deltas[:0], np.zeros(deltas.shape, bool)
         frame = first_frame + np.arange(n, dtype=np.int64)[:, None]
         busy = states != KeyState.RELEASED
-        if self.any_key and busy.shape[1] > 1:  # another key's touch moves this one too: not its noise
+        shared = self.any_key and busy.shape[1] > 1
+        if shared:  # another key's touch moves this one too: not its noise
             busy = np.broadcast_to(busy.any(axis=1, keepdims=True), busy.shape)
         if busy.any():
-            last_busy = np.maximum.accumulate(np.where(busy, frame, self.NEVER), axis=0)
-            np.maximum(last_busy, self.last_busy[None, :], out=last_busy)
+            # The last busy frame up to each row; with one busy column for all keys, found once for it.
+            column = busy[:, :1] if shared else busy
+            last_busy = np.maximum.accumulate(np.where(column, frame, self.NEVER), axis=0)
+            last_busy = np.maximum(last_busy, self.last_busy[None, :])
         else:  # the usual block, every key released: the last activity stays where it was, on every row
             last_busy = self.last_busy[None, :]
         ext_deltas = np.concatenate((self.tail_deltas, deltas))
