@@ -325,6 +325,14 @@ class NoiseSpectrum:
         return self.peak.brief() if self.peak is not None else "no noise peak"
 
 
+def _one_mask(mask: np.ndarray, counts: np.ndarray, rows: int) -> bool:
+    """Whether every column of `mask` selects the same rows, some but not all (the settle guard's mask
+    when every key shares the activity: then the rows are picked once, not per channel)."""
+    if mask.shape[1] < 2 or not 0 < counts[0] < rows or (counts != counts[0]).any():
+        return False
+    return bool((mask == mask[:, :1]).all())
+
+
 class ColumnRing:
     """One fixed-size ring per channel, filled with the frames a mask selects (e.g. released ones)."""
 
@@ -337,6 +345,8 @@ class ColumnRing:
 
     def push(self, values: np.ndarray, mask: np.ndarray) -> None:
         counts = mask.sum(axis=0)
+        if _one_mask(mask, counts, len(values)):  # every channel takes the same rows: pick them once
+            values = values[mask[:, 0]]
         whole = counts == len(values)
         if whole.any():  # channels that take every row: one vectorised scatter
             rows = values[-self.capacity:]
