@@ -18,6 +18,7 @@ import math
 import os
 import re
 import stat
+import warnings
 from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import BinaryIO
@@ -139,9 +140,11 @@ def _whole_rows(rows: list[str], width: int) -> Rows | None:
         heads.append(head)
         rests.append(rest)
     try:
-        ints = np.loadtxt(rests, delimiter=",", dtype=np.int64, ndmin=2, comments=None)
-        t_s = np.loadtxt(heads, delimiter=",", dtype=np.float64, ndmin=1, comments=None)
-    except ValueError:
+        with warnings.catch_warnings():  # numpy warns of lines it skips as empty: the float way decides
+            warnings.simplefilter("error")
+            ints = np.loadtxt(rests, delimiter=",", dtype=np.int64, ndmin=2, comments=None)
+            t_s = np.loadtxt(heads, delimiter=",", dtype=np.float64, ndmin=1, comments=None)
+    except (ValueError, UserWarning):
         return None
     if ints.shape != (len(rows), width + 1) or t_s.shape != (len(rows),) or not np.all(np.isfinite(t_s)):
         return None
