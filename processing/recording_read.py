@@ -129,28 +129,23 @@ def check_rows(rows: list[str], width: int) -> Rows:
 
 def _whole_rows(rows: list[str], width: int) -> Rows | None:
     """`check_rows` the quick way, for rows whose seq and readings are written as integers (as padtune
-    writes them): those columns parsed as integers, the time as before. None when anything is not so
-    (a reading written `12.0` or `1e3`, another width, a value out of range): `_float_rows` then decides,
-    and its answer is the same wherever this one gives one (numpy's integer parser takes a subset of
-    what its float parser takes, and a 32-bit integer is exact in a float64)."""
-    heads: list[str] = []
-    rests: list[str] = []
-    for row in rows:
-        head, _, rest = row.partition(",")
-        heads.append(head)
-        rests.append(rest)
+    writes them): one numpy call with the time parsed as a float (as before) and the rest as integers.
+    None when anything is not so (a reading written `12.0` or `1e3`, another width, a value out of
+    range): `_float_rows` then decides, and its answer is the same wherever this one gives one (numpy's
+    integer parser takes a subset of what its float parser takes; a 32-bit integer is exact in a float64)."""
+    row = np.dtype([("t_s", np.float64), ("ints", np.int64, (width + 1,))])
     try:
         with warnings.catch_warnings():  # numpy warns of lines it skips as empty: the float way decides
             warnings.simplefilter("error")
-            ints = np.loadtxt(rests, delimiter=",", dtype=np.int64, ndmin=2, comments=None)
-            t_s = np.loadtxt(heads, delimiter=",", dtype=np.float64, ndmin=1, comments=None)
+            arr = np.loadtxt(rows, delimiter=",", dtype=row, ndmin=1, comments=None)
     except (ValueError, UserWarning):
         return None
-    if ints.shape != (len(rows), width + 1) or t_s.shape != (len(rows),) or not np.all(np.isfinite(t_s)):
+    t_s, ints = arr["t_s"], arr["ints"]
+    if len(arr) != len(rows) or not np.all(np.isfinite(t_s)):
         return None
     if ints.size and (ints.min() < INT32_MIN or ints.max() > INT32_MAX):
         return None
-    return t_s, ints[:, 0].copy(), np.ascontiguousarray(ints[:, 1:])  # contiguous, as before
+    return t_s.copy(), ints[:, 0].copy(), np.ascontiguousarray(ints[:, 1:])  # contiguous, as before
 
 
 def _float_rows(rows: list[str], width: int) -> Rows:
