@@ -4,8 +4,10 @@ The format is described in `processing.recording`; the names and types shared wi
 `processing.recording_format`. Files are read in chunks of whole lines (`CHUNK_BYTES`), so memory stays
 bounded whatever the file's size: `open_recording(path)` gives a `RecordingStream` whose `chunks()` yields
 the events each chunk completed (what `replay` feeds detection as it goes); `read_recording(path)`
-collects them all into a `Recording` (what `tune` measures). The data rows between two stream rows are
-converted in one numpy `loadtxt` call; a stretch it refuses is read row by row, which names the damage.
+collects them all into a `Recording` (what `tune` measures). The data rows between two stream rows (mark
+rows and blank lines among them give no event and do not cut the stretch: detection gets large blocks)
+are converted in one numpy `loadtxt` call, seq and readings as integers when they are written so, else
+as floats checked to be whole; a stretch it refuses is read row by row, which names the damage.
 Raw captures go through `protocol.decoder.Decoder`, the live link's decoder, a chunk at a time.
 Damaged files raise `UserError` as `file:line: what`; no Python exception text reaches a message.
 Parsing is pure; `open_recording` is the only function here that opens a file.
