@@ -325,6 +325,14 @@ class NoiseSpectrum:
         return self.peak.brief() if self.peak is not None else "no noise peak"
 
 
+def _one_mask(mask: np.ndarray, counts: np.ndarray, rows: int) -> bool:
+    """Whether every column of `mask` selects the same rows, some but not all (the settle guard's mask
+    when every key shares the activity: then the rows are picked once, not per channel)."""
+    if mask.shape[1] < 2 or not 0 < counts[0] < rows or (counts != counts[0]).any():
+        return False
+    return bool((mask == mask[:, :1]).all())
+
+
 class ColumnRing:
     """One fixed-size ring per channel, filled with the frames a mask selects (e.g. released ones)."""
 
@@ -337,6 +345,8 @@ class ColumnRing:
 
     def push(self, values: np.ndarray, mask: np.ndarray) -> None:
         counts = mask.sum(axis=0)
+        if _one_mask(mask, counts, len(values)):  # every channel takes the same rows: pick them once
+            values = values[mask[:, 0]]
         whole = counts == len(values)
         if whole.any():  # channels that take every row: one vectorised scatter
             rows = values[-self.capacity:]
@@ -399,11 +409,14 @@ class SettleGate:
             return deltas[:0], np.zeros(deltas.shape, bool)
         frame = first_frame + np.arange(n, dtype=np.int64)[:, None]
         busy = states != KeyState.RELEASED
-        if self.any_key and busy.shape[1] > 1:  # another key's touch moves this one too: not its noise
+        shared = self.any_key and busy.shape[1] > 1
+        if shared:  # another key's touch moves this one too: not its noise
             busy = np.broadcast_to(busy.any(axis=1, keepdims=True), busy.shape)
         if busy.any():
-            last_busy = np.maximum.accumulate(np.where(busy, frame, self.NEVER), axis=0)
-            np.maximum(last_busy, self.last_busy[None, :], out=last_busy)
+            # The last busy frame up to each row; with one busy column for all keys, found once for it.
+            column = busy[:, :1] if shared else busy
+            last_busy = np.maximum.accumulate(np.where(column, frame, self.NEVER), axis=0)
+            last_busy = np.maximum(last_busy, self.last_busy[None, :])
         else:  # the usual block, every key released: the last activity stays where it was, on every row
             last_busy = self.last_busy[None, :]
         ext_deltas = np.concatenate((self.tail_deltas, deltas))

@@ -4,8 +4,10 @@ The format is described in `processing.recording`; the names and types shared wi
 `processing.recording_format`. Files are read in chunks of whole lines (`CHUNK_BYTES`), so memory stays
 bounded whatever the file's size: `open_recording(path)` gives a `RecordingStream` whose `chunks()` yields
 the events each chunk completed (what `replay` feeds detection as it goes); `read_recording(path)`
-collects them all into a `Recording` (what `tune` measures). The data rows between two stream rows are
-converted in one numpy `loadtxt` call; a stretch it refuses is read row by row, which names the damage.
+collects them all into a `Recording` (what `tune` measures). The data rows between two stream rows (mark
+rows and blank lines among them give no event and do not cut the stretch: detection gets large blocks)
+are converted in one numpy `loadtxt` call, seq and readings as integers when they are written so, else
+as floats checked to be whole; a stretch it refuses is read row by row, which names the damage.
 Raw captures go through `protocol.decoder.Decoder`, the live link's decoder, a chunk at a time.
 Damaged files raise `UserError` as `file:line: what`; no Python exception text reaches a message.
 Parsing is pure; `open_recording` is the only function here that opens a file.
@@ -18,6 +20,7 @@ import math
 import os
 import re
 import stat
+import warnings
 from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import BinaryIO
@@ -122,6 +125,33 @@ Rows = tuple[np.ndarray, np.ndarray, np.ndarray]  # t_s (n,), seq (n,), readings
 def check_rows(rows: list[str], width: int) -> Rows:
     """Data rows -> arrays in one numpy call; ValueError for any value that is not right (a time that is
     not finite, a seq or reading that is not a whole 32-bit number) or a row of another width."""
+    whole = _whole_rows(rows, width)
+    return whole if whole is not None else _float_rows(rows, width)
+
+
+def _whole_rows(rows: list[str], width: int) -> Rows | None:
+    """`check_rows` the quick way, for rows whose seq and readings are written as integers (as padtune
+    writes them): one numpy call with the time parsed as a float (as before) and the rest as integers.
+    None when anything is not so (a reading written `12.0` or `1e3`, another width, a value out of
+    range): `_float_rows` then decides, and its answer is the same wherever this one gives one (numpy's
+    integer parser takes a subset of what its float parser takes; a 32-bit integer is exact in a float64)."""
+    row = np.dtype([("t_s", np.float64), ("ints", np.int64, (width + 1,))])
+    try:
+        with warnings.catch_warnings():  # numpy warns of lines it skips as empty: the float way decides
+            warnings.simplefilter("error")
+            arr = np.loadtxt(rows, delimiter=",", dtype=row, ndmin=1, comments=None)
+    except (ValueError, UserWarning):
+        return None
+    t_s, ints = arr["t_s"], arr["ints"]
+    if len(arr) != len(rows) or not np.all(np.isfinite(t_s)):
+        return None
+    if ints.size and (ints.min() < INT32_MIN or ints.max() > INT32_MAX):
+        return None
+    return t_s.copy(), ints[:, 0].copy(), np.ascontiguousarray(ints[:, 1:])  # contiguous, as before
+
+
+def _float_rows(rows: list[str], width: int) -> Rows:
+    """`check_rows` with every column parsed as a float (whole numbers checked)."""
     # numpy's C parser reads the whole stretch at once; readings are 32-bit integers, exact in float64,
     # and checked to be whole below.
     arr = np.loadtxt(rows, delimiter=",", dtype=np.float64, ndmin=2, comments=None)
@@ -297,10 +327,7 @@ class _CsvReader:
         b = self.b
         while i < n:
             if _is_data(lines[i]) and b.width is not None:
-                j = i + 1
-                while j < n and _is_data(lines[j]):
-                    j += 1
-                self._data(lines, i, j)
+                j = self._stretch(lines, i, n)
                 i = j
                 continue
             line = lines[i].rstrip("\r")
@@ -311,6 +338,62 @@ class _CsvReader:
             i += 1
         self.lineno += n
         self.b.close_block()
+
+    def _stretch(self, lines: list[str], i: int, n: int) -> int:
+        """Data rows from line i on, with the mark rows and blank lines among them (neither gives an
+        event), as one block; returns the line after the stretch. Detection gets larger blocks (the
+        writer puts a flush's marks after its rows), the frames and their order are the same."""
+        rows: list[int] = []  # the data rows' line numbers in `lines`
+        between: list[int] = []  # mark rows among them
+        j = i
+        starts = _DATA_START
+        while j < n:
+            line = lines[j]
+            if line[:1] in starts:  # `_is_data` inline (the header's first character is not among them)
+                rows.append(j)
+            elif _is_mark_row(line):
+                between.append(j)
+            elif line.strip():
+                break
+            j += 1
+        while j > i and not _is_data(lines[j - 1]):  # what follows the last data row is read as before
+            j -= 1
+            if between and between[-1] == j:
+                between.pop()
+        if len(rows) == j - i:  # data rows only
+            self._data(lines, i, j)
+            return j
+        b = self.b
+        assert b.width is not None
+        try:
+            bulk = check_rows([lines[k] for k in rows], b.width)
+        except ValueError:
+            self._in_order(lines, i, j)  # the first damage in file order is the one named
+            return j
+        b.add_bulk(bulk)
+        for k in between:
+            self._line(lines[k], k)
+        return j
+
+    def _in_order(self, lines: list[str], i: int, j: int) -> None:
+        """Lines i..j-1 one stretch of data rows at a time, each other line on its own."""
+        k = i
+        while k < j:
+            if _is_data(lines[k]):
+                m = k + 1
+                while m < j and _is_data(lines[m]):
+                    m += 1
+                self._data(lines, k, m)
+                k = m
+            else:
+                self._line(lines[k], k)
+                k += 1
+
+    def _line(self, line: str, i: int) -> None:
+        try:
+            self.in_meta = _parse_line(self.b, self.lineno + i, line.rstrip("\r"), self.in_meta)
+        except (ValueError, KeyError, IndexError, OverflowError) as exc:
+            raise _damaged(self.where, self.lineno + i, exc) from None
 
     def _data(self, lines: list[str], i: int, j: int) -> None:
         """Data rows i..j-1: in one numpy call, else row by row (which finds and names the damage)."""
@@ -347,9 +430,17 @@ class _CsvReader:
             raise UserError(f"{self.where}: not a padtune recording (first line must be {FORMAT_LINE!r})")
 
 
+def _is_mark_row(line: str) -> bool:
+    """A mark row as `_parse_line` reads one (a stream row of kind mark: no event, the mark is kept)."""
+    return line.startswith("#") and line[1:].strip().partition(" ")[0] == "mark"
+
+
+_DATA_START = frozenset("0123456789-+.")
+
+
 def _is_data(line: str) -> bool:
     """A data row starts with its time (a digit, a sign or a point); anything else is read row by row."""
-    return bool(line) and line[0] in "0123456789-+." and not line.startswith(HEADER_START)
+    return bool(line) and line[0] in _DATA_START and not line.startswith(HEADER_START)
 
 
 def _csv_events(rec: Recording, where: str, pieces: Iterator[tuple[bytes, int]]) -> Iterator[list[Event]]:
@@ -499,7 +590,7 @@ class RecordingStream:
         not given. A line longer than MAX_LINE_BYTES is refused (memory stays bounded)."""
         f = self._file
         f.seek(self._skip)
-        carry, offset, lineno = b"", self._skip, 1
+        carry, offset = b"", self._skip
         while True:
             data = f.read(self.chunk_bytes)
             if not data:
@@ -508,41 +599,52 @@ class RecordingStream:
             cut = buf.rfind(b"\n") + 1
             if cut:
                 yield buf[:cut], offset
-                lineno += buf.count(b"\n", 0, cut)
                 offset += cut
             carry = buf[cut:]
             if len(carry) > MAX_LINE_BYTES:
-                raise UserError(f"{self.where}:{lineno}: a line longer than {MAX_LINE_BYTES} bytes: the file "
-                                "is damaged or not a padtune recording")
+                raise UserError(f"{self.where}:{self._line_at(offset)}: a line longer than {MAX_LINE_BYTES} "
+                                "bytes: the file is damaged or not a padtune recording")
+
+    def _line_at(self, offset: int) -> int:
+        """The number of the line that starts at byte `offset` (counted only for a message: the file is
+        read again up to there)."""
+        f, lineno = self._file, 1
+        at = f.tell()
+        f.seek(self._skip)
+        left = offset - self._skip
+        while left > 0:
+            data = f.read(min(left, self.chunk_bytes))
+            if not data:
+                break
+            lineno += data.count(b"\n")
+            left -= len(data)
+        f.seek(at)
+        return lineno
 
     def _find_marks(self) -> list[Mark]:
         """Every mark row, read on their own (a first pass over the file that converts nothing else:
         `bytes.find` skips the data rows, which never hold the word)."""
         rec = Recording(path=self.where, version=None)
         b = _Builder(rec, self.where)
-        lineno = 1
-        for piece, _ in self._pieces():
-            counted = 0  # line ends of this piece counted so far
+        for piece, offset in self._pieces():
             pos = piece.find(b"mark")
             while pos >= 0:
                 start = piece.rfind(b"\n", 0, pos) + 1
                 end = piece.find(b"\n", pos)
                 found = _MARK_ROW.match(piece, start, end)
                 if found is not None:
-                    lineno += piece.count(b"\n", counted, start)
-                    counted = start
-                    self._mark_row(b, found.group(0), lineno)
+                    self._mark_row(b, found.group(0), offset + start)
                 pos = piece.find(b"mark", end)
-            lineno += piece.count(b"\n", counted)
         return rec.marks
 
-    def _mark_row(self, b: _Builder, line: bytes, lineno: int) -> None:
+    def _mark_row(self, b: _Builder, line: bytes, offset: int) -> None:
+        """One mark row (starting at byte `offset`, which gives its line number in a message)."""
         body = line.decode("utf-8", "replace").rstrip("\r")[1:].strip()
         try:
             pairs, text = _parse_pairs(body.partition(" ")[2])
             _stream_row(b, "mark", pairs, text)
         except (ValueError, KeyError, IndexError, OverflowError) as exc:
-            raise _damaged(self.where, lineno, exc) from None
+            raise _damaged(self.where, self._line_at(offset), exc) from None
 
     def chunks(self) -> Iterator[list[Event]]:
         """The events in stream order, a chunk's worth at a time. Raises UserError for damage where it

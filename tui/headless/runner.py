@@ -98,6 +98,32 @@ class FoundTouch:
     expected: bool | None = None  # against the recording's marks, None without marks
 
 
+class MarkIndex:
+    """The marks a touch is judged against, sorted once: per key the spans from each touch-start (less
+    the tolerance) to the touch-end that closes it, and the times of note marks. `expected` answers as
+    a walk through the marks in time order would (a touch-end closes the latest open touch-start of its
+    key; an end with nothing open is skipped)."""
+
+    def __init__(self, marks: Sequence[Mark], tolerance_s: float) -> None:
+        self.tolerance_s = tolerance_s
+        self.judges = any(m.kind == "touch-start" for m in marks)
+        self.spans: dict[str | None, list[tuple[float, float]]] = {}
+        self.notes: list[float] = []
+        opened: dict[str | None, float] = {}
+        for m in sorted(marks, key=lambda m: m.t_s):  # stable: marks at one time keep their order
+            if m.kind == "touch-start":
+                opened[m.channel] = m.t_s
+            elif m.kind == "touch-end" and m.channel in opened:
+                self.spans.setdefault(m.channel, []).append((opened.pop(m.channel) - tolerance_s, m.t_s))
+            elif m.kind == "note":
+                self.notes.append(m.t_s)
+
+    def expected(self, name: str, t: float) -> bool:
+        if any(low <= t <= high for low, high in self.spans.get(name, ())):
+            return True
+        return any(abs(note_t - t) <= self.tolerance_s for note_t in self.notes)
+
+
 @dataclass
 class DetectionRun:
     session: Session
@@ -120,6 +146,8 @@ class DetectionRun:
     _board_changed_seen: bool = False
     _form: StreamForm | None = None  # the plain form of this session, if one was recognised
     _form_hello: StreamForm | None = None  # its hello waits for the first frame (to give the width)
+    _marks_index: MarkIndex | None = None
+    _marks_key: tuple[int, int, float] | None = None
 
     def name(self, channel: int) -> str:
         names = self.session.names
@@ -219,24 +247,22 @@ class DetectionRun:
     @property
     def judges_touches(self) -> bool:
         """Only touch marks say which touches were meant; a recording with plain notes alone does not."""
-        return any(m.kind == "touch-start" for m in self.marks)
+        return self._mark_index().judges
 
     def _expected(self, channel: int, t: float) -> bool | None:
         """With touch marks: was this touch inside a marked touch of its key (or near a note mark)?"""
-        if not self.judges_touches:
+        index = self._mark_index()
+        if not index.judges:
             return None
-        name = self.name(channel)
-        opened: float | None = None
-        for m in sorted(self.marks, key=lambda m: m.t_s):
-            if m.kind == "touch-start" and m.channel == name:
-                opened = m.t_s
-            elif m.kind == "touch-end" and m.channel == name and opened is not None:
-                if opened - self.mark_tolerance_s <= t <= m.t_s:
-                    return True
-                opened = None
-            elif m.kind == "note" and abs(m.t_s - t) <= self.mark_tolerance_s:
-                return True
-        return False
+        return index.expected(self.name(channel), t)
+
+    def _mark_index(self) -> MarkIndex:
+        """The marks sorted once (a replay judges every touch against them), made again if they change."""
+        key = (id(self.marks), len(self.marks), self.mark_tolerance_s)
+        if self._marks_key != key:
+            self._marks_index, self._marks_key = MarkIndex(self.marks, self.mark_tolerance_s), key
+        assert self._marks_index is not None
+        return self._marks_index
 
     def maybe_status(self, now_t_s: float) -> None:
         if not self.every_s:
