@@ -22,7 +22,8 @@ from __future__ import annotations
 import json
 import math
 import sqlite3
-from collections.abc import Iterator
+import time
+from collections.abc import Callable, Iterator
 from contextlib import closing, contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -86,6 +87,34 @@ def _connect(path: Path) -> sqlite3.Connection:
     return conn
 
 
+def _make(conn: sqlite3.Connection) -> None:
+    mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+    if str(mode).lower() != "wal":
+        raise sqlite3.OperationalError(f"journal mode {mode}, WAL needed to share the file")
+    # One script, one transaction: two stations creating the file at once make it once.
+    conn.executescript(f"BEGIN IMMEDIATE; {_SCHEMA} INSERT OR IGNORE INTO meta VALUES "
+                       f"('schema_version', '{SCHEMA_VERSION}'); COMMIT;")
+
+
+def _while_locked(conn: sqlite3.Connection, step: Callable[[sqlite3.Connection], None]) -> None:
+    """Run `step`, again while another station holds the file, for up to BUSY_TIMEOUT_S.
+
+    SQLite answers "database is locked" at once, without its busy wait, when two connections that both
+    read the new file race to switch it to WAL (waiting could deadlock them), so the wait is ours here.
+    """
+    deadline = time.monotonic() + BUSY_TIMEOUT_S
+    while True:
+        try:
+            step(conn)
+            return
+        except sqlite3.OperationalError as exc:
+            if "locked" not in str(exc) or time.monotonic() > deadline:
+                raise
+            if conn.in_transaction:  # a script stopped inside its BEGIN: start clean next time
+                conn.rollback()
+            time.sleep(0.02)
+
+
 def _problem(path: Path, exc: Exception, create: bool) -> UserError:
     what = "a new file name or " if create else ""
     return UserError(f"{path}: cannot use it as a results database ({exc}); give {what}a database "
@@ -108,12 +137,7 @@ def open_results(path: str | Path, create: bool = True) -> sqlite3.Connection:
     try:
         conn = _connect(p)
         if create:
-            mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
-            if str(mode).lower() != "wal":
-                raise sqlite3.OperationalError(f"journal mode {mode}, WAL needed to share the file")
-            # One script, one transaction: two stations creating the file at once make it once.
-            conn.executescript(f"BEGIN IMMEDIATE; {_SCHEMA} INSERT OR IGNORE INTO meta VALUES "
-                               f"('schema_version', '{SCHEMA_VERSION}'); COMMIT;")
+            _while_locked(conn, _make)
         row = conn.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone()
     except sqlite3.Error as exc:
         raise _problem(p, exc, create) from None
