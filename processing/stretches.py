@@ -10,12 +10,23 @@ Pure numpy, no I/O.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from typing import Protocol
 
 import numpy as np
 
 from processing.recording import Mark
+
+
+class Columns(Protocol):
+    """Frames x keys readings that give one key's column (`readings[:, c]`): a numpy array or
+    `processing.tune_frames.ChunkedReadings`."""
+
+    @property
+    def shape(self) -> tuple[int, ...]: ...
+
+    def __getitem__(self, key: tuple[slice, int]) -> np.ndarray: ...
 
 
 def expand_polarity(polarity: Sequence[int], channels: int) -> np.ndarray:
@@ -51,22 +62,60 @@ def key_figures(quiet: np.ndarray, touched: np.ndarray) -> KeyFigures:
 # ---------------------------------------------------------------- touches in a recording
 
 
-@dataclass
 class KeyTrace:
-    """One key of a recording: its delta trace and where it was touched."""
+    """One key of a recording: its delta trace and where it was touched.
 
-    channel: int
-    name: str
-    delta: np.ndarray  # float counts, touch positive, one per frame
-    stretches: list[tuple[int, int]]  # [start, stop) frame ranges of touches
-    quiet: np.ndarray  # untouched deltas (far from any touch of any key)
-    touched: np.ndarray  # deltas inside this key's touches, edges trimmed
-    from_marks: bool
+    `delta` (float counts, touch positive, one per frame) and `quiet` (the untouched deltas: far from any
+    touch of any key) are worked out again from the readings each time they are asked for, and not kept:
+    64 keys' float traces of a long recording are several times the readings themselves. Ask once and
+    hold the array while it is used. `touched` (this key's deltas inside its touches, edges trimmed) is
+    kept: it grows only with the touches.
+    """
+
+    __slots__ = ("_delta", "_quiet_mask", "channel", "from_marks", "name", "quiet_frames", "stretches",
+                 "touched")
+
+    def __init__(self, channel: int, name: str, delta: Callable[[], np.ndarray],
+                 stretches: list[tuple[int, int]], quiet_mask: np.ndarray, touched: np.ndarray,
+                 from_marks: bool) -> None:
+        self.channel = channel
+        self.name = name
+        self._delta = delta
+        self.stretches = stretches  # [start, stop) frame ranges of touches
+        self._quiet_mask = quiet_mask
+        self.quiet_frames = int(np.count_nonzero(quiet_mask))
+        self.touched = touched
+        self.from_marks = from_marks
+
+    @property
+    def delta(self) -> np.ndarray:
+        return self._delta()
+
+    @property
+    def quiet(self) -> np.ndarray:
+        return self._delta()[self._quiet_mask]
+
+    def quiet_in(self, delta: np.ndarray) -> np.ndarray:
+        """`quiet` taken from this key's `delta` already in hand (not worked out again)."""
+        return delta[self._quiet_mask]
 
 
-def estimate_baseline(values: np.ndarray, rate_hz: float, window_s: float = 0.5,
-                      span_s: float = 6.0) -> np.ndarray:
-    """Rolling minimum of window medians (touch positive), interpolated back to every frame."""
+@dataclass(frozen=True, slots=True)
+class _Knots:
+    """A drift-following baseline as `estimate_baseline` draws it: its points, interpolated on demand."""
+
+    frames: int
+    centres: np.ndarray
+    low: np.ndarray
+
+    def at_every_frame(self) -> np.ndarray:
+        n, low = self.frames, self.low
+        return np.interp(np.arange(n), self.centres, low) if len(low) > 1 else \
+            np.full(n, low[0] if len(low) else 0.0)
+
+
+def _baseline_knots(values: np.ndarray, rate_hz: float, window_s: float = 0.5,
+                    span_s: float = 6.0) -> _Knots:
     n = len(values)
     w = max(1, round(window_s * rate_hz))
     starts = np.arange(0, n, w)
@@ -74,7 +123,27 @@ def estimate_baseline(values: np.ndarray, rate_hz: float, window_s: float = 0.5,
     half = max(1, round(span_s / window_s / 2))
     low = np.array([medians[max(0, i - half): i + half + 1].min() for i in range(len(medians))])
     centres = np.minimum(starts + w / 2, n - 1)
-    return np.interp(np.arange(n), centres, low) if len(low) > 1 else np.full(n, low[0] if len(low) else 0.0)
+    return _Knots(n, centres, low)
+
+
+def estimate_baseline(values: np.ndarray, rate_hz: float, window_s: float = 0.5,
+                      span_s: float = 6.0) -> np.ndarray:
+    """Rolling minimum of window medians (touch positive), interpolated back to every frame."""
+    return _baseline_knots(values, rate_hz, window_s, span_s).at_every_frame()
+
+
+@dataclass(frozen=True, slots=True)
+class _KeyDelta:
+    """One key's delta trace, computed again from its readings and its baseline's points when asked."""
+
+    readings: Columns
+    channel: int
+    sign: np.int64
+    knots: _Knots
+
+    def __call__(self) -> np.ndarray:
+        v = self.sign * self.readings[:, self.channel].astype(np.float64)
+        return v - self.knots.at_every_frame()
 
 
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
@@ -91,20 +160,28 @@ def _trimmed(delta: np.ndarray, runs: list[tuple[int, int]], trim: int) -> np.nd
     return np.concatenate(parts) if parts else np.zeros(0)
 
 
-def find_touches(t_s: np.ndarray, readings: np.ndarray, names: Sequence[str], polarity: Sequence[int],
+def find_touches(t_s: np.ndarray, readings: Columns, names: Sequence[str], polarity: Sequence[int],
                  rate_hz: float, marks: Sequence[Mark] = (), min_touch_s: float = 0.1) -> list[KeyTrace]:
-    """Per key: delta trace, touched stretches (from marks, else found), untouched and touched deltas."""
+    """Per key: delta trace, touched stretches (from marks, else found), untouched and touched deltas.
+
+    `readings` is frames x keys: an array, or anything that gives `shape` and one key's column as
+    `readings[:, c]` (`processing.tune_frames.ChunkedReadings`). One key's float trace is alive at a time.
+    """
     n, width = readings.shape
     pol = expand_polarity(polarity, width)
-    deltas = np.empty((n, width))
-    for c in range(width):
-        v = pol[c] * readings[:, c].astype(np.float64)
-        deltas[:, c] = v - estimate_baseline(v, rate_hz)
     trim = max(1, round(0.05 * rate_hz))
     marked = _marked_stretches(t_s, marks, names)
     found: dict[int, list[tuple[int, int]]] = {}
+    sources: list[_KeyDelta] = []
+    touched: list[np.ndarray] = []
     for c in range(width):
-        found[c] = marked[c] if marked is not None else _find_runs(deltas[:, c], rate_hz, min_touch_s)
+        v = pol[c] * readings[:, c].astype(np.float64)
+        knots = _baseline_knots(v, rate_hz)
+        delta = v - knots.at_every_frame()
+        del v
+        found[c] = marked[c] if marked is not None else _find_runs(delta, rate_hz, min_touch_s)
+        touched.append(_trimmed(delta, found[c], trim))
+        sources.append(_KeyDelta(readings, c, pol[c], knots))
     busy = np.zeros(n, bool)  # any key touched, widened by a guard, is no use for noise
     guard = max(1, round(0.3 * rate_hz))
     for runs in found.values():
@@ -115,8 +192,8 @@ def find_touches(t_s: np.ndarray, readings: np.ndarray, names: Sequence[str], po
         quiet_mask = np.zeros(n, bool)
         for a, b in q:
             quiet_mask[a:b] = True
-    return [KeyTrace(c, names[c], deltas[:, c], found[c], deltas[quiet_mask, c],
-                     _trimmed(deltas[:, c], found[c], trim), marked is not None) for c in range(width)]
+    return [KeyTrace(c, names[c], sources[c], found[c], quiet_mask, touched[c], marked is not None)
+            for c in range(width)]
 
 
 def _find_runs(delta: np.ndarray, rate_hz: float, min_touch_s: float) -> list[tuple[int, int]]:

@@ -23,8 +23,9 @@ from processing.profile import Profile, profile_for, profile_from_board
 from processing.recording_format import Recording
 from processing.settings import LIMIT_KEYS, ChannelSettings, Limits
 from processing.startup import Learned, Startup
-from processing.stretches import KeyFigures, KeyTrace, find_touches, key_figures
+from processing.stretches import Columns, KeyFigures, KeyTrace, find_touches, key_figures
 from processing.suggest import Refusal, Suggestion, suggest
+from processing.tune_frames import TuneFrames
 from protocol.errors import UserError
 
 MIN_FRAMES = 32
@@ -96,16 +97,27 @@ def base_profile(rec: Recording, base: Profile | None) -> Profile:
     return profile_for(width, rec.names if len(rec.names) == width else ())
 
 
-def learned_polarity(t_s: np.ndarray, readings: np.ndarray, rate_hz: float) -> dict[int, int]:
+def learned_polarity(t_s: np.ndarray, readings: Columns, rate_hz: float) -> dict[int, int]:
     """Channel -> direction, from its first clear touch that comes back in the recording, as the live
-    session learns it (channels never touched are left out)."""
+    session learns it (channels never touched are left out). `readings` held in pieces
+    (`ChunkedReadings`) go through a piece at a time, as a live session's blocks do (the learner's result
+    does not depend on how the frames are cut: ALGORITHM.md, first contact)."""
     width = readings.shape[1]
-    steps = Startup(width, [False] * width, [True] * width, rate_hz).advance(readings, t_s)
+    startup = Startup(width, [False] * width, [True] * width, rate_hz)
+    if isinstance(readings, np.ndarray):
+        steps = startup.advance(readings, t_s)
+    else:
+        steps, at = [], 0
+        for piece in readings.pieces():
+            steps.extend(startup.advance(piece, t_s[at:at + len(piece)]))
+            at += len(piece)
     return {step.channel: step.sign for step in steps if isinstance(step, Learned)}
 
 
-def tune_recording(rec: Recording, base: Profile | None = None,
+def tune_recording(rec: Recording | TuneFrames, base: Profile | None = None,
                    bounds: VerdictBounds | None = None) -> TuneResult:
+    """Every key of `rec` measured and tuned. `rec` is a `Recording`, or the compact `TuneFrames` that
+    `padtune tune` reads a stream into (`processing.tune_frames`: the same answers in less memory)."""
     t_s, _, readings = rec.arrays()
     if len(t_s) < MIN_FRAMES:
         raise UserError(f"{rec.path}: only {len(t_s)} frames; record at least a few seconds with each key "
@@ -124,7 +136,7 @@ def tune_recording(rec: Recording, base: Profile | None = None,
     keys = []
     for trace in traces:
         c = trace.channel
-        untouched = np.rint(trace.quiet).astype(np.int64)
+        untouched = np.rint(trace.quiet).astype(np.int64)  # one key's trace at a time, let go after
         touched = np.rint(trace.touched).astype(np.int64)
         figures = key_figures(untouched, touched)
         outcome = suggest(untouched, touched, rate_hz)
@@ -156,15 +168,15 @@ MIN_NOISE_RMS_COUNTS = 0.3
 SNR_LIMIT_SHARE = 0.7
 
 
-def _untouched_readings(result: TuneResult, readings: np.ndarray, c: int) -> np.ndarray:
+def _untouched_readings(result: TuneResult, readings: Columns, c: int) -> np.ndarray:
     """A channel's readings outside its own touches (edges of a touch are in the touch's stretch)."""
-    keep = np.ones(len(readings), bool)
+    keep = np.ones(readings.shape[0], bool)
     for start, stop in result.keys[c].trace.stretches:
         keep[start:stop] = False
-    return readings[keep, c] if keep.any() else np.zeros(0)
+    return readings[:, c][keep] if keep.any() else np.zeros(0)
 
 
-def channel_limits(result: TuneResult, readings: np.ndarray, c: int, baseline_margin: float) -> Limits:
+def channel_limits(result: TuneResult, readings: Columns, c: int, baseline_margin: float) -> Limits:
     """One channel's own baseline range and noise limits from a good unit (see the margins above)."""
     key = result.keys[c]
     untouched = _untouched_readings(result, readings, c)
@@ -181,7 +193,7 @@ def channel_limits(result: TuneResult, readings: np.ndarray, c: int, baseline_ma
         baseline_min_counts=lo, baseline_max_counts=hi)
 
 
-def limits_from_result(result: TuneResult, readings: np.ndarray,
+def limits_from_result(result: TuneResult, readings: Columns,
                        baseline_margin: float = 0.2) -> tuple[Limits, dict[int, Limits]]:
     """Acceptance limits for `padtune check` from a recording of a good unit: `[limits]` (the SNR floor,
     and the whole unit's band and noise for any channel without its own) and each channel's own.

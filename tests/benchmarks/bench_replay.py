@@ -11,7 +11,8 @@ Prints, measured in this one run: frames/s of `padtune replay FILE --json` (wall
 its start included) and the process's peak resident memory (`os.wait4`'s `ru_maxrss` of that child alone),
 the raw capture's MB/s beside the same decoder's own MB/s on the same bytes in this process, and each
 figure as a ratio to the goals of issue 13 (CSV: at least 50,000 frames/s and at most 300 MB peak; raw:
-at least 20 MB/s). Never a pass/fail on time.
+at least 20 MB/s); then the same for `padtune tune FILE -o X.toml --partial --json` on both files (frames/s
+with its start, peak memory beside the same 300 MB bound). Never a pass/fail on time.
 
     python tests/benchmarks/bench_replay.py [--quick]
 """
@@ -100,6 +101,23 @@ def replay(path: pathlib.Path) -> tuple[float, float, int]:
     return seconds, usage.ru_maxrss / 1024.0, int(summary["frames"])  # ru_maxrss: KiB on Linux
 
 
+def tune(path: pathlib.Path) -> tuple[float, float, int]:
+    """(seconds, peak MB, frames) of one `padtune tune PATH -o X.toml --partial --json` process."""
+    out = path.with_name(path.stem + "-tuned.toml")
+    t0 = time.perf_counter()
+    proc = subprocess.Popen([sys.executable, "-m", "tui.cli", "tune", str(path), "-o", str(out), "--partial",
+                             "--json"], cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL)
+    assert proc.stdout is not None
+    text = proc.stdout.read()
+    _, status, usage = os.wait4(proc.pid, 0)
+    seconds = time.perf_counter() - t0
+    proc.returncode = os.waitstatus_to_exitcode(status)
+    peak_mb = usage.ru_maxrss / 1024.0  # KiB on Linux: this child alone
+    if proc.returncode != 0:
+        raise SystemExit(f"tune of {path.name} exited {proc.returncode}")
+    return seconds, peak_mb, int(json.loads(text)["frames"])
+
+
 def decoder_mb_s(path: pathlib.Path) -> float:
     data = path.read_bytes()
     t0 = time.perf_counter()
@@ -143,6 +161,12 @@ def main() -> int:
                   f"alone: {decoder:.0f} MB/s, replay {size_mb / s / decoder:.2f} of it), "
                   f"{frames / s:,.0f} frames/s")
         print(f"replay raw capture peak memory {peak_mb:.0f} MB")
+        for path in (rec, raw):  # tune holds the whole file's int32 readings, one key's floats at a time
+            seconds, peak_mb, frames = tune(path)
+            size_mb = path.stat().st_size / 1e6
+            print(f"tune {path.suffix[1:]} {size_mb:.1f} MB ({frames:,} frames, {CHANNELS} ch): "
+                  f"{frames / seconds:,.0f} frames/s with start, peak memory {peak_mb:.0f} MB "
+                  f"({peak_mb / GOAL_PEAK_MB:.2f} of the {GOAL_PEAK_MB:.0f} MB bound)")
     finally:
         shutil.rmtree(folder, ignore_errors=True)
     return 0

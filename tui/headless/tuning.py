@@ -6,14 +6,12 @@ from __future__ import annotations
 
 from typing import TypedDict
 
-import numpy as np
-
 from processing.crosstalk import (
     FLAG_SHARE,
     Coupling,
-    couplings,
-    during_touches,
+    couplings_by_key,
     touched_noise,
+    untouched_zero,
     worst_by_target,
 )
 from processing.measure import rests_on
@@ -70,14 +68,10 @@ def couplings_of(result: TuneResult) -> list[Coupling]:
     traces = [k.trace for k in result.keys]
     if not traces:
         return []
-    deltas = np.stack([t.delta for t in traces], axis=1)
-    touched = np.zeros(deltas.shape, bool)
-    for c, t in enumerate(traces):
-        for a, b in t.stretches:
-            touched[a:b, c] = True
-    return couplings({c: t.quiet for c, t in enumerate(traces)}, during_touches(deltas, touched),
-                     {c: float(k.after.threshold_counts) for c, k in enumerate(result.keys)},
-                     result.profile.sliders)
+    return couplings_by_key(lambda c: traces[c].delta, [t.stretches for t in traces], result.frames,
+                            lambda c, delta: untouched_zero(traces[c].quiet_in(delta)),
+                            {c: float(k.after.threshold_counts) for c, k in enumerate(result.keys)},
+                            result.profile.sliders)
 
 
 def crosstalk_rows(result: TuneResult, found: list[Coupling] | None = None) -> list[CrosstalkRow]:
@@ -115,7 +109,7 @@ def result_rows(result: TuneResult, found: list[Coupling] | None = None) -> list
             "touched_tone": held.hum() if held else "",
             "signal": f.signal_counts,
             "snr_pp": f.snr_pp, "snr_rms": f.snr_rms, "verdict": k.verdict,
-            "basis": rests_on(len(k.trace.stretches), len(k.trace.touched), len(k.trace.quiet)),
+            "basis": rests_on(len(k.trace.stretches), len(k.trace.touched), k.trace.quiet_frames),
             "crosstalk_pct": None if share is None else round(100 * share, 1),
             "crosstalk_from": result.keys[x.source].name if x is not None else None,
             "crosstalk_flagged": bool(x is not None and x.flagged()),
