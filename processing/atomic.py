@@ -16,6 +16,8 @@ import stat
 import tempfile
 from pathlib import Path
 
+from protocol.tomlfile import special_kind
+
 
 def _umask_mode() -> int:
     mask = os.umask(0)
@@ -132,15 +134,6 @@ class NotRegularFile(OSError):
         self.filename = str(path)
 
 
-def _kind(mode: int) -> str:
-    for test, kind in ((stat.S_ISDIR, "a folder"), (stat.S_ISCHR, "a character device"),
-                       (stat.S_ISBLK, "a block device"), (stat.S_ISFIFO, "a pipe (FIFO)"),
-                       (stat.S_ISSOCK, "a socket")):
-        if test(mode):
-            return kind
-    return "not a regular file"
-
-
 def refuse_non_regular(path: str | os.PathLike[str]) -> None:
     """`NotRegularFile` when `path` (links followed) exists and is not a regular file; else nothing (a
     path that cannot be looked at is left for the open to explain)."""
@@ -149,7 +142,7 @@ def refuse_non_regular(path: str | os.PathLike[str]) -> None:
     except OSError:
         return
     if not stat.S_ISREG(st.st_mode):
-        raise NotRegularFile(Path(path), _kind(st.st_mode))
+        raise NotRegularFile(Path(path), special_kind(st.st_mode))
 
 
 def open_regular(path: str | os.PathLike[str], flags: int, mode: int = 0o644) -> int:
@@ -162,7 +155,7 @@ def open_regular(path: str | os.PathLike[str], flags: int, mode: int = 0o644) ->
     try:
         st = os.fstat(fd)
         if not stat.S_ISREG(st.st_mode):
-            raise NotRegularFile(Path(path), _kind(st.st_mode))
+            raise NotRegularFile(Path(path), special_kind(st.st_mode))
         os.set_blocking(fd, True)
     except BaseException:
         os.close(fd)
@@ -184,7 +177,7 @@ def atomic_write_bytes(path: str | os.PathLike[str], data: bytes, keep_backup: b
     except FileNotFoundError:
         st, existed = None, False
     if st is not None and not stat.S_ISREG(st.st_mode):
-        raise NotRegularFile(target, _kind(st.st_mode))
+        raise NotRegularFile(target, special_kind(st.st_mode))
     mode = st.st_mode & 0o7777 if st is not None else _umask_mode()
     _sweep_stale(folder, target.name)
     fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.{os.getpid()}.", suffix=".tmp", dir=folder)

@@ -44,6 +44,7 @@ from protocol.events import (
 )
 from protocol.info import MAX_CHANNELS
 from protocol.rules import INT32_MAX, INT32_MIN
+from protocol.tomlfile import special_kind
 
 CHUNK_BYTES = 1 << 22  # whole lines read and converted at a time (4 MiB: about 10,000 rows of 64 channels)
 RAW_CHUNK_BYTES = 1 << 20  # bytes of a raw capture handed to the decoder at a time
@@ -720,7 +721,8 @@ def open_recording(path: str | os.PathLike[str], rate_hz: float | None = None,
             raise UserError(f"{p}: is a folder, not a recording")
         if not stat.S_ISREG(st.st_mode):
             # A device or a pipe (/dev/zero, a FIFO) may never end: a recording is a file on disk.
-            raise UserError(f"{p}: not a regular file; record the board to a file first (padtune record)")
+            raise UserError(f"{p}: is {special_kind(st.st_mode)}, not a file; record the board to a file "
+                            "first (padtune record)")
         os.set_blocking(fd, True)
         file = os.fdopen(fd, "rb", buffering=0)
     except BaseException:

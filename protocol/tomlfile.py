@@ -30,7 +30,8 @@ def shown_path(path: str | os.PathLike[str]) -> str:
     return printable(str(path), 200)
 
 
-def _kind(mode: int) -> str:
+def special_kind(mode: int) -> str:
+    """What a file that is not a regular one is, in a message's words ("a FIFO", "a folder", ...)."""
     return next((words for test, words in _KINDS if test(mode)), "not a regular file")
 
 
@@ -56,7 +57,7 @@ def read_capped(path: Path, what: str, max_bytes: int) -> bytes:
     except OSError as exc:
         raise UserError(f"{shown}: cannot read: {_reason(exc)}") from None
     if not stat.S_ISREG(before.st_mode):
-        kind = _kind(before.st_mode)
+        kind = special_kind(before.st_mode)
         raise UserError(f"{shown}: is {kind}, not a file; give the {what} file itself") from None
     _check_size(shown, what, before.st_size, max_bytes)
     try:
@@ -66,7 +67,8 @@ def read_capped(path: Path, what: str, max_bytes: int) -> bytes:
     try:
         now = os.fstat(fd)
         if not stat.S_ISREG(now.st_mode):
-            raise UserError(f"{shown}: is {_kind(now.st_mode)}, not a file; give the {what} file itself")
+            kind = special_kind(now.st_mode)
+            raise UserError(f"{shown}: is {kind}, not a file; give the {what} file itself")
         chunks: list[bytes] = []
         total = 0
         while total <= max_bytes:
