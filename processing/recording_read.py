@@ -721,8 +721,9 @@ def open_recording(path: str | os.PathLike[str], rate_hz: float | None = None,
             raise UserError(f"{p}: is a folder, not a recording")
         if not stat.S_ISREG(st.st_mode):
             # A device or a pipe (/dev/zero, a FIFO) may never end: a recording is a file on disk.
-            raise UserError(f"{p}: is {special_kind(st.st_mode)}, not a file; record the board to a file "
-                            "first (padtune record)")
+            kind = special_kind(st.st_mode)
+            raise UserError(f"{p}: is {kind}, not a regular file; record the board to a file first "
+                            "(padtune record)")
         os.set_blocking(fd, True)
         file = os.fdopen(fd, "rb", buffering=0)
     except BaseException:

@@ -123,7 +123,7 @@ def test_a_fifo_or_a_device_is_refused_without_waiting(tmp_path):
     os.mkfifo(tmp_path / "pipe.csv")
     for path in (tmp_path / "pipe.csv", "/dev/zero"):
         out = padtune("replay", str(path), timeout=30)
-        _one_line(out, ", not a file; record the board to a file")
+        _one_line(out, ", not a regular file; record the board to a file")
 
 
 def test_tune_never_writes_over_the_recording_it_reads(work, tmp_path):

@@ -196,7 +196,8 @@ def test_crlf_and_a_bom_read_like_the_plain_file(tmp_path):
 def test_non_regular_inputs_are_refused_at_once(tmp_path):
     fifo = tmp_path / "pipe.csv"
     os.mkfifo(fifo)  # nobody writes to it: opening it must not wait for a writer
-    for path, says in ((fifo, "is a FIFO, not a file"), ("/dev/zero", "is a character device, not a file"),
+    for path, says in ((fifo, "is a FIFO, not a regular file"),
+                       ("/dev/zero", "is a character device, not a regular file"),
                        (tmp_path, "is a folder"), (tmp_path / "missing.csv", "no such file")):
         with pytest.raises(UserError, match=says):
             read_recording(path)
