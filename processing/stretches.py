@@ -18,6 +18,8 @@ import numpy as np
 
 from processing.recording import Mark
 
+Ranges = list[tuple[int, int]]
+
 
 class Columns(Protocol):
     """Frames x keys readings that give one key's column (`readings[:, c]`): a numpy array or
@@ -170,7 +172,7 @@ def find_touches(t_s: np.ndarray, readings: Columns, names: Sequence[str], polar
     n, width = readings.shape
     pol = expand_polarity(polarity, width)
     trim = max(1, round(0.05 * rate_hz))
-    marked = _marked_stretches(t_s, marks, names)
+    marked = marked_stretches(marks, names, _searchsorted(t_s))
     found: dict[int, list[tuple[int, int]]] = {}
     sources: list[_KeyDelta] = []
     touched: list[np.ndarray] = []
@@ -188,7 +190,7 @@ def find_touches(t_s: np.ndarray, readings: Columns, names: Sequence[str], polar
         for a, b in runs:
             busy[max(0, a - guard): b + guard] = True
     quiet_mask = ~busy
-    if marked is not None and (q := _mark_ranges(t_s, marks, "quiet-start", "quiet-end", None)):
+    if marked is not None and (q := mark_ranges(marks, "quiet-start", "quiet-end", None, _searchsorted(t_s))):
         quiet_mask = np.zeros(n, bool)
         for a, b in q:
             quiet_mask[a:b] = True
@@ -216,24 +218,33 @@ def _find_runs(delta: np.ndarray, rate_hz: float, min_touch_s: float) -> list[tu
     return merged
 
 
-def _mark_ranges(t_s: np.ndarray, marks: Sequence[Mark], start_kind: str, end_kind: str,
-                 channel: str | None) -> list[tuple[int, int]]:
-    out, opened = [], None
+def mark_ranges(marks: Sequence[Mark], start_kind: str, end_kind: str, channel: str | None,
+                to_frames: Callable[[np.ndarray], np.ndarray]) -> list[tuple[int, int]]:
+    """[start, stop) frames between each `start_kind` mark and the next `end_kind` one (of `channel`, or of
+    any with None); `to_frames(times)` gives the first frame at or after each time (`np.searchsorted`)."""
+    pairs, opened = [], None
     for m in sorted(marks, key=lambda m: m.t_s):
         if m.channel != channel and channel is not None:
             continue
         if m.kind == start_kind:
             opened = m.t_s
         elif m.kind == end_kind and opened is not None:
-            out.append((int(np.searchsorted(t_s, opened)), int(np.searchsorted(t_s, m.t_s))))
+            pairs.append((opened, m.t_s))
             opened = None
-    return out
+    if not pairs:
+        return []
+    at = to_frames(np.array(pairs, np.float64).reshape(-1)).tolist()
+    return list(zip(at[0::2], at[1::2], strict=True))
 
 
-def _marked_stretches(t_s: np.ndarray, marks: Sequence[Mark],
-                      names: Sequence[str]) -> dict[int, list[tuple[int, int]]] | None:
+def marked_stretches(marks: Sequence[Mark], names: Sequence[str],
+                     to_frames: Callable[[np.ndarray], np.ndarray]) -> dict[int, Ranges] | None:
+    """Key -> its touches from the touch marks; None when the recording has no touch mark at all."""
     if not any(m.kind == "touch-start" for m in marks):
         return None
-    return {c: _mark_ranges(t_s, marks, "touch-start", "touch-end", name) for c, name in enumerate(names)}
+    return {c: mark_ranges(marks, "touch-start", "touch-end", name, to_frames)
+            for c, name in enumerate(names)}
 
 
+def _searchsorted(t_s: np.ndarray) -> Callable[[np.ndarray], np.ndarray]:
+    return lambda times: np.searchsorted(t_s, times)

@@ -88,18 +88,59 @@ def _hysteresis(threshold: int, top: int, fraction: float) -> tuple[int, str]:
                   f"delta ({top})")
 
 
-def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: float, *,
-            hysteresis_fraction: float = 0.15, max_debounce_s: float = 0.05,
-            min_samples: int = 16) -> Suggestion | Refusal:
-    """Suggest settings from untouched and touched delta samples of one key (counts)."""
-    quiet = np.asarray(untouched_delta, np.int64)
-    held = np.asarray(touched_delta, np.int64)
-    if len(quiet) < min_samples or len(held) < min_samples:
+@dataclass(frozen=True, slots=True)
+class Samples:
+    """What a suggestion needs of one set of delta samples (counts): how many, lowest, highest, RMS
+    (population standard deviation) and median. `of(values)` takes them from an array; streaming tuning
+    (`processing.key_stats`) gathers them a piece at a time."""
+
+    count: int
+    low: int
+    high: int
+    rms: float
+    median: float
+
+    @classmethod
+    def of(cls, values: np.ndarray) -> Samples:
+        v = np.asarray(values, np.int64)
+        if not len(v):
+            return cls(0, 0, 0, 0.0, math.nan)
+        return cls(len(v), int(v.min()), int(v.max()), float(np.std(v)), float(np.median(v)))
+
+
+@dataclass(frozen=True, slots=True)
+class Levels:
+    """The first half of a suggestion: threshold and hysteresis, from the samples' figures alone. The
+    debounces need two runs that depend on these levels (`burst_level`, `release_level`)."""
+
+    threshold_counts: int
+    hysteresis_counts: int
+    reasons: dict[str, str]
+    signal_counts: float
+    noise_pp_counts: int
+    noise_rms_counts: float
+    quiet_median: float
+
+    @property
+    def release_level(self) -> int:
+        """A touched delta below this is a dropout (the release debounce spans the longest run of them)."""
+        return self.threshold_counts - self.hysteresis_counts
+
+    def is_burst(self, quiet: np.ndarray) -> np.ndarray:
+        """Untouched deltas beyond 2 RMS of their median (the touch debounce spans the longest run)."""
+        rms = self.noise_rms_counts
+        return np.abs(np.asarray(quiet, np.int64) - self.quiet_median) > 2 * rms if rms > 0 else \
+            np.zeros(len(quiet), bool)
+
+
+def levels(quiet: Samples, held: Samples, *, hysteresis_fraction: float = 0.15,
+           min_samples: int = 16) -> Levels | Refusal:
+    """Threshold and hysteresis from untouched (`quiet`) and touched (`held`) samples, or why not."""
+    if quiet.count < min_samples or held.count < min_samples:
         return Refusal(f"need at least {min_samples} untouched and {min_samples} touched frames; "
-                       f"have {len(quiet)} and {len(held)}: capture longer")
-    top, pp = int(quiet.max()), int(quiet.max() - quiet.min())
-    rms = float(np.std(quiet))
-    signal = float(np.median(held))
+                       f"have {quiet.count} and {held.count}: capture longer")
+    top, pp = quiet.high, quiet.high - quiet.low
+    signal = held.median
     if signal <= top:
         return Refusal(f"the touch signal (median {signal:g} counts) does not rise above the noise (highest "
                        f"untouched delta {top} counts): check the overlay, electrode and grounding")
@@ -109,8 +150,14 @@ def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: flo
     reasons: dict[str, str] = {}
     threshold, reasons["threshold_counts"] = chosen
     hyst, reasons["hysteresis_counts"] = _hysteresis(threshold, top, hysteresis_fraction)
-    centre = float(np.median(quiet))
-    burst = longest_run(np.abs(quiet - centre) > 2 * rms) if rms > 0 else 0
+    return Levels(threshold, hyst, reasons, signal, pp, quiet.rms, quiet.median)
+
+
+def debounced(lv: Levels, burst: int, dropout: int, rate_hz: float, *,
+              max_debounce_s: float = 0.05) -> Suggestion:
+    """The suggestion, given the longest noise burst (`Levels.is_burst` run, frames) among the untouched
+    samples and the longest dropout (below `Levels.release_level`) among the touched ones."""
+    reasons = dict(lv.reasons)
     touch_db, capped = _debounce(burst, rate_hz, max_debounce_s)
     span_ms = f"{1000 * touch_db / rate_hz:.0f} ms"
     reasons["touch_debounce_frames"] = (
@@ -119,7 +166,6 @@ def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: flo
         "against a single stray frame")
     if capped:
         reasons["touch_debounce_frames"] += f" (capped at {_frames(touch_db)}, to stay quick)"
-    dropout = longest_run(held < threshold - hyst)
     release_db, capped = _debounce(dropout, rate_hz, max_debounce_s)
     reasons["release_debounce_frames"] = (
         f"the touched delta dipped below the release level for up to {_frames(dropout)}; "
@@ -127,7 +173,23 @@ def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: flo
         f"level; {_frames(release_db)} still hold a touch through a single stray frame")
     if capped:
         reasons["release_debounce_frames"] += f" (capped at {_frames(release_db)})"
-    return Suggestion(threshold, hyst, touch_db, release_db, reasons, signal, float(pp), rms)
+    return Suggestion(lv.threshold_counts, lv.hysteresis_counts, touch_db, release_db, reasons,
+                      lv.signal_counts, float(lv.noise_pp_counts), lv.noise_rms_counts)
+
+
+def suggest(untouched_delta: np.ndarray, touched_delta: np.ndarray, rate_hz: float, *,
+            hysteresis_fraction: float = 0.15, max_debounce_s: float = 0.05,
+            min_samples: int = 16) -> Suggestion | Refusal:
+    """Suggest settings from untouched and touched delta samples of one key (counts)."""
+    quiet = np.asarray(untouched_delta, np.int64)
+    held = np.asarray(touched_delta, np.int64)
+    lv = levels(Samples.of(quiet), Samples.of(held), hysteresis_fraction=hysteresis_fraction,
+                min_samples=min_samples)
+    if isinstance(lv, Refusal):
+        return lv
+    burst = longest_run(lv.is_burst(quiet))
+    dropout = longest_run(held < lv.release_level)
+    return debounced(lv, burst, dropout, rate_hz, max_debounce_s=max_debounce_s)
 
 
 def _frames(count: int) -> str:

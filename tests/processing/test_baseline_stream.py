@@ -1,0 +1,50 @@
+"""Streaming baselines and deltas (processing.baseline_stream) against the whole-array implementation
+(processing.stretches: `_baseline_knots` and `_KeyDelta`, the plain reference it must equal bit for bit)
+and against numpy's own median and interpolation on a hand-made case."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from processing.baseline_stream import baselines, window_frames
+from processing.frame_source import ArraySource
+from processing.stretches import _baseline_knots, _KeyDelta
+
+
+def _readings(rng: np.random.Generator, frames: int, width: int) -> np.ndarray:
+    drift = np.cumsum(rng.normal(0, 0.3, (frames, width)), axis=0)
+    touch = np.zeros((frames, width))
+    for c in range(width):
+        for _ in range(3):
+            a = int(rng.integers(0, frames))
+            touch[a:a + int(rng.integers(5, 200)), c] = rng.choice([-1, 1]) * rng.integers(20, 300)
+    return np.rint(10_000 + drift + touch + rng.normal(0, 2, (frames, width))).astype(np.int32)
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_deltas_equal_the_whole_array_ones(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    frames, width = int(rng.integers(1, 3000)), int(rng.integers(1, 5))
+    rate_hz = float(rng.choice([20.0, 50.0, 100.0, 333.0, 1000.0]))
+    readings = _readings(rng, frames, width)
+    sign = rng.choice([-1, 1], width).astype(np.int64)
+    t_s = np.arange(frames) / rate_hz
+    want = np.empty((frames, width))
+    for c in range(width):
+        v = sign[c] * readings[:, c].astype(np.float64)
+        want[:, c] = _KeyDelta(readings, c, sign[c], _baseline_knots(v, rate_hz))()
+    for piece_frames in (1, 3, int(rng.integers(2, 500)), 4096):
+        b = baselines(ArraySource(t_s, readings, piece_frames), sign, rate_hz)
+        got = np.concatenate([d for _, d in b.passes()])
+        assert np.array_equal(got, want), piece_frames  # bit for bit, whatever the cuts
+
+
+def test_a_hand_made_baseline() -> None:
+    # 4 windows of 2 frames at 4 Hz (window 0.5 s): medians 1.5, 10, 3.5, 5.5 (numpy.median of each pair);
+    # the span covers all four, so every point is the lowest, 1.5; deltas are readings - 1.5.
+    readings = np.array([[1], [2], [10], [10], [3], [4], [5], [6]], np.int32)
+    assert window_frames(4.0) == 2
+    b = baselines(ArraySource(np.arange(8) / 4.0, readings, 3), np.array([1]), 4.0)
+    assert b.low[:, 0].tolist() == [1.5] * 4
+    assert np.concatenate([d for _, d in b.passes()])[:, 0].tolist() == (readings[:, 0] - 1.5).tolist()
