@@ -185,14 +185,31 @@ def _hint(name: str, candidates: Iterable[str]) -> str | None:
 
 
 def _unknown(where: str, table: Mapping[str, Any], allowed: tuple[str, ...], out: Problems) -> None:
+    """The first `HINTED` unknown keys each with a did-you-mean hint if one is close; the keys the table
+    knows are said once: after the last key without a hint, or with the count when there are more."""
     unknown = [key for key in table if key not in allowed]
+    known = f"known keys here: {', '.join(allowed)}"
+    many = len(unknown) > HINTED
+    lines = []
     for key in unknown[:HINTED]:
         close = _hint(key, allowed)
-        hint = f"; did you mean '{close}'?" if close else f"; known keys: {', '.join(allowed)}"
-        out.append((f"{where}{_key(key)}", f"unknown key{hint}"))
-    if len(unknown) > HINTED:
+        hint = f"; did you mean '{close}'?" if close else ""
+        lines.append([f"{where}{_key(key)}", f"unknown key{hint}"])
+    plain = [line for line in lines if not line[1].endswith("?")]
+    if plain and not many:
+        plain[-1][1] += f"; {known}"
+    out.extend((w, m) for w, m in lines)
+    if many:
         out.append((where.rstrip(".") or "(top level)", f"{len(unknown)} unknown keys in all "
-                    f"(the first {HINTED} above); known keys: {', '.join(allowed)}"))
+                    f"(the first {HINTED} above); {known}"))
+
+
+BOARD_FILE_TABLES = ("method", "overlay", "finger", "pad_defaults")  # what a board file has and a profile not
+
+
+def _board_file(raw: Mapping[str, Any]) -> bool:
+    """True for a simulated board's file (devices/boards/*.toml): `[board]` a table and board-only tables."""
+    return isinstance(raw.get("board"), dict) and sum(t in raw for t in BOARD_FILE_TABLES) >= 2
 
 
 def _is_int(v: Any) -> bool:
@@ -399,6 +416,10 @@ def _unknown_channels(unknown: list[str], index: Mapping[str, int], out: Problem
 def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[str, str]]]:
     """Validate a parsed TOML document; returns the profile only when there is no problem at all."""
     out: Problems = []
+    if _board_file(raw):
+        return None, [("(top level)", "this is a board file (`padtune sim FILE` runs it as a simulated "
+                       "board), not a profile; a profile comes from `padtune tune` or a save on the live "
+                       "screen")]
     _unknown("", raw, TOP_KEYS, out)
     _head(raw, out)
     names = _names(raw, out)

@@ -14,7 +14,14 @@ import pytest
 
 from processing.export import c_header_text, export_c_header, export_json
 from processing.groups import GroupSpec
-from processing.profile import Profile, ProfileError, load_profile, profile_for, save_profile
+from processing.profile import (
+    Profile,
+    ProfileError,
+    load_profile,
+    profile_for,
+    profile_from_dict,
+    save_profile,
+)
 from processing.settings import ChannelSettings, Limits
 from processing.slider import SliderSpec
 from protocol.errors import UserError
@@ -188,7 +195,7 @@ def test_killed_writer_leaves_old_or_new_never_broken(tmp_path):
     (("channels = 3\n", ""), "channels: missing; add the channel count"),
     (('names = ["zone1", "zone2", "stop"]', 'names = ["zone1", 2, "stop"]'), "names: must be a list of channel names (strings)"),
     (('board = "greenhouse-panel"', "board = 7"), "board: must be a string"),
-    (("format_version = 1", "xyzzy = 1\nformat_version = 1"), "xyzzy: unknown key; known keys: format_version, board"),
+    (("format_version = 1", "xyzzy = 1\nformat_version = 1"), "xyzzy: unknown key"),
     (('pads = ["zone1", "zone2", "stop"]\nwheel = true', 'pads = ["zone1"]\nwheel = false'), "slider[0].pads: a slider needs at least 2 pads"),
     (('pads = ["zone1", "zone2", "stop"]', 'pads = ["zone1", "zone2", "pump"]'), "slider[0].pads: unknown channel 'pump'"),
     (("threshold_counts = 200", "hysteresis_counts = -1"), "channel.stop.hysteresis_counts: must not be negative (-1)"),
@@ -315,3 +322,22 @@ def test_profile_saved_by_a_windows_editor_loads(tmp_path):
     path = tmp_path / "p.toml"
     path.write_bytes(b"\xef\xbb\xbf" + GOOD.replace("\n", "\r\n").encode("utf-8"))
     assert load_profile(path) == load_profile(write(tmp_path, GOOD, "q.toml"))
+
+
+def test_a_board_file_given_as_a_profile_is_named_for_what_it_is() -> None:
+    # A board file (devices/boards) read as a profile: one short line saying what it is, not a list of
+    # every table a profile does not know.
+    board = pathlib.Path(__file__).resolve().parents[2] / "devices" / "boards" / "greenhouse.toml"
+    with pytest.raises(ProfileError) as caught:
+        load_profile(board)
+    message = str(caught.value)
+    assert "this is a board file" in message and "padtune sim" in message
+    assert "known keys" not in message and message.count(" | ") == 0
+
+
+def test_unknown_keys_name_the_known_ones_once() -> None:
+    raw = {"format_version": 1, "channels": 1, "names": ["a"], "xyzzy": 1, "plugh": 2, "fromat_version": 3}
+    _, problems = profile_from_dict(raw)
+    text = " | ".join(f"{w}: {m}" for w, m in problems)
+    assert text.count("known keys here") == 1 and "plugh: unknown key; known keys here: format_version" in text
+    assert "fromat_version: unknown key; did you mean 'format_version'?" in text
