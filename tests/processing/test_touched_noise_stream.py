@@ -99,3 +99,14 @@ def test_touches_outside_the_recording_are_refused(runs: list[tuple[int, int]]) 
     full = np.zeros((30, 1))
     with pytest.raises(ValueError, match="touch"):
         touched_noise_by_key(cut_passes(full, np.random.default_rng(0)), [runs], 10.0)
+
+
+def test_touches_out_of_order_and_tied_for_longest_take_the_first_listed() -> None:
+    rng = np.random.default_rng(5)
+    full, _ = _recording(rng, 800, 1, 100.0)
+    full[500:700, 0] += 30 * np.sin(2 * np.pi * 31.0 * np.arange(200) / 100.0)  # its own tone
+    for runs in ([(500, 700), (100, 300)], [(100, 300), (500, 700)], [(650, 760), (0, 640)]):
+        got = touched_noise_by_key(cut_passes(full, rng, 40), [runs], 100.0)[0]
+        want = touched_noise([full[a:b, 0] for a, b in runs], 100.0)
+        assert want is not None and want.peak is not None
+        _same(got, want)
