@@ -26,3 +26,18 @@ def blocks(readings: np.ndarray, sizes: list[int], rate_hz: float = 100.0) -> It
         n = max(1, sizes[k % len(sizes)])
         yield block(readings[pos:pos + n], pos, rate_hz)
         pos, k = pos + n, k + 1
+
+
+def cut_passes(full: np.ndarray, rng: np.random.Generator, most: int = 50):  # -> DeltaPasses
+    """Passes over an in-memory frames x keys array, cut at random piece sizes from 1 frame to `most`
+    (a fresh set of cuts every pass: a computation must not depend on them)."""
+    full = np.asarray(full, np.float64)
+
+    def one_pass() -> Iterator[tuple[int, np.ndarray]]:
+        at = 0
+        while at < len(full):
+            n = 1 if rng.random() < 0.2 else int(rng.integers(1, most + 1))
+            yield at, full[at:at + n]
+            at += n
+
+    return one_pass

@@ -63,13 +63,21 @@ def delta_plot(t_s: np.ndarray, delta_counts: np.ndarray, threshold_counts: floa
                release_counts: float | None, stretches: Sequence[tuple[int, int]] = (), title: str = "",
                noise_limit_pp_counts: float | None = None) -> str:
     """Delta over time, touched stretches shaded, threshold and release lines, the noise limit band."""
-    fig, ax = _figure()
     t, v = envelope(np.asarray(t_s, float), np.asarray(delta_counts, float))
-    for i, (a, b) in enumerate(stretches):
-        end_s = float(t_s[min(b, len(t_s)) - 1])
-        ax.axvspan(float(t_s[a]), end_s, color=COLOURS["touched"], alpha=0.35, lw=0,
+    spans_s = [(float(t_s[a]), float(t_s[min(b, len(t_s)) - 1])) for a, b in stretches]
+    return delta_plot_from(t, v, spans_s, threshold_counts, release_counts, title, noise_limit_pp_counts)
+
+
+def delta_plot_from(t_s: np.ndarray, delta_counts: np.ndarray, spans_s: Sequence[tuple[float, float]],
+                    threshold_counts: float | None, release_counts: float | None, title: str = "",
+                    noise_limit_pp_counts: float | None = None) -> str:
+    """`delta_plot` of points already reduced (`envelope`, or `plot_data.sketches` for a recording read
+    in passes), touches shaded between their (first, last) times `spans_s`."""
+    fig, ax = _figure()
+    for i, (start_s, end_s) in enumerate(spans_s):
+        ax.axvspan(start_s, end_s, color=COLOURS["touched"], alpha=0.35, lw=0,
                    label="touched" if i == 0 else None)
-    ax.plot(t, v, color=COLOURS["delta"], lw=0.8, label="delta")
+    ax.plot(t_s, delta_counts, color=COLOURS["delta"], lw=0.8, label="delta")
     if threshold_counts is not None:
         ax.axhline(threshold_counts, color=COLOURS["threshold"], lw=1, ls="--",
                    label=f"threshold {threshold_counts:g}")
@@ -95,15 +103,43 @@ def histogram_plot(untouched_counts: np.ndarray, touched_counts: np.ndarray, thr
     untouched, touched, threshold = untouched_counts, touched_counts, threshold_counts
     fig, ax = _figure(4.2, 2.4)
     values = [np.asarray(v, float) for v in (untouched, touched) if len(v)]
-    lo = min((float(v.min()) for v in values), default=0.0)
-    hi = max((float(v.max()) for v in values), default=1.0)
-    if threshold is not None:
-        lo, hi = min(lo, threshold), max(hi, threshold)
-    bins = np.linspace(lo, hi if hi > lo else lo + 1, 60)
+    lo = min((float(v.min()) for v in values), default=None)
+    hi = max((float(v.max()) for v in values), default=None)
+    bins = histogram_bins(lo, hi, threshold)
     if len(untouched):
         ax.hist(untouched, bins=bins, color=COLOURS["untouched"], alpha=0.8, label=labels[0])
     if len(touched):
         ax.hist(touched, bins=bins, color=COLOURS["touch"], alpha=0.8, label=labels[1])
+    return _histogram_finish(fig, ax, threshold, title)
+
+
+def histogram_plot_from(bins: np.ndarray, untouched_frames: np.ndarray, touched_frames: np.ndarray,
+                        threshold_counts: float | None, title: str = "",
+                        labels: tuple[str, str] = ("untouched", "touched")) -> str:
+    """`histogram_plot` of values already counted into `bins` (`histogram_bins`; `plot_data.histograms`
+    for a recording read in passes): the same bars, each bin's count given as the weight of its centre."""
+    fig, ax = _figure(4.2, 2.4)
+    centres = (bins[:-1] + bins[1:]) / 2
+    for counts, colour, label in ((untouched_frames, "untouched", labels[0]),
+                                  (touched_frames, "touch", labels[1])):
+        if np.sum(counts):
+            ax.hist(centres, bins=bins, weights=np.asarray(counts, float), color=COLOURS[colour], alpha=0.8,
+                    label=label)
+    return _histogram_finish(fig, ax, threshold_counts, title)
+
+
+def histogram_bins(lo: float | None, hi: float | None, threshold_counts: float | None,
+                   count: int = 60) -> np.ndarray:
+    """`histogram_plot`'s bin edges: `count` edges from the lowest to the highest value (None: no values;
+    0 to 1 then), widened to take in the threshold; one count wide when they are all one value."""
+    lo = 0.0 if lo is None else lo
+    hi = 1.0 if hi is None else hi
+    if threshold_counts is not None:
+        lo, hi = min(lo, threshold_counts), max(hi, threshold_counts)
+    return np.linspace(lo, hi if hi > lo else lo + 1, count)
+
+
+def _histogram_finish(fig: Figure, ax: Axes, threshold: float | None, title: str) -> str:
     if threshold is not None:
         ax.axvline(threshold, color=COLOURS["threshold"], lw=1, ls="--", label="threshold")
     ax.set_yscale("log")
