@@ -221,6 +221,33 @@ def test_nothing_is_left_in_the_spool_folder(tmp_path: Path) -> None:
     assert os.listdir(folder) == []
 
 
+_KILLED_WHILE_OPEN = """
+import sys, time
+sys.path.insert(0, sys.argv[3])
+from processing.frame_spool import spool_frames
+from processing.recording_read import open_recording
+with open_recording(sys.argv[1]) as stream, spool_frames(stream, sys.argv[2]) as spool:
+    print(spool.frames, flush=True)
+    time.sleep(120)
+"""
+
+
+@pytest.mark.skipif(sys.platform != "linux", reason="SIGKILL as on Linux")
+def test_a_process_killed_while_it_holds_a_spool_leaves_nothing(tmp_path: Path) -> None:
+    path = tmp_path / "r.csv"
+    write_made_up(path, channels=4, frames=6_000, marks=False)
+    folder = tmp_path / "spool"
+    folder.mkdir()
+    child = subprocess.Popen([sys.executable, "-c", _KILLED_WHILE_OPEN, str(path), str(folder), str(ROOT)],
+                             stdout=subprocess.PIPE, text=True)
+    try:
+        assert child.stdout is not None and child.stdout.readline() == "6000\n"  # spooled, files open
+    finally:
+        child.kill()  # SIGKILL: no cleanup runs in the child
+        child.communicate(timeout=60)
+    assert child.returncode == -9 and os.listdir(folder) == []
+
+
 class _OneBlock:
     """A stream that yields one block (what the recording reader never does: a reading outside 32 bits)."""
 
