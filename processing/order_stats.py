@@ -15,8 +15,8 @@ the least and greatest value of every bin, so the next level's candidates are si
 first bin and the greatest in the last, so every level drops at least one value: narrowing ends.
 
 Memory: values collected in one pass stay within `budget_values`; a query being narrowed costs three
-arrays of `bins` (counts, least, greatest), charged to the same budget; queries that do not fit wait
-for a later pass. Pure numpy, no I/O.
+arrays of its bins (counts, least, greatest: `bins` at most, fewer for a smaller query), charged to the
+same budget; queries that do not fit wait for a later pass. Pure numpy, no I/O.
 """
 
 from __future__ import annotations
@@ -110,7 +110,7 @@ class _Bounds:
     hi: float = -math.inf
 
     def cost(self) -> int:
-        return 2
+        return 0
 
     def feed(self, values: np.ndarray) -> None:
         if not len(values):
@@ -192,45 +192,66 @@ class _Histogram:
 _Work = _Collect | _Bounds | _Histogram
 
 
+# A level need not cut a query finer than this many values a bin: a few thousand values are as good as
+# collected, and fewer bins let more queries narrow in one pass (bins cost memory like values).
+VALUES_PER_BIN = 32
+
+
+def _bins_for(task: _Task, bins: int) -> int:
+    return max(2, min(bins, task.n // VALUES_PER_BIN))
+
+
 def _narrowing(task: _Task, bins: int) -> _Work:
-    return _Bounds(task) if task.lo is None else _Histogram(task, bins)
+    return _Bounds(task) if task.lo is None else _Histogram(task, _bins_for(task, bins))
 
 
 def _narrow_cost(task: _Task, bins: int) -> int:
-    return 2 if task.lo is None else 3 * bins
+    """Values' worth of memory one narrowing step holds: a first look keeps two numbers (counted with
+    the query itself, not against the budget), a level three arrays of its bins."""
+    return 0 if task.lo is None else 3 * _bins_for(task, bins)
 
 
 def _plan(tasks: list[_Task], budget: int, bins: int) -> tuple[list[_Work], list[_Task]]:
     """This pass's work within `budget`, and the tasks left waiting. Queries too large for the budget
-    narrow first (they need the most passes); then the smallest are collected while they fit. Those that
-    would fit alone but not beside the others wait for the next pass when together they fit it, and are
-    narrowed now otherwise (a narrowed query is then small enough to share a pass)."""
+    narrow first (they need the most passes). Of the others the smallest are collected while they fit;
+    when the rest would all fit the next pass they wait for it, otherwise room is kept to narrow them
+    now (a narrowed query then shares the next pass easily), collecting fewer."""
     work: list[_Work] = []
     waiting: list[_Task] = []
     left = budget
+    for t in tasks:
+        if t.n > budget:
+            left = _narrow_or_wait(t, bins, left, work, waiting)
     fitting = sorted((t for t in tasks if t.n <= budget), key=lambda t: t.n)
-    for t in (t for t in tasks if t.n > budget):
-        if _narrow_cost(t, bins) <= left:
-            work.append(_narrowing(t, bins))
-            left -= _narrow_cost(t, bins)
-        else:
-            waiting.append(t)
-    crowded = []
-    for t in fitting:
-        if t.n <= left:
-            work.append(_Collect(t))
-            left -= t.n
-        else:
-            crowded.append(t)
-    if sum(t.n for t in crowded) <= budget:
-        return work, waiting + crowded
-    for t in crowded:
-        if _narrow_cost(t, bins) <= left:
-            work.append(_narrowing(t, bins))
-            left -= _narrow_cost(t, bins)
-        else:
-            waiting.append(t)
-    return work, waiting
+    taken = _collectable(fitting, left, 0, bins)
+    if sum(t.n for t in fitting[taken:]) > budget:
+        taken = _collectable(fitting, left, sum(_narrow_cost(t, bins) for t in fitting), bins)
+        work += [_Collect(t) for t in fitting[:taken]]
+        left -= sum(t.n for t in fitting[:taken])
+        for t in fitting[taken:]:
+            left = _narrow_or_wait(t, bins, left, work, waiting)
+        return work, waiting
+    work += [_Collect(t) for t in fitting[:taken]]
+    return work, waiting + fitting[taken:]
+
+
+def _collectable(fitting: list[_Task], left: int, reserve: int, bins: int) -> int:
+    """How many of `fitting` (smallest first) can be collected in `left`, keeping room to narrow the
+    others (`reserve`: what narrowing every one of them would hold)."""
+    for i, t in enumerate(fitting):
+        reserve -= _narrow_cost(t, bins)
+        if t.n + reserve > left:
+            return i
+        left -= t.n
+    return len(fitting)
+
+
+def _narrow_or_wait(t: _Task, bins: int, left: int, work: list[_Work], waiting: list[_Task]) -> int:
+    if _narrow_cost(t, bins) <= left:
+        work.append(_narrowing(t, bins))
+        return left - _narrow_cost(t, bins)
+    waiting.append(t)
+    return left
 
 
 def _run_pass(passes: Passes, work: list[_Work]) -> tuple[Answers, list[_Task]]:
@@ -241,7 +262,9 @@ def _run_pass(passes: Passes, work: list[_Work]) -> tuple[Answers, list[_Task]]:
         for q, raw in piece.items():
             if q not in by_query:
                 raise ValueError(f"a pass gave values of query {q}, which it was not asked for")
-            values = np.asarray(raw, np.float64).ravel()
+            values = np.asarray(raw, np.float64)
+            if values.ndim != 1:
+                values = values.reshape(-1)
             for w in by_query[q]:
                 w.feed(values)
     answers: Answers = {}
