@@ -14,9 +14,14 @@ the least and greatest value of every bin, so the next level's candidates are si
 [least, greatest] of the bin kept: one interval, no chain of tests. The least value always lands in the
 first bin and the greatest in the last, so every level drops at least one value: narrowing ends.
 
+Signed zeros: results equal numpy's as floats compare (`==`), and bit for bit unless the values hold
+both -0.0 and +0.0: then which zero numpy returns follows the order its partition leaves equal values
+in, which no pass-wise method can see. Producers of values keep -0.0 out (x + 0.0 is +0.0 for x = -0.0).
+
 Memory: values collected in one pass stay within `budget_values`; a query being narrowed costs three
 arrays of its bins (counts, least, greatest: `bins` at most, fewer for a smaller query), charged to the
-same budget; queries that do not fit wait for a later pass. Pure numpy, no I/O.
+same budget; queries that do not fit wait for a later pass. Beyond the budget, a handful of numbers per
+query (its ranks, its first look's least and greatest value). Pure numpy, no I/O.
 """
 
 from __future__ import annotations
@@ -192,8 +197,8 @@ class _Histogram:
 _Work = _Collect | _Bounds | _Histogram
 
 
-# A level need not cut a query finer than this many values a bin: a few thousand values are as good as
-# collected, and fewer bins let more queries narrow in one pass (bins cost memory like values).
+# A level need not cut a query finer than about this many values a bin (a bin that small is collected
+# next pass anyway), and fewer bins let more queries narrow in one pass: bins cost memory like values.
 VALUES_PER_BIN = 32
 
 
@@ -296,7 +301,7 @@ def select(passes: Passes, counts: Sequence[int], ranks: Sequence[Sequence[int]]
     """out[q][i] = the value of 0-based rank ranks[q][i] among query q's `counts[q]` values sorted
     ascending (ValueError for a rank outside [0, counts[q]), NaN or infinite values, or passes that do
     not give `counts[q]` values). At most about `budget_values` values are held at once, narrowing
-    bins included."""
+    bins included, beyond a few numbers per query and the pieces of a pass."""
     if budget_values < MIN_BUDGET_VALUES:
         raise ValueError(f"the budget holds at least {MIN_BUDGET_VALUES} values, not {budget_values}")
     if bins < 2:
