@@ -4,7 +4,7 @@
 host times (float64) to one temporary file, readings (int32, exact: the recording reader and the
 protocol refuse readings outside 32 bits, and a guard here says so if a block ever holds one) to
 another. Both are `tempfile.TemporaryFile`s, unlinked from the start, so nothing is left in the folder
-even if the process is killed. What is kept is what `processing.tune_frames.read_frames` keeps: the
+even if the process is killed. What is kept is what `Recording.arrays()` gives of the whole file: the
 first BoardInfo, every block of the LAST width seen (in order), the marks of a padtune recording,
 `names`, `truncated`, `path`.
 

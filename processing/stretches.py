@@ -3,7 +3,11 @@
 `find_touches` uses the recording's marks when it has touch marks; without, it estimates a drift-
 following baseline (a rolling minimum of half-second medians, a standard morphological baseline
 estimate) and finds the touched stretches as the frames well above the untouched spread. `key_figures`
-gives noise pp and RMS, the median touch delta and both SNR forms, defined as `processing.measure` does.
+gives noise pp and RMS, the median touch delta and both SNR forms, defined as `processing.measure` does
+(`figures_from` the same from summed-up samples).
+`find_touches` works on whole arrays: it is the plain statement of the rule, which the guided capture's
+tests and `tests/processing/tune_reference.py` use; `padtune tune` applies the same rule by passes over a
+recording of any length (`processing.touch_search`, held equal to this one by the tests).
 Pure numpy, no I/O.
 """
 
@@ -17,13 +21,14 @@ from typing import Protocol
 import numpy as np
 
 from processing.recording import Mark
+from processing.suggest import Samples
 
 Ranges = list[tuple[int, int]]
 
 
 class Columns(Protocol):
-    """Frames x keys readings that give one key's column (`readings[:, c]`): a numpy array or
-    `processing.tune_frames.ChunkedReadings`."""
+    """Frames x keys readings that give one key's column (`readings[:, c]`), a numpy array or any
+    column store."""
 
     @property
     def shape(self) -> tuple[int, ...]: ...
@@ -55,6 +60,19 @@ def key_figures(quiet: np.ndarray, touched: np.ndarray) -> KeyFigures:
         pp, rms = float(q.max() - q.min()), float(np.std(q))
     if len(touched):
         signal = float(np.median(touched))
+    if signal is not None and pp is not None and rms is not None:
+        snr_pp = signal / pp if pp > 0 else math.inf
+        snr_rms = signal / rms if rms > 0 else math.inf
+    return KeyFigures(pp, rms, signal, snr_pp, snr_rms)
+
+
+def figures_from(quiet: Samples, held: Samples) -> KeyFigures:
+    """`key_figures` from samples already summed up (`processing.suggest.Samples`: streaming tuning)."""
+    pp = rms = signal = snr_pp = snr_rms = None
+    if quiet.count >= 2:
+        pp, rms = float(quiet.high - quiet.low), quiet.rms
+    if held.count:
+        signal = held.median
     if signal is not None and pp is not None and rms is not None:
         snr_pp = signal / pp if pp > 0 else math.inf
         snr_rms = signal / rms if rms > 0 else math.inf
@@ -167,7 +185,7 @@ def find_touches(t_s: np.ndarray, readings: Columns, names: Sequence[str], polar
     """Per key: delta trace, touched stretches (from marks, else found), untouched and touched deltas.
 
     `readings` is frames x keys: an array, or anything that gives `shape` and one key's column as
-    `readings[:, c]` (`processing.tune_frames.ChunkedReadings`). One key's float trace is alive at a time.
+    `readings[:, c]`. One key's float trace is alive at a time.
     """
     n, width = readings.shape
     pol = expand_polarity(polarity, width)

@@ -1,10 +1,18 @@
 """Suggestions for every key of a recording: touches from the marks or found, figures, new settings.
 
-Pure: a `Recording` and a base profile in, a `TuneResult` out (the new profile, and per key what was
-measured, the verdict, the suggestion or the reason for refusing one). A key without a suggestion is
-*unmeasured*: it keeps its settings, `TuneResult.unmeasured()` names it and the profile marks it
-(`measured = false`) unless a base profile already held settings for it as measured: the rule is
-`keeps_claim` / `measured_marks`, which the live screen's guided capture applies too.
+Pure: frames and a base profile in, a `TuneResult` out (the new profile, and per key what was measured,
+the verdict, the suggestion or the reason for refusing one, its noise while touched, and the crosstalk
+between keys). The frames come as a `processing.frame_source.FrameSource` that can be gone through again
+and again (`padtune tune` spools a recording to a temporary file: `processing.frame_spool`), and nothing
+frames-long is ever held: the baselines are points (`processing.baseline_stream`), the touches and quiet
+frames ranges (`processing.touch_search`), each figure a pass or an exact selection (`processing.key_stats`,
+`processing.order_stats`), so memory does not grow with the recording's length. A `Recording` already in
+memory is served the same way (`ArraySource`). The whole-array form of the same rule is
+`processing.stretches.find_touches` (the reference the tests hold this to).
+
+A key without a suggestion is *unmeasured*: it keeps its settings, `TuneResult.unmeasured()` names it and
+the profile marks it (`measured = false`) unless a base profile already held settings for it as measured:
+the rule is `keeps_claim` / `measured_marks`, which the live screen's guided capture applies too.
 `limits_from_result` turns a good unit's result into production limits, each channel its own.
 `padtune tune` prints and saves it (rows for its table and JSON: `tui.headless.tuning`); the HTML
 report draws it.
@@ -15,20 +23,59 @@ from __future__ import annotations
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass, replace
+from typing import Protocol
 
 import numpy as np
 
+from processing.baseline_stream import Baselines, WindowMedians, baselines_from, window_frames
+from processing.crosstalk import Coupling, TouchedNoise
+from processing.crosstalk_stream import couplings_streaming
+from processing.frame_source import PIECE_FRAMES, ArraySource, FrameSource
+from processing.key_stats import KeySamples
 from processing.measure import VerdictBounds
 from processing.profile import Profile, profile_for, profile_from_board
-from processing.recording_format import Recording
+from processing.reading_extremes import untouched_extremes
+from processing.recording_format import Mark, Recording
 from processing.settings import LIMIT_KEYS, ChannelSettings, Limits
 from processing.startup import Learned, Startup
-from processing.stretches import Columns, KeyFigures, KeyTrace, find_touches, key_figures
-from processing.suggest import Refusal, Suggestion, suggest
-from processing.tune_frames import TuneFrames
+from processing.stretches import KeyFigures, expand_polarity, figures_from
+from processing.suggest import Levels, Refusal, Suggestion, debounced, levels
+from processing.touch_search import Touches, find_touches_streaming
+from processing.touched_noise_stream import touched_noise_by_key
 from protocol.errors import UserError
+from protocol.events import BoardInfo
 
 MIN_FRAMES = 32
+
+
+class Frames(Protocol):
+    """What tuning reads of a recording besides its frames (a `Recording`, a `FrameSpool`)."""
+
+    path: str
+    marks: list[Mark]
+
+    @property
+    def info(self) -> BoardInfo | None: ...
+
+    @property
+    def names(self) -> tuple[str, ...]: ...
+
+    @property
+    def channels(self) -> int | None: ...
+
+    @property
+    def rate_hz(self) -> float | None: ...
+
+
+@dataclass(frozen=True)
+class KeyTouches:
+    """Where one key was touched (`stretches`, [start, stop) frames) and how many frames its figures rest
+    on: touched frames (edges trimmed) and untouched (quiet) frames."""
+
+    stretches: list[tuple[int, int]]
+    touched_frames: int
+    quiet_frames: int
+    from_marks: bool
 
 
 @dataclass
@@ -40,7 +87,8 @@ class KeyResult:
     outcome: Suggestion | Refusal
     before: ChannelSettings
     after: ChannelSettings
-    trace: KeyTrace
+    trace: KeyTouches
+    touched_noise: TouchedNoise | None = None
 
     @property
     def changed(self) -> bool:
@@ -52,15 +100,27 @@ class KeyResult:
         return isinstance(self.outcome, Suggestion)
 
 
+@dataclass(frozen=True)
+class TunePasses:
+    """What a result was measured from, for whatever goes through the frames again (limits, the report's
+    plots): the frames, every key's baseline (its `passes()` give the deltas) and the touches found. Valid
+    while the frames are (a spool is closed with its `with`)."""
+
+    source: FrameSource
+    baselines: Baselines
+    touches: Touches
+
+
 @dataclass
 class TuneResult:
     profile: Profile
     keys: list[KeyResult]
-    t_s: np.ndarray
     rate_hz: float
     from_marks: bool
     source: str
     frames: int
+    couplings: list[Coupling]
+    passes: TunePasses
 
     def unmeasured(self) -> list[KeyResult]:
         """Keys this recording did not measure (no touch found, or a suggestion refused), in order."""
@@ -84,7 +144,7 @@ def measured_marks(base: Profile | None, measured: Iterable[int],
     return out
 
 
-def base_profile(rec: Recording, base: Profile | None) -> Profile:
+def base_profile(rec: Frames, base: Profile | None) -> Profile:
     width = rec.channels or 0
     if base is not None:
         if base.channels != width:
@@ -97,61 +157,86 @@ def base_profile(rec: Recording, base: Profile | None) -> Profile:
     return profile_for(width, rec.names if len(rec.names) == width else ())
 
 
-def learned_polarity(t_s: np.ndarray, readings: Columns, rate_hz: float) -> dict[int, int]:
-    """Channel -> direction, from its first clear touch that comes back in the recording, as the live
-    session learns it (channels never touched are left out). `readings` held in pieces
-    (`ChunkedReadings`) go through a piece at a time, as a live session's blocks do (the learner's result
-    does not depend on how the frames are cut: ALGORITHM.md, first contact)."""
-    width = readings.shape[1]
-    startup = Startup(width, [False] * width, [True] * width, rate_hz)
-    if isinstance(readings, np.ndarray):
-        steps = startup.advance(readings, t_s)
-    else:
-        steps, at = [], 0
-        for piece in readings.pieces():
-            steps.extend(startup.advance(piece, t_s[at:at + len(piece)]))
-            at += len(piece)
-    return {step.channel: step.sign for step in steps if isinstance(step, Learned)}
+def first_pass(source: FrameSource, rate_hz: float, learn: bool) -> tuple[np.ndarray, int, dict[int, int]]:
+    """One pass: every key's raw half-second window medians (the baselines' points) and, when `learn`,
+    each channel's direction from its first clear touch that comes back, as the live session learns it
+    (ALGORITHM.md, first contact; channels never touched are left out)."""
+    w = window_frames(rate_hz)
+    medians = WindowMedians(w, source.width)
+    width = source.width
+    startup = Startup(width, [False] * width, [True] * width, rate_hz) if learn else None
+    learned: dict[int, int] = {}
+    for piece in source.pieces():
+        medians.feed(piece.readings)
+        if startup is not None:
+            for step in startup.advance(piece.readings, piece.t_s):
+                if isinstance(step, Learned):
+                    learned[step.channel] = step.sign
+    return medians.finish(), w, learned
 
 
-def tune_recording(rec: Recording | TuneFrames, base: Profile | None = None,
-                   bounds: VerdictBounds | None = None) -> TuneResult:
-    """Every key of `rec` measured and tuned. `rec` is a `Recording`, or the compact `TuneFrames` that
-    `padtune tune` reads a stream into (`processing.tune_frames`: the same answers in less memory)."""
-    t_s, _, readings = rec.arrays()
-    if len(t_s) < MIN_FRAMES:
-        raise UserError(f"{rec.path}: only {len(t_s)} frames; record at least a few seconds with each key "
-                        "touched")
-    rate_hz = rec.rate_hz or 100.0
-    profile = base_profile(rec, base)
-    info = rec.info
+def _source_of(rec: Recording | FrameSource, piece_frames: int) -> FrameSource:
+    if isinstance(rec, Recording):
+        t_s, _, readings = rec.arrays()
+        return ArraySource(t_s, readings, piece_frames)
+    return rec
+
+
+def tune_recording(rec: Recording | FrameSource, base: Profile | None = None,
+                   bounds: VerdictBounds | None = None, *, piece_frames: int = PIECE_FRAMES,
+                   **select_kw: int) -> TuneResult:
+    """Every key of `rec` measured and tuned: a `Recording` in memory (gone through in pieces of
+    `piece_frames`), or a `FrameSource` that also answers what `Frames` asks
+    (`processing.frame_spool.FrameSpool`, what `padtune tune` reads a file into). `select_kw` sets the
+    exact selections' memory (`processing.order_stats.select`)."""
+    source = _source_of(rec, piece_frames)
+    meta: Frames = rec  # type: ignore[assignment]
+    if source.frames < MIN_FRAMES:
+        raise UserError(f"{meta.path}: only {source.frames} frames; record at least a few seconds with each "
+                        "key touched")
+    rate_hz = meta.rate_hz or 100.0
+    profile = base_profile(meta, base)
+    info = meta.info
     polarity = tuple(info.polarity) if info and info.polarity else tuple(profile.polarity)
+    medians, window, learned = first_pass(source, rate_hz, learn=not polarity)
     if not polarity:  # nobody says: each key's first touch that comes back (ALGORITHM.md, first contact)
-        learned = learned_polarity(t_s, readings, rate_hz)
         polarity = tuple(learned.get(c, 1) for c in range(profile.channels))  # +1 for a key never touched
         if len(learned) == profile.channels:  # a profile lists all or none
             profile = replace(profile, polarity=polarity)
-    traces = find_touches(t_s, readings, profile.names, polarity, rate_hz, rec.marks)
+    b = baselines_from(source, expand_polarity(polarity, source.width), medians, window)
+    touches = find_touches_streaming(b, profile.names, rate_hz, meta.marks, **select_kw)
+    samples = KeySamples(b, touches.quiet, touches.touched).samples(**select_kw)
+    planned: list[Levels | Refusal] = [
+        Refusal("no touch found on this key: record it being touched (or mark the touches)")
+        if not touches.stretches[c] else levels(quiet, held) for c, (quiet, held) in enumerate(samples)]
+    runs = KeySamples(b, touches.quiet, touches.touched).runs(
+        [lv if isinstance(lv, Levels) else None for lv in planned])
     bounds = bounds or VerdictBounds()
+    noise_held = touched_noise_by_key(b.passes, touches.stretches, rate_hz)
     keys = []
-    for trace in traces:
-        c = trace.channel
-        untouched = np.rint(trace.quiet).astype(np.int64)  # one key's trace at a time, let go after
-        touched = np.rint(trace.touched).astype(np.int64)
-        figures = key_figures(untouched, touched)
-        outcome = suggest(untouched, touched, rate_hz)
-        if not len(trace.stretches):
-            outcome = Refusal("no touch found on this key: record it being touched (or mark the touches)")
+    for c, ((quiet, held), lv) in enumerate(zip(samples, planned, strict=True)):
+        figures = figures_from(quiet, held)
+        outcome = debounced(lv, *runs[c], rate_hz) if isinstance(lv, Levels) else lv
         before = profile.settings_for(c)
         after = outcome.apply(before) if isinstance(outcome, Suggestion) else before
+        trace = KeyTouches(touches.stretches[c], quiet_frames=len_of(touches.quiet),
+                           touched_frames=len_of(touches.touched[c]), from_marks=touches.from_marks)
         keys.append(KeyResult(c, profile.names[c], figures, bounds.verdict(figures.snr_pp), outcome, before,
-                              after, trace))
+                              after, trace, noise_held[c]))
         # Unmeasured: settings from defaults, not from this key (the rule: `measured_marks`).
         ok = isinstance(outcome, Suggestion)
         marks = measured_marks(base, [c] if ok else [], [] if ok else [c])
         profile = profile.with_settings(c, after).with_measured(c, marks[c])
     profile = replace(profile, rate_hz=rate_hz)
-    return TuneResult(profile, keys, t_s, rate_hz, bool(traces and traces[0].from_marks), rec.path, len(t_s))
+    thresholds = {c: float(k.after.threshold_counts) for c, k in enumerate(keys)}
+    found = couplings_streaming(b.passes, touches.stretches, source.frames, touches.quiet, thresholds,
+                                profile.sliders, **select_kw)
+    return TuneResult(profile, keys, rate_hz, touches.from_marks, meta.path, source.frames, found,
+                      TunePasses(source, b, touches))
+
+
+def len_of(ranges: Iterable[tuple[int, int]]) -> int:
+    return sum(b - a for a, b in ranges)
 
 
 # Margins of `limits_from_result` (common practice, no source; from memory of production test plans):
@@ -168,23 +253,14 @@ MIN_NOISE_RMS_COUNTS = 0.3
 SNR_LIMIT_SHARE = 0.7
 
 
-def _untouched_readings(result: TuneResult, readings: Columns, c: int) -> np.ndarray:
-    """A channel's readings outside its own touches (edges of a touch are in the touch's stretch)."""
-    keep = np.ones(readings.shape[0], bool)
-    for start, stop in result.keys[c].trace.stretches:
-        keep[start:stop] = False
-    return readings[:, c][keep] if keep.any() else np.zeros(0)
-
-
-def channel_limits(result: TuneResult, readings: Columns, c: int, baseline_margin: float) -> Limits:
-    """One channel's own baseline range and noise limits from a good unit (see the margins above)."""
-    key = result.keys[c]
-    untouched = _untouched_readings(result, readings, c)
+def channel_limits(key: KeyResult, extremes: tuple[int, int] | None, baseline_margin: float) -> Limits:
+    """One channel's own baseline range and noise limits from a good unit (see the margins above):
+    `extremes` is its lowest and highest reading outside its own touches (None: it has no such frame)."""
     pp, rms = key.figures.noise_pp_counts, key.figures.noise_rms_counts
     lo = hi = None
-    if len(untouched):
-        lo = math.floor(float(untouched.min()) * (1 - baseline_margin))
-        hi = max(math.ceil(float(untouched.max()) * (1 + baseline_margin)), lo + 1)
+    if extremes is not None:
+        lo = math.floor(float(extremes[0]) * (1 - baseline_margin))
+        hi = max(math.ceil(float(extremes[1]) * (1 + baseline_margin)), lo + 1)
     return Limits(
         max_noise_pp_counts=float(math.ceil(NOISE_LIMIT_FACTOR * max(pp, MIN_NOISE_PP_COUNTS)))
         if pp is not None else None,
@@ -193,16 +269,17 @@ def channel_limits(result: TuneResult, readings: Columns, c: int, baseline_margi
         baseline_min_counts=lo, baseline_max_counts=hi)
 
 
-def limits_from_result(result: TuneResult, readings: Columns,
-                       baseline_margin: float = 0.2) -> tuple[Limits, dict[int, Limits]]:
+def limits_from_result(result: TuneResult, baseline_margin: float = 0.2) -> tuple[Limits, dict[int, Limits]]:
     """Acceptance limits for `padtune check` from a recording of a good unit: `[limits]` (the SNR floor,
     and the whole unit's band and noise for any channel without its own) and each channel's own.
 
     Each channel gets its own baseline range (its lowest and highest untouched reading widened by
     `baseline_margin`) and noise limits, so a pad that drifts to another pad's count fails. The
-    margins and where they come from are above (`NOISE_LIMIT_FACTOR`, ...).
+    margins and where they come from are above (`NOISE_LIMIT_FACTOR`, ...). One more pass over the
+    frames the result was measured from (for each channel's readings outside its own touches).
     """
-    own = {c: channel_limits(result, readings, c, baseline_margin) for c in range(len(result.keys))}
+    extremes = untouched_extremes(result.passes.source, [k.trace.stretches for k in result.keys])
+    own = {c: channel_limits(k, extremes[c], baseline_margin) for c, k in enumerate(result.keys)}
     snrs = [k.figures.snr_pp for k in result.keys
             if k.measured and k.figures.snr_pp is not None and np.isfinite(k.figures.snr_pp)]
     pps = [v.max_noise_pp_counts for v in own.values() if v.max_noise_pp_counts is not None]

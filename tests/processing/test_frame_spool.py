@@ -1,10 +1,11 @@
-"""A recording spooled to disk (`processing.frame_spool`) serves exactly the frames `read_frames` holds,
-in regular pieces, in memory that does not grow with the recording, and leaves nothing behind.
+"""A recording spooled to disk (`processing.frame_spool`) serves exactly the frames the whole-file reader
+gives, in regular pieces, in memory that does not grow with the recording, and leaves nothing behind.
 
-References: `processing.tune_frames.read_frames` (the in-memory reader `tune` used until now) for what
-is kept of a recording; numpy's `np.searchsorted` on those times for `times_to_frames`; `tracemalloc`
-(Python's standard library) for the peak of what numpy and Python allocate; the operating system itself
-for the failures (a missing folder, a file in its place, /dev/full's ENOSPC, RLIMIT_FSIZE's EFBIG).
+References: `RecordingStream.read_all` (the plain reader: every event in memory; `arrays()` the frames
+of the last width) for what is kept of a recording; numpy's `np.searchsorted` on those times for
+`times_to_frames`; `tracemalloc` (Python's standard library) for the peak of what numpy and Python
+allocate; the operating system itself for the failures (a missing folder, a file in its place,
+/dev/full's ENOSPC, RLIMIT_FSIZE's EFBIG).
 """
 
 from __future__ import annotations
@@ -13,6 +14,7 @@ import os
 import subprocess
 import sys
 import tracemalloc
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -22,8 +24,8 @@ import processing.frame_spool as frame_spool
 from processing.frame_source import PIECE_FRAMES
 from processing.frame_spool import spool_frames
 from processing.recording import RecordingWriter
+from processing.recording_format import Recording
 from processing.recording_read import open_recording
-from processing.tune_frames import read_frames
 from protocol.encoder import encode_frames, encode_info
 from protocol.errors import UserError
 from protocol.events import FrameBlock
@@ -37,9 +39,23 @@ def spooled(path: Path, spool_dir: Path, chunk_bytes: int = 1 << 22, piece_frame
         return spool_frames(stream, str(spool_dir), piece_frames=piece_frames)
 
 
-def held(path: Path, chunk_bytes: int = 1 << 22):
+@dataclass
+class Held:
+    """What the plain reader gives of a recording, in the names the checks below compare."""
+
+    rec: Recording
+    t_s: np.ndarray
+    readings: np.ndarray
+
+    def __getattr__(self, name: str):
+        return getattr(self.rec, name)
+
+
+def held(path: Path, chunk_bytes: int = 1 << 22) -> Held:
     with open_recording(path, chunk_bytes=chunk_bytes) as stream:
-        return read_frames(stream)
+        rec = stream.read_all()
+    t_s, _, readings = rec.arrays()
+    return Held(rec, t_s, readings)
 
 
 def whole(spool) -> tuple[np.ndarray, np.ndarray]:
@@ -50,15 +66,11 @@ def whole(spool) -> tuple[np.ndarray, np.ndarray]:
     return np.concatenate([p.t_s for p in pieces]), np.concatenate([p.readings for p in pieces])
 
 
-def held_readings(frames) -> np.ndarray:
-    return np.stack([frames.readings[:, c] for c in range(frames.readings.width)], axis=1)
-
-
-def assert_same_as_read_frames(spool, frames) -> None:
+def assert_same_as_held(spool, frames) -> None:
     t_s, readings = whole(spool)
     assert np.array_equal(t_s, frames.t_s) and t_s.dtype == np.float64
-    assert np.array_equal(readings, held_readings(frames)) and readings.dtype == np.int32
-    assert spool.frames == len(frames.t_s) and spool.width == frames.readings.width
+    assert np.array_equal(readings, frames.readings) and readings.dtype == np.int32
+    assert spool.frames == len(frames.t_s) and spool.width == frames.readings.shape[1]
     assert (spool.path, spool.names, spool.marks, spool.truncated, spool.info) == \
         (frames.path, frames.names, frames.marks, frames.truncated, frames.info)
     assert (spool.channels, spool.rate_hz) == (frames.channels, frames.rate_hz)
@@ -87,21 +99,21 @@ def write_widths(path: Path, widths: list[tuple[int, int]], t_step_s: float = 0.
             at += frames
 
 
-def test_a_padtune_recording_spools_to_exactly_read_frames(tmp_path: Path) -> None:
+def test_a_padtune_recording_spools_to_exactly_what_the_plain_reader_gives(tmp_path: Path) -> None:
     path = tmp_path / "r.csv"
     write_made_up(path, channels=6, frames=12_000, marks=True)
     with spooled(path, tmp_path, 1 << 16, piece_frames=1000) as spool:
         frames = held(path)
-        assert_same_as_read_frames(spool, frames)
+        assert_same_as_held(spool, frames)
         assert spool.marks and spool.info is not None and spool.names == tuple(f"k{c:02d}" for c in range(6))
 
 
-def test_a_raw_capture_spools_to_exactly_read_frames(tmp_path: Path) -> None:
+def test_a_raw_capture_spools_to_exactly_what_the_plain_reader_gives(tmp_path: Path) -> None:
     path = tmp_path / "c.raw"
     write_raw_capture(path, channels=5, frames=7_001)
     with spooled(path, tmp_path, 1 << 15, piece_frames=999) as spool:
         frames = held(path)
-        assert_same_as_read_frames(spool, frames)
+        assert_same_as_held(spool, frames)
         assert spool.rate_hz == 250.0 and spool.marks == [] and len(frames.t_s) == 7_001
 
 
@@ -109,13 +121,13 @@ def test_a_raw_capture_spools_to_exactly_read_frames(tmp_path: Path) -> None:
     [(4, 3000), (6, 2500)],  # a board that changed: only the 6-wide frames are tuned
     [(4, 3000), (6, 2500), (4, 1700), (6, 10), (4, 800)],  # interleaved: every 4-wide block, in order
 ])
-def test_only_the_last_width_is_kept_as_read_frames_keeps_it(tmp_path: Path, widths) -> None:
+def test_only_the_last_width_is_kept_as_the_plain_reader_keeps_it(tmp_path: Path, widths) -> None:
     path = tmp_path / "w.csv"
     write_widths(path, widths)
     last = widths[-1][0]
     with spooled(path, tmp_path, 1 << 14, piece_frames=700) as spool:
         frames = held(path, 1 << 14)
-        assert_same_as_read_frames(spool, frames)
+        assert_same_as_held(spool, frames)
         assert spool.width == last and spool.frames == sum(n for w, n in widths if w == last)
         # readings at both ends of 32 bits come back exactly (int32 holds them)
         _, readings = whole(spool)
@@ -137,7 +149,7 @@ def test_pieces_are_regular_whatever_the_decoder_chunks(tmp_path: Path, chunk_by
             assert p.readings.shape == (len(p), 3) and p.readings.dtype == np.int32
             assert p.readings.flags.c_contiguous and p.readings.flags.writeable
         again = whole(spool)  # a second pass is a fresh pass: the same frames
-        assert np.array_equal(again[0], frames.t_s) and np.array_equal(again[1], held_readings(frames))
+        assert np.array_equal(again[0], frames.t_s) and np.array_equal(again[1], frames.readings)
 
 
 def test_the_default_piece_is_piece_frames(tmp_path: Path) -> None:
@@ -187,7 +199,7 @@ def _spool_peak(path: Path, spool_dir: Path) -> tuple[float, int]:
 
 
 def test_spooling_memory_does_not_grow_with_the_recording(tmp_path: Path) -> None:
-    """300,000 and 900,000 frames x 16 channels (33 MB and 100 MB of CSV): read_frames would hold their
+    """300,000 and 900,000 frames x 16 channels (33 MB and 100 MB of CSV): the plain reader would hold their
     int32 readings and times (24 MB and 72 MB); the spool holds one 1 MiB chunk being converted and one
     piece (measured: 10.3 MB for both; the bound leaves room for numpy's own temporaries)."""
     short, long = tmp_path / "short.csv", tmp_path / "long.csv"
@@ -195,7 +207,7 @@ def test_spooling_memory_does_not_grow_with_the_recording(tmp_path: Path) -> Non
     write_made_up(long, channels=16, frames=900_000, marks=False)
     peak_short, n_short = _spool_peak(short, tmp_path)
     peak_long, n_long = _spool_peak(long, tmp_path)
-    held_short = n_short * (16 * 4 + 8)  # what read_frames holds: int32 readings and float64 times
+    held_short = n_short * (16 * 4 + 8)  # the readings as int32 readings and float64 times
     said = f"peak {peak_short / 1e6:.1f} MB (300k frames), {peak_long / 1e6:.1f} MB (900k frames)"
     assert (n_short, n_long) == (300_000, 900_000)
     assert peak_short < 0.6 * held_short and peak_short < 16e6, said

@@ -1,17 +1,13 @@
 """Untouched reading extremes from one pass (processing.reading_extremes) against numpy over the whole
-readings: a boolean mask and .min()/.max() (the reference), and `tuning._untouched_readings` (what
-`channel_limits` uses today), at random piece sizes down to 1 frame."""
+readings: a boolean mask and .min()/.max() (the reference), at random piece sizes down to 1 frame."""
 
 from __future__ import annotations
-
-from types import SimpleNamespace
 
 import numpy as np
 import pytest
 
 from processing.frame_source import ArraySource
 from processing.reading_extremes import untouched_extremes
-from processing.tuning import _untouched_readings
 
 
 def _case(seed: int) -> tuple[np.ndarray, list[list[tuple[int, int]]], int]:
@@ -34,15 +30,12 @@ def test_extremes_equal_numpy_over_the_untouched_frames(seed: int) -> None:
     readings, stretches, piece = _case(seed)
     source = ArraySource(np.arange(len(readings)) / 50.0, readings, piece)
     got = untouched_extremes(source, stretches)
-    result = SimpleNamespace(keys=[SimpleNamespace(trace=SimpleNamespace(stretches=s)) for s in stretches])
     for c, runs in enumerate(stretches):
         keep = np.ones(len(readings), bool)
         for a, b in runs:
             keep[a:b] = False
         want = (int(readings[keep, c].min()), int(readings[keep, c].max())) if keep.any() else None
         assert got[c] == want
-        old = _untouched_readings(result, readings, c)  # type: ignore[arg-type]
-        assert got[c] == ((int(old.min()), int(old.max())) if len(old) else None)
         assert got[c] is None or all(type(v) is int for v in got[c])
 
 

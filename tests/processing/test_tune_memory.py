@@ -1,10 +1,11 @@
-"""`padtune tune` in bounded memory (issue 13): the compact frames (`processing.tune_frames`), one key's
-delta trace at a time (`processing.stretches.KeyTrace`) and crosstalk by key
-(`processing.crosstalk.couplings_by_key`) give what the whole-array path gives, in less memory.
+"""`padtune tune` in bounded memory (issue 13): a recording spooled to disk (`processing.frame_spool`) and
+tuned by passes (`processing.tuning`) gives what tuning it in memory gives, and the peak does not grow
+with the recording's length.
 
-References: the whole-array path itself, written out here as it stood before (every frame of every key
-as one float64 array, `during_touches` on a frames x keys mask, `couplings` on the kept untouched
-deltas), and `tracemalloc` (Python's standard library) for the peak of what numpy and Python allocate.
+References: the same recording read whole by the plain reader (`read_recording`, every event in memory)
+and tuned from that; the whole-array tuning it replaced is the reference of tests/processing/
+test_tune_stream.py. `tracemalloc` (Python's standard library) measures the peak of what numpy and Python
+allocate.
 """
 
 from __future__ import annotations
@@ -15,11 +16,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from processing.crosstalk import couplings, during_touches
+from processing.frame_spool import spool_frames
 from processing.recording import RecordingWriter, read_recording
 from processing.recording_read import open_recording
-from processing.stretches import find_touches
-from processing.tune_frames import ChunkedReadings, read_frames
 from processing.tuning import limits_from_result, tune_recording
 from protocol.events import FrameBlock
 from protocol.info import parse_info
@@ -59,88 +58,54 @@ def write_made_up(path: Path, channels: int, frames: int, marks: bool, polarity:
             w.maybe_flush()
 
 
-def compact(path: Path, chunk_bytes: int = 1 << 22):
+def spooled(path: Path, folder: Path, chunk_bytes: int = 1 << 22, piece_frames: int | None = None):
+    kw = {} if piece_frames is None else {"piece_frames": piece_frames}
     with open_recording(path, chunk_bytes=chunk_bytes) as stream:
-        return read_frames(stream)
-
-
-def whole_array_couplings(result, readings: np.ndarray):
-    """Crosstalk as it was computed before: every key's trace stacked, a frames x keys mask."""
-    deltas = np.stack([k.trace.delta for k in result.keys], axis=1)
-    touched = np.zeros(deltas.shape, bool)
-    for c, k in enumerate(result.keys):
-        for a, b in k.trace.stretches:
-            touched[a:b, c] = True
-    return couplings({c: k.trace.quiet for c, k in enumerate(result.keys)}, during_touches(deltas, touched),
-                     {c: float(k.after.threshold_counts) for c, k in enumerate(result.keys)},
-                     result.profile.sliders)
+        return spool_frames(stream, str(folder), **kw)
 
 
 @pytest.mark.parametrize(("marks", "polarity"), [(True, "+"), (False, "+"), (False, None)])
-def test_compact_frames_tune_exactly_as_the_whole_recording(tmp_path: Path, marks: bool,
-                                                            polarity: str | None) -> None:
+def test_a_spooled_recording_tunes_exactly_as_the_whole_recording(tmp_path: Path, marks: bool,
+                                                                  polarity: str | None) -> None:
     path = tmp_path / "r.csv"
     write_made_up(path, channels=6, frames=12_000, marks=marks, polarity=polarity)
-    rec = read_recording(path)
-    frames = compact(path)
-    t_s, _, readings = rec.arrays()
-    assert frames.readings.shape == readings.shape and frames.rate_hz == rec.rate_hz
-    assert np.array_equal(frames.t_s, t_s)
-    assert all(np.array_equal(frames.readings[:, c], readings[:, c]) for c in range(readings.shape[1]))
-    whole, small = tune_recording(rec), tune_recording(frames)
-    assert small.profile == whole.profile and small.frames == whole.frames
-    for a, b in zip(whole.keys, small.keys, strict=True):
-        assert (a.figures, a.outcome, a.after, a.trace.stretches) == (b.figures, b.outcome, b.after,
-                                                                      b.trace.stretches)
-        assert np.array_equal(a.trace.delta, b.trace.delta) and np.array_equal(a.trace.quiet, b.trace.quiet)
-        assert np.array_equal(a.trace.touched, b.trace.touched)
-    assert any(k.trace.stretches for k in small.keys)  # touches were found (or marked) to compare
-    found = couplings_of(small)
-    assert found and found == whole_array_couplings(whole, readings)
-    assert result_rows(small, found) == result_rows(whole, couplings_of(whole))
-    assert limits_from_result(small, frames.readings) == limits_from_result(whole, readings)
+    whole = tune_recording(read_recording(path))
+    with spooled(path, tmp_path, chunk_bytes=1 << 16, piece_frames=997) as spool:
+        small = tune_recording(spool, budget_values=5_000)
+        assert small.profile == whole.profile and small.frames == whole.frames == 12_000
+        assert [k.trace for k in small.keys] == [k.trace for k in whole.keys]
+        assert any(k.trace.stretches for k in small.keys)  # touches were found (or marked) to compare
+        assert small.couplings and small.couplings == whole.couplings
+        assert result_rows(small, couplings_of(small)) == result_rows(whole, couplings_of(whole))
+        assert limits_from_result(small) == limits_from_result(whole)
 
 
-def test_find_touches_takes_chunked_readings_as_an_array() -> None:
-    rng = np.random.default_rng(9)
-    r = 500 + rng.integers(-3, 4, size=(3000, 3))
-    r[1000:1400, 1] += 80
-    chunked = ChunkedReadings(3)
-    for start in range(0, 3000, 700):  # pieces that do not divide the frames evenly
-        chunked.append(r[start:start + 700])
-    t_s = np.arange(3000) / 100.0
-    a = find_touches(t_s, r, ("a", "b", "c"), (1,), 100.0)
-    b = find_touches(t_s, chunked, ("a", "b", "c"), (1,), 100.0)
-    assert [t.stretches for t in a] == [t.stretches for t in b] and a[1].stretches
-    for x, y in zip(a, b, strict=True):
-        assert np.array_equal(x.delta, y.delta) and np.array_equal(x.quiet, y.quiet)
-    with pytest.raises(TypeError):
-        chunked[5, 1]
-
-
-def test_tune_peak_memory_stays_well_under_one_float_copy_of_the_frames(tmp_path: Path) -> None:
-    """An 8 MB recording: reading, tuning, crosstalk and limits together allocate at their peak well under
-    one float64 frames x keys array (the old path held several: the events' int64 blocks, their
-    concatenation, every key's float trace, every key's untouched copy, their stack for crosstalk). What
-    grows with the file is the int32 readings (half that array); the rest is one key's trace and one
-    chunk of the file being converted (read here in 256 KiB chunks, so that fixed cost is small beside
-    the frames: `tune` reads 4 MiB chunks, about 30 MB while one is converted, whatever the file's size)."""
-    channels, frames = 64, 20_000
-    path = tmp_path / "r.csv"
-    write_made_up(path, channels=channels, frames=frames, marks=False)
-    full_bytes = frames * channels * 8  # one float64 frames x keys array: 10.2 MB
+def _tune_peak(path: Path, folder: Path) -> tuple[int, int]:
     tracemalloc.start()
     try:
-        rec = compact(path, chunk_bytes=1 << 18)
-        result = tune_recording(rec)
-        couplings_of(result)
-        limits_from_result(result, rec.readings)
+        with spooled(path, folder, chunk_bytes=1 << 18, piece_frames=4096) as spool:
+            result = tune_recording(spool, budget_values=200_000)
+            limits_from_result(result)
+            touched = sum(bool(k.trace.stretches) for k in result.keys)
+            assert touched == spool.width  # one key after another: each found, not marked
         _, peak = tracemalloc.get_traced_memory()
     finally:
         tracemalloc.stop()
-    touched = sum(bool(k.trace.stretches) for k in result.keys)
-    assert result.frames == frames and touched >= 32  # 40 touches, one key after another: found, not marked
-    assert rec.readings.nbytes == full_bytes // 2  # int32 readings: the one thing that grows with the file
-    said = f"peak {peak / 1e6:.1f} MB for {full_bytes / 1e6:.1f} MB of float frames"
-    assert peak < rec.readings.nbytes + 0.3 * full_bytes, said
-    assert peak < 0.8 * full_bytes, said
+    return peak, result.frames
+
+
+def test_tune_memory_does_not_grow_with_the_recording(tmp_path: Path) -> None:
+    """16 keys, 40,000 and 120,000 frames: the peak is a chunk of the file being converted, two pieces of
+    frames and their deltas (one being made while the last is let go: pieces of 4,096 frames here, so both
+    recordings span many), the selections' budget (200,000 values here; `tune` allows 4 Mi) and a few
+    numbers per touch and per half second: the same for three times the frames. One float64 copy of the
+    longer recording's frames would be 15.4 MB."""
+    short, long = tmp_path / "short.csv", tmp_path / "long.csv"
+    write_made_up(short, channels=16, frames=40_000, marks=False)
+    write_made_up(long, channels=16, frames=120_000, marks=False)
+    peak_short, n_short = _tune_peak(short, tmp_path)
+    peak_long, n_long = _tune_peak(long, tmp_path)
+    said = f"peak {peak_short / 1e6:.1f} MB ({n_short} frames), {peak_long / 1e6:.1f} MB ({n_long} frames)"
+    assert (n_short, n_long) == (40_000, 120_000)
+    assert peak_long < 1.25 * peak_short, said  # three times the frames, not three times the memory
+    assert peak_long < 0.7 * n_long * 16 * 8, said

@@ -100,7 +100,7 @@ def test_a_base_profile_keeps_its_other_settings() -> None:
 def test_limits_of_a_good_unit_per_channel() -> None:
     r = readings()
     result = tune_recording(recording(r))
-    common, own = limits_from_result(result, r, baseline_margin=0.2)
+    common, own = limits_from_result(result, baseline_margin=0.2)
     snr = min(k.figures.snr_pp for k in result.keys)
     assert common.min_snr_pp == pytest.approx(0.7 * snr, abs=0.05)
     for c, (base, k) in enumerate(zip(BASE, NOISE, strict=True)):
@@ -121,7 +121,7 @@ def test_a_perfectly_quiet_channel_gets_a_noise_limit_a_real_unit_can_meet() -> 
     r = readings()
     r[:, 0] = np.where(np.arange(len(r)) // 100 % 4 == 3, 1200, 1000)  # quiet, then touched stretches
     result = tune_recording(recording(r))
-    _, own = limits_from_result(result, r)
+    _, own = limits_from_result(result)
     assert result.keys[0].figures.noise_pp_counts == 0
     assert own[0].max_noise_pp_counts == 3.0  # one count, times three
 

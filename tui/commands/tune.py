@@ -14,14 +14,16 @@ import argparse
 import json
 import os
 import sys
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 from processing.atomic import NotRegularFile, refuse_non_regular
-from processing.profile import save_profile
+from processing.frame_spool import FrameSpool, spool_frames
+from processing.profile import Profile, save_profile
 from processing.recording_read import open_recording
 from processing.settings import LIMIT_KEYS
 from processing.suggest import Refusal
-from processing.tune_frames import TuneFrames, read_frames
 from processing.tuning import KeyResult, TuneResult, limits_from_result, tune_recording, with_limits
 from protocol.errors import UserError
 from protocol.printable import printable
@@ -85,13 +87,17 @@ def run(args: argparse.Namespace) -> int:
         require_matplotlib()
         check_report_path(args.report)
     base = load_profile_arg(args.profile)
-    rec = _read(args.file, args.rate)
+    with _spooled(args.file, args.rate) as rec:  # the frames stay on disk until everything is measured
+        return _tune(args, out, rec, base)
+
+
+def _tune(args: argparse.Namespace, out: Path, rec: FrameSpool, base: Profile | None) -> int:
     result = tune_recording(rec, base)
     if rec.truncated:  # measured without it: say so, as replay does
         warn_on_stderr(f"{printable(rec.path)}: the last line was cut short (the writer was stopped mid-row) "
                        "and was dropped; the rows before it were measured")
     if args.limits:
-        common, own = limits_from_result(result, rec.readings, args.baseline_margin / 100)
+        common, own = limits_from_result(result, args.baseline_margin / 100)
         result.profile = with_limits(result.profile, common, own)
     missing = result.unmeasured()
     if missing and not args.partial:  # the table and the reasons, but no profile that looks tuned
@@ -114,14 +120,17 @@ def run(args: argparse.Namespace) -> int:
     return code
 
 
-def _read(path: str, rate_hz: float | None) -> TuneFrames:
-    """The recording's frames, read a chunk at a time into the compact form tuning needs (bounded by the
-    int32 readings, not by several float copies of them)."""
+@contextmanager
+def _spooled(path: str, rate_hz: float | None) -> Iterator[FrameSpool]:
+    """The recording's frames, decoded once and spooled to an unnamed temporary file (TMPDIR) that tuning
+    goes through as often as it needs: memory holds a piece of it, never the recording."""
     with open_recording(path, rate_hz) as stream:
         try:
-            return read_frames(stream)
+            spool = spool_frames(stream)
         except OSError as exc:
             raise UserError(f"{stream.where}: cannot read: {exc.strerror}") from None
+    with spool:
+        yield spool
 
 
 def _same_file(a: str, b: str) -> bool:

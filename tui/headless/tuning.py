@@ -1,19 +1,12 @@
 """What `padtune tune` shows of a `processing.tuning.TuneResult`: one plain row per key for its table, its
 JSON and its HTML report (the tuning itself is `processing.tuning`), and the crosstalk table (touching key
-A moves key B: `crosstalk_rows`), both computed from the result's traces by `processing.crosstalk`."""
+A moves key B: `crosstalk_rows`), both measured with the result (`processing.tuning`)."""
 
 from __future__ import annotations
 
 from typing import TypedDict
 
-from processing.crosstalk import (
-    FLAG_SHARE,
-    Coupling,
-    couplings_by_key,
-    touched_noise,
-    untouched_zero,
-    worst_by_target,
-)
+from processing.crosstalk import FLAG_SHARE, Coupling, worst_by_target
 from processing.measure import rests_on
 from processing.suggest import Refusal, Suggestion
 from processing.tuning import TuneResult
@@ -62,16 +55,10 @@ class CrosstalkRow(TypedDict):
 
 
 def couplings_of(result: TuneResult) -> list[Coupling]:
-    """Crosstalk in a tuned recording: each key's deltas in the frames where one other key alone was
-    touched, against the median of its own untouched deltas, as a share of its threshold after tuning;
-    pads of one of the profile's sliders are slider neighbours."""
-    traces = [k.trace for k in result.keys]
-    if not traces:
-        return []
-    return couplings_by_key(lambda c: traces[c].delta, [t.stretches for t in traces], result.frames,
-                            lambda c, delta: untouched_zero(traces[c].quiet_in(delta)),
-                            {c: float(k.after.threshold_counts) for c, k in enumerate(result.keys)},
-                            result.profile.sliders)
+    """Crosstalk in a tuned recording (measured with it: `processing.crosstalk_stream`): each key's deltas
+    in the frames where one other key alone was touched, against the median of its own untouched deltas,
+    as a share of its threshold after tuning; pads of one of the profile's sliders are slider neighbours."""
+    return result.couplings
 
 
 def crosstalk_rows(result: TuneResult, found: list[Coupling] | None = None) -> list[CrosstalkRow]:
@@ -97,8 +84,7 @@ def result_rows(result: TuneResult, found: list[Coupling] | None = None) -> list
     for k in result.keys:
         f, s = k.figures, k.after
         ok = isinstance(k.outcome, Suggestion)
-        delta = k.trace.delta
-        held = touched_noise([delta[a:b] for a, b in k.trace.stretches], result.rate_hz)
+        held = k.touched_noise
         x = worst.get(k.channel)
         share = x.share if x is not None else None
         rows.append({
@@ -109,7 +95,7 @@ def result_rows(result: TuneResult, found: list[Coupling] | None = None) -> list
             "touched_tone": held.hum() if held else "",
             "signal": f.signal_counts,
             "snr_pp": f.snr_pp, "snr_rms": f.snr_rms, "verdict": k.verdict,
-            "basis": rests_on(len(k.trace.stretches), len(k.trace.touched), k.trace.quiet_frames),
+            "basis": rests_on(len(k.trace.stretches), k.trace.touched_frames, k.trace.quiet_frames),
             "crosstalk_pct": None if share is None else round(100 * share, 1),
             "crosstalk_from": result.keys[x.source].name if x is not None else None,
             "crosstalk_flagged": bool(x is not None and x.flagged()),

@@ -8,7 +8,8 @@ from html import escape
 from processing.tuning import TuneResult
 from tui.headless.tuning import CROSSTALK_RULE, couplings_of, crosstalk_rows, result_rows
 from tui.report import html
-from tui.report.plots import delta_plot, histogram_plot
+from tui.report.plot_data import histograms, sketches
+from tui.report.plots import delta_plot_from, histogram_plot_from
 
 COLUMNS = [("name", "key"), ("touches", "touches"), ("noise_pp", "noise pp"), ("noise_rms", "noise RMS"),
            ("noise_touched_pp", "touched noise pp"), ("noise_touched_rms", "touched noise RMS"),
@@ -24,8 +25,15 @@ CROSSTALK_COLUMNS = [("source", "touching"), ("target", "moves"), ("shift", "by 
 
 
 def build_tune_report(result: TuneResult) -> str:
+    """The page: the plots' points come from three passes over the frames the result was measured from
+    (`plot_data`: an envelope per key, then the histograms' ranges and counts), never a whole trace."""
     found = couplings_of(result)
     rows = result_rows(result, found)
+    passes = result.passes
+    stretches = [k.trace.stretches for k in result.keys]
+    drawn = sketches(passes.source, passes.baselines.passes, stretches)
+    counted = histograms(passes.baselines.passes, passes.touches.quiet, passes.touches.touched,
+                         [float(k.after.threshold_counts) for k in result.keys])
     how = "from the recording's marks" if result.from_marks else "found in the deltas"
     cross = crosstalk_rows(result, found)
     body = [f"<h2>Summary</h2>{html.table(COLUMNS, rows)}",
@@ -36,17 +44,17 @@ def build_tune_report(result: TuneResult) -> str:
             "<h2>Crosstalk</h2>" + html.table(CROSSTALK_COLUMNS, cross, key_field="pair",
                                               text_fields=("source", "target", "flagged", "slider"))
             + f"<p class=\"reasons\">{escape(CROSSTALK_RULE)}.</p>"]
-    for key, row in zip(result.keys, rows, strict=True):
+    for key, row, sketch, hist in zip(result.keys, rows, drawn, counted, strict=True):
         s = key.after
         threshold = float(s.threshold_counts)
         release = float(s.threshold_counts - s.hysteresis_counts)
         name = key.name
         figures = [
-            html.figure(delta_plot(result.t_s, key.trace.delta, threshold, release, key.trace.stretches,
-                                   title=f"{name}: delta"), name, "delta",
+            html.figure(delta_plot_from(sketch.t_s, sketch.delta, sketch.spans_s, threshold, release,
+                                        title=f"{name}: delta"), name, "delta",
                         f"{name}: delta over time, touches shaded, threshold and release level"),
-            html.figure(histogram_plot(key.trace.quiet, key.trace.touched, threshold,
-                                       title=f"{name}: untouched and touched"), name, "histogram",
+            html.figure(histogram_plot_from(hist.bins, hist.quiet_counts, hist.touched_counts, threshold,
+                                            title=f"{name}: untouched and touched"), name, "histogram",
                         f"{name}: histograms of untouched and touched deltas"),
         ]
         notes = [f"<li>verdict {escape(row['verdict'])} from {escape(row['basis'])}</li>"]
