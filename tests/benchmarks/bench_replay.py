@@ -11,8 +11,11 @@ Prints, measured in this one run: frames/s of `padtune replay FILE --json` (wall
 its start included) and the process's peak resident memory (`os.wait4`'s `ru_maxrss` of that child alone),
 the raw capture's MB/s beside the same decoder's own MB/s on the same bytes in this process, and each
 figure as a ratio to the goals of issue 13 (CSV: at least 50,000 frames/s and at most 300 MB peak; raw:
-at least 20 MB/s); then the same for `padtune tune FILE -o X.toml --partial --json` on both files (frames/s
-with its start, peak memory beside the same 300 MB bound). Never a pass/fail on time.
+at least 20 MB/s); then the same for `padtune tune FILE -o X.toml --partial --json` on both files and on
+a CSV a tenth as long (frames/s with its start, peak memory beside the same 300 MB bound, and the ratio of
+the two CSVs' peaks: bounded memory does not grow with the file), and `tune` against the plain
+whole-array tuning (tests/processing/tune_reference.py) on the shorter CSV: peak memory and time.
+Never a pass/fail on time.
 
     python tests/benchmarks/bench_replay.py [--quick]
 """
@@ -118,6 +121,33 @@ def tune(path: pathlib.Path) -> tuple[float, float, int]:
     return seconds, peak_mb, int(json.loads(text)["frames"])
 
 
+PLAIN_TUNE = """
+import sys
+from processing.recording import read_recording
+from tests.processing.tune_reference import reference_tune
+rec = read_recording(sys.argv[1])
+t_s, _, readings = rec.arrays()
+info = rec.info
+reference_tune(t_s, readings, info.names, tuple(info.polarity) or (1,), info.rate_hz or 100.0, rec.marks)
+print(len(t_s))
+"""
+
+
+def plain_tune(path: pathlib.Path) -> tuple[float, float, int]:
+    """(seconds, peak MB, frames) of the plain whole-array tuning (tests/processing/tune_reference.py: the
+    file read whole, every key's trace in memory) in a process of its own, on the same file."""
+    t0 = time.perf_counter()
+    proc = subprocess.Popen([sys.executable, "-c", PLAIN_TUNE, str(path)], cwd=ROOT, stdout=subprocess.PIPE,
+                            stderr=subprocess.DEVNULL)
+    assert proc.stdout is not None
+    text = proc.stdout.read()
+    _, status, usage = os.wait4(proc.pid, 0)
+    seconds = time.perf_counter() - t0
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise SystemExit(f"the plain tuning of {path.name} failed")
+    return seconds, usage.ru_maxrss / 1024.0, int(text.split()[-1])
+
+
 def decoder_mb_s(path: pathlib.Path) -> float:
     data = path.read_bytes()
     t0 = time.perf_counter()
@@ -161,12 +191,25 @@ def main() -> int:
                   f"alone: {decoder:.0f} MB/s, replay {size_mb / s / decoder:.2f} of it), "
                   f"{frames / s:,.0f} frames/s")
         print(f"replay raw capture peak memory {peak_mb:.0f} MB")
-        for path in (rec, raw):  # tune holds the whole file's int32 readings, one key's floats at a time
+        tenth = folder / "tenth.csv"  # the same board, a tenth as long: bounded memory is the same peak
+        write_csv(tenth, csv_bytes // 10)
+        peaks = {}
+        for path in (rec, tenth, raw):  # tune spools the frames to disk and goes through them by passes
             seconds, peak_mb, frames = tune(path)
+            peaks[path] = peak_mb
             size_mb = path.stat().st_size / 1e6
             print(f"tune {path.suffix[1:]} {size_mb:.1f} MB ({frames:,} frames, {CHANNELS} ch): "
                   f"{frames / seconds:,.0f} frames/s with start, peak memory {peak_mb:.0f} MB "
                   f"({peak_mb / GOAL_PEAK_MB:.2f} of the {GOAL_PEAK_MB:.0f} MB bound)")
+        print(f"tune peak memory, ten times the frames: {peaks[rec] / peaks[tenth]:.2f}x "
+              f"({peaks[tenth]:.0f} -> {peaks[rec]:.0f} MB)")
+        seconds_plain, peak_plain, frames = plain_tune(tenth)
+        seconds, peak_mb, _ = tune(tenth)
+        tenth_mb = tenth.stat().st_size / 1e6
+        print(f"tune by passes against the plain whole-array tuning on the {tenth_mb:.0f} MB CSV "
+              f"({frames:,} frames): peak memory {peak_mb:.0f} vs {peak_plain:.0f} MB "
+              f"({peak_plain / peak_mb:.1f}x less), time {seconds:.1f} vs {seconds_plain:.1f} s "
+              f"({seconds / seconds_plain:.2f}x)")
     finally:
         shutil.rmtree(folder, ignore_errors=True)
     return 0
