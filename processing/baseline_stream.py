@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from processing.frame_source import DeltaPiece, FrameSource
+from processing.frame_source import DeltaPiece, FrameSource, RowStore
 
 WINDOW_S = 0.5  # each baseline point: the median of this long (as estimate_baseline)
 SPAN_S = 6.0  # ... and the lowest of the points within this span around it
@@ -27,13 +27,17 @@ def window_frames(rate_hz: float, window_s: float = WINDOW_S) -> int:
     return max(1, round(window_s * rate_hz))
 
 
-class WindowMedians:
-    """Column medians of consecutive `window`-frame windows of frames x keys readings fed in any cuts."""
+ROWS_AT_ONCE = 4096  # baseline points worked on at a time (the rolling minimum's blocks)
 
-    def __init__(self, window: int, width: int) -> None:
+
+class WindowMedians:
+    """Column medians of consecutive `window`-frame windows of frames x keys readings fed in any cuts,
+    appended to `out` (a `RowStore`) as they are taken."""
+
+    def __init__(self, window: int, out: RowStore) -> None:
         self.window = window
-        self._carry = np.zeros((0, width), np.float64)
-        self._out: list[np.ndarray] = []
+        self.out = out
+        self._carry = np.zeros((0, out.width), np.float64)
 
     def feed(self, readings: np.ndarray) -> None:
         block = np.asarray(readings).astype(np.float64)
@@ -42,16 +46,15 @@ class WindowMedians:
         whole = len(block) // self.window * self.window
         if whole:
             windows = block[:whole].reshape(-1, self.window, block.shape[1])
-            self._out.append(np.median(windows, axis=1))
+            self.out.append(np.median(windows, axis=1))
         self._carry = block[whole:].copy()
 
-    def finish(self) -> np.ndarray:
-        """Windows x keys medians (the last window as long as the frames left)."""
+    def finish(self) -> RowStore:
+        """The store: windows x keys medians (the last window as long as the frames left)."""
         if len(self._carry):
-            self._out.append(np.median(self._carry, axis=0)[None, :])
+            self.out.append(np.median(self._carry, axis=0)[None, :])
             self._carry = self._carry[:0]
-        width = self._carry.shape[1]
-        return np.concatenate(self._out) if self._out else np.zeros((0, width))
+        return self.out
 
 
 def rolling_low(medians: np.ndarray, half: int) -> np.ndarray:
@@ -63,26 +66,55 @@ def rolling_low(medians: np.ndarray, half: int) -> np.ndarray:
     return view.min(axis=-1)
 
 
+def rolling_low_rows(medians: RowStore, sign: np.ndarray, half: int, out: RowStore) -> RowStore:
+    """`rolling_low(medians * sign, half)` a block of rows at a time, into `out`."""
+    n = len(medians)
+    for a in range(0, n, ROWS_AT_ONCE):
+        b = min(a + ROWS_AT_ONCE, n)
+        lo, hi = max(0, a - half), min(n, b + half)
+        rows = medians.read(lo, hi) * sign[None, :]
+        pad = ((half - (a - lo), half - (hi - b)), (0, 0))  # inf only past the true ends
+        view = np.lib.stride_tricks.sliding_window_view(np.pad(rows, pad, constant_values=np.inf),
+                                                        2 * half + 1, axis=0)
+        out.append(view.min(axis=-1))
+    return out
+
+
 @dataclass(frozen=True)
 class Baselines:
-    """Every key's baseline points (`low`: windows x keys, touch positive) over `frames` frames, and the
-    passes over the deltas they give (`passes()`)."""
+    """Every key's baseline points (`low`: windows x keys, touch positive, one every `window` frames, in a
+    `RowStore` where the frames are) and the passes over the deltas they give (`passes()`)."""
 
     source: FrameSource
     sign: np.ndarray  # one +1/-1 per key (int64)
-    centres: np.ndarray  # each point's frame (float)
-    low: np.ndarray
+    window: int
+    low: RowStore
 
     @property
     def frames(self) -> int:
         return self.source.frames
 
-    def baseline(self, start: int, stop: int, key: int) -> np.ndarray:
+    @property
+    def width(self) -> int:
+        return len(self.sign)
+
+    def points(self, start: int, stop: int) -> tuple[np.ndarray, np.ndarray]:
+        """(frames, lows) of the points whose stretches cover frames [start, stop), one more each side:
+        interpolating between these gives what interpolating between all of them gives (`np.interp` takes
+        each frame from the two points around it)."""
+        n, w, count = self.frames, self.window, len(self.low)
+        first = min(max(0, (start - w // 2) // w - 1), max(0, count - 1))
+        last = min(count - 1, max(0, -(-(stop - 1 - w // 2) // w) + 1))
+        at = np.arange(first, last + 1)
+        return np.minimum(at * w + w / 2, n - 1), self.low.read(first, last + 1)
+
+    def baseline(self, start: int, stop: int, key: int,
+                 points: tuple[np.ndarray, np.ndarray] | None = None) -> np.ndarray:
         """Key `key`'s baseline at frames [start, stop), as `_Knots.at_every_frame()` gives it."""
-        low = self.low[:, key]
-        if len(low) > 1:
-            return np.interp(np.arange(start, stop), self.centres, low)
-        return np.full(stop - start, low[0] if len(low) else 0.0)
+        centres, low = points if points is not None else self.points(start, stop)
+        if len(self.low) > 1:
+            return np.interp(np.arange(start, stop), centres, low[:, key])
+        return np.full(stop - start, low[0, key] if len(low) else 0.0)
 
     def deltas(self, start: int, readings: np.ndarray, keys: Sequence[int] | None = None) -> np.ndarray:
         """Frames x keys deltas (float64, touch positive) of readings whose first frame is `start`; with
@@ -90,11 +122,11 @@ class Baselines:
         keys = range(readings.shape[1]) if keys is None else keys
         out = np.empty((len(readings), len(keys)), np.float64)
         stop = start + len(readings)
+        points = self.points(start, stop)
         for i, key in enumerate(keys):
             v = self.sign[key] * readings[:, key].astype(np.float64)
-            out[:, i] = v - self.baseline(start, stop, key)
+            out[:, i] = v - self.baseline(start, stop, key, points) + 0.0  # never -0.0 (see `_KeyDelta`)
         return out
-
     def passes(self, keys: Sequence[int] | None = None) -> Iterator[DeltaPiece]:
         """A fresh pass over every key's delta (or only `keys`' columns), a piece at a time: called with
         no argument, a `DeltaPasses`."""
@@ -119,18 +151,16 @@ def baselines(source: FrameSource, sign: np.ndarray, rate_hz: float, window_s: f
               span_s: float = SPAN_S) -> Baselines:
     """One pass over `source` for every key's baseline points (see the module's docstring)."""
     w = window_frames(rate_hz, window_s)
-    medians = WindowMedians(w, source.width)
+    medians = WindowMedians(w, source.rows(source.width))
     for piece in source.pieces():
         medians.feed(piece.readings)
     return baselines_from(source, sign, medians.finish(), w, window_s, span_s)
 
 
-def baselines_from(source: FrameSource, sign: np.ndarray, medians: np.ndarray, window: int,
+def baselines_from(source: FrameSource, sign: np.ndarray, medians: RowStore, window: int,
                    window_s: float = WINDOW_S, span_s: float = SPAN_S) -> Baselines:
     """`Baselines` from raw window medians already taken (windows x keys, `window` frames each)."""
-    n = source.frames
     sign = np.asarray(sign, np.int64)
     half = max(1, round(span_s / window_s / 2))
-    low = rolling_low(medians * sign[None, :], half)
-    centres = np.minimum(np.arange(0, n, window) + window / 2, n - 1)
-    return Baselines(source, sign, centres, low)
+    low = rolling_low_rows(medians, sign, half, source.rows(medians.width))
+    return Baselines(source, sign, window, low)

@@ -81,7 +81,8 @@ def slider_of(sliders: Iterable[SliderSpec]) -> dict[tuple[int, int], str]:
     return out
 
 
-def _largest_first(c: Coupling) -> tuple[float, float]:
+def largest_first(c: Coupling) -> tuple[float, float]:
+    """Sort key: the largest share of the threshold first, then the largest shift."""
     return (-abs(c.share if c.share is not None else 0.0), -abs(c.shift_counts))
 
 
@@ -106,7 +107,7 @@ def couplings(untouched: Mapping[int, np.ndarray], during: Mapping[tuple[int, in
         zero = untouched_zero(untouched.get(target, ()))
         out.append(Coupling(source, target, float(np.median(values)) - zero, len(values),
                             thresholds.get(target), neighbours.get((source, target))))
-    return sorted(out, key=_largest_first)
+    return sorted(out, key=largest_first)
 
 
 def during_touches(deltas: np.ndarray, touched: np.ndarray, targets: Iterable[int] | None = None
@@ -168,7 +169,7 @@ def couplings_by_key(column: Callable[[int], np.ndarray], stretches: Sequence[Se
             found[(s, target)] = Coupling(s, target, float(np.median(values)) - zero, len(values),
                                           thresholds.get(target), neighbours.get((s, target)))
     ordered = [found[(s, t)] for s in rows for t in range(width) if (s, t) in found]  # as `during_touches`
-    return sorted(ordered, key=_largest_first)
+    return sorted(ordered, key=largest_first)
 
 
 def worst_by_target(found: Sequence[Coupling]) -> dict[int, Coupling]:

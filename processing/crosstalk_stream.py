@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from processing.crosstalk import MIN_FRAMES, Coupling, _largest_first, slider_of
+from processing.crosstalk import MIN_FRAMES, Coupling, largest_first, slider_of
 from processing.frame_ranges import Ranges, alone, count, normalised, take
 from processing.frame_source import DeltaPasses
 from processing.order_stats import medians
@@ -81,4 +81,4 @@ def couplings_streaming(deltas: DeltaPasses, stretches: Sequence[Sequence[tuple[
     neighbours = slider_of(sliders)
     out = [Coupling(s, t, float(m) - zero[t], n, thresholds.get(t), neighbours.get((s, t)))
            for (s, t), m, n in zip(pairs, found[first_pair:], counts[first_pair:], strict=True)]
-    return sorted(out, key=_largest_first)
+    return sorted(out, key=largest_first)

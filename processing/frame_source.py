@@ -19,7 +19,7 @@ from typing import Protocol
 
 import numpy as np
 
-PIECE_FRAMES = 1 << 15  # frames in one piece: 32,768 x 64 keys x 8 bytes = 16 MiB of float deltas at most
+PIECE_FRAMES = 1 << 13  # frames in one piece: 8,192 x 64 keys x 8 bytes = 4 MiB of float deltas at most
 
 
 @dataclass(frozen=True, slots=True)
@@ -58,6 +58,49 @@ class FrameSource(Protocol):
     def times_to_frames(self, times_s: np.ndarray) -> np.ndarray:
         """`np.searchsorted(t_s, times_s)` (side left) over the source's host times, as int64."""
         ...
+
+    def rows(self, width: int) -> RowStore:
+        """An empty store for rows of `width` float64 numbers computed from the frames (a baseline's
+        points): kept where the frames are (memory for frames in memory, the spool's folder for a spool),
+        so that what grows with the recording's length is never held by a source that does not hold it."""
+        ...
+
+
+class RowStore(Protocol):
+    """Rows of float64 numbers appended in order and read back by index ranges."""
+
+    width: int
+
+    def __len__(self) -> int: ...
+
+    def append(self, rows: np.ndarray) -> None: ...
+
+    def read(self, start: int, stop: int) -> np.ndarray:
+        """Rows [start, stop) (clipped to the rows there are), as a rows x width array."""
+        ...
+
+
+class MemoryRows:
+    """A `RowStore` in memory."""
+
+    def __init__(self, width: int) -> None:
+        self.width = width
+        self._parts: list[np.ndarray] = []
+        self._whole = np.zeros((0, width), np.float64)
+
+    def __len__(self) -> int:
+        return len(self._whole) + sum(len(p) for p in self._parts)
+
+    def append(self, rows: np.ndarray) -> None:
+        rows = np.asarray(rows, np.float64).reshape(-1, self.width)
+        if len(rows):
+            self._parts.append(rows)
+
+    def read(self, start: int, stop: int) -> np.ndarray:
+        if self._parts:
+            self._whole = np.concatenate([self._whole, *self._parts])
+            self._parts = []
+        return self._whole[max(0, start):max(0, stop)]
 
 
 # (first frame, frames x keys float64 deltas): one piece of a pass over every key's delta
@@ -102,3 +145,6 @@ class ArraySource:
 
     def times_to_frames(self, times_s: np.ndarray) -> np.ndarray:
         return np.searchsorted(self.t_s, np.asarray(times_s, np.float64)).astype(np.int64)
+
+    def rows(self, width: int) -> MemoryRows:
+        return MemoryRows(width)

@@ -149,6 +149,10 @@ class FrameSpool:
                                         offset=self._times_at, shape=(self.frames,))
         return np.searchsorted(self._times_map, times_s).astype(np.int64)
 
+    def rows(self, width: int) -> SpooledRows:
+        """A `RowStore` in an unnamed file of its own beside the frames (closed with the spool)."""
+        return SpooledRows(self._spool, width)
+
     def _times(self, a: int, b: int) -> np.ndarray:
         out = np.empty(b - a, np.float64)
         self._spool.read_into(self._spool.times, out, self._times_at + a * TIME_BYTES)
@@ -170,6 +174,32 @@ class FrameSpool:
         return out
 
 
+class SpooledRows:
+    """A `RowStore` (`processing.frame_source`) on disk: float64 rows appended to an unnamed file."""
+
+    def __init__(self, spool: _SpoolFiles, width: int) -> None:
+        self.width = width
+        self._spool = spool
+        self._file = spool.extra()
+        self._rows = 0
+
+    def __len__(self) -> int:
+        return self._rows
+
+    def append(self, rows: np.ndarray) -> None:
+        rows = np.asarray(rows, np.float64).reshape(-1, self.width)
+        if len(rows):
+            self._spool._write(self._file, rows)
+            self._rows += len(rows)
+
+    def read(self, start: int, stop: int) -> np.ndarray:
+        start, stop = max(0, start), min(stop, self._rows)
+        out = np.empty((max(0, stop - start), self.width), np.float64)
+        if len(out):
+            self._spool.read_into(self._file, out, start * self.width * 8)
+        return out
+
+
 class _SpoolFiles:
     """The two unnamed temporary files (times, readings), written at their ends, read by offset."""
 
@@ -181,6 +211,7 @@ class _SpoolFiles:
         self.readings: BinaryIO | None = None
         self.times_end = 0
         self.readings_end = 0
+        self.extras: list[BinaryIO] = []
         try:
             self.folder = spool_dir if spool_dir is not None else tempfile.gettempdir()
             # Unbuffered: a write that fails fails here, never later in a close that flushes.
@@ -190,6 +221,15 @@ class _SpoolFiles:
         except OSError as exc:
             self.close()
             raise self.failed(exc) from None
+
+    def extra(self) -> BinaryIO:
+        """One more unnamed file in the folder (rows computed from the frames), closed with the rest."""
+        try:
+            file = tempfile.TemporaryFile(dir=self.folder, buffering=0)  # noqa: SIM115 (closed by close)
+        except OSError as exc:
+            raise self.failed(exc) from None
+        self.extras.append(file)
+        return file
 
     def failed(self, exc: OSError) -> UserError:
         """The one line for a spool that cannot be written (or read back)."""
@@ -250,7 +290,7 @@ class _SpoolFiles:
         return at
 
     def close(self) -> None:
-        for file in (self.times, self.readings):
+        for file in (self.times, self.readings, *self.extras):
             if file is not None:
                 file.close()
 

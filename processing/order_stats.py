@@ -16,7 +16,8 @@ first bin and the greatest in the last, so every level drops at least one value:
 
 Signed zeros: results equal numpy's as floats compare (`==`), and bit for bit unless the values hold
 both -0.0 and +0.0: then which zero numpy returns follows the order its partition leaves equal values
-in, which no pass-wise method can see. Producers of values keep -0.0 out (x + 0.0 is +0.0 for x = -0.0).
+in, which no pass-wise method can see. Producers of values keep -0.0 out (x + 0.0 is +0.0 for x = -0.0;
+the deltas of `processing.baseline_stream` do).
 
 Memory: values collected in one pass stay within `budget_values`; a query being narrowed costs three
 arrays of its bins (counts, least, greatest: `bins` at most, fewer for a smaller query), charged to the
@@ -36,7 +37,7 @@ import numpy as np
 # (only queries in `active`; a query left out of a piece has no values there). Every pass is the same.
 Passes = Callable[[Sequence[int]], Iterator[Mapping[int, np.ndarray]]]
 
-BUDGET_VALUES = 1 << 22  # values collected in one pass at most: 32 MiB of float64
+BUDGET_VALUES = 1 << 20  # values collected in one pass at most: 8 MiB of float64
 BINS = 1024  # bins per narrowing level: each level keeps about 1/1024 of a spread-out query
 MIN_BUDGET_VALUES = 8
 

@@ -163,7 +163,10 @@ class _KeyDelta:
 
     def __call__(self) -> np.ndarray:
         v = self.sign * self.readings[:, self.channel].astype(np.float64)
-        return v - self.knots.at_every_frame()
+        # + 0.0 turns a -0.0 (a zero reading of a falling key less a zero baseline) into 0.0 and leaves
+        # every other value as it is: a median of zeros then never depends on where numpy's partition
+        # put a -0.0, and is never printed "-0.0".
+        return v - self.knots.at_every_frame() + 0.0
 
 
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
@@ -197,7 +200,7 @@ def find_touches(t_s: np.ndarray, readings: Columns, names: Sequence[str], polar
     for c in range(width):
         v = pol[c] * readings[:, c].astype(np.float64)
         knots = _baseline_knots(v, rate_hz)
-        delta = v - knots.at_every_frame()
+        delta = v - knots.at_every_frame() + 0.0  # never -0.0 (see `_KeyDelta`)
         del v
         found[c] = marked[c] if marked is not None else _find_runs(delta, rate_hz, min_touch_s)
         touched.append(_trimmed(delta, found[c], trim))

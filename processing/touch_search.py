@@ -59,7 +59,7 @@ class Spread:
 
 def spreads(b: Baselines, **select_kw: int) -> list[Spread]:
     """Every key's `Spread`, exactly as `_find_runs` computes it on the whole trace (two selections)."""
-    n, width = b.frames, b.low.shape[1]
+    n, width = b.frames, b.width
     mid, top = median_ranks(n), percentile_ranks(n, TOP_PERCENT)
     found = select(b.key_values(), [n] * width, [mid + top] * width, **select_kw)
     centres = [median_from(n, v[:len(mid)]) for v in found]
@@ -118,7 +118,7 @@ def trimmed(runs: Ranges, trim: int) -> Ranges:
 def find_touches_streaming(b: Baselines, names: Sequence[str], rate_hz: float, marks: Sequence[Mark] = (),
                            min_touch_s: float = 0.1, **select_kw: int) -> Touches:
     """Every key's touches and the quiet frames (the rule of `processing.stretches.find_touches`)."""
-    n, width = b.frames, b.low.shape[1]
+    n, width = b.frames, b.width
     to_frames = b.source.times_to_frames
     marked = marked_stretches(marks, names, to_frames)
     if marked is not None:

@@ -30,7 +30,7 @@ import numpy as np
 from processing.baseline_stream import Baselines, WindowMedians, baselines_from, window_frames
 from processing.crosstalk import Coupling, TouchedNoise
 from processing.crosstalk_stream import couplings_streaming
-from processing.frame_source import PIECE_FRAMES, ArraySource, FrameSource
+from processing.frame_source import PIECE_FRAMES, ArraySource, FrameSource, RowStore
 from processing.key_stats import KeySamples
 from processing.measure import VerdictBounds
 from processing.profile import Profile, profile_for, profile_from_board
@@ -157,12 +157,12 @@ def base_profile(rec: Frames, base: Profile | None) -> Profile:
     return profile_for(width, rec.names if len(rec.names) == width else ())
 
 
-def first_pass(source: FrameSource, rate_hz: float, learn: bool) -> tuple[np.ndarray, int, dict[int, int]]:
+def first_pass(source: FrameSource, rate_hz: float, learn: bool) -> tuple[RowStore, int, dict[int, int]]:
     """One pass: every key's raw half-second window medians (the baselines' points) and, when `learn`,
     each channel's direction from its first clear touch that comes back, as the live session learns it
     (ALGORITHM.md, first contact; channels never touched are left out)."""
     w = window_frames(rate_hz)
-    medians = WindowMedians(w, source.width)
+    medians = WindowMedians(w, source.rows(source.width))
     width = source.width
     startup = Startup(width, [False] * width, [True] * width, rate_hz) if learn else None
     learned: dict[int, int] = {}
