@@ -44,7 +44,12 @@ class _Sums:
 
     @property
     def mean(self) -> float:
-        return self.total / self.count if self.count else 0.0
+        return self.total / self.count if self.count else 0.0  # the exact sum divided: correctly rounded
+
+    def samples(self, median: float) -> Samples:
+        rms = math.sqrt(math.fsum(self.squares) / self.count) if self.count else 0.0
+        return Samples(self.count, 0 if self.low is None else self.low, 0 if self.high is None else self.high,
+                       rms, median)
 
 
 def _rounded(d: np.ndarray) -> np.ndarray:
@@ -74,7 +79,8 @@ class KeySamples:
                         visit(which, key, _rounded(got))
 
     def samples(self, **select_kw: int) -> list[tuple[Samples, Samples]]:
-        """Each key's (untouched, touched) `Samples`: three passes and the medians' selection."""
+        """Each key's (untouched, touched) `Samples`: a pass for counts, extremes and exact sums, one for the
+        squares about the mean, then the medians' selection (`processing.order_stats`)."""
         sums = [[_Sums(), _Sums()] for _ in range(self.width)]
         self._each(lambda which, key, v: sums[key][which].add(v))
 
@@ -85,13 +91,8 @@ class KeySamples:
 
         self._each(squares)
         medians = self._medians([[s.count for s in pair] for pair in sums], **select_kw)
-        out = []
-        for key, pair in enumerate(sums):
-            out.append(tuple(
-                Samples(s.count, 0 if s.low is None else s.low, 0 if s.high is None else s.high,
-                        math.sqrt(math.fsum(s.squares) / s.count) if s.count else 0.0, medians[key][which])
-                for which, s in enumerate(pair)))
-        return out  # type: ignore[return-value]
+        return [(quiet.samples(medians[key][0]), held.samples(medians[key][1]))
+                for key, (quiet, held) in enumerate(sums)]
 
     def _medians(self, counts: list[list[int]], **select_kw: int) -> list[list[float]]:
         """Each key's untouched and touched medians (nan with no samples), in one selection."""

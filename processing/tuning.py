@@ -27,6 +27,7 @@ from typing import Protocol
 
 import numpy as np
 
+from processing import frame_ranges
 from processing.baseline_stream import Baselines, WindowMedians, baselines_from, window_frames
 from processing.crosstalk import Coupling, TouchedNoise
 from processing.crosstalk_stream import couplings_streaming
@@ -205,28 +206,7 @@ def tune_recording(rec: Recording | FrameSource, base: Profile | None = None,
             profile = replace(profile, polarity=polarity)
     b = baselines_from(source, expand_polarity(polarity, source.width), medians, window)
     touches = find_touches_streaming(b, profile.names, rate_hz, meta.marks, **select_kw)
-    samples = KeySamples(b, touches.quiet, touches.touched).samples(**select_kw)
-    planned: list[Levels | Refusal] = [
-        Refusal("no touch found on this key: record it being touched (or mark the touches)")
-        if not touches.stretches[c] else levels(quiet, held) for c, (quiet, held) in enumerate(samples)]
-    runs = KeySamples(b, touches.quiet, touches.touched).runs(
-        [lv if isinstance(lv, Levels) else None for lv in planned])
-    bounds = bounds or VerdictBounds()
-    noise_held = touched_noise_by_key(b.passes, touches.stretches, rate_hz)
-    keys = []
-    for c, ((quiet, held), lv) in enumerate(zip(samples, planned, strict=True)):
-        figures = figures_from(quiet, held)
-        outcome = debounced(lv, *runs[c], rate_hz) if isinstance(lv, Levels) else lv
-        before = profile.settings_for(c)
-        after = outcome.apply(before) if isinstance(outcome, Suggestion) else before
-        trace = KeyTouches(touches.stretches[c], quiet_frames=len_of(touches.quiet),
-                           touched_frames=len_of(touches.touched[c]), from_marks=touches.from_marks)
-        keys.append(KeyResult(c, profile.names[c], figures, bounds.verdict(figures.snr_pp), outcome, before,
-                              after, trace, noise_held[c]))
-        # Unmeasured: settings from defaults, not from this key (the rule: `measured_marks`).
-        ok = isinstance(outcome, Suggestion)
-        marks = measured_marks(base, [c] if ok else [], [] if ok else [c])
-        profile = profile.with_settings(c, after).with_measured(c, marks[c])
+    keys, profile = _key_results(b, touches, profile, base, rate_hz, bounds or VerdictBounds(), select_kw)
     profile = replace(profile, rate_hz=rate_hz)
     thresholds = {c: float(k.after.threshold_counts) for c, k in enumerate(keys)}
     found = couplings_streaming(b.passes, touches.stretches, source.frames, touches.quiet, thresholds,
@@ -235,8 +215,32 @@ def tune_recording(rec: Recording | FrameSource, base: Profile | None = None,
                       TunePasses(source, b, touches))
 
 
-def len_of(ranges: Iterable[tuple[int, int]]) -> int:
-    return sum(b - a for a, b in ranges)
+def _key_results(b: Baselines, touches: Touches, profile: Profile, base: Profile | None, rate_hz: float,
+                 bounds: VerdictBounds, select_kw: dict[str, int]) -> tuple[list[KeyResult], Profile]:
+    """Each key's figures, verdict and suggestion (or refusal), and the profile with them applied."""
+    keyed = KeySamples(b, touches.quiet, touches.touched)
+    samples = keyed.samples(**select_kw)
+    planned: list[Levels | Refusal] = [
+        Refusal("no touch found on this key: record it being touched (or mark the touches)")
+        if not touches.stretches[c] else levels(quiet, held) for c, (quiet, held) in enumerate(samples)]
+    runs = keyed.runs([lv if isinstance(lv, Levels) else None for lv in planned])
+    noise_held = touched_noise_by_key(b.passes, touches.stretches, rate_hz)
+    quiet_frames = frame_ranges.count(touches.quiet)
+    keys = []
+    for c, ((quiet, held), lv) in enumerate(zip(samples, planned, strict=True)):
+        figures = figures_from(quiet, held)
+        outcome = debounced(lv, *runs[c], rate_hz) if isinstance(lv, Levels) else lv
+        before = profile.settings_for(c)
+        after = outcome.apply(before) if isinstance(outcome, Suggestion) else before
+        trace = KeyTouches(touches.stretches[c], touched_frames=frame_ranges.count(touches.touched[c]),
+                           quiet_frames=quiet_frames, from_marks=touches.from_marks)
+        keys.append(KeyResult(c, profile.names[c], figures, bounds.verdict(figures.snr_pp), outcome, before,
+                              after, trace, noise_held[c]))
+        # Unmeasured: settings from defaults, not from this key (the rule: `measured_marks`).
+        ok = isinstance(outcome, Suggestion)
+        marks = measured_marks(base, [c] if ok else [], [] if ok else [c])
+        profile = profile.with_settings(c, after).with_measured(c, marks[c])
+    return keys, profile
 
 
 # Margins of `limits_from_result` (common practice, no source; from memory of production test plans):
