@@ -49,6 +49,18 @@ def touch_marks(r: np.ndarray, rate_hz: float, rng: np.random.Generator) -> list
     return marks
 
 
+def case(seed: int) -> tuple[Recording, float, tuple[int, ...], list[Mark]]:
+    """A made-up recording: rate, keys, length, polarity, marks (every third) drawn from `seed`."""
+    rng = np.random.default_rng(1000 + seed)
+    rate_hz = float(rng.choice([50.0, 100.0, 250.0, 1000.0]))
+    width = int(rng.integers(1, 6))
+    frames = int(rng.integers(max(64, rate_hz * 4), rate_hz * 20))
+    polarity = tuple(int(x) for x in rng.choice([-1, 1], width))
+    r = made_up(seed, frames, width, rate_hz, polarity)
+    marks = touch_marks(r, rate_hz, rng) if seed % 3 == 0 else []
+    return recording(r, rate_hz, polarity, marks), rate_hz, polarity, marks
+
+
 def assert_same(result, keys, found) -> None:
     assert len(result.keys) == len(keys)
     for got, want in zip(result.keys, keys, strict=True):
@@ -78,14 +90,8 @@ def assert_same(result, keys, found) -> None:
 
 @pytest.mark.parametrize("seed", range(16))
 def test_streaming_tuning_equals_the_whole_array_tuning(seed: int) -> None:
-    rng = np.random.default_rng(1000 + seed)
-    rate_hz = float(rng.choice([50.0, 100.0, 250.0, 1000.0]))
-    width = int(rng.integers(1, 6))
-    frames = int(rng.integers(max(64, rate_hz * 4), rate_hz * 20))
-    polarity = tuple(int(x) for x in rng.choice([-1, 1], width))
-    r = made_up(seed, frames, width, rate_hz, polarity)
-    marks = touch_marks(r, rate_hz, rng) if seed % 3 == 0 else []
-    rec = recording(r, rate_hz, polarity, marks)
+    rng = np.random.default_rng(2000 + seed)
+    rec, rate_hz, polarity, marks = case(seed)
     t_s, _, readings = rec.arrays()
     piece_frames = int(rng.choice([1 + int(rng.integers(0, 50)), 997, 4096, 1 << 15]))
     budget = int(rng.choice([64, 1000, 1 << 22]))
@@ -103,14 +109,7 @@ def test_the_made_up_recordings_reach_every_part() -> None:
     and noise while touched are measured, with and without marks."""
     found = {"touched": 0, "tuned": 0, "refused": 0, "couplings": 0, "held_noise": 0, "marked": 0}
     for seed in range(16):
-        rng = np.random.default_rng(1000 + seed)
-        rate_hz = float(rng.choice([50.0, 100.0, 250.0, 1000.0]))
-        width = int(rng.integers(1, 6))
-        frames = int(rng.integers(max(64, rate_hz * 4), rate_hz * 20))
-        polarity = tuple(int(x) for x in rng.choice([-1, 1], width))
-        r = made_up(seed, frames, width, rate_hz, polarity)
-        marks = touch_marks(r, rate_hz, rng) if seed % 3 == 0 else []
-        result = tune_recording(recording(r, rate_hz, polarity, marks))
+        result = tune_recording(case(seed)[0])
         found["touched"] += sum(bool(k.trace.stretches) for k in result.keys)
         found["tuned"] += sum(k.measured for k in result.keys)
         found["refused"] += sum(not k.measured for k in result.keys)
