@@ -9,8 +9,9 @@ first BoardInfo, every block of the LAST width seen (in order), the marks of a p
 `names`, `truncated`, `path`.
 
 `FrameSpool.pieces()` reads the frames back a piece at a time (regular pieces of `piece_frames`,
-whatever the decoder's block sizes), as many passes as a computation needs; `times_to_frames` is numpy's
-own `searchsorted` over a memory map of the final width's times (made contiguous after the decoding pass
+whatever the decoder's block sizes), as many passes as a computation needs; `times_to_frames` counts
+the frames before each time a piece at a time (times in order), else is numpy's own `searchsorted` over
+a memory map of the final width's times (made contiguous after the decoding pass
 when blocks of several widths were interleaved). Memory: one decoder chunk plus one piece.
 
 A folder that cannot be written (full, read-only, missing) is a `UserError` naming it and why.
@@ -140,10 +141,25 @@ class FrameSpool:
             yield Piece(a, self._times(a, b), self._readings(a, b))
 
     def times_to_frames(self, times_s: np.ndarray) -> np.ndarray:
-        """`np.searchsorted(t_s, times_s)` (side left) over the frames' host times, as int64."""
+        """`np.searchsorted(t_s, times_s)` (side left) over the frames' host times, as int64.
+
+        Host times in order (the usual case) are counted a piece at a time: the frames before a time are
+        the sum of each piece's; nothing is mapped or held. Times out of order (a clock stepped back) are
+        searched by numpy itself over a memory map of them, so the answer is still numpy's."""
         times_s = np.asarray(times_s, np.float64)
         if not self.frames:
             return np.searchsorted(np.zeros(0), times_s).astype(np.int64)
+        counts = np.zeros(times_s.shape, np.int64)
+        last = -np.inf
+        for a in range(0, self.frames, self.piece_frames):
+            t_s = self._times(a, min(a + self.piece_frames, self.frames))
+            if t_s[0] < last or (len(t_s) > 1 and bool(np.any(t_s[1:] < t_s[:-1]))) or np.isnan(t_s).any():
+                return self._searched_in_place(times_s)
+            counts += np.searchsorted(t_s, times_s)
+            last = float(t_s[-1])
+        return counts
+
+    def _searched_in_place(self, times_s: np.ndarray) -> np.ndarray:
         if self._times_map is None:
             self._times_map = np.memmap(self._spool.times, dtype=np.float64, mode="r",
                                         offset=self._times_at, shape=(self.frames,))
