@@ -5,9 +5,10 @@ A key's untouched samples are its deltas in the quiet frames, its touched sample
 trimmed touches, each rounded to whole counts (`np.rint`), in frame order, exactly as `tune` took them from
 whole arrays. Count, lowest and highest are exact; the median is exact (`processing.order_stats`); the RMS
 (population standard deviation) is taken in two steps, the mean from the exact integer sum and then the
-summed squares about it (`math.fsum` over the pieces), which agrees with `numpy.std` of the whole to about
-1e-15. The longest noise burst and the longest dropout are runs over the samples in frame order, followed
-across pieces (a run goes on across the frames between two quiet stretches, as it did in the joined array).
+summed squares about it (a compensated running sum over the pieces: `processing.running_sum`), which
+agrees with `numpy.std` of the whole to about 1e-15. The longest noise burst and the longest dropout are
+runs over the samples in frame order, followed across pieces (a run goes on across the frames between two
+quiet stretches, as it did in the joined array).
 Pure numpy, no I/O.
 """
 
@@ -23,6 +24,7 @@ from processing import frame_ranges
 from processing.baseline_stream import Baselines
 from processing.frame_ranges import Ranges
 from processing.order_stats import median_from, median_ranks, select
+from processing.running_sum import RunningSum
 from processing.suggest import Levels, Samples
 
 
@@ -32,7 +34,7 @@ class _Sums:
     low: int | None = None
     high: int | None = None
     total: int = 0  # exact integer sum
-    squares: list[float] = field(default_factory=list)  # per piece: summed squares about the mean
+    squares: RunningSum = field(default_factory=RunningSum)  # summed squares about the mean
 
     def add(self, v: np.ndarray) -> None:
         if len(v):
@@ -47,7 +49,7 @@ class _Sums:
         return self.total / self.count if self.count else 0.0  # the exact sum divided: correctly rounded
 
     def samples(self, median: float) -> Samples:
-        rms = math.sqrt(math.fsum(self.squares) / self.count) if self.count else 0.0
+        rms = math.sqrt(max(0.0, self.squares.value) / self.count) if self.count else 0.0
         return Samples(self.count, 0 if self.low is None else self.low, 0 if self.high is None else self.high,
                        rms, median)
 
@@ -87,7 +89,7 @@ class KeySamples:
         def squares(which: int, key: int, v: np.ndarray) -> None:
             s = sums[key][which]
             dev = v.astype(np.float64) - s.mean
-            s.squares.append(float(np.dot(dev, dev)))
+            s.squares.add(float(np.dot(dev, dev)))
 
         self._each(squares)
         medians = self._medians([[s.count for s in pair] for pair in sums], **select_kw)

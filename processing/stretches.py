@@ -242,7 +242,8 @@ def _find_runs(delta: np.ndarray, rate_hz: float, min_touch_s: float) -> list[tu
 def mark_ranges(marks: Sequence[Mark], start_kind: str, end_kind: str, channel: str | None,
                 to_frames: Callable[[np.ndarray], np.ndarray]) -> list[tuple[int, int]]:
     """[start, stop) frames between each `start_kind` mark and the next `end_kind` one (of `channel`, or of
-    any with None); `to_frames(times)` gives the first frame at or after each time (`np.searchsorted`)."""
+    any with None), those holding at least one frame; `to_frames(times)` gives the first frame at or after
+    each time (`np.searchsorted`)."""
     pairs, opened = [], None
     for m in sorted(marks, key=lambda m: m.t_s):
         if m.channel != channel and channel is not None:
@@ -255,7 +256,9 @@ def mark_ranges(marks: Sequence[Mark], start_kind: str, end_kind: str, channel: 
     if not pairs:
         return []
     at = to_frames(np.array(pairs, np.float64).reshape(-1)).tolist()
-    return list(zip(at[0::2], at[1::2], strict=True))
+    # A pair whose times hold no frame (both before the first frame or after the last: marks written
+    # after the recording was cut short) marks nothing: it is left out, not kept as an empty touch.
+    return [(a, b) for a, b in zip(at[0::2], at[1::2], strict=True) if b > a]
 
 
 def marked_stretches(marks: Sequence[Mark], names: Sequence[str],

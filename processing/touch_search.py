@@ -70,33 +70,50 @@ def spreads(b: Baselines, **select_kw: int) -> list[Spread]:
 
 
 class RunFollower:
-    """The True runs of a mask fed a piece at a time (a run may cross any number of cuts)."""
+    """The True runs of a mask fed a piece at a time (a run may cross any number of cuts), those shorter
+    than `shortest` frames let go as soon as they end (a noisy key's one-frame spikes are not held)."""
 
-    def __init__(self) -> None:
+    def __init__(self, shortest: int = 1) -> None:
+        self.shortest = shortest
         self.runs: Ranges = []
 
     def feed(self, start: int, mask: np.ndarray) -> None:
         for a, b in frame_ranges.from_mask(mask, start):
             if self.runs and self.runs[-1][1] == a:  # the run of the last piece goes on
                 self.runs[-1] = (self.runs[-1][0], b)
-            else:
-                self.runs.append((a, b))
+                continue
+            self._close_last()
+            self.runs.append((a, b))
+
+    def finish(self) -> Ranges:
+        self._close_last()
+        return self.runs
+
+    def _close_last(self) -> None:
+        if self.runs and self.runs[-1][1] - self.runs[-1][0] < self.shortest:
+            self.runs.pop()
 
 
-def runs_above(b: Baselines, levels: Sequence[float | None]) -> list[Ranges]:
-    """Each key's runs of frames with delta above its level (none for a key without a level): one pass."""
+def runs_above(b: Baselines, levels: Sequence[float | None], shortest: int = 1) -> list[Ranges]:
+    """Each key's runs of frames with delta above its level, at least `shortest` frames long (none for a
+    key without a level): one pass."""
     keys = [c for c, level in enumerate(levels) if level is not None]
-    followers = {c: RunFollower() for c in keys}
+    followers = {c: RunFollower(shortest) for c in keys}
     if keys:
         for start, d in b.passes(keys):
             for i, c in enumerate(keys):
                 followers[c].feed(start, d[:, i] > levels[c])
-    return [followers[c].runs if c in followers else [] for c in range(len(levels))]
+    return [followers[c].finish() if c in followers else [] for c in range(len(levels))]
+
+
+def shortest_touch(rate_hz: float, min_touch_s: float) -> int:
+    """Frames a run above the level must last to count as a touch (at least 2)."""
+    return max(2, round(min_touch_s * rate_hz))
 
 
 def touches_of(runs: Ranges, rate_hz: float, min_touch_s: float) -> Ranges:
     """Runs at least `min_touch_s` long, those closer than 50 ms joined (as `_find_runs`)."""
-    shortest = max(2, round(min_touch_s * rate_hz))
+    shortest = shortest_touch(rate_hz, min_touch_s)
     merged: Ranges = []
     gap = max(1, round(0.05 * rate_hz))
     for a, b in runs:
@@ -125,7 +142,8 @@ def find_touches_streaming(b: Baselines, names: Sequence[str], rate_hz: float, m
         found = [marked[c] for c in range(width)]
     else:
         levels = [s.level for s in spreads(b, **select_kw)]
-        found = [touches_of(runs, rate_hz, min_touch_s) for runs in runs_above(b, levels)]
+        shortest = shortest_touch(rate_hz, min_touch_s)
+        found = [touches_of(runs, rate_hz, min_touch_s) for runs in runs_above(b, levels, shortest)]
     trim = max(1, round(0.05 * rate_hz))
     guard = max(1, round(0.3 * rate_hz))  # any key touched, widened by a guard, is no use for noise
     quiet = frame_ranges.complement(frame_ranges.widened([r for runs in found for r in runs], guard, n), n)

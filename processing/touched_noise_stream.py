@@ -17,13 +17,15 @@ a touch's trace:
   floats per key.
 - pp, samples, touches: counts and a min/max, exact.
 - Spectrum: of the longest touch's residuals (the first longest in the key's list, as `touched_noise`),
-  known before any pass from the touches' lengths. Its residuals are kept, at most `SPECTRUM_CAP` of them:
-  a touch longer than that gives the spectrum of its first `SPECTRUM_CAP` residuals (the rule of this
-  module; 32,768 residuals is minutes of touch at any frame rate here, far finer bins than the mains alias
-  check needs).
+  known before any pass from the touches' lengths. Its residuals are gathered in a pass and the spectrum
+  taken, a batch of keys per pass: the two passes above carry the first two batches, and keys whose long
+  touches do not fit (`SPECTRUM_BUDGET` residuals per pass, all keys together) get passes of their own.
+  A touch longer than `SPECTRUM_CAP` residuals (17 minutes at 1 kHz, 52 s at 20 kHz) gives the spectrum
+  of its first `SPECTRUM_CAP` (the one rule where this differs from `touched_noise`: a spectrum over more
+  than a million frames is not held).
 
-Memory per key: the carry of the touches in progress (`window - 1` floats each; one touch at a time for
-normalised touches) and the spectrum buffer. Pure numpy, no I/O.
+Memory: per key the carry of the touches in progress (`window - 1` floats each; one touch at a time for
+normalised touches); the spectrum buffers, `SPECTRUM_BUDGET` residuals at most. Pure numpy, no I/O.
 """
 
 from __future__ import annotations
@@ -36,31 +38,11 @@ import numpy as np
 
 from processing.crosstalk import LEVEL_WINDOW_S, MIN_FRAMES, TouchedNoise, level_window, running_median
 from processing.frame_source import DeltaPasses
-from processing.measure import MIN_SPECTRUM_SAMPLES, spectrum_peak
+from processing.measure import MIN_SPECTRUM_SAMPLES, SpectrumPeak, spectrum_peak
+from processing.running_sum import RunningSum
 
-SPECTRUM_CAP = 1 << 15  # residuals at most in a key's spectrum buffer (the first of its longest touch)
-
-
-class _Sum:
-    """A compensated (Neumaier) running sum of floats: its error does not grow with the terms added."""
-
-    __slots__ = ("carry", "total")
-
-    def __init__(self) -> None:
-        self.total = 0.0
-        self.carry = 0.0
-
-    def add(self, x: float) -> None:
-        t = self.total + x
-        if abs(self.total) >= abs(x):
-            self.carry += (self.total - t) + x
-        else:
-            self.carry += (x - t) + self.total
-        self.total = t
-
-    @property
-    def value(self) -> float:
-        return self.total + self.carry
+SPECTRUM_CAP = 1 << 20  # residuals at most in a key's spectrum (the first of its longest touch)
+SPECTRUM_BUDGET = 1 << 20  # residuals held for spectra in one pass, all keys together (8 MiB)
 
 
 @dataclass(slots=True)
@@ -100,6 +82,7 @@ class _Key:
         self.touches = sum(1 for n in counts if n)
         best = max(counts, default=0)
         self.longest = counts.index(best) if best else -1  # first longest, as `max(parts, key=len)`
+        self.longest_samples = best
         self.order = sorted(self.runs, key=lambda r: (r[1], r[0]))
 
     def start_pass(self) -> None:
@@ -156,12 +139,52 @@ def _passes(deltas: DeltaPasses, keys: dict[int, _Key], window: int
         k.end_pass(at)
 
 
+def _spectrum_batches(keys: dict[int, _Key]) -> list[list[int]]:
+    """The keys whose longest touch gives a spectrum, packed in order into batches whose buffers together
+    hold at most `SPECTRUM_BUDGET` residuals (one batch per pass)."""
+    batches: list[list[int]] = []
+    room = 0
+    for c, k in keys.items():
+        size = min(k.longest_samples, SPECTRUM_CAP)
+        if size < MIN_SPECTRUM_SAMPLES:
+            continue
+        if not batches or size > room:
+            batches.append([])
+            room = SPECTRUM_BUDGET
+        batches[-1].append(c)
+        room -= size
+    return batches
+
+
+class _Spectra:
+    """The residuals of the longest touch of each key in `batch`, gathered in one pass, then their peaks."""
+
+    def __init__(self, keys: dict[int, _Key], batch: Sequence[int]) -> None:
+        self.keys = keys
+        self.parts: dict[int, list[np.ndarray]] = {c: [] for c in batch}
+        self.held = dict.fromkeys(batch, 0)
+
+    def take(self, c: int, index: int, res: np.ndarray) -> None:
+        if c in self.parts and index == self.keys[c].longest and self.held[c] < SPECTRUM_CAP:
+            part = res[:SPECTRUM_CAP - self.held[c]]
+            self.parts[c].append(part.copy())
+            self.held[c] += len(part)
+
+    def peaks(self, rate_hz: float) -> dict[int, SpectrumPeak | None]:
+        out = {}
+        for c, parts in self.parts.items():
+            longest = np.concatenate(parts) if parts else np.zeros(0)
+            out[c] = spectrum_peak(longest, rate_hz) if len(longest) >= MIN_SPECTRUM_SAMPLES else None
+        self.parts.clear()
+        return out
+
+
 def touched_noise_by_key(deltas: DeltaPasses, stretches: Sequence[Sequence[tuple[int, int]]],
                          rate_hz: float, window_s: float = LEVEL_WINDOW_S) -> list[TouchedNoise | None]:
     """Per key c, `crosstalk.touched_noise([full[a:b, c] for a, b in stretches[c]], rate_hz, window_s)`
     of the whole delta array `full` that `deltas` passes over (see the module's docstring for how, and for
-    the spectrum cap). Touches must lie inside the recording; two passes at most (none when no key has
-    `MIN_FRAMES` residuals)."""
+    the spectrum cap). Touches must lie inside the recording; two passes (none when no key has
+    `MIN_FRAMES` residuals), more only when the keys' longest touches are too long to gather in two."""
     _check(stretches)
     window = level_window(rate_hz, window_s)
     keys = {c: _Key(runs, window) for c, runs in enumerate(stretches)}
@@ -169,29 +192,34 @@ def touched_noise_by_key(deltas: DeltaPasses, stretches: Sequence[Sequence[tuple
     out: list[TouchedNoise | None] = [None] * len(stretches)
     if not keys:
         return out
-    sums = {c: _Sum() for c in keys}
+    sums = {c: RunningSum() for c in keys}
     low = dict.fromkeys(keys, math.inf)
     high = dict.fromkeys(keys, -math.inf)
-    spectrum: dict[int, list[np.ndarray]] = {c: [] for c in keys}
-    held = dict.fromkeys(keys, 0)
+    batches = _spectrum_batches(keys)
+    peaks: dict[int, SpectrumPeak | None] = {}
+    spectra = _Spectra(keys, batches.pop(0) if batches else [])
     for c, index, res in _passes(deltas, keys, window):
         sums[c].add(float(np.sum(res)))
         low[c], high[c] = min(low[c], float(res.min())), max(high[c], float(res.max()))
-        if index == keys[c].longest and held[c] < SPECTRUM_CAP:
-            part = res[:SPECTRUM_CAP - held[c]]
-            spectrum[c].append(part.copy())
-            held[c] += len(part)
+        spectra.take(c, index, res)
+    peaks.update(spectra.peaks(rate_hz))
     mean = {c: sums[c].value / keys[c].samples for c in keys}
-    squares = {c: _Sum() for c in keys}
-    offsets = {c: _Sum() for c in keys}
-    for c, _index, res in _passes(deltas, keys, window):
+    squares = {c: RunningSum() for c in keys}
+    offsets = {c: RunningSum() for c in keys}
+    spectra = _Spectra(keys, batches.pop(0) if batches else [])
+    for c, index, res in _passes(deltas, keys, window):
         dev = res - mean[c]
         squares[c].add(float(np.dot(dev, dev)))
         offsets[c].add(float(np.sum(dev)))
+        spectra.take(c, index, res)
+    peaks.update(spectra.peaks(rate_hz))
+    for batch in batches:  # more long touches than one pass's buffers hold: a pass for each batch more
+        spectra = _Spectra(keys, batch)
+        for c, index, res in _passes(deltas, {c: keys[c] for c in batch}, window):
+            spectra.take(c, index, res)
+        peaks.update(spectra.peaks(rate_hz))
     for c, k in keys.items():
         n = k.samples
         m2 = max(0.0, squares[c].value - offsets[c].value ** 2 / n)
-        longest = np.concatenate(spectrum[c]) if spectrum[c] else np.zeros(0)
-        peak = spectrum_peak(longest, rate_hz) if len(longest) >= MIN_SPECTRUM_SAMPLES else None
-        out[c] = TouchedNoise(math.sqrt(m2 / n), high[c] - low[c], n, k.touches, window, peak)
+        out[c] = TouchedNoise(math.sqrt(m2 / n), high[c] - low[c], n, k.touches, window, peaks.get(c))
     return out

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import os
 import re
 from html.parser import HTMLParser
@@ -368,3 +369,28 @@ def test_tune_json_has_crosstalk_noise_while_touched_and_what_each_verdict_rests
     # the table's column is each key's largest crosstalk: the table's largest share is one of them
     worst = max(r["crosstalk_pct"] for r in rows.values() if r["crosstalk_pct"] is not None)
     assert worst == max(x["share_pct"] for x in tuned["crosstalk"])
+
+
+def test_touch_marks_after_the_recordings_end_mark_nothing(tmp_path):
+    # Marks written after the recording was cut short (their times hold no frame): the key is tuned from
+    # its real touch, the report is drawn, nothing raises (each such pair is left out, not an empty touch).
+    from processing.recording import RecordingWriter
+    from protocol.events import BoardInfo, FrameBlock
+
+    n, rng = 2000, np.random.default_rng(0)
+    r = 1000 + rng.integers(-3, 4, (n, 2))
+    r[500:700, 0] += 300
+    r[1200:1400, 1] += 300
+    info = BoardInfo(0.0, {}, proto=1, channels=2, rate_hz=100.0, names=("k0", "k1"), polarity=(1,))
+    path = tmp_path / "cut.csv"
+    with RecordingWriter(path, origin_t_s=0.0, clock=lambda: 0.0, source="test", info=info) as w:
+        w.write_events([info, FrameBlock(np.arange(n) / 100.0, np.full(n, -1), r, 0)])
+        for t0, t1, key in ((5.0, 7.0, "k0"), (12.0, 14.0, "k1"), (20.5, 20.6, "k1"), (-3.0, -2.0, "k0")):
+            w.mark(t0, "touch-start", key, "")
+            w.mark(t1, "touch-end", key, "")
+    out = padtune("tune", str(path), "-o", str(tmp_path / "p.toml"), "--json", "--report",
+                  str(tmp_path / "r.html"))
+    assert out.returncode == 0, out.stderr
+    keys = json.loads(out.stdout)["channels"]
+    assert [k["touches"] for k in keys] == [1, 1] and all(k["measured"] for k in keys)
+    assert (tmp_path / "r.html").stat().st_size > 0 and (tmp_path / "p.toml").exists()

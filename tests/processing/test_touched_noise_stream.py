@@ -41,8 +41,11 @@ def _same(got, want) -> None:
 
 
 @pytest.mark.parametrize("seed", range(40))
-def test_streamed_touched_noise_equals_the_whole_trace_form(seed: int) -> None:
+def test_streamed_touched_noise_equals_the_whole_trace_form(seed: int,
+                                                            monkeypatch: pytest.MonkeyPatch) -> None:
     rng = np.random.default_rng(seed)
+    if seed % 2:  # spectrum buffers for a few keys at a time: the long touches' residuals over more passes
+        monkeypatch.setattr(touched_noise_stream, "SPECTRUM_BUDGET", int(rng.integers(16, 400)))
     rate_hz = float(rng.choice([10.0, 50.0, 100.0]))
     full, stretches = _recording(rng, int(rng.integers(1, 700)), int(rng.integers(1, 5)), rate_hz)
     got = touched_noise_by_key(cut_passes(full, rng, int(rng.integers(1, 90))), stretches, rate_hz)
@@ -110,3 +113,24 @@ def test_touches_out_of_order_and_tied_for_longest_take_the_first_listed() -> No
         want = touched_noise([full[a:b, 0] for a, b in runs], 100.0)
         assert want is not None and want.peak is not None
         _same(got, want)
+
+
+def test_long_touches_of_many_keys_take_more_passes_not_more_memory(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Four keys each held for 500 frames; buffers for one key's residuals at a time: four spectrum batches
+    # (two ride on the RMS passes, two more passes), every peak still the whole-trace one.
+    monkeypatch.setattr(touched_noise_stream, "SPECTRUM_BUDGET", 600)
+    rng = np.random.default_rng(11)
+    full, _ = _recording(rng, 800, 4, 100.0)
+    stretches = [[(100, 600)]] * 4
+    calls = []
+
+    def passes():
+        calls.append(1)
+        return ((a, full[a:a + 64]) for a in range(0, len(full), 64))
+
+    got = touched_noise_by_key(passes, stretches, 100.0)
+    assert len(calls) == 4
+    for c, runs in enumerate(stretches):
+        want = touched_noise([full[a:b, c] for a, b in runs], 100.0)
+        assert want is not None and want.peak is not None
+        _same(got[c], want)
