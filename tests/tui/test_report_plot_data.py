@@ -108,3 +108,17 @@ def test_sources_that_do_not_cover_the_same_frames_are_refused() -> None:
         list(aligned(src.pieces(), iter([(0, np.zeros((9, 1)))])))
     with pytest.raises(ValueError, match="follow on"):
         list(aligned(src.pieces(), iter([(0, np.zeros((4, 1))), (5, np.zeros((5, 1)))])))
+
+
+def test_host_times_that_cannot_make_an_axis_are_drawn_in_order_and_said() -> None:
+    # A damaged clock (finite times spanning 3.4e308 s: matplotlib cannot place them) must not crash the
+    # report: the points are drawn in recording order and the axis says why. No warning either.
+    import warnings
+
+    from tui.report.plots import delta_plot_from
+
+    t_s = np.array([-1.7e308, 1.7e308, 1.7e308, 1.7e308])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        svg = delta_plot_from(t_s, np.array([0.0, 3.0, 250.0, 1.0]), [(1.7e308, 1.7e308)], 120.0, 100.0)
+    assert "recording order" in svg and "time (s)" not in svg

@@ -42,6 +42,9 @@ def _svg(fig: Figure) -> str:
     return text[text.index("<svg"):]  # the XML prolog and doctype do not belong inside HTML
 
 
+MAX_AXIS_S = 1e9  # about 32 years: host times spanning more come from a damaged clock, not a recording
+
+
 def envelope(t_s: np.ndarray, values: np.ndarray, points: int = MAX_POINTS) -> tuple[np.ndarray, np.ndarray]:
     """At most `points` (t, v) pairs keeping each bucket's min and max, in time order."""
     n = len(values)
@@ -72,7 +75,14 @@ def delta_plot_from(t_s: np.ndarray, delta_counts: np.ndarray, spans_s: Sequence
                     threshold_counts: float | None, release_counts: float | None, title: str = "",
                     noise_limit_pp_counts: float | None = None) -> str:
     """`delta_plot` of points already reduced (`envelope`, or `plot_data.sketches` for a recording read
-    in passes), touches shaded between their (first, last) times `spans_s`."""
+    in passes), touches shaded between their (first, last) times `spans_s`. Host times that cannot make
+    an axis (not finite, or spanning more than `MAX_AXIS_S`: a damaged clock) are drawn against the
+    points' order instead, unshaded, and the axis says so."""
+    t_s = np.asarray(t_s, np.float64)
+    xlabel = "time (s)"
+    if len(t_s) and not (np.isfinite(t_s).all() and float(t_s.max()) - float(t_s.min()) <= MAX_AXIS_S):
+        t_s, spans_s = np.arange(len(t_s), dtype=np.float64), []
+        xlabel = "points in recording order (its host times cannot make a time axis)"
     fig, ax = _figure()
     for i, (start_s, end_s) in enumerate(spans_s):
         ax.axvspan(start_s, end_s, color=COLOURS["touched"], alpha=0.35, lw=0,
@@ -88,7 +98,7 @@ def delta_plot_from(t_s: np.ndarray, delta_counts: np.ndarray, spans_s: Sequence
         half = noise_limit_pp_counts / 2
         ax.axhspan(-half, half, color=COLOURS["limit"], alpha=0.12, lw=0,
                    label=f"noise limit pp {noise_limit_pp_counts:g}")
-    ax.set_xlabel("time (s)")
+    ax.set_xlabel(xlabel)
     ax.set_ylabel("delta (counts)")
     if title:
         ax.set_title(title, fontsize=10)
