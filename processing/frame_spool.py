@@ -118,14 +118,14 @@ class FrameSpool:
 
     @property
     def channels(self) -> int | None:
-        """As `TuneFrames.channels`: the frames' width, else the board's channels."""
+        """As `Recording.channels`: the frames' width, else the board's channels."""
         if self.frames or self.width:
             return self.width
         return self.info.channels if self.info else None
 
     @property
     def rate_hz(self) -> float | None:
-        """As `TuneFrames.rate_hz`: the board's nominal rate, else the rate measured from the host times."""
+        """As `Recording.rate_hz`: the board's nominal rate, else the rate measured from the host times."""
         info = self.info
         if info and info.rate_hz:
             return info.rate_hz
@@ -331,7 +331,7 @@ def spool_frames(stream: RecordingStream, spool_dir: str | None = None,
     try:
         info: BoardInfo | None = None
         width: int | None = None
-        held: dict[int, _Runs] = {}  # as `read_frames`: every block of a width
+        held: dict[int, _Runs] = {}  # as `Recording.arrays()`: every block of a width
         for events in stream.chunks():
             for e in events:
                 if isinstance(e, BoardInfo) and info is None:
@@ -342,7 +342,7 @@ def spool_frames(stream: RecordingStream, spool_dir: str | None = None,
                     times_at, readings_at = spool.append(t_s, _int32(e, stream.path))
                     held.setdefault(width, _Runs(width)).add(times_at, readings_at, t_s)
                 elif isinstance(e, FrameBlock):
-                    width = e.channels  # an empty block still says the width (as `read_frames`)
+                    width = e.channels  # an empty block still says the width (as `Recording.arrays()`)
         runs = held.get(width, _Runs(width)) if width is not None else _Runs(0)
         marks = list(stream.marks) if stream.is_csv else []
         return FrameSpool(stream.path, stream.names, marks, stream.truncated, info, spool, runs, piece_frames)

@@ -17,8 +17,8 @@ from processing.frame_source import FrameSource
 
 def untouched_extremes(source: FrameSource, stretches: Sequence[Sequence[tuple[int, int]]]
                        ) -> list[tuple[int, int] | None]:
-    """Per channel, (lowest, highest) reading in the frames outside its [start, stop) touches (as
-    `tuning._untouched_readings`: a touch's stop past the end is clipped), None when it has none. One list
+    """Per channel, (lowest, highest) reading in the frames outside its [start, stop) touches (a touch's
+    stop past the end is clipped), None when it has none. One list
     of touches per channel of the source; a touch must not start before frame 0."""
     if len(stretches) != source.width:
         raise ValueError(f"one list of touches per channel: {len(stretches)} lists for {source.width} "

@@ -68,6 +68,10 @@ class Frames(Protocol):
     def rate_hz(self) -> float | None: ...
 
 
+class SourceFrames(FrameSource, Frames, Protocol):
+    """Frames served in passes that also say what `Frames` says (`processing.frame_spool.FrameSpool`)."""
+
+
 @dataclass(frozen=True)
 class KeyTouches:
     """Where one key was touched (`stretches`, [start, stop) frames) and how many frames its figures rest
@@ -176,25 +180,25 @@ def first_pass(source: FrameSource, rate_hz: float, learn: bool) -> tuple[RowSto
     return medians.finish(), w, learned
 
 
-def _source_of(rec: Recording | FrameSource, piece_frames: int) -> FrameSource:
+def _source_of(rec: Recording | SourceFrames, piece_frames: int) -> FrameSource:
     if isinstance(rec, Recording):
         t_s, _, readings = rec.arrays()
         return ArraySource(t_s, readings, piece_frames)
     return rec
 
 
-def tune_recording(rec: Recording | FrameSource, base: Profile | None = None,
+def tune_recording(rec: Recording | SourceFrames, base: Profile | None = None,
                    bounds: VerdictBounds | None = None, *, piece_frames: int = PIECE_FRAMES,
                    **select_kw: int) -> TuneResult:
     """Every key of `rec` measured and tuned: a `Recording` in memory (gone through in pieces of
-    `piece_frames`), or a `FrameSource` that also answers what `Frames` asks
-    (`processing.frame_spool.FrameSpool`, what `padtune tune` reads a file into). `select_kw` sets the
+    `piece_frames`), or frames in passes that also answer what `Frames` asks (`SourceFrames`:
+    `processing.frame_spool.FrameSpool`, what `padtune tune` reads a file into). `select_kw` sets the
     exact selections' memory (`processing.order_stats.select`)."""
     source = _source_of(rec, piece_frames)
-    meta: Frames = rec  # type: ignore[assignment]
+    meta: Frames = rec
     if source.frames < MIN_FRAMES:
-        raise UserError(f"{meta.path}: only {source.frames} frames; record at least a few seconds with each "
-                        "key touched")
+        got = f"{source.frames} frame{'' if source.frames == 1 else 's'}"
+        raise UserError(f"{meta.path}: only {got}; record at least a few seconds with each key touched")
     rate_hz = meta.rate_hz or 100.0
     profile = base_profile(meta, base)
     info = meta.info
