@@ -57,17 +57,9 @@ class WindowMedians:
         return self.out
 
 
-def rolling_low(medians: np.ndarray, half: int) -> np.ndarray:
-    """Each row's column-wise minimum over the rows within `half` of it (fewer at the ends)."""
-    if not len(medians):
-        return medians
-    padded = np.pad(medians, ((half, half), (0, 0)), constant_values=np.inf)
-    view = np.lib.stride_tricks.sliding_window_view(padded, 2 * half + 1, axis=0)
-    return view.min(axis=-1)
-
-
 def rolling_low_rows(medians: RowStore, sign: np.ndarray, half: int, out: RowStore) -> RowStore:
-    """`rolling_low(medians * sign, half)` a block of rows at a time, into `out`."""
+    """Each row of `medians * sign`, column by column, replaced by the lowest of the rows within `half` of
+    it (fewer at the ends), a block of rows at a time, into `out`."""
     n = len(medians)
     for a in range(0, n, ROWS_AT_ONCE):
         b = min(a + ROWS_AT_ONCE, n)

@@ -11,7 +11,7 @@ threshold that lets the engine's baseline creep under a finger cannot shrink the
 `choose_keys` reads which keys to capture from what a user typed (numbers, ranges, names, a group's
 name); `key_ranges` writes a set of keys back in the same words.
 
-`processing.stretches.find_touches` does the same job on a recording.
+`processing.touch_search` does the same job on a recording.
 """
 
 from __future__ import annotations
@@ -178,7 +178,7 @@ class KeyCapture:
 
 # Frames before a disturbance's first clear frame that still count as touched when a hands-off stretch
 # is cut short: a finger approaching moves the counts before it clears 8 sigmas. The same 0.3 s guard
-# `processing.stretches.find_touches` keeps around touches (common practice, no source).
+# `processing.touch_search` keeps around touches (common practice, no source).
 DISTURB_GUARD_S = 0.3
 
 

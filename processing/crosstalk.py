@@ -23,7 +23,7 @@ Pure numpy, no I/O.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Iterable, Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -126,50 +126,6 @@ def during_touches(deltas: np.ndarray, touched: np.ndarray, targets: Iterable[in
             if target != source:
                 out[(source, target)] = np.asarray(deltas[rows, target])
     return out
-
-
-def alone_frames(stretches: Sequence[Sequence[tuple[int, int]]], frames: int) -> dict[int, np.ndarray]:
-    """Source key -> the frames (indices, ascending) where it was the only key touched, from each key's
-    [start, stop) touches; keys never touched alone are left out. One counter per frame, no frames x keys
-    mask."""
-    count = np.zeros(frames, np.int32)
-    who = np.zeros(frames, np.int32)
-    for c, runs in enumerate(stretches):
-        mine = np.zeros(frames, bool)
-        for a, b in runs:
-            mine[a:b] = True
-        count += mine
-        who[mine] = c
-    at = np.flatnonzero(count == 1)
-    keys = who[at]
-    return {int(s): at[keys == s] for s in np.unique(keys)}
-
-
-def couplings_by_key(column: Callable[[int], np.ndarray], stretches: Sequence[Sequence[tuple[int, int]]],
-                     frames: int, zero_of: Callable[[int, np.ndarray], float],
-                     thresholds: Mapping[int, float | None],
-                     sliders: Iterable[SliderSpec] = ()) -> list[Coupling]:
-    """`couplings(untouched, during_touches(deltas, touched), ...)` without a frames x keys array: each
-    key's deltas are asked for once (`column(c)`, frames long), the touched frames come as each key's
-    [start, stop) stretches, a key's zero from `zero_of(c, its deltas)` (`untouched_zero` of its untouched
-    ones), and each pair's frames are reduced to their median at once. The same couplings in the same
-    order; memory is one key's trace and the frames where a key was touched alone."""
-    rows = alone_frames(stretches, frames)
-    neighbours = slider_of(sliders)
-    width = len(stretches)
-    found: dict[tuple[int, int], Coupling] = {}
-    for target in range(width):
-        sources = [s for s in rows if s != target and len(rows[s]) >= MIN_FRAMES]
-        if not sources:
-            continue
-        col = column(target)
-        zero = zero_of(target, col)
-        for s in sources:
-            values = col[rows[s]]
-            found[(s, target)] = Coupling(s, target, float(np.median(values)) - zero, len(values),
-                                          thresholds.get(target), neighbours.get((s, target)))
-    ordered = [found[(s, t)] for s in rows for t in range(width) if (s, t) in found]  # as `during_touches`
-    return sorted(ordered, key=largest_first)
 
 
 def worst_by_target(found: Sequence[Coupling]) -> dict[int, Coupling]:

@@ -1,4 +1,4 @@
-"""Crosstalk measured a pass at a time: `processing.crosstalk.couplings_by_key` without a frames-long array.
+"""Crosstalk measured a pass at a time, without a frames-long array (the rule of `processing.crosstalk`).
 
 The same couplings, float for float and in the same order, from passes over every key's delta
 (`processing.frame_source.DeltaPasses`) instead of whole traces: each target's zero (the median of its
@@ -55,13 +55,14 @@ def _passes_over(deltas: DeltaPasses, ranges: Sequence[Ranges], queries: Sequenc
 def couplings_streaming(deltas: DeltaPasses, stretches: Sequence[Sequence[tuple[int, int]]], frames: int,
                         quiet: Sequence[tuple[int, int]], thresholds: Mapping[int, float | None],
                         sliders: Iterable[SliderSpec] = (), **select_kw: int) -> list[Coupling]:
-    """What `couplings_by_key(lambda c: full[:, c], stretches, frames, lambda c, d:
-    untouched_zero(d[to_mask(quiet, frames)]), thresholds, sliders)` returns, `full` being every frame of
-    `deltas` (frames x keys, one key per stretch list): the same couplings, floats and order. `select_kw`
+    """`processing.crosstalk.couplings` of every key's deltas in the quiet frames and in the frames where
+    one other key alone was touched (those with at least `MIN_FRAMES`), `deltas` giving every frame
+    (frames x keys, one key per stretch list); the same couplings, floats and order as the whole-array
+    `couplings_by_key` of tests/processing/tune_reference.py. `select_kw`
     goes to `processing.order_stats.select` (`budget_values`, `bins`)."""
     width = len(stretches)
     by_source = alone(stretches, frames)
-    sources = sorted(s for s, r in by_source.items() if count(r) >= MIN_FRAMES)  # as `alone_frames` orders
+    sources = sorted(s for s, r in by_source.items() if count(r) >= MIN_FRAMES)  # sources in key order
     pairs = [(s, t) for s in sources for t in range(width) if t != s]
     if not pairs:
         return []

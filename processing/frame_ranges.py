@@ -98,7 +98,7 @@ def take(values: np.ndarray, start: int, ranges: Sequence[tuple[int, int]]) -> n
 def alone(stretches: Sequence[Sequence[tuple[int, int]]], frames: int) -> dict[int, Ranges]:
     """Key -> the frames where it was the only key touched, from each key's [start, stop) touches (a sweep
     over the touches' ends: no frames-long array). Keys never touched alone are left out. The same frames as
-    `processing.crosstalk.alone_frames`, as ranges."""
+    a per-frame counter of touched keys gives (`alone_frames` in tests/processing/tune_reference.py)."""
     events: list[tuple[int, int, int]] = []  # (frame, +1 start / -1 stop, key)
     for key, runs in enumerate(stretches):
         for a, b in normalised(runs, frames):

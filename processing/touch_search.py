@@ -1,7 +1,7 @@
-"""Where each key was touched in a recording, found by passes over its deltas: `processing.stretches.
-find_touches` in bounded memory.
+"""Where each key was touched in a recording, found by passes over its deltas, in bounded memory.
 
-The rule is `find_touches`'s, and so are the answers (the tests hold them equal): touches from the
+The rule is that of the whole-array `find_touches` (tests/processing/tune_reference.py), and so are the
+answers (the tests hold them equal): touches from the
 recording's marks when it has touch marks; without, each key's touched stretches are the frames well above
 its untouched spread, judged from the median, the MAD and the 99.5th percentile of its whole delta trace.
 Those three are exact order statistics of a trace that is never held: `processing.order_stats` finds them
@@ -134,7 +134,7 @@ def trimmed(runs: Ranges, trim: int) -> Ranges:
 
 def find_touches_streaming(b: Baselines, names: Sequence[str], rate_hz: float, marks: Sequence[Mark] = (),
                            min_touch_s: float = 0.1, **select_kw: int) -> Touches:
-    """Every key's touches and the quiet frames (the rule of `processing.stretches.find_touches`)."""
+    """Every key's touches and the quiet frames (see the module's docstring)."""
     n, width = b.frames, b.width
     to_frames = b.source.times_to_frames
     marked = marked_stretches(marks, names, to_frames)

@@ -331,8 +331,8 @@ async def test_the_keys_are_chosen_from_a_list_or_typed_and_a_mistake_is_one_lin
 
 async def test_a_restarted_hands_off_step_writes_balanced_marks_read_back_from_the_recording(tmp_path):
     from processing.recording import read_recording
-    from processing.stretches import find_touches
     from tests.headless.helpers import json_lines, padtune
+    from tests.processing.tune_reference import find_touches
 
     app, feed, clock = sim_app()
     path = tmp_path / "restarted.csv"

@@ -8,8 +8,9 @@ from rich.console import Console
 
 from processing.capture import QUIET, RELEASE, TOUCH, CaptureWizard
 from processing.recording import Mark
-from processing.stretches import estimate_baseline, find_touches, key_figures
+from processing.stretches import key_figures
 from protocol.events import FrameBlock
+from tests.processing.tune_reference import estimate_baseline, find_touches
 from tui.render.histogram import DeltaHistogram, bar_row, bin_counts
 
 RATE_HZ = 100.0

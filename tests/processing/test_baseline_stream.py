@@ -1,5 +1,5 @@
 """Streaming baselines and deltas (processing.baseline_stream) against the whole-array implementation
-(processing.stretches: `_baseline_knots` and `_KeyDelta`, the plain reference it must equal bit for bit)
+(tests/processing/tune_reference.py: `key_delta`, the plain reference it must equal bit for bit)
 and against numpy's own median and interpolation on a hand-made case."""
 
 from __future__ import annotations
@@ -10,7 +10,7 @@ import pytest
 import processing.baseline_stream as baseline_stream
 from processing.baseline_stream import baselines, window_frames
 from processing.frame_source import ArraySource
-from processing.stretches import _baseline_knots, _KeyDelta
+from tests.processing.tune_reference import key_delta
 
 
 def _readings(rng: np.random.Generator, frames: int, width: int) -> np.ndarray:
@@ -34,8 +34,7 @@ def test_deltas_equal_the_whole_array_ones(seed: int, monkeypatch: pytest.Monkey
     t_s = np.arange(frames) / rate_hz
     want = np.empty((frames, width))
     for c in range(width):
-        v = sign[c] * readings[:, c].astype(np.float64)
-        want[:, c] = _KeyDelta(readings, c, sign[c], _baseline_knots(v, rate_hz))()
+        want[:, c] = key_delta(readings, c, int(sign[c]), rate_hz)
     for piece_frames in (1, 3, int(rng.integers(2, 500)), 4096):
         b = baselines(ArraySource(t_s, readings, piece_frames), sign, rate_hz)
         got = np.concatenate([d for _, d in b.passes()])

@@ -1,8 +1,8 @@
 """Crosstalk a pass at a time (processing.crosstalk_stream) against the whole-array computation.
 
-The reference is `processing.crosstalk.couplings_by_key` on the whole delta array (its medians are
-numpy's `np.median`, its frames a numpy mask from `alone_frames`): the streaming couplings must be the
-same, field for field, floats compared bit for bit (`float.hex`), in the same order."""
+The reference is `couplings_by_key` (tests/processing/tune_reference.py) on the whole delta array (its
+medians are numpy's `np.median`, its frames a numpy mask from `alone_frames`): the streaming couplings
+must be the same, field for field, floats compared bit for bit (`float.hex`), in the same order."""
 
 from __future__ import annotations
 
@@ -11,10 +11,11 @@ from collections.abc import Iterator
 import numpy as np
 import pytest
 
-from processing.crosstalk import MIN_FRAMES, Coupling, couplings_by_key, untouched_zero
+from processing.crosstalk import MIN_FRAMES, Coupling, untouched_zero
 from processing.crosstalk_stream import couplings_streaming
 from processing.frame_ranges import to_mask
 from processing.slider import SliderSpec
+from tests.processing.tune_reference import couplings_by_key
 
 
 def _exactly(found: list[Coupling]) -> list[tuple]:

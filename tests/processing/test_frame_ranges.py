@@ -6,9 +6,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from processing.crosstalk import alone_frames
 from processing.frame_ranges import alone, complement, count, from_mask, normalised, take, to_mask, widened
 from processing.frame_source import ArraySource
+from tests.processing.tune_reference import alone_frames
 
 
 def _random_ranges(rng: np.random.Generator, frames: int, n: int) -> list[tuple[int, int]]:
