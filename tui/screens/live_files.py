@@ -250,6 +250,7 @@ class FileActions(Screen[None]):
             return
         self.app.exit()
 
+
 def not_written(job: FileJob, error: BaseException | None) -> str:
     """Why a file job failed, in one line; the file it would have replaced is unchanged."""
     if isinstance(error, UserError):
