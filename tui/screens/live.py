@@ -6,9 +6,9 @@ is selected with a `ChannelTable.Highlighted` message. Data flows down: a timer 
 comes in, polling the `LiveSource` twice a screen frame and handing each widget its snapshot inside one
 `batch_update` once a frame (about 20 Hz), or at once after a detection (tui/pacing.py); the link's
 reader thread never waits for the screen, and a slow frame only makes the timer skip a tick. Edits go
-through an `Editor` (tui/editor.py), whose results become log lines and notices; profiles and exports
-are written by a thread worker, one at a time (tui/files.py), and the screen says how it went when it
-is done.
+through an `Editor` (tui/editor.py), whose results become log lines and notices. The keys that read and
+write files (recording, profile, export) and quitting with unsaved edits are `FileActions`
+(tui/screens/live_files.py), which the screen inherits; their bindings are here with the others.
 """
 
 from __future__ import annotations
@@ -17,10 +17,8 @@ import gc
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import replace
-from pathlib import Path
 from typing import ClassVar
 
-from rich.markup import escape
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
@@ -28,7 +26,6 @@ from textual.notifications import SeverityLevel
 from textual.reactive import reactive
 from textual.screen import Screen
 from textual.widgets import Footer
-from textual.worker import Worker, WorkerState
 
 from processing.measure import ChannelQuality
 from processing.settings import ChannelSettings
@@ -38,14 +35,14 @@ from protocol.events import BoardChanged
 from protocol.printable import printable
 from tui.editor import Editor, EditResult, Outcome
 from tui.fields import EDIT_FIELDS, FROM_NOISE, NO_RATE, POLARITY_KEY, TIME_KEYS, field, polarity_word
-from tui.files import FileQueue, ReplaceOnce, new_recording_path, writable_path
+from tui.files import FileQueue
 from tui.log_feed import LogFeed
 from tui.pacing import FramePacer
 from tui.render.views import LinkView, LongView, Spectrum
 from tui.screens.board_diff import BoardDiffScreen
-from tui.screens.confirm import ConfirmScreen, QuitChoice, QuitScreen
+from tui.screens.live_files import FileActions
 from tui.screens.prompt import PromptScreen
-from tui.source import FileJob, LiveSource, Tick
+from tui.source import LiveSource, Tick
 from tui.widgets.channel_table import ChannelTable
 from tui.widgets.detail_panel import ZOOM_KEYS, DetailPanel
 from tui.widgets.edit_bar import EditBar, EditBarView
@@ -111,8 +108,9 @@ BINDINGS: list[Binding] = [
 ]
 
 
-class LiveScreen(Screen[None]):
-    """The live view of one `LiveSource`. `ui_hz=0` turns the timer off (tests call `refresh_now`)."""
+class LiveScreen(FileActions, Screen[None]):
+    """The live view of one `LiveSource`. `ui_hz=0` turns the timer off (tests call `refresh_now`). Its
+    recording, profile, export and quit actions are `FileActions`' (tui/screens/live_files.py)."""
 
     BINDINGS: ClassVar = BINDINGS
     AUTO_FOCUS = "ChannelTable"
@@ -130,13 +128,12 @@ class LiveScreen(Screen[None]):
         self.source, self.ui_hz, self.clock = source, ui_hz, clock
         self.editor = Editor(source)
         self.feed = LogFeed(clock)
-        self.files = FileQueue()
+        self.files = FileQueue()  # written by FileActions' thread workers
         self.held: set[int] = set()  # simulated keys held down from the keyboard
         self.frames_drawn = 0
         self._ticks = 0  # screen frames drawn or skipped while paused
         self._pacer = FramePacer(ui_hz or 1.0, POLLS_PER_FRAME)
         self._spectrum_cache: tuple[int, float, Spectrum | None] | None = None
-        self._quit_when_written = False
         self._state = "new"  # "mounted" once its widgets are styled and can draw, then "closed"
         self.link_strip = LinkStrip(id="link")
         self.table = ChannelTable(id="table")
@@ -518,211 +515,3 @@ class LiveScreen(Screen[None]):
 
     def action_hold_number(self, ch: int) -> None:
         self._press(ch, ch not in self.held)
-
-    # -- recording --------------------------------------------------------------------------------
-    def action_toggle_recording(self) -> None:
-        if self.source.link_view().recording:
-            try:
-                path = self.source.stop_recording()
-            except UserError as exc:  # its last rows could not be written (a full disk)
-                self.say(str(exc), severity="error", timeout=10)
-                self._log(f"✗ recording stopped: {exc}")
-            else:
-                self.say(f"Recording saved to {path}")
-                self._log(f"recording stopped: {path}")
-            self._after_change()
-            return
-
-        def done(text: str | None) -> None:
-            if not text:
-                return
-            path = Path(text).expanduser().resolve()
-            try:
-                self.source.start_recording(path)
-            except UserError as exc:
-                self.say(str(exc), severity="error")
-                return
-            self._log(f"recording to {path}")
-            self._after_change()
-
-        default = time.strftime("padtune-%Y%m%d-%H%M%S.csv")
-        self.app.push_screen(PromptScreen("Record to file:", default, new_recording_path), done)
-
-    def action_mark(self) -> None:
-        if not self.source.link_view().recording:
-            self.say("Not recording: press r to start a recording first.", severity="warning")
-            return
-        names = self.source.channel_names()
-        text = f"mark at {names[self.cursor]}" if names else "mark"
-        if self.source.mark("note", text=text):
-            self._log(text)
-
-    # -- profile and export -----------------------------------------------------------------------
-    def action_save(self) -> None:
-        self._save(then_quit=False)
-
-    def _save(self, then_quit: bool, asked: bool = False) -> None:
-        if not asked and self._ask_unmeasured(lambda: self._save(then_quit, asked=True)):
-            return
-        if self.source.profile_path() is None:
-            self._save_as(then_quit, asked=True)
-            return
-        try:
-            job = self.source.save_job()
-        except UserError as exc:
-            self.say(str(exc), severity="error")
-            return
-        self._write(job, then_quit)
-
-    def action_save_as(self) -> None:
-        self._save_as(then_quit=False)
-
-    def _ask_unmeasured(self, save: Callable[[], None]) -> bool:
-        """Keys newly marked not measured (a guided capture left them without a suggestion) are named
-        and the save waits for a yes (True: asked; `save` runs on yes)."""
-        news = getattr(self.source, "unmeasured_news", lambda: [])()
-        if not news:
-            return False
-        keys = escape(", ".join(printable(n) for n in news))
-        question = (f"Not measured: {keys}. Save them with the settings they have, marked measured = false "
-                    "(not tuned)?")
-        self.app.push_screen(ConfirmScreen(question, yes="save, marked", no="do not save"),
-                             lambda yes: save() if yes else self.say("Not saved."))
-        return True
-
-    def _save_as(self, then_quit: bool, asked: bool = False) -> None:
-        if not asked and self._ask_unmeasured(lambda: self._save_as(then_quit, asked=True)):
-            return
-        current = self.source.profile_path()
-        default = str(current) if current else f"{self.source.link_view().board or 'board'}.toml"
-        replacing = ReplaceOnce("the old one is kept as .bak", current)
-        jobs: list[FileJob] = []
-
-        def check(text: str) -> str | None:
-            reason = writable_path(text) or replacing(text)
-            if reason is None:
-                try:
-                    jobs.append(self.source.save_job(Path(text).expanduser().resolve()))
-                except UserError as exc:
-                    reason = str(exc)
-            return reason
-
-        def done(text: str | None) -> None:
-            if text is not None and jobs:
-                self._write(jobs[-1], then_quit)
-
-        question = "Save the profile, then quit, as:" if then_quit else "Save the profile as:"
-        self.app.push_screen(PromptScreen(question, default, check), done)
-
-    def action_load(self) -> None:
-        def ask() -> None:
-            def check(text: str) -> str | None:
-                path = Path(text).expanduser().resolve()
-                try:
-                    self.source.load(path)
-                except (UserError, OSError) as exc:
-                    return str(exc)
-                self.editor.forget()
-                self._log(f"profile loaded from {path}")
-                self._after_change()
-                return None
-
-            current = str(self.source.profile_path() or "")
-            self.app.push_screen(PromptScreen("Load the profile from:", current, check))
-
-        if not self.source.unsaved():
-            ask()
-            return
-        self.app.push_screen(ConfirmScreen("Loading another profile drops your unsaved edits. Load anyway?"),
-                             lambda yes: ask() if yes else None)
-
-    def action_export(self) -> None:
-        current = self.source.profile_path()
-        default = str(current.with_suffix(".h")) if current else "padtune_keys.h"
-        replacing = ReplaceOnce("it will be replaced")
-        jobs: list[FileJob] = []
-
-        def check(text: str) -> str | None:
-            reason = writable_path(text) or replacing(text)
-            if reason is None:
-                try:
-                    jobs.append(self.source.export_job(Path(text).expanduser().resolve()))
-                except UserError as exc:
-                    reason = str(exc)
-            return reason
-
-        def done(text: str | None) -> None:
-            if text is not None and jobs:
-                self._write(jobs[-1])
-
-        self.app.push_screen(PromptScreen("Export for firmware to (.h for a C header, .json for JSON):",
-                                          default, check), done)
-
-    # -- writing files off the UI thread ----------------------------------------------------------
-    def _write(self, job: FileJob, then_quit: bool = False) -> None:
-        """Queue a file job; it runs in a thread worker once the one before it is done."""
-        self._quit_when_written = self._quit_when_written or then_quit
-        start = self.files.submit(job)
-        if start is not None:
-            self._start(start)
-        self.link_strip.show(self._link_view())
-
-    def _start(self, job: FileJob) -> None:
-        self.run_worker(job.write, name=job.what, group="files", thread=True, exit_on_error=False)
-
-    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
-        if event.worker.group != "files" or event.state not in (WorkerState.SUCCESS, WorkerState.ERROR,
-                                                                WorkerState.CANCELLED):
-            return
-        job = self.files.running
-        if job is not None and event.state is WorkerState.SUCCESS:
-            job.done()
-            self._log(f"{job.what} written to {job.path}")
-            self.say(f"{job.what[0].upper()}{job.what[1:]} written to {job.path}")
-        elif job is not None:
-            reason = not_written(job, event.worker.error)
-            self._log(f"✗ {reason}")
-            self.say(reason, severity="error", timeout=10)
-            self._quit_when_written = False  # stay: the edits are still here, and the old file too
-        following = self.files.finished()
-        if following is not None:
-            self._start(following)
-        elif self._quit_when_written:
-            self.app.exit()
-        self._after_change()
-
-    # -- quitting ---------------------------------------------------------------------------------
-    def request_quit(self) -> None:
-        """Quit, asking first when there are unsaved edits; a file being written is finished first."""
-        if isinstance(self.app.screen, QuitScreen):
-            return
-        if not self.source.unsaved():
-            self._exit_when_written()
-            return
-
-        def answer(choice: QuitChoice | None) -> None:
-            if choice == "save":
-                self._save(then_quit=True)
-            elif choice == "discard":
-                self._exit_when_written()
-
-        self.app.push_screen(QuitScreen("There are unsaved edits."), answer)
-
-    def _exit_when_written(self) -> None:
-        if self.files.busy:
-            self._quit_when_written = True
-            self.say("Quitting once the file being written is complete.")
-            return
-        self.app.exit()
-
-
-def not_written(job: FileJob, error: BaseException | None) -> str:
-    """Why a file job failed, in one line; the file it would have replaced is unchanged."""
-    if isinstance(error, UserError):
-        lines = str(error).splitlines() or [f"{job.path}: not written"]
-        more = f" (and {plural(len(lines) - 1, 'other problem')})" if len(lines) > 1 else ""
-        return f"{job.what} not written: {lines[0]}{more}"
-    if isinstance(error, OSError):
-        return (f"{job.what} not written to {job.path}: {error.strerror or error}; "
-                "the previous file is unchanged")
-    return f"{job.what} not written to {job.path}: {type(error).__name__}: {error}"
