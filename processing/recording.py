@@ -35,8 +35,9 @@ A recording is a text file, one line per row, LF endings:
 A file that does not start with the format line is read as a raw capture of protocol v1 lines and fed
 through `protocol.decoder.Decoder`, with times made up from the frame count and the board's rate.
 This module owns the format and writes it; `processing.recording_format` holds the names and types the
-writer and the reader share, `processing.recording_read` reads. No Textual import, no threads, no ports:
-the front ends write through a writer thread of their own (`tui.recorder`).
+writer and the reader share, `processing.recording_parse` parses and `processing.recording_read` reads
+files. No Textual import, no threads, no ports: the front ends write through a writer thread of their own
+(`tui.recorder`).
 """
 
 from __future__ import annotations
@@ -50,15 +51,12 @@ from pathlib import Path
 from urllib.parse import quote
 
 # The format's shared names and the reader are part of this module's API too (`read_recording` and
-# `Mark` are usually imported from here); the reader imports only `recording_format`, so no cycle.
+# `Mark` are usually imported from here); the reader (`recording_read` over `recording_parse`) imports
+# only `recording_format` of the format's modules, so no cycle.
 from processing.atomic import NotRegularFile, open_regular, refuse_non_regular
 from processing.recording_format import FORMAT_LINE, FORMAT_PREFIX, HEADER_START, MARK_KINDS, Mark, Recording
-from processing.recording_read import (
-    info_from_fields,
-    parse_raw_capture,
-    parse_recording_text,
-    read_recording,
-)
+from processing.recording_parse import info_from_fields, parse_raw_capture, parse_recording_text
+from processing.recording_read import read_recording
 from protocol.errors import UserError
 from protocol.events import (
     Answer,

@@ -2,8 +2,9 @@
 `Recording` types.
 
 The format itself is described in `processing.recording` (README, "Recordings"). Its writer
-(`processing.recording`) and its reader (`processing.recording_read`) both import from here and the
-reader imports nothing of the writer, so the two never import each other.
+(`processing.recording`) and its reader (`processing.recording_parse`, with the file shell
+`processing.recording_read`) both import from here and the reader imports nothing of the writer, so the
+two never import each other.
 """
 
 from __future__ import annotations

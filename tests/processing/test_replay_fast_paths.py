@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 from processing.detections import KeyState
 from processing.measure import Measures
 from processing.recording import FORMAT_LINE, Mark, read_recording
-from processing.recording_read import _float_rows, _whole_rows, check_rows, parse_recording_text
+from processing.recording_parse import _float_rows, _whole_rows, check_rows, parse_recording_text
 from protocol.errors import UserError
 from tui.headless.runner import MarkIndex
 
