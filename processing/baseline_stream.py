@@ -30,6 +30,21 @@ def window_frames(rate_hz: float, window_s: float = WINDOW_S) -> int:
 ROWS_AT_ONCE = 4096  # baseline points worked on at a time (the rolling minimum's blocks)
 
 
+def interpolate(x: np.ndarray, xp: np.ndarray, fp: np.ndarray) -> np.ndarray:
+    """`np.interp(x, xp, fp[:, k])` for every column k at once, bit for bit: numpy's own steps (its
+    compiled `interp`: the interval by bisection, slope = (fp[j+1] - fp[j]) / (xp[j+1] - xp[j]), value =
+    slope * (x - xp[j]) + fp[j]; fp[0] left of xp[0], fp[-1] at and right of xp[-1]) over a 2-D `fp`.
+    `xp` strictly increasing, at least two points, finite values."""
+    j = np.clip(np.searchsorted(xp, x, side="right") - 1, 0, len(xp) - 2)
+    slope = (fp[1:] - fp[:-1]) / (xp[1:] - xp[:-1])[:, None]
+    out = slope[j] * (x - xp[j])[:, None] + fp[j]
+    out[x < xp[0]] = fp[0]
+    out[x >= xp[-1]] = fp[-1]
+    at = x == xp[j]  # a frame on a point takes the point's value (numpy's rule: no 0 * slope)
+    out[at] = fp[j[at]]
+    return out
+
+
 class WindowMedians:
     """Column medians of consecutive `window`-frame windows of frames x keys readings fed in any cuts,
     appended to `out` (a `RowStore`) as they are taken."""
@@ -100,25 +115,24 @@ class Baselines:
         at = np.arange(first, last + 1)
         return np.minimum(at * w + w / 2, n - 1), self.low.read(first, last + 1)
 
-    def baseline(self, start: int, stop: int, key: int,
-                 points: tuple[np.ndarray, np.ndarray] | None = None) -> np.ndarray:
-        """Key `key`'s baseline at frames [start, stop), as `_Knots.at_every_frame()` gives it."""
-        centres, low = points if points is not None else self.points(start, stop)
+    def baseline(self, start: int, stop: int, keys: Sequence[int] | None = None) -> np.ndarray:
+        """Frames x keys baselines at frames [start, stop) (every key, or `keys` in that order), each what
+        `np.interp(frames, centres, low)` of all the points gives (`interpolate`)."""
+        centres, low = self.points(start, stop)
+        low = low if keys is None else low[:, list(keys)]
         if len(self.low) > 1:
-            return np.interp(np.arange(start, stop), centres, low[:, key])
-        return np.full(stop - start, low[0, key] if len(low) else 0.0)
+            return interpolate(np.arange(start, stop, dtype=np.float64), centres, low)
+        return np.broadcast_to(low[0] if len(low) else np.zeros(low.shape[1]), (stop - start, low.shape[1]))
 
     def deltas(self, start: int, readings: np.ndarray, keys: Sequence[int] | None = None) -> np.ndarray:
         """Frames x keys deltas (float64, touch positive) of readings whose first frame is `start`; with
-        `keys`, only those keys' columns, in that order."""
-        keys = range(readings.shape[1]) if keys is None else keys
-        out = np.empty((len(readings), len(keys)), np.float64)
-        stop = start + len(readings)
-        points = self.points(start, stop)
-        for i, key in enumerate(keys):
-            v = self.sign[key] * readings[:, key].astype(np.float64)
-            out[:, i] = v - self.baseline(start, stop, key, points) + 0.0  # never -0.0 (see `_KeyDelta`)
-        return out
+        `keys`, only those keys' columns, in that order. + 0.0: a delta is never -0.0 (a zero reading of a
+        falling key less a zero baseline), so a median of zeros never depends on where a partition put it."""
+        cols = readings if keys is None else readings[:, list(keys)]
+        sign = self.sign if keys is None else self.sign[list(keys)]
+        v = cols.astype(np.float64) * sign.astype(np.float64)
+        return v - self.baseline(start, start + len(readings), keys) + 0.0
+
     def passes(self, keys: Sequence[int] | None = None) -> Iterator[DeltaPiece]:
         """A fresh pass over every key's delta (or only `keys`' columns), a piece at a time: called with
         no argument, a `DeltaPasses`."""

@@ -78,3 +78,20 @@ def test_points_kept_on_disk_beside_a_spool_read_back_as_written(tmp_path) -> No
             assert np.array_equal(disk.read(a, b), memory.read(a, b))
     finally:
         files.close()
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_interpolating_every_key_at_once_is_numpys_interp_bit_for_bit(seed: int) -> None:
+    # numpy.interp, one column at a time, is the reference; the frames fall before, on, between and after
+    # the points, and the points' values are half-integers (medians of counts) or arbitrary floats.
+    from processing.baseline_stream import interpolate
+
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(2, 40))
+    xp = np.cumsum(rng.integers(1, 50, n)).astype(np.float64) + rng.choice([0.0, 0.5])
+    fp = rng.normal(0, 1e4, (n, 3)) if seed % 2 else np.rint(rng.normal(0, 1e4, (n, 3)) * 2) / 2
+    x = np.concatenate([np.arange(xp[0] - 5, xp[-1] + 5), xp]).astype(np.float64)
+    got = interpolate(x, xp, fp)
+    for k in range(3):
+        want = np.interp(x, xp, fp[:, k])
+        assert np.array_equal(got[:, k], want) and not (np.signbit(got[:, k]) ^ np.signbit(want)).any()

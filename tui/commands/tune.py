@@ -40,7 +40,9 @@ def register(sub: argparse._SubParsersAction) -> None:
         description="Measure noise and touch signal of every key in a recording (marks, or touches found "
         "in the data), suggest threshold, hysteresis and debounce with their reasons, write the profile "
         "and print a table. Keys without a usable touch keep their settings and say why; then nothing is "
-        "written and the exit code is 1, unless --partial writes them marked measured = false.")
+        "written and the exit code is 1, unless --partial writes them marked measured = false. A recording "
+        "of any length is measured in bounded memory: its frames are spooled to an unnamed temporary file "
+        "in TMPDIR (about 4 bytes per reading) while tune runs.")
     p.add_argument("file", metavar="FILE", help="recording (CSV) or raw capture of protocol lines")
     p.add_argument("-o", "--output", metavar="PROFILE", required=True,
                    help="profile TOML to write (a file; `-` is refused: the results table goes to standard "
