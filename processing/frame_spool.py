@@ -134,6 +134,18 @@ class FrameSpool:
             return float((self.frames - 1) / (last - first))
         return None
 
+    def step_rate_hz(self) -> float | None:
+        """The frame rate frame to frame: 1 / the median of each piece's median time step (one pass over
+        the times; None without two frames or steps). Beside `rate_hz` over the whole recording, it tells a
+        clock that jumped (or stood still) from a board's real rate."""
+        medians = []
+        for a in range(0, self.frames, self.piece_frames):
+            t_s = self._times(a, min(a + self.piece_frames, self.frames))
+            if len(t_s) > 1:
+                medians.append(float(np.median(np.diff(t_s))))
+        step = float(np.median(medians)) if medians else 0.0
+        return 1.0 / step if step > 0 and np.isfinite(step) else None
+
     def pieces(self) -> Iterator[Piece]:
         """A fresh pass over every frame, in regular pieces (fresh, writable arrays: int32 readings)."""
         for a in range(0, self.frames, self.piece_frames):

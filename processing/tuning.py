@@ -188,18 +188,19 @@ def _source_of(rec: Recording | SourceFrames, piece_frames: int) -> FrameSource:
 
 
 def tune_recording(rec: Recording | SourceFrames, base: Profile | None = None,
-                   bounds: VerdictBounds | None = None, *, piece_frames: int = PIECE_FRAMES,
-                   **select_kw: int) -> TuneResult:
+                   bounds: VerdictBounds | None = None, *, rate_hz: float | None = None,
+                   piece_frames: int = PIECE_FRAMES, **select_kw: int) -> TuneResult:
     """Every key of `rec` measured and tuned: a `Recording` in memory (gone through in pieces of
     `piece_frames`), or frames in passes that also answer what `Frames` asks (`SourceFrames`:
     `processing.frame_spool.FrameSpool`, what `padtune tune` reads a file into). `select_kw` sets the
-    exact selections' memory (`processing.order_stats.select`)."""
+    exact selections' memory (`processing.order_stats.select`). `rate_hz`: the board's frame rate when the
+    user gives it, else the recording's (`Frames.rate_hz`: its info line's, else measured), else 100 Hz."""
     source = _source_of(rec, piece_frames)
     meta: Frames = rec
     if source.frames < MIN_FRAMES:
         got = f"{source.frames} frame{'' if source.frames == 1 else 's'}"
         raise UserError(f"{meta.path}: only {got}; record at least a few seconds with each key touched")
-    rate_hz = meta.rate_hz or 100.0
+    rate_hz = rate_hz or meta.rate_hz or 100.0
     profile = base_profile(meta, base)
     info = meta.info
     polarity = tuple(info.polarity) if info and info.polarity else tuple(profile.polarity)

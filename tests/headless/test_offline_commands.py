@@ -394,3 +394,29 @@ def test_touch_marks_after_the_recordings_end_mark_nothing(tmp_path):
     keys = json.loads(out.stdout)["channels"]
     assert [k["touches"] for k in keys] == [1, 1] and all(k["measured"] for k in keys)
     assert (tmp_path / "r.html").stat().st_size > 0 and (tmp_path / "p.toml").exists()
+
+
+def test_a_clock_that_jumped_is_said_and_rate_sets_the_boards_rate(tmp_path):
+    # A recording whose info line states no rate, its host times 10 ms apart but for one jump of 1e6 s:
+    # measured over the whole recording that is 0.002 Hz, frame to frame 100 Hz. tune says so in one
+    # `padtune:` line, and --rate 100 tunes it at the board's rate.
+    from processing.recording import RecordingWriter
+    from protocol.events import BoardInfo, FrameBlock
+
+    n, rng = 2000, np.random.default_rng(4)
+    r = 1000 + rng.integers(-3, 4, (n, 2))
+    r[500:700, 0] += 300
+    r[1200:1400, 1] += 300
+    t_s = np.arange(n) / 100.0
+    t_s[1000:] += 1e6
+    info = BoardInfo(0.0, {}, proto=1, channels=2, rate_hz=None, names=("k0", "k1"), polarity=(1,))
+    path = tmp_path / "jump.csv"
+    with RecordingWriter(path, origin_t_s=0.0, clock=lambda: 0.0, source="test", info=info) as w:
+        w.write_events([info, FrameBlock(t_s, np.arange(n), r, 0)])
+    out = padtune("tune", str(path), "-o", str(tmp_path / "a.toml"), "--json", "--partial")
+    said = [line for line in out.stderr.splitlines() if "host times jump" in line]
+    assert len(said) == 1 and said[0].startswith("padtune:") and "100 Hz frame to frame" in said[0]
+    out = padtune("tune", str(path), "-o", str(tmp_path / "b.toml"), "--json", "--rate", "100")
+    assert out.returncode == 0, out.stderr
+    assert "host times jump" not in out.stderr and json.loads(out.stdout)["rate_hz"] == 100.0
+    assert all(k["measured"] for k in json.loads(out.stdout)["channels"])

@@ -53,7 +53,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="also write an HTML report with plots (a file; `-` is refused)")
     p.add_argument("--json", action="store_true", help="print the results as one JSON object")
     p.add_argument("--rate", metavar="HZ", type=frame_rate,
-                   help="frame rate of a raw capture without info line")
+                   help="the board's frame rate, for a raw capture without info line or a recording whose "
+                   "info gives none (else measured from its host times)")
     p.add_argument("--limits", action="store_true",
                    help="also set the profile's production limits from this recording of a good unit: "
                         "each channel's own baseline range and noise limits, one SNR floor (see README)")
@@ -94,7 +95,9 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _tune(args: argparse.Namespace, out: Path, rec: FrameSpool, base: Profile | None) -> int:
-    result = tune_recording(rec, base)
+    if args.rate is None:
+        _say_if_the_clock_jumped(rec)
+    result = tune_recording(rec, base, rate_hz=args.rate)
     if rec.truncated:  # measured without it: say so, as replay does
         warn_on_stderr(f"{printable(rec.path)}: the last line was cut short (the writer was stopped mid-row) "
                        "and was dropped; the rows before it were measured")
@@ -133,6 +136,19 @@ def _spooled(path: str, rate_hz: float | None) -> Iterator[FrameSpool]:
             raise UserError(f"{stream.where}: cannot read: {exc.strerror}") from None
     with spool:
         yield spool
+
+
+def _say_if_the_clock_jumped(rec: FrameSpool) -> None:
+    """A recording that states no rate is tuned at the rate its host times give over the whole recording;
+    when that is far from the rate frame to frame (the host's clock jumped or stood still), say so: the
+    debounces and the baseline's half-second windows would be counted at the wrong rate."""
+    if rec.info is not None and rec.info.rate_hz:
+        return
+    whole, step = rec.rate_hz, rec.step_rate_hz()
+    if whole and step and not 0.5 <= whole / step <= 2.0:
+        warn_on_stderr(f"{printable(rec.path)}: its host times jump: {whole:.4g} Hz over the whole "
+                       f"recording, {step:.4g} Hz frame to frame; tuned at {whole:.4g} Hz: give --rate HZ "
+                       "(the board's frame rate) to tune at that")
 
 
 def _same_file(a: str, b: str) -> bool:
