@@ -101,11 +101,13 @@ class KeySamples:
         asked = [(key, which) for key in range(self.width) for which in (0, 1) if counts[key][which]]
 
         def passes(active: Sequence[int]) -> Iterator[dict[int, np.ndarray]]:
-            for start, d in self.b.passes():
+            keys = sorted({asked[q][0] for q in active})  # the keys still asked for, no others
+            column = {key: i for i, key in enumerate(keys)}
+            for start, d in self.b.passes(keys):
                 out = {}
                 for q in active:
                     key, which = asked[q]
-                    got = frame_ranges.take(d[:, key], start, self._ranges(which, key))
+                    got = frame_ranges.take(d[:, column[key]], start, self._ranges(which, key))
                     if len(got):
                         out[q] = _rounded(got).astype(np.float64)
                 yield out

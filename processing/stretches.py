@@ -17,10 +17,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from processing.frame_ranges import Ranges
 from processing.recording import Mark
 from processing.suggest import Samples
-
-Ranges = list[tuple[int, int]]
 
 
 def expand_polarity(polarity: Sequence[int], channels: int) -> np.ndarray:

@@ -31,7 +31,7 @@ from tui.dash import refuse_dash
 from tui.headless.output import channel_table, make_console
 from tui.headless.ports import frame_rate, load_profile_arg, percentage, quiet_broken_pipe
 from tui.headless.runner import warn_on_stderr
-from tui.headless.tuning import CROSSTALK_RULE, couplings_of, crosstalk_rows, result_rows
+from tui.headless.tuning import CROSSTALK_RULE, crosstalk_rows, result_rows
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -175,8 +175,7 @@ def _say_unmeasured(missing: list[KeyResult], written: bool) -> None:
 def _show(args: argparse.Namespace, result: TuneResult, out: Path | None, truncated: bool = False) -> int:
     if args.json:
         limits = {k: getattr(result.profile.limits, k) for k in LIMIT_KEYS}
-        found = couplings_of(result)
-        rows = result_rows(result, found)
+        rows = result_rows(result)
         for row, c in zip(rows, range(len(rows)), strict=True):
             own = result.profile.limits_for(c)
             row["limits"] = {k: getattr(own, k) for k in LIMIT_KEYS}  # type: ignore[typeddict-unknown-key]
@@ -185,7 +184,7 @@ def _show(args: argparse.Namespace, result: TuneResult, out: Path | None, trunca
                                      "from_marks": result.from_marks, "rate_hz": result.rate_hz,
                                      "frames": result.frames, "truncated": truncated, "limits": limits,
                                      "unmeasured": [k.name for k in result.unmeasured()],
-                                     "channels": rows, "crosstalk": crosstalk_rows(result, found)}) + "\n")
+                                     "channels": rows, "crosstalk": crosstalk_rows(result)}) + "\n")
     else:
         print_result(result, out)
     return 0
@@ -194,8 +193,7 @@ def _show(args: argparse.Namespace, result: TuneResult, out: Path | None, trunca
 def print_result(result: TuneResult, out: Path | None) -> None:
     console = make_console()
     plain = not console.is_terminal
-    found = couplings_of(result)
-    rows = [dict(row, measured="yes" if row["measured"] else "NO") for row in result_rows(result, found)]
+    rows = [dict(row, measured="yes" if row["measured"] else "NO") for row in result_rows(result)]
     columns = [("name", "key"), ("measured", "measured"), ("touches", "touches"), ("noise_pp", "noise pp"),
                ("noise_rms", "noise rms"), ("noise_touched_pp", "touched pp"), ("crosstalk_pct", "xtalk %"),
                ("signal", "signal"), ("snr_pp", "SNR pp"), ("snr_rms", "SNR rms"), ("verdict", "verdict"),
@@ -213,7 +211,7 @@ def print_result(result: TuneResult, out: Path | None) -> None:
         for key, reason in row["reasons"].items():
             console.print(f"{row['name']} {key}: {reason}")
     neighbours: dict[str, list[str]] = {}
-    for x in crosstalk_rows(result, found):
+    for x in crosstalk_rows(result):
         if x["flagged"]:
             console.print(f"crosstalk flagged: touching {x['source']} moves {x['target']} by {x['shift']:+g} "
                           f"counts, {x['share_pct']:g}% of its threshold")

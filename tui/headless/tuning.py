@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from typing import TypedDict
 
-from processing.crosstalk import FLAG_SHARE, Coupling, worst_by_target
+from processing.crosstalk import FLAG_SHARE, worst_by_target
 from processing.measure import rests_on
 from processing.suggest import Refusal, Suggestion
 from processing.tuning import TuneResult
@@ -54,21 +54,14 @@ class CrosstalkRow(TypedDict):
     slider: str | None  # the slider both are pads of (slider neighbours: shown, never flagged)
 
 
-def couplings_of(result: TuneResult) -> list[Coupling]:
-    """Crosstalk in a tuned recording (measured with it: `processing.crosstalk_stream`): each key's deltas
-    in the frames where one other key alone was touched, against the median of its own untouched deltas,
-    as a share of its threshold after tuning; pads of one of the profile's sliders are slider neighbours."""
-    return result.couplings
-
-
-def crosstalk_rows(result: TuneResult, found: list[Coupling] | None = None) -> list[CrosstalkRow]:
+def crosstalk_rows(result: TuneResult) -> list[CrosstalkRow]:
     """The crosstalk table, the largest share first (only pairs measured: one key alone touched)."""
     names = [k.name for k in result.keys]
     return [{"pair": f"{names[c.source]} > {names[c.target]}", "source": names[c.source],
              "target": names[c.target], "shift": round(c.shift_counts, 1),
              "share_pct": None if c.share is None else round(100 * c.share, 1), "frames": c.frames,
              "flagged": c.flagged(), "slider": c.slider}
-            for c in (couplings_of(result) if found is None else found)]
+            for c in result.couplings]
 
 
 CROSSTALK_RULE = (f"crosstalk: touching one key alone moves another by its median delta then, less its own "
@@ -77,10 +70,10 @@ CROSSTALK_RULE = (f"crosstalk: touching one key alone moves another by its media
                   "(the slider working), shown but not flagged")
 
 
-def result_rows(result: TuneResult, found: list[Coupling] | None = None) -> list[KeyRow]:
+def result_rows(result: TuneResult) -> list[KeyRow]:
     """One plain dict per key: what the table, the JSON and the report show."""
     rows: list[KeyRow] = []
-    worst = worst_by_target(couplings_of(result) if found is None else found)
+    worst = worst_by_target(result.couplings)
     for k in result.keys:
         f, s = k.figures, k.after
         ok = isinstance(k.outcome, Suggestion)

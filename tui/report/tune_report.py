@@ -6,7 +6,7 @@ from __future__ import annotations
 from html import escape
 
 from processing.tuning import TuneResult
-from tui.headless.tuning import CROSSTALK_RULE, couplings_of, crosstalk_rows, result_rows
+from tui.headless.tuning import CROSSTALK_RULE, crosstalk_rows, result_rows
 from tui.report import html
 from tui.report.plot_data import histograms, sketches
 from tui.report.plots import delta_plot_from, histogram_plot_from
@@ -27,15 +27,14 @@ CROSSTALK_COLUMNS = [("source", "touching"), ("target", "moves"), ("shift", "by 
 def build_tune_report(result: TuneResult) -> str:
     """The page: the plots' points come from three passes over the frames the result was measured from
     (`plot_data`: an envelope per key, then the histograms' ranges and counts), never a whole trace."""
-    found = couplings_of(result)
-    rows = result_rows(result, found)
+    rows = result_rows(result)
     passes = result.passes
     stretches = [k.trace.stretches for k in result.keys]
     drawn = sketches(passes.source, passes.baselines.passes, stretches)
     counted = histograms(passes.baselines.passes, passes.touches.quiet, passes.touches.touched,
                          [float(k.after.threshold_counts) for k in result.keys])
     how = "from the recording's marks" if result.from_marks else "found in the deltas"
-    cross = crosstalk_rows(result, found)
+    cross = crosstalk_rows(result)
     body = [f"<h2>Summary</h2>{html.table(COLUMNS, rows)}",
             "<p class=\"reasons\">Noise: peak-to-peak and RMS (numpy.std) of untouched deltas, counts. "
             "Touched noise: the same of the touched deltas less a 0.2 s running median (the touch level). "
