@@ -417,7 +417,7 @@ def profile_from_dict(raw: dict[str, Any]) -> tuple[Profile | None, list[tuple[s
     """Validate a parsed TOML document; returns the profile only when there is no problem at all."""
     out: Problems = []
     if _board_file(raw):
-        return None, [("(top level)", "this is a board file (`padtune sim FILE` runs it as a simulated "
+        return None, [("", "this is a board file (`padtune sim FILE` runs it as a simulated "
                        "board), not a profile; a profile comes from `padtune tune` or a save on the live "
                        "screen")]
     _unknown("", raw, TOP_KEYS, out)
@@ -480,7 +480,9 @@ def load_profile(path: str | os.PathLike[str]) -> Profile:
         raise ProfileError([str(exc)]) from None
     profile, problems = profile_from_dict(raw)
     if profile is None:
-        raise ProfileError([f"{shown_path(p)}:{key}: {message}" for key, message in problems])
+        # A problem of the whole file (key "") is said after the file's name alone.
+        raise ProfileError([f"{shown_path(p)}:{key}: {message}" if key else f"{shown_path(p)}: {message}"
+                            for key, message in problems])
     return profile
 
 
